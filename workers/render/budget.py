@@ -1,0 +1,242 @@
+"""The randomization budget: every range the render core samples from.
+
+A budget is a plain JSON dict of sections (``render``, ``room``,
+``lighting``, ``camera``, ``thresholds``, ``variation``). Each field is
+described once in :data:`FIELDS` with its unit, physical bounds and a
+one-line explanation of what it changes in the image; the dashboard form,
+the validation and the docs all read that table.
+
+``normalize_budget`` merges a partial budget over :data:`DEFAULT_BUDGET`,
+checks every field and returns a new dict; on bad input it raises
+:class:`BudgetError` naming the field, and nothing is changed.
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+import math
+from dataclasses import dataclass
+from typing import Any
+
+MAX_RESOLUTION_PX = 4096
+MAX_SPP = 4096
+
+
+class BudgetError(ValueError):
+    """A budget field is missing, of the wrong type, out of bounds or min > max."""
+
+
+@dataclass(frozen=True)
+class Field:
+    section: str
+    name: str
+    kind: str  # "range" (float [lo, hi]), "int_range", "float", "int", "probability"
+    unit: str
+    lower: float  # physical lower bound (inclusive)
+    upper: float  # physical upper bound (inclusive)
+    help: str
+    source: str = ""
+
+
+# Sources for default ranges. Values marked "from memory" were not re-checked
+# against the book at hand; "common practice" marks rules of thumb.
+FIELDS: tuple[Field, ...] = (
+    # render
+    Field("render", "width_px", "int", "px", 16, MAX_RESOLUTION_PX, "Image width in pixels."),
+    Field("render", "height_px", "int", "px", 16, MAX_RESOLUTION_PX, "Image height in pixels."),
+    Field("render", "spp", "int", "samples", 1, MAX_SPP,
+          "Path-tracing samples per pixel: more is less noisy and slower, linearly."),
+    Field("render", "max_depth", "int", "bounces", 2, 64,
+          "Longest light path; fewer bounces give darker corners and faster frames."),
+    # room
+    Field("room", "width_m", "range", "m", 2.0, 20.0, "Room width (x); wider rooms hold more furniture.",
+          "Neufert, Architects' Data, 4th ed. — living rooms 3–6 m across (from memory)"),
+    Field("room", "depth_m", "range", "m", 2.0, 20.0, "Room depth (y).",
+          "Neufert, Architects' Data, 4th ed. (from memory)"),
+    Field("room", "height_m", "range", "m", 2.1, 6.0, "Ceiling height; higher ceilings put ceiling lights further away.",
+          "Residential ceilings 2.4–3.0 m, common practice (2.4 m minimum, from memory)"),
+    Field("room", "window_probability", "probability", "", 0.0, 1.0,
+          "Chance that a room has a window (and so can receive sunlight)."),
+    Field("room", "max_objects_per_m2", "float", "1/m²", 0.05, 3.0,
+          "Density limit: the most objects placed per square metre of floor."),
+    # lighting
+    Field("lighting", "panel_count", "int_range", "", 0, 8, "Rectangular ceiling panels (area lights)."),
+    Field("lighting", "panel_flux_lm", "range", "lm", 0.0, 50000.0, "Luminous flux of each panel.",
+          "LED ceiling panels 2000–4000 lm, from memory"),
+    Field("lighting", "panel_size_m", "range", "m", 0.05, 3.0, "Side length of each panel; larger panels give softer shadows."),
+    Field("lighting", "point_count", "int_range", "", 0, 8, "Point bulbs (lamps, pendants)."),
+    Field("lighting", "point_flux_lm", "range", "lm", 0.0, 20000.0, "Luminous flux of each bulb.",
+          "A-type LED bulbs 450–1600 lm (40–100 W incandescent equivalent), from memory"),
+    Field("lighting", "spot_count", "int_range", "", 0, 8, "Spot lights aimed at the furniture."),
+    Field("lighting", "spot_flux_lm", "range", "lm", 0.0, 20000.0, "Luminous flux of each spot light."),
+    Field("lighting", "spot_cone_deg", "range", "°", 5.0, 120.0, "Full cone angle of the spot lights."),
+    Field("lighting", "cct_k", "range", "K", 1000.0, 25000.0,
+          "Correlated colour temperature of the lamps: 2700 K warm, 6500 K daylight."),
+    Field("lighting", "sun_probability", "probability", "", 0.0, 1.0,
+          "Chance that sunlight enters through the window (rooms with a window only)."),
+    Field("lighting", "sun_illuminance_lux", "range", "lx", 0.0, 150000.0,
+          "Direct sunlight illuminance on a surface facing the sun.",
+          "Direct sun 32,000–100,000 lx, IES Lighting Handbook 10th ed. (from memory)"),
+    Field("lighting", "sun_elevation_deg", "range", "°", 0.0, 90.0, "Sun elevation above the horizon."),
+    Field("lighting", "sun_azimuth_deg", "range", "°", 0.0, 360.0, "Sun azimuth, counter-clockwise from +x."),
+    Field("lighting", "dome_illuminance_lux", "range", "lx", 0.0, 20000.0,
+          "Ambient (sky dome) illuminance on a horizontal surface; fills shadows.",
+          "Indoor ambient 50–500 lx, EN 12464-1 task levels (from memory)"),
+    # camera
+    Field("camera", "eye_height_m", "range", "m", 0.3, 2.5,
+          "Camera height above the floor, from a small child's eye to a standing adult's.",
+          "Pheasant & Haslegrave, Bodyspace, 3rd ed.: eye height 5th-pct 4-year-old ≈ 0.9 m, "
+          "95th-pct adult male standing ≈ 1.75 m (from memory)"),
+    Field("camera", "focal_length_mm", "range", "mm", 4.0, 600.0,
+          "Lens focal length; shorter is wider field of view."),
+    Field("camera", "sensor_width_mm", "float", "mm", 1.0, 100.0,
+          "Sensor width; 36 mm is full frame. With the focal length it sets the field of view."),
+    Field("camera", "f_number", "range", "", 0.95, 64.0,
+          "Aperture f-number; small values give shallow depth of field (blur away from focus)."),
+    Field("camera", "focus_jitter_fraction", "float", "", 0.0, 0.9,
+          "Focus distance is the target distance times 1 ± this fraction (missed focus)."),
+    Field("camera", "shutter_s", "range", "s", 1e-5, 30.0,
+          "Exposure time limits; the auto-exposure picks a time inside them."),
+    Field("camera", "iso", "range", "", 25.0, 204800.0,
+          "Sensor sensitivity (ISO 12232); higher ISO is brighter for the same light and noisier."),
+    Field("camera", "exposure_compensation_ev", "range", "EV", -5.0, 5.0,
+          "Offset from the metered exposure; negative is darker."),
+    Field("camera", "full_well_electrons", "float", "e⁻", 1000.0, 200000.0,
+          "Electrons at sensor saturation at base ISO; smaller wells show more shot noise."),
+    Field("camera", "read_noise_electrons", "float", "e⁻", 0.0, 100.0,
+          "Read noise of the sensor; dominates in the shadows at high ISO."),
+    # thresholds
+    Field("thresholds", "min_visible_fraction", "float", "", 0.0, 1.0,
+          "Instances less visible than this (occluded or cut by the frame) are not accepted."),
+    Field("thresholds", "min_box_px", "float", "px", 0.0, 4096.0,
+          "Instances whose visible box has a side shorter than this are not accepted."),
+    # variation
+    Field("variation", "layouts", "int", "", 1, 10_000_000, "Distinct room layouts."),
+    Field("variation", "lighting_per_layout", "int", "", 1, 10_000, "Lighting variants per layout."),
+    Field("variation", "views_per_lighting", "int", "", 1, 10_000, "Camera views per lighting variant."),
+)
+
+DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
+    "render": {"width_px": 640, "height_px": 480, "spp": 32, "max_depth": 6},
+    "room": {
+        "width_m": [3.0, 6.0],
+        "depth_m": [3.0, 6.0],
+        "height_m": [2.4, 3.0],
+        "window_probability": 0.6,
+        "max_objects_per_m2": 0.6,
+    },
+    "lighting": {
+        "panel_count": [0, 2],
+        "panel_flux_lm": [2000.0, 4000.0],
+        "panel_size_m": [0.4, 1.2],
+        "point_count": [0, 2],
+        "point_flux_lm": [450.0, 1600.0],
+        "spot_count": [0, 1],
+        "spot_flux_lm": [300.0, 1000.0],
+        "spot_cone_deg": [25.0, 60.0],
+        "cct_k": [2700.0, 6500.0],
+        "sun_probability": 0.5,
+        "sun_illuminance_lux": [30000.0, 100000.0],
+        "sun_elevation_deg": [10.0, 60.0],
+        "sun_azimuth_deg": [0.0, 360.0],
+        "dome_illuminance_lux": [50.0, 400.0],
+    },
+    "camera": {
+        "eye_height_m": [0.9, 1.75],
+        "focal_length_mm": [18.0, 50.0],
+        "sensor_width_mm": 36.0,
+        "f_number": [2.0, 11.0],
+        "focus_jitter_fraction": 0.05,
+        "shutter_s": [1 / 500, 1 / 8],
+        "iso": [100.0, 3200.0],
+        "exposure_compensation_ev": [-0.7, 0.7],
+        "full_well_electrons": 30000.0,
+        "read_noise_electrons": 3.0,
+    },
+    "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0},
+    "variation": {"layouts": 1000, "lighting_per_layout": 2, "views_per_lighting": 2},
+}
+
+FIELDS_BY_KEY: dict[tuple[str, str], Field] = {(f.section, f.name): f for f in FIELDS}
+
+
+def _number(value: Any, where: str, *, integer: bool) -> float | int:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise BudgetError(f"{where}: expected a number, got {value!r}")
+    if isinstance(value, float) and not math.isfinite(value):
+        raise BudgetError(f"{where}: must be finite, got {value!r}")
+    if integer:
+        if isinstance(value, float) and not value.is_integer():
+            raise BudgetError(f"{where}: expected a whole number, got {value!r}")
+        return int(value)
+    return float(value)
+
+
+def _check_field(field: Field, value: Any) -> Any:
+    where = f"{field.section}.{field.name}"
+    integer = field.kind in ("int", "int_range")
+    unit = f" {field.unit}" if field.unit else ""
+    if field.kind in ("range", "int_range"):
+        if not isinstance(value, (list, tuple)) or len(value) != 2:
+            raise BudgetError(f"{where}: expected [min, max], got {value!r}")
+        lo = _number(value[0], where + " min", integer=integer)
+        hi = _number(value[1], where + " max", integer=integer)
+        if lo > hi:
+            raise BudgetError(f"{where}: min {lo}{unit} is greater than max {hi}{unit}")
+        for bound in (lo, hi):
+            if bound < field.lower or bound > field.upper:
+                raise BudgetError(
+                    f"{where}: {bound}{unit} is outside the allowed {field.lower:g}–{field.upper:g}{unit}"
+                )
+        return [lo, hi]
+    number = _number(value, where, integer=integer)
+    if number < field.lower or number > field.upper:
+        raise BudgetError(f"{where}: {number}{unit} is outside the allowed {field.lower:g}–{field.upper:g}{unit}")
+    return number
+
+
+def normalize_budget(partial: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Merge ``partial`` over the defaults, validate, and return a new budget dict.
+
+    Unknown sections or fields are refused (a typo must not silently fall
+    back to a default).
+    """
+    partial = partial or {}
+    if not isinstance(partial, dict):
+        raise BudgetError(f"budget: expected an object, got {type(partial).__name__}")
+    budget = copy.deepcopy(DEFAULT_BUDGET)
+    for section, values in partial.items():
+        if section not in budget:
+            raise BudgetError(f"budget: unknown section {section!r} (known: {', '.join(budget)})")
+        if not isinstance(values, dict):
+            raise BudgetError(f"{section}: expected an object, got {values!r}")
+        for name, value in values.items():
+            if (section, name) not in FIELDS_BY_KEY:
+                known = ", ".join(f.name for f in FIELDS if f.section == section)
+                raise BudgetError(f"{section}.{name}: unknown field (known: {known})")
+            budget[section][name] = value
+    for field in FIELDS:
+        budget[field.section][field.name] = _check_field(field, budget[field.section][field.name])
+    lighting = budget["lighting"]
+    if lighting["panel_count"][1] + lighting["point_count"][1] + lighting["spot_count"][1] == 0 and (
+        lighting["dome_illuminance_lux"][1] == 0 and lighting["sun_probability"] == 0
+    ):
+        raise BudgetError("lighting: every light source is disabled; the frames would be black")
+    return budget
+
+
+def budget_to_json(budget: dict[str, Any]) -> str:
+    return json.dumps(budget, sort_keys=True, separators=(",", ":"))
+
+
+def load_budget_file(path: str) -> dict[str, Any]:
+    """Read a JSON budget file and normalize it; clear errors for unreadable files."""
+    try:
+        with open(path, encoding="utf-8") as handle:
+            data = json.load(handle)
+    except OSError as exc:
+        raise BudgetError(f"budget file {path}: {exc.strerror or exc}") from exc
+    except json.JSONDecodeError as exc:
+        raise BudgetError(f"budget file {path}: not valid JSON ({exc.msg} at line {exc.lineno})") from exc
+    return normalize_budget(data)
