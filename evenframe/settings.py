@@ -1,0 +1,199 @@
+"""Django settings, chosen by environment variables only.
+
+Two configurations, one code base:
+
+* Embedded default (no variables set): SQLite in WAL mode with a busy
+  timeout, and Celery's file-system broker, both under ``EVENFRAME_DATA_DIR``
+  (default ``./data``). Nothing else has to be installed.
+* Service mode: ``DATABASE_URL=postgres://...`` and
+  ``CELERY_BROKER_URL=redis://...``. A worker on another machine with the
+  same URLs and the same ``EVENFRAME_MEDIA_ROOT`` joins the same fleet.
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import dj_database_url
+from django.core.exceptions import ImproperlyConfigured
+
+BASE_DIR = Path(__file__).resolve().parent.parent
+
+
+def env_bool(name: str, default: bool = False) -> bool:
+    value = os.environ.get(name)
+    if value is None or value == "":
+        return default
+    if value.lower() in ("1", "true", "yes", "on"):
+        return True
+    if value.lower() in ("0", "false", "no", "off"):
+        return False
+    raise ImproperlyConfigured(f"{name} must be true or false, got {value!r}")
+
+
+DATA_DIR = Path(os.environ.get("EVENFRAME_DATA_DIR", BASE_DIR / "data")).resolve()
+MEDIA_ROOT = Path(os.environ.get("EVENFRAME_MEDIA_ROOT", DATA_DIR / "media")).resolve()
+MEDIA_URL = "/media/"
+
+DEBUG = env_bool("EVENFRAME_DEBUG", False)
+_secret = os.environ.get("EVENFRAME_SECRET_KEY", "")
+if not _secret:
+    if os.environ.get("DATABASE_URL", "").startswith("postgres") and not DEBUG:
+        # A shared server must not run with a key everyone can read in the source.
+        raise ImproperlyConfigured("EVENFRAME_SECRET_KEY must be set when DATABASE_URL points to PostgreSQL")
+    _secret = "embedded-insecure-key-only-for-a-single-laptop-do-not-deploy-0123456789"
+SECRET_KEY = _secret
+
+ALLOWED_HOSTS = [h.strip() for h in os.environ.get("EVENFRAME_ALLOWED_HOSTS", "127.0.0.1,localhost").split(",") if h]
+CSRF_TRUSTED_ORIGINS = [o for o in os.environ.get("EVENFRAME_CSRF_TRUSTED_ORIGINS", "").split(",") if o]
+
+INSTALLED_APPS = [
+    "django.contrib.admin",
+    "django.contrib.auth",
+    "django.contrib.contenttypes",
+    "django.contrib.sessions",
+    "django.contrib.messages",
+    "django.contrib.staticfiles",
+    "campaigns",
+    "workers",
+]
+
+MIDDLEWARE = [
+    "django.middleware.security.SecurityMiddleware",
+    "django.contrib.sessions.middleware.SessionMiddleware",
+    "django.middleware.common.CommonMiddleware",
+    "django.middleware.csrf.CsrfViewMiddleware",
+    "django.contrib.auth.middleware.AuthenticationMiddleware",
+    "django.contrib.auth.middleware.LoginRequiredMiddleware",
+    "django.contrib.messages.middleware.MessageMiddleware",
+    "django.middleware.clickjacking.XFrameOptionsMiddleware",
+]
+
+ROOT_URLCONF = "evenframe.urls"
+WSGI_APPLICATION = "evenframe.wsgi.application"
+LOGIN_URL = "login"
+LOGIN_REDIRECT_URL = "home"
+LOGOUT_REDIRECT_URL = "login"
+
+TEMPLATES = [
+    {
+        "BACKEND": "django.template.backends.django.DjangoTemplates",
+        "DIRS": [BASE_DIR / "templates"],
+        "APP_DIRS": True,
+        "OPTIONS": {
+            "context_processors": [
+                "django.template.context_processors.request",
+                "django.contrib.auth.context_processors.auth",
+                "django.contrib.messages.context_processors.messages",
+            ],
+        },
+    },
+]
+
+# --- database -------------------------------------------------------------
+DATABASE_URL = os.environ.get("DATABASE_URL", "")
+if DATABASE_URL:
+    DATABASES = {"default": dj_database_url.parse(DATABASE_URL, conn_max_age=60, conn_health_checks=True)}
+    if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+        DATABASES["default"].setdefault("OPTIONS", {})
+else:
+    DATABASES = {
+        "default": {
+            "ENGINE": "django.db.backends.sqlite3",
+            "NAME": DATA_DIR / "evenframe.sqlite3",
+        }
+    }
+if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":
+    # A worker process and the web server share the file: WAL lets readers
+    # proceed during a write, and the busy timeout waits for the lock rather
+    # than failing with "database is locked".
+    DATABASES["default"]["OPTIONS"] = {
+        **DATABASES["default"].get("OPTIONS", {}),
+        "timeout": 30,
+        "transaction_mode": "IMMEDIATE",
+        "init_command": "PRAGMA journal_mode=WAL; PRAGMA synchronous=NORMAL; PRAGMA busy_timeout=30000;",
+    }
+    _test_name = os.environ.get("EVENFRAME_TEST_SQLITE", str(DATA_DIR / "test-evenframe.sqlite3"))
+    # A file, not :memory:, so that worker processes started by tests see the test database.
+    DATABASES["default"]["TEST"] = {"NAME": _test_name}
+DEFAULT_AUTO_FIELD = "django.db.models.BigAutoField"
+
+# --- celery ----------------------------------------------------------------
+CELERY_BROKER_URL = os.environ.get("CELERY_BROKER_URL", "") or "filesystem://"
+BROKER_DIR = DATA_DIR / "broker"
+if CELERY_BROKER_URL.startswith("filesystem://"):
+    CELERY_BROKER_TRANSPORT_OPTIONS = {
+        "data_folder_in": str(BROKER_DIR / "queue"),
+        "data_folder_out": str(BROKER_DIR / "queue"),
+        "processed_folder": str(BROKER_DIR / "processed"),
+        "store_processed": False,
+        "control_folder": str(BROKER_DIR / "control"),
+    }
+    CELERY_RESULT_BACKEND = os.environ.get("CELERY_RESULT_BACKEND", "") or f"file://{BROKER_DIR / 'results'}"
+else:
+    CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": 3600}
+    CELERY_RESULT_BACKEND = os.environ.get("CELERY_RESULT_BACKEND", "") or CELERY_BROKER_URL
+CELERY_TASK_ACKS_LATE = True
+CELERY_TASK_REJECT_ON_WORKER_LOST = True
+CELERY_WORKER_PREFETCH_MULTIPLIER = 1
+CELERY_TASK_SERIALIZER = "json"
+CELERY_RESULT_SERIALIZER = "json"
+CELERY_ACCEPT_CONTENT = ["json"]
+CELERY_RESULT_EXPIRES = 3600
+CELERY_BROKER_CONNECTION_RETRY_ON_STARTUP = True
+CELERY_WORKER_HIJACK_ROOT_LOGGER = False
+CELERY_TASK_DEFAULT_QUEUE = "evenframe"
+
+# Seconds since its last heartbeat after which a worker is no longer live.
+WORKER_HEARTBEAT_S = float(os.environ.get("EVENFRAME_WORKER_HEARTBEAT_S", "5"))
+WORKER_LIVE_WINDOW_S = float(os.environ.get("EVENFRAME_WORKER_LIVE_WINDOW_S", "20"))
+
+# --- static, i18n ----------------------------------------------------------
+STATIC_URL = "/static/"
+STATIC_ROOT = Path(os.environ.get("EVENFRAME_STATIC_ROOT", DATA_DIR / "static")).resolve()
+STATICFILES_DIRS = [BASE_DIR / "static"]
+LANGUAGE_CODE = "en"
+TIME_ZONE = "UTC"
+USE_I18N = True
+USE_TZ = True
+
+AUTH_PASSWORD_VALIDATORS = [
+    {"NAME": "django.contrib.auth.password_validation.UserAttributeSimilarityValidator"},
+    {"NAME": "django.contrib.auth.password_validation.MinimumLengthValidator"},
+    {"NAME": "django.contrib.auth.password_validation.CommonPasswordValidator"},
+    {"NAME": "django.contrib.auth.password_validation.NumericPasswordValidator"},
+]
+
+# --- security (safe by default; the embedded demo sets EVENFRAME_DEBUG=1) ---
+SESSION_COOKIE_HTTPONLY = True
+CSRF_COOKIE_HTTPONLY = True
+SESSION_COOKIE_SAMESITE = "Lax"
+X_FRAME_OPTIONS = "DENY"
+SECURE_CONTENT_TYPE_NOSNIFF = True
+SECURE_REFERRER_POLICY = "same-origin"
+_secure = env_bool("EVENFRAME_SECURE", not DEBUG and bool(DATABASE_URL))
+SESSION_COOKIE_SECURE = _secure
+CSRF_COOKIE_SECURE = _secure
+SECURE_SSL_REDIRECT = env_bool("EVENFRAME_SSL_REDIRECT", _secure)
+SECURE_HSTS_SECONDS = int(os.environ.get("EVENFRAME_HSTS_SECONDS", "31536000" if _secure else "0"))
+SECURE_HSTS_INCLUDE_SUBDOMAINS = _secure
+SECURE_HSTS_PRELOAD = _secure
+if env_bool("EVENFRAME_BEHIND_PROXY", False):
+    SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
+# Health checks come from localhost over plain HTTP (make demo, container probes).
+SECURE_REDIRECT_EXEMPT = [r"^health/?$", r"^health\.json$"]
+
+FILE_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
+DATA_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
+
+LOGGING = {
+    "version": 1,
+    "disable_existing_loggers": False,
+    "formatters": {"plain": {"format": "%(asctime)s %(levelname)s %(name)s: %(message)s"}},
+    "handlers": {"console": {"class": "logging.StreamHandler", "formatter": "plain"}},
+    "loggers": {
+        "evenframe": {"handlers": ["console"], "level": os.environ.get("EVENFRAME_LOG_LEVEL", "INFO")},
+        "django": {"handlers": ["console"], "level": "WARNING"},
+    },
+}

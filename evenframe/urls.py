@@ -1,0 +1,17 @@
+from django.contrib import admin
+from django.contrib.auth import views as auth_views
+from django.urls import include, path
+
+from evenframe import views
+
+urlpatterns = [
+    path("", views.home, name="home"),
+    path("login/", auth_views.LoginView.as_view(template_name="registration/login.html"), name="login"),
+    path("logout/", auth_views.LogoutView.as_view(), name="logout"),
+    path("health/", views.health_page, name="health"),
+    path("health.json", views.health_json, name="health-json"),
+    path("admin/", admin.site.urls),
+    path("campaigns/", include("campaigns.urls")),
+    # Media (rendered frames) behind login; in a real deployment a proxy may serve them instead.
+    path("media/<path:path>", views.protected_media, name="media"),
+]
