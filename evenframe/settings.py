@@ -61,6 +61,8 @@ INSTALLED_APPS = [
 
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
+    # Serves collected static files (plotly.js, CSS) in service mode without a separate web server.
+    "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
     "django.middleware.common.CommonMiddleware",
     "django.middleware.csrf.CsrfViewMiddleware",
@@ -153,6 +155,12 @@ WORKER_LIVE_WINDOW_S = float(os.environ.get("EVENFRAME_WORKER_LIVE_WINDOW_S", "2
 STATIC_URL = "/static/"
 STATIC_ROOT = Path(os.environ.get("EVENFRAME_STATIC_ROOT", DATA_DIR / "static")).resolve()
 STATICFILES_DIRS = [BASE_DIR / "static"]
+# Serve straight from the app folders too, so the embedded demo needs no collectstatic step.
+WHITENOISE_USE_FINDERS = True
+try:
+    STATIC_ROOT.mkdir(parents=True, exist_ok=True)
+except OSError:  # a read-only checkout still works through the finders
+    pass
 LANGUAGE_CODE = "en"
 TIME_ZONE = "UTC"
 USE_I18N = True

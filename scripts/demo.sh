@@ -1,0 +1,40 @@
+#!/usr/bin/env bash
+# Bring up the embedded demo: migrate, demo user, demo data, web server and one render worker.
+# Ctrl-C stops both.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+started=$(date +%s)
+PY=.venv/bin/python
+export EVENFRAME_DEBUG=${EVENFRAME_DEBUG:-1}
+HOST=${EVENFRAME_DEMO_HOST:-127.0.0.1}
+PORT=${EVENFRAME_DEMO_PORT:-8000}
+mkdir -p data
+$PY manage.py migrate --noinput >/dev/null
+$PY manage.py demo_user
+if $PY manage.py help seed_demo >/dev/null 2>&1; then $PY manage.py seed_demo; fi
+
+pids=()
+stop() {
+  trap - INT TERM EXIT
+  echo; echo "stopping web server and worker..."
+  for pid in "${pids[@]}"; do kill -TERM -- "-$pid" 2>/dev/null || kill -TERM "$pid" 2>/dev/null || true; done
+  for pid in "${pids[@]}"; do
+    for _ in $(seq 1 30); do kill -0 "$pid" 2>/dev/null || break; sleep 0.5; done
+    kill -KILL -- "-$pid" 2>/dev/null || true
+  done
+  echo "stopped."
+}
+trap stop INT TERM EXIT
+
+setsid $PY manage.py runserver --noreload "$HOST:$PORT" > data/demo-web.log 2>&1 &
+pids+=($!)
+setsid $PY manage.py render_worker --concurrency 1 > data/demo-worker.log 2>&1 &
+pids+=($!)
+
+if ! $PY manage.py healthcheck --wait 180 --url "http://$HOST:$PORT/login/"; then
+  echo "the demo did not become healthy; see data/demo-web.log and data/demo-worker.log" >&2
+  exit 1
+fi
+echo "Evenframe is up in $(( $(date +%s) - started )) s: http://$HOST:$PORT/  (Ctrl-C stops it)"
+if $PY manage.py help campaign >/dev/null 2>&1; then $PY manage.py campaign start --demo >/dev/null 2>&1 || true; fi
+wait "${pids[@]}"
