@@ -23,6 +23,7 @@ stop() {
     kill -KILL -- "-$pid" 2>/dev/null || true
   done
   echo "stopped."
+  exit 0
 }
 trap stop INT TERM EXIT
 
