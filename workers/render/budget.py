@@ -80,9 +80,9 @@ FIELDS: tuple[Field, ...] = (
           "Direct sun 32,000–100,000 lx, IES Lighting Handbook 10th ed. (from memory)"),
     Field("lighting", "sun_elevation_deg", "range", "°", 0.0, 90.0, "Sun elevation above the horizon."),
     Field("lighting", "sun_azimuth_deg", "range", "°", 0.0, 360.0, "Sun azimuth, counter-clockwise from +x."),
-    Field("lighting", "dome_illuminance_lux", "range", "lx", 0.0, 20000.0,
-          "Ambient (sky dome) illuminance on a horizontal surface; fills shadows.",
-          "Indoor ambient 50–500 lx, EN 12464-1 task levels (from memory)"),
+    Field("lighting", "dome_illuminance_lux", "range", "lx", 0.0, 150000.0,
+          "Sky light outdoors (illuminance on a horizontal plane, sun excluded); it enters through windows.",
+          "Diffuse sky 5,000–25,000 lx, overcast to clear, IES Lighting Handbook 10th ed. (from memory)"),
     # camera
     Field("camera", "eye_height_m", "range", "m", 0.3, 2.5,
           "Camera height above the floor, from a small child's eye to a standing adult's.",
@@ -140,7 +140,7 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "sun_illuminance_lux": [30000.0, 100000.0],
         "sun_elevation_deg": [10.0, 60.0],
         "sun_azimuth_deg": [0.0, 360.0],
-        "dome_illuminance_lux": [50.0, 400.0],
+        "dome_illuminance_lux": [5000.0, 20000.0],
     },
     "camera": {
         "eye_height_m": [0.9, 1.75],
