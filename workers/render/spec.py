@@ -1,0 +1,193 @@
+"""Scene spec: everything needed to render (and re-render) one frame, as plain JSON.
+
+``make_spec(budget, composition, seed)`` normalizes the budget, derives one
+sub-seed per randomization axis and samples the room, the assets and their
+placement (layout stream), the lights (lighting stream) and the camera
+(camera stream); the noise sub-seed drives the path tracer's sampler and the
+sensor noise. Giving ``layout_seed`` (or ``lighting_seed``, ``camera_seed``)
+fixes that axis independently of ``seed``, so a campaign's variation budget
+(layouts × lighting variants × camera views) is a matter of which sub-seeds a
+frame shares with its neighbours.
+
+The spec is returned exactly as :func:`spec_from_json` would read it back
+(floats rounded to 6 decimals, tuples as lists), so rendering the in-memory
+spec and rendering its JSON later give the same frame.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from typing import Any
+
+import numpy as np
+
+from .budget import normalize_budget
+
+SPEC_FORMAT_VERSION = 1
+FLOAT_DECIMALS = 6
+AXES: tuple[str, ...] = ("layout", "lighting", "camera", "noise")
+# A sub-seed is a 32-bit unsigned integer: exact in JSON and in JavaScript.
+_SEED_MAX = 2**32
+
+
+class SpecError(ValueError):
+    """Bad spec inputs that retrying cannot fix: composition (unknown class, bad count), seeds, spec version."""
+
+
+def _round_floats(value: Any) -> Any:
+    """Plain JSON types with floats rounded to :data:`FLOAT_DECIMALS` (−0.0 → 0.0)."""
+    if isinstance(value, dict):
+        return {str(k): _round_floats(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_round_floats(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return [_round_floats(v) for v in value.tolist()]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        number = float(value)
+        if not math.isfinite(number):
+            raise ValueError(f"spec: non-finite number {number!r}")
+        rounded = round(number, FLOAT_DECIMALS)
+        return 0.0 if rounded == 0 else rounded
+    if value is None or isinstance(value, str):
+        return value
+    raise TypeError(f"spec: {type(value).__name__} is not a JSON type")
+
+
+def spec_to_json(spec: dict[str, Any]) -> str:
+    """Canonical JSON text: sorted keys, compact separators, floats rounded. Same spec → same bytes."""
+    return json.dumps(_round_floats(spec), sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+                      allow_nan=False)
+
+
+def spec_from_json(text: str) -> dict[str, Any]:
+    """Read a spec written by :func:`spec_to_json`; refuses other format versions."""
+    spec = json.loads(text)
+    if not isinstance(spec, dict) or spec.get("format_version") != SPEC_FORMAT_VERSION:
+        found = spec.get("format_version") if isinstance(spec, dict) else None
+        raise SpecError(f"spec: format_version {found!r} is not supported (expected {SPEC_FORMAT_VERSION})")
+    return spec
+
+
+def _check_seed(name: str, value: Any) -> int:
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 0:
+        raise SpecError(f"{name}: expected a non-negative integer, got {value!r}")
+    return int(value)
+
+
+def derive_sub_seeds(seed: int, *, layout_seed: int | None = None, lighting_seed: int | None = None,
+                     camera_seed: int | None = None) -> dict[str, int]:
+    """One 32-bit sub-seed per axis, from ``numpy.random.SeedSequence(seed).spawn``; overrides win."""
+    children = np.random.SeedSequence(_check_seed("seed", seed)).spawn(len(AXES))
+    derived = {axis: int(child.generate_state(1, dtype=np.uint32)[0]) for axis, child in zip(AXES, children, strict=True)}
+    overrides = {"layout": layout_seed, "lighting": lighting_seed, "camera": camera_seed}
+    for axis, value in overrides.items():
+        if value is not None:
+            derived[axis] = _check_seed(f"{axis}_seed", value) % _SEED_MAX
+    return derived
+
+
+def axis_rng(sub_seeds: dict[str, int], axis: str) -> np.random.Generator:
+    """The generator of one axis. The axis index is in the spawn key, so equal sub-seeds on two
+    axes still give independent streams."""
+    return np.random.default_rng(np.random.SeedSequence(sub_seeds[axis], spawn_key=(AXES.index(axis),)))
+
+
+def validate_composition(composition: Any) -> dict[str, int]:
+    """``{class_name: count}`` with known classes and non-negative whole counts, sorted by class."""
+    from .assets import CLASSES
+
+    if not isinstance(composition, dict):
+        raise SpecError(f"composition: expected {{class_name: count}}, got {type(composition).__name__}")
+    clean: dict[str, int] = {}
+    for name, count in composition.items():
+        if name not in CLASSES:
+            raise SpecError(f"composition: unknown class {name!r} (known: {', '.join(sorted(CLASSES))})")
+        if isinstance(count, bool) or not isinstance(count, (int, np.integer)):
+            raise SpecError(f"composition: count of {name!r} must be a whole number, got {count!r}")
+        if count < 0:
+            raise SpecError(f"composition: count of {name!r} is negative ({count})")
+        clean[str(name)] = int(count)
+    return dict(sorted(clean.items()))
+
+
+def _render_settings(budget: dict[str, Any]) -> dict[str, int]:
+    render = budget["render"]
+    return {key: int(render[key]) for key in ("width_px", "height_px", "spp", "max_depth")}
+
+
+def make_spec(
+    budget: dict[str, Any] | None,
+    composition: dict[str, int],
+    seed: int,
+    *,
+    layout_seed: int | None = None,
+    lighting_seed: int | None = None,
+    camera_seed: int | None = None,
+) -> dict[str, Any]:
+    """Sample a complete frame spec.
+
+    Parameters
+    ----------
+    budget : dict or None
+        A (partial) randomization budget; merged over the defaults and validated
+        (:class:`workers.render.budget.BudgetError` on bad input).
+    composition : dict
+        ``{class_name: count}``; unknown classes or negative counts raise ``ValueError``.
+    seed : int
+        The frame seed; each axis's sub-seed derives from it unless overridden.
+    layout_seed, lighting_seed, camera_seed : int, optional
+        Fix one axis: two specs with the same ``layout_seed`` (and budget and
+        composition) have the same room and objects.
+
+    Returns
+    -------
+    dict
+        JSON-able spec: ``format_version``, ``seed``, ``sub_seeds``, ``budget``, ``composition``,
+        ``render``, ``room``, ``objects``, ``lights``, ``camera``, ``thresholds``.
+
+    Raises
+    ------
+    ValueError
+        Bad composition or seeds; ``layout.LayoutError`` (a ValueError) when the objects do not fit.
+    """
+    from .assets import sample_asset
+    from .camera import sample_camera
+    from .layout import place_objects, sample_room
+    from .lights import sample_lights
+
+    normalized = normalize_budget(budget)
+    clean_composition = validate_composition(composition)
+    sub_seeds = derive_sub_seeds(seed, layout_seed=layout_seed, lighting_seed=lighting_seed,
+                                 camera_seed=camera_seed)
+
+    layout_rng = axis_rng(sub_seeds, "layout")
+    room = _round_floats(sample_room(normalized, layout_rng))
+    asset_specs = [sample_asset(name, layout_rng) for name, count in clean_composition.items() for _ in range(count)]
+    objects = place_objects(room, asset_specs, layout_rng,
+                            max_objects_per_m2=normalized["room"]["max_objects_per_m2"])
+    objects = _round_floats(objects)
+
+    lights = _round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
+    camera = _round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera")))
+
+    spec = {
+        "format_version": SPEC_FORMAT_VERSION,
+        "seed": _check_seed("seed", seed),
+        "sub_seeds": sub_seeds,
+        "budget": normalized,
+        "composition": clean_composition,
+        "render": _render_settings(normalized),
+        "room": room,
+        "objects": objects,
+        "lights": lights,
+        "camera": camera,
+        "thresholds": dict(normalized["thresholds"]),
+    }
+    # The returned spec is exactly what its JSON reads back as.
+    return spec_from_json(spec_to_json(spec))
+
