@@ -300,3 +300,23 @@ def test_preview_draws_boxes(tiny_spec):
     assert preview.shape == rgb.shape and (rgb == 128).all()  # the input is not modified
     assert (np.abs(preview[44, 10:40].astype(int) - ACCEPTED_RGB).sum(axis=1) < 60).any()
     assert (np.abs(preview[49, 50:70].astype(int) - REJECTED_RGB).sum(axis=1) < 60).any()
+
+
+def test_auto_iso_raises_sensitivity_before_underexposing():
+    # ISO 2720 meter (K = 12.5): a dim scene that would need 1 s at ISO 100 gets ISO raised (marked 1/3-stop
+    # speeds, ISO 12232) so that the longest allowed shutter, 1/8 s, is enough: 8x → ISO 800.
+    from workers.render import camera as cam
+    from workers.render.frame import expose
+
+    f_number, iso = 4.0, 100.0
+    luminance = 12.5 * f_number**2 / (1.0 * iso)  # N²/t = L S / K with t = 1 s
+    radiance = np.full((8, 8, 3), luminance, dtype=np.float32)
+    camera = {"f_number": f_number, "iso": iso, "iso_limits": [100.0, 3200.0], "exposure_compensation_ev": 0.0,
+              "shutter_limits_s": [1 / 500, 1 / 8], "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
+    _, exposure = expose(radiance, camera, rng=np.random.default_rng(0), noise=False)
+    assert exposure["iso"] == 800.0 and exposure["iso_sampled"] == 100.0
+    assert exposure["shutter_s"] == pytest.approx(0.125, rel=0.01)
+    # With no headroom the image stays underexposed at the ISO limit.
+    _, capped = expose(radiance, camera | {"iso_limits": [100.0, 200.0]}, rng=np.random.default_rng(0), noise=False)
+    assert capped["iso"] == 200.0 and capped["shutter_s"] == pytest.approx(0.125)
+    assert cam.nominal_iso_values(100, 800)[-1] == 800

@@ -26,8 +26,8 @@ Conventions (see ``README.md``):
 Exposure: the render's Y channel (0.2126 R + 0.7152 G + 0.0722 B, linear
 sRGB) is luminance in cd/m². :func:`exposure_scale` maps it to the sensor
 signal (1.0 = saturation), :func:`apply_sensor_noise` adds shot and read
-noise, :func:`encode_srgb_8bit` clips and encodes. :func:`develop_image`
-chains metering, exposure, noise and encoding.
+noise, :func:`encode_srgb_8bit` clips and encodes; ``workers.render.frame.expose``
+chains metering (with auto-ISO), exposure, noise and encoding.
 """
 
 from __future__ import annotations
@@ -489,52 +489,31 @@ def encode_srgb_8bit(signal_rgb: np.ndarray) -> np.ndarray:
     return np.round(encoded * 255.0).astype(np.uint8)
 
 
-def develop_image(
-    radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.Generator, noise: bool = True
-) -> tuple[np.ndarray, dict[str, float]]:
-    """Meter, expose, add noise and encode a linear-sRGB render (Y = cd/m²) to 8-bit sRGB.
+NOMINAL_ISO_DECADE = (100, 125, 160, 200, 250, 320, 400, 500, 640, 800)
 
-    Metering averages the luminance of the whole frame (an averaging reflected-light meter).
 
-    Returns
-    -------
-    image : numpy.ndarray, uint8, shape (H, W, 3)
-    exposure : dict
-        ``shutter_s``, ``ev100``, ``exposure_scale``, ``mean_luminance_cd_m2``, ``clipped_fraction``
-        (share of channel values at or above saturation before noise), rounded to 6 decimals.
+def nominal_iso_values(lo: float, hi: float) -> list[float]:
+    """Marked ISO speeds in 1/3-stop steps (…, 100, 125, 160, 200, …) that lie inside [lo, hi].
 
     References
     ----------
-    ISO 2720:1974 (meter), ISO 12232:2019 (saturation), IEC 61966-2-1 (encoding).
+    ISO 12232:2019, Table 1 (from memory): speeds are reported rounded to the standard 1/3-stop series.
     """
-    radiance = np.asarray(radiance_rgb, dtype=np.float32)[..., :3]
-    mean_luminance = float(luminance_cd_m2(radiance).mean())
-    shutter_s = metered_shutter_s(
-        mean_luminance,
-        camera["f_number"],
-        camera["iso"],
-        compensation_ev=camera.get("exposure_compensation_ev", 0.0),
-        shutter_limits_s=tuple(camera["shutter_limits_s"]),
-    )
-    scale = exposure_scale(camera["f_number"], shutter_s, camera["iso"])
-    signal = radiance * np.float32(scale)
-    clipped = float((signal >= 1.0).mean())
-    if noise:
-        signal = apply_sensor_noise(
-            signal,
-            camera["iso"],
-            full_well_electrons=camera["full_well_electrons"],
-            read_noise_electrons=camera["read_noise_electrons"],
-            rng=rng,
-        )
-    info = {
-        "shutter_s": shutter_s,
-        "ev100": ev100(camera["f_number"], shutter_s, camera["iso"]),
-        "exposure_scale": scale,
-        "mean_luminance_cd_m2": mean_luminance,
-        "clipped_fraction": clipped,
-    }
-    return encode_srgb_8bit(signal), {k: _round6(v) for k, v in info.items()}
+    values = []
+    for exponent in range(-2, 5):
+        for base in NOMINAL_ISO_DECADE:
+            value = base * 10.0 ** exponent
+            if lo - 1e-9 <= value <= hi + 1e-9:
+                values.append(round(value, 6))
+    return values
+
+
+def nominal_iso(iso: float, lo: float, hi: float) -> float:
+    """The marked 1/3-stop ISO nearest to ``iso`` (in log scale) inside [lo, hi]; ``iso`` itself if none is."""
+    values = nominal_iso_values(lo, hi)
+    if not values:
+        return float(iso)
+    return min(values, key=lambda v: abs(math.log2(v) - math.log2(iso)))
 
 
 # ---------------------------------------------------------------------------------------------------------------------
@@ -695,7 +674,7 @@ def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[di
     focal_length_mm = _uniform(rng, cam["focal_length_mm"])
     sensor_width_mm = float(cam["sensor_width_mm"])
     f_number = _log_uniform(rng, cam["f_number"])
-    iso = _log_uniform(rng, cam["iso"])
+    iso = nominal_iso(_log_uniform(rng, cam["iso"]), *cam["iso"])
     compensation_ev = _uniform(rng, cam["exposure_compensation_ev"])
     eye_height_m = min(_uniform(rng, cam["eye_height_m"]), room_h - 0.1)
 
@@ -772,6 +751,7 @@ def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[di
         "f_number": _round6(f_number),
         "focus_distance_m": _round6(max(focus_distance_m, 0.05)),
         "iso": _round6(iso),
+        "iso_limits": _round6([float(cam["iso"][0]), float(cam["iso"][1])]),
         "exposure_compensation_ev": _round6(compensation_ev),
         "shutter_limits_s": _round6([float(shutter[0]), float(shutter[1])]),
         "full_well_electrons": _round6(float(cam["full_well_electrons"])),

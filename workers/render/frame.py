@@ -96,10 +96,20 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
     compensation_ev = float(camera.get("exposure_compensation_ev", 0.0))
     lo_s, hi_s = (float(v) for v in camera["shutter_limits_s"])
     mean_luminance = float(cam.luminance_cd_m2(radiance_rgb).mean(dtype=np.float64))
+    iso_lo, iso_hi = (float(v) for v in camera.get("iso_limits", (iso, iso)))
     if mean_luminance > 0:
         metered = cam.metered_shutter_s(mean_luminance, f_number, iso, compensation_ev=compensation_ev,
                                         shutter_limits_s=(1e-300, 1e300))
         metered = snap_shutter_s(metered)
+        if metered > hi_s and iso < iso_hi:
+            # Auto-ISO, as cameras do: the longest allowed shutter is not enough, so raise the
+            # sensitivity (in marked 1/3-stop steps, up to the budget's limit) before underexposing.
+            needed = min(iso * metered / hi_s, iso_hi)
+            candidates = [v for v in cam.nominal_iso_values(iso, iso_hi) if v >= needed] or [iso_hi]
+            iso = float(min(candidates))
+            metered = snap_shutter_s(cam.metered_shutter_s(mean_luminance, f_number, iso,
+                                                           compensation_ev=compensation_ev,
+                                                           shutter_limits_s=(1e-300, 1e300)))
     else:
         metered = hi_s
     shutter_s = min(max(metered, lo_s), hi_s)
@@ -114,9 +124,10 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
         "metered_shutter_s": round(metered, 9),
         "ev100": round(cam.ev100(f_number, shutter_s, iso), 6),
         "iso": iso,
+        "iso_sampled": float(camera["iso"]),
         "f_number": f_number,
         "exposure_compensation_ev": compensation_ev,
-        "metering": "ISO 2720 average, K=12.5, 1/3-stop",
+        "metering": "ISO 2720 average, K=12.5, 1/3-stop, auto-ISO",
     }
     return rgb, exposure
 
