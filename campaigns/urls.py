@@ -5,4 +5,5 @@ from campaigns import views
 app_name = "campaigns"
 urlpatterns = [
     path("", views.campaign_list, name="list"),
+    path("<int:campaign_id>/", views.campaign_detail, name="detail"),
 ]

@@ -13,6 +13,7 @@ Two configurations, one code base:
 from __future__ import annotations
 
 import os
+import sys
 from pathlib import Path
 
 import dj_database_url
@@ -32,7 +33,12 @@ def env_bool(name: str, default: bool = False) -> bool:
     raise ImproperlyConfigured(f"{name} must be true or false, got {value!r}")
 
 
-DATA_DIR = Path(os.environ.get("EVENFRAME_DATA_DIR", BASE_DIR / "data")).resolve()
+_default_data_dir = BASE_DIR / "data"
+if "pytest" in sys.modules and not os.environ.get("EVENFRAME_DATA_DIR"):
+    # A test run never shares the demo's database, broker folders or media: a running demo worker
+    # would otherwise consume the tests' messages.
+    _default_data_dir = BASE_DIR / "data" / "test"
+DATA_DIR = Path(os.environ.get("EVENFRAME_DATA_DIR", _default_data_dir)).resolve()
 MEDIA_ROOT = Path(os.environ.get("EVENFRAME_MEDIA_ROOT", DATA_DIR / "media")).resolve()
 MEDIA_URL = "/media/"
 

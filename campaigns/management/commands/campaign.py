@@ -1,0 +1,182 @@
+"""``manage.py campaign create|start|pause|resume|cancel|status|tick|list``."""
+
+from __future__ import annotations
+
+import json
+from decimal import Decimal
+
+from django.contrib.auth import get_user_model
+from django.core.management.base import BaseCommand, CommandError, CommandParser
+
+from campaigns import scheduler, selectors, services
+from campaigns.models import Campaign
+
+BAR_WIDTH = 30
+
+
+def progress_bar(done: int, target: int, width: int = BAR_WIDTH) -> str:
+    fraction = 1.0 if target == 0 else min(1.0, done / target)
+    filled = int(round(fraction * width))
+    return "[" + "#" * filled + "." * (width - filled) + "]"
+
+
+def format_duration(seconds: float | None) -> str:
+    if seconds is None:
+        return "unknown (no live worker or no finished frame yet)"
+    seconds = int(round(seconds))
+    hours, rest = divmod(seconds, 3600)
+    minutes, secs = divmod(rest, 60)
+    return f"{hours} h {minutes:02d} min" if hours else f"{minutes} min {secs:02d} s"
+
+
+def parse_quota(text: str) -> services.QuotaInput:
+    """``class=target`` or ``class=target:min_visible_fraction:min_box_px``."""
+    if "=" not in text:
+        raise CommandError(f"--quota {text!r}: expected class=target[:min_visible_fraction[:min_box_px]]")
+    name, _, rest = text.partition("=")
+    parts = rest.split(":")
+    try:
+        target = int(parts[0])
+        vis = float(parts[1]) if len(parts) > 1 and parts[1] else None
+        box = float(parts[2]) if len(parts) > 2 and parts[2] else None
+    except ValueError as exc:
+        raise CommandError(f"--quota {text!r}: {exc}") from exc
+    return services.QuotaInput(name.strip(), target, vis, box)
+
+
+class Command(BaseCommand):
+    help = "Create, start, pause, resume, cancel and inspect rendering campaigns."
+
+    def add_arguments(self, parser: CommandParser) -> None:
+        sub = parser.add_subparsers(dest="action", required=True)
+        create = sub.add_parser("create", help="Create a draft campaign.")
+        create.add_argument("name")
+        create.add_argument("--owner", required=True, help="Username of the owner")
+        create.add_argument("--quota", action="append", default=[], required=True,
+                            help="class=target[:min_visible_fraction[:min_box_px]]; repeat per class")
+        create.add_argument("--budget-file", help="JSON randomization budget (partial; merged over the defaults)")
+        create.add_argument("--budget-json", help="The same, inline")
+        create.add_argument("--width", type=int, help="Shortcut for render.width_px")
+        create.add_argument("--height", type=int, help="Shortcut for render.height_px")
+        create.add_argument("--spp", type=int, help="Shortcut for render.spp")
+        create.add_argument("--cost-budget", required=True)
+        create.add_argument("--price-per-cpu-hour", required=True)
+        create.add_argument("--setup-cost", default="0")
+        create.add_argument("--manual-rate-per-hour", default="0")
+        create.add_argument("--weight", type=int, default=1)
+        create.add_argument("--seed", type=int, default=0)
+        create.add_argument("--start", action="store_true", help="Start right after creating")
+        for action in ("start", "pause", "resume", "cancel", "status"):
+            p = sub.add_parser(action, help=f"{action.capitalize()} a campaign.")
+            p.add_argument("campaign", help="Campaign id or name")
+        budget = sub.add_parser("set-budget", help="Change a campaign's cost budget.")
+        budget.add_argument("campaign")
+        budget.add_argument("cost_budget")
+        sub.add_parser("tick", help="Top up every running campaign (dispatch, resend due retries).")
+        sub.add_parser("list", help="List campaigns.")
+
+    def handle(self, *args, **options) -> None:
+        action = options["action"]
+        try:
+            if action == "create":
+                return self._create(options)
+            if action == "tick":
+                self.stdout.write(f"{scheduler.dispatch()} message(s) sent")
+                return
+            if action == "list":
+                for c in selectors.campaign_list():
+                    self.stdout.write(f"{c.pk:4d}  {c.status:10s} {c.name}")
+                return
+            campaign = self._campaign(options["campaign"])
+            if action == "status":
+                return self._status(campaign)
+            if action == "set-budget":
+                services.set_cost_budget(campaign_id=campaign.pk, cost_budget=options["cost_budget"])
+            else:
+                {"start": services.start_campaign, "pause": services.pause_campaign,
+                 "resume": services.resume_campaign, "cancel": services.cancel_campaign}[action](
+                    campaign_id=campaign.pk)
+            campaign.refresh_from_db()
+            self.stdout.write(f"campaign {campaign.pk} {campaign.name!r}: {campaign.status}")
+        except services.CampaignError as exc:
+            raise CommandError(str(exc)) from exc
+
+    @staticmethod
+    def _campaign(key: str) -> Campaign:
+        found = Campaign.objects.filter(pk=int(key)).first() if key.isdigit() else None
+        found = found or Campaign.objects.filter(name=key).first()
+        if found is None:
+            raise CommandError(f"no campaign with id or name {key!r}")
+        return found
+
+    def _create(self, options: dict) -> None:
+        user = get_user_model().objects.filter(username=options["owner"]).first()
+        if user is None:
+            raise CommandError(f"--owner: no user {options['owner']!r}")
+        budget: dict = {}
+        if options.get("budget_file"):
+            try:
+                with open(options["budget_file"], encoding="utf-8") as handle:
+                    budget = json.load(handle)
+            except (OSError, json.JSONDecodeError) as exc:
+                raise CommandError(f"--budget-file: {exc}") from exc
+        if options.get("budget_json"):
+            try:
+                budget = json.loads(options["budget_json"])
+            except json.JSONDecodeError as exc:
+                raise CommandError(f"--budget-json: {exc}") from exc
+        render = {k: options[o] for k, o in (("width_px", "width"), ("height_px", "height"), ("spp", "spp"))
+                  if options.get(o) is not None}
+        if render:
+            budget = {**budget, "render": {**budget.get("render", {}), **render}}
+        campaign = services.create_campaign(
+            owner=user, name=options["name"], quotas=[parse_quota(q) for q in options["quota"]], budget=budget,
+            cost_budget=options["cost_budget"], price_per_cpu_hour=options["price_per_cpu_hour"],
+            setup_cost=options["setup_cost"], manual_labelling_rate_per_hour=options["manual_rate_per_hour"],
+            weight=options["weight"], seed=options["seed"],
+        )
+        self.stdout.write(f"created campaign {campaign.pk} {campaign.name!r} (draft)")
+        if options["start"]:
+            services.start_campaign(campaign_id=campaign.pk)
+            self.stdout.write(f"campaign {campaign.pk}: running")
+
+    def _status(self, campaign: Campaign) -> None:
+        s = selectors.campaign_summary(campaign=campaign)
+        c = s.campaign
+        w = self.stdout.write
+        reason = f" ({c.get_pause_reason_display()}: {c.pause_detail})" if c.status == Campaign.Status.PAUSED else ""
+        w(f"Campaign {c.pk} {c.name!r} — {c.status}{reason}")
+        w(f"  {c.width_px}×{c.height_px} px, {c.spp} spp, seed {c.seed}, weight {c.weight}")
+        w("  Quotas (accepted / target):")
+        name_width = max([len(q.class_name) for q in s.quotas] + [5])
+        for q in s.quotas:
+            mark = "  met" if q.met else ""
+            w(f"    {q.class_name:<{name_width}} {progress_bar(q.accepted, q.target)} {q.accepted:5d} / {q.target:<5d}"
+              f" rejected {q.rejected:4d}  yield {q.yield_estimate:.2f}{mark}")
+        frames = ", ".join(f"{k} {v}" for k, v in s.frames.items() if v)
+        w(f"  Frames: {frames or 'none yet'}")
+        median_cpu = f"{s.median_cpu_s:.2f} CPU s" if s.median_cpu_s is not None else "—"
+        median_wall = f"{s.median_wall_s:.2f} s" if s.median_wall_s is not None else "—"
+        w(f"  Per frame (median of recent): {median_cpu}, wall {median_wall}; total {s.cpu_s_spent:.1f} CPU s")
+        budget_fraction = float(s.total_spent / c.cost_budget) if c.cost_budget else 0.0
+        w(f"  Spend: {s.total_spent:.4f} of budget {c.cost_budget} {progress_bar(int(budget_fraction * 1000), 1000)}"
+          f" {budget_fraction * 100:.1f}%  (fixed {s.fixed:.2f} + compute {s.compute_spent:.4f})")
+        if s.amortized.per_accepted_instance is not None:
+            w(f"  Amortized: {s.amortized.per_frame:.4f} per frame, {s.amortized.per_accepted_instance:.4f} per "
+              "accepted instance")
+        p = s.projection
+        if p.frames_remaining == 0:
+            w("  Remaining: nothing — every quota is met")
+        else:
+            frames_left = p.frames_remaining if p.frames_remaining is not None else "unknown"
+            cost_left = f"{p.cost_remaining:.4f}" if p.cost_remaining is not None else "unknown"
+            w(f"  Remaining: ≈ {frames_left} frames, ≈ {cost_left} compute, ETA {format_duration(p.seconds_remaining)}"
+              f" on {s.live_slots} live worker slot(s)")
+        m = s.manual
+        if c.manual_labelling_rate_per_hour > Decimal(0):
+            refs = "; ".join(f"{r.citation}: {r.seconds_per_instance:g} s for {r.what} ({r.note})" for r in m.references)
+            w(f"  Manual labelling of {sum(q.target for q in s.quotas)} instances at {c.manual_labelling_rate_per_hour}"
+              f"/h: {m.cost_for_instances:.2f} ({m.seconds_per_instance:g} s per instance — {refs})")
+            be = s.break_even_frames
+            w(f"  Break-even: {be} frames" if be is not None else
+              "  Break-even: not yet known (no accepted instances) or never (a frame costs more than its labels)")

@@ -1,0 +1,244 @@
+"""Dispatch: keep a bounded number of render tasks in flight per running campaign.
+
+The bound comes from the live workers (their heartbeat rows and concurrency):
+``slots = Σ concurrency × QUEUE_DEPTH_PER_SLOT`` across the fleet, shared
+between running campaigns in proportion to their weight (largest remainder,
+at least one each). Dispatch runs when a campaign starts or resumes, after
+every frame result (from the worker that recorded it) and on ``manage.py
+campaign tick``; no beat process is needed.
+
+Each message carries ``(frame_id, dispatch_no)``; together with the frame's
+unique ``(campaign, index)`` this is the idempotency key: a worker only
+claims a frame whose ``dispatch_count`` matches, so stale and duplicated
+messages change nothing.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from collections.abc import Mapping
+from datetime import timedelta
+
+from django.db import transaction
+from django.utils import timezone
+
+from campaigns import costs, planner, selectors, services
+from campaigns.models import Campaign, Frame
+from campaigns.sampling import max_objects_for_frame
+
+log = logging.getLogger("evenframe.campaigns")
+
+TASK_NAME = "evenframe.render_frame"
+TASK_ID_PREFIX = "ef"
+# Frames queued per worker slot: one rendering and one waiting, so a worker never idles between frames.
+QUEUE_DEPTH_PER_SLOT = 2
+# With no live worker, keep this many frames waiting per campaign so a worker that starts finds work.
+SLOTS_WITHOUT_WORKERS = 1
+# A frame queued this long while workers are live lost its message (broker restart, a consumer on another
+# database): it is sent again under a new dispatch number, and the old message, should it arrive, is stale.
+STALE_QUEUED_S = 900.0
+# When this many frames in a row end dead, something is systematically wrong (renderer, budget): pause.
+DEAD_IN_A_ROW_PAUSE = 5
+
+Status = Campaign.Status
+State = Frame.State
+
+
+# --- pure helpers ---------------------------------------------------------------------------------------
+
+
+def fleet_slots(*, concurrencies: list[int]) -> int:
+    """Frames the whole fleet should have in flight."""
+    live = sum(max(0, c) for c in concurrencies)
+    return live * QUEUE_DEPTH_PER_SLOT if live else 0
+
+
+def share_slots(*, total_slots: int, weights: Mapping[int, int]) -> dict[int, int]:
+    """Split ``total_slots`` between campaigns by weight (largest remainder); every campaign gets at least one."""
+    if not weights:
+        return {}
+    if total_slots <= 0:
+        return {key: SLOTS_WITHOUT_WORKERS for key in weights}
+    weight_sum = sum(weights.values())
+    exact = {key: total_slots * w / weight_sum for key, w in weights.items()}
+    shares = {key: math.floor(v) for key, v in exact.items()}
+    spare = total_slots - sum(shares.values())
+    for key in sorted(exact, key=lambda k: (-(exact[k] - shares[k]), k))[:spare]:
+        shares[key] += 1
+    return {key: max(1, v) for key, v in shares.items()}
+
+
+# --- sending ----------------------------------------------------------------------------------------------
+
+
+def send_frame_task(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str,
+                    countdown_s: float = 0.0) -> None:
+    """Put one render task on the broker. Tests replace this to capture messages instead."""
+    from evenframe.celery import app
+
+    app.send_task(TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
+                  task_id=task_id, countdown=countdown_s if countdown_s > 0 else None)
+
+
+def revoke_tasks(*, task_ids: list[str]) -> None:
+    """Best effort: brokers with remote control (Redis) drop the messages; the task re-checks state anyway."""
+    if not task_ids:
+        return
+    from django.conf import settings
+
+    if settings.CELERY_BROKER_URL.startswith("filesystem://"):
+        return  # no remote control on this transport; claim_frame releases the frames instead
+    try:
+        from evenframe.celery import app
+
+        app.control.revoke(task_ids)
+    except Exception:  # noqa: BLE001 - revocation is an optimisation; claim_frame is the guarantee
+        log.warning("could not revoke %d task(s); workers will release them at start", len(task_ids), exc_info=True)
+
+
+# --- dispatch ---------------------------------------------------------------------------------------------
+
+
+def campaign_slots_live() -> bool:
+    from workers.models import live_workers
+
+    return live_workers().exists()
+
+
+def campaign_slots() -> dict[int, int]:
+    from workers.models import live_workers
+
+    weights = dict(Campaign.objects.filter(status=Status.RUNNING).values_list("pk", "weight"))
+    total = fleet_slots(concurrencies=list(live_workers().values_list("concurrency", flat=True)))
+    return share_slots(total_slots=total, weights=weights)
+
+
+def plan_next(*, campaign: Campaign, progress: list[planner.ClassProgress],
+              last: Frame | None) -> tuple[tuple[int, int, int], dict[str, int]] | None:
+    """Coordinates and composition of the next new frame, or None when nothing more is needed now."""
+    variation = campaign.budget["variation"]
+    needs = planner.placements_needed(progress)
+    if sum(needs.values()) <= 0:
+        return None
+    # A dead frame's layout (e.g. the objects did not fit) is not tried again with another view.
+    continue_layout = (last is not None and last.state != State.DEAD
+                       and planner.composition_still_useful(last.composition, needs))
+    previous = (last.layout_index, last.lighting_index, last.view_index) if last is not None else None
+    coordinates = planner.next_coordinates(previous, lighting_per_layout=variation["lighting_per_layout"],
+                                           views_per_lighting=variation["views_per_lighting"],
+                                           layouts=variation["layouts"], continue_layout=continue_layout)
+    if last is not None and coordinates[0] == last.layout_index and continue_layout:
+        return coordinates, dict(last.composition)  # same layout: same objects, another light or view
+    index = (last.index + 1) if last is not None else 0
+    seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=index, layout_index=coordinates[0],
+                                lighting_index=coordinates[1], view_index=coordinates[2])
+    composition = planner.plan_composition(progress, max_objects=max_objects_for_frame(budget=campaign.budget,
+                                                                                       seeds=seeds))
+    return (coordinates, composition) if composition else None
+
+
+def dispatch(*, campaign_id: int | None = None) -> int:
+    """Top up every running campaign (or one) to its share of the fleet; returns messages sent."""
+    ids = [campaign_id] if campaign_id is not None else list(
+        Campaign.objects.filter(status=Status.RUNNING).values_list("pk", flat=True))
+    sent = 0
+    for cid in ids:
+        sent += _dispatch_one(cid)
+    return sent
+
+
+def _dispatch_one(campaign_id: int) -> int:
+    messages: list[tuple[int, int, str, float]] = []
+    with transaction.atomic():
+        try:
+            campaign = services._lock_campaign(campaign_id)
+        except services.CampaignError:
+            return 0
+        if campaign.status != Status.RUNNING:
+            return 0
+        recent = list(Frame.objects.filter(campaign=campaign, state__in=(State.DONE, State.DEAD))
+                      .order_by("-finished_at").values_list("state", flat=True)[:DEAD_IN_A_ROW_PAUSE])
+        if len(recent) == DEAD_IN_A_ROW_PAUSE and all(s == State.DEAD for s in recent):
+            services._set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.FAILURES,
+                                 detail=f"the last {DEAD_IN_A_ROW_PAUSE} frames are dead; see their errors",
+                                 allowed_from=(Status.RUNNING,))
+            services._on_commit_revoke(services._revoke_waiting_frames(campaign, detail="campaign paused (failures)"))
+            return 0
+        share = campaign_slots().get(campaign.pk, SLOTS_WITHOUT_WORKERS)
+        expected_cpu_s = selectors.expected_frame_cpu_s(campaign=campaign)
+        frame_cost = costs.expected_frame_cost(expected_cpu_s=expected_cpu_s,
+                                               price_per_cpu_hour=campaign.price_per_cpu_hour)
+        spent = selectors.total_spent(campaign=campaign)
+        now = timezone.now()
+
+        def affordable() -> bool:
+            return costs.can_afford_frame(spent=spent, committed=selectors.committed_cost(campaign=campaign),
+                                          next_frame_cost=frame_cost, cost_budget=campaign.cost_budget)
+
+        # 1. Failed frames go back on the queue at once; their backoff becomes the message countdown.
+        for frame in Frame.objects.filter(campaign=campaign, state=State.FAILED).order_by("index"):
+            countdown = max(0.0, (frame.retry_at - now).total_seconds()) if frame.retry_at else 0.0
+            again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s,
+                                           task_id_prefix=TASK_ID_PREFIX)
+            if again:
+                messages.append((again.pk, again.dispatch_count, again.task_id, countdown))
+        if campaign_slots_live():
+            stale_before = now - timedelta(seconds=STALE_QUEUED_S)
+            for frame in Frame.objects.filter(campaign=campaign, state=State.QUEUED, queued_at__lt=stale_before):
+                again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s,
+                                               task_id_prefix=TASK_ID_PREFIX)
+                if again:
+                    messages.append((again.pk, again.dispatch_count, again.task_id, 0.0))
+        in_flight = Frame.objects.filter(campaign=campaign, state__in=Frame.IN_FLIGHT_STATES).count()
+        budget_blocked = False
+        # 2. Revoked frames (paused, then resumed) keep their index and seed; the planner picks a new composition.
+        for frame in Frame.objects.filter(campaign=campaign, state=State.REVOKED).order_by("index"):
+            if in_flight >= share:
+                break
+            if not affordable():
+                budget_blocked = True
+                break
+            progress = selectors.class_progress(campaign=campaign)
+            seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index,
+                                        layout_index=frame.layout_index, lighting_index=frame.lighting_index,
+                                        view_index=frame.view_index)
+            composition = planner.plan_composition(progress, max_objects=max_objects_for_frame(
+                budget=campaign.budget, seeds=seeds))
+            if not composition:
+                break
+            again = services.requeue_frame(frame=frame, composition=composition, expected_cpu_s=expected_cpu_s,
+                                           task_id_prefix=TASK_ID_PREFIX)
+            if again:
+                messages.append((again.pk, again.dispatch_count, again.task_id, 0.0))
+                in_flight += 1
+        # 3. New frames.
+        while in_flight < share and not budget_blocked:
+            last = Frame.objects.filter(campaign=campaign).order_by("-index").first()
+            planned = plan_next(campaign=campaign, progress=selectors.class_progress(campaign=campaign), last=last)
+            if planned is None:
+                break
+            if not affordable():
+                budget_blocked = True
+                break
+            coordinates, composition = planned
+            frame = services.create_frame(campaign=campaign, index=(last.index + 1) if last else 0,
+                                          coordinates=coordinates, composition=composition,
+                                          expected_cpu_s=expected_cpu_s, task_id_prefix=TASK_ID_PREFIX)
+            messages.append((frame.pk, frame.dispatch_count, frame.task_id, 0.0))
+            in_flight += 1
+        if budget_blocked and in_flight == 0:
+            services._set_status(
+                campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET,
+                detail=f"spent {spent}; the next frame (≈ {frame_cost}) would exceed the budget {campaign.cost_budget}",
+                allowed_from=(Status.RUNNING,))
+
+        uid = str(campaign.uid)
+
+        def send() -> None:
+            for frame_id, dispatch_no, task_id, countdown in messages:
+                send_frame_task(frame_id=frame_id, dispatch_no=dispatch_no, campaign_uid=uid, task_id=task_id,
+                                countdown_s=countdown)
+
+        transaction.on_commit(send)
+    return len(messages)

@@ -1,0 +1,574 @@
+"""Everything that writes campaign data. Keyword-only, type-annotated; views, commands and tasks call these.
+
+Concurrency rules (several workers record results at once):
+
+* every writing transaction first locks the campaign row (``SELECT … FOR
+  UPDATE`` on PostgreSQL; SQLite's ``BEGIN IMMEDIATE`` serialises writers
+  anyway), so all writers take locks in the same order — campaign, frame,
+  quota — and cannot deadlock;
+* a frame changes state only through a conditional ``UPDATE … WHERE state =
+  …`` on its row, so a redelivered or duplicated task finds the frame already
+  done and changes nothing;
+* counters change only by ``F()`` increments in the transaction that records
+  the result.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections import Counter
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+from datetime import timedelta
+from decimal import Decimal, InvalidOperation
+from typing import Any
+
+from django.db import transaction
+from django.db.models import F, Q
+from django.utils import timezone
+
+from campaigns import costs, planner
+from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+
+log = logging.getLogger("evenframe.campaigns")
+
+# Caps on top of the budget schema's physical bounds: what one CPU worker can render in reasonable time.
+MAX_CAMPAIGN_PIXELS = 1920 * 1080
+MAX_CAMPAIGN_SPP = 1024
+MAX_TARGET_ACCEPTED = 1_000_000
+RETRY_BACKOFF_BASE_S = 2.0
+RETRY_BACKOFF_MAX_S = 300.0
+
+Status = Campaign.Status
+State = Frame.State
+
+
+class CampaignError(ValueError):
+    """Bad input or an impossible transition; the message says which and nothing was changed."""
+
+
+@dataclass(frozen=True)
+class QuotaInput:
+    class_name: str
+    target_accepted: int
+    min_visible_fraction: float | None = None
+    min_box_px: float | None = None
+
+
+# --- helpers ---------------------------------------------------------------------------------------
+
+
+def _lock_campaign(campaign_id: int) -> Campaign:
+    try:
+        return Campaign.objects.select_for_update().get(pk=campaign_id)
+    except Campaign.DoesNotExist as exc:
+        raise CampaignError(f"campaign {campaign_id} does not exist") from exc
+
+
+def _event(*, campaign_id: int, to_state: str, from_state: str = "", frame_id: int | None = None,
+           worker_host: str = "", detail: str = "") -> None:
+    FrameEvent.objects.create(campaign_id=campaign_id, frame_id=frame_id, from_state=from_state, to_state=to_state,
+                              worker_host=worker_host[:255], detail=detail)
+
+
+def _decimal(value: Any, what: str, *, minimum: Decimal = Decimal(0)) -> Decimal:
+    try:
+        number = Decimal(str(value))
+    except (InvalidOperation, ValueError) as exc:
+        raise CampaignError(f"{what}: expected a number, got {value!r}") from exc
+    if not number.is_finite():
+        raise CampaignError(f"{what}: must be finite, got {value!r}")
+    if number < minimum:
+        raise CampaignError(f"{what}: must be at least {minimum}, got {number}")
+    return number
+
+
+def _on_commit_dispatch(campaign_id: int | None) -> None:
+    def run() -> None:
+        from campaigns import scheduler
+
+        scheduler.dispatch(campaign_id=campaign_id)
+
+    transaction.on_commit(run)
+
+
+def _on_commit_revoke(task_ids: list[str]) -> None:
+    if task_ids:
+        def run() -> None:
+            from campaigns import scheduler
+
+            scheduler.revoke_tasks(task_ids=task_ids)
+
+        transaction.on_commit(run)
+
+
+def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any]:
+    """The render core's ``normalize_budget`` plus the campaign caps; :class:`CampaignError` on bad input."""
+    from workers.render.budget import BudgetError, normalize_budget
+
+    try:
+        normalized = normalize_budget(dict(budget or {}))
+    except BudgetError as exc:
+        raise CampaignError(f"budget: {exc}") from exc
+    render = normalized["render"]
+    pixels = render["width_px"] * render["height_px"]
+    if pixels > MAX_CAMPAIGN_PIXELS:
+        raise CampaignError(f"budget: render.width_px × height_px = {pixels} px exceeds the campaign cap of "
+                            f"{MAX_CAMPAIGN_PIXELS} px (1920×1080)")
+    if render["spp"] > MAX_CAMPAIGN_SPP:
+        raise CampaignError(f"budget: render.spp {render['spp']} exceeds the campaign cap of {MAX_CAMPAIGN_SPP}")
+    return normalized
+
+
+# --- campaigns -------------------------------------------------------------------------------------
+
+
+@transaction.atomic
+def create_campaign(
+    *,
+    owner: Any,
+    name: str,
+    quotas: Sequence[QuotaInput],
+    cost_budget: Decimal | float | str,
+    price_per_cpu_hour: Decimal | float | str,
+    budget: Mapping[str, Any] | None = None,
+    setup_cost: Decimal | float | str = 0,
+    manual_labelling_rate_per_hour: Decimal | float | str = 0,
+    weight: int = 1,
+    seed: int = 0,
+    max_attempts: int = 3,
+    asset_ids: Iterable[int] | None = None,
+    description: str = "",
+) -> Campaign:
+    """Validate everything, then create a draft campaign with its quotas; nothing is written on bad input."""
+    name = (name or "").strip()
+    if not name:
+        raise CampaignError("name: required")
+    if Campaign.objects.filter(name=name).exists():
+        raise CampaignError(f"name: a campaign called {name!r} already exists")
+    normalized = normalize_campaign_budget(budget)
+    cost_budget_d = _decimal(cost_budget, "cost_budget")
+    price_d = _decimal(price_per_cpu_hour, "price_per_cpu_hour")
+    setup_d = _decimal(setup_cost, "setup_cost")
+    manual_d = _decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour")
+    if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
+        raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
+        raise CampaignError(f"seed: must be a non-negative whole number, got {seed!r}")
+    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
+        raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
+    if not quotas:
+        raise CampaignError("quotas: at least one class quota is required")
+    classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
+    seen: set[str] = set()
+    thresholds = normalized["thresholds"]
+    clean: list[tuple[ObjectClass, int, float, float]] = []
+    for q in quotas:
+        where = f"quota {q.class_name!r}"
+        if q.class_name not in classes:
+            raise CampaignError(f"{where}: unknown object class (create it first, e.g. with seed_demo)")
+        if q.class_name in seen:
+            raise CampaignError(f"{where}: listed twice")
+        seen.add(q.class_name)
+        if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
+            raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
+        if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
+            raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
+        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else float(q.min_visible_fraction)
+        box = thresholds["min_box_px"] if q.min_box_px is None else float(q.min_box_px)
+        if not 0.0 <= vis <= 1.0:
+            raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
+        longest_side_px = max(normalized["render"]["width_px"], normalized["render"]["height_px"])
+        if not 0.0 <= box <= longest_side_px:
+            raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
+        clean.append((classes[q.class_name], q.target_accepted, vis, box))
+    if sum(t for _, t, _, _ in clean) == 0:
+        raise CampaignError("quotas: every target is 0; nothing to render")
+    assets = list(Asset.objects.filter(pk__in=list(asset_ids))) if asset_ids is not None else list(
+        Asset.objects.filter(object_class__name__in=list(seen)))
+    fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=setup_d)
+    if fixed > cost_budget_d:
+        raise CampaignError(f"cost_budget: {cost_budget_d} is less than the fixed costs {fixed} "
+                            "(setup cost plus asset creation costs)")
+    campaign = Campaign.objects.create(
+        name=name, owner=owner, description=description, seed=seed, budget=normalized, cost_budget=cost_budget_d,
+        price_per_cpu_hour=price_d, setup_cost=setup_d, manual_labelling_rate_per_hour=manual_d, weight=weight,
+        max_attempts=max_attempts,
+    )
+    campaign.assets.set(assets)
+    ClassQuota.objects.bulk_create([
+        ClassQuota(campaign=campaign, object_class=oc, target_accepted=t, min_visible_fraction=v, min_box_px=b)
+        for oc, t, v, b in clean
+    ])
+    _event(campaign_id=campaign.pk, to_state=Status.DRAFT, detail="created")
+    return campaign
+
+
+def campaign_fixed_cost(*, campaign: Campaign) -> Decimal:
+    return costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in campaign.assets.all()],
+                            setup_cost=campaign.setup_cost)
+
+
+def _set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "",
+                allowed_from: Sequence[str]) -> None:
+    if campaign.status not in allowed_from:
+        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; cannot go to {to} "
+                            f"(allowed from: {', '.join(allowed_from)})")
+    now = timezone.now()
+    fields: dict[str, Any] = {"status": to, "pause_reason": reason, "pause_detail": detail[:500]}
+    if to == Status.RUNNING and campaign.started_at is None:
+        fields["started_at"] = now
+    if to in (Status.COMPLETED, Status.CANCELLED):
+        fields["finished_at"] = now
+    Campaign.objects.filter(pk=campaign.pk).update(**fields)
+    _event(campaign_id=campaign.pk, from_state=campaign.status, to_state=to,
+           detail=" — ".join(x for x in (reason, detail) if x))
+    for key, value in fields.items():
+        setattr(campaign, key, value)
+
+
+def _revoke_waiting_frames(campaign: Campaign, *, detail: str, states: Sequence[str] = (State.QUEUED,)) -> list[str]:
+    """Queued (and optionally failed) frames become revoked; returns their task ids for a best-effort revoke."""
+    waiting = list(Frame.objects.filter(campaign=campaign, state__in=states).values_list("pk", "state", "task_id"))
+    task_ids = []
+    for frame_id, state, task_id in waiting:
+        if Frame.objects.filter(pk=frame_id, state=state).update(state=State.REVOKED, retry_at=None):
+            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=state, to_state=State.REVOKED,
+                   detail=detail)
+            if task_id:
+                task_ids.append(task_id)
+    return task_ids
+
+
+@transaction.atomic
+def start_campaign(*, campaign_id: int) -> Campaign:
+    """draft → running, then dispatch the first frames (after commit)."""
+    campaign = _lock_campaign(campaign_id)
+    fixed = campaign_fixed_cost(campaign=campaign)
+    if fixed > campaign.cost_budget:
+        raise CampaignError(f"the fixed costs {fixed} already exceed the cost budget {campaign.cost_budget}")
+    _set_status(campaign, Status.RUNNING, allowed_from=(Status.DRAFT,))
+    ClassQuota.objects.filter(campaign=campaign, met_at__isnull=True, target_accepted=0).update(met_at=timezone.now())
+    _on_commit_dispatch(campaign.pk)
+    return campaign
+
+
+@transaction.atomic
+def pause_campaign(*, campaign_id: int, reason: str = Campaign.PauseReason.USER, detail: str = "") -> Campaign:
+    """running → paused: dispatch stops and queued frames are revoked; running frames finish and are recorded."""
+    campaign = _lock_campaign(campaign_id)
+    _set_status(campaign, Status.PAUSED, reason=reason, detail=detail, allowed_from=(Status.RUNNING,))
+    _on_commit_revoke(_revoke_waiting_frames(campaign, detail=f"campaign paused ({reason})"))
+    return campaign
+
+
+@transaction.atomic
+def resume_campaign(*, campaign_id: int) -> Campaign:
+    """paused → running; revoked frames are dispatched again with their own index and seed."""
+    campaign = _lock_campaign(campaign_id)
+    if campaign.status == Status.PAUSED and campaign.pause_reason == Campaign.PauseReason.BUDGET:
+        from campaigns import selectors
+
+        if not selectors.can_afford_next_frame(campaign=campaign):
+            raise CampaignError("the next frame would still take spend over the cost budget; raise the budget first")
+    _set_status(campaign, Status.RUNNING, allowed_from=(Status.PAUSED,))
+    _on_commit_dispatch(campaign.pk)
+    return campaign
+
+
+@transaction.atomic
+def cancel_campaign(*, campaign_id: int) -> Campaign:
+    """Any unfinished status → cancelled; waiting frames are revoked for good."""
+    campaign = _lock_campaign(campaign_id)
+    _set_status(campaign, Status.CANCELLED, allowed_from=(Status.DRAFT, Status.RUNNING, Status.PAUSED))
+    _on_commit_revoke(_revoke_waiting_frames(campaign, detail="campaign cancelled", states=(State.QUEUED, State.FAILED)))
+    return campaign
+
+
+@transaction.atomic
+def set_cost_budget(*, campaign_id: int, cost_budget: Decimal | float | str) -> Campaign:
+    campaign = _lock_campaign(campaign_id)
+    value = _decimal(cost_budget, "cost_budget")
+    Campaign.objects.filter(pk=campaign.pk).update(cost_budget=value)
+    _event(campaign_id=campaign.pk, from_state=campaign.status, to_state=campaign.status,
+           detail=f"cost budget {campaign.cost_budget} → {value}")
+    campaign.cost_budget = value
+    return campaign
+
+
+# --- frames: created by the scheduler ----------------------------------------------------------------
+
+
+def create_frame(*, campaign: Campaign, index: int, coordinates: tuple[int, int, int], composition: dict[str, int],
+                 expected_cpu_s: float, task_id_prefix: str) -> Frame:
+    """A new queued frame; call inside the scheduler's transaction (campaign row locked)."""
+    layout, lighting, view = coordinates
+    seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=index, layout_index=layout,
+                                lighting_index=lighting, view_index=view)
+    now = timezone.now()
+    frame = Frame.objects.create(
+        campaign=campaign, index=index, seed=seeds.seed, layout_index=layout, lighting_index=lighting,
+        view_index=view, composition=dict(sorted(composition.items())), state=State.QUEUED, dispatch_count=1,
+        task_id=f"{task_id_prefix}-c{campaign.pk}-f{index}-d1", expected_cpu_s=expected_cpu_s, queued_at=now,
+    )
+    _event(campaign_id=campaign.pk, frame_id=frame.pk, to_state=State.QUEUED,
+           detail=f"composition {frame.composition}")
+    return frame
+
+
+def requeue_frame(*, frame: Frame, composition: dict[str, int] | None, expected_cpu_s: float,
+                  task_id_prefix: str) -> Frame | None:
+    """failed (retry due), revoked (campaign resumed) or a stale queued frame → queued with a new message id.
+
+    Returns None if the frame moved meanwhile."""
+    dispatch_no = frame.dispatch_count + 1
+    task_id = f"{task_id_prefix}-c{frame.campaign_id}-f{frame.index}-d{dispatch_no}"
+    fields: dict[str, Any] = {"state": State.QUEUED, "dispatch_count": dispatch_no, "task_id": task_id,
+                              "expected_cpu_s": expected_cpu_s, "queued_at": timezone.now()}
+    if composition is not None:
+        fields["composition"] = dict(sorted(composition.items()))
+    if not Frame.objects.filter(pk=frame.pk, state=frame.state, dispatch_count=frame.dispatch_count).update(**fields):
+        return None
+    _event(campaign_id=frame.campaign_id, frame_id=frame.pk, from_state=frame.state, to_state=State.QUEUED,
+           detail=f"dispatch {dispatch_no}" + (f", composition {fields['composition']}" if composition else ""))
+    frame.refresh_from_db()
+    return frame
+
+
+# --- frames: claimed and finished by workers ---------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Claim:
+    ok: bool
+    reason: str
+    frame: Frame | None = None
+    campaign: Campaign | None = None
+
+
+def _frame_key(frame_id: int) -> tuple[int, int] | None:
+    row = Frame.objects.filter(pk=frame_id).values_list("campaign_id", "index").first()
+    return row
+
+
+@transaction.atomic
+def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: str = "",
+                campaign_uid: str | None = None) -> Claim:
+    """A worker takes a frame: queued → running, or running → running when the message was redelivered.
+
+    The campaign's state is checked here too (the file-system broker cannot
+    revoke messages remotely): a frame of a paused or cancelled campaign is
+    released (revoked), and a frame whose expected cost would take spend over
+    the budget is not started — the campaign pauses with that reason.
+    """
+    key = _frame_key(frame_id)
+    if key is None:
+        return Claim(False, "no such frame")
+    campaign = _lock_campaign(key[0])
+    if campaign_uid is not None and str(campaign.uid) != str(campaign_uid):
+        log.error("frame %s: message for campaign %s, but this database's frame belongs to campaign %s — is this "
+                  "worker on the same DATABASE_URL as the scheduler?", frame_id, campaign_uid, campaign.uid)
+        return Claim(False, "message is for another database's campaign")
+    frame = Frame.objects.get(pk=frame_id)
+    if frame.dispatch_count != dispatch_no:
+        return Claim(False, f"stale message (dispatch {dispatch_no}, frame is at {frame.dispatch_count})")
+    if frame.state not in (State.QUEUED, State.RUNNING):
+        return Claim(False, f"frame is {frame.state}")
+    if campaign.status != Status.RUNNING:
+        Frame.objects.filter(pk=frame.pk, state=frame.state).update(state=State.REVOKED)
+        _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.REVOKED,
+               worker_host=worker_host, detail=f"released at start: campaign is {campaign.status}")
+        return Claim(False, f"campaign is {campaign.status}")
+    if frame.state == State.QUEUED:
+        from campaigns import selectors
+
+        committed = selectors.committed_cost(campaign=campaign, states=(State.RUNNING,))
+        spent = campaign.compute_cost_spent + campaign_fixed_cost(campaign=campaign)
+        next_cost = costs.expected_frame_cost(expected_cpu_s=frame.expected_cpu_s,
+                                              price_per_cpu_hour=campaign.price_per_cpu_hour)
+        if not costs.can_afford_frame(spent=spent, committed=committed, next_frame_cost=next_cost,
+                                      cost_budget=campaign.cost_budget):
+            Frame.objects.filter(pk=frame.pk, state=State.QUEUED).update(state=State.REVOKED)
+            _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.QUEUED, to_state=State.REVOKED,
+                   worker_host=worker_host, detail="not started: expected cost would exceed the budget")
+            detail = (f"spent {costs.money(spent)} + running {committed} + next frame ≈ {next_cost} "
+                      f"> budget {campaign.cost_budget}")
+            _set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET, detail=detail,
+                        allowed_from=(Status.RUNNING,))
+            _on_commit_revoke(_revoke_waiting_frames(campaign, detail="campaign paused (budget)"))
+            return Claim(False, "budget")
+    now = timezone.now()
+    attempts = frame.attempts + 1
+    if attempts > campaign.max_attempts:
+        # A message redelivered after its worker died, once too often.
+        Frame.objects.filter(pk=frame.pk, state=frame.state).update(
+            state=State.DEAD, finished_at=now, error=frame.error or "worker lost the task too many times")
+        _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.DEAD,
+               worker_host=worker_host, detail="attempt limit reached on redelivery")
+        Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") + 1)
+        return Claim(False, "attempt limit reached")
+    updated = Frame.objects.filter(pk=frame.pk, state=frame.state, dispatch_count=dispatch_no).update(
+        state=State.RUNNING, attempts=attempts, worker_host=worker_host[:255], started_at=now,
+        task_id=task_id or frame.task_id,
+    )
+    if not updated:
+        return Claim(False, "frame changed meanwhile")
+    _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.RUNNING,
+           worker_host=worker_host, detail=f"attempt {attempts}" + (" (redelivered)" if frame.state == State.RUNNING
+                                                                     else ""))
+    frame.refresh_from_db()
+    return Claim(True, "claimed", frame, campaign)
+
+
+def _box(label: Mapping[str, Any], *keys: str) -> list[float] | None:
+    for key in keys:
+        if label.get(key) is not None:
+            return [float(v) for v in label[key]]
+    return None
+
+
+@transaction.atomic
+def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[str, Any]], cpu_s: float,
+                  wall_s: float, timings_s: Mapping[str, float] | None = None, output_dir: str = "",
+                  worker_host: str = "") -> bool:
+    """running → done with its instances and counters; False (and no change) for a duplicate or stale result."""
+    key = _frame_key(frame_id)
+    if key is None:
+        return False
+    campaign = _lock_campaign(key[0])
+    price = campaign.price_per_cpu_hour
+    cost = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=price)
+    now = timezone.now()
+    updated = Frame.objects.filter(pk=frame_id, state=State.RUNNING, dispatch_count=dispatch_no).update(
+        state=State.DONE, cpu_s=cpu_s, wall_s=wall_s, compute_cost=cost, timings_s=dict(timings_s or {}),
+        output_dir=output_dir, finished_at=now, error="", traceback="", retry_at=None,
+    )
+    if not updated:
+        log.info("frame %s: duplicate or stale result ignored", frame_id)
+        return False
+    frame = Frame.objects.get(pk=frame_id)
+    _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=State.RUNNING, to_state=State.DONE,
+           worker_host=worker_host or frame.worker_host, detail=f"{len(labels)} instances, {cpu_s:.2f} CPU s")
+    quotas = {q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related(
+        "object_class")}
+    accepted: Counter[str] = Counter()
+    rejected: Counter[str] = Counter()
+    rows = []
+    for label in labels:
+        class_name = str(label.get("class_name", ""))
+        quota = quotas.get(class_name)
+        if quota is None:
+            log.warning("frame %s: instance of class %r has no quota; not stored", frame_id, class_name)
+            continue
+        ok, reasons = planner.accept_instance(label, min_visible_fraction=quota.min_visible_fraction,
+                                              min_box_px=quota.min_box_px)
+        (accepted if ok else rejected)[class_name] += 1
+        rows.append(Instance(
+            frame_id=frame_id, campaign=campaign, object_class_id=quota.object_class_id,
+            instance_id=int(label["instance_id"]), asset_id=str(label.get("asset_id", ""))[:200],
+            bbox_xywh_px=_box(label, "bbox"), amodal_bbox_xywh_px=_box(label, "amodal_bbox"),
+            visible_fraction=float(label.get("visible_fraction") or 0.0),
+            occlusion_fraction=float(label.get("occlusion_fraction") or 0.0),
+            truncation_fraction=float(label.get("truncation_fraction") or 0.0),
+            mask_area_px=int(label.get("mask_area_px") or 0),
+            segmentation_rle=label.get("segmentation"),
+            accepted=ok, reject_reasons=reasons,
+        ))
+    Instance.objects.bulk_create(rows)
+    placed = Counter({name: int(count) for name, count in (frame.composition or {}).items()})
+    for class_name, quota in quotas.items():
+        a, r, p = accepted[class_name], rejected[class_name], placed[class_name]
+        if a or r or p:
+            ClassQuota.objects.filter(pk=quota.pk).update(
+                accepted_count=F("accepted_count") + a, rejected_count=F("rejected_count") + r,
+                placed_count=F("placed_count") + p,
+            )
+    Campaign.objects.filter(pk=campaign.pk).update(
+        frames_done=F("frames_done") + 1,
+        instances_accepted=F("instances_accepted") + sum(accepted.values()),
+        instances_rejected=F("instances_rejected") + sum(rejected.values()),
+        cpu_s_spent=F("cpu_s_spent") + cpu_s, wall_s_spent=F("wall_s_spent") + wall_s,
+        compute_cost_spent=F("compute_cost_spent") + cost,
+    )
+    _mark_quotas_met(campaign=campaign, frame_id=frame_id)
+    return True
+
+
+def _mark_quotas_met(*, campaign: Campaign, frame_id: int | None) -> None:
+    """Each quota is marked met once (conditional update); the campaign completes once every quota is met."""
+    now = timezone.now()
+    newly_met = ClassQuota.objects.filter(campaign=campaign, met_at__isnull=True,
+                                          accepted_count__gte=F("target_accepted"))
+    for quota_id, class_name in newly_met.values_list("pk", "object_class__name"):
+        if ClassQuota.objects.filter(pk=quota_id, met_at__isnull=True).update(met_at=now):
+            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state="", to_state="quota_met",
+                   detail=f"quota for {class_name} met")
+    if not ClassQuota.objects.filter(campaign=campaign).filter(
+            Q(met_at__isnull=True) | Q(accepted_count__lt=F("target_accepted"))).exists():
+        campaign.refresh_from_db(fields=["status"])
+        if campaign.status in (Status.RUNNING, Status.PAUSED):
+            _set_status(campaign, Status.COMPLETED, detail="every quota is met",
+                        allowed_from=(Status.RUNNING, Status.PAUSED))
+            _on_commit_revoke(_revoke_waiting_frames(campaign, detail="campaign completed",
+                                                     states=(State.QUEUED, State.FAILED)))
+
+
+def retry_backoff_s(*, attempts: int) -> float:
+    """Exponential backoff: 2 s, 4 s, 8 s … capped at 5 min."""
+    return min(RETRY_BACKOFF_MAX_S, RETRY_BACKOFF_BASE_S * 2 ** max(0, attempts - 1))
+
+
+@transaction.atomic
+def record_failure(*, frame_id: int, dispatch_no: int, error: str, traceback: str = "", cpu_s: float = 0.0,
+                   wall_s: float = 0.0, permanent: bool = False, worker_host: str = "") -> str:
+    """running → failed (retry later with backoff) or dead (attempt limit, or a permanent error).
+
+    Returns the new state, or ``"stale"`` when the frame was not running
+    under this message (nothing changed). The CPU time of the failed attempt
+    is spent and counted.
+    """
+    key = _frame_key(frame_id)
+    if key is None:
+        return "stale"
+    campaign = _lock_campaign(key[0])
+    frame = Frame.objects.get(pk=frame_id)
+    if frame.state != State.RUNNING or frame.dispatch_count != dispatch_no:
+        return "stale"
+    now = timezone.now()
+    dead = permanent or frame.attempts >= campaign.max_attempts
+    to_state = State.DEAD if dead else State.FAILED
+    retry_at = None if dead else now + timedelta(seconds=retry_backoff_s(attempts=frame.attempts))
+    cost = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=campaign.price_per_cpu_hour)
+    updated = Frame.objects.filter(pk=frame_id, state=State.RUNNING, dispatch_count=dispatch_no).update(
+        state=to_state, error=error[:10000], traceback=traceback[-20000:], retry_at=retry_at,
+        finished_at=now if dead else None, cpu_s=(frame.cpu_s or 0.0) + cpu_s, wall_s=(frame.wall_s or 0.0) + wall_s,
+    )
+    if not updated:
+        return "stale"
+    why = "permanent error" if permanent else (f"attempt {frame.attempts} of {campaign.max_attempts}")
+    _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=State.RUNNING, to_state=to_state,
+           worker_host=worker_host or frame.worker_host,
+           detail=f"{why}: {error[:300]}" + ("" if dead else f"; retry at {retry_at:%H:%M:%S}"))
+    Campaign.objects.filter(pk=campaign.pk).update(
+        frames_dead=F("frames_dead") + (1 if dead else 0), cpu_s_spent=F("cpu_s_spent") + cpu_s,
+        wall_s_spent=F("wall_s_spent") + wall_s, compute_cost_spent=F("compute_cost_spent") + cost,
+    )
+    return to_state
+
+
+# --- catalogue ----------------------------------------------------------------------------------------
+
+
+def ensure_object_class(*, name: str, label: str = "", description: str = "") -> ObjectClass:
+    obj, _ = ObjectClass.objects.get_or_create(name=name, defaults={"label": label or name.replace("_", " "),
+                                                                    "description": description})
+    return obj
+
+
+def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_cost: Decimal | float | str = 0) -> Asset:
+    cost = _decimal(creation_cost, "creation_cost")
+    asset, _ = Asset.objects.get_or_create(
+        object_class=object_class, name=name,
+        defaults={"kind": Asset.Kind.PROCEDURAL, "generator": object_class.name, "creation_cost": cost},
+    )
+    return asset
