@@ -11,7 +11,7 @@ PORT=${EVENFRAME_DEMO_PORT:-8000}
 mkdir -p data
 $PY manage.py migrate --noinput >/dev/null
 $PY manage.py demo_user
-if $PY manage.py help seed_demo >/dev/null 2>&1; then $PY manage.py seed_demo; fi
+$PY manage.py seed_demo
 
 pids=()
 stop() {
@@ -37,5 +37,7 @@ if ! $PY manage.py healthcheck --wait 180 --url "http://$HOST:$PORT/login/"; the
   exit 1
 fi
 echo "Evenframe is up in $(( $(date +%s) - started )) s: http://$HOST:$PORT/  (Ctrl-C stops it)"
-if $PY manage.py help campaign >/dev/null 2>&1; then $PY manage.py campaign start --demo >/dev/null 2>&1 || true; fi
+# Start (or resume) the demo campaign now that a worker is live, so dispatch is sized for it.
+$PY manage.py seed_demo --start | tail -1
+echo "progress: .venv/bin/python manage.py campaign status   (web: http://$HOST:$PORT/campaigns/)"
 wait "${pids[@]}"
