@@ -46,6 +46,8 @@ class Asset(models.Model):
     generator = models.CharField(max_length=128, blank=True, help_text="Render core generator (class name)")
     mesh_file = models.FileField(upload_to="assets/meshes/", blank=True)
     mesh_unit = models.CharField(max_length=8, default="auto", help_text="m, cm, mm, in or auto")
+    team = models.ForeignKey("teams.Team", on_delete=models.PROTECT, related_name="assets", null=True, blank=True,
+                             help_text="Owning team; empty for the shared procedural library")
     creation_cost = models.DecimalField(
         max_digits=12, decimal_places=2, default=Decimal("0"), validators=[MinValueValidator(Decimal("0"))],
         help_text="One-off cost of making the asset (modelling, licensing), in the campaign currency",
@@ -77,7 +79,8 @@ class Campaign(models.Model):
         BUDGET = "budget", "The next frame would take spend over the cost budget"
         FAILURES = "failures", "Too many frames failed"
 
-    name = models.CharField(max_length=200, unique=True)
+    name = models.CharField(max_length=200)
+    team = models.ForeignKey("teams.Team", on_delete=models.PROTECT, related_name="campaigns")
     uid = models.UUIDField(default=uuid.uuid4, unique=True, editable=False,
                            help_text="Carried by every task message: a worker whose database does not hold this "
                                      "campaign (a misconfigured fleet) refuses the message instead of rendering "
@@ -117,6 +120,7 @@ class Campaign(models.Model):
             models.CheckConstraint(condition=models.Q(price_per_cpu_hour__gte=0), name="campaign_price_non_negative"),
             models.CheckConstraint(condition=models.Q(setup_cost__gte=0), name="campaign_setup_cost_non_negative"),
             models.CheckConstraint(condition=models.Q(weight__gte=1), name="campaign_weight_positive"),
+            models.UniqueConstraint(fields=["team", "name"], name="campaign_unique_name_per_team"),
         ]
 
     def __str__(self) -> str:

@@ -129,6 +129,7 @@ def create_campaign(
     owner: Any,
     name: str,
     quotas: Sequence[QuotaInput],
+    team: Any = None,
     cost_budget: Decimal | float | str,
     price_per_cpu_hour: Decimal | float | str,
     budget: Mapping[str, Any] | None = None,
@@ -144,8 +145,14 @@ def create_campaign(
     name = (name or "").strip()
     if not name:
         raise CampaignError("name: required")
-    if Campaign.objects.filter(name=name).exists():
-        raise CampaignError(f"name: a campaign called {name!r} already exists")
+    from teams.permissions import PLANNER, has_role, personal_team
+
+    if team is None:
+        team = personal_team(user=owner)
+    elif not has_role(user=owner, team=team, role=PLANNER):
+        raise CampaignError(f"team: {owner} is not a planner in team {team}")
+    if Campaign.objects.filter(team=team, name=name).exists():
+        raise CampaignError(f"name: team {team} already has a campaign called {name!r}")
     normalized = normalize_campaign_budget(budget)
     cost_budget_d = _decimal(cost_budget, "cost_budget")
     price_d = _decimal(price_per_cpu_hour, "price_per_cpu_hour")
@@ -191,7 +198,7 @@ def create_campaign(
         raise CampaignError(f"cost_budget: {cost_budget_d} is less than the fixed costs {fixed} "
                             "(setup cost plus asset creation costs)")
     campaign = Campaign.objects.create(
-        name=name, owner=owner, description=description, seed=seed, budget=normalized, cost_budget=cost_budget_d,
+        name=name, team=team, owner=owner, description=description, seed=seed, budget=normalized, cost_budget=cost_budget_d,
         price_per_cpu_hour=price_d, setup_cost=setup_d, manual_labelling_rate_per_hour=manual_d, weight=weight,
         max_attempts=max_attempts,
     )

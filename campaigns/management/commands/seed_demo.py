@@ -18,9 +18,11 @@ from django.db import transaction
 
 from campaigns import services
 from campaigns.models import Campaign
+from teams.models import Membership, Team
 
 DEMO_CAMPAIGN_NAME = "Catalogue top-up: rare pieces"
 DEMO_OWNER = "demo"
+DEMO_TEAM = "Lindqvist & Daughters — catalogue vision"
 
 CLASS_LABELS = {
     "chair": "Chair", "armchair": "Armchair", "sofa": "Sofa", "dining_table": "Dining table",
@@ -74,6 +76,8 @@ class Command(BaseCommand):
                 owner.set_unusable_password()
                 owner.save(update_fields=["password"])
                 self.stdout.write(f"created user {owner.username!r} without a password (make demo sets one)")
+            team, _ = Team.objects.get_or_create(name=DEMO_TEAM)
+            Membership.objects.update_or_create(team=team, user=owner, defaults={"role": Membership.Role.ADMIN})
             created_assets = 0
             for name in demo_class_names():
                 object_class = services.ensure_object_class(name=name, label=CLASS_LABELS.get(name, ""))
@@ -81,11 +85,11 @@ class Command(BaseCommand):
                 services.ensure_procedural_asset(object_class=object_class, name=f"procedural {name}",
                                                  creation_cost=GENERATOR_CREATION_COST)
                 created_assets += object_class.assets.count() - before
-            campaign = Campaign.objects.filter(name=DEMO_CAMPAIGN_NAME).first()
+            campaign = Campaign.objects.filter(team=team, name=DEMO_CAMPAIGN_NAME).first()
             if campaign is None:
                 try:
                     campaign = services.create_campaign(
-                        owner=owner, name=DEMO_CAMPAIGN_NAME, quotas=DEMO_QUOTAS, budget=DEMO_BUDGET,
+                        owner=owner, team=team, name=DEMO_CAMPAIGN_NAME, quotas=DEMO_QUOTAS, budget=DEMO_BUDGET,
                         cost_budget=DEMO_COST_BUDGET, price_per_cpu_hour=DEMO_PRICE_PER_CPU_HOUR,
                         setup_cost=DEMO_SETUP_COST, manual_labelling_rate_per_hour=DEMO_MANUAL_RATE_PER_HOUR,
                         seed=DEMO_SEED,
