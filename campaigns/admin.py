@@ -3,8 +3,42 @@
 from __future__ import annotations
 
 from django.contrib import admin
+from django.db.models import Q
 
 from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+from teams.permissions import ADMIN, PLANNER, has_role, scope_to_user, teams_for
+
+
+class TeamScopedAdmin(admin.ModelAdmin):
+    """Staff who are not superusers see and edit only their teams' rows (issue: scoped admin lists)."""
+
+    team_field = "campaign__team"
+
+    def get_queryset(self, request):
+        return scope_to_user(super().get_queryset(request), user=request.user, team_field=self.team_field)
+
+    def _team_id(self, obj):
+        return type(obj).objects.filter(pk=obj.pk).values_list(self.team_field, flat=True).first()
+
+    def has_change_permission(self, request, obj=None):
+        allowed = super().has_change_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return has_role(user=request.user, team=self._team_id(obj), role=PLANNER)
+
+    def has_delete_permission(self, request, obj=None):
+        allowed = super().has_delete_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return has_role(user=request.user, team=self._team_id(obj), role=ADMIN)
+
+    def formfield_for_foreignkey(self, db_field, request, **kwargs):
+        # Drop-downs must not list other teams' campaigns or teams.
+        if db_field.related_model is Campaign:
+            kwargs["queryset"] = scope_to_user(Campaign.objects.all(), user=request.user, role=PLANNER)
+        elif db_field.name == "team":
+            kwargs["queryset"] = teams_for(user=request.user, role=PLANNER)
+        return super().formfield_for_foreignkey(db_field, request, **kwargs)
 
 
 @admin.register(ObjectClass)
@@ -14,7 +48,26 @@ class ObjectClassAdmin(admin.ModelAdmin):
 
 
 @admin.register(Asset)
-class AssetAdmin(admin.ModelAdmin):
+class AssetAdmin(TeamScopedAdmin):
+    team_field = "team"
+
+    def get_queryset(self, request):
+        # Shared procedural assets (no team) are visible to everyone; uploaded ones to their team.
+        queryset = admin.ModelAdmin.get_queryset(self, request)
+        if request.user.is_superuser:
+            return queryset
+        return queryset.filter(Q(team__isnull=True) | Q(team__in=teams_for(user=request.user)))
+
+    def has_change_permission(self, request, obj=None):
+        if obj is not None and obj.team_id is None:
+            return request.user.is_superuser
+        return super().has_change_permission(request, obj)
+
+    def has_delete_permission(self, request, obj=None):
+        if obj is not None and obj.team_id is None:
+            return request.user.is_superuser
+        return super().has_delete_permission(request, obj)
+
     list_display = ("name", "object_class", "kind", "generator", "creation_cost")
     list_filter = ("kind", "object_class")
     search_fields = ("name", "generator")
@@ -31,10 +84,11 @@ COUNTER_FIELDS = ("frames_done", "frames_dead", "instances_accepted", "instances
 
 
 @admin.register(Campaign)
-class CampaignAdmin(admin.ModelAdmin):
-    list_display = ("name", "owner", "status", "pause_reason", "weight", "frames_done", "instances_accepted",
+class CampaignAdmin(TeamScopedAdmin):
+    team_field = "team"
+    list_display = ("name", "team", "owner", "status", "pause_reason", "weight", "frames_done", "instances_accepted",
                     "compute_cost_spent", "cost_budget", "created_at")
-    list_filter = ("status",)
+    list_filter = ("status", ("team", admin.RelatedOnlyFieldListFilter))
     search_fields = ("name",)
     readonly_fields = ("status", "pause_reason", "pause_detail", "started_at", "finished_at", *COUNTER_FIELDS)
     filter_horizontal = ("assets",)
@@ -42,7 +96,7 @@ class CampaignAdmin(admin.ModelAdmin):
 
 
 @admin.register(ClassQuota)
-class ClassQuotaAdmin(admin.ModelAdmin):
+class ClassQuotaAdmin(TeamScopedAdmin):
     list_display = ("campaign", "object_class", "target_accepted", "accepted_count", "rejected_count",
                     "placed_count", "min_visible_fraction", "min_box_px", "met_at")
     list_filter = ("object_class",)
@@ -50,23 +104,23 @@ class ClassQuotaAdmin(admin.ModelAdmin):
 
 
 @admin.register(Frame)
-class FrameAdmin(admin.ModelAdmin):
+class FrameAdmin(TeamScopedAdmin):
     list_display = ("campaign", "index", "state", "attempts", "worker_host", "cpu_s", "wall_s", "layout_index",
                     "lighting_index", "view_index", "finished_at")
-    list_filter = ("state", "campaign")
+    list_filter = ("state",)
     search_fields = ("task_id", "worker_host")
     readonly_fields = [f.name for f in Frame._meta.fields]
 
 
 @admin.register(FrameEvent)
-class FrameEventAdmin(admin.ModelAdmin):
+class FrameEventAdmin(TeamScopedAdmin):
     list_display = ("created_at", "campaign", "frame", "from_state", "to_state", "worker_host", "detail")
-    list_filter = ("to_state", "campaign")
+    list_filter = ("to_state",)
     readonly_fields = [f.name for f in FrameEvent._meta.fields]
 
 
 @admin.register(Instance)
-class InstanceAdmin(admin.ModelAdmin):
+class InstanceAdmin(TeamScopedAdmin):
     list_display = ("frame", "instance_id", "object_class", "accepted", "visible_fraction", "mask_area_px")
     list_filter = ("accepted", "object_class")
     readonly_fields = [f.name for f in Instance._meta.fields]
