@@ -16,6 +16,7 @@ Concurrency rules (several workers record results at once):
 from __future__ import annotations
 
 import logging
+import math
 from collections import Counter
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
@@ -25,6 +26,7 @@ from typing import Any
 
 from django.db import transaction
 from django.db.models import F, Q
+from django.db.models.functions import Coalesce
 from django.utils import timezone
 
 from campaigns import costs, planner
@@ -71,15 +73,26 @@ def _event(*, campaign_id: int, to_state: str, from_state: str = "", frame_id: i
                               worker_host=worker_host[:255], detail=detail)
 
 
+# Largest accepted money values: below what the DecimalFields can store (max_digits), so input is refused
+# with a message instead of failing in the database.
+MONEY_MAXIMUM = {"price_per_cpu_hour": Decimal("100000"), "manual_labelling_rate_per_hour": Decimal("1000000")}
+DEFAULT_MONEY_MAXIMUM = Decimal("1000000000")
+
+
 def _decimal(value: Any, what: str, *, minimum: Decimal = Decimal(0)) -> Decimal:
+    if isinstance(value, bool):
+        raise CampaignError(f"{what}: expected a number, got {value!r}")
     try:
-        number = Decimal(str(value))
+        number = Decimal(str(value).strip())
     except (InvalidOperation, ValueError) as exc:
         raise CampaignError(f"{what}: expected a number, got {value!r}") from exc
     if not number.is_finite():
         raise CampaignError(f"{what}: must be finite, got {value!r}")
     if number < minimum:
         raise CampaignError(f"{what}: must be at least {minimum}, got {number}")
+    maximum = MONEY_MAXIMUM.get(what, DEFAULT_MONEY_MAXIMUM)
+    if number > maximum:
+        raise CampaignError(f"{what}: must be at most {maximum}, got {number}")
     return number
 
 
@@ -100,6 +113,19 @@ def _on_commit_revoke(task_ids: list[str]) -> None:
             scheduler.revoke_tasks(task_ids=task_ids)
 
         transaction.on_commit(run)
+
+
+def _finite(value: Any, what: str) -> float:
+    """A finite number from user input, or a CampaignError naming the field."""
+    if isinstance(value, bool):
+        raise CampaignError(f"{what}: expected a number, got {value!r}")
+    try:
+        number = float(value)
+    except (TypeError, ValueError) as exc:
+        raise CampaignError(f"{what}: expected a number, got {value!r}") from exc
+    if not math.isfinite(number):
+        raise CampaignError(f"{what}: must be finite, got {value!r}")
+    return number
 
 
 def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any]:
@@ -142,9 +168,15 @@ def create_campaign(
     description: str = "",
 ) -> Campaign:
     """Validate everything, then create a draft campaign with its quotas; nothing is written on bad input."""
+    if name is not None and not isinstance(name, str):
+        raise CampaignError(f"name: expected text, got {type(name).__name__}")
     name = (name or "").strip()
     if not name:
         raise CampaignError("name: required")
+    if len(name) > 200:
+        raise CampaignError(f"name: at most 200 characters, got {len(name)}")
+    if "\x00" in name or "\x00" in (description or ""):
+        raise CampaignError("name: must not contain NUL characters")
     from teams.permissions import PLANNER, has_role, personal_team
 
     if team is None:
@@ -160,12 +192,17 @@ def create_campaign(
     manual_d = _decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour")
     if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
         raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
-    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
-        raise CampaignError(f"seed: must be a non-negative whole number, got {seed!r}")
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
+        raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
     if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
         raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
     if not quotas:
         raise CampaignError("quotas: at least one class quota is required")
+    for q in quotas:
+        if not isinstance(q, QuotaInput):
+            raise CampaignError(f"quotas: expected class quotas, got {type(q).__name__}")
+        if not isinstance(q.class_name, str):
+            raise CampaignError(f"quota: class name must be text, got {q.class_name!r}")
     classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
     seen: set[str] = set()
     thresholds = normalized["thresholds"]
@@ -181,8 +218,9 @@ def create_campaign(
             raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
         if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
             raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
-        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else float(q.min_visible_fraction)
-        box = thresholds["min_box_px"] if q.min_box_px is None else float(q.min_box_px)
+        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
+            q.min_visible_fraction, f"{where}: min visible fraction")
+        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
         if not 0.0 <= vis <= 1.0:
             raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
         longest_side_px = max(normalized["render"]["width_px"], normalized["render"]["height_px"])
@@ -342,6 +380,74 @@ def requeue_frame(*, frame: Frame, composition: dict[str, int] | None, expected_
     return frame
 
 
+def mark_message_unsent(*, frame_id: int, dispatch_no: int) -> bool:
+    """The broker refused this queued frame's message (e.g. Redis is down): clear ``queued_at`` so the next
+    dispatch or sweep sends it again at once instead of waiting for the stale-queued timeout."""
+    return bool(Frame.objects.filter(pk=frame_id, state=State.QUEUED, dispatch_count=dispatch_no)
+                .update(queued_at=None))
+
+
+def mark_message_resent(*, frame_id: int, dispatch_no: int) -> bool:
+    """An unsent message goes out again under the same dispatch number (it never reached the broker, so no
+    copy can be delivered; a new number per failed send would also run the counter up during a long outage)."""
+    return bool(Frame.objects.filter(pk=frame_id, state=State.QUEUED, dispatch_count=dispatch_no,
+                                     queued_at__isnull=True).update(queued_at=timezone.now()))
+
+
+@dataclass(frozen=True)
+class LostFrame:
+    frame_id: int
+    to_state: str
+    dispatch_no: int
+    task_id: str
+
+
+@transaction.atomic
+def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_before: Any,
+                        task_id_prefix: str) -> list[LostFrame]:
+    """Frames ``running`` on a worker that is not live (kill -9, power loss, a partition) are taken back.
+
+    A lost message is not redelivered by the file-system transport (it deletes the message file when a
+    consumer takes it; the unacked copy lives only in that consumer's memory), and Redis redelivers only
+    after its visibility timeout, so the heartbeats decide: the frame goes back to ``queued`` under a new
+    dispatch number (the old message, should it still arrive, is stale), or ``dead`` once it has used its
+    attempts (a frame that takes its worker down every time), or ``revoked`` when the campaign no longer runs.
+    Only frames started before ``started_before`` count, so a worker whose first heartbeat is not yet written
+    does not lose the frame it just claimed. The caller sends the returned queued frames after commit.
+    """
+    campaign = _lock_campaign(campaign_id)
+    live = set(live_hosts)
+    lost = (Frame.objects.filter(campaign=campaign, state=State.RUNNING, started_at__lt=started_before)
+            .exclude(worker_host__in=live).order_by("index"))
+    now = timezone.now()
+    released: list[LostFrame] = []
+    for frame in lost:
+        same = Frame.objects.filter(pk=frame.pk, state=State.RUNNING, dispatch_count=frame.dispatch_count,
+                                    attempts=frame.attempts, worker_host=frame.worker_host)
+        why = f"worker {frame.worker_host} lost during attempt {frame.attempts} (no heartbeat)"
+        if campaign.status != Status.RUNNING:
+            if same.update(state=State.REVOKED, retry_at=None, error=why):
+                _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.REVOKED,
+                       detail=f"{why}; campaign is {campaign.status}")
+                released.append(LostFrame(frame.pk, State.REVOKED, frame.dispatch_count, frame.task_id))
+            continue
+        if frame.attempts >= campaign.max_attempts:
+            if same.update(state=State.DEAD, finished_at=now, error=why, retry_at=None):
+                _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.DEAD,
+                       detail=f"{why}; attempt limit reached")
+                Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") + 1)
+                released.append(LostFrame(frame.pk, State.DEAD, frame.dispatch_count, frame.task_id))
+            continue
+        dispatch_no = frame.dispatch_count + 1
+        task_id = f"{task_id_prefix}-c{campaign.pk}-f{frame.index}-d{dispatch_no}"
+        if same.update(state=State.QUEUED, dispatch_count=dispatch_no, task_id=task_id, queued_at=now,
+                       retry_at=None, error=why):
+            _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.QUEUED,
+                   worker_host=frame.worker_host, detail=f"{why}; dispatch {dispatch_no}")
+            released.append(LostFrame(frame.pk, State.QUEUED, dispatch_no, task_id))
+    return released
+
+
 # --- frames: claimed and finished by workers ---------------------------------------------------------
 
 
@@ -446,8 +552,11 @@ def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[s
     price = campaign.price_per_cpu_hour
     cost = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=price)
     now = timezone.now()
+    # A frame's CPU, wall time and cost add up over its attempts (record_failure adds the failed ones), so the
+    # campaign counters always equal the sum over frame rows (campaigns.integrity.recount).
     updated = Frame.objects.filter(pk=frame_id, state=State.RUNNING, dispatch_count=dispatch_no).update(
-        state=State.DONE, cpu_s=cpu_s, wall_s=wall_s, compute_cost=cost, timings_s=dict(timings_s or {}),
+        state=State.DONE, cpu_s=Coalesce(F("cpu_s"), 0.0) + cpu_s, wall_s=Coalesce(F("wall_s"), 0.0) + wall_s,
+        compute_cost=Coalesce(F("compute_cost"), Decimal(0)) + cost, timings_s=dict(timings_s or {}),
         output_dir=output_dir, finished_at=now, error="", traceback="", retry_at=None,
     )
     if not updated:
@@ -549,6 +658,7 @@ def record_failure(*, frame_id: int, dispatch_no: int, error: str, traceback: st
     updated = Frame.objects.filter(pk=frame_id, state=State.RUNNING, dispatch_count=dispatch_no).update(
         state=to_state, error=error[:10000], traceback=traceback[-20000:], retry_at=retry_at,
         finished_at=now if dead else None, cpu_s=(frame.cpu_s or 0.0) + cpu_s, wall_s=(frame.wall_s or 0.0) + wall_s,
+        compute_cost=(frame.compute_cost or Decimal(0)) + cost,
     )
     if not updated:
         return "stale"
@@ -579,3 +689,262 @@ def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_co
         defaults={"kind": Asset.Kind.PROCEDURAL, "generator": object_class.name, "creation_cost": cost},
     )
     return asset
+
+
+# --- dashboard actions (added for the dashboard, issue 5) ------------------------------------------------------
+
+
+def error_kind(error: str) -> str:
+    """The failed-jobs grouping key: exception type and the first line of its message (``"Type: first line"``)."""
+    return (error or "").split("\n", 1)[0][:ERROR_KIND_CHARS]
+
+
+ERROR_KIND_CHARS = 300
+
+
+def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]
+                        ) -> list[tuple[ObjectClass, int, float, float]]:
+    """The quota checks of :func:`create_campaign`, reusable by :func:`update_draft_campaign`."""
+    if not quotas:
+        raise CampaignError("quotas: at least one class quota is required")
+    for q in quotas:
+        if not isinstance(q, QuotaInput):
+            raise CampaignError(f"quotas: expected class quotas, got {type(q).__name__}")
+        if not isinstance(q.class_name, str):
+            raise CampaignError(f"quota: class name must be text, got {q.class_name!r}")
+    classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
+    thresholds = normalized_budget["thresholds"]
+    longest_side_px = max(normalized_budget["render"]["width_px"], normalized_budget["render"]["height_px"])
+    seen: set[str] = set()
+    clean: list[tuple[ObjectClass, int, float, float]] = []
+    for q in quotas:
+        where = f"quota {q.class_name!r}"
+        if q.class_name not in classes:
+            raise CampaignError(f"{where}: unknown object class")
+        if q.class_name in seen:
+            raise CampaignError(f"{where}: listed twice")
+        seen.add(q.class_name)
+        if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
+            raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
+        if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
+            raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
+        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
+            q.min_visible_fraction, f"{where}: min visible fraction")
+        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
+        if not 0.0 <= vis <= 1.0:
+            raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
+        if not 0.0 <= box <= longest_side_px:
+            raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
+        clean.append((classes[q.class_name], q.target_accepted, vis, box))
+    if sum(t for _, t, _, _ in clean) == 0:
+        raise CampaignError("quotas: every target is 0; nothing to render")
+    return clean
+
+
+@transaction.atomic
+def update_draft_campaign(
+    *,
+    campaign_id: int,
+    name: str,
+    quotas: Sequence[QuotaInput],
+    cost_budget: Decimal | float | str,
+    price_per_cpu_hour: Decimal | float | str,
+    budget: Mapping[str, Any] | None = None,
+    setup_cost: Decimal | float | str = 0,
+    manual_labelling_rate_per_hour: Decimal | float | str = 0,
+    weight: int = 1,
+    seed: int = 0,
+    max_attempts: int = 3,
+    description: str = "",
+) -> Campaign:
+    """Replace a draft's settings and quotas (the team stays); only drafts, nothing written on bad input."""
+    campaign = _lock_campaign(campaign_id)
+    if campaign.status != Status.DRAFT:
+        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
+                            "(the cost budget of a started campaign can still be changed)")
+    name = (name or "").strip()
+    if not name:
+        raise CampaignError("name: required")
+    if Campaign.objects.filter(team_id=campaign.team_id, name=name).exclude(pk=campaign.pk).exists():
+        raise CampaignError(f"name: the team already has a campaign called {name!r}")
+    normalized = normalize_campaign_budget(budget)
+    cost_budget_d = _decimal(cost_budget, "cost_budget")
+    price_d = _decimal(price_per_cpu_hour, "price_per_cpu_hour")
+    setup_d = _decimal(setup_cost, "setup_cost")
+    manual_d = _decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour")
+    if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
+        raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
+        raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
+    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
+        raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
+    clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
+    class_names = [oc.name for oc, _, _, _ in clean]
+    assets = list(Asset.objects.filter(object_class__name__in=class_names, team__isnull=True)) + list(
+        Asset.objects.filter(object_class__name__in=class_names, team_id=campaign.team_id))
+    fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=setup_d)
+    if fixed > cost_budget_d:
+        raise CampaignError(f"cost_budget: {cost_budget_d} is less than the fixed costs {fixed} "
+                            "(setup cost plus asset creation costs)")
+    Campaign.objects.filter(pk=campaign.pk).update(
+        name=name, description=description, seed=seed, budget=normalized, cost_budget=cost_budget_d,
+        price_per_cpu_hour=price_d, setup_cost=setup_d, manual_labelling_rate_per_hour=manual_d, weight=weight,
+        max_attempts=max_attempts)
+    campaign.refresh_from_db()
+    campaign.assets.set(assets)
+    ClassQuota.objects.filter(campaign=campaign).delete()
+    ClassQuota.objects.bulk_create([
+        ClassQuota(campaign=campaign, object_class=oc, target_accepted=t, min_visible_fraction=v, min_box_px=b)
+        for oc, t, v, b in clean
+    ])
+    _event(campaign_id=campaign.pk, from_state=Status.DRAFT, to_state=Status.DRAFT, detail="edited")
+    return campaign
+
+
+@transaction.atomic
+def delete_campaign(*, campaign_id: int) -> None:
+    """Delete a campaign that is not running, with its frames and events; its frame files go after commit."""
+    campaign = _lock_campaign(campaign_id)
+    if campaign.status == Status.RUNNING:
+        raise CampaignError(f"campaign {campaign.name!r} is running; pause or cancel it first")
+    pk = campaign.pk
+    campaign.delete()
+
+    def remove_files() -> None:
+        import shutil
+        from pathlib import Path
+
+        from django.conf import settings
+
+        shutil.rmtree(Path(settings.MEDIA_ROOT) / "campaigns" / str(pk), ignore_errors=True)
+
+    transaction.on_commit(remove_files)
+
+
+def _retry_dead(campaign: Campaign, frame_ids: Sequence[int], *, detail: str) -> int:
+    now = timezone.now()
+    retried = 0
+    for frame_id in frame_ids:
+        # Conditional on the frame still being dead: a double click or two users retry it once.
+        if Frame.objects.filter(pk=frame_id, campaign=campaign, state=State.DEAD).update(
+                state=State.FAILED, attempts=0, retry_at=now, finished_at=None):
+            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=State.DEAD, to_state=State.FAILED,
+                   detail=detail)
+            retried += 1
+    if retried:
+        Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") - retried)
+        if campaign.status == Status.RUNNING:
+            _on_commit_dispatch(campaign.pk)
+    return retried
+
+
+def _check_retryable(campaign: Campaign) -> None:
+    if campaign.status not in (Status.RUNNING, Status.PAUSED, Status.DRAFT):
+        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; its frames are not retried")
+
+
+@transaction.atomic
+def retry_frame(*, campaign_id: int, frame_id: int) -> int:
+    """A dead frame gets its attempts back and goes to failed, due now; the scheduler sends it again.
+
+    On a paused campaign it waits until the campaign resumes. Returns 1, or 0 when the frame was not dead."""
+    campaign = _lock_campaign(campaign_id)
+    _check_retryable(campaign)
+    return _retry_dead(campaign, [frame_id], detail="retried from the dashboard")
+
+
+def _kind_filter(kind: str) -> Q:
+    query = Q(error=kind) | Q(error__startswith=kind + "\n")
+    if len(kind) >= ERROR_KIND_CHARS:  # a first line longer than the key: the key is its prefix
+        query |= Q(error__startswith=kind)
+    return query
+
+
+def frames_of_error_kind(*, campaign: Campaign, kind: str, states: Sequence[str] = (State.DEAD,)):
+    """Frames of a campaign whose error's first line is ``kind`` (see :func:`error_kind`)."""
+    return Frame.objects.filter(campaign=campaign, state__in=states).filter(_kind_filter(kind))
+
+
+@transaction.atomic
+def retry_failed_of_kind(*, campaign_id: int, kind: str) -> int:
+    """Retry every dead frame whose error is of this kind; returns how many."""
+    campaign = _lock_campaign(campaign_id)
+    _check_retryable(campaign)
+    ids = list(frames_of_error_kind(campaign=campaign, kind=kind).values_list("pk", flat=True))
+    return _retry_dead(campaign, ids, detail=f"retried with all of kind {kind[:200]!r}")
+
+
+IGNORED = "ignored"
+
+
+@transaction.atomic
+def ignore_frame(*, campaign_id: int, frame_id: int, kind: str | None = None) -> int:
+    """Hide a dead frame (or every dead frame of an error kind) from the failed-jobs list.
+
+    Recorded as an ``ignored`` event after the frame's death: a frame retried later and dead again shows
+    once more. Returns how many frames were ignored."""
+    campaign = _lock_campaign(campaign_id)
+    frames = Frame.objects.filter(campaign=campaign, state=State.DEAD)
+    frames = frames.filter(_kind_filter(kind)) if kind is not None else frames.filter(pk=frame_id)
+    ids = list(frames.values_list("pk", flat=True))
+    for fid in ids:
+        _event(campaign_id=campaign.pk, frame_id=fid, from_state=State.DEAD, to_state=IGNORED,
+               detail="ignored from the dashboard")
+    return len(ids)
+
+
+@transaction.atomic
+def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
+    """A new frame with the same layout, lighting and view coordinates and the same composition as a done one.
+
+    Frame seeds per axis derive from the coordinates (``planner.frame_seeds``), so the new frame has the same
+    room, furniture, lights and camera; only the noise sub-seed (from the new index) differs. It renders on the
+    fleet like any frame, so the campaign must be running (a paused campaign re-plans released frames).
+    """
+    from campaigns import scheduler
+
+    campaign = _lock_campaign(campaign_id)
+    if campaign.status != Status.RUNNING:
+        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; start or resume it to re-render "
+                            "(frames render on the fleet only while it runs)")
+    try:
+        source = Frame.objects.get(pk=frame_id, campaign=campaign)
+    except Frame.DoesNotExist as exc:
+        raise CampaignError(f"frame {frame_id} is not in campaign {campaign.name!r}") from exc
+    if source.state != State.DONE:
+        raise CampaignError(f"frame {source.index} is {source.state}; only done frames are re-rendered")
+    last_index = Frame.objects.filter(campaign=campaign).order_by("-index").values_list("index", flat=True).first()
+    frame = create_frame(campaign=campaign, index=(last_index or 0) + 1,
+                         coordinates=(source.layout_index, source.lighting_index, source.view_index),
+                         composition=dict(source.composition), expected_cpu_s=source.cpu_s or source.expected_cpu_s,
+                         task_id_prefix=scheduler.TASK_ID_PREFIX)
+    _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state="", to_state=State.QUEUED,
+           detail=f"re-render of frame {source.index}")
+    uid, fid, dispatch_no, task_id = str(campaign.uid), frame.pk, frame.dispatch_count, frame.task_id
+    transaction.on_commit(lambda: scheduler.send_frame_task(frame_id=fid, dispatch_no=dispatch_no,
+                                                            campaign_uid=uid, task_id=task_id))
+    return frame
+
+
+@transaction.atomic
+def upload_asset(*, user: Any, team: Any, object_class_name: str, name: str, mesh_path: str, original_name: str,
+                 unit: str = "auto", creation_cost: Decimal | float | str = 0) -> Asset:
+    """Add an uploaded mesh (already validated by the caller, see ``campaigns.assets_upload``) to a team's library.
+
+    ``mesh_path`` is a file under MEDIA_ROOT/assets/meshes/ (relative path)."""
+    from teams.permissions import PLANNER, has_role
+
+    if not has_role(user=user, team=team, role=PLANNER):
+        raise CampaignError(f"team: {user} is not a planner in team {team}")
+    name = (name or "").strip()
+    if not name:
+        raise CampaignError("name: required")
+    try:
+        object_class = ObjectClass.objects.get(name=object_class_name)
+    except ObjectClass.DoesNotExist as exc:
+        raise CampaignError(f"class: unknown object class {object_class_name!r}") from exc
+    if Asset.objects.filter(object_class=object_class, name=name).exists():
+        raise CampaignError(f"name: there is already a {object_class.name} asset called {name!r}")
+    cost = _decimal(creation_cost, "creation_cost")
+    return Asset.objects.create(object_class=object_class, name=name, kind=Asset.Kind.MESH, mesh_file=mesh_path,
+                                mesh_unit=unit, team=team, creation_cost=cost)
