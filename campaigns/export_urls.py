@@ -1,3 +1,9 @@
-"""Dataset export URLs (download of a finished campaign's dataset). Filled in by campaigns/export_views.py."""
+"""Dataset export URLs (download of a campaign's dataset), included under /campaigns/ by evenframe/urls.py."""
 
-urlpatterns: list = []
+from django.urls import path
+
+from campaigns import export_views
+
+urlpatterns = [
+    path("<int:campaign_id>/export.zip", export_views.download_dataset_zip, name="campaign-export-zip"),
+]

@@ -1,0 +1,1 @@
+"""Dataset export tests (campaigns/export.py and its commands and view)."""

@@ -1,0 +1,118 @@
+"""Fixtures: a small campaign of real rendered frames (render core, 64×48, 4 spp) recorded through the services."""
+
+from __future__ import annotations
+
+import json
+import shutil
+from decimal import Decimal
+from pathlib import Path
+
+import pytest
+
+CAMPAIGN_SEED = 23
+TINY_BUDGET = {
+    "render": {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3},
+    "room": {"width_m": [3.0, 3.5], "depth_m": [3.0, 3.5], "max_objects_per_m2": 0.6},
+    "thresholds": {"min_visible_fraction": 0.2, "min_box_px": 3.0},
+    "variation": {"layouts": 1000, "lighting_per_layout": 1, "views_per_lighting": 2},
+}
+CLASSES = ("chair", "armchair", "side_table", "ottoman", "sofa", "wall_clock")
+# (index, layout, view, composition): four layouts, two views each.
+FRAME_PLAN = [
+    (2 * layout + view, layout, view, composition)
+    for layout, composition in enumerate([
+        {"chair": 2, "ottoman": 1, "side_table": 1},
+        {"chair": 1, "armchair": 1, "wall_clock": 1},
+        {"sofa": 1, "chair": 2},
+        {"armchair": 1, "ottoman": 1, "side_table": 1, "chair": 1},
+    ])
+    for view in (0, 1)
+]
+
+
+@pytest.fixture(scope="session")
+def rendered_frames(tmp_path_factory) -> dict[int, Path]:
+    """Render FRAME_PLAN once per session with the seeds a worker would use; index → folder of its files."""
+    from campaigns import planner
+    from campaigns.services import normalize_campaign_budget
+    from workers.render.frame import render_frame_from_inputs
+
+    budget = normalize_campaign_budget(TINY_BUDGET)
+    root = tmp_path_factory.mktemp("rendered")
+    out = {}
+    for index, layout, view, composition in FRAME_PLAN:
+        seeds = planner.frame_seeds(campaign_seed=CAMPAIGN_SEED, index=index, layout_index=layout,
+                                    lighting_index=0, view_index=view)
+        folder = root / str(index)
+        render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
+                                 lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, out_dir=folder,
+                                 threads=2)
+        out[index] = folder
+    return out
+
+
+@pytest.fixture
+def media_root(settings, tmp_path) -> Path:
+    settings.MEDIA_ROOT = tmp_path / "media"
+    settings.MEDIA_ROOT.mkdir()
+    return settings.MEDIA_ROOT
+
+
+@pytest.fixture
+def owner(db, django_user_model):
+    return django_user_model.objects.create_user(username="ana", password="ana-password-123")
+
+
+@pytest.fixture
+def object_classes(db):
+    from campaigns import services
+
+    return {name: services.ensure_object_class(name=name) for name in CLASSES}
+
+
+@pytest.fixture
+def make_campaign(owner, object_classes):
+    from campaigns import services
+
+    def make(name: str = "export tiny", seed: int = CAMPAIGN_SEED):
+        return services.create_campaign(
+            owner=owner, name=name, quotas=[services.QuotaInput(n, 10_000) for n in CLASSES], budget=TINY_BUDGET,
+            cost_budget=Decimal("1000"), price_per_cpu_hour=Decimal("0.05"), seed=seed, asset_ids=[],
+        )
+
+    return make
+
+
+def record_frames(campaign, rendered: dict[int, Path], plan, media_root: Path) -> None:
+    """Create, claim and record frames through the services, with the render core's files in MEDIA_ROOT."""
+    from django.db import transaction
+
+    from campaigns import services
+    from workers.tasks import frame_output_dir
+
+    for index, layout, view, composition in plan:
+        with transaction.atomic():
+            frame = services.create_frame(campaign=campaign, index=index, coordinates=(layout, 0, view),
+                                          composition=composition, expected_cpu_s=0.5, task_id_prefix="export-test")
+        claim = services.claim_frame(frame_id=frame.pk, dispatch_no=frame.dispatch_count, worker_host="test")
+        assert claim.ok, claim.reason
+        absolute, relative = frame_output_dir(campaign_id=campaign.pk, index=index)
+        assert Path(absolute).is_relative_to(media_root)
+        shutil.copytree(rendered[index], absolute)
+        labels = json.loads((Path(absolute) / "labels.json").read_text())
+        assert services.record_result(frame_id=frame.pk, dispatch_no=frame.dispatch_count,
+                                      labels=labels["instances"], cpu_s=0.4, wall_s=0.5, output_dir=relative,
+                                      worker_host="test")
+
+
+@pytest.fixture
+def real_campaign(make_campaign, rendered_frames, media_root):
+    """A running campaign whose eight frames were rendered by the render core and recorded by the services."""
+    from campaigns import services
+
+    campaign = make_campaign()
+    services.start_campaign(campaign_id=campaign.pk)
+    record_frames(campaign, rendered_frames, FRAME_PLAN, media_root)
+    campaign.refresh_from_db()
+    assert campaign.frames_done == len(FRAME_PLAN)
+    return campaign

@@ -1,0 +1,340 @@
+"""Export of real rendered frames: COCO checked with pycocotools, YOLO, manifest, re-export, bad input."""
+
+from __future__ import annotations
+
+import json
+import os
+from importlib import metadata
+from pathlib import Path
+
+import numpy as np
+import pytest
+from django.conf import settings
+from django.core.management import CommandError, call_command
+from pycocotools import mask as mask_utils
+from pycocotools.coco import COCO
+from pycocotools.cocoeval import COCOeval
+
+from campaigns import export
+from tests.export.conftest import FRAME_PLAN
+
+pytestmark = [pytest.mark.django_db, pytest.mark.filterwarnings("ignore::DeprecationWarning:pycocotools.*")]
+
+
+def _export(campaign, out: Path, **options) -> export.ExportSummary:
+    return export.export_dataset(campaign_id=campaign.pk, out_dir=out, options=export.ExportOptions(**options))
+
+
+def _coco_files(out: Path) -> list[Path]:
+    return [out / "annotations" / f"{split}.json" for split in export.SPLITS
+            if (out / "annotations" / f"{split}.json").exists()]
+
+
+def _quiet_eval(gt: COCO, dt: COCO, iou_type: str) -> float:
+    evaluation = COCOeval(gt, dt, iou_type)
+    evaluation.evaluate()
+    evaluation.accumulate()
+    evaluation.summarize()
+    return float(evaluation.stats[0])
+
+
+def test_coco_loads_and_ground_truth_as_detections_scores_ap_one(real_campaign, tmp_path, capsys):
+    out = tmp_path / "dataset"
+    summary = _export(real_campaign, out)
+    assert summary.frames == len(FRAME_PLAN)
+    total_annotations = 0
+    for path in _coco_files(out):
+        gt = COCO(str(path))  # pycocotools: the file loads as a COCO instances file
+        total_annotations += len(gt.getAnnIds())
+        if not gt.getAnnIds():
+            continue
+        annotations = gt.loadAnns(gt.getAnnIds())
+        for iou_type in ("bbox", "segm"):
+            detections = [{"image_id": a["image_id"], "category_id": a["category_id"], "score": 1.0,
+                           **({"bbox": a["bbox"]} if iou_type == "bbox" else {"segmentation": a["segmentation"]})}
+                          for a in annotations]
+            # pycocotools COCOeval: the ground truth used as detections must score AP = 1.0.
+            assert _quiet_eval(gt, gt.loadRes(detections), iou_type) == pytest.approx(1.0), (path.name, iou_type)
+    assert total_annotations == sum(summary.annotations_per_split.values()) > 10
+    capsys.readouterr()
+
+
+def test_masks_areas_and_boxes_agree_with_pycocotools(real_campaign, tmp_path):
+    import cv2
+
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    checked = 0
+    for path in _coco_files(out):
+        data = json.loads(path.read_text())
+        images = {image["id"]: image for image in data["images"]}
+        masks = {i: cv2.imread(str(out / "masks" / image["mask_file_name"]), cv2.IMREAD_UNCHANGED)
+                 for i, image in images.items()}
+        for annotation in data["annotations"]:
+            rle = annotation["segmentation"]
+            decoded = mask_utils.decode(rle)  # pycocotools decodes our RLE ...
+            assert int(decoded.sum()) == annotation["area"]  # ... to our area
+            assert mask_utils.toBbox(rle).tolist() == annotation["bbox"]  # and our box is toBbox's
+            assert int(mask_utils.area(rle)) == annotation["area"]
+            # The exported 16-bit mask image holds the same pixels under the annotation's instance id.
+            instance_mask = masks[annotation["image_id"]] == annotation["instance_id"]
+            assert masks[annotation["image_id"]].dtype == np.uint16
+            assert np.array_equal(instance_mask, decoded.astype(bool))
+            assert annotation["iscrowd"] == 0
+            for key in ("visible_fraction", "occlusion_fraction", "truncation_fraction"):
+                assert 0.0 <= annotation[key] <= 1.0
+            assert len(annotation["amodal_bbox"]) == 4
+            checked += 1
+        for image in data["images"]:
+            K, R = np.array(image["camera"]["K"]), np.array(image["camera"]["R"])
+            assert K.shape == (3, 3) and K[0, 2] == image["width"] / 2 and K[1, 2] == image["height"] / 2
+            assert np.allclose(R @ R.T, np.eye(3), atol=1e-5)  # a rotation
+            assert len(image["camera"]["t"]) == 3 and image["exposure"]["shutter_s"] > 0
+    assert checked > 10
+
+
+def test_every_frame_parameter_and_campaign_facts_are_exported(real_campaign, tmp_path):
+    from workers.render.spec import spec_from_json
+
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    lines = (out / "scenes.jsonl").read_text().splitlines()
+    assert len(lines) == len(FRAME_PLAN)
+    for line, (index, layout, view, composition) in zip(lines, FRAME_PLAN, strict=True):
+        row = json.loads(line)
+        assert (row["frame_index"], row["layout_index"], row["view_index"]) == (index, layout, view)
+        assert row["composition"] == dict(sorted(composition.items()))
+        frame_dir = Path(settings.MEDIA_ROOT) / real_campaign.frames.get(index=index).output_dir
+        on_disk = spec_from_json((frame_dir / "scene.json").read_text())
+        assert row["scene"] == on_disk
+    campaign_json = json.loads((out / "campaign.json").read_text())
+    assert campaign_json["budget"] == real_campaign.budget and campaign_json["seed"] == real_campaign.seed
+    assert {q["class_name"] for q in campaign_json["quotas"]} == set(real_campaign.quotas.values_list(
+        "object_class__name", flat=True))
+    software = json.loads((out / "software.json").read_text())
+    assert software["packages"]["mitsuba"] == metadata.version("mitsuba")
+    assert software["packages"]["drjit"] == metadata.version("drjit")
+    assert software["packages"]["Django"] == metadata.version("Django")
+    assert sum(software["renderer_variants"].values()) == len(FRAME_PLAN)
+    assert set(software["renderer_variants"]) <= {"scalar_rgb", "llvm_ad_rgb"}
+    stats = json.loads((out / "class_statistics.json").read_text())
+    coco_total = sum(len(json.loads(p.read_text())["annotations"]) for p in _coco_files(out))
+    assert sum(c["exported_instances"]["total"] for c in stats["classes"]) == coco_total
+
+
+def test_frames_of_a_layout_share_a_split(real_campaign, tmp_path):
+    out = tmp_path / "dataset"
+    _export(real_campaign, out, ratios=(0.5, 0.25, 0.25))
+    split_of_layout: dict[int, set[str]] = {}
+    for line in (out / "scenes.jsonl").read_text().splitlines():
+        row = json.loads(line)
+        split_of_layout.setdefault(row["layout_index"], set()).add(row["split"])
+    assert all(len(splits) == 1 for splits in split_of_layout.values())
+    splits = json.loads((out / "splits.json").read_text())
+    assigned = {layout: split for split, layouts in splits["assignment"].items() for layout in layouts}
+    assert {layout: next(iter(s)) for layout, s in split_of_layout.items()} == assigned
+
+
+def test_manifest_verifies_and_names_every_altered_missing_or_added_file(real_campaign, tmp_path, capsys):
+    out = tmp_path / "dataset"
+    _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    call_command("verify_dataset", str(out))
+    assert "OK" in capsys.readouterr().out
+    manifest = [json.loads(line) for line in (out / export.MANIFEST_NAME).read_text().splitlines()[1:]]
+    listed = {e["path"] for e in manifest}
+    on_disk = {str(p.relative_to(out)) for p in out.rglob("*") if p.is_file()} - {export.MANIFEST_NAME}
+    assert listed == on_disk  # every file, and only those
+    for entry in manifest[:5]:
+        assert (out / entry["path"]).stat().st_size == entry["size"] and len(entry["sha256"]) == 64
+
+    image = out / "images" / "000003.png"
+    data = bytearray(image.read_bytes())
+    data[len(data) // 2] ^= 0x01  # one flipped bit, same size
+    image.write_bytes(bytes(data))
+    (out / "labels" / "000001.txt").unlink()
+    (out / "annotations" / "train.json").write_text("{}")
+    (out / "stray.txt").write_text("not part of the dataset")
+    with pytest.raises(CommandError):
+        call_command("verify_dataset", str(out))
+    errors = capsys.readouterr().err
+    assert "altered: images/000003.png (SHA-256 differs" in errors
+    assert "missing: labels/000001.txt" in errors
+    assert "altered: annotations/train.json (size" in errors
+    assert "unexpected: stray.txt" in errors
+
+
+def test_yolo_labels_match_the_coco_boxes(real_campaign, tmp_path):
+    import yaml
+
+    out = tmp_path / "dataset"
+    _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    data = yaml.safe_load((out / "data.yaml").read_text())
+    categories = json.loads((out / "annotations" / "train.json").read_text())["categories"]
+    assert data["names"] == {c["id"] - 1: c["name"] for c in categories} and data["nc"] == len(categories)
+    assert (out / "classes.txt").read_text().split() == [c["name"] for c in categories]
+    for split in export.SPLITS:
+        listed = (out / data[split]).read_text().split()
+        coco = json.loads((out / "annotations" / f"{split}.json").read_text())
+        assert sorted(listed) == sorted(f"./images/{i['file_name']}" for i in coco["images"])
+        by_image: dict[int, list] = {}
+        for a in coco["annotations"]:
+            by_image.setdefault(a["image_id"], []).append(a)
+        assert all((out / path).is_file() for path in listed)  # "./images/…" relative to data.yaml's folder
+        for image in coco["images"]:
+            rows = [line.split() for line in (out / "labels" / f"{image['file_name'][:-4]}.txt").read_text()
+                    .splitlines()]
+            expected = by_image.get(image["id"], [])
+            assert len(rows) == len(expected)
+            for row, a in zip(rows, expected, strict=True):
+                x, y, w, h = a["bbox"]
+                cls, cx, cy, nw, nh = int(row[0]), *map(float, row[1:])
+                assert cls == a["category_id"] - 1
+                assert (cx, cy, nw, nh) == pytest.approx(((x + w / 2) / image["width"], (y + h / 2) / image["height"],
+                                                          w / image["width"], h / image["height"]), abs=1e-6)
+
+
+def test_accepted_only_drops_rejected_instances(real_campaign, tmp_path):
+    from campaigns.models import Instance
+
+    everything, accepted = tmp_path / "all", tmp_path / "accepted"
+    _export(real_campaign, everything)
+    _export(real_campaign, accepted, accepted_only=True)
+    visible = Instance.objects.filter(campaign=real_campaign, mask_area_px__gt=0)
+    count = {path: sum(len(json.loads(p.read_text())["annotations"]) for p in _coco_files(path))
+             for path in (everything, accepted)}
+    assert count[everything] == visible.count()
+    assert count[accepted] == visible.filter(accepted=True).count()
+    assert all(a["accepted"] for p in _coco_files(accepted) for a in json.loads(p.read_text())["annotations"])
+    assert len(json.loads((accepted / "annotations/train.json").read_text())["images"]) + sum(
+        len(json.loads(p.read_text())["images"]) for p in _coco_files(accepted)[1:]) == len(FRAME_PLAN)
+
+
+def test_reexport_writes_only_what_is_new(real_campaign, rendered_frames, media_root, tmp_path):
+    from tests.export.conftest import record_frames
+
+    out = tmp_path / "dataset"
+    first = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    per_frame_files = 3  # image, mask, YOLO label
+    assert first.files_reused == 0 and first.files_written == first.files
+    inode = (out / "images" / "000000.png").stat().st_ino
+    before = {e["path"]: e for e in map(json.loads, (out / export.MANIFEST_NAME).read_text().splitlines()[1:])}
+    splits_before = json.loads((out / "splits.json").read_text())["assignment"]
+
+    again = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    assert again.files_reused == per_frame_files * len(FRAME_PLAN)
+    assert again.files_written == again.files - again.files_reused  # only the aggregate files
+    assert (out / "images" / "000000.png").stat().st_ino == inode  # linked, not rewritten
+    after = {e["path"]: e for e in map(json.loads, (out / export.MANIFEST_NAME).read_text().splitlines()[1:])}
+    assert {p: e["sha256"] for p, e in after.items()} == {p: e["sha256"] for p, e in before.items()}
+
+    # The campaign grows by one layout of two frames (re-rendering frames 6 and 7 under new indices 8 and 9
+    # would change their seeds, so the same files are recorded as a new layout).
+    grown_plan = [(8, 4, 0, FRAME_PLAN[6][3]), (9, 4, 1, FRAME_PLAN[7][3])]
+    record_frames(real_campaign, {8: rendered_frames[6], 9: rendered_frames[7]}, grown_plan, media_root)
+    grown = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    assert grown.frames == len(FRAME_PLAN) + 2
+    assert grown.files_reused == per_frame_files * len(FRAME_PLAN)
+    frame_files_written = grown.files_written - (grown.files - grown.files_reused - per_frame_files * 2)
+    assert frame_files_written == per_frame_files * 2
+    splits_after = json.loads((out / "splits.json").read_text())["assignment"]
+    old_split = {layout: s for s, layouts in splits_before.items() for layout in layouts}
+    new_split = {layout: s for s, layouts in splits_after.items() for layout in layouts}
+    assert {layout: new_split[layout] for layout in old_split} == old_split  # old layouts keep their split
+    assert export.verify_dataset(directory=out).ok
+
+    # A changed source frame is copied again.
+    os.utime(media_root / f"campaigns/{real_campaign.pk}/frames/0/rgb.png", ns=(1, 1))
+    changed = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    assert changed.files_reused == per_frame_files * (len(FRAME_PLAN) + 2) - 1
+
+
+def test_reexport_of_an_unchanged_campaign_gives_identical_files(real_campaign, tmp_path):
+    one, two = tmp_path / "one", tmp_path / "two"
+    _export(real_campaign, one, formats=frozenset({"coco", "yolo"}))
+    _export(real_campaign, two, formats=frozenset({"coco", "yolo"}))
+    lines_one = (one / export.MANIFEST_NAME).read_text().splitlines()[1:]
+    lines_two = (two / export.MANIFEST_NAME).read_text().splitlines()[1:]
+    strip = [{k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")} for line in lines_one]
+    assert strip == [{k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")}
+                     for line in lines_two]  # deterministic: same content, same order, same checksums
+
+
+@pytest.mark.parametrize("splits", ["0.5,0.5", "0.8,0.1,0.2", "a,b,c", "-0.1,0.6,0.5", "0,0.5,0.5", "nan,0,1"])
+def test_bad_split_ratios_fail_with_one_line_and_write_nothing(real_campaign, tmp_path, splits):
+    exports = tmp_path / "exports"
+    exports.mkdir()
+    out = exports / "dataset"
+    with pytest.raises(CommandError, match=r"^splits: ") as info:
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(out), f"--splits={splits}")
+    assert "\n" not in str(info.value)
+    assert not out.exists() and list(exports.iterdir()) == []
+
+
+def test_bad_campaign_format_and_out_dir(real_campaign, tmp_path):
+    tmp_path = tmp_path / "exports"
+    tmp_path.mkdir()
+    with pytest.raises(CommandError, match="no campaign with id or name 'nope'"):
+        call_command("export_dataset", "nope", "--out", str(tmp_path / "x"))
+    with pytest.raises(CommandError, match="format: expected coco, yolo or both"):
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(tmp_path / "x"), "--format", "voc")
+    a_file = tmp_path / "a-file"
+    a_file.write_text("x")
+    with pytest.raises(CommandError, match="cannot create"):
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(a_file / "dataset"))
+    with pytest.raises(CommandError, match="exists and is not a directory"):
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(a_file))
+    foreign = tmp_path / "photos"
+    foreign.mkdir()
+    (foreign / "holiday.jpg").write_text("precious")
+    with pytest.raises(CommandError, match="not an Evenframe export"):
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(foreign))
+    assert (foreign / "holiday.jpg").read_text() == "precious"
+    assert not (tmp_path / "x").exists()
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["a-file", "photos"]  # no staging or lock left
+
+
+def test_a_failure_midway_leaves_the_previous_export_untouched(real_campaign, media_root, tmp_path):
+    tmp_path = tmp_path / "exports"
+    tmp_path.mkdir()
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    manifest_before = (out / export.MANIFEST_NAME).read_bytes()
+    (media_root / f"campaigns/{real_campaign.pk}/frames/5/instances.png").unlink()
+    with pytest.raises(CommandError, match=r"missing frame file .*frames/5/instances.png"):
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(out))
+    assert (out / export.MANIFEST_NAME).read_bytes() == manifest_before
+    assert export.verify_dataset(directory=out).ok
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["dataset"]
+    fresh = tmp_path / "fresh"
+    with pytest.raises(CommandError):
+        call_command("export_dataset", str(real_campaign.pk), "--out", str(fresh))
+    assert not fresh.exists()
+
+
+def test_command_output_and_empty_campaign(make_campaign, media_root, tmp_path, capsys):
+    campaign = make_campaign(name="nothing rendered yet")
+    out = tmp_path / "empty"
+    call_command("export_dataset", campaign.name, "--out", str(out), "--format", "both")
+    text = capsys.readouterr().out
+    assert f"exported campaign {campaign.pk}: 0 frames in 0 layouts" in text and "frames/s" in text
+    gt = COCO(str(out / "annotations" / "train.json"))
+    assert gt.getImgIds() == [] and len(gt.getCatIds()) == 6
+    assert export.verify_dataset(directory=out).ok
+
+
+def test_instances_recorded_without_rle_get_one_from_the_mask_image(real_campaign, tmp_path):
+    from campaigns.models import Instance
+
+    Instance.objects.filter(campaign=real_campaign).update(segmentation_rle=None)
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    import cv2
+
+    checked = 0
+    for path in _coco_files(out):
+        for a in json.loads(path.read_text())["annotations"]:
+            ids = cv2.imread(str(out / "masks" / f"{a['image_id']:06d}.png"), cv2.IMREAD_UNCHANGED)
+            assert np.array_equal(mask_utils.decode(a["segmentation"]).astype(bool), ids == a["instance_id"])
+            assert int(mask_utils.area(a["segmentation"])) == a["area"]  # pycocotools
+            checked += 1
+    assert checked > 10
