@@ -20,7 +20,9 @@ import math
 from collections.abc import Mapping
 from datetime import timedelta
 
+from django.conf import settings
 from django.db import transaction
+from django.db.models import Q
 from django.utils import timezone
 
 from campaigns import costs, planner, selectors, services
@@ -36,8 +38,9 @@ QUEUE_DEPTH_PER_SLOT = 2
 # With no live worker, keep this many frames waiting per campaign so a worker that starts finds work.
 SLOTS_WITHOUT_WORKERS = 1
 # A frame queued this long while workers are live lost its message (broker restart, a consumer on another
-# database): it is sent again under a new dispatch number, and the old message, should it arrive, is stale.
-STALE_QUEUED_S = 900.0
+# database, a killed worker's prefetched or countdown message): it is sent again under a new dispatch number,
+# and the old message, should it arrive, is stale. EVENFRAME_STALE_QUEUED_S, default 900 s.
+STALE_QUEUED_S = float(getattr(settings, "STALE_QUEUED_S", 900.0))
 # When this many frames in a row end dead, something is systematically wrong (renderer, budget): pause.
 DEAD_IN_A_ROW_PAUSE = 5
 
@@ -79,6 +82,27 @@ def send_frame_task(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_
 
     app.send_task(TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
                   task_id=task_id, countdown=countdown_s if countdown_s > 0 else None)
+
+
+def send_messages(*, messages: list[tuple[int, int, str, float]], campaign_uid: str) -> int:
+    """Send after commit; a message the broker refuses is marked unsent and goes out with the next sweep.
+
+    Redis may be down or restarting: the frame rows are committed already, so losing the message must not
+    fail the caller (a worker that just recorded a result) — the frame just waits for the next sweep."""
+    sent = 0
+    for frame_id, dispatch_no, task_id, countdown in messages:
+        try:
+            send_frame_task(frame_id=frame_id, dispatch_no=dispatch_no, campaign_uid=campaign_uid, task_id=task_id,
+                            countdown_s=countdown)
+            sent += 1
+        except Exception:  # noqa: BLE001 - any broker error: the sweep resends, so log and go on
+            log.warning("frame %s: message %s not sent; the next sweep sends it again", frame_id, task_id,
+                        exc_info=True)
+            try:
+                services.mark_message_unsent(frame_id=frame_id, dispatch_no=dispatch_no)
+            except Exception:  # noqa: BLE001 - the stale-queued timeout still resends it
+                log.warning("frame %s: could not mark its message unsent", frame_id, exc_info=True)
+    return sent
 
 
 def revoke_tasks(*, task_ids: list[str]) -> None:
@@ -183,9 +207,16 @@ def _dispatch_one(campaign_id: int) -> int:
                                            task_id_prefix=TASK_ID_PREFIX)
             if again:
                 messages.append((again.pk, again.dispatch_count, again.task_id, countdown))
+        # A message the broker refused (send_messages cleared queued_at) never left: send it again as it is.
+        for frame in Frame.objects.filter(campaign=campaign, state=State.QUEUED, queued_at__isnull=True):
+            if services.mark_message_resent(frame_id=frame.pk, dispatch_no=frame.dispatch_count):
+                countdown = max(0.0, (frame.retry_at - now).total_seconds()) if frame.retry_at else 0.0
+                messages.append((frame.pk, frame.dispatch_count, frame.task_id, countdown))
         if campaign_slots_live():
+            # Waiting too long past its due time: the message may be anywhere, so a new dispatch number.
             stale_before = now - timedelta(seconds=STALE_QUEUED_S)
-            for frame in Frame.objects.filter(campaign=campaign, state=State.QUEUED, queued_at__lt=stale_before):
+            stale = Q(queued_at__lt=stale_before) & (Q(retry_at__isnull=True) | Q(retry_at__lt=stale_before))
+            for frame in Frame.objects.filter(stale, campaign=campaign, state=State.QUEUED).order_by("index"):
                 again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s,
                                                task_id_prefix=TASK_ID_PREFIX)
                 if again:
@@ -234,11 +265,51 @@ def _dispatch_one(campaign_id: int) -> int:
                 allowed_from=(Status.RUNNING,))
 
         uid = str(campaign.uid)
-
-        def send() -> None:
-            for frame_id, dispatch_no, task_id, countdown in messages:
-                send_frame_task(frame_id=frame_id, dispatch_no=dispatch_no, campaign_uid=uid, task_id=task_id,
-                                countdown_s=countdown)
-
-        transaction.on_commit(send)
+        transaction.on_commit(lambda: send_messages(messages=messages, campaign_uid=uid))
     return len(messages)
+
+
+# --- recovery ---------------------------------------------------------------------------------------------
+
+
+def sweep() -> dict[str, int]:
+    """Recovery pass: take back frames running on dead workers, then top up (which resends lost messages).
+
+    Run by every live worker's heartbeat thread every EVENFRAME_WORKER_SWEEP_S seconds and by ``manage.py
+    campaign tick``; safe to run anywhere at once (campaign lock, conditional updates). This, not broker
+    redelivery, is what recovers a frame after kill -9 on both transports (see services.release_lost_frames).
+    """
+    from workers.models import live_workers
+
+    live = list(live_workers().values_list("hostname", flat=True))
+    started_before = timezone.now() - timedelta(seconds=settings.WORKER_LIVE_WINDOW_S)
+    campaign_ids = set(Frame.objects.filter(state=State.RUNNING, started_at__lt=started_before)
+                       .exclude(worker_host__in=live).values_list("campaign_id", flat=True))
+    counts = {"requeued": 0, "dead": 0, "revoked": 0, "sent": 0}
+    for campaign_id in sorted(campaign_ids):
+        with transaction.atomic():
+            released = services.release_lost_frames(campaign_id=campaign_id, live_hosts=live,
+                                                    started_before=started_before, task_id_prefix=TASK_ID_PREFIX)
+            uid = str(Campaign.objects.values_list("uid", flat=True).get(pk=campaign_id))
+            messages = [(r.frame_id, r.dispatch_no, r.task_id, 0.0) for r in released if r.to_state == State.QUEUED]
+            transaction.on_commit(lambda m=messages, u=uid: send_messages(messages=m, campaign_uid=u))
+        for r in released:
+            counts[{State.QUEUED: "requeued", State.DEAD: "dead", State.REVOKED: "revoked"}[r.to_state]] += 1
+            if r.to_state != State.QUEUED:
+                _remove_partial_folders(campaign_id=campaign_id, index=r.index)
+        if released:
+            log.warning("sweep: campaign %s: %s", campaign_id, ", ".join(
+                f"frame id {r.frame_id} → {r.to_state}" for r in released))
+    counts["sent"] = dispatch()
+    return counts
+
+
+def _remove_partial_folders(*, campaign_id: int, index: int) -> None:
+    """A frame that settled without a result may have a killed attempt's partial folder; the sweep runs where
+    the media is (in a worker), so it removes it. Best effort: files are not the frame's state."""
+    from workers.tasks import frame_output_dir, remove_partial_folders
+
+    try:
+        remove_partial_folders(frame_output_dir(campaign_id=campaign_id, index=index)[0])
+    except OSError:
+        log.warning("could not remove partial folders of campaign %s frame %s", campaign_id, index, exc_info=True)

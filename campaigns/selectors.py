@@ -160,3 +160,449 @@ def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
 def frames_to_redispatch(*, campaign: Campaign) -> QuerySet[Frame]:
     """Failed frames (sent again at once, with their backoff as the message's countdown) and revoked ones."""
     return Frame.objects.filter(campaign=campaign, state__in=(State.FAILED, State.REVOKED)).order_by("index")
+
+
+# --- dashboard reads (issue 5) ----------------------------------------------------------------------------------
+# Everything below aggregates in the database (values + Count/Sum, bucketed by frame index or minute). The only
+# reads that open files are the coverage histograms, which read a bounded sample of scene.json files, because the
+# sampled camera and light parameters live only there (see coverage_sample).
+
+import json as _json  # noqa: E402
+import math as _math  # noqa: E402
+from datetime import timedelta as _timedelta  # noqa: E402
+from pathlib import Path as _Path  # noqa: E402
+from typing import Any as _Any  # noqa: E402
+
+from django.db.models import (  # noqa: E402
+    Avg,
+    DecimalField,
+    Exists,
+    ExpressionWrapper,
+    F,
+    IntegerField,
+    Max,
+    Min,
+    OuterRef,
+    Q,
+    Subquery,
+    Value,
+)
+from django.db.models.functions import Coalesce, Least, TruncMinute  # noqa: E402
+from django.utils import timezone as _timezone  # noqa: E402
+
+from campaigns.models import Asset, FrameEvent, Instance  # noqa: E402
+
+COVERAGE_SAMPLE_FRAMES = 500
+CHART_BUCKETS = 60
+FAILED_STATES = (State.QUEUED, State.RUNNING, State.FAILED, State.DEAD)
+
+
+def campaign_rows(*, campaigns: QuerySet[Campaign]) -> list[dict[str, _Any]]:
+    """The campaign list: status, progress (accepted up to each quota over the targets), spend and ETA.
+
+    ETA is the pace since start (accepted-towards-quota per second) applied to what is left: a simple, honest
+    figure for a list; the campaign page has the planner-based projection.
+    """
+    quota_target = ClassQuota.objects.filter(campaign=OuterRef("pk")).values("campaign").annotate(
+        s=Sum("target_accepted")).values("s")
+    quota_done = ClassQuota.objects.filter(campaign=OuterRef("pk")).values("campaign").annotate(
+        s=Sum(Least("accepted_count", "target_accepted"))).values("s")
+    asset_cost = Asset.objects.filter(campaigns=OuterRef("pk")).values("campaigns").annotate(
+        s=Sum("creation_cost")).values("s")
+    money_field = DecimalField(max_digits=16, decimal_places=6)
+    rows = campaigns.select_related("team").annotate(
+        target_total=Coalesce(Subquery(quota_target, output_field=IntegerField()), 0),
+        towards_quota=Coalesce(Subquery(quota_done, output_field=IntegerField()), 0),
+        asset_cost=Coalesce(Subquery(asset_cost, output_field=money_field), Value(Decimal(0)), output_field=money_field),
+    ).order_by("-created_at")
+    now = _timezone.now()
+    out = []
+    for c in rows:
+        spent = costs.money(c.asset_cost + c.setup_cost + c.compute_cost_spent)
+        progress = c.towards_quota / c.target_total if c.target_total else 0.0
+        eta_s = None
+        if c.status == Campaign.Status.RUNNING and c.started_at and c.towards_quota:
+            elapsed = (now - c.started_at).total_seconds()
+            eta_s = (c.target_total - c.towards_quota) * elapsed / c.towards_quota
+        out.append({"campaign": c, "progress": progress, "progress_pct": round(100 * progress, 1),
+                    "spent": spent, "spent_pct": float(100 * spent / c.cost_budget) if c.cost_budget else 0.0,
+                    "eta_s": eta_s, "target_total": c.target_total, "towards_quota": c.towards_quota})
+    return out
+
+
+def _index_bucket_size(*, campaign: Campaign) -> int:
+    last = Frame.objects.filter(campaign=campaign).aggregate(m=Max("index"))["m"] or 0
+    return max(1, _math.ceil((last + 1) / CHART_BUCKETS))
+
+
+def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
+    """Per bucket of frame indices: done frames, compute cost, accepted instances, last finish time.
+
+    From these the page draws cost per frame over time and the amortization curve (cumulative cost per accepted
+    instance against frames done, fixed costs included), with the manual-labelling line and the break-even point.
+    """
+    size = _index_bucket_size(campaign=campaign)
+    bucket = ExpressionWrapper(F("index") / size, output_field=IntegerField())
+    frames = list(Frame.objects.filter(campaign=campaign, state=State.DONE).annotate(b=bucket).values("b")
+                  .annotate(n=Count("pk"), cost=Sum("compute_cost"), cpu=Sum("cpu_s"), last=Max("finished_at"))
+                  .order_by("b"))
+    accepted = dict(Instance.objects.filter(campaign=campaign, accepted=True)
+                    .annotate(b=ExpressionWrapper(F("frame__index") / size, output_field=IntegerField()))
+                    .values("b").annotate(n=Count("pk")).values_list("b", "n"))
+    fixed = fixed_cost(campaign=campaign)
+    manual = costs.manual_labelling_cost(instances=1, rate_per_hour=campaign.manual_labelling_rate_per_hour)
+    cumulative_frames, cumulative_cost, cumulative_accepted = 0, Decimal(fixed), 0
+    x_frames, per_instance, per_frame, times = [], [], [], []
+    for row in frames:
+        cumulative_frames += row["n"]
+        cumulative_cost += row["cost"] or Decimal(0)
+        cumulative_accepted += accepted.get(row["b"], 0)
+        x_frames.append(cumulative_frames)
+        per_instance.append(float(cumulative_cost / cumulative_accepted) if cumulative_accepted else None)
+        per_frame.append(float((row["cost"] or 0) / row["n"]))
+        times.append(row["last"].isoformat() if row["last"] else None)
+    return {"bucket_frames": size, "frames": x_frames, "cost_per_accepted": per_instance,
+            "cost_per_frame": per_frame, "times": times, "manual_cost_per_instance": float(manual.cost_per_instance),
+            "fixed": float(fixed)}
+
+
+def throughput(*, campaign: Campaign, minutes: int = 120) -> dict[str, _Any]:
+    """Done frames per minute over the last ``minutes`` (one grouped query) and the rate of the last 10 minutes."""
+    since = _timezone.now() - _timedelta(minutes=minutes)
+    rows = list(Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=since)
+                .annotate(m=TruncMinute("finished_at")).values("m").annotate(n=Count("pk")).order_by("m"))
+    recent_since = _timezone.now() - _timedelta(minutes=10)
+    recent = Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=recent_since).count()
+    return {"minutes": [r["m"].isoformat() for r in rows], "frames": [r["n"] for r in rows],
+            "frames_per_hour_10min": recent * 6}
+
+
+def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
+    """Live workers with their frames in the last hour (all campaigns) and CPU use (CPU s per wall s per slot)."""
+    from workers.models import live_workers
+
+    now = _timezone.now()
+    since = now - _timedelta(seconds=window_s)
+    per_host = {r["worker_host"]: r for r in Frame.objects.filter(state=State.DONE, finished_at__gte=since)
+                .values("worker_host").annotate(n=Count("pk"), cpu=Sum("cpu_s"))}
+    out = []
+    for w in live_workers().order_by("hostname"):
+        seconds = max(1.0, min(window_s, (now - w.started_at).total_seconds()))
+        row = per_host.get(w.hostname, {"n": 0, "cpu": 0.0})
+        out.append({"hostname": w.hostname, "machine": w.machine, "concurrency": w.concurrency,
+                    "variant": w.renderer_variant, "last_seen_s": round((now - w.last_seen).total_seconds(), 1),
+                    "frames_last_hour": row["n"], "frames_per_hour": round(row["n"] * 3600.0 / seconds, 1),
+                    "cpu_use": round((row["cpu"] or 0.0) / seconds / max(1, w.concurrency), 3)})
+    return out
+
+
+def _read_json(path: _Path) -> dict[str, _Any] | None:
+    try:
+        return _json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+
+
+def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) -> dict[str, _Any]:
+    """Sampled scene parameters of the latest ``limit`` done frames, read from their scene.json files.
+
+    No database column holds camera height, focal length, f-number, ISO, light CCT and flux, or viewing angles,
+    so this reads a bounded sample (at most ``limit`` files, about 10 kB each). Viewing angle: the camera's
+    azimuth around the object, 0° = seen from its front (local +y), and its elevation above the object's centre.
+    """
+    from django.conf import settings
+
+    dirs = list(Frame.objects.filter(campaign=campaign, state=State.DONE).exclude(output_dir="")
+                .order_by("-finished_at").values_list("output_dir", flat=True)[:limit])
+    root = _Path(settings.MEDIA_ROOT)
+    values: dict[str, list[float]] = {k: [] for k in ("eye_height_m", "focal_length_mm", "f_number", "iso", "cct_k")}
+    flux: dict[str, list[float]] = {}
+    azimuth: dict[str, list[float]] = {}
+    elevation: dict[str, list[float]] = {}
+    for relative in dirs:
+        spec = _read_json(root / relative / "scene.json")
+        if not spec:
+            continue
+        camera = spec.get("camera", {})
+        position = camera.get("position_m") or [0, 0, 0]
+        values["eye_height_m"].append(float(position[2]))
+        for key in ("focal_length_mm", "f_number", "iso"):
+            if key in camera:
+                values[key].append(float(camera[key]))
+        for light in spec.get("lights", []):
+            if "cct_k" in light:
+                values["cct_k"].append(float(light["cct_k"]))
+            if "flux_lm" in light:
+                flux.setdefault(str(light.get("kind", "light")), []).append(float(light["flux_lm"]))
+        for obj in spec.get("objects", []):
+            p = obj.get("position_m") or [0, 0, 0]
+            dx, dy = position[0] - p[0], position[1] - p[1]
+            dz = position[2] - (p[2] + float(obj.get("height_m", 0.0)) / 2)
+            front_deg = float(obj.get("yaw_deg", 0.0)) + 90.0
+            name = str(obj.get("class_name", "?"))
+            azimuth.setdefault(name, []).append(round((_math.degrees(_math.atan2(dy, dx)) - front_deg) % 360.0, 2))
+            elevation.setdefault(name, []).append(round(_math.degrees(_math.atan2(dz, _math.hypot(dx, dy))), 2))
+    budget = campaign.budget
+    ranges = {"eye_height_m": budget["camera"]["eye_height_m"], "focal_length_mm": budget["camera"]["focal_length_mm"],
+              "f_number": budget["camera"]["f_number"], "iso": budget["camera"]["iso"],
+              "cct_k": budget["lighting"]["cct_k"]}
+    flux_ranges = {kind: budget["lighting"].get(f"{kind}_flux_lm") for kind in flux}
+    return {"frames_read": len(dirs), "limit": limit, "values": values, "ranges": ranges, "flux": flux,
+            "flux_ranges": flux_ranges, "azimuth_deg": azimuth, "elevation_deg": elevation}
+
+
+def _ignored_after_death() -> Exists:
+    return Exists(FrameEvent.objects.filter(frame=OuterRef("pk"), to_state="ignored",
+                                            created_at__gte=OuterRef("finished_at")))
+
+
+def failed_frames(*, campaign: Campaign) -> QuerySet[Frame]:
+    """Frames whose last attempt failed and that nobody ignored: dead ones, and ones waiting to retry."""
+    return (Frame.objects.filter(campaign=campaign, state__in=FAILED_STATES).exclude(error="")
+            .annotate(ignored=_ignored_after_death()).filter(ignored=False))
+
+
+def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
+    """Failed frames grouped by error kind (exception type + first line), biggest group first.
+
+    The database groups by the full error text (few distinct texts); groups with the same first line merge here.
+    """
+    from campaigns.services import error_kind
+
+    groups: dict[str, dict[str, _Any]] = {}
+    for row in failed_frames(campaign=campaign).values("error").annotate(
+            n=Count("pk"), dead=Count("pk", filter=Q(state=State.DEAD)), last=Max("started_at")):
+        kind = error_kind(row["error"])
+        g = groups.setdefault(kind, {"kind": kind, "count": 0, "dead": 0, "last": None})
+        g["count"] += row["n"]
+        g["dead"] += row["dead"]
+        if row["last"] and (g["last"] is None or row["last"] > g["last"]):
+            g["last"] = row["last"]
+    return sorted(groups.values(), key=lambda g: (-g["count"], g["kind"]))
+
+
+def gallery_frames(*, campaign: Campaign, class_name: str = "", accepted: str = "",
+                   min_visible_fraction: float | None = None) -> QuerySet[Frame]:
+    """Done frames that hold at least one instance matching every given filter."""
+    frames = Frame.objects.filter(campaign=campaign, state=State.DONE)
+    match = instance_filter(class_name=class_name, accepted=accepted, min_visible_fraction=min_visible_fraction)
+    if match is not None:
+        frames = frames.filter(Exists(Instance.objects.filter(match, frame=OuterRef("pk"))))
+    return frames.order_by("-index")
+
+
+def instance_filter(*, class_name: str = "", accepted: str = "", min_visible_fraction: float | None = None) -> Q | None:
+    query = Q()
+    if class_name:
+        query &= Q(object_class__name=class_name)
+    if accepted == "accepted":
+        query &= Q(accepted=True)
+    elif accepted == "rejected":
+        query &= Q(accepted=False)
+    if min_visible_fraction is not None:
+        query &= Q(visible_fraction__gte=min_visible_fraction)
+    return query if query else None
+
+
+def frame_instances(*, frame_ids: Sequence[int]) -> dict[int, list[dict[str, _Any]]]:
+    """Instances of some frames (one query), for box overlays and labels tables."""
+    out: dict[int, list[dict[str, _Any]]] = {fid: [] for fid in frame_ids}
+    for row in Instance.objects.filter(frame_id__in=list(frame_ids)).order_by("frame_id", "instance_id").values(
+            "frame_id", "instance_id", "object_class__name", "asset_id", "bbox_xywh_px", "amodal_bbox_xywh_px",
+            "visible_fraction", "occlusion_fraction", "truncation_fraction", "mask_area_px", "accepted",
+            "reject_reasons"):
+        out[row["frame_id"]].append(row)
+    return out
+
+
+def asset_library(*, user: _Any) -> list[dict[str, _Any]]:
+    """Procedural (shared) and the user's teams' uploaded assets, with appearances in the user's campaigns.
+
+    An appearance is a done frame holding an instance of the asset: procedural generators cover their whole class
+    (every instance of the class comes from its generator); an uploaded mesh counts instances whose render-core
+    asset id names it (``user/<asset pk>``).
+    """
+    from teams.permissions import scope_to_user, teams_for
+
+    assets = Asset.objects.filter(Q(team__isnull=True) | Q(team__in=teams_for(user=user))).select_related(
+        "object_class", "team").order_by("object_class__name", "kind", "name")
+    visible = scope_to_user(Instance.objects.all(), user=user, team_field="campaign__team")
+    by_class = dict(visible.values("object_class__name").annotate(n=Count("frame", distinct=True))
+                    .values_list("object_class__name", "n"))
+    by_asset_id = dict(visible.filter(asset_id__startswith="user/").values("asset_id")
+                       .annotate(n=Count("frame", distinct=True)).values_list("asset_id", "n"))
+    out = []
+    for a in assets:
+        frames = by_class.get(a.object_class.name, 0) if a.kind == Asset.Kind.PROCEDURAL else by_asset_id.get(
+            f"user/{a.pk}", 0)
+        out.append({"asset": a, "frames": frames,
+                    "per_appearance": costs.money(a.creation_cost / frames) if frames else None})
+    return out
+
+
+# --- the planner's estimate ---------------------------------------------------------------------------------------
+
+HISTORY_CAMPAIGNS = 100
+HISTORY_MIN_FRAMES = 3
+HISTORY_SAMPLE_RATIO = 16.0  # campaigns within ×16 in pixels × spp count as similar
+
+
+@dataclass(frozen=True)
+class FrameTimeEstimate:
+    cpu_s: float
+    wall_per_cpu: float
+    source: str
+    detail: str
+
+
+def frame_time_estimate(*, width_px: int, height_px: int, spp: int, history: QuerySet[Campaign]) -> FrameTimeEstimate:
+    """CPU seconds per frame for a new budget: history of similar campaigns scaled by pixels × spp, else the prior.
+
+    From history: the done frames of each visible campaign are averaged in the database; campaigns whose
+    pixels × spp are within ×16 of the new budget's are used, nearest (in log samples) first, up to three,
+    weighted by their frame counts. Each is scaled linearly in samples past the fixed per-frame overhead:
+    ``cpu = overhead + (mean_cpu − overhead) · samples / samples_seen``. Fallback: the constant measured on this
+    machine, :data:`campaigns.costs.PRIOR_FRAME_OVERHEAD_CPU_S` + :data:`~campaigns.costs.PRIOR_CPU_S_PER_SAMPLE` ×
+    samples.
+    """
+    samples = width_px * height_px * spp
+    stats = {r["campaign"]: r for r in Frame.objects.filter(
+        campaign__in=history.values("pk")[:HISTORY_CAMPAIGNS], state=State.DONE, cpu_s__isnull=False)
+        .values("campaign").annotate(n=Count("pk"), cpu=Avg("cpu_s"), wall=Avg("wall_s"))
+        if r["n"] >= HISTORY_MIN_FRAMES}
+    candidates = []
+    for pk, budget in Campaign.objects.filter(pk__in=list(stats)).values_list("pk", "budget"):
+        r = budget.get("render", {})
+        seen = int(r.get("width_px", 0)) * int(r.get("height_px", 0)) * int(r.get("spp", 0))
+        if seen > 0 and 1 / HISTORY_SAMPLE_RATIO <= samples / seen <= HISTORY_SAMPLE_RATIO:
+            candidates.append((abs(_math.log(samples / seen)), pk, seen, r))
+    candidates.sort()
+    if candidates:
+        overhead = costs.PRIOR_FRAME_OVERHEAD_CPU_S
+        total_n, cpu_sum, wall_ratio_sum, names = 0, 0.0, 0.0, []
+        for _, pk, seen, r in candidates[:3]:
+            s = stats[pk]
+            base = min(overhead, 0.5 * s["cpu"])  # a tiny frame's mean may be below the nominal overhead
+            scaled = base + (s["cpu"] - base) * samples / seen
+            total_n += s["n"]
+            cpu_sum += scaled * s["n"]
+            wall_ratio_sum += (s["wall"] / s["cpu"] if s["cpu"] else 1.0) * s["n"]
+            names.append(f"{r['width_px']}×{r['height_px']} px × {r['spp']} spp ({s['n']} frames)")
+        return FrameTimeEstimate(cpu_s=cpu_sum / total_n, wall_per_cpu=wall_ratio_sum / total_n, source="history",
+                                 detail="history of " + "; ".join(names) + ", scaled by pixels × spp")
+    return FrameTimeEstimate(
+        cpu_s=costs.prior_frame_cpu_s(width_px=width_px, height_px=height_px, spp=spp), wall_per_cpu=1.0,
+        source="constant",
+        detail=(f"no similar campaign has finished frames yet: the constant measured on this machine, "
+                f"{costs.PRIOR_FRAME_OVERHEAD_CPU_S:g} CPU s per frame + {costs.PRIOR_CPU_S_PER_SAMPLE * 1e6:g} CPU s "
+                "per megapixel-sample"))
+
+
+@dataclass(frozen=True)
+class PlanEstimate:
+    frames: int
+    instances_per_frame: float
+    cpu_hours: float
+    compute_cost: Decimal
+    fixed_cost: Decimal
+    total_cost: Decimal
+    within_budget: bool
+    wall_s_on_fleet: float | None
+    live_slots: int
+    cost_per_accepted: Decimal | None
+    manual_cost_per_instance: Decimal
+    manual_total: Decimal
+    frame_cpu_s: float
+    source: str
+    detail: str
+    yields: dict[str, float]
+
+
+def plan_estimate(*, budget: dict[str, _Any], targets: dict[str, int], cost_budget: Decimal,
+                  price_per_cpu_hour: Decimal, setup_cost: Decimal, manual_rate_per_hour: Decimal,
+                  history: QuerySet[Campaign]) -> PlanEstimate:
+    """Frames, CPU-hours, cost, time on the live workers and cost per accepted instance for a planned campaign.
+
+    Frames: each class needs ``target / yield`` placements, with the yield per class from the history of the
+    visible campaigns (Beta posterior, :func:`campaigns.planner.posterior_yield`), shared over frames holding
+    ``min(12, density × mean floor area)`` objects (the scheduler's density limit). ``budget`` is normalized.
+    """
+    from campaigns.sampling import MAX_OBJECTS_PER_FRAME
+    from workers.models import live_workers
+
+    render = budget["render"]
+    frame_time = frame_time_estimate(width_px=render["width_px"], height_px=render["height_px"], spp=render["spp"],
+                                     history=history)
+    seen = {r["object_class__name"]: r for r in ClassQuota.objects.filter(campaign__in=history.values("pk"))
+            .values("object_class__name").annotate(a=Sum("accepted_count"), p=Sum("placed_count"))}
+    yields = {name: planner.posterior_yield(accepted=seen.get(name, {}).get("a") or 0,
+                                            placed=seen.get(name, {}).get("p") or 0) for name in targets}
+    placements = sum(t / yields[n] for n, t in targets.items())
+    room = budget["room"]
+    area = (sum(room["width_m"]) / 2) * (sum(room["depth_m"]) / 2)
+    per_frame = float(max(1, min(MAX_OBJECTS_PER_FRAME, _math.floor(area * room["max_objects_per_m2"]))))
+    frames = _math.ceil(placements / per_frame) if placements else 0
+    cpu_s = frames * frame_time.cpu_s
+    compute = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=price_per_cpu_hour)
+    creation = Asset.objects.filter(object_class__name__in=list(targets), team__isnull=True).aggregate(
+        s=Sum("creation_cost"))["s"] or Decimal(0)
+    fixed = costs.fixed_cost(asset_creation_costs=[creation], setup_cost=setup_cost)
+    total = costs.money(fixed + compute)
+    slots = live_workers().aggregate(s=Sum("concurrency"))["s"] or 0
+    wall = (frame_time.cpu_s * frame_time.wall_per_cpu * _math.ceil(frames / slots)) if slots else None
+    instances = sum(targets.values())
+    manual = costs.manual_labelling_cost(instances=instances, rate_per_hour=manual_rate_per_hour)
+    return PlanEstimate(
+        frames=frames, instances_per_frame=per_frame, cpu_hours=cpu_s / 3600.0, compute_cost=compute, fixed_cost=fixed,
+        total_cost=total, within_budget=total <= cost_budget, wall_s_on_fleet=wall, live_slots=slots,
+        cost_per_accepted=costs.money(total / instances) if instances else None,
+        manual_cost_per_instance=manual.cost_per_instance, manual_total=manual.cost_for_instances,
+        frame_cpu_s=frame_time.cpu_s, source=frame_time.source, detail=frame_time.detail, yields=yields)
+
+
+def campaign_live(*, campaign: Campaign) -> dict[str, _Any]:
+    """What dashboard.js polls: counters, quotas, frame states, spend, projection and the chart series."""
+    s = campaign_summary(campaign=campaign)
+    c = s.campaign
+    accepted = [q.accepted for q in s.quotas]
+    targets = [q.target for q in s.quotas]
+    ratios = [a / t for a, t in zip(accepted, targets, strict=True) if t]
+    imbalance = (max(ratios) / min(ratios)) if ratios and min(ratios) > 0 else None
+    towards = sum(min(a, t) for a, t in zip(accepted, targets, strict=True))
+    return {
+        "status": c.status, "status_label": c.get_status_display(), "pause_reason": c.get_pause_reason_display()
+        if c.pause_reason else "", "pause_detail": c.pause_detail,
+        "frames": s.frames, "frames_done": c.frames_done, "frames_dead": c.frames_dead,
+        "instances_accepted": c.instances_accepted, "instances_rejected": c.instances_rejected,
+        "progress_pct": round(100 * towards / sum(targets), 1) if sum(targets) else 0.0,
+        "quotas": [{"class_name": q.class_name, "target": q.target, "accepted": q.accepted, "rejected": q.rejected,
+                    "placed": q.placed, "yield": round(q.yield_estimate, 3), "met": q.met,
+                    "pct": round(100 * min(1.0, q.accepted / q.target), 1) if q.target else 100.0}
+                   for q in s.quotas],
+        "imbalance_ratio": round(imbalance, 2) if imbalance else None,
+        "spent": str(costs.money(s.total_spent).quantize(Decimal("0.0001"))),
+        "spent_pct": round(float(100 * s.total_spent / c.cost_budget), 1) if c.cost_budget else 0.0,
+        "cost_budget": str(c.cost_budget), "fixed": str(s.fixed), "compute": str(s.compute_spent.quantize(
+            Decimal("0.0001"))), "cpu_s": round(s.cpu_s_spent, 1),
+        "per_accepted": str(s.amortized.per_accepted_instance.quantize(Decimal("0.0001")))
+        if s.amortized.per_accepted_instance is not None else None,
+        "manual_per_instance": str(s.manual.cost_per_instance.quantize(Decimal("0.0001"))),
+        "break_even_frames": s.break_even_frames,
+        "median_cpu_s": round(s.median_cpu_s, 2) if s.median_cpu_s is not None else None,
+        "median_wall_s": round(s.median_wall_s, 2) if s.median_wall_s is not None else None,
+        "frames_remaining": s.projection.frames_remaining,
+        "cost_remaining": str(s.projection.cost_remaining.quantize(Decimal("0.0001")))
+        if s.projection.cost_remaining is not None else None,
+        "eta_s": round(s.projection.seconds_remaining) if s.projection.seconds_remaining is not None else None,
+        "live_slots": s.live_slots,
+        "failed_open": failed_frames(campaign=c).count(),
+        "series": cost_series(campaign=c), "throughput": throughput(campaign=c), "fleet": fleet(),
+    }
+
+
+def frame_neighbours(*, frame: Frame) -> tuple[int | None, int | None]:
+    """Previous and next done frame indices (for the frame page's arrows)."""
+    done = Frame.objects.filter(campaign_id=frame.campaign_id, state=State.DONE)
+    prev = done.filter(index__lt=frame.index).aggregate(m=Max("index"))["m"]
+    nxt = done.filter(index__gt=frame.index).aggregate(m=Min("index"))["m"]
+    return prev, nxt

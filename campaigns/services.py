@@ -397,6 +397,7 @@ def mark_message_resent(*, frame_id: int, dispatch_no: int) -> bool:
 @dataclass(frozen=True)
 class LostFrame:
     frame_id: int
+    index: int
     to_state: str
     dispatch_no: int
     task_id: str
@@ -429,14 +430,14 @@ def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_
             if same.update(state=State.REVOKED, retry_at=None, error=why):
                 _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.REVOKED,
                        detail=f"{why}; campaign is {campaign.status}")
-                released.append(LostFrame(frame.pk, State.REVOKED, frame.dispatch_count, frame.task_id))
+                released.append(LostFrame(frame.pk, frame.index, State.REVOKED, frame.dispatch_count, frame.task_id))
             continue
         if frame.attempts >= campaign.max_attempts:
             if same.update(state=State.DEAD, finished_at=now, error=why, retry_at=None):
                 _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.DEAD,
                        detail=f"{why}; attempt limit reached")
                 Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") + 1)
-                released.append(LostFrame(frame.pk, State.DEAD, frame.dispatch_count, frame.task_id))
+                released.append(LostFrame(frame.pk, frame.index, State.DEAD, frame.dispatch_count, frame.task_id))
             continue
         dispatch_no = frame.dispatch_count + 1
         task_id = f"{task_id_prefix}-c{campaign.pk}-f{frame.index}-d{dispatch_no}"
@@ -444,7 +445,7 @@ def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_
                        retry_at=None, error=why):
             _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.QUEUED,
                    worker_host=frame.worker_host, detail=f"{why}; dispatch {dispatch_no}")
-            released.append(LostFrame(frame.pk, State.QUEUED, dispatch_no, task_id))
+            released.append(LostFrame(frame.pk, frame.index, State.QUEUED, dispatch_no, task_id))
     return released
 
 
@@ -519,7 +520,8 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
         _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.DEAD,
                worker_host=worker_host, detail="attempt limit reached on redelivery")
         Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") + 1)
-        return Claim(False, "attempt limit reached")
+        frame.refresh_from_db()
+        return Claim(False, "attempt limit reached", frame, campaign)  # the task cleans up the lost attempts' files
     updated = Frame.objects.filter(pk=frame.pk, state=frame.state, dispatch_count=dispatch_no).update(
         state=State.RUNNING, attempts=attempts, worker_host=worker_host[:255], started_at=now,
         task_id=task_id or frame.task_id,
@@ -695,8 +697,14 @@ def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_co
 
 
 def error_kind(error: str) -> str:
-    """The failed-jobs grouping key: exception type and the first line of its message (``"Type: first line"``)."""
-    return (error or "").split("\n", 1)[0][:ERROR_KIND_CHARS]
+    """The failed-jobs grouping key: exception type and the first line of its message, numbers shown as ``#``.
+
+    ``LayoutError: cannot place bed ×6 … in a 2.3 × 2.5 m room`` and the same error in a 2.5 × 2.5 m room are one
+    kind; :func:`frames_of_error_kind` finds the frames of a kind with a database regex built from it.
+    """
+    import re
+
+    return re.sub(r"\d+(?:\.\d+)?", "#", (error or "").split("\n", 1)[0])[:ERROR_KIND_CHARS]
 
 
 ERROR_KIND_CHARS = 300
@@ -854,10 +862,14 @@ def retry_frame(*, campaign_id: int, frame_id: int) -> int:
 
 
 def _kind_filter(kind: str) -> Q:
-    query = Q(error=kind) | Q(error__startswith=kind + "\n")
-    if len(kind) >= ERROR_KIND_CHARS:  # a first line longer than the key: the key is its prefix
-        query |= Q(error__startswith=kind)
-    return query
+    """Errors whose first line is of this kind (see :func:`error_kind`): ``#`` matches a number."""
+    import re
+
+    pattern = "^" + "".join("[0-9]+([.][0-9]+)?" if part == "#" else re.escape(part)
+                            for part in re.split(r"(#)", kind) if part)
+    if len(kind) < ERROR_KIND_CHARS:  # a key shorter than the cap is the whole first line
+        pattern += "(\n|$)"
+    return Q(error__regex=pattern)
 
 
 def frames_of_error_kind(*, campaign: Campaign, kind: str, states: Sequence[str] = (State.DEAD,)):

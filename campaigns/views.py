@@ -1,18 +1,659 @@
-"""Thin views: read through selectors, render. The full dashboard is a later issue."""
+"""Dashboard views. Thin: resolve the object through the team permission helpers, read through selectors, write
+through services, render. Every page works without JavaScript; dashboard.js adds polling and charts.
+
+Permissions (teams.permissions): anonymous users are redirected to the login page by the middleware; rows of
+other teams are 404; viewers read; planners create, edit, start, pause, resume, cancel, retry, ignore, re-render
+and upload; admins delete.
+"""
 
 from __future__ import annotations
 
-from django.http import HttpRequest, HttpResponse
-from django.shortcuts import get_object_or_404, render
+import json
+import math
+import os
+import uuid
+from functools import lru_cache
+from pathlib import Path
+from typing import Any
 
-from campaigns import selectors
-from campaigns.models import Campaign
+from django.conf import settings
+from django.contrib import messages
+from django.core.paginator import Paginator
+from django.db.models import Q
+from django.http import (
+    FileResponse,
+    Http404,
+    HttpRequest,
+    HttpResponse,
+    HttpResponseNotAllowed,
+    JsonResponse,
+)
+from django.shortcuts import redirect, render
+from django.urls import reverse
+from django.views.decorators.cache import never_cache
+from django.views.decorators.http import require_GET, require_POST
+
+from campaigns import asset_files, selectors, services
+from campaigns.forms import AssetUploadForm, CampaignForm, CostBudgetForm
+from campaigns.models import Asset, Campaign, Frame
+from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user
+
+GALLERY_PAGE = 24
+FAILED_PAGE = 50
+THUMB_WIDTH_PX = 320
 
 
+def _campaign(request: HttpRequest, campaign_id: int, role: str = VIEWER) -> Campaign:
+    return get_for_user_or_404(Campaign.objects.select_related("team", "owner"), user=request.user, role=role,
+                               pk=campaign_id)
+
+
+def _roles(request: HttpRequest, campaign: Campaign) -> dict[str, bool]:
+    return {"can_plan": has_role(user=request.user, team=campaign.team_id, role=PLANNER),
+            "can_admin": has_role(user=request.user, team=campaign.team_id, role=ADMIN)}
+
+
+def _duration(seconds: float | None) -> str:
+    if seconds is None:
+        return "—"
+    seconds = max(0, int(round(seconds)))
+    if seconds < 90:
+        return f"{seconds} s"
+    if seconds < 5400:
+        return f"{round(seconds / 60)} min"
+    if seconds < 172800:
+        return f"{seconds / 3600:.1f} h"
+    return f"{seconds / 86400:.1f} days"
+
+
+# --- plotly.js, from the installed package -----------------------------------------------------------------------
+
+
+@lru_cache(maxsize=1)
+def _plotly_js() -> bytes:
+    from plotly.offline import get_plotlyjs
+
+    return get_plotlyjs().encode("utf-8")
+
+
+def plotly_version() -> str:
+    import plotly
+
+    return plotly.__version__
+
+
+@require_GET
+def plotly_js(request: HttpRequest, version: str) -> HttpResponse:
+    """plotly.js of the installed plotly package; the URL carries the version, so it may be cached for a year."""
+    if version != plotly_version():
+        raise Http404("another plotly version")
+    response = HttpResponse(_plotly_js(), content_type="text/javascript; charset=utf-8")
+    response["Cache-Control"] = "public, max-age=31536000, immutable"
+    return response
+
+
+# --- campaign list ---------------------------------------------------------------------------------------------
+
+
+@require_GET
 def campaign_list(request: HttpRequest) -> HttpResponse:
-    return render(request, "campaigns/list.html", {"campaigns": selectors.campaign_list()})
+    campaigns = scope_to_user(Campaign.objects.all(), user=request.user)
+    rows = selectors.campaign_rows(campaigns=campaigns)
+    for row in rows:
+        row["eta"] = _duration(row["eta_s"]) if row["eta_s"] is not None else None
+    from teams.permissions import teams_for
+
+    return render(request, "campaigns/list.html", {
+        "rows": rows, "can_create": teams_for(user=request.user, role=PLANNER).exists()})
 
 
+@never_cache
+@require_GET
+def campaign_list_live(request: HttpRequest) -> JsonResponse:
+    campaigns = scope_to_user(Campaign.objects.all(), user=request.user)
+    out = []
+    for row in selectors.campaign_rows(campaigns=campaigns):
+        c = row["campaign"]
+        out.append({"id": c.pk, "status": c.status, "status_label": c.get_status_display(),
+                    "progress_pct": row["progress_pct"], "spent": f"{row['spent']:.2f}",
+                    "spent_pct": round(row["spent_pct"], 1), "frames_done": c.frames_done,
+                    "eta": _duration(row["eta_s"]) if row["eta_s"] is not None else "—"})
+    return JsonResponse({"campaigns": out})
+
+
+# --- planner -----------------------------------------------------------------------------------------------------
+
+
+def _estimate(request: HttpRequest, form: CampaignForm) -> dict[str, Any] | None:
+    """The plan estimate for a valid form (nothing is saved), or None."""
+    if not form.is_valid():
+        return None
+    d = form.cleaned_data
+    history = scope_to_user(Campaign.objects.all(), user=request.user)
+    est = selectors.plan_estimate(
+        budget=d["budget"], targets={q.class_name: q.target_accepted for q in d["quotas"]},
+        cost_budget=d["cost_budget"], price_per_cpu_hour=d["price_per_cpu_hour"], setup_cost=d["setup_cost"],
+        manual_rate_per_hour=d["manual_labelling_rate_per_hour"], history=history)
+    return {
+        "frames": est.frames, "instances_per_frame": est.instances_per_frame, "cpu_hours": round(est.cpu_hours, 3),
+        "frame_cpu_s": round(est.frame_cpu_s, 3), "compute_cost": f"{est.compute_cost:.4f}",
+        "fixed_cost": f"{est.fixed_cost:.2f}", "total_cost": f"{est.total_cost:.2f}",
+        "cost_budget": f"{d['cost_budget']:.2f}", "within_budget": est.within_budget,
+        "fleet_time": _duration(est.wall_s_on_fleet) if est.wall_s_on_fleet is not None else None,
+        "live_slots": est.live_slots,
+        "cost_per_accepted": f"{est.cost_per_accepted:.4f}" if est.cost_per_accepted is not None else None,
+        "manual_cost_per_instance": f"{est.manual_cost_per_instance:.4f}",
+        "manual_total": f"{est.manual_total:.2f}", "source": est.source, "detail": est.detail,
+        "cheaper": (est.cost_per_accepted is not None and est.cost_per_accepted < est.manual_cost_per_instance),
+    }
+
+
+def _planner_page(request: HttpRequest, form: CampaignForm, *, campaign: Campaign | None,
+                  estimate: dict[str, Any] | None, status: int = 200) -> HttpResponse:
+    return render(request, "campaigns/plan.html", {
+        "form": form, "campaign": campaign, "estimate": estimate,
+        "estimate_url": reverse("campaigns:estimate"),
+    }, status=status)
+
+
+def campaign_create(request: HttpRequest) -> HttpResponse:
+    from teams.permissions import teams_for
+
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    if not teams_for(user=request.user, role=PLANNER).exists():
+        return render(request, "campaigns/no_team.html", status=403)
+    if request.method == "GET":
+        form = CampaignForm(user=request.user)
+        return _planner_page(request, form, campaign=None, estimate=None)
+    form = CampaignForm(request.POST, user=request.user)
+    estimate = _estimate(request, form)
+    if "preview" in request.POST or estimate is None:
+        return _planner_page(request, form, campaign=None, estimate=estimate,
+                             status=200 if estimate is not None or "preview" in request.POST else 400)
+    try:
+        campaign = services.create_campaign(owner=request.user, team=form.cleaned_data["team"],
+                                            **form.service_kwargs())
+    except services.CampaignError as exc:
+        form.add_service_error(exc)
+        return _planner_page(request, form, campaign=None, estimate=estimate, status=400)
+    messages.success(request, f"Campaign “{campaign.name}” saved as a draft. Start it when the plan looks right.")
+    return redirect("campaigns:detail", campaign_id=campaign.pk)
+
+
+def campaign_edit(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    if campaign.status != Campaign.Status.DRAFT:
+        budget_form = CostBudgetForm(request.POST or None, initial={"cost_budget": campaign.cost_budget})
+        if request.method == "POST":
+            if budget_form.is_valid():
+                services.set_cost_budget(campaign_id=campaign.pk, cost_budget=budget_form.cleaned_data["cost_budget"])
+                messages.success(request, f"Cost budget set to {budget_form.cleaned_data['cost_budget']}.")
+                return redirect("campaigns:detail", campaign_id=campaign.pk)
+            return render(request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form},
+                          status=400)
+        return render(request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form})
+    if request.method == "GET":
+        return _planner_page(request, CampaignForm(user=request.user, campaign=campaign), campaign=campaign,
+                             estimate=None)
+    form = CampaignForm(request.POST, user=request.user, campaign=campaign)
+    estimate = _estimate(request, form)
+    if "preview" in request.POST or estimate is None:
+        return _planner_page(request, form, campaign=campaign, estimate=estimate,
+                             status=200 if estimate is not None or "preview" in request.POST else 400)
+    try:
+        services.update_draft_campaign(campaign_id=campaign.pk, **form.service_kwargs())
+    except services.CampaignError as exc:
+        form.add_service_error(exc)
+        return _planner_page(request, form, campaign=campaign, estimate=estimate, status=400)
+    messages.success(request, "Plan saved.")
+    return redirect("campaigns:detail", campaign_id=campaign.pk)
+
+
+@never_cache
+@require_GET
+def estimate_json(request: HttpRequest) -> JsonResponse:
+    """The live estimate beside the planner form: the form's fields as query parameters; nothing is saved."""
+    form = CampaignForm(request.GET, user=request.user)
+    form.fields.pop("team", None)  # the estimate does not depend on the team
+    form.fields["name"].required = False
+    estimate = _estimate(request, form)
+    if estimate is None:
+        errors = {k: [str(e) for e in v] for k, v in form.errors.items()}
+        return JsonResponse({"ok": False, "errors": errors})
+    return JsonResponse({"ok": True, "estimate": estimate})
+
+
+# --- campaign page -------------------------------------------------------------------------------------------------
+
+
+@require_GET
 def campaign_detail(request: HttpRequest, campaign_id: int) -> HttpResponse:
-    campaign = get_object_or_404(Campaign, pk=campaign_id)
-    return render(request, "campaigns/detail.html", {"s": selectors.campaign_summary(campaign=campaign)})
+    campaign = _campaign(request, campaign_id)
+    live = selectors.campaign_live(campaign=campaign)
+    live["eta"] = _eta(live)
+    coverage = selectors.coverage_sample(campaign=campaign)
+    return render(request, "campaigns/detail.html", {
+        "c": campaign, "live": live, "eta": live["eta"],
+        "chart_data": {"live": live, "coverage": coverage},
+        "coverage": coverage, "plotly_url": reverse("campaigns:plotly", kwargs={"version": plotly_version()}),
+        "live_url": reverse("campaigns:live", kwargs={"campaign_id": campaign.pk}),
+        "budget_rows": _budget_summary(campaign), **_roles(request, campaign),
+    })
+
+
+def _eta(live: dict[str, Any]) -> str:
+    if live["status"] == Campaign.Status.COMPLETED:
+        return "done"
+    if live["status"] in (Campaign.Status.CANCELLED, Campaign.Status.DRAFT):
+        return "—"
+    return _duration(live["eta_s"]) if live["eta_s"] is not None else "—"
+
+
+def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
+    from workers.render.budget import FIELDS
+
+    rows = []
+    for f in FIELDS:
+        value = campaign.budget.get(f.section, {}).get(f.name)
+        text = f"{value[0]:g}–{value[1]:g}" if isinstance(value, list) else f"{value:g}"
+        rows.append({"section": f.section, "name": f.name.replace("_", " "), "value": text, "unit": f.unit,
+                     "help": f.help})
+    return rows
+
+
+@never_cache
+@require_GET
+def campaign_live(request: HttpRequest, campaign_id: int) -> JsonResponse:
+    campaign = _campaign(request, campaign_id)
+    live = selectors.campaign_live(campaign=campaign)
+    live["eta"] = _eta(live)
+    if request.GET.get("coverage"):
+        live["coverage"] = selectors.coverage_sample(campaign=campaign)
+    return JsonResponse(live)
+
+
+ACTIONS = {
+    "start": (services.start_campaign, "Campaign started; frames go to the fleet."),
+    "pause": (services.pause_campaign, "Campaign paused; frames already rendering will finish."),
+    "resume": (services.resume_campaign, "Campaign resumed."),
+    "cancel": (services.cancel_campaign, "Campaign cancelled."),
+}
+
+
+@require_POST
+def campaign_action(request: HttpRequest, campaign_id: int, action: str) -> HttpResponse:
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    if action not in ACTIONS:
+        raise Http404("no such action")
+    function, done = ACTIONS[action]
+    try:
+        function(campaign_id=campaign.pk)
+    except services.CampaignError as exc:
+        messages.error(request, str(exc))
+    else:
+        messages.success(request, done)
+    return redirect("campaigns:detail", campaign_id=campaign.pk)
+
+
+@require_POST
+def campaign_delete(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    campaign = _campaign(request, campaign_id, role=ADMIN)
+    if request.POST.get("confirm_name", "").strip() != campaign.name:
+        messages.error(request, "Type the campaign's name exactly to delete it.")
+        return redirect("campaigns:detail", campaign_id=campaign.pk)
+    try:
+        services.delete_campaign(campaign_id=campaign.pk)
+    except services.CampaignError as exc:
+        messages.error(request, str(exc))
+        return redirect("campaigns:detail", campaign_id=campaign.pk)
+    messages.success(request, f"Campaign “{campaign.name}” deleted with its frames.")
+    return redirect("campaigns:list")
+
+
+# --- failed jobs -----------------------------------------------------------------------------------------------------
+
+
+@require_GET
+def failed_jobs(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    campaign = _campaign(request, campaign_id)
+    groups = selectors.error_groups(campaign=campaign)
+    kind = request.GET.get("kind", "")
+    frames = selectors.failed_frames(campaign=campaign)
+    if kind:
+        frames = frames.filter(services._kind_filter(kind))
+    page = Paginator(frames.order_by("-started_at", "-index"), FAILED_PAGE).get_page(request.GET.get("page"))
+    rows = [{"frame": f, "kind": services.error_kind(f.error), "first_line": f.error.split("\n", 1)[0]} for f in page]
+    return render(request, "campaigns/failed.html", {
+        "c": campaign, "groups": groups, "kind": kind, "page": page, "rows": rows, **_roles(request, campaign)})
+
+
+
+@require_POST
+def failed_action(request: HttpRequest, campaign_id: int, action: str) -> HttpResponse:
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    kind = request.POST.get("kind")
+    frame_id = request.POST.get("frame_id", "")
+    back = reverse("campaigns:failed", kwargs={"campaign_id": campaign.pk})
+    if request.POST.get("back_kind"):
+        from urllib.parse import urlencode
+
+        back += "?" + urlencode({"kind": request.POST["back_kind"]})
+    if kind is None and not frame_id.isdigit():
+        messages.error(request, "Choose a frame or an error kind.")
+        return redirect(back)
+    try:
+        if action == "retry":
+            n = (services.retry_failed_of_kind(campaign_id=campaign.pk, kind=kind) if kind is not None
+                 else services.retry_frame(campaign_id=campaign.pk, frame_id=int(frame_id)))
+            verb = "sent back to the queue" if campaign.status == Campaign.Status.RUNNING else \
+                "set to retry when the campaign runs"
+            messages.success(request, f"{n} frame(s) {verb}." if n else "Nothing to retry: no dead frame matched.")
+        elif action == "ignore":
+            n = services.ignore_frame(campaign_id=campaign.pk, frame_id=int(frame_id or 0), kind=kind)
+            messages.success(request, f"{n} frame(s) hidden from this list." if n else "Nothing to ignore.")
+        else:
+            raise Http404("no such action")
+    except services.CampaignError as exc:
+        messages.error(request, str(exc))
+    return redirect(back)
+
+
+# --- frames ----------------------------------------------------------------------------------------------------------
+
+
+def _float_or_none(text: str | None, *, low: float, high: float) -> float | None:
+    try:
+        value = float(text) if text not in (None, "") else None
+    except ValueError:
+        return None
+    if value is None or not math.isfinite(value):
+        return None
+    return min(high, max(low, value))
+
+
+def _boxes(instances: list[dict[str, Any]], match: Q | None, *, class_name: str, accepted: str,
+           min_visible: float | None) -> list[dict[str, Any]]:
+    out = []
+    for inst in instances:
+        box = inst["bbox_xywh_px"]
+        matches = ((not class_name or inst["object_class__name"] == class_name)
+                   and (accepted != "accepted" or inst["accepted"]) and (accepted != "rejected" or not inst["accepted"])
+                   and (min_visible is None or inst["visible_fraction"] >= min_visible))
+        out.append({**inst, "box": box, "matches": matches,
+                    "reasons": ", ".join(inst["reject_reasons"] or [])})
+    return out
+
+
+@require_GET
+def frame_gallery(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    campaign = _campaign(request, campaign_id)
+    class_name = request.GET.get("class", "")
+    if class_name and not campaign.quotas.filter(object_class__name=class_name).exists():
+        class_name = ""
+    accepted = request.GET.get("accepted", "")
+    accepted = accepted if accepted in ("accepted", "rejected") else ""
+    min_visible = _float_or_none(request.GET.get("min_visible"), low=0.0, high=1.0)
+    frames = selectors.gallery_frames(campaign=campaign, class_name=class_name, accepted=accepted,
+                                      min_visible_fraction=min_visible)
+    page = Paginator(frames, GALLERY_PAGE).get_page(request.GET.get("page"))
+    instances = selectors.frame_instances(frame_ids=[f.pk for f in page])
+    match = selectors.instance_filter(class_name=class_name, accepted=accepted, min_visible_fraction=min_visible)
+    tiles = [{"frame": f, "boxes": _boxes(instances[f.pk], match, class_name=class_name, accepted=accepted,
+                                          min_visible=min_visible)} for f in page]
+    query = request.GET.copy()
+    query.pop("page", None)
+    return render(request, "campaigns/gallery.html", {
+        "c": campaign, "page": page, "tiles": tiles, "class_name": class_name, "accepted": accepted,
+        "min_visible": "" if min_visible is None else f"{min_visible:g}", "query": query.urlencode(),
+        "classes": list(campaign.quotas.order_by("object_class__name").values_list("object_class__name", flat=True)),
+        "filtered": bool(class_name or accepted or min_visible is not None),
+        "label_size": round(campaign.width_px / 20, 2), **_roles(request, campaign),
+    })
+
+
+def _frame(campaign: Campaign, index: int) -> Frame:
+    frame = Frame.objects.filter(campaign=campaign, index=index).first()
+    if frame is None:
+        raise Http404("no such frame")
+    return frame
+
+
+def _frame_dir(frame: Frame) -> Path:
+    root = Path(settings.MEDIA_ROOT).resolve()
+    folder = (root / frame.output_dir).resolve() if frame.output_dir else None
+    if folder is None or root not in folder.parents or not folder.is_dir():
+        raise Http404("the frame has no files")
+    return folder
+
+
+def _read_json(path: Path) -> dict[str, Any]:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+
+
+@require_GET
+def frame_detail(request: HttpRequest, campaign_id: int, index: int) -> HttpResponse:
+    campaign = _campaign(request, campaign_id)
+    frame = _frame(campaign, index)
+    instances = selectors.frame_instances(frame_ids=[frame.pk])[frame.pk]
+    boxes = _boxes(instances, None, class_name="", accepted="", min_visible=None)
+    spec, labels = {}, {}
+    has_files = False
+    if frame.state == Frame.State.DONE and frame.output_dir:
+        try:
+            folder = _frame_dir(frame)
+        except Http404:
+            folder = None
+        if folder is not None:
+            has_files = (folder / "rgb.png").is_file()
+            spec = _read_json(folder / "scene.json")
+            labels = _read_json(folder / "labels.json")
+    prev_index, next_index = selectors.frame_neighbours(frame=frame)
+    render_settings = spec.get("render") or campaign.budget["render"]
+    return render(request, "campaigns/frame.html", {
+        "c": campaign, "frame": frame, "boxes": boxes, "spec": spec, "has_files": has_files,
+        "camera": spec.get("camera", {}), "lights": spec.get("lights", []), "room": spec.get("room", {}),
+        "exposure": labels.get("exposure", {}), "variant": labels.get("variant", ""),
+        "width_px": render_settings["width_px"], "height_px": render_settings["height_px"],
+        "prev_index": prev_index, "next_index": next_index, "timings": frame.timings_s or {},
+        "label_size": round(render_settings["width_px"] / 48, 2),
+        **_roles(request, campaign),
+    })
+
+
+FRAME_FILES = {"rgb.png", "thumb.jpg", "mask.png", "depth.png", "scene.json", "labels.json"}
+
+
+def _write_atomic_image(path: Path, image: Any, params: list[int] | None = None) -> None:
+    import cv2
+
+    tmp = path.with_name(f".{path.stem}.{os.getpid()}.{uuid.uuid4().hex[:6]}{path.suffix}")
+    if not cv2.imwrite(str(tmp), image, params or []):
+        raise Http404("could not write the derived image")
+    os.replace(tmp, path)
+
+
+def _derived(folder: Path, name: str) -> Path:
+    """thumb.jpg, mask.png and depth.png are made once from the frame's files and cached next to them."""
+    import cv2
+    import numpy as np
+
+    target = folder / f"view-{name}"
+    if target.is_file():
+        return target
+    if name == "thumb.jpg":
+        rgb = cv2.imread(str(folder / "rgb.png"), cv2.IMREAD_COLOR)
+        if rgb is None:
+            raise Http404("no image")
+        h, w = rgb.shape[:2]
+        if w > THUMB_WIDTH_PX:
+            rgb = cv2.resize(rgb, (THUMB_WIDTH_PX, round(h * THUMB_WIDTH_PX / w)), interpolation=cv2.INTER_AREA)
+        _write_atomic_image(target, rgb, [cv2.IMWRITE_JPEG_QUALITY, 85])
+    elif name == "mask.png":
+        ids = cv2.imread(str(folder / "instances.png"), cv2.IMREAD_UNCHANGED)
+        if ids is None:
+            raise Http404("no instance image")
+        ids = ids.astype(np.int64)
+        # A fixed golden-angle hue per instance id: neighbouring ids get distant colours; 0 (background) is clear.
+        hue = ((ids * 137.508) % 360 / 2).astype(np.uint8)
+        hsv = np.stack([hue, np.full_like(hue, 200), np.full_like(hue, 255)], axis=-1)
+        bgr = cv2.cvtColor(hsv, cv2.COLOR_HSV2BGR)
+        alpha = np.where(ids > 0, 255, 0).astype(np.uint8)
+        _write_atomic_image(target, np.dstack([bgr, alpha]))
+    elif name == "depth.png":
+        try:
+            depth = np.load(folder / "depth.npy", allow_pickle=False)
+        except (OSError, ValueError) as exc:
+            raise Http404("no depth") from exc
+        hit = depth > 0
+        scaled = np.zeros(depth.shape, np.uint8)
+        if hit.any():
+            near, far = float(depth[hit].min()), float(depth[hit].max())
+            scaled[hit] = (255 - np.clip((depth[hit] - near) / max(far - near, 1e-6), 0, 1) * 235).astype(np.uint8)
+        colour = cv2.applyColorMap(scaled, cv2.COLORMAP_VIRIDIS)
+        colour[~hit] = (40, 33, 31)  # no hit: our ink colour
+        _write_atomic_image(target, colour)
+    else:
+        raise Http404("no such view")
+    return target
+
+
+@require_GET
+def frame_file(request: HttpRequest, campaign_id: int, index: int, name: str) -> FileResponse:
+    campaign = _campaign(request, campaign_id)
+    if name not in FRAME_FILES:
+        raise Http404("no such file")
+    folder = _frame_dir(_frame(campaign, index))
+    path = _derived(folder, name) if name in ("thumb.jpg", "mask.png", "depth.png") else folder / name
+    if not path.is_file():
+        raise Http404("no such file")
+    response = FileResponse(open(path, "rb"))
+    response["Cache-Control"] = "private, max-age=3600"
+    return response
+
+
+@require_POST
+def frame_rerender(request: HttpRequest, campaign_id: int, index: int) -> HttpResponse:
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    frame = _frame(campaign, index)
+    try:
+        new = services.rerender_frame(campaign_id=campaign.pk, frame_id=frame.pk)
+    except services.CampaignError as exc:
+        messages.error(request, str(exc))
+        return redirect("campaigns:frame", campaign_id=campaign.pk, index=frame.index)
+    messages.success(request, f"Frame {new.index} queued: the same layout, lighting and view as frame {frame.index}.")
+    return redirect("campaigns:frame", campaign_id=campaign.pk, index=new.index)
+
+
+# --- asset library -----------------------------------------------------------------------------------------------------
+
+
+def _asset_rows(request: HttpRequest) -> list[dict[str, Any]]:
+    from workers.render.assets import HANDBOOK_RANGES
+
+    rows = selectors.asset_library(user=request.user)
+    for row in rows:
+        a = row["asset"]
+        info = asset_files.asset_info(a.pk)
+        row["info"] = info
+        row["has_preview"] = asset_files.preview_path(a.pk).is_file()
+        extents = info.get("extents_m")
+        row["dimensions"] = " × ".join(f"{v:.2f}" for v in extents) + " m" if extents else None
+        ranges = HANDBOOK_RANGES.get(a.object_class.name, {}) if a.kind == Asset.Kind.PROCEDURAL else {}
+        row["ranges"] = [f"{k.removesuffix('_m').replace('_', ' ')} {r.low:g}–{r.high:g} m"
+                         for k, r in ranges.items() if k.endswith("_m")][:3]
+    return rows
+
+
+def asset_library(request: HttpRequest) -> HttpResponse:
+    from teams.permissions import teams_for
+
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    can_upload = teams_for(user=request.user, role=PLANNER).exists()
+    form = AssetUploadForm(user=request.user)
+    status = 200
+    if request.method == "POST":
+        if not can_upload:
+            from django.core.exceptions import PermissionDenied
+
+            raise PermissionDenied("uploading needs the planner role in a team")
+        form = AssetUploadForm(request.POST, request.FILES, user=request.user)
+        asset = _upload(request, form)
+        if asset is not None:
+            messages.success(request, f"“{asset.name}” added to the library; its preview renders on the fleet.")
+            return redirect("campaigns:assets")
+        status = 400
+    return render(request, "campaigns/assets.html", {"rows": _asset_rows(request), "form": form,
+                                                     "can_upload": can_upload,
+                                                     "max_upload_mib": asset_files.MAX_UPLOAD_BYTES // 2**20},
+                  status=status)
+
+
+def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
+    """Validate the upload fully (content sniffing, size, a limited parse with scale checks); nothing is kept on error."""
+    if not form.is_valid():
+        return None
+    upload = form.cleaned_data["mesh"]
+    if upload.size > asset_files.MAX_UPLOAD_BYTES:
+        form.add_error("mesh", f"The file is {upload.size / 2**20:.1f} MiB; the limit is "
+                               f"{asset_files.MAX_UPLOAD_BYTES // 2**20} MiB.")
+        return None
+    if upload.size == 0:
+        form.add_error("mesh", "The file is empty.")
+        return None
+    head = b""
+    for chunk in upload.chunks(chunk_size=4096):
+        head = chunk[:4096]
+        break
+    kind = asset_files.sniff_mesh_format(head, size_bytes=upload.size)
+    if kind is None:
+        form.add_error("mesh", "This is not a mesh file we can read: its content is not OBJ, PLY, STL or GLB "
+                               "(whatever its name says).")
+        return None
+    folder = Path(settings.MEDIA_ROOT) / "assets" / "meshes"
+    folder.mkdir(parents=True, exist_ok=True)
+    stored = folder / f"{uuid.uuid4().hex}.{kind}"
+    with open(stored, "wb") as out:
+        for chunk in upload.chunks():
+            out.write(chunk)
+    try:
+        info = asset_files.check_mesh_file(path=stored, unit=form.cleaned_data["unit"])
+        asset = services.upload_asset(
+            user=request.user, team=form.cleaned_data["team"], object_class_name=form.cleaned_data["object_class"].name,
+            name=form.cleaned_data["name"], mesh_path=str(stored.relative_to(settings.MEDIA_ROOT)),
+            original_name=upload.name, unit=form.cleaned_data["unit"],
+            creation_cost=form.cleaned_data["creation_cost"])
+    except asset_files.UploadError as exc:
+        stored.unlink(missing_ok=True)
+        form.add_error("mesh", str(exc)[:1].upper() + str(exc)[1:])
+        return None
+    except services.CampaignError as exc:
+        stored.unlink(missing_ok=True)
+        key = str(exc).split(":", 1)[0]
+        form.add_error(key if key in form.fields else None, str(exc).split(":", 1)[-1].strip())
+        return None
+    asset_files.write_asset_info(asset.pk, {**info, "format": kind, "original_name": upload.name[:200]})
+    asset_files.request_preview(asset_pk=asset.pk)
+    return asset
+
+
+@require_GET
+def asset_preview(request: HttpRequest, asset_id: int) -> FileResponse:
+    from teams.permissions import teams_for
+
+    asset = Asset.objects.filter(Q(team__isnull=True) | Q(team__in=teams_for(user=request.user)), pk=asset_id).first()
+    if asset is None:
+        raise Http404("no such asset")
+    path = asset_files.preview_path(asset.pk)
+    if not path.is_file():
+        raise Http404("preview pending")
+    response = FileResponse(open(path, "rb"), content_type="image/png")
+    response["Cache-Control"] = "private, max-age=600"
+    return response
+

@@ -142,7 +142,17 @@ if CELERY_BROKER_URL.startswith("filesystem://"):
     }
     CELERY_RESULT_BACKEND = os.environ.get("CELERY_RESULT_BACKEND", "") or f"file://{BROKER_DIR / 'results'}"
 else:
-    CELERY_BROKER_TRANSPORT_OPTIONS = {"visibility_timeout": 3600}
+    # Redis keeps an unacked message (acks_late) for this long before another worker gets it again: longer
+    # than the slowest frame and the longest retry countdown (5 min), or a frame still rendering, or a retry
+    # waiting for its ETA, is delivered twice. Tests shorten it to see redelivery after kill -9 within seconds.
+    _visibility_timeout_s = float(os.environ.get("EVENFRAME_BROKER_VISIBILITY_TIMEOUT_S", "3600"))
+    CELERY_BROKER_TRANSPORT_OPTIONS = {
+        "visibility_timeout": _visibility_timeout_s,
+        # kombu scans for expired unacked messages every interval × throttle seconds (default 100 s);
+        # with a short timeout scan at about its own pace.
+        "unacked_restore_interval": max(1, min(10, int(_visibility_timeout_s // 2) or 1)),
+        "unacked_restore_throttle": 1 if _visibility_timeout_s < 600 else 10,
+    }
     CELERY_RESULT_BACKEND = os.environ.get("CELERY_RESULT_BACKEND", "") or CELERY_BROKER_URL
 CELERY_TASK_ACKS_LATE = True
 CELERY_TASK_REJECT_ON_WORKER_LOST = True
@@ -158,6 +168,14 @@ CELERY_TASK_DEFAULT_QUEUE = "evenframe"
 # Seconds since its last heartbeat after which a worker is no longer live.
 WORKER_HEARTBEAT_S = float(os.environ.get("EVENFRAME_WORKER_HEARTBEAT_S", "5"))
 WORKER_LIVE_WINDOW_S = float(os.environ.get("EVENFRAME_WORKER_LIVE_WINDOW_S", "20"))
+# Every live worker's heartbeat thread runs the recovery sweep this often (0 = never): frames running on a dead
+# worker go back on the queue, queued frames whose message was lost are sent again (campaigns.scheduler.sweep).
+WORKER_SWEEP_S = float(os.environ.get("EVENFRAME_WORKER_SWEEP_S", "15"))
+# A queued frame waiting this long while workers are live lost its message (broker restart, a dead consumer's
+# prefetch); it is sent again under a new dispatch number. Queued frames wait about one frame, so minutes is safe.
+STALE_QUEUED_S = float(os.environ.get("EVENFRAME_STALE_QUEUED_S", "900"))
+# How long a worker keeps retrying to record a rendered frame while the database is unreachable.
+DATABASE_RETRY_S = float(os.environ.get("EVENFRAME_DATABASE_RETRY_S", "300"))
 
 # --- static, i18n ----------------------------------------------------------
 STATIC_URL = "/static/"

@@ -8,7 +8,8 @@ PY=.venv/bin/python
 export EVENFRAME_DEBUG=${EVENFRAME_DEBUG:-1}
 HOST=${EVENFRAME_DEMO_HOST:-127.0.0.1}
 PORT=${EVENFRAME_DEMO_PORT:-8000}
-mkdir -p data
+LOGS=${EVENFRAME_DATA_DIR:-data}
+mkdir -p "$LOGS"
 $PY manage.py migrate --noinput >/dev/null
 $PY manage.py demo_user
 $PY manage.py seed_demo
@@ -27,13 +28,13 @@ stop() {
 }
 trap stop INT TERM EXIT
 
-setsid $PY manage.py runserver --noreload "$HOST:$PORT" > data/demo-web.log 2>&1 &
+setsid $PY manage.py runserver --noreload "$HOST:$PORT" > "$LOGS/demo-web.log" 2>&1 &
 pids+=($!)
-setsid $PY manage.py render_worker --concurrency 1 > data/demo-worker.log 2>&1 &
+setsid $PY manage.py render_worker --concurrency 1 > "$LOGS/demo-worker.log" 2>&1 &
 pids+=($!)
 
 if ! $PY manage.py healthcheck --wait 180 --url "http://$HOST:$PORT/login/"; then
-  echo "the demo did not become healthy; see data/demo-web.log and data/demo-worker.log" >&2
+  echo "the demo did not become healthy; see $LOGS/demo-web.log and $LOGS/demo-worker.log" >&2
   exit 1
 fi
 echo "Evenframe is up in $(( $(date +%s) - started )) s: http://$HOST:$PORT/  (Ctrl-C stops it)"

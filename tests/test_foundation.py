@@ -96,17 +96,36 @@ def test_login_page_is_public(client):
 
 
 @pytest.mark.django_db
-def test_media_is_behind_login_and_refuses_traversal(client, django_user_model, tmp_path, settings):
+def test_media_is_behind_login_team_scoped_and_refuses_traversal(client, django_user_model, tmp_path, settings):
+    from campaigns import services
+    from teams.models import Membership, Team
+
     settings.MEDIA_ROOT = tmp_path / "media"
-    (tmp_path / "media").mkdir()
-    (tmp_path / "media" / "a.txt").write_text("frame")
+    services.ensure_object_class(name="chair")
+    team, other = Team.objects.create(name="Ours"), Team.objects.create(name="Theirs")
+    member = django_user_model.objects.create_user("ana", password="pw-123-long")
+    outsider = django_user_model.objects.create_user("oz", password="pw-123-long")
+    Membership.objects.create(team=team, user=member, role="viewer")
+    Membership.objects.create(team=other, user=outsider, role="admin")
+    planner = django_user_model.objects.create_user("pia", password="pw-123-long")
+    Membership.objects.create(team=team, user=planner, role="planner")
+    campaign = services.create_campaign(owner=planner, team=team, name="c", cost_budget=10, price_per_cpu_hour=1,
+                                        quotas=[services.QuotaInput(class_name="chair", target_accepted=1)])
+    frame_dir = tmp_path / "media" / "campaigns" / str(campaign.pk) / "frames" / "0"
+    frame_dir.mkdir(parents=True)
+    (frame_dir / "rgb.png").write_bytes(b"frame")
+    (tmp_path / "media" / "stray.txt").write_text("stray")
     (tmp_path / "secret.txt").write_text("secret")
-    assert client.get("/media/a.txt").status_code == 302
-    user = django_user_model.objects.create_user("ana", password="pw-123-long")
-    client.force_login(user)
-    assert client.get("/media/a.txt").status_code == 200
+    url = f"/media/campaigns/{campaign.pk}/frames/0/rgb.png"
+    assert client.get(url).status_code == 302  # login first
+    client.force_login(outsider)
+    assert client.get(url).status_code == 404  # another team's frame: not even its existence
+    client.force_login(member)
+    assert client.get(url).status_code == 200
+    assert client.get("/media/stray.txt").status_code == 404  # outside any team's folders
     assert client.get("/media/../secret.txt").status_code == 404
     assert client.get("/media/%2e%2e/secret.txt").status_code == 404
+    assert client.get(f"/media/campaigns/{campaign.pk}/../../../secret.txt").status_code == 404
 
 
 @pytest.mark.django_db

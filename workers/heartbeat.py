@@ -10,6 +10,7 @@ import logging
 import os
 import socket
 import threading
+import time
 
 from celery import signals
 from django.conf import settings
@@ -41,6 +42,8 @@ def _beat(hostname: str, concurrency: int) -> None:
         "stopped_at": None,
     }
     first = True
+    healthy_since: float | None = None
+    last_sweep = time.monotonic()
     while not _stop.is_set():
         try:
             close_old_connections()
@@ -51,10 +54,31 @@ def _beat(hostname: str, concurrency: int) -> None:
                 first = False
             else:
                 WorkerHeartbeat.objects.filter(hostname=hostname).update(last_seen=timezone.now(), stopped_at=None)
+            healthy_since = healthy_since if healthy_since is not None else time.monotonic()
         except Exception:  # noqa: BLE001 - a database blip must not kill the worker; retry next beat
             log.warning("heartbeat for %s failed; retrying", hostname, exc_info=True)
             first = True
+            healthy_since = None
+        # The recovery sweep needs no beat process: every live worker runs it. Only after this worker's own
+        # beats have gone through for a whole live window: after a database outage every heartbeat is old, and
+        # a worker that came back first must not take the running frames of workers that are about to beat.
+        now = time.monotonic()
+        if (settings.WORKER_SWEEP_S > 0 and now - last_sweep >= settings.WORKER_SWEEP_S
+                and healthy_since is not None and now - healthy_since >= settings.WORKER_LIVE_WINDOW_S):
+            last_sweep = now
+            _sweep()
         _stop.wait(settings.WORKER_HEARTBEAT_S)
+
+
+def _sweep() -> None:
+    from campaigns import scheduler
+
+    try:
+        counts = scheduler.sweep()
+        if any(counts[k] for k in ("requeued", "dead", "revoked")):
+            log.warning("recovery sweep: %s", counts)
+    except Exception:  # noqa: BLE001 - the next sweep tries again
+        log.warning("recovery sweep failed; retrying at the next one", exc_info=True)
 
 
 def _mark_stopped(hostname: str) -> None:

@@ -4,15 +4,18 @@ from __future__ import annotations
 
 import logging
 import os
+import shutil
 import socket
 import time
 import traceback as traceback_module
+from collections.abc import Callable
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 from celery import shared_task
 
 log = logging.getLogger("evenframe.workers")
+T = TypeVar("T")
 
 
 @shared_task(name="evenframe.ping")
@@ -51,40 +54,112 @@ def _is_permanent(exc: BaseException) -> bool:
     return isinstance(exc, (LayoutError, BudgetError, SpecError, MeshError))
 
 
+def with_database_retry(call: Callable[[], T], *, what: str) -> T:
+    """Run a database call, retrying through an outage (restart, failover, dropped connections).
+
+    Each service call is one transaction and conditional on the frame's state, so running it again after a
+    lost connection is safe: a result whose commit went through before the connection dropped is found done
+    and not counted again. Gives up after EVENFRAME_DATABASE_RETRY_S seconds.
+    """
+    from django.conf import settings
+    from django.db import InterfaceError, OperationalError, connection
+
+    deadline = time.monotonic() + settings.DATABASE_RETRY_S
+    pause_s = 0.5
+    while True:
+        try:
+            return call()
+        except (OperationalError, InterfaceError) as exc:
+            if time.monotonic() + pause_s > deadline:
+                raise
+            log.warning("%s: database unavailable (%s); retrying in %.1f s", what, exc, pause_s)
+            try:
+                connection.close()  # a broken connection is not reused; the next call opens a new one
+            except Exception:  # noqa: BLE001 - closing a dead connection may raise too
+                pass
+            time.sleep(pause_s)
+            pause_s = min(5.0, pause_s * 2)
+
+
+def publish_frame_dir(*, partial: Path, final: Path) -> None:
+    """Move a completely written frame folder into place by renames (same file system, so each is atomic).
+
+    A folder already there (left by an earlier attempt whose result was never recorded) is moved aside first
+    and deleted afterwards, so readers see the old complete folder or the new complete one.
+    """
+    if final.exists():
+        old = final.with_name(f".{final.name}.old-{os.getpid()}-{time.monotonic_ns()}")
+        os.rename(final, old)
+        os.rename(partial, final)
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.rename(partial, final)
+    # Partial folders of earlier attempts of this frame whose worker was killed mid-render (nobody else cleans
+    # them); a duplicate attempt still rendering loses its folder and records a stale failure, which is harmless.
+    remove_partial_folders(final)
+
+
+def remove_partial_folders(final: Path) -> None:
+    """Remove what killed attempts of a frame left beside its folder (called once the frame has settled)."""
+    for leftover in final.parent.glob(f".{final.name}.partial-*"):
+        shutil.rmtree(leftover, ignore_errors=True)
+
+
 @shared_task(name="evenframe.render_frame", bind=True, acks_late=True, ignore_result=True)
 def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None = None) -> dict:
-    """Render one campaign frame. Safe to deliver twice: the claim and the result are conditional on the frame."""
+    """Render one campaign frame. Safe to deliver twice: the claim and the result are conditional on the frame.
+
+    Files are written into a hidden partial folder beside the frame's folder and renamed into place only after
+    the render succeeded; the result is recorded only after that, so a failure (disk full, read-only media,
+    a crash) never leaves a counted frame with missing or half-written files.
+    """
     from campaigns import planner, scheduler, services
+    from workers import faults
 
     host = getattr(self.request, "hostname", None) or socket.gethostname()
-    claim = services.claim_frame(frame_id=frame_id, dispatch_no=dispatch_no, worker_host=host,
-                                 task_id=getattr(self.request, "id", None) or "", campaign_uid=campaign_uid)
+    claim = with_database_retry(lambda: services.claim_frame(
+        frame_id=frame_id, dispatch_no=dispatch_no, worker_host=host,
+        task_id=getattr(self.request, "id", None) or "", campaign_uid=campaign_uid), what=f"frame {frame_id} claim")
     if not claim.ok:
         log.info("frame %s (dispatch %s) not rendered: %s", frame_id, dispatch_no, claim.reason)
+        if claim.frame is not None and claim.frame.state == "dead":
+            remove_partial_folders(frame_output_dir(campaign_id=claim.frame.campaign_id, index=claim.frame.index)[0])
         return {"frame_id": frame_id, "skipped": claim.reason}
     frame, campaign = claim.frame, claim.campaign
     seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index, layout_index=frame.layout_index,
                                 lighting_index=frame.lighting_index, view_index=frame.view_index)
     out_dir, relative = frame_output_dir(campaign_id=campaign.pk, index=frame.index)
+    partial = out_dir.with_name(f".{out_dir.name}.partial-d{dispatch_no}-a{frame.attempts}-{os.getpid()}")
     # process_time counts every thread of this process, Dr.Jit's render threads included.
     cpu_start, wall_start = time.process_time(), time.perf_counter()
     try:
+        shutil.rmtree(partial, ignore_errors=True)
+        partial.mkdir(parents=True)
+        faults.before_render(campaign_id=campaign.pk, index=frame.index, attempt=frame.attempts)
         result = render_frame_files(budget=campaign.budget, composition=frame.composition, seeds=seeds,
-                                    out_dir=out_dir)
+                                    out_dir=partial)
+        publish_frame_dir(partial=partial, final=out_dir)
     except Exception as exc:  # noqa: BLE001 - every failure is recorded on the frame, then retried or dead
         cpu_s, wall_s = time.process_time() - cpu_start, time.perf_counter() - wall_start
-        state = services.record_failure(
-            frame_id=frame_id, dispatch_no=dispatch_no, error=f"{type(exc).__name__}: {exc}",
-            traceback=traceback_module.format_exc(), cpu_s=cpu_s, wall_s=wall_s, permanent=_is_permanent(exc),
-            worker_host=host,
-        )
+        shutil.rmtree(partial, ignore_errors=True)
+        error, trace, permanent = f"{type(exc).__name__}: {exc}", traceback_module.format_exc(), _is_permanent(exc)
+        state = with_database_retry(lambda: services.record_failure(
+            frame_id=frame_id, dispatch_no=dispatch_no, error=error, traceback=trace, cpu_s=cpu_s, wall_s=wall_s,
+            permanent=permanent, worker_host=host), what=f"frame {frame_id}")
         log.warning("frame %s failed (%s): %s", frame_id, state, exc)
-        scheduler.dispatch(campaign_id=campaign.pk)
+        _dispatch_after(scheduler, campaign.pk)
         return {"frame_id": frame_id, "state": state, "error": str(exc)}
     cpu_s, wall_s = time.process_time() - cpu_start, time.perf_counter() - wall_start
-    recorded = services.record_result(
+    recorded = with_database_retry(lambda: services.record_result(
         frame_id=frame_id, dispatch_no=dispatch_no, labels=result.labels.get("instances", []), cpu_s=cpu_s,
-        wall_s=wall_s, timings_s=result.timings_s, output_dir=relative, worker_host=host,
-    )
-    scheduler.dispatch(campaign_id=campaign.pk)
+        wall_s=wall_s, timings_s=result.timings_s, output_dir=relative, worker_host=host), what=f"frame {frame_id}")
+    _dispatch_after(scheduler, campaign.pk)
     return {"frame_id": frame_id, "recorded": recorded, "cpu_s": round(cpu_s, 3), "wall_s": round(wall_s, 3)}
+
+
+def _dispatch_after(scheduler: Any, campaign_id: int) -> None:
+    """Top up after a frame; a failure here (database or broker down) is left to the heartbeat sweep."""
+    try:
+        scheduler.dispatch(campaign_id=campaign_id)
+    except Exception:  # noqa: BLE001 - the frame's own outcome is recorded; topping up can wait for the sweep
+        log.warning("dispatch after campaign %s's frame failed; the next sweep tops up", campaign_id, exc_info=True)

@@ -139,8 +139,12 @@ def _write_png(path: Path, image: np.ndarray) -> None:
     if image.ndim == 3:
         image = np.ascontiguousarray(image[..., ::-1])  # RGB → BGR for OpenCV
         params += [cv2.IMWRITE_PNG_STRATEGY, cv2.IMWRITE_PNG_STRATEGY_HUFFMAN_ONLY]
-    if not cv2.imwrite(str(path), image, params):
-        raise OSError(f"could not write {path}")
+    # Encode in memory and write with Python: cv2.imwrite only returns False, which would hide the reason
+    # (no space left on device, read-only file system) that the frame's error must show.
+    ok, encoded = cv2.imencode(".png", image, params)
+    if not ok:
+        raise ValueError(f"could not encode {path.name} as PNG")
+    Path(path).write_bytes(encoded.tobytes())
 
 
 def _dump_json(value: Any) -> str:

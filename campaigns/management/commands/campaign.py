@@ -72,7 +72,7 @@ class Command(BaseCommand):
         budget = sub.add_parser("set-budget", help="Change a campaign's cost budget.")
         budget.add_argument("campaign")
         budget.add_argument("cost_budget")
-        sub.add_parser("tick", help="Top up every running campaign (dispatch, resend due retries).")
+        sub.add_parser("tick", help="Take back lost frames, top up running campaigns, resend due retries.")
         sub.add_parser("list", help="List campaigns.")
 
     def handle(self, *args, **options) -> None:
@@ -81,7 +81,9 @@ class Command(BaseCommand):
             if action == "create":
                 return self._create(options)
             if action == "tick":
-                self.stdout.write(f"{scheduler.dispatch()} message(s) sent")
+                counts = scheduler.sweep()  # also takes back frames running on dead workers
+                self.stdout.write(f"{counts['sent']} message(s) sent; lost frames: {counts['requeued']} requeued, "
+                                  f"{counts['dead']} dead, {counts['revoked']} revoked")
                 return
             if action == "list":
                 for c in selectors.campaign_list():

@@ -1,0 +1,234 @@
+"""Uploaded meshes and asset previews: format sniffing, a resource-limited parse, and the 128×128 preview render.
+
+Upload validation never parses a user's file in the web process: :func:`check_mesh_file` runs
+``workers.render.meshes.load_user_mesh`` in a child process with a memory cap (``RLIMIT_AS``), a CPU-time cap and
+a wall-clock timeout, and reads back its one-line verdict. The preview (:func:`render_asset_preview`) runs in a
+render worker (task ``evenframe.asset_preview`` in :mod:`campaigns.tasks`) or in ``manage.py asset_previews``;
+the library shows "preview pending" until the file exists.
+
+Files of asset ``pk`` live under ``MEDIA_ROOT/assets/<pk>/``: ``info.json`` (extents, faces, unit) and
+``preview.png``.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import struct
+import subprocess
+import sys
+from pathlib import Path
+from typing import Any
+
+MAX_UPLOAD_BYTES = 32 * 1024 * 1024
+CHECK_TIMEOUT_S = 30.0
+CHECK_MEMORY_BYTES = 2 * 1024**3
+CHECK_CPU_S = 30
+PREVIEW_PX = 128
+PREVIEW_SPP = 16
+ROOT = Path(__file__).resolve().parent.parent
+
+
+class UploadError(ValueError):
+    """An uploaded file cannot become an asset; the message is for the user."""
+
+
+def sniff_mesh_format(head: bytes, *, size_bytes: int) -> str | None:
+    """The mesh format from the file's first bytes (not its name): ``glb``, ``ply``, ``stl``, ``obj`` or None.
+
+    References
+    ----------
+    glTF 2.0 specification §4.4 (GLB header magic ``glTF``, version 2); the PLY header (``ply`` then ``format``);
+    binary STL (80-byte header, uint32 triangle count, 50 bytes per triangle) and ASCII STL (``solid``);
+    Wavefront OBJ (text lines of ``v``, ``vt``, ``vn``, ``f``, ``o``, ``g``, ``#``, ``mtllib``, ``usemtl``, ``s``).
+    """
+    if head[:4] == b"glTF" and len(head) >= 8 and struct.unpack("<I", head[4:8])[0] == 2:
+        return "glb"
+    if head[:4] in (b"ply\n", b"ply\r"):
+        return "ply"
+    if len(head) >= 84 and size_bytes == 84 + 50 * struct.unpack("<I", head[80:84])[0]:
+        return "stl"
+    try:
+        text = head.decode("utf-8")
+    except UnicodeDecodeError:
+        text = head[:-4].decode("utf-8", errors="strict") if _decodes(head[:-4]) else None
+    if text is None or "\x00" in text:
+        return None
+    if text.lstrip().lower().startswith("solid") and "facet" in text:
+        return "stl"
+    lines = [ln.strip() for ln in text.splitlines()[:-1] if ln.strip()]  # the last line may be cut off
+    keywords = ("v ", "vt ", "vn ", "f ", "o ", "g ", "#", "mtllib", "usemtl", "s ", "l ", "vp ")
+    if lines and all(ln.startswith(keywords) for ln in lines) and any(ln.startswith("v ") for ln in lines):
+        return "obj"
+    return None
+
+
+def _decodes(data: bytes) -> bool:
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return True
+
+
+_CHECK_SCRIPT = r"""
+import json, resource, sys
+memory, cpu = int(sys.argv[3]), int(sys.argv[4])
+resource.setrlimit(resource.RLIMIT_AS, (memory, memory))
+resource.setrlimit(resource.RLIMIT_CPU, (cpu, cpu))
+from workers.render.meshes import MeshError, guess_unit, load_user_mesh
+try:
+    mesh = load_user_mesh(sys.argv[1], unit=sys.argv[2])
+except MeshError as exc:
+    print(json.dumps({"ok": False, "error": str(exc)}))
+except MemoryError:
+    print(json.dumps({"ok": False, "error": "the mesh needs more memory than an upload may use"}))
+else:
+    extents = [round(float(v), 4) for v in mesh.extents]
+    print(json.dumps({"ok": True, "extents_m": extents, "faces": int(len(mesh.faces)),
+                      "vertices": int(len(mesh.vertices))}))
+"""
+
+
+def check_mesh_file(*, path: Path, unit: str) -> dict[str, Any]:
+    """Parse a mesh with :func:`workers.render.meshes.load_user_mesh` in a limited child process.
+
+    Returns ``{"extents_m": [x, y, z], "faces": n, "vertices": n}`` in metres after normalization; raises
+    :class:`UploadError` with the render core's one-line reason (format, emptiness, NaNs, scale outside
+    0.02–10 m, too many faces) or a timeout/limit message.
+    """
+    try:
+        done = subprocess.run(
+            [sys.executable, "-c", _CHECK_SCRIPT, str(path), unit, str(CHECK_MEMORY_BYTES), str(CHECK_CPU_S)],
+            cwd=ROOT, capture_output=True, text=True, timeout=CHECK_TIMEOUT_S,
+            env={**os.environ, "PYTHONPATH": str(ROOT)},
+        )
+    except subprocess.TimeoutExpired as exc:
+        raise UploadError(f"reading the mesh took over {CHECK_TIMEOUT_S:g} s; simplify it first") from exc
+    lines = [ln for ln in done.stdout.splitlines() if ln.startswith("{")]
+    if not lines:
+        raise UploadError("the mesh could not be read (the parser stopped: memory or time limit, or a crash)")
+    verdict = json.loads(lines[-1])
+    if not verdict.get("ok"):
+        raise UploadError(str(verdict.get("error", "unreadable mesh")).replace(f"mesh {path.name}: ", ""))
+    return {k: verdict[k] for k in ("extents_m", "faces", "vertices")}
+
+
+def asset_dir(asset_pk: int) -> Path:
+    from django.conf import settings
+
+    return Path(settings.MEDIA_ROOT) / "assets" / str(asset_pk)
+
+
+def asset_info(asset_pk: int) -> dict[str, Any]:
+    try:
+        return json.loads((asset_dir(asset_pk) / "info.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+
+
+def write_asset_info(asset_pk: int, info: dict[str, Any]) -> None:
+    folder = asset_dir(asset_pk)
+    folder.mkdir(parents=True, exist_ok=True)
+    tmp = folder / f".info.json.{os.getpid()}"
+    tmp.write_text(json.dumps(info, sort_keys=True), encoding="utf-8")
+    os.replace(tmp, folder / "info.json")
+
+
+def preview_path(asset_pk: int) -> Path:
+    return asset_dir(asset_pk) / "preview.png"
+
+
+# --- the preview render (render worker side; imports Mitsuba) -------------------------------------------------------
+
+
+def _asset_parts(*, kind: str, class_name: str, mesh_path: str | None, unit: str) -> list[tuple[Any, list[float]]]:
+    import numpy as np
+
+    from workers.render import assets
+
+    if kind == "mesh":
+        from workers.render.meshes import load_user_mesh
+
+        return [(load_user_mesh(mesh_path, unit=unit), [0.55, 0.6, 0.62])]
+    spec = assets.sample_asset(class_name, np.random.default_rng(7))
+    return [(part.mesh, list(part.material.get("rgb", [0.6, 0.6, 0.6]))) for part in assets.build_asset_parts(spec)]
+
+
+def render_asset_preview(*, asset_pk: int, kind: str, class_name: str, mesh_path: str | None = None,
+                         unit: str = "auto", variant: str | None = None) -> Path:
+    """Render a 128×128 studio view of one asset (diffuse parts under a sky and a key light) to preview.png.
+
+    Also writes info.json with the rendered instance's extents. Runs in a render worker, never in the web server.
+    """
+    import tempfile
+
+    import cv2
+    import numpy as np
+    import trimesh
+
+    from workers.render.backend import init_renderer
+
+    init_renderer(variant=variant)
+    import mitsuba as mi
+
+    parts = _asset_parts(kind=kind, class_name=class_name, mesh_path=mesh_path, unit=unit)
+    combined = trimesh.util.concatenate([m for m, _ in parts])
+    low, high = combined.bounds
+    centre = (low + high) / 2
+    radius = float(np.linalg.norm(high - low)) / 2 or 0.5
+    eye = centre + radius * np.array([1.5, 2.3, 1.2])  # the front of an asset faces +y
+    scene: dict[str, Any] = {
+        "type": "scene", "integrator": {"type": "path", "max_depth": 4},
+        "sensor": {"type": "perspective", "fov": 40.0,
+                   "to_world": mi.ScalarTransform4f().look_at(origin=eye.tolist(), target=centre.tolist(),
+                                                              up=[0, 0, 1]),
+                   "film": {"type": "hdrfilm", "width": PREVIEW_PX, "height": PREVIEW_PX, "pixel_format": "rgb"},
+                   "sampler": {"type": "independent", "sample_count": PREVIEW_SPP}},
+        "sky": {"type": "constant", "radiance": {"type": "rgb", "value": [0.55, 0.6, 0.62]}},
+        "key": {"type": "directional", "direction": [-0.4, 0.6, -1.0], "irradiance": {"type": "rgb", "value": 2.2}},
+        "floor": {"type": "rectangle", "to_world": mi.ScalarTransform4f().translate([centre[0], centre[1], low[2]])
+                  @ mi.ScalarTransform4f().scale(radius * 6),
+                  "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.55, 0.6, 0.62]}}},
+    }
+    with tempfile.TemporaryDirectory() as tmp:
+        for i, (mesh, rgb) in enumerate(parts):
+            path = Path(tmp) / f"part{i}.ply"
+            mesh.export(str(path), file_type="ply")
+            scene[f"part{i}"] = {"type": "ply", "filename": str(path),
+                                 "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": rgb[:3]}}}
+        image = np.asarray(mi.render(mi.load_dict(scene)))
+    srgb = np.where(image <= 0.0031308, 12.92 * image, 1.055 * np.power(np.clip(image, 0, None), 1 / 2.4) - 0.055)
+    rgb8 = (np.clip(srgb, 0, 1) * 255 + 0.5).astype(np.uint8)
+    folder = asset_dir(asset_pk)
+    folder.mkdir(parents=True, exist_ok=True)
+    tmp_png = folder / f".preview.{os.getpid()}.png"
+    cv2.imwrite(str(tmp_png), np.ascontiguousarray(rgb8[..., ::-1]))
+    os.replace(tmp_png, preview_path(asset_pk))
+    info = asset_info(asset_pk)
+    info.setdefault("extents_m", [round(float(v), 4) for v in combined.extents])
+    info.setdefault("faces", int(len(combined.faces)))
+    write_asset_info(asset_pk, info)
+    return preview_path(asset_pk)
+
+
+def render_preview_for(asset: Any) -> Path:
+    """:func:`render_asset_preview` for an :class:`campaigns.models.Asset` row."""
+    from django.conf import settings
+
+    mesh_path = str(Path(settings.MEDIA_ROOT) / asset.mesh_file.name) if asset.mesh_file else None
+    return render_asset_preview(asset_pk=asset.pk, kind=asset.kind, class_name=asset.object_class.name,
+                                mesh_path=mesh_path, unit=asset.mesh_unit)
+
+
+def request_preview(*, asset_pk: int) -> None:
+    """Ask the fleet for an asset's preview (task ``evenframe.asset_preview``); best effort."""
+    import logging
+
+    try:
+        from evenframe.celery import app
+
+        app.send_task("evenframe.asset_preview", kwargs={"asset_pk": asset_pk})
+    except Exception:  # noqa: BLE001 - a missing preview shows as pending; the upload itself succeeded
+        logging.getLogger("evenframe.campaigns").warning("could not request preview of asset %s", asset_pk,
+                                                         exc_info=True)

@@ -1,0 +1,258 @@
+"""Planner forms. The randomization inputs are generated from ``workers.render.budget.FIELDS`` (unit, bounds, help),
+never written by hand; quotas are one row per object class (target 0 = not in the campaign).
+
+Forms only parse and lay out input: the rules live in ``services.normalize_campaign_budget`` /
+``services.create_campaign``; their error messages are mapped back onto the field they name.
+"""
+
+from __future__ import annotations
+
+import re
+from decimal import Decimal
+from typing import Any
+
+from django import forms
+
+from campaigns import services
+from campaigns.models import Campaign, ObjectClass
+from workers.render.budget import DEFAULT_BUDGET, FIELDS, Field
+
+SECTION_TITLES = {
+    "render": ("Render settings", "Image size and path-tracing quality; cost grows linearly with pixels × samples."),
+    "variation": ("Variation budget", "How many distinct layouts, lighting variants per layout and camera views per "
+                  "lighting the campaign walks through; frames sharing a layout share its room and furniture."),
+    "thresholds": ("Acceptance defaults", "Used for every class unless its quota row says otherwise."),
+    "room": ("Room", "Sampled per layout."),
+    "lighting": ("Lighting", "Sampled per lighting variant."),
+    "camera": ("Camera", "Sampled per view."),
+}
+SECTION_ORDER = ("render", "variation", "thresholds", "room", "lighting", "camera")
+UNIT_TEXT = {"": "", "1/m²": "per m²"}
+# Field names carry their unit (units in names); the label shows the unit beside it instead.
+UNIT_SUFFIXES = ("_per_m2", "_px", "_mm", "_m", "_lm", "_k", "_deg", "_lux", "_s", "_ev", "_electrons")
+LABEL_OVERRIDES = {"spp": "samples per pixel", "cct_k": "colour temperature (CCT)", "iso": "ISO",
+                   "f_number": "f-number", "max_depth": "max path depth", "eye_height_m": "camera (eye) height"}
+
+
+def field_label(field: Field) -> str:
+    if field.name in LABEL_OVERRIDES:
+        return LABEL_OVERRIDES[field.name]
+    name = field.name
+    for suffix in UNIT_SUFFIXES:
+        if name.endswith(suffix):
+            name = name[: -len(suffix)]
+            break
+    return name.replace("_", " ")
+
+
+def _display(value: Any) -> Any:
+    """2000 rather than 2000.0 in the inputs."""
+    return int(value) if isinstance(value, float) and value.is_integer() else value
+
+
+def budget_field_name(field: Field, part: str = "") -> str:
+    return f"b_{field.section}_{field.name}" + (f"_{part}" if part else "")
+
+
+def _step(field: Field) -> str:
+    if field.kind in ("int", "int_range"):
+        return "1"
+    return "any"
+
+
+def _number_field(field: Field, label: str, initial: Any) -> forms.Field:
+    attrs = {"step": _step(field), "min": f"{field.lower:g}", "max": f"{field.upper:g}", "class": "num"}
+    if field.kind in ("int", "int_range"):
+        return forms.IntegerField(label=label, min_value=int(field.lower), max_value=int(field.upper),
+                                  initial=initial, widget=forms.NumberInput(attrs=attrs))
+    return forms.FloatField(label=label, min_value=field.lower, max_value=field.upper, initial=initial,
+                            widget=forms.NumberInput(attrs=attrs))
+
+
+class CampaignForm(forms.Form):
+    name = forms.CharField(max_length=200)
+    team = forms.ModelChoiceField(queryset=None, empty_label=None, help_text="Campaigns go to a team you plan in.")
+    description = forms.CharField(required=False, widget=forms.Textarea(attrs={"rows": 2}))
+    seed = forms.IntegerField(min_value=0, max_value=2**62, initial=0, help_text="Root seed: same seed, same frames.")
+    cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2, initial=Decimal("100.00"),
+                                     help_text="Most the campaign may spend, fixed costs included.")
+    price_per_cpu_hour = forms.DecimalField(min_value=0, max_digits=10, decimal_places=4, initial=Decimal("0.05"),
+                                            label="Price per CPU-hour")
+    setup_cost = forms.DecimalField(min_value=0, max_digits=12, decimal_places=2, initial=Decimal("0"),
+                                    help_text="One-off cost of planning and checking the campaign.")
+    manual_labelling_rate_per_hour = forms.DecimalField(
+        min_value=0, max_digits=10, decimal_places=2, initial=Decimal("12.00"), label="Manual labelling rate per hour",
+        help_text="Hourly rate of annotators, for the comparison with labelling by hand.")
+    weight = forms.IntegerField(min_value=1, max_value=1000, initial=1, help_text="Share of the fleet relative to "
+                                "other running campaigns.")
+    max_attempts = forms.IntegerField(min_value=1, max_value=20, initial=3, help_text="Attempts per frame before it "
+                                      "is dead.")
+
+    COST_FIELDS = ("cost_budget", "price_per_cpu_hour", "setup_cost", "manual_labelling_rate_per_hour")
+    RUN_FIELDS = ("seed", "weight", "max_attempts")
+
+    def __init__(self, *args: Any, user: Any, campaign: Campaign | None = None, **kwargs: Any) -> None:
+        from teams.permissions import PLANNER, teams_for
+
+        super().__init__(*args, **kwargs)
+        self.campaign = campaign
+        budget = campaign.budget if campaign else DEFAULT_BUDGET
+        if campaign is not None:
+            del self.fields["team"]  # a campaign stays in its team
+            for key in ("name", "description", "seed", "cost_budget", "price_per_cpu_hour", "setup_cost",
+                        "manual_labelling_rate_per_hour", "weight", "max_attempts"):
+                self.fields[key].initial = getattr(campaign, key)
+        else:
+            self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
+        self.budget_rows: dict[str, list[dict[str, Any]]] = {s: [] for s in SECTION_ORDER}
+        for field in FIELDS:
+            value = budget[field.section][field.name]
+            unit = UNIT_TEXT.get(field.unit, field.unit)
+            label = field_label(field)
+            row: dict[str, Any] = {"field": field, "unit": unit, "label": label, "help": field.help,
+                                   "bounds": f"{field.lower:g}–{field.upper:g}{(' ' + unit) if unit else ''}"}
+            if field.kind in ("range", "int_range"):
+                lo, hi = budget_field_name(field, "min"), budget_field_name(field, "max")
+                self.fields[lo] = _number_field(field, f"{label} min", _display(value[0]))
+                self.fields[hi] = _number_field(field, f"{label} max", _display(value[1]))
+                row["names"] = [lo, hi]
+            else:
+                name = budget_field_name(field)
+                self.fields[name] = _number_field(field, label, _display(value))
+                row["names"] = [name]
+            self.budget_rows[field.section].append(row)
+        quotas = {}
+        if campaign is not None:
+            quotas = {q.object_class.name: q for q in campaign.quotas.select_related("object_class")}
+        self.quota_rows = []
+        for oc in ObjectClass.objects.order_by("name"):
+            q = quotas.get(oc.name)
+            names = (f"q_{oc.name}_target", f"q_{oc.name}_visible", f"q_{oc.name}_box")
+            self.fields[names[0]] = forms.IntegerField(
+                label=f"{oc.label or oc.name} target", required=False, min_value=0,
+                max_value=services.MAX_TARGET_ACCEPTED, initial=q.target_accepted if q else 0,
+                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": 1}))
+            self.fields[names[1]] = forms.FloatField(
+                label=f"{oc.label or oc.name} min visible fraction", required=False, min_value=0, max_value=1,
+                initial=q.min_visible_fraction if q else None,
+                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "max": 1, "step": "any",
+                                                "placeholder": "default"}))
+            self.fields[names[2]] = forms.FloatField(
+                label=f"{oc.label or oc.name} min box", required=False, min_value=0, max_value=4096,
+                initial=q.min_box_px if q else None,
+                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": "any", "placeholder": "default"}))
+            self.quota_rows.append({"object_class": oc, "names": names})
+
+    # --- layout helpers for the template ---------------------------------------------------------------------
+
+    def sections(self) -> list[dict[str, Any]]:
+        out = []
+        for key in SECTION_ORDER:
+            title, intro = SECTION_TITLES[key]
+            rows = [{**row, "bound": [self[n] for n in row["names"]]} for row in self.budget_rows[key]]
+            out.append({"key": key, "title": title, "intro": intro, "rows": rows})
+        return out
+
+    def quota_table(self) -> list[dict[str, Any]]:
+        return [{"object_class": r["object_class"], "target": self[r["names"][0]], "visible": self[r["names"][1]],
+                 "box": self[r["names"][2]]} for r in self.quota_rows]
+
+    def cost_fields(self) -> list[forms.BoundField]:
+        return [self[n] for n in self.COST_FIELDS]
+
+    def run_fields(self) -> list[forms.BoundField]:
+        return [self[n] for n in self.RUN_FIELDS]
+
+    # --- parsing ---------------------------------------------------------------------------------------------
+
+    def clean(self) -> dict[str, Any]:
+        data = super().clean()
+        budget: dict[str, dict[str, Any]] = {}
+        complete = True
+        for field in FIELDS:
+            if field.kind in ("range", "int_range"):
+                lo = data.get(budget_field_name(field, "min"))
+                hi = data.get(budget_field_name(field, "max"))
+                if lo is None or hi is None:
+                    complete = False
+                    continue
+                value: Any = [lo, hi]
+            else:
+                value = data.get(budget_field_name(field))
+                if value is None:
+                    complete = False
+                    continue
+            budget.setdefault(field.section, {})[field.name] = value
+        quotas = []
+        for row in self.quota_rows:
+            target = data.get(row["names"][0])
+            if target:
+                quotas.append(services.QuotaInput(row["object_class"].name, int(target),
+                                                  data.get(row["names"][1]), data.get(row["names"][2])))
+        if not quotas and not any(n in self.errors for r in self.quota_rows for n in r["names"]):
+            self.add_error(None, "Give at least one class a target above 0.")
+        data["quotas"] = quotas
+        if complete:
+            try:
+                data["budget"] = services.normalize_campaign_budget(budget)
+            except services.CampaignError as exc:
+                self.add_service_error(exc)
+        return data
+
+    def add_service_error(self, exc: Exception) -> None:
+        """Put a service's message on the field it names (``render.spp: …``, ``quota 'chair': …``, ``name: …``)."""
+        message = str(exc)
+        text = message.removeprefix("budget: ")
+        m = re.match(r"(?P<section>\w+)\.(?P<name>\w+)( (?P<part>min|max))?:", text)
+        if m and (m["section"], m["name"]) in {(f.section, f.name) for f in FIELDS}:
+            field = next(f for f in FIELDS if (f.section, f.name) == (m["section"], m["name"]))
+            if field.kind in ("range", "int_range"):
+                key = budget_field_name(field, m["part"] or "min")
+            else:
+                key = budget_field_name(field)
+            if key in self.fields:
+                self.add_error(key, text[m.end():].strip())
+                return
+        m = re.match(r"render\.width_px × height_px", text)
+        if m:
+            self.add_error(budget_field_name(FIELDS[0]), text.split(":", 1)[-1].strip())
+            return
+        m = re.match(r"quota '(?P<cls>[\w-]+)':", message)
+        if m and f"q_{m['cls']}_target" in self.fields:
+            self.add_error(f"q_{m['cls']}_target", message[m.end():].strip())
+            return
+        m = re.match(r"(?P<key>\w+):", message)
+        if m and m["key"] in self.fields:
+            self.add_error(m["key"], message[m.end():].strip())
+            return
+        self.add_error(None, message)
+
+    def service_kwargs(self) -> dict[str, Any]:
+        d = self.cleaned_data
+        return {"name": d["name"], "quotas": d["quotas"], "budget": d["budget"], "cost_budget": d["cost_budget"],
+                "price_per_cpu_hour": d["price_per_cpu_hour"], "setup_cost": d["setup_cost"],
+                "manual_labelling_rate_per_hour": d["manual_labelling_rate_per_hour"], "weight": d["weight"],
+                "seed": d["seed"], "max_attempts": d["max_attempts"], "description": d.get("description", "")}
+
+
+class CostBudgetForm(forms.Form):
+    cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2)
+
+
+class AssetUploadForm(forms.Form):
+    UNITS = (("auto", "guess from size"), ("m", "metres"), ("cm", "centimetres"), ("mm", "millimetres"),
+             ("in", "inches"))
+    name = forms.CharField(max_length=128)
+    team = forms.ModelChoiceField(queryset=None, empty_label=None)
+    object_class = forms.ModelChoiceField(queryset=ObjectClass.objects.order_by("name"), empty_label=None,
+                                          to_field_name="name", label="Class")
+    mesh = forms.FileField(help_text="OBJ, PLY, STL or GLB; the format is read from the file's content.")
+    unit = forms.ChoiceField(choices=UNITS, initial="auto")
+    creation_cost = forms.DecimalField(min_value=0, max_digits=12, decimal_places=2, initial=Decimal("0"),
+                                       help_text="One-off cost of modelling or licensing it.")
+
+    def __init__(self, *args: Any, user: Any, **kwargs: Any) -> None:
+        from teams.permissions import PLANNER, teams_for
+
+        super().__init__(*args, **kwargs)
+        self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
