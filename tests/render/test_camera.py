@@ -169,7 +169,7 @@ def _fake_objects() -> list[dict]:
 
 
 def test_sample_camera_frames_objects_and_respects_budget():
-    budget = normalize_budget()
+    budget = normalize_budget({"camera": {"max_zoom_out": 100.0}})  # free to zoom out until everything fits
     cam = budget["camera"]
     objects = _fake_objects()
     all_in = 0
@@ -195,6 +195,22 @@ def test_sample_camera_frames_objects_and_respects_budget():
     assert all_in >= 0.8 * len(seeds)
     spec = camera.sample_camera(budget, FAKE_ROOM, objects, np.random.default_rng(3))
     assert spec == camera.sample_camera(budget, FAKE_ROOM, objects, np.random.default_rng(3))
+
+
+def test_focal_length_keeps_its_budget_spread_without_zoom_out():
+    # With max_zoom_out = 1 the sampled focal length is used as drawn: uniform over the budget's range
+    # (Kolmogorov–Smirnov against scipy's uniform), never piled up at the short end to fit the objects.
+    from scipy import stats
+
+    budget = normalize_budget({"camera": {"max_zoom_out": 1.0}})
+    lo, hi = budget["camera"]["focal_length_mm"]
+    focal = [camera.sample_camera(budget, FAKE_ROOM, _fake_objects(), np.random.default_rng(seed))["focal_length_mm"]
+             for seed in range(1000)]
+    assert stats.kstest(focal, stats.uniform(loc=lo, scale=hi - lo).cdf).pvalue > 0.01
+    zoomed = normalize_budget({"camera": {"max_zoom_out": 100.0}})
+    short = [camera.sample_camera(zoomed, FAKE_ROOM, _fake_objects(), np.random.default_rng(seed))["focal_length_mm"]
+             for seed in range(1000)]
+    assert np.median(short) < np.median(focal)  # the trade-off is real: zooming out shortens the lens
 
 
 def test_sample_camera_is_fast():

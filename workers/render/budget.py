@@ -90,6 +90,9 @@ FIELDS: tuple[Field, ...] = (
           "95th-pct adult male standing ≈ 1.75 m (from memory)"),
     Field("camera", "focal_length_mm", "range", "mm", 4.0, 600.0,
           "Lens focal length; shorter is wider field of view."),
+    Field("camera", "max_zoom_out", "float", "×", 1.0, 100.0,
+          "How far the lens may zoom out from the sampled focal length to fit every object in view; "
+          "1 keeps the sampled focal length (more objects cut by the frame edge)."),
     Field("camera", "sensor_width_mm", "float", "mm", 1.0, 100.0,
           "Sensor width; 36 mm is full frame. With the focal length it sets the field of view."),
     Field("camera", "f_number", "range", "", 0.95, 64.0,
@@ -145,6 +148,7 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
     "camera": {
         "eye_height_m": [0.9, 1.75],
         "focal_length_mm": [18.0, 50.0],
+        "max_zoom_out": 1.6,
         "sensor_width_mm": 36.0,
         "f_number": [2.0, 11.0],
         "focus_jitter_fraction": 0.05,

@@ -628,6 +628,9 @@ def _aim(positions: np.ndarray, centres: np.ndarray) -> tuple[np.ndarray, np.nda
     return yaw, pitch, span_yaw, elevation.max(axis=1) - elevation.min(axis=1)
 
 
+DEFAULT_MAX_ZOOM_OUT = 1.6
+
+
 def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[dict[str, Any]], rng) -> dict[str, Any]:
     """Sample a camera pose and settings that frame the placed objects.
 
@@ -638,8 +641,8 @@ def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[di
     centre; candidates are scored by the number of centres in frame plus half the share of
     bounding-box corners in frame, minus one per centre hidden behind a nearer object's projected
     box and one per footprint closer than 0.8 m to the camera. When no candidate holds every centre at the sampled focal
-    length, the focal length is shortened (not below the budget's minimum) to the longest one that
-    fits the best candidate. The look-at target lies along the view direction at the mean object
+    length, the focal length is shortened to the longest one that fits, but by at most the budget's ``max_zoom_out``
+    and not below the budget's minimum, so that focal-length coverage stays spread over the budget. The look-at target lies along the view direction at the mean object
     distance; the focus distance is the target distance times ``1 ± focus_jitter_fraction``.
 
     Parameters
@@ -717,8 +720,13 @@ def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[di
         direction = np.column_stack([np.cos(pitch) * np.cos(yaw), np.cos(pitch) * np.sin(yaw), np.sin(pitch)])
         mean_distance = np.linalg.norm(centres[None] - positions[:, None], axis=2).mean(axis=1)
         targets = positions + direction * np.maximum(mean_distance, 0.5)[:, None]
+        # When no candidate frames every object, zoom out — but by at most the budget's max_zoom_out: shortening all the
+        # way to fit would pile the focal-length coverage up at the budget's short end. Objects still cut by
+        # the frame edge are labelled as truncated.
         if not (fit_focal_mm >= focal_length_mm).any():
-            focal_length_mm = max(float(cam["focal_length_mm"][0]), min(focal_length_mm, float(fit_focal_mm.max())))
+            zoom_out = float(cam.get("max_zoom_out", DEFAULT_MAX_ZOOM_OUT))
+            shortest_mm = max(float(cam["focal_length_mm"][0]), focal_length_mm / zoom_out)
+            focal_length_mm = max(shortest_mm, min(focal_length_mm, float(fit_focal_mm.max())))
         focal_px = focal_length_mm * width_px / sensor_width_mm
         rotations = _rotations_towards(positions, targets)
         centre_in = _in_frame(rotations, positions, centres, focal_px, width_px, height_px)
