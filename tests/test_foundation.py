@@ -18,7 +18,7 @@ ROOT = Path(__file__).resolve().parent.parent
 
 def _settings_in_subprocess(env: dict, expr: str) -> str:
     """Evaluate an expression on a fresh settings import with exactly this environment."""
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_"))}
+    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
     clean.update(env)
     code = f"import django, os; os.environ['DJANGO_SETTINGS_MODULE']='evenframe.settings'; django.setup(); " \
            f"from django.conf import settings as s; print({expr})"
@@ -42,7 +42,7 @@ def test_service_mode_uses_postgres_and_redis():
 
 
 def test_service_mode_refuses_missing_secret():
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_"))}
+    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
     clean["DATABASE_URL"] = "postgres://u:p@db.example:5432/ev"
     out = subprocess.run([sys.executable, "manage.py", "check"], cwd=ROOT, env=clean, capture_output=True, text=True,
                          timeout=60)
@@ -51,7 +51,7 @@ def test_service_mode_refuses_missing_secret():
 
 
 def test_check_deploy_clean_in_service_mode():
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_"))}
+    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
     clean.update({"DATABASE_URL": "postgres://u:p@127.0.0.1:1/ev", "CELERY_BROKER_URL": "redis://127.0.0.1:1/0",
                   "EVENFRAME_SECRET_KEY": "k9$" + uuid.uuid4().hex + uuid.uuid4().hex,
                   "EVENFRAME_ALLOWED_HOSTS": "evenframe.example"})
@@ -62,7 +62,7 @@ def test_check_deploy_clean_in_service_mode():
 
 
 def test_bad_boolean_environment_is_a_clear_error():
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_"))}
+    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
     clean["EVENFRAME_DEBUG"] = "maybe"
     out = subprocess.run([sys.executable, "manage.py", "check"], cwd=ROOT, env=clean, capture_output=True, text=True,
                          timeout=60)

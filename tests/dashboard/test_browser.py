@@ -8,11 +8,7 @@ import time
 
 import pytest
 
-# Playwright's sync API runs an event loop in this thread; Django's async-safety check would refuse the ORM calls
-# the test makes between browser steps.
-os.environ["DJANGO_ALLOW_ASYNC_UNSAFE"] = "true"
-
-from tests.dashboard.conftest import CUBE_OBJ_TEXT, PASSWORD, fail_frame  # noqa: E402
+from tests.dashboard.conftest import CUBE_OBJ_TEXT, PASSWORD, fail_frame
 
 pytestmark = [pytest.mark.browser, pytest.mark.worker]
 
@@ -21,7 +17,10 @@ CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-backg
 
 
 @pytest.fixture
-def page():
+def page(monkeypatch):
+    # Playwright's sync API runs an event loop in this thread; Django's async-safety check would refuse the ORM
+    # calls the test makes between browser steps. Set for these tests only, never for the whole session.
+    monkeypatch.setenv("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
     playwright = pytest.importorskip("playwright.sync_api")
     if not os.path.exists("/usr/bin/chromium"):
         pytest.skip("Debian chromium is not installed")
