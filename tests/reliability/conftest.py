@@ -126,7 +126,9 @@ def private_redis(tmp_path, settings, monkeypatch):
 
     server = PrivateRedis(free_port(), tmp_path / "redis.log")
     server.start()
-    app = Celery("evenframe-private-redis")
+    # Not the current app: shared tasks (ping, render_frame) must keep using the project's app and its
+    # result backend in the tests that run after this one.
+    app = Celery("evenframe-private-redis", set_as_current=False)
     app.conf.update(broker_url=server.url, task_default_queue=settings.CELERY_TASK_DEFAULT_QUEUE,
                     task_serializer="json", accept_content=["json"], broker_connection_retry_on_startup=True)
 
@@ -138,3 +140,6 @@ def private_redis(tmp_path, settings, monkeypatch):
     monkeypatch.setattr(scheduler, "send_frame_task", send)
     yield server
     server.stop()
+    from evenframe.celery import app as project_app
+
+    project_app.set_current()
