@@ -6,6 +6,7 @@ import statistics
 import time
 
 from django.core.management.base import BaseCommand, CommandError
+from django.db import DatabaseError
 
 from campaigns import sampling
 from campaigns.management.commands.seed_demo import DEMO_BUDGET, DEMO_CAMPAIGN_NAME, DEMO_QUOTAS, DEMO_SEED
@@ -33,8 +34,14 @@ class Command(BaseCommand):
 
     def handle(self, *args, **options) -> None:
         key = options["campaign"] or DEMO_CAMPAIGN_NAME
-        campaign = (Campaign.objects.filter(pk=int(key)).first() if key.isdigit() else None) or \
-            Campaign.objects.filter(name=key).first()
+        try:
+            campaign = (Campaign.objects.filter(pk=int(key)).first() if key.isdigit() else None) or \
+                Campaign.objects.filter(name=key).first()
+        except DatabaseError as exc:
+            # An unmigrated database: the demo definition below needs no tables.
+            if options["campaign"]:
+                raise CommandError(f"cannot read campaigns ({exc}); run `manage.py migrate` first") from exc
+            campaign = None
         if campaign is not None:
             budget, seed, source = campaign.budget, campaign.seed, f"campaign {campaign.pk} {campaign.name!r}"
             quotas = {q.object_class.name: sampling.QuotaRule(q.target_accepted, q.min_visible_fraction, q.min_box_px)
