@@ -606,3 +606,37 @@ def frame_neighbours(*, frame: Frame) -> tuple[int | None, int | None]:
     prev = done.filter(index__lt=frame.index).aggregate(m=Max("index"))["m"]
     nxt = done.filter(index__gt=frame.index).aggregate(m=Min("index"))["m"]
     return prev, nxt
+
+
+# --- uploaded meshes for the render core ------------------------------------------------------------------------
+
+_USER_PLACEMENT_BY_CLASS_RULE = {"floor": "floor", "wall": "wall", "surface_or_floor": "surface"}
+
+
+def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str, str]]]:
+    """``{class_name: [entry, ...]}`` of the campaign's uploaded meshes, for ``make_spec(user_assets=...)``.
+
+    Only mesh assets attached to the campaign whose file exists under MEDIA_ROOT (a path escaping it is skipped);
+    each entry's ``asset_id`` is ``user/<asset pk>``, the id the asset library counts appearances by. The placement
+    follows the class's rule in the render core (a shelf item may stand on a table). Ordered by asset pk, so the
+    same assets always give the same entries (and the same frames).
+    """
+    from django.conf import settings
+
+    try:
+        from workers.render.assets import CLASSES
+    except ImportError:  # the web server may run without the render core
+        CLASSES = {}
+    root = _Path(settings.MEDIA_ROOT).resolve()
+    out: dict[str, list[dict[str, str]]] = {}
+    for asset in (campaign.assets.filter(kind=Asset.Kind.MESH).exclude(mesh_file="")
+                  .select_related("object_class").order_by("pk")):
+        path = (root / asset.mesh_file.name).resolve()
+        if not path.is_relative_to(root) or not path.is_file():
+            continue
+        asset_class = CLASSES.get(asset.object_class.name)
+        placement = _USER_PLACEMENT_BY_CLASS_RULE.get(asset_class.placement if asset_class else "floor", "floor")
+        out.setdefault(asset.object_class.name, []).append({
+            "asset_id": f"user/{asset.pk}", "mesh_path": str(path), "unit": asset.mesh_unit or "auto",
+            "up_axis": "z", "placement": placement})
+    return out

@@ -229,8 +229,15 @@ def create_campaign(
         clean.append((classes[q.class_name], q.target_accepted, vis, box))
     if sum(t for _, t, _, _ in clean) == 0:
         raise CampaignError("quotas: every target is 0; nothing to render")
-    assets = list(Asset.objects.filter(pk__in=list(asset_ids))) if asset_ids is not None else list(
-        Asset.objects.filter(object_class__name__in=list(seen)))
+    # Shared (team-less) assets and the campaign team's uploads; never another team's.
+    usable = Asset.objects.filter(Q(team__isnull=True) | Q(team=team))
+    if asset_ids is not None:
+        wanted = set(asset_ids)
+        assets = list(usable.filter(pk__in=wanted))
+        if len(assets) != len(wanted):
+            raise CampaignError(f"assets: {len(wanted) - len(assets)} asset(s) are unknown or belong to another team")
+    else:
+        assets = list(usable.filter(object_class__name__in=list(seen)))
     fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=setup_d)
     if fixed > cost_budget_d:
         raise CampaignError(f"cost_budget: {cost_budget_d} is less than the fixed costs {fixed} "

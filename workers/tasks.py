@@ -32,14 +32,18 @@ def frame_output_dir(*, campaign_id: int, index: int) -> tuple[Path, str]:
     return Path(settings.MEDIA_ROOT) / relative, relative
 
 
-def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], seeds: Any, out_dir: Path) -> Any:
-    """Call the render core (imported here, in the worker process, never at Django load)."""
+def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], seeds: Any, out_dir: Path,
+                       user_assets: dict[str, list[dict[str, str]]] | None = None) -> Any:
+    """Call the render core (imported here, in the worker process, never at Django load).
+
+    ``user_assets`` are the campaign's uploaded meshes (``campaigns.selectors.campaign_user_mesh_entries``).
+    """
     from workers.render.frame import render_frame_from_inputs
 
     threads = int(os.environ.get("EVENFRAME_RENDER_THREADS", "0") or 0) or None
     return render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
                                     lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed,
-                                    out_dir=out_dir, threads=threads)
+                                    out_dir=out_dir, threads=threads, user_assets=user_assets or None)
 
 
 def _is_permanent(exc: BaseException) -> bool:
@@ -113,7 +117,7 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
     the render succeeded; the result is recorded only after that, so a failure (disk full, read-only media,
     a crash) never leaves a counted frame with missing or half-written files.
     """
-    from campaigns import planner, scheduler, services
+    from campaigns import planner, scheduler, selectors, services
     from workers import faults
 
     host = getattr(self.request, "hostname", None) or socket.gethostname()
@@ -136,8 +140,10 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
         shutil.rmtree(partial, ignore_errors=True)
         partial.mkdir(parents=True)
         faults.before_render(campaign_id=campaign.pk, index=frame.index, attempt=frame.attempts)
+        user_assets = with_database_retry(lambda: selectors.campaign_user_mesh_entries(campaign=campaign),
+                                          what=f"frame {frame_id} assets")
         result = render_frame_files(budget=campaign.budget, composition=frame.composition, seeds=seeds,
-                                    out_dir=partial)
+                                    out_dir=partial, user_assets=user_assets)
         publish_frame_dir(partial=partial, final=out_dir)
     except Exception as exc:  # noqa: BLE001 - every failure is recorded on the frame, then retried or dead
         cpu_s, wall_s = time.process_time() - cpu_start, time.perf_counter() - wall_start

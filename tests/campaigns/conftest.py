@@ -136,7 +136,7 @@ def fake_render(monkeypatch):
             self.calls = 0
             self.error: Exception = RuntimeError("transient: renderer ran out of memory")
 
-        def __call__(self, *, budget, composition, seeds, out_dir):
+        def __call__(self, *, budget, composition, seeds, out_dir, user_assets=None):
             self.calls += 1
             if self.fail > 0:
                 self.fail -= 1

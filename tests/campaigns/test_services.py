@@ -321,3 +321,85 @@ def test_permanent_error_is_dead_at_once_and_dead_frames_in_a_row_pause(make_cam
     assert campaign.status == "paused" and campaign.pause_reason == "failures"
     assert campaign.frames_dead == scheduler.DEAD_IN_A_ROW_PAUSE and outbox == []
     assert "cannot place 9 objects" in Frame.objects.filter(campaign=campaign).first().error
+
+
+# --- uploaded meshes ----------------------------------------------------------------------------------------
+
+
+def _write_box(media_root, name):
+    import trimesh
+
+    relative = f"assets/meshes/{name}.obj"
+    path = media_root / relative
+    path.parent.mkdir(parents=True, exist_ok=True)
+    trimesh.creation.box(extents=(0.5, 0.4, 0.35)).export(path)
+    return relative, path
+
+
+@pytest.fixture
+def uploads(user, classes, media_root, django_user_model):
+    from teams.models import Membership, Team
+    from teams.permissions import personal_team
+
+    ours_team = personal_team(user=user)
+    other_team = Team.objects.create(name="Elsewhere")
+    otto = django_user_model.objects.create_user(username="otto", password="not-used-123")
+    Membership.objects.create(team=other_team, user=otto, role="admin")
+    ours_rel, ours_path = _write_box(media_root, "footstool")
+    theirs_rel, _ = _write_box(media_root, "pouf")
+    ours = services.upload_asset(user=user, team=ours_team, object_class_name="ottoman", name="footstool",
+                                 mesh_path=ours_rel, original_name="footstool.obj", unit="m")
+    theirs = services.upload_asset(user=otto, team=other_team, object_class_name="ottoman", name="pouf",
+                                   mesh_path=theirs_rel, original_name="pouf.obj", unit="m")
+    return {"ours": ours, "ours_path": ours_path, "theirs": theirs, "team": ours_team}
+
+
+def test_campaign_attaches_its_team_uploads_but_never_another_teams(make_campaign, uploads):
+    campaign = make_campaign(quotas={"chair": 3, "ottoman": 2})
+    attached = set(campaign.assets.values_list("pk", flat=True))
+    assert uploads["ours"].pk in attached and uploads["theirs"].pk not in attached
+    assert selectors.campaign_user_mesh_entries(campaign=campaign) == {"ottoman": [{
+        "asset_id": f"user/{uploads['ours'].pk}", "mesh_path": str(uploads["ours_path"].resolve()), "unit": "m",
+        "up_axis": "z", "placement": "floor"}]}
+    uploads["ours_path"].unlink()  # a missing file is left out rather than failing every frame
+    assert selectors.campaign_user_mesh_entries(campaign=campaign) == {}
+
+
+def test_explicit_asset_ids_of_another_team_are_refused(user, uploads):
+    with pytest.raises(services.CampaignError, match="another team"):
+        services.create_campaign(owner=user, name="theirs", quotas=[services.QuotaInput("ottoman", 2)],
+                                 budget=TINY_BUDGET, cost_budget=Decimal("100"), price_per_cpu_hour=Decimal("0.05"),
+                                 seed=3, asset_ids=[uploads["theirs"].pk])
+    assert not Campaign.objects.filter(name="theirs").exists()
+
+
+def test_task_places_uploads_and_the_library_counts_their_frames(make_campaign, outbox, uploads, monkeypatch):
+    """The task hands the campaign's uploads to the spec; labels carry ``user/<pk>`` (render faked from the spec)."""
+    import workers.tasks
+    from tests.campaigns.conftest import FakeResult
+    from workers.render.spec import make_spec
+
+    seen = []
+
+    def fake(*, budget, composition, seeds, out_dir, user_assets=None):
+        seen.append(user_assets)
+        spec = make_spec(budget, composition, seeds.seed, layout_seed=seeds.layout_seed, user_assets=user_assets)
+        result = FakeResult(composition)
+        result.labels = {"instances": [dict(row, class_name=o["class_name"], asset_id=o["asset_id"])
+                                       for row, o in zip(FakeResult(composition).labels["instances"],
+                                                         sorted(spec["objects"], key=lambda o: o["class_name"]),
+                                                         strict=True)]}
+        return result
+
+    monkeypatch.setattr(workers.tasks, "render_frame_files", fake)
+    campaign = make_campaign(quotas={"chair": 30, "ottoman": 30}, start=True)
+    asset_id = f"user/{uploads['ours'].pk}"
+    for _ in range(10):  # each finished frame dispatches the next; stop once the upload was placed
+        for message in outbox.take():
+            outbox.deliver(message)
+        if Instance.objects.filter(frame__campaign=campaign, asset_id=asset_id).exists():
+            break
+    assert seen and all([e["asset_id"] for e in s["ottoman"]] == [asset_id] for s in seen)
+    assert Instance.objects.filter(frame__campaign=campaign, asset_id=asset_id).exists()
+    library = {row["asset"].pk: row["frames"] for row in selectors.asset_library(user=campaign.owner)}
+    assert library[uploads["ours"].pk] > 0 and uploads["theirs"].pk not in library

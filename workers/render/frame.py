@@ -27,6 +27,7 @@ from __future__ import annotations
 import json
 import math
 import time
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -258,13 +259,14 @@ def render_frame_from_inputs(
     out_dir: Path | None = None,
     variant: str | None = None,
     threads: int | None = None,
+    user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None = None,
 ) -> FrameResult:
     """:func:`workers.render.spec.make_spec` then :func:`render_frame`, timing the spec stage too."""
     from .spec import make_spec
 
     start = time.perf_counter()
     spec = make_spec(budget, composition, seed, layout_seed=layout_seed, lighting_seed=lighting_seed,
-                     camera_seed=camera_seed)
+                     camera_seed=camera_seed, user_assets=user_assets)
     spec_s = time.perf_counter() - start
     return render_frame(spec, out_dir=out_dir, variant=variant, threads=threads, spec_s=spec_s)
 

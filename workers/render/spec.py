@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -128,6 +129,7 @@ def make_spec(
     layout_seed: int | None = None,
     lighting_seed: int | None = None,
     camera_seed: int | None = None,
+    user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None = None,
 ) -> dict[str, Any]:
     """Sample a complete frame spec.
 
@@ -143,6 +145,12 @@ def make_spec(
     layout_seed, lighting_seed, camera_seed : int, optional
         Fix one axis: two specs with the same ``layout_seed`` (and budget and
         composition) have the same room and objects.
+    user_assets : mapping, optional
+        ``{class_name: [entry, ...]}`` of uploaded meshes, each entry ``{"asset_id", "mesh_path", "unit",
+        "up_axis", "placement"}``. Each instance of a class with entries picks uniformly (layout stream) among
+        the procedural generator and the entries; a picked entry becomes a
+        :func:`workers.render.assets.user_asset_spec` carrying the entry's ``asset_id`` (and its mesh path, so
+        the spec re-renders from its JSON). None or no entries for a class: that class samples exactly as before.
 
     Returns
     -------
@@ -155,7 +163,6 @@ def make_spec(
     ValueError
         Bad composition or seeds; ``layout.LayoutError`` (a ValueError) when the objects do not fit.
     """
-    from .assets import sample_asset
     from .camera import sample_camera
     from .layout import place_objects, sample_room
     from .lights import sample_lights
@@ -167,7 +174,9 @@ def make_spec(
 
     layout_rng = axis_rng(sub_seeds, "layout")
     room = _round_floats(sample_room(normalized, layout_rng))
-    asset_specs = [sample_asset(name, layout_rng) for name, count in clean_composition.items() for _ in range(count)]
+    clean_user_assets = _clean_user_assets(user_assets, clean_composition)
+    asset_specs = [_sample_object(name, layout_rng, clean_user_assets.get(name, ()))
+                   for name, count in clean_composition.items() for _ in range(count)]
     objects = place_objects(room, asset_specs, layout_rng,
                             max_objects_per_m2=normalized["room"]["max_objects_per_m2"])
     objects = _round_floats(objects)
@@ -188,6 +197,49 @@ def make_spec(
         "camera": camera,
         "thresholds": dict(normalized["thresholds"]),
     }
+    if clean_user_assets:
+        # Only when there are uploads, so specs without them keep their bytes.
+        spec["user_assets"] = {name: [dict(e) for e in entries] for name, entries in clean_user_assets.items()}
     # The returned spec is exactly what its JSON reads back as.
     return spec_from_json(spec_to_json(spec))
 
+
+
+_USER_ENTRY_KEYS = ("asset_id", "mesh_path", "unit", "up_axis", "placement")
+
+
+def _clean_user_assets(user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None,
+                       composition: dict[str, int]) -> dict[str, list[dict[str, str]]]:
+    """The entries of the classes in the composition (with at least one instance), in a fixed order."""
+    if not user_assets:
+        return {}
+    clean: dict[str, list[dict[str, str]]] = {}
+    for name in sorted(user_assets):
+        entries = user_assets[name]
+        if not composition.get(name) or not entries:
+            continue
+        rows = []
+        for entry in entries:
+            if not entry.get("asset_id") or not entry.get("mesh_path"):
+                raise SpecError(f"user_assets: an entry of {name!r} needs an asset_id and a mesh_path")
+            rows.append({"asset_id": str(entry["asset_id"]), "mesh_path": str(entry["mesh_path"]),
+                         "unit": str(entry.get("unit") or "auto"), "up_axis": str(entry.get("up_axis") or "z"),
+                         "placement": str(entry.get("placement") or "floor")})
+        clean[str(name)] = rows
+    return clean
+
+
+def _sample_object(class_name: str, rng: np.random.Generator, entries: Sequence[dict[str, str]]) -> dict[str, Any]:
+    """One asset spec: the procedural generator, or (uniformly among generator and uploads) a user mesh."""
+    from .assets import sample_asset, user_asset_spec
+
+    if not entries:
+        return sample_asset(class_name, rng)  # no extra draw: specs without uploads keep their bytes
+    pick = int(rng.integers(len(entries) + 1))
+    if pick == 0:
+        return sample_asset(class_name, rng)
+    entry = entries[pick - 1]
+    spec = user_asset_spec(entry["mesh_path"], class_name, entry["placement"], rng, unit=entry["unit"],
+                           up_axis=entry["up_axis"])
+    spec["asset_id"] = entry["asset_id"]
+    return spec
