@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 from django.contrib import admin
-from django.db.models import Q
 
 from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
 from teams.permissions import ADMIN, PLANNER, has_role, scope_to_user, teams_for
@@ -53,10 +52,7 @@ class AssetAdmin(TeamScopedAdmin):
 
     def get_queryset(self, request):
         # Shared procedural assets (no team) are visible to everyone; uploaded ones to their team.
-        queryset = admin.ModelAdmin.get_queryset(self, request)
-        if request.user.is_superuser:
-            return queryset
-        return queryset.filter(Q(team__isnull=True) | Q(team__in=teams_for(user=request.user)))
+        return scope_to_user(admin.ModelAdmin.get_queryset(self, request), user=request.user, include_shared=True)
 
     def has_change_permission(self, request, obj=None):
         if obj is not None and obj.team_id is None:

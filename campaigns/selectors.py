@@ -422,9 +422,9 @@ def asset_library(*, user: _Any) -> list[dict[str, _Any]]:
     (every instance of the class comes from its generator); an uploaded mesh counts instances whose render-core
     asset id names it (``user/<asset pk>``).
     """
-    from teams.permissions import scope_to_user, teams_for
+    from teams.permissions import scope_to_user
 
-    assets = Asset.objects.filter(Q(team__isnull=True) | Q(team__in=teams_for(user=user))).select_related(
+    assets = scope_to_user(Asset.objects.all(), user=user, include_shared=True).select_related(
         "object_class", "team").order_by("object_class__name", "kind", "name")
     visible = scope_to_user(Instance.objects.all(), user=user, team_field="campaign__team")
     by_class = dict(visible.values("object_class__name").annotate(n=Count("frame", distinct=True))

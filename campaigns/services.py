@@ -25,7 +25,7 @@ from decimal import Decimal, InvalidOperation
 from typing import Any
 
 from django.db import transaction
-from django.db.models import F, Q
+from django.db.models import F, Q, QuerySet
 from django.db.models.functions import Coalesce
 from django.utils import timezone
 
@@ -150,6 +150,100 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
 
 
 @transaction.atomic
+def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]
+                        ) -> list[tuple[ObjectClass, int, float, float]]:
+    """Check class quotas against the normalized budget: (class, target, min visible fraction, min box px)."""
+    if not quotas:
+        raise CampaignError("quotas: at least one class quota is required")
+    for q in quotas:
+        if not isinstance(q, QuotaInput):
+            raise CampaignError(f"quotas: expected class quotas, got {type(q).__name__}")
+        if not isinstance(q.class_name, str):
+            raise CampaignError(f"quota: class name must be text, got {q.class_name!r}")
+    classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
+    thresholds = normalized_budget["thresholds"]
+    longest_side_px = max(normalized_budget["render"]["width_px"], normalized_budget["render"]["height_px"])
+    seen: set[str] = set()
+    clean: list[tuple[ObjectClass, int, float, float]] = []
+    for q in quotas:
+        where = f"quota {q.class_name!r}"
+        if q.class_name not in classes:
+            raise CampaignError(f"{where}: unknown object class (create it first, e.g. with seed_demo)")
+        if q.class_name in seen:
+            raise CampaignError(f"{where}: listed twice")
+        seen.add(q.class_name)
+        if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
+            raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
+        if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
+            raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
+        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
+            q.min_visible_fraction, f"{where}: min visible fraction")
+        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
+        if not 0.0 <= vis <= 1.0:
+            raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
+        if not 0.0 <= box <= longest_side_px:
+            raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
+        clean.append((classes[q.class_name], q.target_accepted, vis, box))
+    if sum(t for _, t, _, _ in clean) == 0:
+        raise CampaignError("quotas: every target is 0; nothing to render")
+    return clean
+
+
+def _clean_name(name: Any, description: str) -> str:
+    if name is not None and not isinstance(name, str):
+        raise CampaignError(f"name: expected text, got {type(name).__name__}")
+    name = (name or "").strip()
+    if not name:
+        raise CampaignError("name: required")
+    if len(name) > 200:
+        raise CampaignError(f"name: at most 200 characters, got {len(name)}")
+    if "\x00" in name or "\x00" in (description or ""):
+        raise CampaignError("name: must not contain NUL characters")
+    return name
+
+
+@dataclass(frozen=True)
+class _Settings:
+    cost_budget: Decimal
+    price_per_cpu_hour: Decimal
+    setup_cost: Decimal
+    manual_labelling_rate_per_hour: Decimal
+    weight: int
+    seed: int
+    max_attempts: int
+
+
+def _clean_settings(*, cost_budget: Any, price_per_cpu_hour: Any, setup_cost: Any,
+                    manual_labelling_rate_per_hour: Any, weight: Any, seed: Any, max_attempts: Any) -> _Settings:
+    """The money and run settings shared by :func:`create_campaign` and :func:`update_draft_campaign`."""
+    settings = _Settings(
+        cost_budget=_decimal(cost_budget, "cost_budget"),
+        price_per_cpu_hour=_decimal(price_per_cpu_hour, "price_per_cpu_hour"),
+        setup_cost=_decimal(setup_cost, "setup_cost"),
+        manual_labelling_rate_per_hour=_decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour"),
+        weight=weight, seed=seed, max_attempts=max_attempts,
+    )
+    if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
+        raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
+        raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
+    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
+        raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
+    return settings
+
+
+def _usable_assets(*, team_id: int | None) -> QuerySet[Asset]:
+    """Shared (team-less) assets and the team's own uploads; never another team's."""
+    return Asset.objects.filter(Q(team__isnull=True) | Q(team_id=team_id))
+
+
+def _check_fixed_cost(*, assets: Sequence[Asset], settings: _Settings) -> None:
+    fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=settings.setup_cost)
+    if fixed > settings.cost_budget:
+        raise CampaignError(f"cost_budget: {settings.cost_budget} is less than the fixed costs {fixed} "
+                            "(setup cost plus asset creation costs)")
+
+
 def create_campaign(
     *,
     owner: Any,
@@ -168,15 +262,7 @@ def create_campaign(
     description: str = "",
 ) -> Campaign:
     """Validate everything, then create a draft campaign with its quotas; nothing is written on bad input."""
-    if name is not None and not isinstance(name, str):
-        raise CampaignError(f"name: expected text, got {type(name).__name__}")
-    name = (name or "").strip()
-    if not name:
-        raise CampaignError("name: required")
-    if len(name) > 200:
-        raise CampaignError(f"name: at most 200 characters, got {len(name)}")
-    if "\x00" in name or "\x00" in (description or ""):
-        raise CampaignError("name: must not contain NUL characters")
+    name = _clean_name(name, description)
     from teams.permissions import PLANNER, has_role, personal_team
 
     if team is None:
@@ -186,66 +272,24 @@ def create_campaign(
     if Campaign.objects.filter(team=team, name=name).exists():
         raise CampaignError(f"name: team {team} already has a campaign called {name!r}")
     normalized = normalize_campaign_budget(budget)
-    cost_budget_d = _decimal(cost_budget, "cost_budget")
-    price_d = _decimal(price_per_cpu_hour, "price_per_cpu_hour")
-    setup_d = _decimal(setup_cost, "setup_cost")
-    manual_d = _decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour")
-    if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
-        raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
-    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
-        raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
-    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
-        raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
-    if not quotas:
-        raise CampaignError("quotas: at least one class quota is required")
-    for q in quotas:
-        if not isinstance(q, QuotaInput):
-            raise CampaignError(f"quotas: expected class quotas, got {type(q).__name__}")
-        if not isinstance(q.class_name, str):
-            raise CampaignError(f"quota: class name must be text, got {q.class_name!r}")
-    classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
-    seen: set[str] = set()
-    thresholds = normalized["thresholds"]
-    clean: list[tuple[ObjectClass, int, float, float]] = []
-    for q in quotas:
-        where = f"quota {q.class_name!r}"
-        if q.class_name not in classes:
-            raise CampaignError(f"{where}: unknown object class (create it first, e.g. with seed_demo)")
-        if q.class_name in seen:
-            raise CampaignError(f"{where}: listed twice")
-        seen.add(q.class_name)
-        if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
-            raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
-        if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
-            raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
-        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
-            q.min_visible_fraction, f"{where}: min visible fraction")
-        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
-        if not 0.0 <= vis <= 1.0:
-            raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
-        longest_side_px = max(normalized["render"]["width_px"], normalized["render"]["height_px"])
-        if not 0.0 <= box <= longest_side_px:
-            raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
-        clean.append((classes[q.class_name], q.target_accepted, vis, box))
-    if sum(t for _, t, _, _ in clean) == 0:
-        raise CampaignError("quotas: every target is 0; nothing to render")
-    # Shared (team-less) assets and the campaign team's uploads; never another team's.
-    usable = Asset.objects.filter(Q(team__isnull=True) | Q(team=team))
+    settings = _clean_settings(cost_budget=cost_budget, price_per_cpu_hour=price_per_cpu_hour, setup_cost=setup_cost,
+                               manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
+                               max_attempts=max_attempts)
+    clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
+    usable = _usable_assets(team_id=team.pk)
     if asset_ids is not None:
         wanted = set(asset_ids)
         assets = list(usable.filter(pk__in=wanted))
         if len(assets) != len(wanted):
             raise CampaignError(f"assets: {len(wanted) - len(assets)} asset(s) are unknown or belong to another team")
     else:
-        assets = list(usable.filter(object_class__name__in=list(seen)))
-    fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=setup_d)
-    if fixed > cost_budget_d:
-        raise CampaignError(f"cost_budget: {cost_budget_d} is less than the fixed costs {fixed} "
-                            "(setup cost plus asset creation costs)")
+        assets = list(usable.filter(object_class__name__in=[oc.name for oc, _, _, _ in clean]))
+    _check_fixed_cost(assets=assets, settings=settings)
     campaign = Campaign.objects.create(
-        name=name, team=team, owner=owner, description=description, seed=seed, budget=normalized, cost_budget=cost_budget_d,
-        price_per_cpu_hour=price_d, setup_cost=setup_d, manual_labelling_rate_per_hour=manual_d, weight=weight,
-        max_attempts=max_attempts,
+        name=name, team=team, owner=owner, description=description, seed=settings.seed, budget=normalized,
+        cost_budget=settings.cost_budget, price_per_cpu_hour=settings.price_per_cpu_hour,
+        setup_cost=settings.setup_cost, manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
+        weight=settings.weight, max_attempts=settings.max_attempts,
     )
     campaign.assets.set(assets)
     ClassQuota.objects.bulk_create([
@@ -717,45 +761,6 @@ def error_kind(error: str) -> str:
 ERROR_KIND_CHARS = 300
 
 
-def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]
-                        ) -> list[tuple[ObjectClass, int, float, float]]:
-    """The quota checks of :func:`create_campaign`, reusable by :func:`update_draft_campaign`."""
-    if not quotas:
-        raise CampaignError("quotas: at least one class quota is required")
-    for q in quotas:
-        if not isinstance(q, QuotaInput):
-            raise CampaignError(f"quotas: expected class quotas, got {type(q).__name__}")
-        if not isinstance(q.class_name, str):
-            raise CampaignError(f"quota: class name must be text, got {q.class_name!r}")
-    classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
-    thresholds = normalized_budget["thresholds"]
-    longest_side_px = max(normalized_budget["render"]["width_px"], normalized_budget["render"]["height_px"])
-    seen: set[str] = set()
-    clean: list[tuple[ObjectClass, int, float, float]] = []
-    for q in quotas:
-        where = f"quota {q.class_name!r}"
-        if q.class_name not in classes:
-            raise CampaignError(f"{where}: unknown object class")
-        if q.class_name in seen:
-            raise CampaignError(f"{where}: listed twice")
-        seen.add(q.class_name)
-        if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
-            raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
-        if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
-            raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
-        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
-            q.min_visible_fraction, f"{where}: min visible fraction")
-        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
-        if not 0.0 <= vis <= 1.0:
-            raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
-        if not 0.0 <= box <= longest_side_px:
-            raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
-        clean.append((classes[q.class_name], q.target_accepted, vis, box))
-    if sum(t for _, t, _, _ in clean) == 0:
-        raise CampaignError("quotas: every target is 0; nothing to render")
-    return clean
-
-
 @transaction.atomic
 def update_draft_campaign(
     *,
@@ -777,34 +782,22 @@ def update_draft_campaign(
     if campaign.status != Status.DRAFT:
         raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
                             "(the cost budget of a started campaign can still be changed)")
-    name = (name or "").strip()
-    if not name:
-        raise CampaignError("name: required")
+    name = _clean_name(name, description)
     if Campaign.objects.filter(team_id=campaign.team_id, name=name).exclude(pk=campaign.pk).exists():
         raise CampaignError(f"name: the team already has a campaign called {name!r}")
     normalized = normalize_campaign_budget(budget)
-    cost_budget_d = _decimal(cost_budget, "cost_budget")
-    price_d = _decimal(price_per_cpu_hour, "price_per_cpu_hour")
-    setup_d = _decimal(setup_cost, "setup_cost")
-    manual_d = _decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour")
-    if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
-        raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
-    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
-        raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
-    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
-        raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
+    settings = _clean_settings(cost_budget=cost_budget, price_per_cpu_hour=price_per_cpu_hour, setup_cost=setup_cost,
+                               manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
+                               max_attempts=max_attempts)
     clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
-    class_names = [oc.name for oc, _, _, _ in clean]
-    assets = list(Asset.objects.filter(object_class__name__in=class_names, team__isnull=True)) + list(
-        Asset.objects.filter(object_class__name__in=class_names, team_id=campaign.team_id))
-    fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=setup_d)
-    if fixed > cost_budget_d:
-        raise CampaignError(f"cost_budget: {cost_budget_d} is less than the fixed costs {fixed} "
-                            "(setup cost plus asset creation costs)")
+    assets = list(_usable_assets(team_id=campaign.team_id).filter(
+        object_class__name__in=[oc.name for oc, _, _, _ in clean]))
+    _check_fixed_cost(assets=assets, settings=settings)
     Campaign.objects.filter(pk=campaign.pk).update(
-        name=name, description=description, seed=seed, budget=normalized, cost_budget=cost_budget_d,
-        price_per_cpu_hour=price_d, setup_cost=setup_d, manual_labelling_rate_per_hour=manual_d, weight=weight,
-        max_attempts=max_attempts)
+        name=name, description=description, seed=settings.seed, budget=normalized, cost_budget=settings.cost_budget,
+        price_per_cpu_hour=settings.price_per_cpu_hour, setup_cost=settings.setup_cost,
+        manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour, weight=settings.weight,
+        max_attempts=settings.max_attempts)
     campaign.refresh_from_db()
     campaign.assets.set(assets)
     ClassQuota.objects.filter(campaign=campaign).delete()

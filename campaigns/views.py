@@ -645,9 +645,7 @@ def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
 
 @require_GET
 def asset_preview(request: HttpRequest, asset_id: int) -> FileResponse:
-    from teams.permissions import teams_for
-
-    asset = Asset.objects.filter(Q(team__isnull=True) | Q(team__in=teams_for(user=request.user)), pk=asset_id).first()
+    asset = scope_to_user(Asset.objects.all(), user=request.user, include_shared=True).filter(pk=asset_id).first()
     if asset is None:
         raise Http404("no such asset")
     path = asset_files.preview_path(asset.pk)

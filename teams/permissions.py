@@ -9,7 +9,7 @@ from __future__ import annotations
 from typing import Any
 
 from django.core.exceptions import PermissionDenied
-from django.db.models import QuerySet
+from django.db.models import Q, QuerySet
 from django.http import Http404
 
 from teams.models import Membership, Team
@@ -49,11 +49,18 @@ def teams_for(*, user: Any, role: str = VIEWER) -> QuerySet[Team]:
     return Team.objects.filter(memberships__user=user, memberships__role__in=roles).distinct()
 
 
-def scope_to_user(queryset: QuerySet, *, user: Any, team_field: str = "team", role: str = VIEWER) -> QuerySet:
-    """Restrict any queryset of team-owned rows to the user's teams."""
+def scope_to_user(queryset: QuerySet, *, user: Any, team_field: str = "team", role: str = VIEWER,
+                  include_shared: bool = False) -> QuerySet:
+    """Restrict any queryset of team-owned rows to the user's teams.
+
+    ``include_shared`` also keeps rows that belong to no team (the shared procedural asset library).
+    """
     if getattr(user, "is_superuser", False):
         return queryset
-    return queryset.filter(**{f"{team_field}__in": teams_for(user=user, role=role)})
+    mine = Q(**{f"{team_field}__in": teams_for(user=user, role=role)})
+    if include_shared:
+        mine |= Q(**{f"{team_field}__isnull": True})
+    return queryset.filter(mine)
 
 
 def get_for_user_or_404(queryset: QuerySet, *, user: Any, role: str = VIEWER, team_field: str = "team",
