@@ -67,6 +67,14 @@ class WorkerProcess:
 
 
 @pytest.fixture
+def media_root(settings, tmp_path) -> Path:
+    """A private, empty MEDIA_ROOT for this test."""
+    settings.MEDIA_ROOT = tmp_path / "media"
+    settings.MEDIA_ROOT.mkdir(exist_ok=True)
+    return settings.MEDIA_ROOT
+
+
+@pytest.fixture
 def render_worker_factory(transactional_db, tmp_path):
     """Start `manage.py render_worker` subprocesses that use the test database; stop them afterwards.
 

@@ -16,12 +16,6 @@ TINY_BUDGET = {
 
 
 @pytest.fixture
-def media_root(settings, tmp_path):
-    settings.MEDIA_ROOT = tmp_path / "media"
-    return settings.MEDIA_ROOT
-
-
-@pytest.fixture
 def user(transactional_db, django_user_model):
     return django_user_model.objects.create_user(username="ana", password="not-used-123")
 

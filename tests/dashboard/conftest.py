@@ -3,12 +3,13 @@ and campaigns with frames recorded through the services (real render-core files 
 
 from __future__ import annotations
 
-import json
-import shutil
 from decimal import Decimal
 from pathlib import Path
 
 import pytest
+
+from tests.frames import record_frames as record_plan
+from tests.frames import render_frame_plan
 
 TINY_BUDGET = {
     "render": {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3},
@@ -26,29 +27,7 @@ PLAN = [(0, 0, 0, {"chair": 2, "ottoman": 1}), (1, 0, 1, {"chair": 2, "ottoman":
 @pytest.fixture(scope="session")
 def rendered_frames(tmp_path_factory) -> dict[int, Path]:
     """Real render-core frames (64×48, 4 spp) with the seeds a worker would use, rendered once per session."""
-    from campaigns import planner
-    from campaigns.services import normalize_campaign_budget
-    from workers.render.frame import render_frame_from_inputs
-
-    budget = normalize_campaign_budget(TINY_BUDGET)
-    root = tmp_path_factory.mktemp("dash-rendered")
-    out = {}
-    for index, layout, view, composition in PLAN:
-        seeds = planner.frame_seeds(campaign_seed=SEED, index=index, layout_index=layout, lighting_index=0,
-                                    view_index=view)
-        folder = root / str(index)
-        render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
-                                 lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, out_dir=folder,
-                                 threads=2)
-        out[index] = folder
-    return out
-
-
-@pytest.fixture
-def media_root(settings, tmp_path) -> Path:
-    settings.MEDIA_ROOT = tmp_path / "media"
-    settings.MEDIA_ROOT.mkdir()
-    return settings.MEDIA_ROOT
+    return render_frame_plan(PLAN, budget=TINY_BUDGET, campaign_seed=SEED, root=tmp_path_factory.mktemp("dash-rendered"))
 
 
 @pytest.fixture
@@ -108,26 +87,7 @@ def outbox(monkeypatch):
 
 
 def record_frames(campaign, rendered, media_root: Path, plan=PLAN) -> list:
-    from django.db import transaction
-
-    from campaigns import services
-    from workers.tasks import frame_output_dir
-
-    frames = []
-    for index, layout, view, composition in plan:
-        with transaction.atomic():
-            frame = services.create_frame(campaign=campaign, index=index, coordinates=(layout, 0, view),
-                                          composition=composition, expected_cpu_s=0.5, task_id_prefix="dash")
-        claim = services.claim_frame(frame_id=frame.pk, dispatch_no=frame.dispatch_count, worker_host="w1@test")
-        assert claim.ok, claim.reason
-        absolute, relative = frame_output_dir(campaign_id=campaign.pk, index=index)
-        shutil.copytree(rendered[index], absolute)
-        labels = json.loads((Path(absolute) / "labels.json").read_text())
-        assert services.record_result(frame_id=frame.pk, dispatch_no=frame.dispatch_count,
-                                      labels=labels["instances"], cpu_s=0.4, wall_s=0.5, output_dir=relative,
-                                      worker_host="w1@test")
-        frames.append(frame)
-    return frames
+    return record_plan(campaign, rendered, plan, media_root, worker_host="w1@test", task_id_prefix="dash")
 
 
 def fail_frame(campaign, *, index: int, error: str, permanent: bool = True, traceback: str = "Traceback ...\n"):

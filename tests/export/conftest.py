@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-import json
-import shutil
 from decimal import Decimal
 from pathlib import Path
 
 import pytest
+
+from tests.frames import record_frames as record_plan
+from tests.frames import render_frame_plan
 
 CAMPAIGN_SEED = 23
 TINY_BUDGET = {
@@ -33,29 +34,8 @@ FRAME_PLAN = [
 @pytest.fixture(scope="session")
 def rendered_frames(tmp_path_factory) -> dict[int, Path]:
     """Render FRAME_PLAN once per session with the seeds a worker would use; index → folder of its files."""
-    from campaigns import planner
-    from campaigns.services import normalize_campaign_budget
-    from workers.render.frame import render_frame_from_inputs
-
-    budget = normalize_campaign_budget(TINY_BUDGET)
-    root = tmp_path_factory.mktemp("rendered")
-    out = {}
-    for index, layout, view, composition in FRAME_PLAN:
-        seeds = planner.frame_seeds(campaign_seed=CAMPAIGN_SEED, index=index, layout_index=layout,
-                                    lighting_index=0, view_index=view)
-        folder = root / str(index)
-        render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
-                                 lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, out_dir=folder,
-                                 threads=2)
-        out[index] = folder
-    return out
-
-
-@pytest.fixture
-def media_root(settings, tmp_path) -> Path:
-    settings.MEDIA_ROOT = tmp_path / "media"
-    settings.MEDIA_ROOT.mkdir()
-    return settings.MEDIA_ROOT
+    return render_frame_plan(FRAME_PLAN, budget=TINY_BUDGET, campaign_seed=CAMPAIGN_SEED,
+                             root=tmp_path_factory.mktemp("rendered"))
 
 
 @pytest.fixture
@@ -84,25 +64,7 @@ def make_campaign(owner, object_classes):
 
 
 def record_frames(campaign, rendered: dict[int, Path], plan, media_root: Path) -> None:
-    """Create, claim and record frames through the services, with the render core's files in MEDIA_ROOT."""
-    from django.db import transaction
-
-    from campaigns import services
-    from workers.tasks import frame_output_dir
-
-    for index, layout, view, composition in plan:
-        with transaction.atomic():
-            frame = services.create_frame(campaign=campaign, index=index, coordinates=(layout, 0, view),
-                                          composition=composition, expected_cpu_s=0.5, task_id_prefix="export-test")
-        claim = services.claim_frame(frame_id=frame.pk, dispatch_no=frame.dispatch_count, worker_host="test")
-        assert claim.ok, claim.reason
-        absolute, relative = frame_output_dir(campaign_id=campaign.pk, index=index)
-        assert Path(absolute).is_relative_to(media_root)
-        shutil.copytree(rendered[index], absolute)
-        labels = json.loads((Path(absolute) / "labels.json").read_text())
-        assert services.record_result(frame_id=frame.pk, dispatch_no=frame.dispatch_count,
-                                      labels=labels["instances"], cpu_s=0.4, wall_s=0.5, output_dir=relative,
-                                      worker_host="test")
+    record_plan(campaign, rendered, plan, media_root, worker_host="test", task_id_prefix="export-test")
 
 
 @pytest.fixture
