@@ -38,6 +38,8 @@ from typing import Any
 
 import numpy as np
 
+from .rounding import round_floats
+
 #: ISO 2720 / ISO 12232 lens transmittance × vignetting × cos⁴ factor in H = q L t / N².
 LENS_FACTOR_Q = 0.65
 #: ISO 12232 saturation-based speed: H_sat = 78 / S (lux·s).
@@ -57,18 +59,6 @@ OBJECT_MARGIN_M = 0.15
 CLOSE_OBJECT_M = 0.8
 _POSITION_CANDIDATES = 24
 _POSITION_TRIES = 200
-
-
-def _round6(value: Any) -> Any:
-    """Round floats (and nested lists of them) to 6 decimals for byte-stable JSON."""
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_round6(v) for v in value]
-    if isinstance(value, (float, np.floating)):
-        rounded = round(float(value), 6)
-        return 0.0 if rounded == 0 else rounded
-    if isinstance(value, np.integer):
-        return int(value)
-    return value
 
 
 # ---------------------------------------------------------------------------------------------------------------------
@@ -751,17 +741,17 @@ def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[di
     focus_distance_m = float(np.linalg.norm(target - position)) * (1.0 + _uniform(rng, (-jitter, jitter)))
     shutter = cam["shutter_s"]
     return {
-        "position_m": _round6(position),
-        "target_m": _round6(target),
+        "position_m": round_floats(position),
+        "target_m": round_floats(target),
         "up": [0.0, 0.0, 1.0],
-        "focal_length_mm": _round6(focal_length_mm),
-        "sensor_width_mm": _round6(sensor_width_mm),
-        "f_number": _round6(f_number),
-        "focus_distance_m": _round6(max(focus_distance_m, 0.05)),
-        "iso": _round6(iso),
-        "iso_limits": _round6([float(cam["iso"][0]), float(cam["iso"][1])]),
-        "exposure_compensation_ev": _round6(compensation_ev),
-        "shutter_limits_s": _round6([float(shutter[0]), float(shutter[1])]),
-        "full_well_electrons": _round6(float(cam["full_well_electrons"])),
-        "read_noise_electrons": _round6(float(cam["read_noise_electrons"])),
+        "focal_length_mm": round_floats(focal_length_mm),
+        "sensor_width_mm": round_floats(sensor_width_mm),
+        "f_number": round_floats(f_number),
+        "focus_distance_m": round_floats(max(focus_distance_m, 0.05)),
+        "iso": round_floats(iso),
+        "iso_limits": round_floats([float(cam["iso"][0]), float(cam["iso"][1])]),
+        "exposure_compensation_ev": round_floats(compensation_ev),
+        "shutter_limits_s": round_floats([float(shutter[0]), float(shutter[1])]),
+        "full_well_electrons": round_floats(float(cam["full_well_electrons"])),
+        "read_noise_electrons": round_floats(float(cam["read_noise_electrons"])),
     }

@@ -34,6 +34,8 @@ from typing import Any
 
 import numpy as np
 
+from .rounding import round_floats
+
 STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "labels", "encode")
 # PNG zlib level 1 (fast). Measured at 640×480: the noisy RGB frame compresses best *and* fastest
 # with the Huffman-only strategy (15 ms, 420 KB vs 19 ms, 497 KB at the default strategy); the
@@ -167,12 +169,6 @@ def write_frame_files(result: FrameResult, out_dir: Path, *, spec_json: str | No
     return files
 
 
-def _round6(value: Any) -> Any:
-    from .spec import _round_floats
-
-    return _round_floats(value)
-
-
 def render_frame(
     spec: dict[str, Any],
     *,
@@ -226,7 +222,7 @@ def render_frame(
 
     start = time.perf_counter()
     rgb, exposure = expose(radiance, spec["camera"], rng=axis_rng(spec["sub_seeds"], "noise"))
-    labels = _round6({
+    labels = round_floats({
         "image": {"width_px": built.width_px, "height_px": built.height_px},
         "camera": {"K": built.k_matrix, "R": built.rotation, "t": built.translation,
                    "convention": "OpenCV: X_cam = R X_world + t; pixel centres at integer + 0.5"},

@@ -27,17 +27,13 @@ import numpy as np
 from pycocotools import mask as mask_utils
 
 from .camera import NEAR_CLIP_M
+from .rounding import round_floats
 
 #: Largest canvas (pixels) and most (triangle, row) pairs for an exact unbounded count.
 MAX_CANVAS_PX = 4_000_000
 MAX_SPAN_PAIRS = 300_000
 #: Pixel coordinates are clipped to ± this (far beyond any frame) to keep integer arithmetic safe.
 _COORD_LIMIT = float(2**36)
-
-
-def _round6(value: float) -> float:
-    rounded = round(float(value), 6)
-    return 0.0 if rounded == 0 else rounded
 
 
 # ---------------------------------------------------------------------------------------------------------------------
@@ -344,7 +340,7 @@ def instance_labels(
         projected = project_triangles(tris, R, t, K, near_m=near_m) if tris is not None else np.zeros((0, 3, 2))
         if len(projected):
             lo, hi = projected.reshape(-1, 2).min(axis=0), projected.reshape(-1, 2).max(axis=0)
-            amodal = [_round6(lo[0]), _round6(lo[1]), _round6(hi[0] - lo[0]), _round6(hi[1] - lo[1])]
+            amodal = [round_floats(lo[0]), round_floats(lo[1]), round_floats(hi[0] - lo[0]), round_floats(hi[1] - lo[1])]
         else:
             amodal = None
         in_frame_px, alone_px = coverage_px(projected, width_px, height_px)
@@ -375,10 +371,10 @@ def instance_labels(
             "amodal_bbox": amodal,
             "mask_area_px": area,
             "alone_in_frame_px": int(in_frame_px),
-            "alone_px": _round6(alone_px),
-            "visible_fraction": _round6(min(max(visible_fraction, 0.0), 1.0)),
-            "occlusion_fraction": _round6(min(max(occlusion, 0.0), 1.0)),
-            "truncation_fraction": _round6(min(max(truncation, 0.0), 1.0)),
+            "alone_px": round_floats(alone_px),
+            "visible_fraction": round_floats(min(max(visible_fraction, 0.0), 1.0)),
+            "occlusion_fraction": round_floats(min(max(occlusion, 0.0), 1.0)),
+            "truncation_fraction": round_floats(min(max(truncation, 0.0), 1.0)),
             "segmentation": mask_to_rle(mask),
             "accepted": not reasons,
             "reject_reasons": reasons,

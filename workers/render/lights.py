@@ -29,6 +29,8 @@ from typing import Any
 
 import numpy as np
 
+from .rounding import round_floats
+
 #: CIE XYZ → linear sRGB (IEC 61966-2-1:1999, D65 white, BT.709 primaries).
 XYZ_TO_LINEAR_SRGB = np.array([
     [3.2406, -1.5372, -0.4986],
@@ -54,17 +56,6 @@ OBJECT_MARGIN_M = 0.2
 
 #: Outward normal azimuth (degrees, counter-clockwise from +x) of each wall.
 WALL_OUTWARD_AZIMUTH_DEG = {"east": 0.0, "north": 90.0, "west": 180.0, "south": 270.0}
-
-
-def _round6(value: Any) -> Any:
-    if isinstance(value, (list, tuple, np.ndarray)):
-        return [_round6(v) for v in value]
-    if isinstance(value, (float, np.floating)):
-        rounded = round(float(value), 6)
-        return 0.0 if rounded == 0 else rounded
-    if isinstance(value, np.integer):
-        return int(value)
-    return value
 
 
 # ---------------------------------------------------------------------------------------------------------------------
@@ -461,4 +452,4 @@ def sample_lights(budget: dict[str, Any], room: dict[str, Any], objects: list[di
         # A budget flux range of [0, 0] would still leave the frame black.
         lights[0]["flux_lm"] = FALLBACK_LAMP_FLUX_LM
     lights.extend(daylight)
-    return [{key: _round6(value) for key, value in light.items()} for light in lights]
+    return [{key: round_floats(value) for key, value in light.items()} for light in lights]

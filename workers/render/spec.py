@@ -17,16 +17,15 @@ spec and rendering its JSON later give the same frame.
 from __future__ import annotations
 
 import json
-import math
 from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 
 from .budget import normalize_budget
+from .rounding import round_floats
 
 SPEC_FORMAT_VERSION = 1
-FLOAT_DECIMALS = 6
 AXES: tuple[str, ...] = ("layout", "lighting", "camera", "noise")
 # A sub-seed is a 32-bit unsigned integer: exact in JSON and in JavaScript.
 _SEED_MAX = 2**32
@@ -36,32 +35,9 @@ class SpecError(ValueError):
     """Bad spec inputs that retrying cannot fix: composition (unknown class, bad count), seeds, spec version."""
 
 
-def _round_floats(value: Any) -> Any:
-    """Plain JSON types with floats rounded to :data:`FLOAT_DECIMALS` (−0.0 → 0.0)."""
-    if isinstance(value, dict):
-        return {str(k): _round_floats(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_round_floats(v) for v in value]
-    if isinstance(value, np.ndarray):
-        return [_round_floats(v) for v in value.tolist()]
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        number = float(value)
-        if not math.isfinite(number):
-            raise ValueError(f"spec: non-finite number {number!r}")
-        rounded = round(number, FLOAT_DECIMALS)
-        return 0.0 if rounded == 0 else rounded
-    if value is None or isinstance(value, str):
-        return value
-    raise TypeError(f"spec: {type(value).__name__} is not a JSON type")
-
-
 def spec_to_json(spec: dict[str, Any]) -> str:
     """Canonical JSON text: sorted keys, compact separators, floats rounded. Same spec → same bytes."""
-    return json.dumps(_round_floats(spec), sort_keys=True, separators=(",", ":"), ensure_ascii=False,
+    return json.dumps(round_floats(spec), sort_keys=True, separators=(",", ":"), ensure_ascii=False,
                       allow_nan=False)
 
 
@@ -173,16 +149,16 @@ def make_spec(
                                  camera_seed=camera_seed)
 
     layout_rng = axis_rng(sub_seeds, "layout")
-    room = _round_floats(sample_room(normalized, layout_rng))
+    room = round_floats(sample_room(normalized, layout_rng))
     clean_user_assets = _clean_user_assets(user_assets, clean_composition)
     asset_specs = [_sample_object(name, layout_rng, clean_user_assets.get(name, ()))
                    for name, count in clean_composition.items() for _ in range(count)]
     objects = place_objects(room, asset_specs, layout_rng,
                             max_objects_per_m2=normalized["room"]["max_objects_per_m2"])
-    objects = _round_floats(objects)
+    objects = round_floats(objects)
 
-    lights = _round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
-    camera = _round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera")))
+    lights = round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
+    camera = round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera")))
 
     spec = {
         "format_version": SPEC_FORMAT_VERSION,
