@@ -237,6 +237,13 @@ def _usable_assets(*, team_id: int | None) -> QuerySet[Asset]:
     return Asset.objects.filter(Q(team__isnull=True) | Q(team_id=team_id))
 
 
+def _write_quotas(*, campaign: Campaign, clean: Sequence[tuple[ObjectClass, int, float, float]]) -> None:
+    ClassQuota.objects.bulk_create([
+        ClassQuota(campaign=campaign, object_class=oc, target_accepted=t, min_visible_fraction=v, min_box_px=b)
+        for oc, t, v, b in clean
+    ])
+
+
 def _check_fixed_cost(*, assets: Sequence[Asset], settings: _Settings) -> None:
     fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=settings.setup_cost)
     if fixed > settings.cost_budget:
@@ -292,10 +299,7 @@ def create_campaign(
         weight=settings.weight, max_attempts=settings.max_attempts,
     )
     campaign.assets.set(assets)
-    ClassQuota.objects.bulk_create([
-        ClassQuota(campaign=campaign, object_class=oc, target_accepted=t, min_visible_fraction=v, min_box_px=b)
-        for oc, t, v, b in clean
-    ])
+    _write_quotas(campaign=campaign, clean=clean)
     _event(campaign_id=campaign.pk, to_state=Status.DRAFT, detail="created")
     return campaign
 
@@ -801,10 +805,7 @@ def update_draft_campaign(
     campaign.refresh_from_db()
     campaign.assets.set(assets)
     ClassQuota.objects.filter(campaign=campaign).delete()
-    ClassQuota.objects.bulk_create([
-        ClassQuota(campaign=campaign, object_class=oc, target_accepted=t, min_visible_fraction=v, min_box_px=b)
-        for oc, t, v, b in clean
-    ])
+    _write_quotas(campaign=campaign, clean=clean)
     _event(campaign_id=campaign.pk, from_state=Status.DRAFT, to_state=Status.DRAFT, detail="edited")
     return campaign
 
