@@ -38,6 +38,9 @@ if ! $PY manage.py healthcheck --wait 180 --url "http://$HOST:$PORT/login/"; the
   exit 1
 fi
 echo "Evenframe is up in $(( $(date +%s) - started )) s: http://$HOST:$PORT/  (Ctrl-C stops it)"
+# Previews of the procedural assets for the asset library (rendered once; skipped when they exist).
+setsid $PY manage.py asset_previews > "$LOGS/demo-previews.log" 2>&1 &
+pids+=($!)
 # Start (or resume) the demo campaign now that a worker is live, so dispatch is sized for it.
 $PY manage.py seed_demo --start | tail -1
 echo "progress: .venv/bin/python manage.py campaign status   (web: http://$HOST:$PORT/campaigns/)"
