@@ -16,7 +16,7 @@ from pathlib import Path
 import pytest
 
 # The campaigns suite's fixtures (user, classes, make_campaign, media_root) and its 64×48 px, 4 spp budget.
-from tests.campaigns.conftest import TINY_BUDGET, classes, make_campaign, media_root, user  # noqa: F401
+from tests.campaigns.conftest import TINY_BUDGET, classes, make_campaign, user  # noqa: F401
 
 # Workers in these tests notice a dead peer within seconds: heartbeat every 1 s (set by the factory), a peer
 # is dead 4 s after its last beat, and every worker sweeps every second.
