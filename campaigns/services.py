@@ -38,6 +38,8 @@ log = logging.getLogger("evenframe.campaigns")
 MAX_CAMPAIGN_PIXELS = 1920 * 1080
 MAX_CAMPAIGN_SPP = 1024
 MAX_TARGET_ACCEPTED = 1_000_000
+# The form's limit too; far below what the database integer holds, so no weight reaches it as an overflow.
+MAX_WEIGHT = 1000
 RETRY_BACKOFF_BASE_S = 2.0
 RETRY_BACKOFF_MAX_S = 300.0
 
@@ -223,8 +225,8 @@ def _clean_settings(*, cost_budget: Any, price_per_cpu_hour: Any, setup_cost: An
         manual_labelling_rate_per_hour=_decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour"),
         weight=weight, seed=seed, max_attempts=max_attempts,
     )
-    if isinstance(weight, bool) or not isinstance(weight, int) or weight < 1:
-        raise CampaignError(f"weight: must be a whole number ≥ 1, got {weight!r}")
+    if isinstance(weight, bool) or not isinstance(weight, int) or not 1 <= weight <= MAX_WEIGHT:
+        raise CampaignError(f"weight: must be a whole number from 1 to {MAX_WEIGHT}, got {weight!r}")
     if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
         raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
     if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:

@@ -32,7 +32,8 @@ pytestmark = pytest.mark.django_db(transaction=True)
         ({"quotas": []}, "at least one class quota"),
         ({"cost_budget": "-5"}, "cost_budget: must be at least 0"),
         ({"price_per_cpu_hour": "abc"}, "price_per_cpu_hour: expected a number"),
-        ({"weight": 0}, "weight: must be a whole number ≥ 1"),
+        ({"weight": 0}, "weight: must be a whole number from 1 to 1000"),
+        ({"weight": 10**20}, "weight: must be a whole number from 1 to 1000"),  # once a database overflow
         ({"setup_cost": "500"}, "less than the fixed costs"),
     ],
 )
