@@ -31,7 +31,7 @@ class BudgetError(ValueError):
 class Field:
     section: str
     name: str
-    kind: str  # "range" (float [lo, hi]), "int_range", "float", "int", "probability"
+    kind: str  # "range" (float [lo, hi]), "int_range", "float", "int", "probability", "bool" (a switch)
     unit: str
     lower: float  # physical lower bound (inclusive)
     upper: float  # physical upper bound (inclusive)
@@ -46,7 +46,11 @@ FIELDS: tuple[Field, ...] = (
     Field("render", "width_px", "int", "px", 16, MAX_RESOLUTION_PX, "Image width in pixels."),
     Field("render", "height_px", "int", "px", 16, MAX_RESOLUTION_PX, "Image height in pixels."),
     Field("render", "spp", "int", "samples", 1, MAX_SPP,
-          "Path-tracing samples per pixel: more is less noisy and slower, linearly."),
+          "Path-tracing samples per pixel: more is less noisy and slower, linearly. With the denoiser on, "
+          "4 already gives clean frames (python -m workers.render.bench_quality measures it)."),
+    Field("render", "denoise", "bool", "", 0, 1,
+          "Denoise the linear render (Intel Open Image Denoise, with albedo and normal images) before "
+          "exposure and sensor noise. Off: the raw path-traced noise stays in the image."),
     Field("render", "max_depth", "int", "bounces", 2, 64,
           "Longest light path; fewer bounces give darker corners and faster frames."),
     # room
@@ -109,11 +113,17 @@ FIELDS: tuple[Field, ...] = (
           "Electrons at sensor saturation at base ISO; smaller wells show more shot noise."),
     Field("camera", "read_noise_electrons", "float", "e⁻", 0.0, 100.0,
           "Read noise of the sensor; dominates in the shadows at high ISO."),
+    Field("camera", "sensor_noise", "bool", "", 0, 1,
+          "Add the sensor's shot and read noise (seeded per frame). Off gives clean reference images."),
     # thresholds
     Field("thresholds", "min_visible_fraction", "float", "", 0.0, 1.0,
           "Instances less visible than this (occluded or cut by the frame) are not accepted."),
     Field("thresholds", "min_box_px", "float", "px", 0.0, 4096.0,
           "Instances whose visible box has a side shorter than this are not accepted."),
+    Field("thresholds", "min_contrast", "float", "", 0.0, 1000.0,
+          "Instances that do not stand out from their surroundings in the final image are not accepted: "
+          "colour difference ΔE*ab between the object and a thin ring around it, divided by the image "
+          "noise (at least 1 ΔE). 0 accepts invisible objects."),
     # variation
     Field("variation", "layouts", "int", "", 1, 10_000_000, "Distinct room layouts."),
     Field("variation", "lighting_per_layout", "int", "", 1, 10_000, "Lighting variants per layout."),
@@ -121,7 +131,7 @@ FIELDS: tuple[Field, ...] = (
 )
 
 DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
-    "render": {"width_px": 640, "height_px": 480, "spp": 32, "max_depth": 6},
+    "render": {"width_px": 640, "height_px": 480, "spp": 4, "max_depth": 6, "denoise": True},
     "room": {
         "width_m": [3.0, 6.0],
         "depth_m": [3.0, 6.0],
@@ -157,8 +167,9 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "exposure_compensation_ev": [-0.7, 0.7],
         "full_well_electrons": 30000.0,
         "read_noise_electrons": 3.0,
+        "sensor_noise": True,
     },
-    "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0},
+    "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0, "min_contrast": 2.0},
     "variation": {"layouts": 1000, "lighting_per_layout": 2, "views_per_lighting": 2},
 }
 
@@ -179,6 +190,10 @@ def _number(value: Any, where: str, *, integer: bool) -> float | int:
 
 def _check_field(field: Field, value: Any) -> Any:
     where = f"{field.section}.{field.name}"
+    if field.kind == "bool":
+        if not isinstance(value, bool):
+            raise BudgetError(f"{where}: expected true or false, got {value!r}")
+        return value
     integer = field.kind in ("int", "int_range")
     unit = f" {field.unit}" if field.unit else ""
     if field.kind in ("range", "int_range"):

@@ -754,4 +754,5 @@ def sample_camera(budget: dict[str, Any], room: dict[str, Any], objects: list[di
         "shutter_limits_s": round_floats([float(shutter[0]), float(shutter[1])]),
         "full_well_electrons": round_floats(float(cam["full_well_electrons"])),
         "read_noise_electrons": round_floats(float(cam["read_noise_electrons"])),
+        "sensor_noise": bool(cam.get("sensor_noise", True)),
     }

@@ -7,13 +7,22 @@ Stages (``FrameResult.timings_s`` has exactly these keys, seconds):
 ``scene_build``
     procedural meshes, BSDFs, emitters, ``mi.load_dict`` (acceleration structure);
 ``render``
-    Mitsuba's ``mi.render`` of the RGB pass, alone;
+    Mitsuba's ``mi.render`` of the RGB pass (radiance with the albedo and normal images; plus the
+    sun's own pass when the sky enters through window portals);
+``denoise``
+    Intel Open Image Denoise on the linear radiance (0 when the budget turns it off);
 ``label_pass``
     the ``aov`` render (shape index + depth) and its mapping to instance ids / z-depth;
 ``labels``
     per-instance boxes, visibility, truncation, RLE;
 ``encode``
-    exposure (metering), sensor noise, sRGB OETF, 8-bit quantization and, with ``out_dir``, the files.
+    exposure (metering, auto-ISO), sensor noise, sRGB OETF, 8-bit quantization, the per-instance
+    photometric visibility (contrast) and, with ``out_dir``, the files.
+
+The image pipeline: path-traced linear radiance (box filter, sky through window portals) →
+denoise (linear HDR, with albedo and shading-normal images) → exposure → sensor noise → sRGB
+8-bit. Denoising comes before exposure and noise so that the sensor noise stays a physical,
+seeded randomization on top of a clean image.
 
 Exposure: the HDR render's Y channel is luminance in cd/m². The shutter time is
 metered from its mean with the ISO 2720 reflected-light equation
@@ -36,7 +45,7 @@ import numpy as np
 
 from .rounding import round_floats
 
-STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "labels", "encode")
+STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "denoise", "label_pass", "labels", "encode")
 # PNG zlib level 1 (fast). Measured at 640×480: the noisy RGB frame compresses best *and* fastest
 # with the Huffman-only strategy (15 ms, 420 KB vs 19 ms, 497 KB at the default strategy); the
 # instance image is mostly runs, where the default strategy is already 4 ms and 5 KB.
@@ -78,14 +87,71 @@ def snap_shutter_s(shutter_s: float, stops_per_ev: int = SHUTTER_STOPS_PER_EV) -
     return float(f"{2.0 ** (step / stops_per_ev):.6g}")
 
 
+def auto_exposure(mean_luminance_cd_m2: float, camera: dict[str, Any]) -> dict[str, Any]:
+    """Shutter time and ISO a camera in program mode with auto-ISO picks for a scene of this mean luminance.
+
+    The meter (ISO 2720, K = 12.5) asks for ``t = K N² 2^EC / (L S)`` at the sampled ISO S, snapped to
+    the 1/3-stop shutter grid. When that time is outside the budget's shutter limits, the ISO moves
+    first — up when the longest shutter is too short, *down* when the shortest shutter is too long —
+    to the nearest marked 1/3-stop speed (ISO 12232) inside the budget's ISO range that brings the
+    time back inside; only what the ISO range cannot absorb is left to the shutter clamp. The
+    residual ``exposure_error_ev`` = log2(t_used / t_metered at the final ISO) is recorded (positive:
+    over-exposed). With the ISO range allowing it, |error| ≤ 1/6 stop (the snapping).
+
+    Returns ``shutter_s``, ``metered_shutter_s`` (at the final ISO, before the clamp), ``iso``,
+    ``exposure_error_ev`` and ``limited_by`` (None, ``"shortest shutter"`` or ``"longest shutter"``).
+
+    References
+    ----------
+    ISO 2720:1974 (reflected-light meter, K = 12.5); ISO 12232:2019 (speed series in 1/3 stops).
+    """
+    from . import camera as cam
+
+    f_number = float(camera["f_number"])
+    iso = float(camera["iso"])
+    compensation_ev = float(camera.get("exposure_compensation_ev", 0.0))
+    lo_s, hi_s = (float(v) for v in camera["shutter_limits_s"])
+    iso_lo, iso_hi = (float(v) for v in camera.get("iso_limits", (iso, iso)))
+
+    def meter(speed: float) -> float:
+        return snap_shutter_s(cam.metered_shutter_s(mean_luminance_cd_m2, f_number, speed,
+                                                    compensation_ev=compensation_ev, shutter_limits_s=(1e-300, 1e300)))
+
+    if not mean_luminance_cd_m2 > 0:
+        return {"shutter_s": hi_s, "metered_shutter_s": hi_s, "iso": iso, "exposure_error_ev": 0.0,
+                "limited_by": "longest shutter"}
+    metered = meter(iso)
+    if metered > hi_s and iso < iso_hi:
+        # Up the 1/3-stop series from the smallest speed that should do, until the (snapped) time fits.
+        needed = min(iso * metered / hi_s, iso_hi)
+        speeds = [v for v in cam.nominal_iso_values(iso, iso_hi) if v >= needed * (1 - 1e-9)] or [iso_hi]
+        for speed in [*speeds, iso_hi]:
+            iso, metered = float(speed), meter(speed)
+            if metered <= hi_s:
+                break
+    elif metered < lo_s and iso > iso_lo:
+        needed = max(iso * metered / lo_s, iso_lo)
+        speeds = [v for v in cam.nominal_iso_values(iso_lo, iso) if v <= needed * (1 + 1e-9)] or [iso_lo]
+        for speed in [*reversed(speeds), iso_lo]:
+            iso, metered = float(speed), meter(speed)
+            if metered >= lo_s:
+                break
+    shutter_s = min(max(metered, lo_s), hi_s)
+    limited_by = "shortest shutter" if metered < lo_s else "longest shutter" if metered > hi_s else None
+    return {"shutter_s": shutter_s, "metered_shutter_s": metered, "iso": iso,
+            "exposure_error_ev": math.log2(shutter_s / metered), "limited_by": limited_by}
+
+
 def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.Generator,
            noise: bool = True) -> tuple[np.ndarray, dict[str, Any]]:
     """Meter, expose, add sensor noise, clip and sRGB-encode a linear render (Y in cd/m²).
 
-    Returns the uint8 (H, W, 3) image and the exposure actually used (``shutter_s``,
-    ``metered_shutter_s`` before the limits, ``ev100``, ``iso``, ``f_number``,
-    ``exposure_compensation_ev``). Every stored number derives from the snapped shutter time and
-    the spec, never from the raw float mean.
+    Exposure is :func:`auto_exposure`; sensor noise (shot + read, EMVA 1288 model) is added when
+    ``noise`` and the camera's ``sensor_noise`` switch (default on) are both true. Returns the uint8
+    (H, W, 3) image and the exposure actually used (``shutter_s``, ``metered_shutter_s``,
+    ``exposure_error_ev``, ``limited_by``, ``ev100``, ``iso``, ``iso_sampled``, ``f_number``,
+    ``exposure_compensation_ev``, ``sensor_noise``). Every stored number derives from the snapped
+    shutter time and the spec, never from the raw float mean.
 
     References
     ----------
@@ -95,42 +161,28 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
     from . import camera as cam
 
     f_number = float(camera["f_number"])
-    iso = float(camera["iso"])
-    compensation_ev = float(camera.get("exposure_compensation_ev", 0.0))
-    lo_s, hi_s = (float(v) for v in camera["shutter_limits_s"])
     mean_luminance = float(cam.luminance_cd_m2(radiance_rgb).mean(dtype=np.float64))
-    iso_lo, iso_hi = (float(v) for v in camera.get("iso_limits", (iso, iso)))
-    if mean_luminance > 0:
-        metered = cam.metered_shutter_s(mean_luminance, f_number, iso, compensation_ev=compensation_ev,
-                                        shutter_limits_s=(1e-300, 1e300))
-        metered = snap_shutter_s(metered)
-        if metered > hi_s and iso < iso_hi:
-            # Auto-ISO, as cameras do: the longest allowed shutter is not enough, so raise the
-            # sensitivity (in marked 1/3-stop steps, up to the budget's limit) before underexposing.
-            needed = min(iso * metered / hi_s, iso_hi)
-            candidates = [v for v in cam.nominal_iso_values(iso, iso_hi) if v >= needed] or [iso_hi]
-            iso = float(min(candidates))
-            metered = snap_shutter_s(cam.metered_shutter_s(mean_luminance, f_number, iso,
-                                                           compensation_ev=compensation_ev,
-                                                           shutter_limits_s=(1e-300, 1e300)))
-    else:
-        metered = hi_s
-    shutter_s = min(max(metered, lo_s), hi_s)
+    chosen = auto_exposure(mean_luminance, camera)
+    shutter_s, iso = chosen["shutter_s"], chosen["iso"]
     scale = cam.exposure_scale(f_number, shutter_s, iso)
     signal = np.asarray(radiance_rgb, dtype=np.float32)[..., :3] * np.float32(scale)
-    if noise:
+    with_noise = bool(noise) and bool(camera.get("sensor_noise", True))
+    if with_noise:
         signal = cam.apply_sensor_noise(signal, iso, full_well_electrons=float(camera["full_well_electrons"]),
                                         read_noise_electrons=float(camera["read_noise_electrons"]), rng=rng)
     rgb = cam.encode_srgb_8bit(signal)
     exposure = {
         "shutter_s": round(shutter_s, 9),
-        "metered_shutter_s": round(metered, 9),
+        "metered_shutter_s": round(chosen["metered_shutter_s"], 9),
+        "exposure_error_ev": round(chosen["exposure_error_ev"], 6),
+        "limited_by": chosen["limited_by"],
         "ev100": round(cam.ev100(f_number, shutter_s, iso), 6),
         "iso": iso,
         "iso_sampled": float(camera["iso"]),
         "f_number": f_number,
-        "exposure_compensation_ev": compensation_ev,
-        "metering": "ISO 2720 average, K=12.5, 1/3-stop, auto-ISO",
+        "exposure_compensation_ev": float(camera.get("exposure_compensation_ev", 0.0)),
+        "sensor_noise": with_noise,
+        "metering": "ISO 2720 average, K=12.5, 1/3-stop, auto-ISO up and down",
     }
     return rgb, exposure
 
@@ -176,6 +228,7 @@ def render_frame(
     variant: str | None = None,
     threads: int | None = None,
     spec_s: float = 0.0,
+    window_light: str = "portal",
 ) -> FrameResult:
     """Render a spec from :func:`workers.render.spec.make_spec` (or its JSON read back).
 
@@ -191,23 +244,36 @@ def render_frame(
         Dr.Jit thread-pool size.
     spec_s : float
         Time already spent making the spec, reported as the ``spec`` stage.
+    window_light : str
+        ``portal`` (default) or ``dome``: how sky light enters (see :func:`workers.render.scene.build_scene`).
     """
     from . import labels as labels_module
     from .backend import init_renderer
-    from .scene import build_scene, render_label_pass, render_rgb
+    from .scene import build_scene, render_label_pass, render_radiance
     from .spec import axis_rng
 
     timings = dict.fromkeys(STAGES, 0.0)
     timings["spec"] = float(spec_s)
+    render = spec["render"]
+    # Specs written before the denoiser existed have no switch: they render as they did, raw.
+    wants_denoise = bool(render.get("denoise", False))
 
     start = time.perf_counter()
     choice = init_renderer(variant=variant, threads=threads)
-    built = build_scene(spec)
+    built = build_scene(spec, window_light=window_light)
     timings["scene_build"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    radiance = render_rgb(built, seed=spec["sub_seeds"]["noise"])
+    radiance_pass = render_radiance(built, seed=spec["sub_seeds"]["noise"], aux=wants_denoise)
+    radiance = radiance_pass.radiance_rgb
     timings["render"] = time.perf_counter() - start
+
+    start = time.perf_counter()
+    render_info = denoise_radiance(radiance_pass, wanted=wants_denoise, threads=threads)
+    radiance_out = render_info.pop("_radiance")
+    render_info.update({"spp": int(render["spp"]), "window_light": built.window_light,
+                        "sun_pass": built.sun_scene is not None, "reconstruction_filter": "box"})
+    timings["denoise"] = time.perf_counter() - start
 
     start = time.perf_counter()
     instance_ids, depth_m = render_label_pass(built)
@@ -221,19 +287,21 @@ def render_frame(
     timings["labels"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    rgb, exposure = expose(radiance, spec["camera"], rng=axis_rng(spec["sub_seeds"], "noise"))
+    rgb, exposure = expose(radiance_out, spec["camera"], rng=axis_rng(spec["sub_seeds"], "noise"))
+    instances = judge_visibility(rgb, instance_ids, instances, spec["thresholds"])
     labels = round_floats({
         "image": {"width_px": built.width_px, "height_px": built.height_px},
         "camera": {"K": built.k_matrix, "R": built.rotation, "t": built.translation,
                    "convention": "OpenCV: X_cam = R X_world + t; pixel centres at integer + 0.5"},
         "exposure": exposure,
+        "render": render_info,
         "instances": instances,
         "seed": spec["seed"],
         "sub_seeds": spec["sub_seeds"],
         "variant": choice.variant,
     })
     result = FrameResult(rgb=rgb, instance_ids=instance_ids, depth_m=depth_m, labels=labels, timings_s=timings,
-                         spec=spec, radiance_rgb=radiance)
+                         spec=spec, radiance_rgb=radiance_out)
     if out_dir is not None:
         result.files = write_frame_files(result, Path(out_dir))
     timings["encode"] = time.perf_counter() - start
@@ -242,6 +310,95 @@ def render_frame(
         timings_json = json.dumps({k: round(v, 6) for k, v in timings.items()}, separators=(",", ":"))
         result.files["timings.json"].write_text(timings_json + "\n", encoding="utf-8")
     return result
+
+
+def denoise_radiance(radiance_pass: Any, *, wanted: bool, threads: int | None = None) -> dict[str, Any]:
+    """Denoise the RGB pass's radiance when ``wanted``; returns the labels' ``render`` record.
+
+    The record says ``denoised`` (bool) and ``denoiser`` (what ran, or why nothing did); the key
+    ``_radiance`` carries the image to expose (the caller pops it). A denoiser that cannot load
+    leaves the frame raw and says so, rather than failing the frame.
+    """
+    from .denoise import DenoiserUnavailable, denoise
+
+    info: dict[str, Any] = {"denoised": False, "denoiser": "off (budget render.denoise is false)",
+                            "_radiance": radiance_pass.radiance_rgb}
+    if not wanted:
+        return info
+    try:
+        info["_radiance"] = denoise(radiance_pass.radiance_rgb, albedo_rgb=radiance_pass.albedo_rgb,
+                                    normal_xyz=radiance_pass.normal_xyz, hdr=True, threads=threads)
+    except DenoiserUnavailable as exc:
+        info["denoiser"] = f"unavailable, frame left raw: {exc}"
+        return info
+    info["denoised"] = True
+    info["denoiser"] = DENOISER_NAME
+    return info
+
+
+DENOISER_NAME = "Intel Open Image Denoise 1.4.3, RT filter, HDR, albedo + normal"
+
+
+def judge_visibility(rgb: np.ndarray, instance_ids: np.ndarray, instances: list[dict[str, Any]],
+                     thresholds: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """Add each instance's photometric ``contrast`` (and ``delta_e``, ``lightness``) and apply ``min_contrast``.
+
+    Measured on the final 8-bit image (after exposure and sensor noise): what the detector will
+    see. Instances already not visible geometrically keep contrast 0 and no extra reason.
+    See :mod:`workers.render.visibility` for the measure.
+    """
+    from .visibility import instance_contrasts, noise_sigma_lightness
+
+    noise_sigma = noise_sigma_lightness(rgb)
+    visible_ids = [int(item["instance_id"]) for item in instances if item.get("mask_area_px")]
+    measured = instance_contrasts(rgb, instance_ids, visible_ids, noise_sigma=noise_sigma) if visible_ids else {}
+    out = []
+    for item in instances:
+        item = dict(item)
+        values = measured.get(int(item["instance_id"]), {"contrast": 0.0, "delta_e": 0.0, "lightness": 0.0})
+        item["contrast"] = float(values["contrast"])
+        item["delta_e"] = float(values["delta_e"])
+        item["lightness"] = float(values["lightness"])
+        item["noise_sigma_lightness"] = round(float(noise_sigma), 4)
+        reason = contrast_reason(item, min_contrast=float(_class_threshold(thresholds, item.get("class_name"),
+                                                                            "min_contrast", 0.0)))
+        if reason:
+            item["reject_reasons"] = [*item.get("reject_reasons", []), reason]
+            item["accepted"] = False
+        out.append(item)
+    return out
+
+
+def _class_threshold(thresholds: Mapping[str, Any], class_name: Any, key: str, default: float) -> float:
+    value = thresholds.get(key, default)
+    per_class = (thresholds.get("per_class") or {}).get(class_name) or {}
+    return float(per_class.get(key, value))
+
+
+def contrast_reason(label: Mapping[str, Any], *, min_contrast: float) -> str | None:
+    """The reject reason for too little contrast, worded like the others; None when it passes.
+
+    Instances with no visible pixels are judged by their geometry ("not visible") alone. The
+    comparison is shown with enough digits that it is never "2.00 < 2.00".
+    """
+    if not label.get("mask_area_px") or min_contrast <= 0:
+        return None
+    contrast = label.get("contrast")
+    if contrast is None:  # labels from before the measure existed
+        return None
+    contrast = float(contrast)
+    if contrast >= min_contrast:
+        return None
+    return f"contrast {_below(contrast, min_contrast)} < {min_contrast:g}"
+
+
+def _below(value: float, limit: float) -> str:
+    """``value`` with the fewest decimals (2–6) that still print it below ``limit``."""
+    for decimals in range(2, 7):
+        text = f"{value:.{decimals}f}"
+        if float(text) < limit:
+            return text
+    return repr(value)
 
 
 def render_frame_from_inputs(

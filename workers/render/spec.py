@@ -92,9 +92,11 @@ def validate_composition(composition: Any) -> dict[str, int]:
     return dict(sorted(clean.items()))
 
 
-def _render_settings(budget: dict[str, Any]) -> dict[str, int]:
+def _render_settings(budget: dict[str, Any]) -> dict[str, Any]:
     render = budget["render"]
-    return {key: int(render[key]) for key in ("width_px", "height_px", "spp", "max_depth")}
+    settings: dict[str, Any] = {key: int(render[key]) for key in ("width_px", "height_px", "spp", "max_depth")}
+    settings["denoise"] = bool(render.get("denoise", False))
+    return settings
 
 
 def make_spec(

@@ -1,0 +1,262 @@
+"""Image pipeline: denoiser, box-filtered film, window portals, exposure that behaves like a camera.
+
+Each check names its outside reference beside it. Frames are tiny (≤ 96 px) so the module stays
+quick on two cores; the quality figures themselves come from ``python -m workers.render.bench_quality``.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from workers.render import backend
+
+LLVM = "llvm_ad_rgb" in backend.available_variants()
+needs_llvm = pytest.mark.skipif(not LLVM, reason="libLLVM >= 17 is needed for the quick JIT renders here")
+
+
+def _window_spec(*, spp: int, sun: bool, width_px: int = 64, height_px: int = 48, lamps: bool = False) -> dict:
+    """A room with one window, lit by the sky (and the sun), no lamps unless asked."""
+    from workers.render.spec import make_spec
+
+    lighting = {"panel_count": [0, 0], "point_count": [1, 1] if lamps else [0, 0], "spot_count": [0, 0],
+                "sun_probability": 1.0 if sun else 0.0, "dome_illuminance_lux": [15000.0, 15000.0],
+                "sun_illuminance_lux": [60000.0, 60000.0], "sun_elevation_deg": [30.0, 30.0]}
+    budget = {"render": {"width_px": width_px, "height_px": height_px, "spp": spp, "max_depth": 5},
+              "room": {"window_probability": 1.0}, "lighting": lighting}
+    for seed in range(200):
+        spec = make_spec(budget, {"chair": 1, "coffee_table": 1}, seed)
+        kinds = {light["kind"] for light in spec["lights"]}
+        if spec["room"]["windows"] and ("sun" in kinds) == sun:
+            return spec
+    raise AssertionError("no window-lit spec found")
+
+
+@pytest.fixture(scope="module")
+def llvm():
+    if not LLVM:
+        pytest.skip("libLLVM >= 17 not found")
+    backend.init_renderer(variant="llvm_ad_rgb")
+    import mitsuba as mi
+
+    return mi
+
+
+# ---------------------------------------------------------------------------------------------------------------------
+# Film and denoiser
+# ---------------------------------------------------------------------------------------------------------------------
+
+
+@needs_llvm
+def test_rgb_film_uses_a_box_reconstruction_filter(llvm):
+    from workers.render.scene import build_scene
+
+    built = build_scene(_window_spec(spp=1, sun=False))
+    rfilter = built.rgb_sensor.film().rfilter()
+    # Mitsuba 3 plugin reference: the box filter has radius 0.5 px (one pixel's footprint); the
+    # gaussian's default radius is 2 stddev = 1 px, so its samples reach the neighbours.
+    assert "box" in str(rfilter).lower()
+    assert rfilter.radius() == pytest.approx(0.5)
+
+
+@needs_llvm
+def test_box_filter_noise_is_spatially_uncorrelated(llvm):
+    """Lag-1 autocorrelation of the per-pixel noise (1 spp minus a converged mean) is near 0.
+
+    Reference: the sample autocorrelation of independent pixels is 0 ± 2/sqrt(n) (Box & Jenkins,
+    *Time Series Analysis*, large-lag standard error, from memory); a gaussian filter gave 0.39.
+    """
+    from workers.render.scene import build_scene, render_radiance
+
+    spec = _window_spec(spp=1, sun=False, width_px=96, height_px=72)
+    built = build_scene(spec)
+    noisy = render_radiance(built, seed=3, aux=False).radiance_rgb[..., 1].astype(np.float64)
+    built.spp = 256
+    mean = render_radiance(built, seed=11, aux=False).radiance_rgb[..., 1].astype(np.float64)
+    residual = noisy - mean
+    residual -= residual.mean()
+    lag1 = float((residual[:, 1:] * residual[:, :-1]).mean() / residual.var())
+    assert abs(lag1) < 0.1, lag1
+
+
+def test_denoiser_loads_here():
+    from workers.render.denoise import denoiser_status
+
+    assert denoiser_status() is None
+
+
+def test_denoiser_refuses_mismatched_auxiliary_images():
+    from workers.render.denoise import denoise
+
+    with pytest.raises(ValueError, match="albedo"):
+        denoise(np.zeros((8, 8, 3), np.float32), albedo_rgb=np.zeros((4, 8, 3), np.float32))
+
+
+def test_denoiser_removes_synthetic_noise_from_a_smooth_image():
+    """Additive Gaussian noise on a smooth ramp: the RT filter must cut the RMSE several-fold
+    (reference: the ramp itself; the RMSE of the noisy input is the noise σ)."""
+    from workers.render.denoise import denoise
+
+    height, width = 64, 96
+    ramp = np.linspace(0.2, 1.0, width, dtype=np.float32)[None, :, None] * np.ones((height, 1, 3), np.float32)
+    noisy = ramp + np.random.default_rng(0).normal(0.0, 0.08, ramp.shape).astype(np.float32)
+    clean = denoise(noisy, albedo_rgb=np.full_like(ramp, 0.5), normal_xyz=np.dstack(
+        [np.zeros((height, width)), np.zeros((height, width)), np.ones((height, width))]).astype(np.float32))
+    rmse_in = float(np.sqrt(((noisy - ramp) ** 2).mean()))
+    rmse_out = float(np.sqrt(((clean - ramp) ** 2).mean()))
+    assert rmse_out < rmse_in / 4, (rmse_in, rmse_out)
+
+
+@needs_llvm
+def test_denoiser_lowers_the_error_of_a_noisy_render(llvm):
+    """A 1-spp window-lit render, denoised, is much closer to a 256-spp render of the same scene
+    (reference: the converged render; metric: scikit-image PSNR on the exposed 8-bit images)."""
+    from skimage.metrics import peak_signal_noise_ratio
+
+    from workers.render.camera import encode_srgb_8bit
+    from workers.render.denoise import denoise
+    from workers.render.scene import build_scene, render_radiance
+
+    built = build_scene(_window_spec(spp=1, sun=False, width_px=96, height_px=72))
+    noisy = render_radiance(built, seed=5, aux=True)
+    built.spp = 256
+    reference = render_radiance(built, seed=17, aux=False).radiance_rgb
+    scale = 0.18 / float(reference.mean())
+    denoised = denoise(noisy.radiance_rgb, albedo_rgb=noisy.albedo_rgb, normal_xyz=noisy.normal_xyz)
+    psnr_raw = peak_signal_noise_ratio(encode_srgb_8bit(reference * scale), encode_srgb_8bit(noisy.radiance_rgb * scale))
+    psnr_denoised = peak_signal_noise_ratio(encode_srgb_8bit(reference * scale), encode_srgb_8bit(denoised * scale))
+    assert psnr_denoised > psnr_raw + 6.0, (psnr_raw, psnr_denoised)
+
+
+# ---------------------------------------------------------------------------------------------------------------------
+# Window portals
+# ---------------------------------------------------------------------------------------------------------------------
+
+
+def test_portal_rectangles_fill_the_openings_and_face_the_room():
+    from workers.render.scene import window_portal_frames
+
+    room = {"width_m": 4.0, "depth_m": 5.0, "height_m": 2.6, "windows": [
+        {"wall": wall, "center_m": 1.5, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.0}
+        for wall in ("south", "north", "west", "east")]}
+    centre_of_room = np.array([2.0, 2.5, 1.3])
+    for frame in window_portal_frames(room):
+        u, v, n = frame["u"], frame["v"], frame["normal"]
+        assert np.allclose(np.cross(u / np.linalg.norm(u), v / np.linalg.norm(v)), n)  # right-handed: emits along n
+        assert float(n @ (centre_of_room - frame["centre_m"])) > 0  # faces the room
+        assert frame["area_m2"] == pytest.approx(1.2)
+        assert {round(2 * np.linalg.norm(u), 6), round(2 * np.linalg.norm(v), 6)} == {1.2, 1.0}
+        assert frame["centre_m"][2] == pytest.approx(1.4)  # sill + height / 2
+
+
+@needs_llvm
+@pytest.mark.parametrize("sun", [False, True], ids=["sky", "sky+sun"])
+def test_window_portals_are_unbiased_against_brute_force(llvm, sun):
+    """Mean radiance of a window-lit room: portals (low spp) vs the constant sky found by brute-force
+    path tracing (high spp). Reference: the unbiased brute-force estimate; tolerance 3 %."""
+    from workers.render.scene import build_scene, render_radiance
+
+    spec = _window_spec(spp=64, sun=sun, width_px=48, height_px=36)
+    portal = build_scene(spec, window_light="portal")
+    assert portal.window_light == "portal" and (portal.sun_scene is not None) == sun
+    brute = build_scene(spec, window_light="dome")
+    brute.spp = 4096
+    mean_portal = float(np.mean([render_radiance(portal, seed=s, aux=False).radiance_rgb.mean() for s in (1, 2)]))
+    mean_brute = float(render_radiance(brute, seed=3, aux=False).radiance_rgb.mean())
+    assert mean_portal == pytest.approx(mean_brute, rel=0.03)
+
+
+@needs_llvm
+def test_window_portals_cut_the_noise_of_sky_light(llvm):
+    """Same samples, much less noise: per-pixel error against a converged portal render (the brute
+    force sees the sky only when a path happens to leave through the window)."""
+    from workers.render.scene import build_scene, render_radiance
+
+    spec = _window_spec(spp=4, sun=False, width_px=48, height_px=36)
+    reference = build_scene(spec)
+    reference.spp = 1024
+    target = render_radiance(reference, seed=9, aux=False).radiance_rgb
+    errors = {}
+    for mode in ("portal", "dome"):
+        built = build_scene(spec, window_light=mode)
+        errors[mode] = float(np.sqrt(((render_radiance(built, seed=4, aux=False).radiance_rgb - target) ** 2).mean()))
+    assert errors["portal"] < errors["dome"] / 2, errors
+
+
+# ---------------------------------------------------------------------------------------------------------------------
+# Exposure
+# ---------------------------------------------------------------------------------------------------------------------
+
+CAMERA = {"f_number": 8.0, "iso": 800.0, "iso_limits": [100.0, 3200.0], "exposure_compensation_ev": 0.0,
+          "shutter_limits_s": [1 / 500, 1 / 8], "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
+
+
+def _correct_shutter_s(luminance: float, f_number: float, iso: float) -> float:
+    # ISO 2720:1974 reflected-light meter equation N²/t = L S / K with K = 12.5 (written out here).
+    return 12.5 * f_number**2 / (luminance * iso)
+
+
+@pytest.mark.parametrize("luminance", np.geomspace(0.5, 200000.0, 61).tolist())
+def test_exposure_is_never_more_than_a_third_of_a_stop_off_when_the_iso_range_allows(luminance):
+    from workers.render.frame import auto_exposure
+
+    chosen = auto_exposure(luminance, CAMERA)
+    lo_s, hi_s = CAMERA["shutter_limits_s"]
+    iso_lo, iso_hi = CAMERA["iso_limits"]
+    # What a correct exposure needs: some ISO in the range with its metered time inside the limits.
+    # Shutter times snap to 1/3 stops, so within 1/6 stop of a limit either outcome is right.
+    margin = 2 ** (1 / 6)
+    feasible = _correct_shutter_s(luminance, 8.0, iso_hi) <= hi_s and _correct_shutter_s(luminance, 8.0, iso_lo) >= lo_s
+    clearly_infeasible = (_correct_shutter_s(luminance, 8.0, iso_hi) > hi_s * margin
+                          or _correct_shutter_s(luminance, 8.0, iso_lo) < lo_s / margin)
+    error_ev = math.log2(chosen["shutter_s"] / _correct_shutter_s(luminance, 8.0, chosen["iso"]))
+    assert chosen["exposure_error_ev"] == pytest.approx(error_ev, abs=0.17)
+    assert iso_lo <= chosen["iso"] <= iso_hi and lo_s <= chosen["shutter_s"] <= hi_s
+    if feasible:
+        assert abs(error_ev) <= 1 / 3 + 1e-9, (luminance, chosen)
+        assert chosen["limited_by"] is None
+    elif clearly_infeasible:
+        assert chosen["limited_by"] in ("shortest shutter", "longest shutter")
+        # The ISO went as far as the range allows before the shutter clamped.
+        assert chosen["iso"] == (iso_lo if chosen["limited_by"] == "shortest shutter" else iso_hi)
+
+
+def test_bright_scene_lowers_the_iso_instead_of_overexposing():
+    """The reported case: the metered time at the sampled ISO is shorter than the shortest shutter."""
+    from workers.render.frame import auto_exposure
+
+    luminance = 3000.0  # a bright sunlit room, cd/m² (order of magnitude, from memory)
+    assert _correct_shutter_s(luminance, 8.0, 800.0) < 1 / 500  # at ISO 800 the shutter would clamp
+    chosen = auto_exposure(luminance, CAMERA)
+    assert chosen["iso"] < 800.0
+    assert chosen["iso"] in (100, 125, 160, 200, 250, 320, 400, 500, 640)  # ISO 12232 1/3-stop series
+    assert abs(chosen["exposure_error_ev"]) <= 1 / 3
+
+
+def test_sensor_noise_switch_off_gives_the_noise_free_image():
+    from workers.render.camera import encode_srgb_8bit, exposure_scale
+    from workers.render.frame import expose
+
+    radiance = np.random.default_rng(1).uniform(5.0, 80.0, (24, 32, 3)).astype(np.float32)
+    camera = CAMERA | {"sensor_noise": False}
+    a, exposure = expose(radiance, camera, rng=np.random.default_rng(1))
+    b, _ = expose(radiance, camera, rng=np.random.default_rng(2))
+    assert exposure["sensor_noise"] is False
+    assert np.array_equal(a, b)
+    expected = encode_srgb_8bit(radiance * exposure_scale(exposure["f_number"], exposure["shutter_s"], exposure["iso"]))
+    assert np.array_equal(a, expected)
+    noisy, on = expose(radiance, CAMERA, rng=np.random.default_rng(1))
+    assert on["sensor_noise"] is True and not np.array_equal(noisy, a)
+
+
+def test_budget_switches_are_booleans():
+    from workers.render.budget import BudgetError, normalize_budget
+
+    budget = normalize_budget({"render": {"denoise": False}, "camera": {"sensor_noise": False}})
+    assert budget["render"]["denoise"] is False and budget["camera"]["sensor_noise"] is False
+    assert normalize_budget()["render"]["denoise"] is True
+    for bad in (1, "yes", None, 0.0):
+        with pytest.raises(BudgetError, match="render.denoise: expected true or false"):
+            normalize_budget({"render": {"denoise": bad}})
