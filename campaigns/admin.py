@@ -94,7 +94,7 @@ class CampaignAdmin(TeamScopedAdmin):
 @admin.register(ClassQuota)
 class ClassQuotaAdmin(TeamScopedAdmin):
     list_display = ("campaign", "object_class", "target_accepted", "accepted_count", "rejected_count",
-                    "placed_count", "min_visible_fraction", "min_box_px", "met_at")
+                    "placed_count", "min_visible_fraction", "min_box_px", "min_contrast", "met_at")
     list_filter = ("object_class",)
     readonly_fields = ("placed_count", "accepted_count", "rejected_count", "met_at")
 
@@ -117,6 +117,6 @@ class FrameEventAdmin(TeamScopedAdmin):
 
 @admin.register(Instance)
 class InstanceAdmin(TeamScopedAdmin):
-    list_display = ("frame", "instance_id", "object_class", "accepted", "visible_fraction", "mask_area_px")
+    list_display = ("frame", "instance_id", "object_class", "accepted", "visible_fraction", "contrast", "mask_area_px")
     list_filter = ("accepted", "object_class")
     readonly_fields = [f.name for f in Instance._meta.fields]

@@ -754,6 +754,8 @@ class _ClassStats:
     accepted: Counter = field(default_factory=Counter)
     frames: Counter = field(default_factory=Counter)
     visible_fraction_sum: float = 0.0
+    contrast_sum: float = 0.0
+    contrast_n: int = 0  # instances with a contrast (frames rendered before the measure have none)
     occlusion_fraction_sum: float = 0.0
     truncation_fraction_sum: float = 0.0
     area_px_sum: int = 0
@@ -835,7 +837,7 @@ class _Exporter:
         instances = (_exported_instances(self.campaign, self.finished_before, options.accepted_only)
                      .order_by("frame__index", "instance_id")
                      .values_list("frame__index", "pk", "instance_id", "object_class_id", "asset_id", "bbox_xywh_px",
-                                  "amodal_bbox_xywh_px", "visible_fraction", "occlusion_fraction",
+                                  "amodal_bbox_xywh_px", "visible_fraction", "contrast", "occlusion_fraction",
                                   "truncation_fraction", "mask_area_px", "segmentation_rle", "accepted",
                                   "reject_reasons")
                      .iterator(chunk_size=INSTANCE_CHUNK))
@@ -875,8 +877,8 @@ class _Exporter:
                     row, pending = pending, next(instances, None)
                     if row[0] < index:
                         continue
-                    (_, pk, instance_id, class_id, asset_id, bbox, amodal, visible, occlusion, truncation, area,
-                     rle, accepted, reasons) = row
+                    (_, pk, instance_id, class_id, asset_id, bbox, amodal, visible, contrast, occlusion, truncation,
+                     area, rle, accepted, reasons) = row
                     category = self.category_of.get(class_id)
                     if category is None:
                         continue
@@ -886,7 +888,7 @@ class _Exporter:
                         "id": int(pk), "image_id": int(index), "category_id": category.category_id,
                         "bbox": [float(v) for v in bbox], "area": int(area), "segmentation": rle, "iscrowd": 0,
                         "instance_id": int(instance_id), "asset_id": asset_id,
-                        "visible_fraction": visible, "occlusion_fraction": occlusion,
+                        "visible_fraction": visible, "contrast": contrast, "occlusion_fraction": occlusion,
                         "truncation_fraction": truncation, "amodal_bbox": amodal, "accepted": bool(accepted),
                         "reject_reasons": reasons or [],
                     }
@@ -896,6 +898,9 @@ class _Exporter:
                     s.instances[split] += 1
                     s.accepted[split] += int(bool(accepted))
                     s.visible_fraction_sum += visible
+                    if contrast is not None:
+                        s.contrast_sum += contrast
+                        s.contrast_n += 1
                     s.occlusion_fraction_sum += occlusion
                     s.truncation_fraction_sum += truncation
                     s.area_px_sum += int(area)
@@ -1037,7 +1042,7 @@ class _Exporter:
 
         quotas = {q["object_class_id"]: q for q in ClassQuota.objects.filter(campaign=self.campaign).values(
             "object_class_id", "target_accepted", "accepted_count", "rejected_count", "placed_count",
-            "min_visible_fraction", "min_box_px")}
+            "min_visible_fraction", "min_box_px", "min_contrast")}
         classes = []
         for cat in self.categories:
             s = stats[cat.object_class_id]
@@ -1047,12 +1052,16 @@ class _Exporter:
                 "name": cat.name, "category_id": cat.category_id, "yolo_index": cat.yolo_index,
                 "quota": {"target_accepted": q.get("target_accepted"), "accepted": q.get("accepted_count"),
                           "rejected": q.get("rejected_count"), "placed": q.get("placed_count"),
-                          "min_visible_fraction": q.get("min_visible_fraction"), "min_box_px": q.get("min_box_px")},
+                          "min_visible_fraction": q.get("min_visible_fraction"), "min_box_px": q.get("min_box_px"),
+                          "min_contrast": q.get("min_contrast")},
                 "exported_instances": {**{sp: s.instances[sp] for sp in SPLITS}, "total": n},
                 "exported_accepted": {**{sp: s.accepted[sp] for sp in SPLITS}, "total": sum(s.accepted.values())},
                 "share": {sp: (round(s.instances[sp] / n, 6) if n else None) for sp in SPLITS},
                 "frames_with_class": {**{sp: s.frames[sp] for sp in SPLITS}, "total": sum(s.frames.values())},
                 "mean_visible_fraction": round(s.visible_fraction_sum / n, 6) if n else None,
+                # over the instances that have one; instances_with_contrast says how many that is
+                "mean_contrast": round(s.contrast_sum / s.contrast_n, 6) if s.contrast_n else None,
+                "instances_with_contrast": s.contrast_n,
                 "mean_occlusion_fraction": round(s.occlusion_fraction_sum / n, 6) if n else None,
                 "mean_truncation_fraction": round(s.truncation_fraction_sum / n, 6) if n else None,
                 "mean_area_px": round(s.area_px_sum / n, 3) if n else None,
@@ -1092,11 +1101,11 @@ class _Exporter:
         quotas = [
             {"class_name": q["object_class__name"], "target_accepted": q["target_accepted"],
              "min_visible_fraction": q["min_visible_fraction"], "min_box_px": q["min_box_px"],
-             "accepted": q["accepted_count"], "rejected": q["rejected_count"], "placed": q["placed_count"],
-             "met_at": q["met_at"]}
+             "min_contrast": q["min_contrast"], "accepted": q["accepted_count"], "rejected": q["rejected_count"],
+             "placed": q["placed_count"], "met_at": q["met_at"]}
             for q in c.quotas.order_by("object_class__name").values(
-                "object_class__name", "target_accepted", "min_visible_fraction", "min_box_px", "accepted_count",
-                "rejected_count", "placed_count", "met_at")
+                "object_class__name", "target_accepted", "min_visible_fraction", "min_box_px", "min_contrast",
+                "accepted_count", "rejected_count", "placed_count", "met_at")
         ]
         assets = [{"class_name": a["object_class__name"], "name": a["name"], "kind": a["kind"],
                    "generator": a["generator"], "mesh_file": a["mesh_file"], "creation_cost": a["creation_cost"]}
@@ -1135,7 +1144,9 @@ class _Exporter:
         ]
         if coco:
             lines.append("| `annotations/<split>.json` | COCO instances: bbox, area, RLE segmentation, iscrowd 0; "
-                         "extra per annotation: visible/occlusion/truncation fraction, amodal_bbox, accepted; "
+                         "extra per annotation: visible/occlusion/truncation fraction, contrast (ΔE*ab against the "
+                         "surroundings ÷ image noise; null for frames rendered before it was measured), amodal_bbox, "
+                         "accepted; "
                          "extra per image: camera K, R, t (OpenCV), exposure, layout/lighting/view index, seed. "
                          "`file_name` is relative to `images/` |")
         if yolo:
@@ -1145,7 +1156,8 @@ class _Exporter:
             "| `scenes.jsonl` | one line per frame: the full scene spec (`scene`) and render facts |",
             "| `campaign.json` | campaign settings, randomization budget, quotas, costs |",
             "| `software.json` | package versions of the exporting machine; renderer variants of the frames |",
-            "| `class_statistics.json` | per class and split: instances, frames, mean visibility and area |",
+            "| `class_statistics.json` | per class and split: instances, frames, mean visibility, contrast and area; "
+            "quota thresholds and counters |",
             "| `splits.json` | ratios, method, achieved shares, each layout's split |",
             "| `manifest.jsonl` | header, then every file with size and SHA-256; "
             "check with `manage.py verify_dataset DIR` |",

@@ -1,5 +1,6 @@
 """Planner forms. The randomization inputs are generated from ``workers.render.budget.FIELDS`` (unit, bounds, help),
-never written by hand; quotas are one row per object class (target 0 = not in the campaign).
+never written by hand (switches, ``kind == "bool"``, are checkboxes); quotas are one row per object class (target 0 =
+not in the campaign) with its own thresholds, empty meaning the budget's acceptance default.
 
 Forms only parse and lay out input: the rules live in ``services.normalize_campaign_budget`` /
 ``services.create_campaign``; their error messages are mapped back onto the field they name.
@@ -15,7 +16,7 @@ from django import forms
 
 from campaigns import services
 from campaigns.models import Campaign, ObjectClass
-from workers.render.budget import DEFAULT_BUDGET, FIELDS, Field
+from workers.render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
 
 SECTION_TITLES = {
     "render": ("Render settings", "Image size and path-tracing quality; cost grows linearly with pixels × samples."),
@@ -26,6 +27,8 @@ SECTION_TITLES = {
     "lighting": ("Lighting", "Sampled per lighting variant."),
     "camera": ("Camera", "Sampled per view."),
 }
+# A quota error's message (after ``quota 'cls':``) → the column of the quota row it belongs to.
+QUOTA_ERROR_COLUMNS = (("min visible fraction", "visible"), ("min box size", "box"), ("min contrast", "contrast"))
 SECTION_ORDER = ("render", "variation", "thresholds", "room", "lighting", "camera")
 UNIT_TEXT = {"": "", "1/m²": "per m²"}
 # Field names carry their unit (units in names); the label shows the unit beside it instead.
@@ -58,6 +61,19 @@ def _step(field: Field) -> str:
     if field.kind in ("int", "int_range"):
         return "1"
     return "any"
+
+
+def budget_value(budget: dict[str, Any], field: Field) -> Any:
+    """The stored value, or the default for a field added after the campaign was saved (the render core merges
+    a stored budget over the same defaults, so that is what its frames use)."""
+    section = budget.get(field.section) or {}
+    return section[field.name] if field.name in section else DEFAULT_BUDGET[field.section][field.name]
+
+
+def _switch_field(label: str, initial: bool) -> forms.Field:
+    """A budget switch (``Field.kind == "bool"``): a checkbox; unchecked is absent from a POST, so False."""
+    return forms.BooleanField(label=label, required=False, initial=bool(initial),
+                              widget=forms.CheckboxInput(attrs={"class": "switch"}))
 
 
 def _number_field(field: Field, label: str, initial: Any) -> forms.Field:
@@ -106,12 +122,17 @@ class CampaignForm(forms.Form):
             self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
         self.budget_rows: dict[str, list[dict[str, Any]]] = {s: [] for s in SECTION_ORDER}
         for field in FIELDS:
-            value = budget[field.section][field.name]
+            value = budget_value(budget, field)
             unit = UNIT_TEXT.get(field.unit, field.unit)
             label = field_label(field)
             row: dict[str, Any] = {"field": field, "unit": unit, "label": label, "help": field.help,
-                                   "bounds": f"{field.lower:g}–{field.upper:g}{(' ' + unit) if unit else ''}"}
-            if field.kind in ("range", "int_range"):
+                                   "bounds": f"{field.lower:g}–{field.upper:g}{(' ' + unit) if unit else ''}",
+                                   "switch": field.kind == "bool"}
+            if field.kind == "bool":
+                name = budget_field_name(field)
+                self.fields[name] = _switch_field(label, value)
+                row["names"] = [name]
+            elif field.kind in ("range", "int_range"):
                 lo, hi = budget_field_name(field, "min"), budget_field_name(field, "max")
                 self.fields[lo] = _number_field(field, f"{label} min", _display(value[0]))
                 self.fields[hi] = _number_field(field, f"{label} max", _display(value[1]))
@@ -125,9 +146,10 @@ class CampaignForm(forms.Form):
         if campaign is not None:
             quotas = {q.object_class.name: q for q in campaign.quotas.select_related("object_class")}
         self.quota_rows = []
+        contrast_field = FIELDS_BY_KEY["thresholds", "min_contrast"]
         for oc in ObjectClass.objects.order_by("name"):
             q = quotas.get(oc.name)
-            names = (f"q_{oc.name}_target", f"q_{oc.name}_visible", f"q_{oc.name}_box")
+            names = (f"q_{oc.name}_target", f"q_{oc.name}_visible", f"q_{oc.name}_box", f"q_{oc.name}_contrast")
             self.fields[names[0]] = forms.IntegerField(
                 label=f"{oc.label or oc.name} target", required=False, min_value=0,
                 max_value=services.MAX_TARGET_ACCEPTED, initial=q.target_accepted if q else 0,
@@ -141,6 +163,13 @@ class CampaignForm(forms.Form):
                 label=f"{oc.label or oc.name} min box", required=False, min_value=0, max_value=4096,
                 initial=q.min_box_px if q else None,
                 widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": "any", "placeholder": "default"}))
+            # Empty takes the budget's thresholds.min_contrast (the acceptance default below the quotas).
+            self.fields[names[3]] = forms.FloatField(
+                label=f"{oc.label or oc.name} min contrast", required=False, min_value=contrast_field.lower,
+                max_value=contrast_field.upper, initial=_display(q.min_contrast) if q else None,
+                widget=forms.NumberInput(attrs={"class": "num", "min": f"{contrast_field.lower:g}",
+                                                "max": f"{contrast_field.upper:g}", "step": "any",
+                                                "placeholder": "default"}))
             self.quota_rows.append({"object_class": oc, "names": names})
 
     # --- layout helpers for the template ---------------------------------------------------------------------
@@ -155,7 +184,7 @@ class CampaignForm(forms.Form):
 
     def quota_table(self) -> list[dict[str, Any]]:
         return [{"object_class": r["object_class"], "target": self[r["names"][0]], "visible": self[r["names"][1]],
-                 "box": self[r["names"][2]]} for r in self.quota_rows]
+                 "box": self[r["names"][2]], "contrast": self[r["names"][3]]} for r in self.quota_rows]
 
     def cost_fields(self) -> list[forms.BoundField]:
         return [self[n] for n in self.COST_FIELDS]
@@ -170,13 +199,15 @@ class CampaignForm(forms.Form):
         budget: dict[str, dict[str, Any]] = {}
         complete = True
         for field in FIELDS:
-            if field.kind in ("range", "int_range"):
+            if field.kind == "bool":
+                value: Any = bool(data.get(budget_field_name(field)))  # an unchecked box is absent: False
+            elif field.kind in ("range", "int_range"):
                 lo = data.get(budget_field_name(field, "min"))
                 hi = data.get(budget_field_name(field, "max"))
                 if lo is None or hi is None:
                     complete = False
                     continue
-                value: Any = [lo, hi]
+                value = [lo, hi]
             else:
                 value = data.get(budget_field_name(field))
                 if value is None:
@@ -188,7 +219,8 @@ class CampaignForm(forms.Form):
             target = data.get(row["names"][0])
             if target:
                 quotas.append(services.QuotaInput(row["object_class"].name, int(target),
-                                                  data.get(row["names"][1]), data.get(row["names"][2])))
+                                                  data.get(row["names"][1]), data.get(row["names"][2]),
+                                                  data.get(row["names"][3])))
         if not quotas and not any(n in self.errors for r in self.quota_rows for n in r["names"]):
             self.add_error(None, "Give at least one class a target above 0.")
         data["quotas"] = quotas
@@ -219,7 +251,9 @@ class CampaignForm(forms.Form):
             return
         m = re.match(r"quota '(?P<cls>[\w-]+)':", message)
         if m and f"q_{m['cls']}_target" in self.fields:
-            self.add_error(f"q_{m['cls']}_target", message[m.end():].strip())
+            detail = message[m.end():].strip()
+            column = next((c for prefix, c in QUOTA_ERROR_COLUMNS if detail.startswith(prefix)), "target")
+            self.add_error(f"q_{m['cls']}_{column}", detail)
             return
         m = re.match(r"(?P<key>\w+):", message)
         if m and m["key"] in self.fields:

@@ -147,6 +147,9 @@ class ClassQuota(models.Model):
     target_accepted = models.PositiveIntegerField()
     min_visible_fraction = models.FloatField(default=0.25)
     min_box_px = models.FloatField(default=16.0)
+    min_contrast = models.FloatField(
+        default=2.0, help_text="Least contrast (ΔE*ab between the object and its surroundings ÷ the image's noise, "
+                               "at least 1 ΔE) an accepted instance shows in the final image; 0 = not judged")
 
     # Counters: changed only by F() increments in campaigns.services.
     placed_count = models.PositiveIntegerField(default=0, help_text="Instances requested in finished frames")
@@ -163,6 +166,7 @@ class ClassQuota(models.Model):
                 name="quota_min_visible_fraction_0_1",
             ),
             models.CheckConstraint(condition=models.Q(min_box_px__gte=0), name="quota_min_box_px_non_negative"),
+            models.CheckConstraint(condition=models.Q(min_contrast__gte=0), name="quota_min_contrast_non_negative"),
         ]
 
     def __str__(self) -> str:
@@ -248,6 +252,9 @@ class Instance(models.Model):
     amodal_bbox_xywh_px = models.JSONField(null=True, blank=True,
                                            help_text="[x, y, w, h] of the whole projection, not clipped")
     visible_fraction = models.FloatField()
+    contrast = models.FloatField(null=True, blank=True,
+                                 help_text="ΔE*ab against the surrounding ring ÷ image noise (render core); "
+                                           "empty for frames rendered before the measure existed")
     occlusion_fraction = models.FloatField(default=0.0)
     truncation_fraction = models.FloatField(default=0.0)
     mask_area_px = models.PositiveIntegerField(default=0)

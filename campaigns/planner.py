@@ -1,4 +1,5 @@
-"""Quota-aware composition planner: pure functions, no Django, no renderer.
+"""Quota-aware composition planner: pure functions, no Django, no renderer (the render core's pure
+``contrast_reason`` only).
 
 Each next frame's class composition comes from the remaining deficits and the
 accepted yield observed per class. The yield of class *c* (the probability
@@ -28,6 +29,8 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
+
+from workers.render.frame import contrast_reason  # pure (no renderer import): one wording for the reject reason
 
 PRIOR_YIELD = 0.5  # common practice: an uninformative-ish prior mean for "accepted"
 PRIOR_STRENGTH = 4.0  # pseudo-placements; small so observations dominate after a few frames
@@ -204,14 +207,22 @@ def next_coordinates(previous: tuple[int, int, int] | None, *, lighting_per_layo
 # --- acceptance -----------------------------------------------------------------------------------
 
 
-def accept_instance(label: Mapping, *, min_visible_fraction: float, min_box_px: float) -> tuple[bool, list[str]]:
+def accept_instance(label: Mapping, *, min_visible_fraction: float, min_box_px: float,
+                    min_contrast: float = 0.0) -> tuple[bool, list[str]]:
     """Accept one label row of the render core by its class quota's own thresholds.
 
     The render core judges with the budget's global thresholds; a quota may
-    be stricter or looser per class, so visibility and the visible box's
-    shorter side (``bbox`` is COCO ``[x, y, w, h]`` in pixels) are judged
-    again here. Returns (accepted, reasons) with the same reason wording as
-    the render core.
+    be stricter or looser per class, so visibility, the visible box's
+    shorter side (``bbox`` is COCO ``[x, y, w, h]`` in pixels) and the
+    photometric ``contrast`` (unitless: ΔE*ab against a ring around the
+    object ÷ the image's noise) are judged again here. Returns (accepted,
+    reasons) with the same reason wording as the render core. Labels without
+    ``contrast`` (frames from before the measure, or label-pass-only frames)
+    and ``min_contrast`` 0 are not judged on contrast.
+
+    References
+    ----------
+    The contrast rule and its wording: ``workers.render.frame.contrast_reason``.
     """
     box = label.get("bbox")
     area_px = int(label.get("mask_area_px") or 0)
@@ -224,4 +235,7 @@ def accept_instance(label: Mapping, *, min_visible_fraction: float, min_box_px: 
     side_px = min(float(box[2]), float(box[3]))
     if side_px < min_box_px:
         reasons.append(f"box {side_px:g} px < {min_box_px:g} px")
+    low_contrast = contrast_reason(label, min_contrast=min_contrast)
+    if low_contrast:
+        reasons.append(low_contrast)
     return not reasons, reasons

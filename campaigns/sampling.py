@@ -180,6 +180,8 @@ def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[
             if name not in quotas:
                 continue
             rule = quotas[name]
+            # No min_contrast: the label pass's 1-spp, low-resolution image is far noisier than the campaign's, so
+            # its contrast says nothing about the campaign's frames (box sizes, unlike contrast, scale with size).
             ok, _ = planner.accept_instance(label, min_visible_fraction=rule.min_visible_fraction,
                                             min_box_px=rule.min_box_px * scale)
             if ok:

@@ -409,7 +409,7 @@ def frame_instances(*, frame_ids: Sequence[int]) -> dict[int, list[dict[str, _An
     out: dict[int, list[dict[str, _Any]]] = {fid: [] for fid in frame_ids}
     for row in Instance.objects.filter(frame_id__in=list(frame_ids)).order_by("frame_id", "instance_id").values(
             "frame_id", "instance_id", "object_class__name", "asset_id", "bbox_xywh_px", "amodal_bbox_xywh_px",
-            "visible_fraction", "occlusion_fraction", "truncation_fraction", "mask_area_px", "accepted",
+            "visible_fraction", "contrast", "occlusion_fraction", "truncation_fraction", "mask_area_px", "accepted",
             "reject_reasons"):
         out[row["frame_id"]].append(row)
     return out

@@ -22,7 +22,7 @@ from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from datetime import timedelta
 from decimal import Decimal, InvalidOperation
-from typing import Any
+from typing import Any, NamedTuple
 
 from django.db import transaction
 from django.db.models import F, Q, QuerySet
@@ -57,6 +57,17 @@ class QuotaInput:
     target_accepted: int
     min_visible_fraction: float | None = None
     min_box_px: float | None = None
+    min_contrast: float | None = None
+
+
+class _CleanQuota(NamedTuple):
+    """A checked quota row: the thresholds are the quota's own or the budget's acceptance defaults."""
+
+    object_class: ObjectClass
+    target_accepted: int
+    min_visible_fraction: float
+    min_box_px: float
+    min_contrast: float
 
 
 # --- helpers ---------------------------------------------------------------------------------------
@@ -152,9 +163,11 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
 
 
 @transaction.atomic
-def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]
-                        ) -> list[tuple[ObjectClass, int, float, float]]:
-    """Check class quotas against the normalized budget: (class, target, min visible fraction, min box px)."""
+def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]) -> list[_CleanQuota]:
+    """Check class quotas against the normalized budget; an empty threshold takes the budget's default."""
+    from workers.render.budget import FIELDS_BY_KEY
+
+    max_contrast = FIELDS_BY_KEY["thresholds", "min_contrast"].upper
     if not quotas:
         raise CampaignError("quotas: at least one class quota is required")
     for q in quotas:
@@ -166,7 +179,7 @@ def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapp
     thresholds = normalized_budget["thresholds"]
     longest_side_px = max(normalized_budget["render"]["width_px"], normalized_budget["render"]["height_px"])
     seen: set[str] = set()
-    clean: list[tuple[ObjectClass, int, float, float]] = []
+    clean: list[_CleanQuota] = []
     for q in quotas:
         where = f"quota {q.class_name!r}"
         if q.class_name not in classes:
@@ -181,12 +194,16 @@ def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapp
         vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
             q.min_visible_fraction, f"{where}: min visible fraction")
         box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
+        contrast = thresholds["min_contrast"] if q.min_contrast is None else _finite(
+            q.min_contrast, f"{where}: min contrast")
         if not 0.0 <= vis <= 1.0:
             raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
         if not 0.0 <= box <= longest_side_px:
             raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
-        clean.append((classes[q.class_name], q.target_accepted, vis, box))
-    if sum(t for _, t, _, _ in clean) == 0:
+        if not 0.0 <= contrast <= max_contrast:
+            raise CampaignError(f"{where}: min contrast must be between 0 and {max_contrast:g}, got {contrast:g}")
+        clean.append(_CleanQuota(classes[q.class_name], q.target_accepted, vis, box, contrast))
+    if sum(q.target_accepted for q in clean) == 0:
         raise CampaignError("quotas: every target is 0; nothing to render")
     return clean
 
@@ -239,10 +256,11 @@ def _usable_assets(*, team_id: int | None) -> QuerySet[Asset]:
     return Asset.objects.filter(Q(team__isnull=True) | Q(team_id=team_id))
 
 
-def _write_quotas(*, campaign: Campaign, clean: Sequence[tuple[ObjectClass, int, float, float]]) -> None:
+def _write_quotas(*, campaign: Campaign, clean: Sequence[_CleanQuota]) -> None:
     ClassQuota.objects.bulk_create([
-        ClassQuota(campaign=campaign, object_class=oc, target_accepted=t, min_visible_fraction=v, min_box_px=b)
-        for oc, t, v, b in clean
+        ClassQuota(campaign=campaign, object_class=q.object_class, target_accepted=q.target_accepted,
+                   min_visible_fraction=q.min_visible_fraction, min_box_px=q.min_box_px, min_contrast=q.min_contrast)
+        for q in clean
     ])
 
 
@@ -292,7 +310,7 @@ def create_campaign(
         if len(assets) != len(wanted):
             raise CampaignError(f"assets: {len(wanted) - len(assets)} asset(s) are unknown or belong to another team")
     else:
-        assets = list(usable.filter(object_class__name__in=[oc.name for oc, _, _, _ in clean]))
+        assets = list(usable.filter(object_class__name__in=[q.object_class.name for q in clean]))
     _check_fixed_cost(assets=assets, settings=settings)
     campaign = Campaign.objects.create(
         name=name, team=team, owner=owner, description=description, seed=settings.seed, budget=normalized,
@@ -599,6 +617,17 @@ def _box(label: Mapping[str, Any], *keys: str) -> list[float] | None:
     return None
 
 
+def _optional_float(value: Any) -> float | None:
+    """A finite float, or None (labels of frames rendered before a measure existed lack its key)."""
+    if value is None or isinstance(value, bool):
+        return None
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if math.isfinite(number) else None
+
+
 @transaction.atomic
 def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[str, Any]], cpu_s: float,
                   wall_s: float, timings_s: Mapping[str, float] | None = None, output_dir: str = "",
@@ -636,13 +665,14 @@ def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[s
             log.warning("frame %s: instance of class %r has no quota; not stored", frame_id, class_name)
             continue
         ok, reasons = planner.accept_instance(label, min_visible_fraction=quota.min_visible_fraction,
-                                              min_box_px=quota.min_box_px)
+                                              min_box_px=quota.min_box_px, min_contrast=quota.min_contrast)
         (accepted if ok else rejected)[class_name] += 1
         rows.append(Instance(
             frame_id=frame_id, campaign=campaign, object_class_id=quota.object_class_id,
             instance_id=int(label["instance_id"]), asset_id=str(label.get("asset_id", ""))[:200],
             bbox_xywh_px=_box(label, "bbox"), amodal_bbox_xywh_px=_box(label, "amodal_bbox"),
             visible_fraction=float(label.get("visible_fraction") or 0.0),
+            contrast=_optional_float(label.get("contrast")),
             occlusion_fraction=float(label.get("occlusion_fraction") or 0.0),
             truncation_fraction=float(label.get("truncation_fraction") or 0.0),
             mask_area_px=int(label.get("mask_area_px") or 0),
@@ -797,7 +827,7 @@ def update_draft_campaign(
                                max_attempts=max_attempts)
     clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
     assets = list(_usable_assets(team_id=campaign.team_id).filter(
-        object_class__name__in=[oc.name for oc, _, _, _ in clean]))
+        object_class__name__in=[q.object_class.name for q in clean]))
     _check_fixed_cost(assets=assets, settings=settings)
     Campaign.objects.filter(pk=campaign.pk).update(
         name=name, description=description, seed=settings.seed, budget=normalized, cost_budget=settings.cost_budget,

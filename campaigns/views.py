@@ -34,7 +34,7 @@ from django.views.decorators.cache import never_cache
 from django.views.decorators.http import require_GET, require_POST
 
 from campaigns import asset_files, selectors, services
-from campaigns.forms import AssetUploadForm, CampaignForm, CostBudgetForm
+from campaigns.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
 from campaigns.models import Asset, Campaign, Frame
 from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user
 
@@ -257,8 +257,11 @@ def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
 
     rows = []
     for f in FIELDS:
-        value = campaign.budget.get(f.section, {}).get(f.name)
-        text = f"{value[0]:g}–{value[1]:g}" if isinstance(value, list) else f"{value:g}"
+        value = budget_value(campaign.budget, f)
+        if isinstance(value, bool):
+            text = "on" if value else "off"
+        else:
+            text = f"{value[0]:g}–{value[1]:g}" if isinstance(value, list) else f"{value:g}"
         rows.append({"section": f.section, "name": f.name.replace("_", " "), "value": text, "unit": f.unit,
                      "help": f.help})
     return rows

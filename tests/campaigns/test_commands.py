@@ -39,12 +39,14 @@ def test_campaign_command_create_validates_and_status_shows_progress(user, class
             "--price-per-cpu-hour", "0.05")
     assert not Campaign.objects.exists()
     out = run("campaign", "create", "cli", "--owner", user.username, "--quota", "chair=5", "--quota",
-              "ottoman=2:0.5:8", "--width", "64", "--height", "48", "--spp", "4", "--cost-budget", "50",
+              "ottoman=2:0.5:8:3.5", "--width", "64", "--height", "48", "--spp", "4", "--cost-budget", "50",
               "--price-per-cpu-hour", "0.05", "--manual-rate-per-hour", "12")
     assert "created campaign" in out
     campaign = Campaign.objects.get(name="cli")
     ottoman = campaign.quotas.get(object_class__name="ottoman")
-    assert (ottoman.target_accepted, ottoman.min_visible_fraction, ottoman.min_box_px) == (2, 0.5, 8.0)
+    assert (ottoman.target_accepted, ottoman.min_visible_fraction, ottoman.min_box_px,
+            ottoman.min_contrast) == (2, 0.5, 8.0, 3.5)
+    assert campaign.quotas.get(object_class__name="chair").min_contrast == 2.0  # the budget's default
     assert "running" in run("campaign", "start", "cli")
     ClassQuota.objects.filter(campaign=campaign, object_class__name="chair").update(accepted_count=3)
     status = run("campaign", "status", str(campaign.pk))

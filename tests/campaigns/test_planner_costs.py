@@ -95,6 +95,35 @@ def test_accept_instance_uses_quota_thresholds():
                                    min_box_px=0) == (False, ["not visible"])
 
 
+def test_accept_instance_judges_contrast_by_the_quota_minimum():
+    from workers.render.frame import contrast_reason
+
+    label = {"visible_fraction": 0.9, "bbox": [10, 10, 20, 20], "mask_area_px": 300, "contrast": 1.42}
+    ok, reasons = planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0)
+    # The wording is the render core's own (workers.render.frame.contrast_reason), never a copy of it.
+    assert not ok and reasons == [contrast_reason(label, min_contrast=2.0)] and reasons[0].startswith("contrast 1.42")
+    assert planner.accept_instance({**label, "contrast": 2.0}, min_visible_fraction=0.3, min_box_px=6,
+                                   min_contrast=2.0) == (True, [])  # at the minimum: accepted
+    assert planner.accept_instance({**label, "contrast": 7.5}, min_visible_fraction=0.3, min_box_px=6,
+                                   min_contrast=2.0) == (True, [])
+    assert planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6, min_contrast=0.0) == (True, [])
+    # Every failed rule is listed, contrast after visibility and box.
+    ok, reasons = planner.accept_instance({**label, "visible_fraction": 0.1}, min_visible_fraction=0.3,
+                                          min_box_px=30, min_contrast=2.0)
+    assert reasons == ["visible_fraction 0.10 < 0.30", "box 20 px < 30 px", "contrast 1.42 < 2"]
+
+
+def test_accept_instance_judges_labels_without_contrast_as_before():
+    old = {"visible_fraction": 0.4, "bbox": [10, 10, 20, 8], "mask_area_px": 100, "reject_reasons": []}
+    for kwargs in ({}, {"min_contrast": 2.0}, {"min_contrast": 1000.0}):
+        assert planner.accept_instance(old, min_visible_fraction=0.3, min_box_px=6, **kwargs) == (True, [])
+        assert planner.accept_instance(old, min_visible_fraction=0.5, min_box_px=10, **kwargs) == (
+            False, ["visible_fraction 0.40 < 0.50", "box 8 px < 10 px"])
+    # No visible pixels: judged by geometry alone, whatever the contrast says.
+    assert planner.accept_instance({**old, "bbox": None, "mask_area_px": 0, "contrast": 0.0}, min_visible_fraction=0,
+                                   min_box_px=0, min_contrast=2.0) == (False, ["not visible"])
+
+
 def test_share_slots_by_weight():
     assert fleet_slots(concurrencies=[1, 2]) == 6
     assert fleet_slots(concurrencies=[]) == 0

@@ -28,6 +28,10 @@ pytestmark = pytest.mark.django_db(transaction=True)
         ({"quotas": [services.QuotaInput("chair", -1)]}, "target must be between 0 and"),
         ({"quotas": [services.QuotaInput("unicorn", 3)]}, "quota 'unicorn': unknown object class"),
         ({"quotas": [services.QuotaInput("chair", 3, min_visible_fraction=1.5)]}, "min visible fraction"),
+        ({"quotas": [services.QuotaInput("chair", 3, min_contrast=-0.5)]},
+         "quota 'chair': min contrast must be between 0 and 1000, got -0.5"),
+        ({"quotas": [services.QuotaInput("chair", 3, min_contrast=float("nan"))]}, "min contrast: must be finite"),
+        ({"quotas": [services.QuotaInput("chair", 3, min_contrast="high")]}, "min contrast: expected a number"),
         ({"quotas": [services.QuotaInput("chair", 0)]}, "every target is 0"),
         ({"quotas": []}, "at least one class quota"),
         ({"cost_budget": "-5"}, "cost_budget: must be at least 0"),
@@ -52,7 +56,7 @@ def test_bad_input_is_refused_with_a_clear_message_and_changes_nothing(user, cla
 
 def test_budget_is_stored_normalized(make_campaign):
     campaign = make_campaign()
-    assert campaign.budget["render"] == {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3}
+    assert campaign.budget["render"] == {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3, "denoise": True}
     assert campaign.budget["lighting"]["cct_k"] == [2700.0, 6500.0]  # default filled in by normalize_budget
     assert (campaign.width_px, campaign.height_px, campaign.spp) == (64, 48, 4)
 
@@ -264,6 +268,48 @@ def test_quota_met_exactly_once_and_campaign_completes_once(make_campaign, outbo
     assert outbox.take() == []
 
 
+def test_quota_min_contrast_defaults_to_the_budget_and_is_stored(user, classes):
+    campaign = services.create_campaign(
+        owner=user, name="contrast", budget={**TINY_BUDGET, "thresholds": {**TINY_BUDGET["thresholds"],
+                                                                            "min_contrast": 1.5}},
+        quotas=[services.QuotaInput("chair", 3, min_contrast=4.0), services.QuotaInput("ottoman", 2)],
+        cost_budget="100", price_per_cpu_hour="0.05")
+    assert dict(campaign.quotas.values_list("object_class__name", "min_contrast")) == {"chair": 4.0, "ottoman": 1.5}
+
+
+def test_result_judges_contrast_by_the_quota_and_stores_it(user, classes, outbox, media_root):
+    from workers.render.frame import contrast_reason
+
+    campaign = services.create_campaign(
+        owner=user, name="contrast", budget=TINY_BUDGET, cost_budget="100", price_per_cpu_hour="0.05",
+        quotas=[services.QuotaInput("chair", 30, min_contrast=3.0), services.QuotaInput("ottoman", 20)])
+    services.start_campaign(campaign_id=campaign.pk)
+    message = outbox.take()[0]
+    assert services.claim_frame(frame_id=message["frame_id"], dispatch_no=message["dispatch_no"],
+                                worker_host="w@test").ok
+    seen = {"bbox": [0, 0, 9, 9], "mask_area_px": 81, "visible_fraction": 1.0}
+    labels = [
+        {"instance_id": 1, "class_name": "chair", **seen, "contrast": 2.5},  # below the chair's 3
+        {"instance_id": 2, "class_name": "chair", **seen, "contrast": 3.0},  # at it
+        {"instance_id": 3, "class_name": "chair", **seen},  # a label from before the measure: judged as before
+        {"instance_id": 4, "class_name": "ottoman", **seen, "contrast": 1.9},  # below the budget default 2
+        {"instance_id": 5, "class_name": "ottoman", **seen, "contrast": 2.5},
+    ]
+    assert services.record_result(frame_id=message["frame_id"], dispatch_no=message["dispatch_no"], labels=labels,
+                                  cpu_s=0.5, wall_s=0.5)
+    rows = {i.instance_id: i for i in Instance.objects.filter(frame_id=message["frame_id"])}
+    assert {k: (r.contrast, r.accepted) for k, r in rows.items()} == {
+        1: (2.5, False), 2: (3.0, True), 3: (None, True), 4: (1.9, False), 5: (2.5, True)}
+    assert rows[1].reject_reasons == [contrast_reason(labels[0], min_contrast=3.0)] == ["contrast 2.50 < 3"]
+    assert rows[4].reject_reasons == [contrast_reason(labels[3], min_contrast=2.0)]
+    quotas = {q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related(
+        "object_class")}
+    assert (quotas["chair"].accepted_count, quotas["chair"].rejected_count) == (2, 1)
+    assert (quotas["ottoman"].accepted_count, quotas["ottoman"].rejected_count) == (1, 1)
+    campaign.refresh_from_db()
+    assert (campaign.instances_accepted, campaign.instances_rejected) == (3, 2)
+
+
 def test_real_tiny_render_through_the_task(make_campaign, outbox, media_root):
     """The task with the real render core at 64×48, 4 spp: files under MEDIA_ROOT, CPU seconds measured."""
     campaign = make_campaign(quotas={"chair": 30, "ottoman": 10}, start=True)
@@ -275,6 +321,9 @@ def test_real_tiny_render_through_the_task(make_campaign, outbox, media_root):
     assert (media_root / frame.output_dir / "rgb.png").is_file()
     assert frame.cpu_s > 0 and frame.wall_s > 0 and frame.worker_host
     assert Instance.objects.filter(frame=frame).count() == sum(frame.composition.values())
+    # The render core measures every visible instance's contrast; the row keeps it.
+    visible = Instance.objects.filter(frame=frame, mask_area_px__gt=0)
+    assert all(i.contrast is not None and i.contrast >= 0 for i in visible)
     assert outbox.deliver(message)["skipped"] == "frame is done"
     campaign.refresh_from_db()
     assert campaign.frames_done == 1

@@ -181,6 +181,85 @@ def test_create_campaign_with_quotas_and_ranges(client, people, object_classes):
     assert dict(campaign.quotas.values_list("object_class__name", "target_accepted")) == {"chair": 6, "wall_clock": 2}
 
 
+def test_create_campaign_with_a_per_class_min_contrast(client, people, object_classes):
+    client.force_login(people["pia"])
+    page = client.get(reverse("campaigns:create")).content.decode()
+    assert 'name="q_chair_contrast"' in page and "Min contrast" in page
+    data = _plan_data(people["team"], q_chair_contrast="3.5", q_wall_clock_contrast="", b_thresholds_min_contrast=1.25)
+    response = client.post(reverse("campaigns:create"), data)
+    assert response.status_code == 302, response.context["form"].errors
+    campaign = Campaign.objects.get(name="Lamps and clocks")
+    # An empty per-class minimum takes the budget's acceptance default.
+    assert dict(campaign.quotas.values_list("object_class__name", "min_contrast")) == {"chair": 3.5,
+                                                                                        "wall_clock": 1.25}
+    assert campaign.budget["thresholds"]["min_contrast"] == 1.25
+    edit = client.get(reverse("campaigns:edit", args=[campaign.pk]))
+    assert edit.context["form"]["q_chair_contrast"].value() == 3.5
+
+
+def test_a_service_error_on_a_quota_threshold_lands_on_its_column(client, people, object_classes):
+    from campaigns.forms import CampaignForm
+    from campaigns.services import CampaignError
+
+    form = CampaignForm(_plan_data(people["team"]), user=people["pia"])
+    assert form.is_valid(), form.errors
+    form.add_service_error(CampaignError("quota 'chair': min contrast must be between 0 and 1000, got 2000"))
+    form.add_service_error(CampaignError("quota 'wall_clock': min box size must be between 0 and 64 px, got 99"))
+    assert form.errors["q_chair_contrast"] == ["min contrast must be between 0 and 1000, got 2000"]
+    assert "q_wall_clock_box" in form.errors and "q_chair_target" not in form.errors
+
+
+def _checkbox(page: str, name: str) -> str:
+    import re
+
+    match = re.search(rf'<input[^>]*name="{name}"[^>]*>', page)
+    assert match, name
+    return match.group(0)
+
+
+def test_budget_switches_are_checkboxes_and_unchecked_saves_false(client, people, object_classes):
+    client.force_login(people["pia"])
+    page = client.get(reverse("campaigns:create")).content.decode()
+    for name in ("b_render_denoise", "b_camera_sensor_noise"):  # both default to on
+        assert 'type="checkbox"' in _checkbox(page, name) and "checked" in _checkbox(page, name)
+    # HTML semantics: an unchecked box is left out of the POST.
+    data = _plan_data(people["team"], b_camera_sensor_noise="on")
+    del data["b_render_denoise"]
+    response = client.post(reverse("campaigns:create"), data)
+    assert response.status_code == 302, response.context["form"].errors
+    campaign = Campaign.objects.get(name="Lamps and clocks")
+    assert campaign.budget["render"]["denoise"] is False and campaign.budget["camera"]["sensor_noise"] is True
+    # The edit form shows what was saved ...
+    page = client.get(reverse("campaigns:edit", args=[campaign.pk])).content.decode()
+    assert "checked" not in _checkbox(page, "b_render_denoise") and "checked" in _checkbox(page, "b_camera_sensor_noise")
+    # ... and saving it the other way round stores that.
+    data = _plan_data(people["team"], b_render_denoise="on")
+    del data["team"], data["b_camera_sensor_noise"]
+    assert client.post(reverse("campaigns:edit", args=[campaign.pk]), data).status_code == 302
+    campaign.refresh_from_db()
+    assert campaign.budget["render"]["denoise"] is True and campaign.budget["camera"]["sensor_noise"] is False
+    # The live estimate reads the same fields (FormData leaves unchecked boxes out too).
+    query = _plan_data(people["team"])
+    del query["b_render_denoise"]
+    assert client.get(reverse("campaigns:estimate"), query).json()["ok"]
+
+
+def test_pages_of_a_campaign_saved_before_the_new_budget_fields(client, make_campaign, people):
+    draft = make_campaign("from before")
+    old = dict(draft.budget)
+    old["render"] = {k: v for k, v in old["render"].items() if k != "denoise"}
+    old["camera"] = {k: v for k, v in old["camera"].items() if k != "sensor_noise"}
+    old["thresholds"] = {k: v for k, v in old["thresholds"].items() if k != "min_contrast"}
+    Campaign.objects.filter(pk=draft.pk).update(budget=old)
+    client.force_login(people["pia"])
+    detail = client.get(reverse("campaigns:detail", args=[draft.pk]))
+    assert detail.status_code == 200
+    rows = {r["name"]: r["value"] for r in detail.context["budget_rows"]}
+    assert rows["denoise"] == "on" and rows["min contrast"] == "2"  # the render core's defaults for missing fields
+    edit = client.get(reverse("campaigns:edit", args=[draft.pk]))
+    assert edit.status_code == 200 and "checked" in _checkbox(edit.content.decode(), "b_render_denoise")
+
+
 def test_preview_button_estimates_without_saving(client, people, object_classes):
     client.force_login(people["pia"])
     response = client.post(reverse("campaigns:create"), {**_plan_data(people["team"]), "preview": "1"})
@@ -204,6 +283,12 @@ def test_preview_button_estimates_without_saving(client, people, object_classes)
       "b_lighting_dome_illuminance_lux_max": 0, "b_lighting_sun_probability": 0}, None, "frames would be black"),
     ({"team": 999999}, "team", "Select a valid choice"),
     ({"seed": "1e400"}, "seed", "whole number"),
+    ({"q_chair_contrast": -1}, "q_chair_contrast", "greater than or equal to 0"),
+    ({"q_chair_contrast": "lots"}, "q_chair_contrast", "Enter a number"),
+    ({"q_chair_contrast": "nan"}, "q_chair_contrast", "Enter a number"),
+    ({"q_wall_clock_contrast": "inf"}, "q_wall_clock_contrast", "Enter a number"),
+    ({"q_chair_contrast": 5000}, "q_chair_contrast", "less than or equal to 1000"),
+    ({"b_thresholds_min_contrast": -2}, "b_thresholds_min_contrast", "greater than or equal to 0"),
 ])
 def test_invalid_plan_is_shown_inline_and_nothing_saved(client, people, object_classes, overrides, field, message):
     client.force_login(people["pia"])
@@ -349,6 +434,11 @@ def test_frame_page_images_labels_and_cached_views(client, done_campaign, people
     assert "Re-render" not in page  # viewer
     n_instances = Frame.objects.get(campaign=done_campaign, index=0).instances.count()
     assert page.count("<tr><td>") >= n_instances
+    # Beside the visible fraction: each instance's contrast (the render core measured it), in the table and tooltip.
+    measured = Frame.objects.get(campaign=done_campaign, index=0).instances.exclude(contrast=None)
+    assert "<th" in page and ">Contrast</th>" in page and measured.exists()
+    for instance in measured:
+        assert f"<td>{instance.contrast:.2f}</td>" in page and f"contrast {instance.contrast:.2f}" in page
     folder = media_root / "campaigns" / str(done_campaign.pk) / "frames" / "0"
     for name in ("mask.png", "depth.png", "thumb.jpg"):
         body = _body(client.get(reverse("campaigns:frame-file", args=[done_campaign.pk, 0, name])))

@@ -209,6 +209,33 @@ def test_accepted_only_drops_rejected_instances(real_campaign, tmp_path):
         len(json.loads(p.read_text())["images"]) for p in _coco_files(accepted)[1:]) == len(FRAME_PLAN)
 
 
+def test_annotations_carry_contrast_and_the_statistics_average_it(real_campaign, tmp_path):
+    from campaigns.models import ClassQuota, Instance
+
+    visible = Instance.objects.filter(campaign=real_campaign, mask_area_px__gt=0)
+    chairs = visible.filter(object_class__name="chair")
+    old = chairs.order_by("pk").first()
+    Instance.objects.filter(pk=old.pk).update(contrast=None)  # as recorded from a frame rendered before the measure
+    ClassQuota.objects.filter(campaign=real_campaign, object_class__name="chair").update(min_contrast=3.5)
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    annotations = {a["id"]: a for p in _coco_files(out) for a in json.loads(p.read_text())["annotations"]}
+    rows = {row.pk: row for row in visible}
+    assert set(annotations) == set(rows)
+    assert all(annotations[pk]["contrast"] == row.contrast for pk, row in rows.items())
+    assert annotations[old.pk]["contrast"] is None
+    assert sum(a["contrast"] is not None for a in annotations.values()) == len(rows) - 1  # the render core measured
+    assert '"contrast":null' in "".join(p.read_text() for p in _coco_files(out))  # JSON null, not a missing key
+    stats = {c["name"]: c for c in json.loads((out / "class_statistics.json").read_text())["classes"]}
+    measured = [r.contrast for r in chairs.exclude(pk=old.pk)]
+    assert stats["chair"]["instances_with_contrast"] == len(measured) == chairs.count() - 1
+    assert stats["chair"]["mean_contrast"] == pytest.approx(sum(measured) / len(measured), abs=1e-6)
+    assert stats["chair"]["quota"]["min_contrast"] == 3.5 and stats["sofa"]["quota"]["min_contrast"] == 2.0
+    quotas = {q["class_name"]: q for q in json.loads((out / "campaign.json").read_text())["quotas"]}
+    assert quotas["chair"]["min_contrast"] == 3.5
+    assert "contrast" in (out / "README.md").read_text()
+
+
 def test_reexport_writes_only_what_is_new(real_campaign, rendered_frames, media_root, tmp_path):
     from tests.export.conftest import record_frames
 

@@ -31,7 +31,7 @@ def test_spec_holds_everything_needed_to_re_render():
     spec = make_spec({"render": {"width_px": 320, "height_px": 240, "spp": 8}}, COMPOSITION, 5)
     assert spec["format_version"] == SPEC_FORMAT_VERSION
     assert spec["seed"] == 5 and set(spec["sub_seeds"]) == set(AXES)
-    assert spec["render"] == {"width_px": 320, "height_px": 240, "spp": 8, "max_depth": 6}
+    assert spec["render"] == {"width_px": 320, "height_px": 240, "spp": 8, "max_depth": 6, "denoise": True}
     assert spec["budget"]["render"]["width_px"] == 320  # the full normalized budget
     assert set(spec["budget"]) == {"render", "room", "lighting", "camera", "thresholds", "variation"}
     assert spec["thresholds"] == spec["budget"]["thresholds"]

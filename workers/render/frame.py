@@ -7,12 +7,12 @@ Stages (``FrameResult.timings_s`` has exactly these keys, seconds):
 ``scene_build``
     procedural meshes, BSDFs, emitters, ``mi.load_dict`` (acceleration structure);
 ``render``
-    Mitsuba's ``mi.render`` of the RGB pass (radiance with the albedo and normal images; plus the
-    sun's own pass when the sky enters through window portals);
-``denoise``
-    Intel Open Image Denoise on the linear radiance (0 when the budget turns it off);
+    Mitsuba's ``mi.render`` of the RGB pass (plus the sun's own pass when the sky enters through
+    window portals);
 ``label_pass``
     the ``aov`` render (shape index + depth) and its mapping to instance ids / z-depth;
+``denoise``
+    Intel Open Image Denoise on the linear radiance (0 when the budget turns it off);
 ``labels``
     per-instance boxes, visibility, truncation, RLE;
 ``encode``
@@ -45,7 +45,7 @@ import numpy as np
 
 from .rounding import round_floats
 
-STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "denoise", "label_pass", "labels", "encode")
+STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "denoise", "labels", "encode")
 # PNG zlib level 1 (fast). Measured at 640×480: the noisy RGB frame compresses best *and* fastest
 # with the Huffman-only strategy (15 ms, 420 KB vs 19 ms, 497 KB at the default strategy); the
 # instance image is mostly runs, where the default strategy is already 4 ms and 5 KB.
@@ -249,7 +249,7 @@ def render_frame(
     """
     from . import labels as labels_module
     from .backend import init_renderer
-    from .scene import build_scene, render_label_pass, render_radiance
+    from .scene import build_scene, render_label_and_aux, render_radiance
     from .spec import axis_rng
 
     timings = dict.fromkeys(STAGES, 0.0)
@@ -264,9 +264,14 @@ def render_frame(
     timings["scene_build"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    radiance_pass = render_radiance(built, seed=spec["sub_seeds"]["noise"], aux=wants_denoise)
-    radiance = radiance_pass.radiance_rgb
+    radiance_pass = render_radiance(built, seed=spec["sub_seeds"]["noise"])
     timings["render"] = time.perf_counter() - start
+
+    start = time.perf_counter()
+    label_pass = render_label_and_aux(built)
+    instance_ids, depth_m = label_pass.instance_ids, label_pass.depth_m
+    radiance_pass.albedo_rgb, radiance_pass.normal_xyz = label_pass.albedo_rgb, label_pass.normal_xyz
+    timings["label_pass"] = time.perf_counter() - start
 
     start = time.perf_counter()
     render_info = denoise_radiance(radiance_pass, wanted=wants_denoise, threads=threads)
@@ -274,10 +279,6 @@ def render_frame(
     render_info.update({"spp": int(render["spp"]), "window_light": built.window_light,
                         "sun_pass": built.sun_scene is not None, "reconstruction_filter": "box"})
     timings["denoise"] = time.perf_counter() - start
-
-    start = time.perf_counter()
-    instance_ids, depth_m = render_label_pass(built)
-    timings["label_pass"] = time.perf_counter() - start
 
     start = time.perf_counter()
     triangles_world = {instance_id: np.concatenate([vertices[faces] for vertices, faces in parts])

@@ -5,7 +5,7 @@ the sensor noise, or of the same colour as what surrounds it. :func:`instance_co
 from the final sRGB image and the label pass's instance-id image, so that a threshold (``min_contrast`` in the
 budget) can reject such instances.
 
-The measure is::
+The measure (C below) is::
 
     contrast = ΔE*ab(mean L*a*b* of inside, mean L*a*b* of ring) / max(σ_noise, 1 L*)
 
@@ -63,10 +63,10 @@ import numpy as np
 from scipy import ndimage
 
 # ΔE*ab ≈ 1 to 2.3 is commonly quoted as a just-noticeable difference (Sharma, Digital Color Imaging Handbook, 2003,
-# cited from memory); common practice.
-NOISE_FLOOR_LSTAR = 1.0
+# cited from memory).
+NOISE_FLOOR_LSTAR = 1.0  # common practice
 
-# Ring width: 1 % of the shorter image side, at least 2 px; common practice (our choice, not a standard).
+# Ring width: 1 % of the shorter image side, at least 2 px; our own choice, not from a standard.
 RING_FRACTION = 0.01
 RING_MIN_PX = 2
 

@@ -29,19 +29,25 @@ def format_duration(seconds: float | None) -> str:
     return f"{hours} h {minutes:02d} min" if hours else f"{minutes} min {secs:02d} s"
 
 
+QUOTA_SYNTAX = "class=target[:min_visible_fraction[:min_box_px[:min_contrast]]]"
+
+
 def parse_quota(text: str) -> services.QuotaInput:
-    """``class=target`` or ``class=target:min_visible_fraction:min_box_px``."""
+    """``class=target`` or ``class=target:min_visible_fraction:min_box_px:min_contrast`` (empty = default)."""
     if "=" not in text:
-        raise CommandError(f"--quota {text!r}: expected class=target[:min_visible_fraction[:min_box_px]]")
+        raise CommandError(f"--quota {text!r}: expected {QUOTA_SYNTAX}")
     name, _, rest = text.partition("=")
     parts = rest.split(":")
+    if len(parts) > 4:
+        raise CommandError(f"--quota {text!r}: expected {QUOTA_SYNTAX}")
     try:
         target = int(parts[0])
         vis = float(parts[1]) if len(parts) > 1 and parts[1] else None
         box = float(parts[2]) if len(parts) > 2 and parts[2] else None
+        contrast = float(parts[3]) if len(parts) > 3 and parts[3] else None
     except ValueError as exc:
         raise CommandError(f"--quota {text!r}: {exc}") from exc
-    return services.QuotaInput(name.strip(), target, vis, box)
+    return services.QuotaInput(name.strip(), target, vis, box, contrast)
 
 
 class Command(BaseCommand):
@@ -53,7 +59,7 @@ class Command(BaseCommand):
         create.add_argument("name")
         create.add_argument("--owner", required=True, help="Username of the owner")
         create.add_argument("--quota", action="append", default=[], required=True,
-                            help="class=target[:min_visible_fraction[:min_box_px]]; repeat per class")
+                            help=f"{QUOTA_SYNTAX}; repeat per class")
         create.add_argument("--budget-file", help="JSON randomization budget (partial; merged over the defaults)")
         create.add_argument("--budget-json", help="The same, inline")
         create.add_argument("--width", type=int, help="Shortcut for render.width_px")

@@ -1,0 +1,240 @@
+"""Image-quality benchmark: default frames against high-spp references, and quality per CPU-second.
+
+``python -m workers.render.bench_quality [--per-kind 3] [--width 320 --height 240] [--reference-spp 2048]``
+
+1. Seeds: the first ``--per-kind`` seeds (default composition) of each lighting kind — ``lamp``
+   (no window), ``window`` (sky through a window brings more flux than the lamps, no sun) and
+   ``sun`` (sunlight through a window).
+2. Reference per seed: the same scene at ``--reference-spp`` samples per pixel, denoiser and sensor
+   noise off, sky through window portals (unbiased; ``tests/render/test_image_quality.py``
+   checks it against brute force). Cached under ``--cache`` by the spec's bytes, so reruns are quick.
+3. Default frame: the campaign default budget (only the resolution changed), end to end through
+   :func:`workers.render.frame.render_frame`, timed in process CPU seconds (all threads). PSNR and
+   SSIM (scikit-image ``metrics``) of its 8-bit image against the reference's: once with the
+   default's sensor noise (what the dataset gets; the noise is a deliberate randomization) and once
+   with sensor noise off (the render's own error).
+4. Raw at equal CPU: the previous pipeline (sky found by brute force, no denoiser, sensor noise off)
+   at the sample count whose CPU time matches the default frame's, scored the same way.
+5. CPU per frame at ``--cpu-width`` × ``--cpu-height`` (640×480): the new default against the
+   previous default (32 spp, no denoiser, brute-force sky), median over one seed of each kind.
+
+Goals (printed, not asserted): median PSNR ≥ 32 dB, worst seed ≥ 28 dB, median SSIM ≥ 0.9; new
+default CPU ≤ 1/3 of the previous default's at 640×480; default ≥ 8 dB above the raw render at
+equal CPU time.
+"""
+
+from __future__ import annotations
+
+import argparse
+import copy
+import hashlib
+import math
+import statistics
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+GOAL_MEDIAN_PSNR_DB = 32.0
+GOAL_WORST_PSNR_DB = 28.0
+GOAL_MEDIAN_SSIM = 0.9
+GOAL_CPU_RATIO = 1 / 3
+GOAL_EQUAL_CPU_GAIN_DB = 8.0
+KINDS = ("lamp", "window", "sun")
+#: The default before denoising and portals (for the CPU comparison).
+PREVIOUS_DEFAULT = {"spp": 32, "denoise": False, "window_light": "dome"}
+
+
+def lighting_kind(spec: dict[str, Any]) -> str | None:
+    """``lamp``, ``window`` or ``sun`` for a spec (None: a window room where the lamps outshine the sky)."""
+    lights = spec["lights"]
+    windows = spec["room"].get("windows") or []
+    if any(light["kind"] == "sun" for light in lights):
+        return "sun"
+    if not windows:
+        return "lamp"
+    window_area_m2 = sum(float(w["width_m"]) * float(w["height_m"]) for w in windows)
+    sky_lm = sum(float(light["illuminance_lux"]) for light in lights if light["kind"] == "dome") * window_area_m2
+    lamp_lm = sum(float(light.get("flux_lm", 0.0)) for light in lights if light["kind"] in ("panel", "point", "spot"))
+    return "window" if sky_lm > lamp_lm else None
+
+
+def pick_seeds(budget: dict[str, Any], composition: dict[str, int], per_kind: int, *, limit: int = 500) -> list[tuple[int, str]]:
+    from .spec import make_spec
+
+    chosen: dict[str, list[int]] = {kind: [] for kind in KINDS}
+    for seed in range(limit):
+        try:
+            kind = lighting_kind(make_spec(budget, composition, seed))
+        except ValueError:
+            continue
+        if kind and len(chosen[kind]) < per_kind:
+            chosen[kind].append(seed)
+        if all(len(v) >= per_kind for v in chosen.values()):
+            break
+    return [(seed, kind) for kind in KINDS for seed in chosen[kind]]
+
+
+def _budget(width_px: int, height_px: int, **render: Any) -> dict[str, Any]:
+    from .budget import DEFAULT_BUDGET
+
+    budget = copy.deepcopy(DEFAULT_BUDGET)
+    budget["render"].update(width_px=width_px, height_px=height_px, **render)
+    return budget
+
+
+def _render(spec: dict[str, Any], *, window_light: str = "portal", threads: int | None = None) -> tuple[Any, float]:
+    from .frame import render_frame
+
+    start = time.process_time()
+    result = render_frame(spec, window_light=window_light, threads=threads)
+    return result, time.process_time() - start
+
+
+def _with(spec: dict[str, Any], *, spp: int | None = None, denoise: bool | None = None,
+          sensor_noise: bool | None = None) -> dict[str, Any]:
+    spec = copy.deepcopy(spec)
+    if spp is not None:
+        spec["render"]["spp"] = int(spp)
+    if denoise is not None:
+        spec["render"]["denoise"] = bool(denoise)
+    if sensor_noise is not None:
+        spec["camera"]["sensor_noise"] = bool(sensor_noise)
+    return spec
+
+
+def reference_rgb(spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None) -> np.ndarray:
+    """The reference 8-bit image of ``spec`` (cached on disk by the reference spec's bytes)."""
+    from .spec import spec_to_json
+
+    reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
+    key = hashlib.sha256(spec_to_json(reference).encode()).hexdigest()[:20]
+    path = cache / f"reference-{key}.npy"
+    if path.is_file():
+        return np.load(path)
+    result, cpu_s = _render(reference, threads=threads)
+    cache.mkdir(parents=True, exist_ok=True)
+    np.save(path, result.rgb)
+    print(f"    (reference rendered: {reference_spp} spp, {cpu_s:.0f} CPU s, cached as {path.name})", flush=True)
+    return result.rgb
+
+
+def scores(reference: np.ndarray, image: np.ndarray) -> tuple[float, float]:
+    """(PSNR dB, SSIM) of two 8-bit RGB images, scikit-image ``metrics``."""
+    from skimage.metrics import peak_signal_noise_ratio, structural_similarity
+
+    psnr = float(peak_signal_noise_ratio(reference, image, data_range=255))
+    ssim = float(structural_similarity(reference, image, channel_axis=2, data_range=255))
+    return (psnr if math.isfinite(psnr) else 99.0), ssim
+
+
+def _verdict(ok: bool) -> str:
+    return "meets" if ok else "MISSES"
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(prog="python -m workers.render.bench_quality", description=__doc__.split("\n\n")[0])
+    parser.add_argument("--per-kind", type=int, default=3, help="seeds per lighting kind (lamp, window, sun)")
+    parser.add_argument("--width", type=int, default=320)
+    parser.add_argument("--height", type=int, default=240)
+    parser.add_argument("--reference-spp", type=int, default=2048)
+    parser.add_argument("--cpu-width", type=int, default=640)
+    parser.add_argument("--cpu-height", type=int, default=480)
+    parser.add_argument("--skip-cpu", action="store_true", help="skip the 640×480 CPU comparison")
+    parser.add_argument("--cache", type=Path, default=Path("data/bench_quality"))
+    parser.add_argument("--variant", default="llvm_ad_rgb", choices=("llvm_ad_rgb", "scalar_rgb"))
+    parser.add_argument("--threads", type=int)
+    args = parser.parse_args(argv)
+    if args.per_kind < 1 or args.reference_spp < 1:
+        parser.error("--per-kind and --reference-spp must be at least 1")
+
+    from .backend import init_renderer
+    from .budget import DEFAULT_BUDGET
+    from .cli import default_composition
+    from .denoise import denoiser_status
+    from .spec import make_spec
+
+    choice = init_renderer(variant=args.variant, threads=args.threads)
+    status = denoiser_status()
+    composition = default_composition()
+    default_render = DEFAULT_BUDGET["render"]
+    budget = _budget(args.width, args.height)
+    seeds = pick_seeds(budget, composition, args.per_kind)
+    print(f"bench_quality: {args.width}x{args.height}, variant {choice.variant}, default {default_render['spp']} spp, "
+          f"denoise {default_render['denoise']}, reference {args.reference_spp} spp; denoiser: {status or 'loaded'}")
+    print(f"seeds: {', '.join(f'{s} ({k})' for s, k in seeds)}")
+    # Warm-up: JIT compilation of the kernels each configuration uses (excluded from the timings).
+    warm = make_spec(_budget(48, 36), composition, seeds[0][0])
+    for window_light in ("portal", "dome"):
+        _render(warm, window_light=window_light, threads=args.threads)
+
+    header = (f"{'seed':>5} {'kind':<7} {'PSNR dB':>8} {'SSIM':>6} {'PSNR no-SN':>10} {'SSIM no-SN':>10} "
+              f"{'CPU s':>6} {'raw spp':>7} {'raw CPU s':>9} {'raw PSNR':>8} {'gain dB':>7}")
+    print(header)
+    rows = []
+    for seed, kind in seeds:
+        spec = make_spec(budget, composition, seed)
+        reference = reference_rgb(spec, args.reference_spp, args.cache, threads=args.threads)
+        default, cpu_s = _render(spec, threads=args.threads)
+        psnr, ssim = scores(reference, default.rgb)
+        clean, _ = _render(_with(spec, sensor_noise=False), threads=args.threads)
+        psnr_clean, ssim_clean = scores(reference, clean.rgb)
+        # Raw (previous pipeline) at the CPU time of the default frame: CPU per sample from a probe render.
+        probe_spp = 8
+        _, probe_cpu_s = _render(_with(spec, spp=probe_spp, denoise=False, sensor_noise=False), window_light="dome",
+                                 threads=args.threads)
+        raw_spp = max(1, round(probe_spp * cpu_s / probe_cpu_s))
+        raw, raw_cpu_s = _render(_with(spec, spp=raw_spp, denoise=False, sensor_noise=False), window_light="dome",
+                                 threads=args.threads)
+        psnr_raw, _ = scores(reference, raw.rgb)
+        rows.append({"psnr": psnr, "ssim": ssim, "psnr_clean": psnr_clean, "ssim_clean": ssim_clean, "cpu_s": cpu_s,
+                     "raw_cpu_s": raw_cpu_s, "psnr_raw": psnr_raw, "gain": psnr_clean - psnr_raw})
+        print(f"{seed:>5} {kind:<7} {psnr:>8.2f} {ssim:>6.3f} {psnr_clean:>10.2f} {ssim_clean:>10.3f} {cpu_s:>6.2f} "
+              f"{raw_spp:>7} {raw_cpu_s:>9.2f} {psnr_raw:>8.2f} {psnr_clean - psnr_raw:>7.2f}", flush=True)
+
+    def median(key: str) -> float:
+        return statistics.median(r[key] for r in rows)
+
+    print(f"{'median':>13} {median('psnr'):>8.2f} {median('ssim'):>6.3f} {median('psnr_clean'):>10.2f} "
+          f"{median('ssim_clean'):>10.3f} {median('cpu_s'):>6.2f} {'':>7} {median('raw_cpu_s'):>9.2f} "
+          f"{median('psnr_raw'):>8.2f} {median('gain'):>7.2f}")
+    worst = min(r["psnr"] for r in rows)
+    worst_clean = min(r["psnr_clean"] for r in rows)
+    print("\nPSNR / SSIM: scikit-image metrics on the 8-bit images; 'no-SN' = the same frame with sensor noise off.")
+    print(f"goal median PSNR >= {GOAL_MEDIAN_PSNR_DB:g} dB: {median('psnr'):.2f} dB with sensor noise "
+          f"({_verdict(median('psnr') >= GOAL_MEDIAN_PSNR_DB)}), {median('psnr_clean'):.2f} dB without "
+          f"({_verdict(median('psnr_clean') >= GOAL_MEDIAN_PSNR_DB)})")
+    print(f"goal worst seed >= {GOAL_WORST_PSNR_DB:g} dB: {worst:.2f} dB with sensor noise "
+          f"({_verdict(worst >= GOAL_WORST_PSNR_DB)}), {worst_clean:.2f} dB without "
+          f"({_verdict(worst_clean >= GOAL_WORST_PSNR_DB)})")
+    print(f"goal median SSIM >= {GOAL_MEDIAN_SSIM:g}: {median('ssim'):.3f} with sensor noise "
+          f"({_verdict(median('ssim') >= GOAL_MEDIAN_SSIM)}), {median('ssim_clean'):.3f} without "
+          f"({_verdict(median('ssim_clean') >= GOAL_MEDIAN_SSIM)})")
+    print(f"goal >= {GOAL_EQUAL_CPU_GAIN_DB:g} dB above the raw render at equal CPU time: median gain "
+          f"{median('gain'):.2f} dB, smallest {min(r['gain'] for r in rows):.2f} dB "
+          f"({_verdict(median('gain') >= GOAL_EQUAL_CPU_GAIN_DB)})")
+
+    if not args.skip_cpu:
+        cpu_budget = _budget(args.cpu_width, args.cpu_height)
+        one_per_kind = [next(s for s, k in seeds if k == kind) for kind in KINDS]
+        new_cpu, old_cpu = [], []
+        for seed in one_per_kind:
+            spec = make_spec(cpu_budget, composition, seed)
+            new_cpu.append(_render(spec, threads=args.threads)[1])
+            old = _with(spec, spp=PREVIOUS_DEFAULT["spp"], denoise=PREVIOUS_DEFAULT["denoise"])
+            old_cpu.append(_render(old, window_light=PREVIOUS_DEFAULT["window_light"], threads=args.threads)[1])
+        new_s, old_s = statistics.median(new_cpu), statistics.median(old_cpu)
+        print(f"\nCPU per frame at {args.cpu_width}x{args.cpu_height}, end to end (process CPU s, median of seeds "
+              f"{', '.join(map(str, one_per_kind))}):")
+        print(f"  previous default (32 spp, no denoiser, brute-force sky): {old_s:.2f} s "
+              f"({', '.join(f'{v:.2f}' for v in old_cpu)})")
+        print(f"  new default ({default_render['spp']} spp, denoiser, window portals):  {new_s:.2f} s "
+              f"({', '.join(f'{v:.2f}' for v in new_cpu)})")
+        print(f"  ratio {new_s / old_s:.3f} (goal <= {GOAL_CPU_RATIO:.3f}: {_verdict(new_s / old_s <= GOAL_CPU_RATIO)})")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
