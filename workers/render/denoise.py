@@ -171,8 +171,6 @@ def denoise(color_rgb: np.ndarray, *, albedo_rgb: np.ndarray | None = None, norm
     """
     color = _image(color_rgb, np.shape(color_rgb)[:2] + (3,), "color")
     shape = color.shape
-    if color.ndim != 3:
-        raise ValueError(f"denoise: expected an (H, W, 3) image, got shape {np.shape(color_rgb)}")
     albedo = _image(albedo_rgb, shape, "albedo")
     normal = _image(normal_xyz, shape, "normal") if albedo is not None else None
     color = np.nan_to_num(color, nan=0.0, posinf=0.0, neginf=0.0)

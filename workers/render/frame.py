@@ -121,21 +121,18 @@ def auto_exposure(mean_luminance_cd_m2: float, camera: dict[str, Any]) -> dict[s
         return {"shutter_s": hi_s, "metered_shutter_s": hi_s, "iso": iso, "exposure_error_ev": 0.0,
                 "limited_by": "longest shutter"}
     metered = meter(iso)
+    # Step along the 1/3-stop series away from the sampled ISO (up when the longest shutter is too
+    # short, down when the shortest is too long) and stop at the first speed whose snapped time fits.
     if metered > hi_s and iso < iso_hi:
-        # Up the 1/3-stop series from the smallest speed that should do, until the (snapped) time fits.
-        needed = min(iso * metered / hi_s, iso_hi)
-        speeds = [v for v in cam.nominal_iso_values(iso, iso_hi) if v >= needed * (1 - 1e-9)] or [iso_hi]
-        for speed in [*speeds, iso_hi]:
-            iso, metered = float(speed), meter(speed)
-            if metered <= hi_s:
-                break
+        speeds = [*cam.nominal_iso_values(iso, iso_hi), iso_hi]
     elif metered < lo_s and iso > iso_lo:
-        needed = max(iso * metered / lo_s, iso_lo)
-        speeds = [v for v in cam.nominal_iso_values(iso_lo, iso) if v <= needed * (1 + 1e-9)] or [iso_lo]
-        for speed in [*reversed(speeds), iso_lo]:
-            iso, metered = float(speed), meter(speed)
-            if metered >= lo_s:
-                break
+        speeds = [*reversed(cam.nominal_iso_values(iso_lo, iso)), iso_lo]
+    else:
+        speeds = []
+    for speed in speeds:
+        iso, metered = float(speed), meter(speed)
+        if lo_s <= metered <= hi_s:
+            break
     shutter_s = min(max(metered, lo_s), hi_s)
     limited_by = "shortest shutter" if metered < lo_s else "longest shutter" if metered > hi_s else None
     return {"shutter_s": shutter_s, "metered_shutter_s": metered, "iso": iso,
@@ -274,8 +271,7 @@ def render_frame(
     timings["label_pass"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    render_info = denoise_radiance(radiance_pass, wanted=wants_denoise, threads=threads)
-    radiance_out = render_info.pop("_radiance")
+    radiance_out, render_info = denoise_radiance(radiance_pass, wanted=wants_denoise, threads=threads)
     render_info.update({"spp": int(render["spp"]), "window_light": built.window_light,
                         "sun_pass": built.sun_scene is not None, "reconstruction_filter": "box"})
     timings["denoise"] = time.perf_counter() - start
@@ -313,28 +309,23 @@ def render_frame(
     return result
 
 
-def denoise_radiance(radiance_pass: Any, *, wanted: bool, threads: int | None = None) -> dict[str, Any]:
-    """Denoise the RGB pass's radiance when ``wanted``; returns the labels' ``render`` record.
+def denoise_radiance(radiance_pass: Any, *, wanted: bool,
+                     threads: int | None = None) -> tuple[np.ndarray, dict[str, Any]]:
+    """(radiance to expose, the labels' ``render`` record): denoised when ``wanted`` and the library loads.
 
-    The record says ``denoised`` (bool) and ``denoiser`` (what ran, or why nothing did); the key
-    ``_radiance`` carries the image to expose (the caller pops it). A denoiser that cannot load
-    leaves the frame raw and says so, rather than failing the frame.
+    The record says ``denoised`` (bool) and ``denoiser`` (what ran, or why nothing did). A denoiser that
+    cannot load leaves the frame raw and says so, rather than failing the frame.
     """
     from .denoise import DenoiserUnavailable, denoise
 
-    info: dict[str, Any] = {"denoised": False, "denoiser": "off (budget render.denoise is false)",
-                            "_radiance": radiance_pass.radiance_rgb}
     if not wanted:
-        return info
+        return radiance_pass.radiance_rgb, {"denoised": False, "denoiser": "off (budget render.denoise is false)"}
     try:
-        info["_radiance"] = denoise(radiance_pass.radiance_rgb, albedo_rgb=radiance_pass.albedo_rgb,
-                                    normal_xyz=radiance_pass.normal_xyz, hdr=True, threads=threads)
+        radiance = denoise(radiance_pass.radiance_rgb, albedo_rgb=radiance_pass.albedo_rgb,
+                           normal_xyz=radiance_pass.normal_xyz, hdr=True, threads=threads)
     except DenoiserUnavailable as exc:
-        info["denoiser"] = f"unavailable, frame left raw: {exc}"
-        return info
-    info["denoised"] = True
-    info["denoiser"] = DENOISER_NAME
-    return info
+        return radiance_pass.radiance_rgb, {"denoised": False, "denoiser": f"unavailable, frame left raw: {exc}"}
+    return radiance, {"denoised": True, "denoiser": DENOISER_NAME}
 
 
 DENOISER_NAME = "Intel Open Image Denoise 1.4.3, RT filter, HDR, albedo + normal"
@@ -348,6 +339,7 @@ def judge_visibility(rgb: np.ndarray, instance_ids: np.ndarray, instances: list[
     see. Instances already not visible geometrically keep contrast 0 and no extra reason.
     See :mod:`workers.render.visibility` for the measure.
     """
+    from .labels import thresholds_for_class
     from .visibility import instance_contrasts, noise_sigma_lightness
 
     noise_sigma = noise_sigma_lightness(rgb)
@@ -361,19 +353,13 @@ def judge_visibility(rgb: np.ndarray, instance_ids: np.ndarray, instances: list[
         item["delta_e"] = float(values["delta_e"])
         item["lightness"] = float(values["lightness"])
         item["noise_sigma_lightness"] = round(float(noise_sigma), 4)
-        reason = contrast_reason(item, min_contrast=float(_class_threshold(thresholds, item.get("class_name"),
-                                                                            "min_contrast", 0.0)))
+        min_contrast = thresholds_for_class(item.get("class_name", ""), thresholds)["min_contrast"]
+        reason = contrast_reason(item, min_contrast=min_contrast)
         if reason:
             item["reject_reasons"] = [*item.get("reject_reasons", []), reason]
             item["accepted"] = False
         out.append(item)
     return out
-
-
-def _class_threshold(thresholds: Mapping[str, Any], class_name: Any, key: str, default: float) -> float:
-    value = thresholds.get(key, default)
-    per_class = (thresholds.get("per_class") or {}).get(class_name) or {}
-    return float(per_class.get(key, value))
 
 
 def contrast_reason(label: Mapping[str, Any], *, min_contrast: float) -> str | None:

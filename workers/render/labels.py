@@ -266,13 +266,18 @@ def coverage_px(triangles_px: np.ndarray, width_px: int, height_px: int) -> tupl
 # ---------------------------------------------------------------------------------------------------------------------
 
 
-def _thresholds_for(
-    class_name: str, thresholds: Mapping[str, Any], class_thresholds: Mapping[str, Mapping[str, Any]] | None
-) -> tuple[float, float]:
-    merged = {k: v for k, v in thresholds.items() if k in ("min_visible_fraction", "min_box_px")}
+ACCEPTANCE_KEYS = ("min_visible_fraction", "min_box_px", "min_contrast")
+
+
+def thresholds_for_class(
+    class_name: str, thresholds: Mapping[str, Any], class_thresholds: Mapping[str, Mapping[str, Any]] | None = None
+) -> dict[str, float]:
+    """The acceptance thresholds of one class: the budget's, overridden by ``thresholds["per_class"]``, then by
+    ``class_thresholds``. Missing thresholds are 0 (nothing rejected on them)."""
+    merged = {k: v for k, v in thresholds.items() if k in ACCEPTANCE_KEYS}
     for overrides in (thresholds.get("per_class") or {}, class_thresholds or {}):
         merged.update(overrides.get(class_name, {}))
-    return float(merged.get("min_visible_fraction", 0.0)), float(merged.get("min_box_px", 0.0))
+    return {key: float(merged.get(key, 0.0)) for key in ACCEPTANCE_KEYS}
 
 
 def instance_labels(
@@ -353,7 +358,8 @@ def instance_labels(
         occlusion = 1.0 - area / in_frame_px if in_frame_px > 0 else 0.0
         truncation = 1.0 - in_frame_px / alone_px if alone_px > 0 else 1.0
 
-        min_visible, min_box = _thresholds_for(obj.get("class_name", ""), thresholds, class_thresholds)
+        rule = thresholds_for_class(obj.get("class_name", ""), thresholds, class_thresholds)
+        min_visible, min_box = rule["min_visible_fraction"], rule["min_box_px"]
         reasons = []
         if area == 0:
             reasons.append("not visible")
