@@ -213,15 +213,6 @@ def test_focal_length_keeps_its_budget_spread_without_zoom_out():
     assert np.median(short) < np.median(focal)  # the trade-off is real: zooming out shortens the lens
 
 
-def test_sample_camera_is_fast():
-    budget = normalize_budget()
-    objects = _fake_objects() * 3
-    rng = np.random.default_rng(0)
-    camera.sample_camera(budget, FAKE_ROOM, objects, rng)
-    start = time.perf_counter()
-    for _ in range(20):
-        camera.sample_camera(budget, FAKE_ROOM, objects, rng)
-    assert (time.perf_counter() - start) / 20 < 0.005
 
 
 # ---------------------------------------------------------------------------------------------------------------------

@@ -15,8 +15,15 @@
    with sensor noise off (the render's own error).
 4. Raw at equal CPU: the previous pipeline (sky found by brute force, no denoiser, sensor noise off)
    at the sample count whose CPU time matches the default frame's, scored the same way.
-5. CPU per frame at ``--cpu-width`` × ``--cpu-height`` (640×480): the new default against the
-   previous default (32 spp, no denoiser, brute-force sky), median over one seed of each kind.
+5. CPU per frame at ``--cpu-width`` × ``--cpu-height`` (640×480), end to end, the new default
+   against the previous default (32 spp, no denoiser, brute-force sky), over the same seeds, in two
+   passes: *first sight* (each frame's render kernels are compiled, as for the first frame of its
+   structure on a worker) and *repeat* (the kernels are in memory, as for the later frames of a
+   campaign on a long-running worker). The benchmark runs with an empty kernel cache of its own
+   (``DRJIT_CACHE_DIR``), so first sight is a true compile.
+
+The quality section's CPU seconds are repeat-pass figures: the reference render compiles the
+kernel that the default frame then reuses, and the raw render at equal CPU is timed the same way.
 
 Goals (printed, not asserted): median PSNR ≥ 32 dB, worst seed ≥ 28 dB, median SSIM ≥ 0.9; new
 default CPU ≤ 1/3 of the previous default's at 640×480; default ≥ 8 dB above the raw render at
@@ -29,8 +36,10 @@ import argparse
 import copy
 import hashlib
 import math
+import os
 import statistics
 import sys
+import tempfile
 import time
 from pathlib import Path
 from typing import Any
@@ -134,6 +143,58 @@ def _verdict(ok: bool) -> str:
     return "meets" if ok else "MISSES"
 
 
+def _pipeline_cpu(pipeline: str, seeds: list[int], width_px: int, height_px: int, threads: int | None) -> dict[str, list[float]]:
+    """CPU seconds per frame of one pipeline over ``seeds``: a first-sight pass, then a repeat pass.
+
+    Runs in a process of its own (see :func:`cpu_per_frame`), so nothing compiled before counts.
+    """
+    from .cli import default_composition
+    from .spec import make_spec
+
+    composition = default_composition()
+    specs = [make_spec(_budget(width_px, height_px), composition, seed) for seed in seeds]
+    if pipeline == "previous":
+        specs = [_with(spec, spp=PREVIOUS_DEFAULT["spp"], denoise=PREVIOUS_DEFAULT["denoise"]) for spec in specs]
+    window_light = PREVIOUS_DEFAULT["window_light"] if pipeline == "previous" else "portal"
+    return {sight: [_render(spec, window_light=window_light, threads=threads)[1] for spec in specs]
+            for sight in ("first sight", "repeat")}
+
+
+def cpu_per_frame(args: argparse.Namespace, seeds: list[int], default_render: dict[str, Any]) -> None:
+    """Print CPU seconds per frame at the CPU resolution: new and previous default, first sight and repeat.
+
+    Each pipeline runs in a fresh process with an empty kernel cache, so its first-sight pass pays
+    every compile (none is inherited from the quality section or from the other pipeline).
+    """
+    import json
+    import subprocess
+
+    cpu: dict[str, dict[str, list[float]]] = {}
+    for pipeline in ("previous", "new"):
+        command = [sys.executable, "-m", "workers.render.bench_quality", "--cpu-pipeline", pipeline,
+                   "--cpu-seeds", ",".join(map(str, seeds)), "--cpu-width", str(args.cpu_width),
+                   "--cpu-height", str(args.cpu_height), "--variant", args.variant]
+        if args.threads:
+            command += ["--threads", str(args.threads)]
+        done = subprocess.run(command, capture_output=True, text=True, check=False)
+        if done.returncode != 0:
+            raise RuntimeError(f"CPU run of the {pipeline} pipeline failed:\n{done.stderr[-2000:]}")
+        cpu[pipeline] = json.loads(done.stdout.strip().splitlines()[-1])
+    print(f"\nCPU per frame at {args.cpu_width}x{args.cpu_height}, end to end (process CPU s of all threads; "
+          f"median of seeds {', '.join(map(str, seeds))}):")
+    new_label = f"new ({default_render['spp']} spp, denoiser, portals)"
+    print(f"{'':<11} {'previous (32 spp, no denoiser, brute-force sky)':>48} {new_label:>34} {'ratio':>7}")
+    for sight in ("first sight", "repeat"):
+        old_s, new_s = statistics.median(cpu["previous"][sight]), statistics.median(cpu["new"][sight])
+        print(f"{sight:<11} {old_s:>48.2f} {new_s:>34.2f} {new_s / old_s:>7.3f}")
+    for sight in ("first sight", "repeat"):
+        print(f"  {sight}, per seed: new " + ", ".join(f"{v:.2f}" for v in cpu["new"][sight])
+              + "; previous " + ", ".join(f"{v:.2f}" for v in cpu["previous"][sight]))
+    ratio = statistics.median(cpu["new"]["first sight"]) / statistics.median(cpu["previous"]["first sight"])
+    print(f"goal new <= {GOAL_CPU_RATIO:.3f} x previous (first sight, the stricter case): {ratio:.3f} "
+          f"({_verdict(ratio <= GOAL_CPU_RATIO)})")
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(prog="python -m workers.render.bench_quality", description=__doc__.split("\n\n")[0])
     parser.add_argument("--per-kind", type=int, default=3, help="seeds per lighting kind (lamp, window, sun)")
@@ -146,9 +207,16 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--cache", type=Path, default=Path("data/bench_quality"))
     parser.add_argument("--variant", default="llvm_ad_rgb", choices=("llvm_ad_rgb", "scalar_rgb"))
     parser.add_argument("--threads", type=int)
+    parser.add_argument("--cpu-pipeline", choices=("new", "previous"), help=argparse.SUPPRESS)
+    parser.add_argument("--cpu-seeds", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
     if args.per_kind < 1 or args.reference_spp < 1:
         parser.error("--per-kind and --reference-spp must be at least 1")
+
+    # An empty kernel cache of our own: "first sight" CPU figures then include the compile, whatever
+    # earlier runs on this machine left in the user's cache. Must be set before Dr.Jit loads.
+    kernel_cache = tempfile.TemporaryDirectory(prefix="evenframe-bench-kernels-")
+    os.environ["DRJIT_CACHE_DIR"] = kernel_cache.name
 
     from .backend import init_renderer
     from .budget import DEFAULT_BUDGET
@@ -157,6 +225,13 @@ def main(argv: list[str] | None = None) -> int:
     from .spec import make_spec
 
     choice = init_renderer(variant=args.variant, threads=args.threads)
+    if args.cpu_pipeline:
+        import json
+
+        seeds_cpu = [int(seed) for seed in args.cpu_seeds.split(",")]
+        print(json.dumps(_pipeline_cpu(args.cpu_pipeline, seeds_cpu, args.cpu_width, args.cpu_height, args.threads)))
+        kernel_cache.cleanup()
+        return 0
     status = denoiser_status()
     composition = default_composition()
     default_render = DEFAULT_BUDGET["render"]
@@ -217,22 +292,8 @@ def main(argv: list[str] | None = None) -> int:
           f"({_verdict(median('gain') >= GOAL_EQUAL_CPU_GAIN_DB)})")
 
     if not args.skip_cpu:
-        cpu_budget = _budget(args.cpu_width, args.cpu_height)
-        one_per_kind = [next(s for s, k in seeds if k == kind) for kind in KINDS]
-        new_cpu, old_cpu = [], []
-        for seed in one_per_kind:
-            spec = make_spec(cpu_budget, composition, seed)
-            new_cpu.append(_render(spec, threads=args.threads)[1])
-            old = _with(spec, spp=PREVIOUS_DEFAULT["spp"], denoise=PREVIOUS_DEFAULT["denoise"])
-            old_cpu.append(_render(old, window_light=PREVIOUS_DEFAULT["window_light"], threads=args.threads)[1])
-        new_s, old_s = statistics.median(new_cpu), statistics.median(old_cpu)
-        print(f"\nCPU per frame at {args.cpu_width}x{args.cpu_height}, end to end (process CPU s, median of seeds "
-              f"{', '.join(map(str, one_per_kind))}):")
-        print(f"  previous default (32 spp, no denoiser, brute-force sky): {old_s:.2f} s "
-              f"({', '.join(f'{v:.2f}' for v in old_cpu)})")
-        print(f"  new default ({default_render['spp']} spp, denoiser, window portals):  {new_s:.2f} s "
-              f"({', '.join(f'{v:.2f}' for v in new_cpu)})")
-        print(f"  ratio {new_s / old_s:.3f} (goal <= {GOAL_CPU_RATIO:.3f}: {_verdict(new_s / old_s <= GOAL_CPU_RATIO)})")
+        cpu_per_frame(args, [seed for seed, _ in seeds], default_render)
+    kernel_cache.cleanup()
     return 0
 
 

@@ -90,6 +90,35 @@ def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf:
     return mesh
 
 
+def emitting_quad(name: str, centre_m: Any, half_u_m: Any, half_v_m: Any, normal: Any, *,
+                  bsdf: dict[str, Any], emitter: dict[str, Any]) -> Any:
+    """A one-sided area emitter on the rectangle ``centre ± half_u ± half_v`` facing ``normal``.
+
+    Two triangles (an ``mi.Mesh``) rather than Mitsuba's ``rectangle`` shape: a rectangle keeps its
+    placement as constants compiled into the render kernel, so every frame with a differently
+    placed panel or window would compile a new kernel (about 0.5 s each, measured); a mesh keeps
+    its vertices in a buffer and the kernel is reused. The winding makes the face normal
+    ``normal`` (an area emitter emits on its normal's side).
+    """
+    mi = _mi()
+    centre, half_u, half_v = (np.asarray(v, float).reshape(3) for v in (centre_m, half_u_m, half_v_m))
+    corners = np.array([centre - half_u - half_v, centre + half_u - half_v,
+                        centre + half_u + half_v, centre - half_u + half_v])
+    faces = np.array([[0, 1, 2], [0, 2, 3]])
+    if float(np.dot(np.cross(half_u, half_v), np.asarray(normal, float))) < 0:
+        faces = faces[:, ::-1]
+    props = mi.Properties()
+    props.set_id(name)
+    props["bsdf"] = mi.load_dict(bsdf)
+    props["emitter"] = mi.load_dict(emitter)
+    mesh = mi.Mesh(name, vertex_count=4, face_count=2, props=props)
+    params = mi.traverse(mesh)
+    params["vertex_positions"] = type(params["vertex_positions"])(corners.astype(np.float32).reshape(-1))
+    params["faces"] = type(params["faces"])(faces.astype(np.uint32).reshape(-1))
+    params.update()
+    return mesh
+
+
 def roughness_to_alpha(roughness: float) -> float:
     """GGX alpha from perceptual roughness: alpha = roughness² (Burley 2012, common practice)."""
     return float(roughness) ** 2
@@ -365,11 +394,34 @@ def instance_of_shape_id(shape_id: str) -> int:
     return int(match.group(1)) if match else 0
 
 
+def opaque_lens_constants(scene: Any) -> None:
+    """Turn the thin-lens aperture radius and focus distance into kernel inputs.
+
+    Mitsuba's ``thinlens`` sensor keeps both as constants compiled into the render kernel, so each
+    frame's aperture (it follows the sampled focal length and f-number) and focus distance would
+    compile a new kernel (about 0.5 s of CPU per frame, measured); as opaque variables they are
+    read from memory and one compiled kernel serves every frame of the same structure. The
+    camera's pose and field of view are opaque already. No effect on the scalar variant.
+    """
+    import drjit as dr
+
+    mi = _mi()
+    if not dr.is_jit_v(mi.Float):
+        return
+    params = mi.traverse(scene)
+    keys = [key for key in params.keys() if key.endswith((".aperture_radius", ".focus_distance"))]
+    for key in keys:
+        params[key] = dr.opaque(mi.Float, float(dr.ravel(params[key])[0]))
+    if keys:
+        params.update()
+
+
 def load_scene(scene_dict: dict[str, Any], *, width_px: int, height_px: int, k_matrix: np.ndarray,
                rotation: np.ndarray, translation: np.ndarray, spp: int, max_depth: int) -> BuiltScene:
     """``mi.load_dict`` the scene, find both sensors and build the shape → instance lookup table."""
     mi = _mi()
     scene = mi.load_dict(scene_dict)
+    opaque_lens_constants(scene)
     sensors = {sensor.id(): sensor for sensor in scene.sensors()}
     registry_to_instance: dict[int, int] = {}
     shape_instance: dict[str, int] = {}
@@ -588,7 +640,6 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
     """
     from .lights import emitter_quantities
 
-    mi = _mi()
     radiance_rgb = emitter_quantities(dome)["radiance_rgb"]
     frames = window_portal_frames(room)
     if not frames or max(radiance_rgb) <= 0:
@@ -597,22 +648,20 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
     reference = reference_flux_lm if reference_flux_lm > 0 else sum(fluxes) / len(fluxes)
     entries = {}
     for index, (frame, flux_lm) in enumerate(zip(frames, fluxes, strict=True)):
-        matrix = np.eye(4)
-        matrix[:3, 0], matrix[:3, 1], matrix[:3, 2], matrix[:3, 3] = frame["u"], frame["v"], frame["normal"], frame["centre_m"]
         weight = flux_lm / reference
         if reference_flux_lm > 0:
             weight = max(1.0, weight)
-        entries[f"window_portal_{index}"] = {
-            "type": "rectangle", "to_world": mi.ScalarTransform4f(matrix.tolist()),
-            "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.0, 0.0, 0.0]}},
-            "emitter": {"type": "area", "radiance": {"type": "rgb", "value": list(radiance_rgb)},
-                        "sampling_weight": round(float(weight), 6)},
-        }
+        name = f"window_portal_{index}"
+        entries[name] = emitting_quad(
+            name, frame["centre_m"], frame["u"], frame["v"], frame["normal"],
+            bsdf={"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.0, 0.0, 0.0]}},
+            emitter={"type": "area", "radiance": {"type": "rgb", "value": list(radiance_rgb)},
+                     "sampling_weight": round(float(weight), 6)})
     return entries
 
 
 def emitter_entries(light: dict[str, Any], index: int, *, sampling_weight: float = 1.0) -> dict[str, dict[str, Any]]:
-    """Scene-dict entries (id → plugin dict) for one light of the spec.
+    """Scene-dict entries (id → plugin dict, or a built mesh for panels) for one light of the spec.
 
     Magnitudes come from :func:`workers.render.lights.emitter_quantities`, so the rendered
     linear-sRGB radiance has Y = luminance in cd/m².
@@ -621,23 +670,22 @@ def emitter_entries(light: dict[str, Any], index: int, *, sampling_weight: float
     if sampling_weight != 1.0:
         for entry in entries.values():
             (entry["emitter"] if "emitter" in entry else entry)["sampling_weight"] = float(sampling_weight)
+    for name, entry in entries.items():
+        if "quad" in entry:
+            entries[name] = emitting_quad(name, *entry["quad"], bsdf=entry["bsdf"], emitter=entry["emitter"])
     return entries
 
 
 def _emitter_entries(light: dict[str, Any], index: int) -> dict[str, dict[str, Any]]:
     from .lights import emitter_quantities
 
-    mi = _mi()
     quantities = emitter_quantities(light)
     kind = light["kind"]
     if kind == "panel":
         size_x, size_y = (float(v) for v in light["size_m"])
-        # Mitsuba's rectangle spans [-1, 1]² in local xy and emits towards local +z; flip it to face down.
-        to_world = (mi.ScalarTransform4f().translate([float(v) for v in light["center_m"]])
-                    @ mi.ScalarTransform4f().rotate([1.0, 0.0, 0.0], 180.0)
-                    @ mi.ScalarTransform4f().scale([size_x / 2.0, size_y / 2.0, 1.0]))
+        # A ceiling panel emits downwards.
         return {f"light_{index}_panel": {
-            "type": "rectangle", "to_world": to_world,
+            "quad": (light["center_m"], (size_x / 2.0, 0.0, 0.0), (0.0, size_y / 2.0, 0.0), (0.0, 0.0, -1.0)),
             "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.8, 0.8, 0.8]}},
             "emitter": {"type": "area", "radiance": {"type": "rgb", "value": quantities["radiance_rgb"]}},
         }}
@@ -747,6 +795,7 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
                 if light["kind"] == "sun":
                     sun_dict.update(emitter_entries(light, index))
             built.sun_scene = _mi().load_dict(sun_dict)
+            opaque_lens_constants(built.sun_scene)
             built.sun_sensor = built.sun_scene.sensors()[0]
     except BaseException:
         BSDF_POOL.release(acquired)
