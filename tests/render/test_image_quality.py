@@ -185,6 +185,72 @@ def test_window_portals_cut_the_noise_of_sky_light(llvm):
     assert errors["portal"] < errors["dome"] / 2, errors
 
 
+@needs_llvm
+def test_emitting_quad_emits_on_its_normal_side_only(llvm):
+    """A one-sided area emitter (Mitsuba ``area`` plugin: emits where the surface normal faces the
+    viewer) on our two-triangle quad: seen from the front its radiance is the emitter's, seen from
+    behind it is dark."""
+    from workers.render.scene import emitting_quad
+
+    mi = llvm
+    quad = emitting_quad("q", (0.0, 0.0, 0.0), (0.5, 0.0, 0.0), (0.0, 0.5, 0.0), (0.0, 0.0, 1.0),
+                         bsdf={"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.0, 0.0, 0.0]}},
+                         emitter={"type": "area", "radiance": {"type": "rgb", "value": [2.0, 2.0, 2.0]}})
+    seen = {}
+    for side, z in (("front", 3.0), ("back", -3.0)):
+        scene = mi.load_dict({
+            "type": "scene", "quad": quad, "integrator": {"type": "path", "max_depth": 2},
+            "sensor": {"type": "perspective", "fov": 10.0,
+                       "to_world": mi.ScalarTransform4f().look_at(origin=[0, 0, z], target=[0, 0, 0], up=[0, 1, 0]),
+                       "film": {"type": "hdrfilm", "width": 8, "height": 8, "rfilter": {"type": "box"}}}})
+        seen[side] = float(np.array(mi.render(scene, spp=4)).mean())
+    assert seen["front"] == pytest.approx(2.0, rel=1e-3)
+    assert seen["back"] == 0.0
+
+
+def _render_kernel_hashes(spec: dict) -> set[str]:
+    """Hashes of the big kernels (path tracing, label pass) that rendering ``spec`` launched."""
+    import drjit as dr
+
+    from workers.render.scene import build_scene, render_label_and_aux, render_radiance
+
+    built = build_scene(spec)
+    dr.kernel_history()  # clear
+    render_radiance(built, seed=1)
+    render_label_and_aux(built)
+    return {kernel["hash"] for kernel in dr.kernel_history() if kernel.get("operation_count", 0) > 300}
+
+
+@needs_llvm
+def test_frames_that_differ_in_lens_and_light_placement_reuse_the_compiled_kernels(llvm):
+    """Aperture, focus distance, focal length, camera pose and lamp placement change from frame to
+    frame; none may change the compiled render kernels (each new kernel costs about 0.5 s of CPU).
+    Dr.Jit's kernel history names every launched kernel by the hash of its code."""
+    import copy
+
+    import drjit as dr
+
+    dr.set_flag(dr.JitFlag.KernelHistory, True)
+    try:
+        spec = _window_spec(spp=1, sun=True, width_px=32, height_px=24, lamps=True)
+        spec["lights"].append({"kind": "panel", "cct_k": 4000.0, "flux_lm": 2000.0, "size_m": [0.6, 0.6],
+                               "center_m": [1.0, 1.0, spec["room"]["height_m"] - 0.01]})
+        _render_kernel_hashes(spec)  # the first scene of a process may differ in kernel parameter order
+        settled = _render_kernel_hashes(spec)
+        changed = copy.deepcopy(spec)
+        camera = changed["camera"]
+        camera["focal_length_mm"] *= 1.3
+        camera["f_number"] *= 1.4
+        camera["focus_distance_m"] *= 1.2
+        camera["position_m"][0] -= 0.05
+        changed["lights"][-1]["center_m"][0] += 0.4
+        changed["lights"][-1]["size_m"] = [0.3, 1.2]
+        assert len(settled) >= 3  # path tracing (sky + lamps), the sun pass, the label pass
+        assert _render_kernel_hashes(changed) == settled
+    finally:
+        dr.set_flag(dr.JitFlag.KernelHistory, False)
+
+
 # ---------------------------------------------------------------------------------------------------------------------
 # Exposure
 # ---------------------------------------------------------------------------------------------------------------------
