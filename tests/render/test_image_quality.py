@@ -289,6 +289,44 @@ def test_exposure_is_never_more_than_a_third_of_a_stop_off_when_the_iso_range_al
         assert chosen["iso"] == (iso_lo if chosen["limited_by"] == "shortest shutter" else iso_hi)
 
 
+def test_meter_reads_the_log_average_luminance():
+    """Reinhard et al. 2002, eq. 1: the key of a scene is exp(mean(log(δ + L))). Analytic cases: a
+    uniform image reads its own luminance; 3 % of the pixels at 1000× the rest read 1000^0.03 ≈ 1.23×
+    the rest (the arithmetic mean would read 31×)."""
+    from workers.render.camera import METER_LOG_DELTA_CD_M2, metered_luminance_cd_m2
+
+    uniform = np.full((40, 50, 3), 20.0, dtype=np.float32)
+    assert metered_luminance_cd_m2(uniform) == pytest.approx(20.0 + METER_LOG_DELTA_CD_M2, rel=1e-6)
+    lamp = np.full((100, 100, 3), 10.0, dtype=np.float32)
+    lamp.reshape(-1, 3)[:300] = 10000.0
+    expected = math.exp(0.97 * math.log(10.0 + METER_LOG_DELTA_CD_M2) + 0.03 * math.log(10000.0 + METER_LOG_DELTA_CD_M2))
+    assert metered_luminance_cd_m2(lamp) == pytest.approx(expected, rel=1e-5)
+    assert metered_luminance_cd_m2(lamp) / 10.0 == pytest.approx(1000 ** 0.03, rel=1e-3)
+    assert metered_luminance_cd_m2(np.zeros((4, 4, 3), dtype=np.float32)) == pytest.approx(METER_LOG_DELTA_CD_M2)
+
+
+def test_a_lamp_in_view_does_not_darken_the_room():
+    """A room at 10 cd/m² with a lamp at 10,000 cd/m² on 3 % of the frame: the room's pixels come out
+    within half a stop of where the same room without the lamp puts them (an averaging meter would put
+    them 5 stops lower)."""
+    from workers.render.camera import LUMINANCE_WEIGHTS
+    from workers.render.frame import expose
+
+    camera = dict(CAMERA, sensor_noise=False, f_number=4.0, iso=400.0)
+    room = np.full((100, 100, 3), 10.0, dtype=np.float32)
+    with_lamp = room.copy()
+    with_lamp.reshape(-1, 3)[:300] = 10000.0
+    rgb_room, _ = expose(room, camera, rng=np.random.default_rng(0))
+    rgb_lamp, _ = expose(with_lamp, camera, rng=np.random.default_rng(0))
+
+    def level(rgb: np.ndarray) -> float:
+        code = rgb[-1, -1].astype(np.float64) / 255.0  # a room pixel; IEC 61966-2-1 sRGB decoding
+        linear = np.where(code <= 0.04045, code / 12.92, ((code + 0.055) / 1.055) ** 2.4)
+        return float(linear @ np.asarray(LUMINANCE_WEIGHTS))
+
+    assert abs(math.log2(level(rgb_lamp) / level(rgb_room))) <= 0.5
+
+
 def test_bright_scene_lowers_the_iso_instead_of_overexposing():
     """The reported case: the metered time at the sampled ISO is shorter than the shortest shutter."""
     from workers.render.frame import auto_exposure

@@ -7,7 +7,8 @@
    ``sun`` (sunlight through a window).
 2. Reference per seed: the same scene at ``--reference-spp`` samples per pixel, denoiser and sensor
    noise off, sky through window portals (unbiased; ``tests/render/test_image_quality.py``
-   checks it against brute force). Cached under ``--cache`` by the spec's bytes, so reruns are quick.
+   checks it against brute force). Its linear radiance is cached under ``--cache`` by the spec's bytes, so
+   reruns are quick; it is exposed like any frame (sensor noise off) each run.
 3. Default frame: the campaign default budget (only the resolution changed), end to end through
    :func:`workers.render.frame.render_frame`, timed in process CPU seconds (all threads). PSNR and
    SSIM (scikit-image ``metrics``) of its 8-bit image against the reference's: once with the
@@ -115,19 +116,28 @@ def _with(spec: dict[str, Any], *, spp: int | None = None, denoise: bool | None 
 
 
 def reference_rgb(spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None) -> np.ndarray:
-    """The reference 8-bit image of ``spec`` (cached on disk by the reference spec's bytes)."""
-    from .spec import spec_to_json
+    """The reference 8-bit image of ``spec``: its high-spp linear radiance (cached on disk by the reference
+    spec's bytes), exposed by today's :func:`workers.render.frame.expose` with sensor noise off.
+
+    The cache holds radiance, not the 8-bit image, so a change to exposure or encoding never compares
+    default frames with a reference exposed the old way.
+    """
+    from .frame import expose
+    from .spec import axis_rng, spec_to_json
 
     reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
     key = hashlib.sha256(spec_to_json(reference).encode()).hexdigest()[:20]
-    path = cache / f"reference-{key}.npy"
+    path = cache / f"reference-radiance-{key}.npy"
     if path.is_file():
-        return np.load(path)
-    result, cpu_s = _render(reference, threads=threads)
-    cache.mkdir(parents=True, exist_ok=True)
-    np.save(path, result.rgb)
-    print(f"    (reference rendered: {reference_spp} spp, {cpu_s:.0f} CPU s, cached as {path.name})", flush=True)
-    return result.rgb
+        radiance = np.load(path)
+    else:
+        result, cpu_s = _render(reference, threads=threads)
+        radiance = np.asarray(result.radiance_rgb, dtype=np.float32)
+        cache.mkdir(parents=True, exist_ok=True)
+        np.save(path, radiance)
+        print(f"    (reference rendered: {reference_spp} spp, {cpu_s:.0f} CPU s, cached as {path.name})", flush=True)
+    rgb, _ = expose(radiance, reference["camera"], rng=axis_rng(reference["sub_seeds"], "noise"), noise=False)
+    return rgb
 
 
 def scores(reference: np.ndarray, image: np.ndarray) -> tuple[float, float]:

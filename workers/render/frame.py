@@ -143,8 +143,10 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
            noise: bool = True) -> tuple[np.ndarray, dict[str, Any]]:
     """Meter, expose, add sensor noise, clip and sRGB-encode a linear render (Y in cd/m²).
 
-    Exposure is :func:`auto_exposure`; sensor noise (shot + read, EMVA 1288 model) is added when
-    ``noise`` and the camera's ``sensor_noise`` switch (default on) are both true. Returns the uint8
+    The meter reads the log-average luminance (:func:`workers.render.camera.metered_luminance_cd_m2`:
+    lamps and sun patches in view do not darken the room); exposure is :func:`auto_exposure`; sensor
+    noise (shot + read, EMVA 1288 model) is added when ``noise`` and the camera's ``sensor_noise``
+    switch (default on) are both true. Returns the uint8
     (H, W, 3) image and the exposure actually used (``shutter_s``, ``metered_shutter_s``,
     ``exposure_error_ev``, ``limited_by``, ``ev100``, ``iso``, ``iso_sampled``, ``f_number``,
     ``exposure_compensation_ev``, ``sensor_noise``). Every stored number derives from the snapped
@@ -158,8 +160,7 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
     from . import camera as cam
 
     f_number = float(camera["f_number"])
-    mean_luminance = float(cam.luminance_cd_m2(radiance_rgb).mean(dtype=np.float64))
-    chosen = auto_exposure(mean_luminance, camera)
+    chosen = auto_exposure(cam.metered_luminance_cd_m2(radiance_rgb), camera)
     shutter_s, iso = chosen["shutter_s"], chosen["iso"]
     scale = cam.exposure_scale(f_number, shutter_s, iso)
     signal = np.asarray(radiance_rgb, dtype=np.float32)[..., :3] * np.float32(scale)
@@ -179,7 +180,7 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
         "f_number": f_number,
         "exposure_compensation_ev": float(camera.get("exposure_compensation_ev", 0.0)),
         "sensor_noise": with_noise,
-        "metering": "ISO 2720 average, K=12.5, 1/3-stop, auto-ISO up and down",
+        "metering": "log-average luminance, ISO 2720 K=12.5, 1/3-stop, auto-ISO up and down",
     }
     return rgb, exposure
 
