@@ -2,74 +2,79 @@
 
 from __future__ import annotations
 
+from typing import Any
+
+from django import forms
 from django.contrib import admin
+from django.http import HttpRequest
 
 from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
-from teams.permissions import ADMIN, PLANNER, has_role, scope_to_user, teams_for
+from campaigns.services import CampaignError, normalize_campaign_budget
+from teams.admin import TeamScopedAdminMixin
+from teams.permissions import ADMIN, PLANNER, has_role, team_id_of
 
 
-class TeamScopedAdmin(admin.ModelAdmin):
-    """Staff who are not superusers see and edit only their teams' rows (issue: scoped admin lists)."""
+class TeamScopedAdmin(TeamScopedAdminMixin, admin.ModelAdmin):
+    """Staff who are not superusers see only their teams' rows, change them as planners and delete them as admins.
 
-    team_field = "campaign__team"
+    Rows no team owns (shared procedural assets, object classes) are changed and deleted by superusers only: they
+    are every team's.
+    """
 
-    def get_queryset(self, request):
-        return scope_to_user(super().get_queryset(request), user=request.user, team_field=self.team_field)
-
-    def _team_id(self, obj):
-        return type(obj).objects.filter(pk=obj.pk).values_list(self.team_field, flat=True).first()
-
-    def has_change_permission(self, request, obj=None):
+    def has_change_permission(self, request: HttpRequest, obj: Any = None) -> bool:
         allowed = super().has_change_permission(request, obj)
         if obj is None or not allowed:
             return allowed
-        return has_role(user=request.user, team=self._team_id(obj), role=PLANNER)
+        return self._has_team_role(request, obj, PLANNER)
 
-    def has_delete_permission(self, request, obj=None):
+    def has_delete_permission(self, request: HttpRequest, obj: Any = None) -> bool:
         allowed = super().has_delete_permission(request, obj)
         if obj is None or not allowed:
             return allowed
-        return has_role(user=request.user, team=self._team_id(obj), role=ADMIN)
+        return self._has_team_role(request, obj, ADMIN)
 
-    def formfield_for_foreignkey(self, db_field, request, **kwargs):
-        # Drop-downs must not list other teams' campaigns or teams.
-        if db_field.related_model is Campaign:
-            kwargs["queryset"] = scope_to_user(Campaign.objects.all(), user=request.user, role=PLANNER)
-        elif db_field.name == "team":
-            kwargs["queryset"] = teams_for(user=request.user, role=PLANNER)
-        return super().formfield_for_foreignkey(db_field, request, **kwargs)
+    @staticmethod
+    def _has_team_role(request: HttpRequest, obj: Any, role: str) -> bool:
+        team_id = team_id_of(obj)
+        if team_id is None:
+            return request.user.is_superuser
+        return has_role(user=request.user, team=team_id, role=role)
+
+
+class RecordAdmin(TeamScopedAdmin):
+    """Rows that only the services write (frames, their events, instances): viewed here, never added or edited.
+
+    Saving one from a form would write every column back and could undo a worker's update made meanwhile.
+    """
+
+    def has_add_permission(self, request: HttpRequest) -> bool:
+        return False
+
+    def has_change_permission(self, request: HttpRequest, obj: Any = None) -> bool:
+        return False
 
 
 @admin.register(ObjectClass)
-class ObjectClassAdmin(admin.ModelAdmin):
+class ObjectClassAdmin(TeamScopedAdmin):
     list_display = ("name", "label")
     search_fields = ("name", "label")
 
 
 @admin.register(Asset)
 class AssetAdmin(TeamScopedAdmin):
-    team_field = "team"
-
-    def get_queryset(self, request):
-        # Shared procedural assets (no team) are visible to everyone; uploaded ones to their team.
-        return scope_to_user(admin.ModelAdmin.get_queryset(self, request), user=request.user, include_shared=True)
-
-    def has_change_permission(self, request, obj=None):
-        if obj is not None and obj.team_id is None:
-            return request.user.is_superuser
-        return super().has_change_permission(request, obj)
-
-    def has_delete_permission(self, request, obj=None):
-        if obj is not None and obj.team_id is None:
-            return request.user.is_superuser
-        return super().has_delete_permission(request, obj)
+    """Shared procedural assets (no team) are listed for everyone and changed by superusers; uploaded ones belong
+    to their team. Mesh files arrive through the dashboard's upload page, which checks them."""
 
     list_display = ("name", "object_class", "kind", "generator", "creation_cost")
     list_filter = ("kind", "object_class")
     search_fields = ("name", "generator")
 
+    def get_readonly_fields(self, request: HttpRequest, obj: Any = None) -> tuple[str, ...]:
+        readonly = tuple(super().get_readonly_fields(request, obj))
+        return readonly if request.user.is_superuser else (*readonly, "mesh_file")
 
-class ClassQuotaInline(admin.TabularInline):
+
+class ClassQuotaInline(TeamScopedAdminMixin, admin.TabularInline):
     model = ClassQuota
     extra = 0
     readonly_fields = ("placed_count", "accepted_count", "rejected_count", "met_at")
@@ -79,9 +84,42 @@ COUNTER_FIELDS = ("frames_done", "frames_dead", "instances_accepted", "instances
                   "wall_s_spent", "compute_cost_spent")
 
 
+class CampaignAdminForm(forms.ModelForm):
+    """A campaign uses its own team's assets and shared ones, and is owned by a planner of its team."""
+
+    request_user: Any = None
+
+    class Meta:
+        model = Campaign
+        fields = "__all__"
+
+    def clean_budget(self) -> dict[str, Any]:
+        # The same normalization as a campaign created on the dashboard: pages and workers read it as such.
+        budget = self.cleaned_data.get("budget")
+        if not isinstance(budget, dict):
+            raise forms.ValidationError("The budget must be a JSON object of budget sections.")
+        try:
+            return normalize_campaign_budget(budget)
+        except CampaignError as exc:
+            raise forms.ValidationError(str(exc)) from exc
+
+    def clean(self) -> dict[str, Any]:
+        data = super().clean()
+        team = data.get("team")
+        if team is None:
+            return data
+        foreign = sorted(str(a) for a in data.get("assets") or () if a.team_id not in (None, team.pk))
+        if foreign:
+            self.add_error("assets", f"These assets belong to another team: {', '.join(foreign)}.")
+        owner = data.get("owner")
+        if owner is not None and not has_role(user=owner, team=team, role=PLANNER):
+            self.add_error("owner", f"{owner} is not a planner in team {team}.")
+        return data
+
+
 @admin.register(Campaign)
 class CampaignAdmin(TeamScopedAdmin):
-    team_field = "team"
+    form = CampaignAdminForm
     list_display = ("name", "team", "owner", "status", "pause_reason", "weight", "frames_done", "instances_accepted",
                     "compute_cost_spent", "cost_budget", "created_at")
     list_filter = ("status", ("team", admin.RelatedOnlyFieldListFilter))
@@ -100,7 +138,7 @@ class ClassQuotaAdmin(TeamScopedAdmin):
 
 
 @admin.register(Frame)
-class FrameAdmin(TeamScopedAdmin):
+class FrameAdmin(RecordAdmin):
     list_display = ("campaign", "index", "state", "attempts", "worker_host", "cpu_s", "wall_s", "layout_index",
                     "lighting_index", "view_index", "finished_at")
     list_filter = ("state",)
@@ -109,14 +147,14 @@ class FrameAdmin(TeamScopedAdmin):
 
 
 @admin.register(FrameEvent)
-class FrameEventAdmin(TeamScopedAdmin):
+class FrameEventAdmin(RecordAdmin):
     list_display = ("created_at", "campaign", "frame", "from_state", "to_state", "worker_host", "detail")
     list_filter = ("to_state",)
     readonly_fields = [f.name for f in FrameEvent._meta.fields]
 
 
 @admin.register(Instance)
-class InstanceAdmin(TeamScopedAdmin):
+class InstanceAdmin(RecordAdmin):
     list_display = ("frame", "instance_id", "object_class", "accepted", "visible_fraction", "contrast", "mask_area_px")
     list_filter = ("accepted", "object_class")
     readonly_fields = [f.name for f in Instance._meta.fields]

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 import sys
+from datetime import timedelta
 from pathlib import Path
 
 import dj_database_url
@@ -31,6 +32,21 @@ def env_bool(name: str, default: bool = False) -> bool:
     if value.lower() in ("0", "false", "no", "off"):
         return False
     raise ImproperlyConfigured(f"{name} must be true or false, got {value!r}")
+
+
+def env_number(name: str, default: float, *, minimum: float, whole: bool = False) -> float:
+    """A number from the environment, refused at start-up (not at the first request) when it is not one."""
+    value = os.environ.get(name)
+    if value is None or value.strip() == "":
+        return default
+    try:
+        number = int(value) if whole else float(value)
+    except ValueError:
+        kind = "a whole number" if whole else "a number"
+        raise ImproperlyConfigured(f"{name} must be {kind}, got {value!r}") from None
+    if not number >= minimum:  # also refuses nan
+        raise ImproperlyConfigured(f"{name} must be at least {minimum:g}, got {value!r}")
+    return number
 
 
 _default_data_dir = BASE_DIR / "data"
@@ -65,10 +81,12 @@ INSTALLED_APPS = [
     "teams",
     "campaigns",
     "workers",
+    "axes",
 ]
 
 MIDDLEWARE = [
     "django.middleware.security.SecurityMiddleware",
+    "evenframe.login_throttle.RejectNulHeadersMiddleware",
     # Serves collected static files (plotly.js, CSS) in service mode without a separate web server.
     "whitenoise.middleware.WhiteNoiseMiddleware",
     "django.contrib.sessions.middleware.SessionMiddleware",
@@ -78,6 +96,8 @@ MIDDLEWARE = [
     "django.contrib.auth.middleware.LoginRequiredMiddleware",
     "django.contrib.messages.middleware.MessageMiddleware",
     "django.middleware.clickjacking.XFrameOptionsMiddleware",
+    # Last, as django-axes asks: turns a locked-out sign-in into the lockout page.
+    "axes.middleware.AxesMiddleware",
 ]
 
 ROOT_URLCONF = "evenframe.urls"
@@ -213,10 +233,39 @@ SECURE_SSL_REDIRECT = env_bool("EVENFRAME_SSL_REDIRECT", _secure)
 SECURE_HSTS_SECONDS = int(os.environ.get("EVENFRAME_HSTS_SECONDS", "31536000" if _secure else "0"))
 SECURE_HSTS_INCLUDE_SUBDOMAINS = _secure
 SECURE_HSTS_PRELOAD = _secure
-if env_bool("EVENFRAME_BEHIND_PROXY", False):
+BEHIND_PROXY = env_bool("EVENFRAME_BEHIND_PROXY", False)
+if BEHIND_PROXY:
     SECURE_PROXY_SSL_HEADER = ("HTTP_X_FORWARDED_PROTO", "https")
 # Health checks come from localhost over plain HTTP (make demo, container probes).
 SECURE_REDIRECT_EXEMPT = [r"^health/?$", r"^health\.json$"]
+
+# --- sign-in throttling (django-axes) ----------------------------------------
+# After EVENFRAME_LOGIN_FAILURE_LIMIT failed sign-ins in a row, further sign-ins (even with the right password) are
+# refused with a 429 page for EVENFRAME_LOGIN_COOLOFF_MINUTES, on the sign-in page and the admin's alike. The
+# authentication backend refuses an authenticate() call without a request, so no sign-in path skips the count.
+AUTHENTICATION_BACKENDS = [
+    "axes.backends.AxesStandaloneBackend",
+    "django.contrib.auth.backends.ModelBackend",
+]
+# What is counted and locked: a user name from one address (the default: a colleague's typos or a stranger
+# guessing cannot lock a user out from everywhere), every attempt from an address, or either of the two.
+_LOCKOUT_BY = {
+    "user-and-ip": [["username", "ip_address"]],
+    "ip": ["ip_address"],
+    "user-or-ip": ["username", "ip_address"],
+}
+_lockout_by = os.environ.get("EVENFRAME_LOGIN_LOCKOUT_BY", "").strip() or "user-and-ip"
+if _lockout_by not in _LOCKOUT_BY:
+    raise ImproperlyConfigured(
+        f"EVENFRAME_LOGIN_LOCKOUT_BY must be one of {', '.join(_LOCKOUT_BY)}, got {_lockout_by!r}")
+AXES_LOCKOUT_PARAMETERS = _LOCKOUT_BY[_lockout_by]
+AXES_FAILURE_LIMIT = int(env_number("EVENFRAME_LOGIN_FAILURE_LIMIT", 5, minimum=1, whole=True))
+AXES_COOLOFF_TIME = timedelta(minutes=env_number("EVENFRAME_LOGIN_COOLOFF_MINUTES", 15, minimum=0.1))
+# Attempts during a lockout do not restart it, so the page can say when sign-in opens again.
+AXES_RESET_COOL_OFF_ON_FAILURE_DURING_LOCKOUT = False
+AXES_RESET_ON_SUCCESS = True  # failures in a row count, not failures over a lifetime
+AXES_LOCKOUT_CALLABLE = "evenframe.login_throttle.lockout_response"
+AXES_CLIENT_IP_CALLABLE = "evenframe.login_throttle.client_ip_address"
 
 FILE_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
 DATA_UPLOAD_MAX_MEMORY_SIZE = 5 * 1024 * 1024
@@ -229,5 +278,7 @@ LOGGING = {
     "loggers": {
         "evenframe": {"handlers": ["console"], "level": os.environ.get("EVENFRAME_LOG_LEVEL", "INFO")},
         "django": {"handlers": ["console"], "level": "WARNING"},
+        # Failed sign-ins and lockouts, one line each.
+        "axes": {"handlers": ["console"], "level": "WARNING", "propagate": False},
     },
 }

@@ -1,32 +1,221 @@
+"""Admin for teams and memberships, and the mixin that scopes every admin class and inline to the user's teams."""
+
+from __future__ import annotations
+
+from typing import Any, ClassVar
+
+from django import forms
 from django.contrib import admin
+from django.contrib.auth import get_user_model
+from django.core.exceptions import ValidationError
+from django.db.models import Field, ForeignKey, IntegerField, ManyToManyField, QuerySet
+from django.forms.models import BaseInlineFormSet
+from django.http import HttpRequest
 
 from teams.models import Membership, Team
-from teams.permissions import ADMIN, scope_to_user, teams_for
+from teams.permissions import (
+    ADMIN,
+    PLANNER,
+    VIEWER,
+    has_role,
+    may_change_membership,
+    membership_change_errors,
+    scope_by_team,
+    teams_for,
+)
 
 
-class MembershipInline(admin.TabularInline):
+class RowIdsField(forms.ModelMultipleChoiceField):
+    """A multi-select that refuses, as an invalid choice, an integer id no database row can have.
+
+    SQLite raises OverflowError (a server error) for an integer beyond 64 bits in an ``IN`` list; Django already
+    turns such values into "no match" for single-row lookups.
+    """
+
+    def clean(self, value: Any) -> Any:
+        key_field = self.queryset.model._meta.pk if not self.to_field_name else (
+            self.queryset.model._meta.get_field(self.to_field_name))
+        if isinstance(key_field, IntegerField) and isinstance(value, (list, tuple)):
+            for item in value:
+                try:
+                    number = int(str(item))
+                except ValueError:
+                    continue  # not a number at all: the parent class refuses it with its own message
+                if not -(2**63) <= number < 2**63:
+                    raise ValidationError(self.error_messages["invalid_choice"], code="invalid_choice",
+                                          params={"value": item})
+        return super().clean(value)
+
+
+class TeamScopedAdminMixin:
+    """Rows, drop-downs and forms of an admin class or inline, limited to the signed-in user's teams.
+
+    - Lists and change pages show only rows of the user's teams (and shared rows), through
+      ``teams.permissions.scope_by_team``.
+    - Every foreign-key and many-to-many widget offers only rows of teams where the user holds ``choice_role``
+      (plus shared rows, and every row of reference data no team owns). The form field validates a posted id
+      against the same queryset, so another team's id is refused as "not one of the available choices".
+    - A model's optional team (empty = shared with every team) is required for everyone but superusers: only
+      superusers create shared rows.
+    - Forms and inline formsets get the user as ``request_user``, for rules that compare fields.
+
+    Superusers see and pick everything.
+    """
+
+    choice_role: ClassVar[str] = PLANNER
+
+    def get_queryset(self, request: HttpRequest) -> QuerySet:
+        return scope_by_team(super().get_queryset(request), user=request.user, role=VIEWER)
+
+    def _scoped_choices(self, db_field: Field, request: HttpRequest, kwargs: dict[str, Any]) -> QuerySet:
+        queryset = kwargs.get("queryset")
+        if queryset is None:
+            db = kwargs.get("using")
+            queryset = self.get_field_queryset(db, db_field, request)
+            if queryset is None:
+                queryset = db_field.remote_field.model._default_manager.using(db)
+        return scope_by_team(queryset, user=request.user, role=self.choice_role)
+
+    def formfield_for_foreignkey(self, db_field: ForeignKey, request: HttpRequest, **kwargs: Any) -> Any:
+        kwargs["queryset"] = self._scoped_choices(db_field, request, kwargs)
+        if db_field.related_model is Team and db_field.null and not request.user.is_superuser:
+            kwargs["required"] = True
+        return super().formfield_for_foreignkey(db_field, request, **kwargs)
+
+    def formfield_for_manytomany(self, db_field: ManyToManyField, request: HttpRequest, **kwargs: Any) -> Any:
+        kwargs["queryset"] = self._scoped_choices(db_field, request, kwargs)
+        kwargs.setdefault("form_class", RowIdsField)
+        return super().formfield_for_manytomany(db_field, request, **kwargs)
+
+    def get_form(self, request: HttpRequest, obj: Any = None, change: bool = False, **kwargs: Any) -> Any:
+        form = super().get_form(request, obj, change=change, **kwargs)
+        form.request_user = request.user  # a class made for this request by modelform_factory
+        return form
+
+    def get_formset(self, request: HttpRequest, obj: Any = None, **kwargs: Any) -> Any:
+        formset = super().get_formset(request, obj, **kwargs)
+        formset.request_user = formset.form.request_user = request.user  # classes made for this request
+        return formset
+
+
+class MemberField(forms.ModelChoiceField):
+    """An account named by its exact user name: a text box, never a list of every account on the site.
+
+    Adding people is what team admins are for, so any account may be named; nobody sees who else exists.
+    """
+
+    widget = forms.TextInput
+    default_error_messages = {"invalid_choice": "There is no account with that user name."}
+
+    def __init__(self, **kwargs: Any) -> None:
+        user_model = get_user_model()
+        kwargs.setdefault("help_text", "The member's exact user name.")
+        super().__init__(queryset=user_model._default_manager.all(), to_field_name=user_model.USERNAME_FIELD,
+                         **kwargs)
+
+    def prepare_value(self, value: Any) -> Any:
+        if isinstance(value, int) and not isinstance(value, bool):  # a saved membership's user id
+            return (self.queryset.filter(pk=value).values_list(self.to_field_name, flat=True).first() or "")
+        return super().prepare_value(value)
+
+
+class MembershipAdminForm(forms.ModelForm):
+    """Membership rules of ``teams.permissions.membership_change_errors``, checked on every new or changed row."""
+
+    request_user: Any = None
+
+    class Meta:
+        model = Membership
+        fields = ("team", "user", "role")
+
+    def clean(self) -> dict[str, Any]:
+        data = super().clean()
+        if self.request_user is None or (self.instance.pk is not None and not self.has_changed()):
+            return data
+        team = data.get("team") if "team" in self.fields else None
+        if team is None and "team" not in self.fields and self.instance.team_id is not None:
+            team = self.instance.team  # an inline row: the team is the page's team
+        errors = membership_change_errors(user=self.request_user, team=team, member=data.get("user"),
+                                          role=data.get("role", ""),
+                                          current=self.instance if self.instance.pk is not None else None)
+        for field, message in errors.items():
+            target = field if field in self.fields else None
+            if target is None or target not in self.errors:
+                self.add_error(target, message)
+        return data
+
+
+class MembershipInlineFormSet(BaseInlineFormSet):
+    request_user: Any = None
+
+    def clean(self) -> None:
+        super().clean()
+        if self.request_user is None or not self.can_delete:
+            return
+        for form in self.initial_forms:
+            removed = getattr(form, "cleaned_data", {}).get("DELETE")
+            if removed and not may_change_membership(user=self.request_user, membership=form.instance):
+                raise ValidationError("You cannot remove your own membership; another admin of the team can.")
+
+
+class MembershipFieldsMixin:
+    """The membership form for both the membership admin and the team page's inline: the user by name."""
+
+    form = MembershipAdminForm
+    choice_role = ADMIN  # members are managed by the team's admins
+
+    def formfield_for_dbfield(self, db_field: Field, request: HttpRequest, **kwargs: Any) -> Any:
+        if db_field.name == "user":
+            return MemberField(label="User", required=True)
+        return super().formfield_for_dbfield(db_field, request, **kwargs)
+
+
+class MembershipInline(MembershipFieldsMixin, TeamScopedAdminMixin, admin.TabularInline):
     model = Membership
+    formset = MembershipInlineFormSet
     extra = 1
 
 
 @admin.register(Team)
-class TeamAdmin(admin.ModelAdmin):
+class TeamAdmin(TeamScopedAdminMixin, admin.ModelAdmin):
+    """Team admins rename their team and manage its members; creating and deleting teams is for superusers
+    (deleting a team removes every membership, the deleting admin's own included)."""
+
     list_display = ("name", "created_at")
     inlines = [MembershipInline]
 
-    def get_queryset(self, request):
-        return scope_to_user(super().get_queryset(request), user=request.user, team_field="pk")
+    def has_add_permission(self, request: HttpRequest) -> bool:
+        return request.user.is_active and request.user.is_superuser
 
-    def has_change_permission(self, request, obj=None):
-        if obj is None:
-            return super().has_change_permission(request)
-        return request.user.is_superuser or teams_for(user=request.user, role=ADMIN).filter(pk=obj.pk).exists()
+    def has_change_permission(self, request: HttpRequest, obj: Team | None = None) -> bool:
+        allowed = super().has_change_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return has_role(user=request.user, team=obj, role=ADMIN)
+
+    def has_delete_permission(self, request: HttpRequest, obj: Team | None = None) -> bool:
+        return request.user.is_active and request.user.is_superuser
 
 
 @admin.register(Membership)
-class MembershipAdmin(admin.ModelAdmin):
+class MembershipAdmin(MembershipFieldsMixin, TeamScopedAdminMixin, admin.ModelAdmin):
+    """Members of a team see its memberships; its admins add, change and remove them, except their own."""
+
     list_display = ("team", "user", "role")
     list_filter = ("role",)
 
-    def get_queryset(self, request):
-        return scope_to_user(super().get_queryset(request), user=request.user)
+    def has_add_permission(self, request: HttpRequest) -> bool:
+        return super().has_add_permission(request) and (
+            request.user.is_superuser or teams_for(user=request.user, role=ADMIN).exists())
+
+    def has_change_permission(self, request: HttpRequest, obj: Membership | None = None) -> bool:
+        allowed = super().has_change_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return may_change_membership(user=request.user, membership=obj)
+
+    def has_delete_permission(self, request: HttpRequest, obj: Membership | None = None) -> bool:
+        allowed = super().has_delete_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return may_change_membership(user=request.user, membership=obj)

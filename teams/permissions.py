@@ -6,10 +6,12 @@ Outsiders get 404, not 403, so that the existence of another team's campaign is 
 
 from __future__ import annotations
 
+import functools
 from typing import Any
 
+from django.contrib.auth import get_user_model
 from django.core.exceptions import PermissionDenied
-from django.db.models import Q, QuerySet
+from django.db.models import Model, Q, QuerySet
 from django.http import Http404
 
 from teams.models import Membership, Team
@@ -84,3 +86,102 @@ def personal_team(*, user: Any) -> Team:
     team, _ = Team.objects.get_or_create(name=f"{user.get_username()} (personal)")
     Membership.objects.get_or_create(team=team, user=user, defaults={"role": ADMIN})
     return team
+
+
+@functools.cache
+def _team_owner(model: type[Model]) -> tuple[str, bool] | None:
+    """(lookup path to the owning team, whether rows may have no team) for a model, or None if no team owns it."""
+    if model is Team:
+        return "pk", False
+    if model is get_user_model():
+        return "memberships__team", False
+    frontier: list[tuple[type[Model], str]] = [(model, "")]
+    seen = {model}
+    for _depth in range(3):
+        reached: list[tuple[type[Model], str]] = []
+        for current, prefix in frontier:
+            for field in current._meta.get_fields():
+                if not field.concrete or not (field.many_to_one or field.one_to_one):
+                    continue
+                target = field.related_model
+                if target is Team:
+                    # Only a model's own optional team means "shared with everyone" (the procedural asset library).
+                    return f"{prefix}{field.name}", bool(field.null and not prefix)
+                # An optional link owns nothing; a user belongs to many teams, so a row owned by a user is not
+                # owned by any one of them.
+                if field.null or target in seen or target is get_user_model():
+                    continue
+                seen.add(target)
+                reached.append((target, f"{prefix}{field.name}__"))
+        frontier = reached
+    return None
+
+
+def team_path(model: type[Model]) -> str | None:
+    """The lookup from a model's rows to the team that owns them, or None for rows no team owns.
+
+    ``Team`` → ``"pk"``; a model with a ``team`` foreign key → ``"team"``; otherwise the shortest chain of required
+    foreign keys that ends at a team (a frame → ``"campaign__team"``). A user account belongs to the teams it is a
+    member of (``"memberships__team"``). Reference data such as object classes belongs to no team.
+    """
+    owner = _team_owner(model)
+    return owner[0] if owner else None
+
+
+def scope_by_team(queryset: QuerySet, *, user: Any, role: str = VIEWER) -> QuerySet:
+    """Rows of any model that ``user`` may see (``role=VIEWER``) or pick for a change (a higher role).
+
+    Rows of teams where the user holds ``role``; plus shared rows (no team) for models whose team is optional;
+    every row for models no team owns; user accounts that are members of those teams. Admin lists and every
+    drop-down of the admin go through this, so a choice that is not offered is also refused when posted.
+    """
+    owner = _team_owner(queryset.model)
+    if owner is None or getattr(user, "is_superuser", False):
+        return queryset
+    path, shared = owner
+    if queryset.model is get_user_model():
+        members = Membership.objects.filter(team__in=teams_for(user=user, role=role)).values("user_id")
+        return queryset.filter(pk__in=members)
+    return scope_to_user(queryset, user=user, team_field=path, role=role, include_shared=shared)
+
+
+def team_id_of(obj: Model) -> int | None:
+    """The id of the team that owns a saved row (None for shared rows and rows no team owns)."""
+    path = team_path(type(obj))
+    if path is None or obj.pk is None:
+        return None
+    if path == "pk":
+        return obj.pk
+    return type(obj)._default_manager.filter(pk=obj.pk).values_list(path, flat=True).first()
+
+
+def may_change_membership(*, user: Any, membership: Membership) -> bool:
+    """Whether ``user`` may edit or remove this membership: its team's admins may, except their own."""
+    if getattr(user, "is_superuser", False):
+        return True
+    return membership.user_id != user.pk and has_role(user=user, team=membership.team_id, role=ADMIN)
+
+
+def membership_change_errors(*, user: Any, team: Team | None, member: Any, role: str,
+                             current: Membership | None = None) -> dict[str, str]:
+    """Why ``user`` may not give ``member`` the ``role`` in ``team`` (field → message); empty when allowed.
+
+    ``current`` is the membership being changed (None for a new one). Only a team's admins manage its members;
+    nobody grants a role above their own; nobody but a superuser adds or changes their own membership, so a
+    planner cannot promote themselves and an admin cannot demote the team's last admin seat by accident.
+    """
+    if getattr(user, "is_superuser", False):
+        return {}
+    errors: dict[str, str] = {}
+    own_role = role_in_team(user=user, team=team) if team is not None else None
+    if team is None or own_role != ADMIN:
+        errors["team"] = "Only the team's admins manage its members."
+    elif current is not None and current.team_id != team.pk and not has_role(user=user, team=current.team_id,
+                                                                            role=ADMIN):
+        errors["team"] = "Only admins of both teams may move a membership between them."
+    if (member is not None and getattr(member, "pk", member) == user.pk) or (
+            current is not None and current.user_id == user.pk):
+        errors["user"] = "You cannot add or change your own membership; another admin of the team can."
+    if own_role is not None and role in ROLE_RANK and ROLE_RANK[role] > ROLE_RANK[own_role]:
+        errors["role"] = f"You cannot grant a role above your own ({own_role})."
+    return errors
