@@ -17,7 +17,8 @@ LLVM = "llvm_ad_rgb" in backend.available_variants()
 needs_llvm = pytest.mark.skipif(not LLVM, reason="libLLVM >= 17 is needed for the quick JIT renders here")
 
 
-def _window_spec(*, spp: int, sun: bool, width_px: int = 64, height_px: int = 48, lamps: bool = False) -> dict:
+def _window_spec(*, spp: int, sun: bool, width_px: int = 64, height_px: int = 48, lamps: bool = False,
+                 textures: bool = True) -> dict:
     """A room with one window, lit by the sky (and the sun), no lamps unless asked."""
     from workers.render.spec import make_spec
 
@@ -26,6 +27,8 @@ def _window_spec(*, spp: int, sun: bool, width_px: int = 64, height_px: int = 48
                 "sun_illuminance_lux": [60000.0, 60000.0], "sun_elevation_deg": [30.0, 30.0]}
     budget = {"render": {"width_px": width_px, "height_px": height_px, "spp": spp, "max_depth": 5},
               "room": {"window_probability": 1.0}, "lighting": lighting}
+    if not textures:
+        budget["appearance"] = {"texture_probability": 0.0}
     for seed in range(200):
         spec = make_spec(budget, {"chair": 1, "coffee_table": 1}, seed)
         kinds = {light["kind"] for light in spec["lights"]}
@@ -208,47 +211,62 @@ def test_emitting_quad_emits_on_its_normal_side_only(llvm):
     assert seen["back"] == 0.0
 
 
-def _render_kernel_hashes(spec: dict) -> set[str]:
-    """Hashes of the big kernels (path tracing, label pass) that rendering ``spec`` launched."""
-    import drjit as dr
+_KERNEL_REUSE_SCRIPT = """
+import copy, json, sys
+sys.path.insert(0, sys.argv[1])
+from tests.render.test_image_quality import _window_spec
+from workers.render import backend
+backend.init_renderer(variant="llvm_ad_rgb")
+import drjit as dr
+from workers.render.scene import build_scene, render_label_and_aux, render_radiance
 
-    from workers.render.scene import build_scene, render_label_and_aux, render_radiance
-
+def hashes(spec):
     built = build_scene(spec)
     dr.kernel_history()  # clear
     render_radiance(built, seed=1)
     render_label_and_aux(built)
-    return {kernel["hash"] for kernel in dr.kernel_history() if kernel.get("operation_count", 0) > 300}
+    return sorted(k["hash"] for k in dr.kernel_history() if k.get("operation_count", 0) > 300)
+
+dr.set_flag(dr.JitFlag.KernelHistory, True)
+# Plain-coloured surfaces: textured and plain meshes and BSDFs compile to different callables, whose
+# order in the kernel follows object creation; this checks the lens and light constants.
+spec = _window_spec(spp=1, sun=True, width_px=32, height_px=24, lamps=True, textures=False)
+spec["lights"].append({"kind": "panel", "cct_k": 4000.0, "flux_lm": 2000.0, "size_m": [0.6, 0.6],
+                       "center_m": [1.0, 1.0, spec["room"]["height_m"] - 0.01]})
+hashes(spec)  # the first scene of a process may differ in kernel parameter order
+settled = hashes(spec)
+changed = copy.deepcopy(spec)
+camera = changed["camera"]
+camera["focal_length_mm"] *= 1.3
+camera["f_number"] *= 1.4
+camera["focus_distance_m"] *= 1.2
+camera["position_m"][0] -= 0.05
+changed["lights"][-1]["center_m"][0] += 0.4
+changed["lights"][-1]["size_m"] = [0.3, 1.2]
+print(json.dumps({"settled": settled, "changed": hashes(changed)}))
+"""
 
 
 @needs_llvm
-def test_frames_that_differ_in_lens_and_light_placement_reuse_the_compiled_kernels(llvm):
+def test_frames_that_differ_in_lens_and_light_placement_reuse_the_compiled_kernels(tmp_path):
     """Aperture, focus distance, focal length, camera pose and lamp placement change from frame to
     frame; none may change the compiled render kernels (each new kernel costs about 0.5 s of CPU).
-    Dr.Jit's kernel history names every launched kernel by the hash of its code."""
-    import copy
+    Dr.Jit's kernel history names every launched kernel by the hash of its code. Runs in a fresh
+    process: which kernels a process compiles depends on the objects it created before."""
+    import json
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
 
-    import drjit as dr
-
-    dr.set_flag(dr.JitFlag.KernelHistory, True)
-    try:
-        spec = _window_spec(spp=1, sun=True, width_px=32, height_px=24, lamps=True)
-        spec["lights"].append({"kind": "panel", "cct_k": 4000.0, "flux_lm": 2000.0, "size_m": [0.6, 0.6],
-                               "center_m": [1.0, 1.0, spec["room"]["height_m"] - 0.01]})
-        _render_kernel_hashes(spec)  # the first scene of a process may differ in kernel parameter order
-        settled = _render_kernel_hashes(spec)
-        changed = copy.deepcopy(spec)
-        camera = changed["camera"]
-        camera["focal_length_mm"] *= 1.3
-        camera["f_number"] *= 1.4
-        camera["focus_distance_m"] *= 1.2
-        camera["position_m"][0] -= 0.05
-        changed["lights"][-1]["center_m"][0] += 0.4
-        changed["lights"][-1]["size_m"] = [0.3, 1.2]
-        assert len(settled) >= 3  # path tracing (sky + lamps), the sun pass, the label pass
-        assert _render_kernel_hashes(changed) == settled
-    finally:
-        dr.set_flag(dr.JitFlag.KernelHistory, False)
+    root = Path(__file__).resolve().parents[2]
+    env = dict(os.environ, DRJIT_CACHE_DIR=str(tmp_path / "kernels"))
+    done = subprocess.run([sys.executable, "-c", _KERNEL_REUSE_SCRIPT, str(root)], capture_output=True, text=True,
+                          cwd=root, env=env, timeout=300, check=False)
+    assert done.returncode == 0, done.stderr[-3000:]
+    result = json.loads(done.stdout.strip().splitlines()[-1])
+    assert len(result["settled"]) >= 3  # path tracing (sky + lamps), the sun pass, the label pass
+    assert result["changed"] == result["settled"]
 
 
 # ---------------------------------------------------------------------------------------------------------------------

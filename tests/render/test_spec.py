@@ -33,7 +33,7 @@ def test_spec_holds_everything_needed_to_re_render():
     assert spec["seed"] == 5 and set(spec["sub_seeds"]) == set(AXES)
     assert spec["render"] == {"width_px": 320, "height_px": 240, "spp": 8, "max_depth": 6, "denoise": True}
     assert spec["budget"]["render"]["width_px"] == 320  # the full normalized budget
-    assert set(spec["budget"]) == {"render", "room", "lighting", "camera", "thresholds", "variation"}
+    assert set(spec["budget"]) == {"render", "room", "lighting", "camera", "thresholds", "appearance", "variation"}
     assert spec["thresholds"] == spec["budget"]["thresholds"]
     assert spec["composition"] == {"chair": 2, "wall_clock": 1}
     assert len(spec["objects"]) == 3

@@ -263,7 +263,8 @@ def sample_material(family_name: str, rng: np.random.Generator) -> dict[str, Any
     rgb = np.clip(rgb, _ALBEDO_MIN, _ALBEDO_MAX)
     low, high = family.roughness
     roughness = low if low == high else float(rng.uniform(low, high))
-    return {"kind": family.kind, "rgb": [round(float(v), 6) for v in rgb], "roughness": round(roughness, 6)}
+    return {"kind": family.kind, "rgb": [round(float(v), 6) for v in rgb], "roughness": round(roughness, 6),
+            "family": family_name}
 
 
 # ---------------------------------------------------------------------------

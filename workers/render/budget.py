@@ -1,7 +1,7 @@
 """The randomization budget: every range the render core samples from.
 
 A budget is a plain JSON dict of sections (``render``, ``room``,
-``lighting``, ``camera``, ``thresholds``, ``variation``). Each field is
+``lighting``, ``camera``, ``thresholds``, ``appearance``, ``variation``). Each field is
 described once in :data:`FIELDS` with its unit, physical bounds and a
 one-line explanation of what it changes in the image; the dashboard form,
 the validation and the docs all read that table.
@@ -124,6 +124,17 @@ FIELDS: tuple[Field, ...] = (
           "Instances that do not stand out from their surroundings in the final image are not accepted: "
           "colour difference ΔE*ab between the object and a thin ring around it, divided by the image "
           "noise (at least 1 ΔE). 0 accepts invisible objects."),
+    # appearance
+    Field("appearance", "texture_probability", "probability", "", 0.0, 1.0,
+          "Share of wood, floor, wall, ceiling, fabric, leather and metal surfaces that wear a procedural "
+          "texture (wood grain, parquet, tiles, carpet, plaster, wallpaper, weave…); the rest stay plain.",
+          "Tobin et al. 2017; Tremblay et al. 2018 (random textures in domain randomization)"),
+    Field("appearance", "texture_variants", "int", "", 1, 1000,
+          "Texture variants per family. Each is generated once per machine and cached; more variants give "
+          "more variety and a larger cache (about 1 MB each)."),
+    Field("appearance", "texture_scale", "range", "×", 0.25, 4.0,
+          "Physical size of a texture relative to its variant's (board width, tile size, weave), drawn "
+          "log-uniformly per surface."),
     # variation
     Field("variation", "layouts", "int", "", 1, 10_000_000, "Distinct room layouts."),
     Field("variation", "lighting_per_layout", "int", "", 1, 10_000, "Lighting variants per layout."),
@@ -170,6 +181,7 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "sensor_noise": True,
     },
     "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0, "min_contrast": 2.0},
+    "appearance": {"texture_probability": 0.85, "texture_variants": 32, "texture_scale": [0.8, 1.25]},
     "variation": {"layouts": 1000, "lighting_per_layout": 2, "views_per_lighting": 2},
 }
 

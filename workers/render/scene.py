@@ -66,8 +66,10 @@ def _mi() -> Any:
 # ---------------------------------------------------------------------------
 
 
-def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf: Any | None = None) -> Any:
-    """An in-memory ``mi.Mesh`` from (V, 3) vertices in metres and (F, 3) vertex indices.
+def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf: Any | None = None,
+                     uv: np.ndarray | None = None) -> Any:
+    """An in-memory ``mi.Mesh`` from (V, 3) vertices in metres, (F, 3) vertex indices and optional (V, 2)
+    texture coordinates.
 
     No vertex normals are given, so shading uses the face normals (flat
     shading: box edges stay sharp).
@@ -81,11 +83,17 @@ def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf:
     props.set_id(name)
     if bsdf is not None:
         props["bsdf"] = bsdf
-    mesh = mi.Mesh(name, vertex_count=vertices.size // 3, face_count=indices.size // 3, props=props)
+    mesh = mi.Mesh(name, vertex_count=vertices.size // 3, face_count=indices.size // 3, props=props,
+                   has_vertex_texcoords=uv is not None)
     params = mi.traverse(mesh)
     # The buffer types differ per variant (scalar: dr.scalar.ArrayXf; llvm: dr.llvm.ad.Float).
     params["vertex_positions"] = type(params["vertex_positions"])(vertices)
     params["faces"] = type(params["faces"])(indices)
+    if uv is not None:
+        texcoords = np.ascontiguousarray(uv, dtype=np.float32).reshape(-1)
+        if texcoords.size != 2 * (vertices.size // 3):
+            raise ValueError(f"mesh {name!r}: {texcoords.size // 2} texture coordinates for {vertices.size // 3} vertices")
+        params["vertex_texcoords"] = type(params["vertex_texcoords"])(texcoords)
     params.update()
     return mesh
 
@@ -125,7 +133,8 @@ def roughness_to_alpha(roughness: float) -> float:
 
 
 def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
-    """Mitsuba BSDF dict for a spec material ``{"kind", "rgb", "roughness"}``.
+    """Mitsuba BSDF dict for a spec material ``{"kind", "rgb", "roughness"}`` (and an optional ``texture``
+    record, :mod:`workers.render.appearance`, whose base-colour image replaces ``rgb``).
 
     Every BSDF is wrapped in ``twosided``: procedural parts and the room's
     walls are seen from whichever side, and a one-sided BSDF renders black
@@ -133,7 +142,13 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     """
     kind = material.get("kind", "diffuse")
     rgb = [float(c) for c in material.get("rgb", [0.5, 0.5, 0.5])]
-    colour = {"type": "rgb", "value": rgb}
+    colour: dict[str, Any] = {"type": "rgb", "value": rgb}
+    if material.get("texture"):
+        from .appearance import texture_linear_rgb
+
+        # Linear RGB already (raw); bilinear lookup, repeated: the box projection's uv run past 1.
+        colour = {"type": "bitmap", "bitmap": _mi().Bitmap(texture_linear_rgb(material["texture"]).copy()), "raw": True,
+                  "filter_type": "bilinear", "wrap_mode": "repeat"}
     alpha = roughness_to_alpha(float(material.get("roughness", 0.5)))
     if kind == "diffuse":
         inner: dict[str, Any] = {"type": "diffuse", "reflectance": colour}
@@ -174,7 +189,10 @@ def _snapped_material(material: dict[str, Any]) -> dict[str, Any]:
         roughness = 1.0
     else:
         roughness = round(round(roughness / ROUGHNESS_STEP) * ROUGHNESS_STEP, 6)
-    return {"kind": kind, "rgb": [float(c) for c in material.get("rgb", [0.5, 0.5, 0.5])], "roughness": roughness}
+    snapped = {"kind": kind, "rgb": [float(c) for c in material.get("rgb", [0.5, 0.5, 0.5])], "roughness": roughness}
+    if material.get("texture"):
+        snapped["texture"] = material["texture"]
+    return snapped
 
 
 class BsdfPool:
@@ -191,14 +209,25 @@ class BsdfPool:
     def acquire(self, material: dict[str, Any]) -> tuple[tuple, Any]:
         mi = _mi()
         snapped = _snapped_material(material)
-        key = (mi.variant(), snapped["kind"], snapped["roughness"])
+        texture = snapped.get("texture")
+        # Textured instances are pooled apart, per texture size: their colour is an image, set the same way.
+        texture_shape = None
+        if texture:
+            from .appearance import texture_linear_rgb
+
+            image = texture_linear_rgb(texture)
+            texture_shape = image.shape
+        key = (mi.variant(), snapped["kind"], snapped["roughness"], texture_shape)
         free = self._free.setdefault(key, [])
         if not free:
             return key, mi.load_dict(bsdf_dict(snapped))
         bsdf = free.pop()
         params = mi.traverse(bsdf)
-        name = _COLOUR_PARAMETER[bsdf_dict(snapped)["material"]["type"]]
-        params[name] = snapped["rgb"]
+        name = _COLOUR_PARAMETER[bsdf_dict({k: v for k, v in snapped.items() if k != "texture"})["material"]["type"]]
+        if texture:
+            params[name.removesuffix(".value") + ".data"] = mi.TensorXf(image.copy())
+        else:
+            params[name] = snapped["rgb"]
         params.update()
         return key, bsdf
 
@@ -745,6 +774,7 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
     (:func:`window_portal_entries`) and, when there is a sun, builds ``sun_scene`` with the sun
     alone; ``"dome"`` keeps every light in one scene with the sky as a constant emitter.
     """
+    from .appearance import box_uv, yaw_frame
     from .camera import aperture_radius_m, camera_matrices
 
     if window_light not in WINDOW_LIGHT_MODES:
@@ -766,12 +796,19 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
     try:
         bsdfs: dict[str, Any] = {}
         shapes: dict[str, Any] = {}
+        objects_by_instance = {int(obj["instance_id"]): obj for obj in spec["objects"]}
         for shape_id, vertices, faces, material in parts:
             key = _json_key(_snapped_material(material))
             if key not in bsdfs:
                 acquired.append(BSDF_POOL.acquire(material))
                 bsdfs[key] = acquired[-1][1]
-            shapes[shape_id] = mesh_from_arrays(shape_id, vertices, faces, bsdfs[key])
+            uv = None
+            if material.get("texture"):
+                # Room surfaces are projected in the room's frame, objects in their own (the grain turns with them).
+                owner = objects_by_instance.get(instance_of_shape_id(shape_id))
+                vertices, faces, uv = box_uv(vertices, faces, float(material["texture"]["tile_size_m"]),
+                                             yaw_frame(owner) if owner else None)
+            shapes[shape_id] = mesh_from_arrays(shape_id, vertices, faces, bsdfs[key], uv=uv)
         scene_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: rgb_sensor, LABEL_SENSOR_ID: label_sensor,
                                       **shapes}
         if use_portals:

@@ -27,6 +27,9 @@ from .rounding import round_floats
 
 SPEC_FORMAT_VERSION = 1
 AXES: tuple[str, ...] = ("layout", "lighting", "camera", "noise")
+# Spawn key of the appearance stream (textures), derived from the layout sub-seed: frames that share a
+# layout share its surfaces, without a draw taken from the layout stream itself.
+_APPEARANCE_SPAWN_KEY = (len(AXES), 1)
 # A sub-seed is a 32-bit unsigned integer: exact in JSON and in JavaScript.
 _SEED_MAX = 2**32
 
@@ -141,6 +144,7 @@ def make_spec(
     ValueError
         Bad composition or seeds; ``layout.LayoutError`` (a ValueError) when the objects do not fit.
     """
+    from .appearance import assign_textures
     from .camera import sample_camera
     from .layout import place_objects, sample_room
     from .lights import sample_lights
@@ -158,6 +162,11 @@ def make_spec(
     objects = place_objects(room, asset_specs, layout_rng,
                             max_objects_per_m2=normalized["room"]["max_objects_per_m2"])
     objects = round_floats(objects)
+    # Textures draw on a stream of their own, keyed by the layout: the room, objects, lights and camera of a
+    # seed stay as they were, and frames that share a layout share their surfaces.
+    appearance_rng = np.random.default_rng(np.random.SeedSequence(sub_seeds["layout"], spawn_key=_APPEARANCE_SPAWN_KEY))
+    assign_textures(room, objects, normalized["appearance"], appearance_rng)
+    room, objects = round_floats(room), round_floats(objects)
 
     lights = round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
     camera = round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera")))

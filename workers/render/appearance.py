@@ -1,0 +1,173 @@
+"""Textured materials: which surfaces get a procedural texture, its texture coordinates, and its pixels.
+
+Three steps, each pure or cached:
+
+1. :func:`assign_textures` (at spec time, on its own ``appearance`` random stream so that rooms,
+   objects, lights and cameras of a seed do not change): each material whose family has texture
+   families (:data:`TEXTURE_FAMILIES`: a wooden table gets wood grain, a floor parquet, tiles or
+   carpet, a wall plaster or wallpaper, upholstery fabric or leather…) gets, with the budget's
+   ``appearance.texture_probability``, a ``texture`` record ``{"family", "variant", "params",
+   "seed", "tile_size_m", "resolution_px"}``. Variants: each family has a fixed library of
+   ``appearance.texture_variants`` parameter sets (variant k: parameters drawn with seed k), so a
+   fleet generates each texture once (:func:`workers.render.textures.texture_set` caches it on
+   disk) however many frames use it; the physical scale still varies per material by
+   ``appearance.texture_scale``.
+2. :func:`box_uv` (at scene build): texture coordinates by box projection in metres. Each
+   triangle is projected along the axis its normal is closest to, and u, v are metres divided by
+   the texture's physical size, so a 9 cm parquet board is 9 cm in every frame whatever the
+   mesh. Objects are projected in their own frame (the grain turns with the table).
+3. :func:`texture_linear_rgb` (at scene build): the cached base-colour image decoded to linear RGB,
+   kept in memory per process.
+
+References
+----------
+Tobin et al., "Domain randomization for transferring deep neural networks from simulation to the
+real world", IROS 2017; Tremblay et al., "Training deep networks with synthetic data: bridging the
+reality gap by domain randomization", CVPR Workshops 2018 (random textures on objects and scene).
+Box (tri-planar) projection: common practice in real-time rendering for meshes without UVs.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import os
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+#: Asset material family (``workers.render.assets.FAMILIES``) → texture families it may wear.
+#: Plastic, painted and ceramic surfaces, foliage, paper and lampshades stay plain-coloured: in a
+#: home they are plain.
+TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
+    "wood": ("wood",),
+    "floor_wood": ("parquet", "wood"),
+    "floor_tile": ("ceramic_tile", "stone_tile", "marble"),
+    "carpet": ("carpet",),
+    "wall_paint": ("plaster", "wallpaper"),
+    "ceiling_paint": ("plaster",),
+    "fabric": ("fabric",),
+    "bedding": ("fabric",),
+    "leather": ("leather",),
+    "metal": ("brushed_metal",),
+    "concrete": ("concrete",),
+    "terracotta": ("concrete",),
+}
+
+#: Base-colour image size. 256 px over a 0.4–2.4 m tile is 1.6–9.4 mm per texel, about a pixel of a
+#: 640×480 frame 1–3 m away; 512 px made textured renders slower (3 MB per texture, memory-bound lookups).
+TEXTURE_RESOLUTION_PX = 256
+
+
+def texture_cache_dir() -> Path:
+    """Where generated textures are kept: ``EVENFRAME_TEXTURE_CACHE``, else ``<EVENFRAME_DATA_DIR>/texture_cache``
+    (``./data/texture_cache`` without either)."""
+    explicit = os.environ.get("EVENFRAME_TEXTURE_CACHE")
+    if explicit:
+        return Path(explicit)
+    return Path(os.environ.get("EVENFRAME_DATA_DIR", "data")) / "texture_cache"
+
+
+@functools.lru_cache(maxsize=4096)
+def _variant_params(family: str, variant: int) -> tuple[tuple[str, Any], ...]:
+    from .textures import sample_texture_params
+
+    params = sample_texture_params(family, np.random.default_rng(np.random.SeedSequence(variant, spawn_key=(7,))))
+    return tuple(sorted(params.items()))
+
+
+def texture_record(family: str, variant: int, scale: float) -> dict[str, Any]:
+    """The spec's ``texture`` record of one variant of a family, its tile scaled by ``scale``."""
+    params = dict(_variant_params(family, int(variant)))
+    tile_size_m = float(params.get("tile_size_m", 1.0)) * float(scale)
+    return {"family": family, "variant": int(variant), "params": params, "seed": int(variant),
+            "tile_size_m": round(tile_size_m, 6), "resolution_px": TEXTURE_RESOLUTION_PX}
+
+
+def _materials(spec_room: dict[str, Any], objects: list[dict[str, Any]]) -> Iterator[dict[str, Any]]:
+    """Every material dict of the room and the objects, in a fixed order."""
+    for slot in sorted(spec_room.get("materials", {})):
+        yield spec_room["materials"][slot]
+    for obj in objects:
+        for slot in sorted(obj.get("materials", {}) or {}):
+            yield obj["materials"][slot]
+
+
+def assign_textures(room: dict[str, Any], objects: list[dict[str, Any]], appearance: dict[str, Any],
+                    rng: np.random.Generator) -> None:
+    """Give the materials of ``room`` and ``objects`` their textures, in place (see the module docstring).
+
+    ``appearance`` is the budget's section: ``texture_probability``, ``texture_variants``,
+    ``texture_scale`` [low, high]. Every material draws the same number of random numbers whatever
+    it becomes, so one material's outcome never shifts another's.
+    """
+    probability = float(appearance["texture_probability"])
+    variants = int(appearance["texture_variants"])
+    scale_low, scale_high = (float(v) for v in appearance["texture_scale"])
+    for material in _materials(room, objects):
+        draw_use, draw_family, draw_variant, draw_scale = rng.random(4)
+        families = TEXTURE_FAMILIES.get(str(material.get("family", "")), ())
+        if not families or draw_use >= probability:
+            continue
+        family = families[min(int(draw_family * len(families)), len(families) - 1)]
+        variant = min(int(draw_variant * variants), variants - 1)
+        scale = scale_low * (scale_high / scale_low) ** draw_scale  # log-uniform: as many halvings as doublings
+        material["texture"] = texture_record(family, variant, scale)
+
+
+def box_uv(vertices_m: np.ndarray, faces: np.ndarray, tile_size_m: float,
+           frame: tuple[np.ndarray, np.ndarray] | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Box-projected texture coordinates: (vertices (3F, 3), faces (F, 3), uv (3F, 2)).
+
+    Vertices are unshared (each triangle gets its own three), since one corner may belong to faces
+    projected along different axes. A triangle whose normal is closest to ±x is mapped (y, z), to ±y
+    (x, z), to ±z (x, y), in metres divided by ``tile_size_m``. ``frame`` = (rotation (3, 3), origin (3,))
+    projects in a local frame ``local = rotation.T @ (world − origin)`` instead of the world's.
+    """
+    if not tile_size_m > 0:
+        raise ValueError(f"tile_size_m must be positive, got {tile_size_m!r}")
+    vertices = np.asarray(vertices_m, dtype=np.float64)
+    faces = np.asarray(faces, dtype=np.int64).reshape(-1, 3)
+    corners = vertices[faces]  # (F, 3, 3)
+    local = corners if frame is None else (corners - np.asarray(frame[1], float)) @ np.asarray(frame[0], float)
+    normals = np.cross(local[:, 1] - local[:, 0], local[:, 2] - local[:, 0])
+    axis = np.argmax(np.abs(normals), axis=1)  # 0: x, 1: y, 2: z
+    keep = np.array([[1, 2], [0, 2], [0, 1]])[axis]  # (F, 2): the two coordinates kept
+    uv = np.take_along_axis(local, np.repeat(keep[:, None, :], 3, axis=1), axis=2) / float(tile_size_m)
+    count = len(faces)
+    return (corners.reshape(-1, 3), np.arange(3 * count, dtype=np.int64).reshape(count, 3),
+            uv.reshape(-1, 2))
+
+
+def yaw_frame(obj: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
+    """(rotation, origin) of an object's own frame: yawed about z by ``yaw_deg``, origin at ``position_m``."""
+    yaw = np.radians(float(obj.get("yaw_deg", 0.0)))
+    rotation = np.array([[np.cos(yaw), -np.sin(yaw), 0.0], [np.sin(yaw), np.cos(yaw), 0.0], [0.0, 0.0, 1.0]])
+    return rotation, np.asarray(obj.get("position_m", (0.0, 0.0, 0.0)), dtype=float)
+
+
+@functools.lru_cache(maxsize=256)
+def _linear_texture(family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str) -> np.ndarray:
+    from PIL import Image
+
+    from .textures import srgb8_to_linear, texture_set
+
+    paths = texture_set(family, json.loads(params_json), seed, Path(cache_dir), resolution_px=resolution_px)
+    with Image.open(paths.base_color) as image:
+        srgb8 = np.asarray(image.convert("RGB"))
+    linear = np.ascontiguousarray(srgb8_to_linear(srgb8), dtype=np.float32)
+    linear.setflags(write=False)
+    return linear
+
+
+def texture_linear_rgb(texture: dict[str, Any]) -> np.ndarray:
+    """Linear-RGB base colour (H, W, 3) float32 of a spec ``texture`` record, from the disk cache.
+
+    Row 0 is v = 0 (Mitsuba's bitmap convention). Generated on a cache miss; the decoded image is
+    kept in memory per process (read-only).
+    """
+    params_json = json.dumps(dict(texture["params"]), sort_keys=True)
+    return _linear_texture(str(texture["family"]), params_json, int(texture["seed"]),
+                           int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)), str(texture_cache_dir()))
