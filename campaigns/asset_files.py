@@ -7,7 +7,9 @@ render worker (task ``evenframe.asset_preview`` in :mod:`campaigns.tasks`) or in
 the library shows "preview pending" until the file exists.
 
 Files of asset ``pk`` live under ``MEDIA_ROOT/assets/<pk>/``: ``info.json`` (extents, faces, unit) and
-``preview.png``.
+``preview.png``. Uploaded meshes live in ``MEDIA_ROOT/assets/meshes/<random>.<format>``; an upload is first staged
+as a hidden ``.partial-<random>.<format>`` file beside it (:func:`stage_upload`) and renamed into place only in the
+transaction that inserts its row (``campaigns.services.upload_mesh_asset``), which removes it on any failure.
 """
 
 from __future__ import annotations
@@ -17,6 +19,8 @@ import os
 import struct
 import subprocess
 import sys
+import uuid
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -61,6 +65,58 @@ def sniff_mesh_format(head: bytes, *, size_bytes: int) -> str | None:
     if lines and all(ln.startswith(keywords) for ln in lines) and any(ln.startswith("v ") for ln in lines):
         return "obj"
     return None
+
+
+@dataclass(frozen=True)
+class StagedMesh:
+    """An upload written to a hidden partial file, not yet kept: ``final`` is its place once its row exists."""
+
+    path: Path
+    final: Path
+    kind: str
+
+
+def meshes_dir() -> Path:
+    from django.conf import settings
+
+    return Path(settings.MEDIA_ROOT) / "assets" / "meshes"
+
+
+def stage_upload(upload: Any) -> StagedMesh:
+    """Check an upload's size and content type and write it to a hidden partial file in the meshes folder.
+
+    ``upload`` is a Django ``UploadedFile``. Raises :class:`UploadError` (nothing written) for an empty or too
+    large file, or content that is not OBJ, PLY, STL or GLB whatever its name says. The caller renames
+    ``path`` to ``final`` once the asset's row is secured, and removes ``path`` otherwise.
+    """
+    size = int(upload.size or 0)
+    if size > MAX_UPLOAD_BYTES:
+        raise UploadError(f"the file is {size / 2**20:.1f} MiB; the limit is {MAX_UPLOAD_BYTES // 2**20} MiB.")
+    if size == 0:
+        raise UploadError("the file is empty.")
+    head = b""
+    for chunk in upload.chunks(chunk_size=4096):
+        head = chunk[:4096]
+        break
+    kind = sniff_mesh_format(head, size_bytes=size)
+    if kind is None:
+        raise UploadError("this is not a mesh file we can read: its content is not OBJ, PLY, STL or GLB "
+                          "(whatever its name says).")
+    folder = meshes_dir()
+    folder.mkdir(parents=True, exist_ok=True)
+    token = uuid.uuid4().hex
+    staged = StagedMesh(path=folder / f".partial-{token}.{kind}", final=folder / f"{token}.{kind}", kind=kind)
+    try:
+        with open(staged.path, "xb") as out:
+            for chunk in upload.chunks():
+                out.write(chunk)
+    except OSError as exc:  # disk full, read-only media: the user's file is fine, say why it was not kept
+        staged.path.unlink(missing_ok=True)
+        raise UploadError(f"the file could not be stored ({exc.strerror or exc}); nothing was kept.") from exc
+    except BaseException:
+        staged.path.unlink(missing_ok=True)
+        raise
+    return staged
 
 
 def _decodes(data: bytes) -> bool:

@@ -3,7 +3,8 @@ never written by hand (switches, ``kind == "bool"``, are checkboxes); quotas are
 not in the campaign) with its own thresholds, empty meaning the budget's acceptance default.
 
 Forms only parse and lay out input: the rules live in ``services.normalize_campaign_budget`` /
-``services.create_campaign``; their error messages are mapped back onto the field they name.
+``services.create_campaign``; their errors (:class:`campaigns.services.CampaignError`, structured: field →
+message) are put on the field they name.
 """
 
 from __future__ import annotations
@@ -26,10 +27,15 @@ SECTION_TITLES = {
     "room": ("Room", "Sampled per layout."),
     "lighting": ("Lighting", "Sampled per lighting variant."),
     "camera": ("Camera", "Sampled per view."),
+    "appearance": ("Appearance", "Procedural textures on surfaces: how often a surface wears one, how many variants "
+                   "there are and their size."),
 }
-# A quota error's message (after ``quota 'cls':``) → the column of the quota row it belongs to.
+# A quota error's column (the QuotaInput attribute the service names) → the quota row's input.
+QUOTA_COLUMNS = {"target_accepted": "target", "min_visible_fraction": "visible", "min_box_px": "box",
+                 "min_contrast": "contrast"}
+# Only for an error given as text alone (no field): its message after ``quota 'cls':`` → the column.
 QUOTA_ERROR_COLUMNS = (("min visible fraction", "visible"), ("min box size", "box"), ("min contrast", "contrast"))
-SECTION_ORDER = ("render", "variation", "thresholds", "room", "lighting", "camera")
+SECTION_ORDER = ("render", "variation", "thresholds", "room", "lighting", "camera", "appearance")
 UNIT_TEXT = {"": "", "1/m²": "per m²"}
 # Field names carry their unit (units in names); the label shows the unit beside it instead.
 UNIT_SUFFIXES = ("_per_m2", "_px", "_mm", "_m", "_lm", "_k", "_deg", "_lux", "_s", "_ev", "_electrons")
@@ -120,7 +126,11 @@ class CampaignForm(forms.Form):
                 self.fields[key].initial = getattr(campaign, key)
         else:
             self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
+        # Known sections in their order, then any section the render core adds (titled from its key), so a new
+        # budget section shows up in the form instead of breaking it.
         self.budget_rows: dict[str, list[dict[str, Any]]] = {s: [] for s in SECTION_ORDER}
+        for field in FIELDS:
+            self.budget_rows.setdefault(field.section, [])
         for field in FIELDS:
             value = budget_value(budget, field)
             unit = UNIT_TEXT.get(field.unit, field.unit)
@@ -176,8 +186,8 @@ class CampaignForm(forms.Form):
 
     def sections(self) -> list[dict[str, Any]]:
         out = []
-        for key in SECTION_ORDER:
-            title, intro = SECTION_TITLES[key]
+        for key in (k for k, rows in self.budget_rows.items() if rows):
+            title, intro = SECTION_TITLES.get(key, (key.replace("_", " ").capitalize(), ""))
             rows = [{**row, "bound": [self[n] for n in row["names"]]} for row in self.budget_rows[key]]
             out.append({"key": key, "title": title, "intro": intro, "rows": rows})
         return out
@@ -232,8 +242,28 @@ class CampaignForm(forms.Form):
         return data
 
     def add_service_error(self, exc: Exception) -> None:
-        """Put a service's message on the field it names (``render.spp: …``, ``quota 'chair': …``, ``name: …``)."""
-        message = str(exc)
+        """Put a service's error on the input it names: its ``field``, a quota row's column, or a budget input."""
+        field = getattr(exc, "field", "")
+        message = getattr(exc, "message", str(exc))
+        if field == "quota" and getattr(exc, "class_name", None) is not None:
+            key = f"q_{exc.class_name}_{QUOTA_COLUMNS.get(exc.column, 'target')}"
+            if key in self.fields:
+                self.add_error(key, message)
+                return
+        elif field == "budget":
+            # The render core's budget errors are text (workers.render.budget.BudgetError carries no field).
+            self._add_error_from_text(f"budget: {message}")
+            return
+        elif field in self.fields:
+            self.add_error(field, message)
+            return
+        if field:
+            self.add_error(None, str(exc))
+            return
+        self._add_error_from_text(str(exc))
+
+    def _add_error_from_text(self, message: str) -> None:
+        """An error known only by its text (``render.spp: …``, ``quota 'chair': …``, ``name: …``)."""
         text = message.removeprefix("budget: ")
         m = re.match(r"(?P<section>\w+)\.(?P<name>\w+)( (?P<part>min|max))?:", text)
         if m and (m["section"], m["name"]) in {(f.section, f.name) for f in FIELDS}:
@@ -290,3 +320,11 @@ class AssetUploadForm(forms.Form):
 
         super().__init__(*args, **kwargs)
         self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
+
+    def add_service_error(self, exc: Exception) -> None:
+        """Put a service's error on the input it names (``name``, ``team``, ``object_class``, …), else on the form."""
+        field = getattr(exc, "field", "")
+        if field and field in self.fields:
+            self.add_error(field, getattr(exc, "message", str(exc)))
+        else:
+            self.add_error(None, str(exc))

@@ -56,8 +56,15 @@ class Asset(models.Model):
 
     class Meta:
         ordering = ["object_class__name", "name"]
+        # Names are unique per team and class, so one team's names never block or reveal another's; the shared
+        # library (no team) is its own namespace. Two constraints because NULLs never collide in a unique index.
+        # A team upload may not take a shared asset's name either (campaigns.services checks that, with a message
+        # that names only the shared library).
         constraints = [
-            models.UniqueConstraint(fields=["object_class", "name"], name="asset_unique_name_per_class"),
+            models.UniqueConstraint(fields=["team", "object_class", "name"], condition=models.Q(team__isnull=False),
+                                    name="asset_unique_name_per_team_and_class"),
+            models.UniqueConstraint(fields=["object_class", "name"], condition=models.Q(team__isnull=True),
+                                    name="asset_unique_shared_name_per_class"),
             models.CheckConstraint(condition=models.Q(creation_cost__gte=0), name="asset_creation_cost_non_negative"),
         ]
 

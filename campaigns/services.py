@@ -11,20 +11,27 @@ Concurrency rules (several workers record results at once):
   done and changes nothing;
 * counters change only by ``F()`` increments in the transaction that records
   the result.
+
+Unique names (a campaign's name in its team, an asset's name in its team and class) are checked first, for a clear
+message, and the insert or rename is guarded as well: a request that loses a race for the name between its check
+and its write gets the same :class:`CampaignError` as the check gives (:func:`_name_guard`), never an
+``IntegrityError``.
 """
 
 from __future__ import annotations
 
 import logging
 import math
+import os
 from collections import Counter
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from datetime import timedelta
 from decimal import Decimal, InvalidOperation
 from typing import Any, NamedTuple
 
-from django.db import transaction
+from django.db import IntegrityError, transaction
 from django.db.models import F, Q, QuerySet
 from django.db.models.functions import Coalesce
 from django.utils import timezone
@@ -48,7 +55,24 @@ State = Frame.State
 
 
 class CampaignError(ValueError):
-    """Bad input or an impossible transition; the message says which and nothing was changed."""
+    """Bad input or an impossible transition; the message says which and nothing was changed.
+
+    Structured for forms: ``field`` names the input the error is about (the service's keyword, e.g. ``name``,
+    ``cost_budget``, ``team``; ``quota`` for one class's quota row, with ``class_name`` and ``column``, the
+    :class:`QuotaInput` attribute; ``budget`` for the randomization budget), or is empty for the request as a whole;
+    ``message`` is the text for that input. ``str(error)`` reads ``"field: message"`` for commands and logs.
+    """
+
+    def __init__(self, message: str, *, field: str = "", class_name: str | None = None, column: str = "") -> None:
+        self.message = message
+        self.field = field
+        self.class_name = class_name
+        self.column = column
+        if field == "quota" and class_name is not None:
+            text = f"quota {class_name!r}: {message}"
+        else:
+            text = f"{field}: {message}" if field else message
+        super().__init__(text)
 
 
 @dataclass(frozen=True)
@@ -80,6 +104,26 @@ def _lock_campaign(campaign_id: int) -> Campaign:
         raise CampaignError(f"campaign {campaign_id} does not exist") from exc
 
 
+@contextmanager
+def _name_guard(conflict: Callable[[], CampaignError | None]) -> Iterator[None]:
+    """Run an insert or rename of a uniquely named row; a unique violation becomes the name check's own error.
+
+    The name was checked before (``conflict()`` returned None), but another request may have taken it since. The
+    write runs in a savepoint, so the violation rolls back only the write and the enclosing transaction can ask
+    again: under PostgreSQL's READ COMMITTED the violation is raised once the other transaction has committed, so
+    the row it wrote is visible to the new query (SQLite writers never overlap: ``transaction_mode = IMMEDIATE``).
+    Any other integrity error is not a name clash and propagates.
+    """
+    try:
+        with transaction.atomic():
+            yield
+    except IntegrityError:
+        error = conflict()
+        if error is None:
+            raise
+        raise error from None
+
+
 def _event(*, campaign_id: int, to_state: str, from_state: str = "", frame_id: int | None = None,
            worker_host: str = "", detail: str = "") -> None:
     FrameEvent.objects.create(campaign_id=campaign_id, frame_id=frame_id, from_state=from_state, to_state=to_state,
@@ -93,19 +137,20 @@ DEFAULT_MONEY_MAXIMUM = Decimal("1000000000")
 
 
 def _decimal(value: Any, what: str, *, minimum: Decimal = Decimal(0)) -> Decimal:
+    """A money amount from input; ``what`` is the input's name (the error's field)."""
     if isinstance(value, bool):
-        raise CampaignError(f"{what}: expected a number, got {value!r}")
+        raise CampaignError(f"expected a number, got {value!r}", field=what)
     try:
         number = Decimal(str(value).strip())
     except (InvalidOperation, ValueError) as exc:
-        raise CampaignError(f"{what}: expected a number, got {value!r}") from exc
+        raise CampaignError(f"expected a number, got {value!r}", field=what) from exc
     if not number.is_finite():
-        raise CampaignError(f"{what}: must be finite, got {value!r}")
+        raise CampaignError(f"must be finite, got {value!r}", field=what)
     if number < minimum:
-        raise CampaignError(f"{what}: must be at least {minimum}, got {number}")
+        raise CampaignError(f"must be at least {minimum}, got {number}", field=what)
     maximum = MONEY_MAXIMUM.get(what, DEFAULT_MONEY_MAXIMUM)
     if number > maximum:
-        raise CampaignError(f"{what}: must be at most {maximum}, got {number}")
+        raise CampaignError(f"must be at most {maximum}, got {number}", field=what)
     return number
 
 
@@ -128,16 +173,16 @@ def _on_commit_revoke(task_ids: list[str]) -> None:
         transaction.on_commit(run)
 
 
-def _finite(value: Any, what: str) -> float:
-    """A finite number from user input, or a CampaignError naming the field."""
+def _finite(value: Any, what: str, **where: Any) -> float:
+    """A finite number from user input, or a CampaignError saying ``what`` is wrong (``where``: its field)."""
     if isinstance(value, bool):
-        raise CampaignError(f"{what}: expected a number, got {value!r}")
+        raise CampaignError(f"{what}: expected a number, got {value!r}", **where)
     try:
         number = float(value)
     except (TypeError, ValueError) as exc:
-        raise CampaignError(f"{what}: expected a number, got {value!r}") from exc
+        raise CampaignError(f"{what}: expected a number, got {value!r}", **where) from exc
     if not math.isfinite(number):
-        raise CampaignError(f"{what}: must be finite, got {value!r}")
+        raise CampaignError(f"{what}: must be finite, got {value!r}", **where)
     return number
 
 
@@ -148,77 +193,102 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
     try:
         normalized = normalize_budget(dict(budget or {}))
     except BudgetError as exc:
-        raise CampaignError(f"budget: {exc}") from exc
+        raise CampaignError(str(exc), field="budget") from exc
     render = normalized["render"]
     pixels = render["width_px"] * render["height_px"]
     if pixels > MAX_CAMPAIGN_PIXELS:
-        raise CampaignError(f"budget: render.width_px × height_px = {pixels} px exceeds the campaign cap of "
-                            f"{MAX_CAMPAIGN_PIXELS} px (1920×1080)")
+        raise CampaignError(f"render.width_px × height_px = {pixels} px exceeds the campaign cap of "
+                            f"{MAX_CAMPAIGN_PIXELS} px (1920×1080)", field="budget")
     if render["spp"] > MAX_CAMPAIGN_SPP:
-        raise CampaignError(f"budget: render.spp {render['spp']} exceeds the campaign cap of {MAX_CAMPAIGN_SPP}")
+        raise CampaignError(f"render.spp {render['spp']} exceeds the campaign cap of {MAX_CAMPAIGN_SPP}",
+                            field="budget")
     return normalized
 
 
 # --- campaigns -------------------------------------------------------------------------------------
 
 
-@transaction.atomic
 def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]) -> list[_CleanQuota]:
     """Check class quotas against the normalized budget; an empty threshold takes the budget's default."""
     from workers.render.budget import FIELDS_BY_KEY
 
     max_contrast = FIELDS_BY_KEY["thresholds", "min_contrast"].upper
     if not quotas:
-        raise CampaignError("quotas: at least one class quota is required")
+        raise CampaignError("at least one class quota is required", field="quotas")
     for q in quotas:
         if not isinstance(q, QuotaInput):
-            raise CampaignError(f"quotas: expected class quotas, got {type(q).__name__}")
+            raise CampaignError(f"expected class quotas, got {type(q).__name__}", field="quotas")
         if not isinstance(q.class_name, str):
-            raise CampaignError(f"quota: class name must be text, got {q.class_name!r}")
-    classes = {c.name: c for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas])}
+            raise CampaignError(f"class name must be text, got {q.class_name!r}", field="quota")
+    # A name with NUL cannot exist (PostgreSQL text cannot hold it, and refuses it even in a lookup): unknown.
+    classes = {c.name: c for c in ObjectClass.objects.filter(
+        name__in=[q.class_name for q in quotas if "\x00" not in q.class_name])}
     thresholds = normalized_budget["thresholds"]
     longest_side_px = max(normalized_budget["render"]["width_px"], normalized_budget["render"]["height_px"])
     seen: set[str] = set()
     clean: list[_CleanQuota] = []
     for q in quotas:
-        where = f"quota {q.class_name!r}"
+        def where(column: str = "target_accepted", class_name: str = q.class_name) -> dict[str, Any]:
+            """The error's place: this quota row's ``column`` (a QuotaInput attribute)."""
+            return {"field": "quota", "class_name": class_name, "column": column}
+
         if q.class_name not in classes:
-            raise CampaignError(f"{where}: unknown object class (create it first, e.g. with seed_demo)")
+            raise CampaignError("unknown object class (create it first, e.g. with seed_demo)", **where())
         if q.class_name in seen:
-            raise CampaignError(f"{where}: listed twice")
+            raise CampaignError("listed twice", **where())
         seen.add(q.class_name)
         if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
-            raise CampaignError(f"{where}: target must be a whole number, got {q.target_accepted!r}")
+            raise CampaignError(f"target must be a whole number, got {q.target_accepted!r}", **where())
         if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
-            raise CampaignError(f"{where}: target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}")
+            raise CampaignError(f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}",
+                                **where())
         vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
-            q.min_visible_fraction, f"{where}: min visible fraction")
-        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(q.min_box_px, f"{where}: min box size")
+            q.min_visible_fraction, "min visible fraction", **where("min_visible_fraction"))
+        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(
+            q.min_box_px, "min box size", **where("min_box_px"))
         contrast = thresholds["min_contrast"] if q.min_contrast is None else _finite(
-            q.min_contrast, f"{where}: min contrast")
+            q.min_contrast, "min contrast", **where("min_contrast"))
         if not 0.0 <= vis <= 1.0:
-            raise CampaignError(f"{where}: min visible fraction must be between 0 and 1, got {vis}")
+            raise CampaignError(f"min visible fraction must be between 0 and 1, got {vis}",
+                                **where("min_visible_fraction"))
         if not 0.0 <= box <= longest_side_px:
-            raise CampaignError(f"{where}: min box size must be between 0 and {longest_side_px} px, got {box}")
+            raise CampaignError(f"min box size must be between 0 and {longest_side_px} px, got {box}",
+                                **where("min_box_px"))
         if not 0.0 <= contrast <= max_contrast:
-            raise CampaignError(f"{where}: min contrast must be between 0 and {max_contrast:g}, got {contrast:g}")
+            raise CampaignError(f"min contrast must be between 0 and {max_contrast:g}, got {contrast:g}",
+                                **where("min_contrast"))
         clean.append(_CleanQuota(classes[q.class_name], q.target_accepted, vis, box, contrast))
     if sum(q.target_accepted for q in clean) == 0:
-        raise CampaignError("quotas: every target is 0; nothing to render")
+        raise CampaignError("every target is 0; nothing to render", field="quotas")
     return clean
 
 
-def _clean_name(name: Any, description: str) -> str:
+def _clean_name(name: Any, description: str, *, max_length: int = 200) -> str:
     if name is not None and not isinstance(name, str):
-        raise CampaignError(f"name: expected text, got {type(name).__name__}")
+        raise CampaignError(f"expected text, got {type(name).__name__}", field="name")
     name = (name or "").strip()
     if not name:
-        raise CampaignError("name: required")
-    if len(name) > 200:
-        raise CampaignError(f"name: at most 200 characters, got {len(name)}")
-    if "\x00" in name or "\x00" in (description or ""):
-        raise CampaignError("name: must not contain NUL characters")
+        raise CampaignError("required", field="name")
+    if len(name) > max_length:
+        raise CampaignError(f"at most {max_length} characters, got {len(name)}", field="name")
+    if "\x00" in name:
+        raise CampaignError("must not contain NUL characters", field="name")
+    if "\x00" in (description or ""):
+        raise CampaignError("must not contain NUL characters", field="description")
     return name
+
+
+def _campaign_name_conflict(*, team_id: int, name: str, exclude_pk: int | None = None) -> CampaignError | None:
+    """The error for a campaign name the team already uses (other than campaign ``exclude_pk``), or None."""
+    taken = Campaign.objects.filter(team_id=team_id, name=name)
+    if exclude_pk is not None:
+        taken = taken.exclude(pk=exclude_pk)
+    if not taken.exists():
+        return None
+    from teams.models import Team
+
+    team_name = Team.objects.filter(pk=team_id).values_list("name", flat=True).first()
+    return CampaignError(f"team {team_name} already has a campaign called {name!r}", field="name")
 
 
 @dataclass(frozen=True)
@@ -243,11 +313,11 @@ def _clean_settings(*, cost_budget: Any, price_per_cpu_hour: Any, setup_cost: An
         weight=weight, seed=seed, max_attempts=max_attempts,
     )
     if isinstance(weight, bool) or not isinstance(weight, int) or not 1 <= weight <= MAX_WEIGHT:
-        raise CampaignError(f"weight: must be a whole number from 1 to {MAX_WEIGHT}, got {weight!r}")
+        raise CampaignError(f"must be a whole number from 1 to {MAX_WEIGHT}, got {weight!r}", field="weight")
     if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
-        raise CampaignError(f"seed: must be a whole number from 0 to 2^63 − 1, got {seed!r}")
+        raise CampaignError(f"must be a whole number from 0 to 2^63 − 1, got {seed!r}", field="seed")
     if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
-        raise CampaignError(f"max_attempts: must be between 1 and 20, got {max_attempts!r}")
+        raise CampaignError(f"must be between 1 and 20, got {max_attempts!r}", field="max_attempts")
     return settings
 
 
@@ -267,10 +337,11 @@ def _write_quotas(*, campaign: Campaign, clean: Sequence[_CleanQuota]) -> None:
 def _check_fixed_cost(*, assets: Sequence[Asset], settings: _Settings) -> None:
     fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=settings.setup_cost)
     if fixed > settings.cost_budget:
-        raise CampaignError(f"cost_budget: {settings.cost_budget} is less than the fixed costs {fixed} "
-                            "(setup cost plus asset creation costs)")
+        raise CampaignError(f"{settings.cost_budget} is less than the fixed costs {fixed} "
+                            "(setup cost plus asset creation costs)", field="cost_budget")
 
 
+@transaction.atomic
 def create_campaign(
     *,
     owner: Any,
@@ -288,16 +359,18 @@ def create_campaign(
     asset_ids: Iterable[int] | None = None,
     description: str = "",
 ) -> Campaign:
-    """Validate everything, then create a draft campaign with its quotas; nothing is written on bad input."""
+    """Validate everything, then create a draft campaign with its quotas; nothing is written on bad input.
+
+    One transaction: a request that fails half-way (or loses the race for the name) leaves no row behind."""
     name = _clean_name(name, description)
     from teams.permissions import PLANNER, has_role, personal_team
 
     if team is None:
         team = personal_team(user=owner)
     elif not has_role(user=owner, team=team, role=PLANNER):
-        raise CampaignError(f"team: {owner} is not a planner in team {team}")
-    if Campaign.objects.filter(team=team, name=name).exists():
-        raise CampaignError(f"name: team {team} already has a campaign called {name!r}")
+        raise CampaignError(f"{owner} is not a planner in team {team}", field="team")
+    if conflict := _campaign_name_conflict(team_id=team.pk, name=name):
+        raise conflict
     normalized = normalize_campaign_budget(budget)
     settings = _clean_settings(cost_budget=cost_budget, price_per_cpu_hour=price_per_cpu_hour, setup_cost=setup_cost,
                                manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
@@ -308,16 +381,18 @@ def create_campaign(
         wanted = set(asset_ids)
         assets = list(usable.filter(pk__in=wanted))
         if len(assets) != len(wanted):
-            raise CampaignError(f"assets: {len(wanted) - len(assets)} asset(s) are unknown or belong to another team")
+            raise CampaignError(f"{len(wanted) - len(assets)} asset(s) are unknown or belong to another team",
+                                field="assets")
     else:
         assets = list(usable.filter(object_class__name__in=[q.object_class.name for q in clean]))
     _check_fixed_cost(assets=assets, settings=settings)
-    campaign = Campaign.objects.create(
-        name=name, team=team, owner=owner, description=description, seed=settings.seed, budget=normalized,
-        cost_budget=settings.cost_budget, price_per_cpu_hour=settings.price_per_cpu_hour,
-        setup_cost=settings.setup_cost, manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
-        weight=settings.weight, max_attempts=settings.max_attempts,
-    )
+    with _name_guard(lambda: _campaign_name_conflict(team_id=team.pk, name=name)):
+        campaign = Campaign.objects.create(
+            name=name, team=team, owner=owner, description=description, seed=settings.seed, budget=normalized,
+            cost_budget=settings.cost_budget, price_per_cpu_hour=settings.price_per_cpu_hour,
+            setup_cost=settings.setup_cost, manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
+            weight=settings.weight, max_attempts=settings.max_attempts,
+        )
     campaign.assets.set(assets)
     _write_quotas(campaign=campaign, clean=clean)
     _event(campaign_id=campaign.pk, to_state=Status.DRAFT, detail="created")
@@ -772,9 +847,13 @@ def ensure_object_class(*, name: str, label: str = "", description: str = "") ->
 
 
 def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_cost: Decimal | float | str = 0) -> Asset:
+    """The shared (team-less) procedural asset of this class and name, created once.
+
+    Only the shared library is looked at: a team's upload with the same name is another asset and is never
+    returned here (names are unique per team, and the shared library is its own namespace)."""
     cost = _decimal(creation_cost, "creation_cost")
     asset, _ = Asset.objects.get_or_create(
-        object_class=object_class, name=name,
+        object_class=object_class, name=name, team=None,
         defaults={"kind": Asset.Kind.PROCEDURAL, "generator": object_class.name, "creation_cost": cost},
     )
     return asset
@@ -819,8 +898,8 @@ def update_draft_campaign(
         raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
                             "(the cost budget of a started campaign can still be changed)")
     name = _clean_name(name, description)
-    if Campaign.objects.filter(team_id=campaign.team_id, name=name).exclude(pk=campaign.pk).exists():
-        raise CampaignError(f"name: the team already has a campaign called {name!r}")
+    if conflict := _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk):
+        raise conflict
     normalized = normalize_campaign_budget(budget)
     settings = _clean_settings(cost_budget=cost_budget, price_per_cpu_hour=price_per_cpu_hour, setup_cost=setup_cost,
                                manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
@@ -829,11 +908,12 @@ def update_draft_campaign(
     assets = list(_usable_assets(team_id=campaign.team_id).filter(
         object_class__name__in=[q.object_class.name for q in clean]))
     _check_fixed_cost(assets=assets, settings=settings)
-    Campaign.objects.filter(pk=campaign.pk).update(
-        name=name, description=description, seed=settings.seed, budget=normalized, cost_budget=settings.cost_budget,
-        price_per_cpu_hour=settings.price_per_cpu_hour, setup_cost=settings.setup_cost,
-        manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour, weight=settings.weight,
-        max_attempts=settings.max_attempts)
+    with _name_guard(lambda: _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk)):
+        Campaign.objects.filter(pk=campaign.pk).update(
+            name=name, description=description, seed=settings.seed, budget=normalized,
+            cost_budget=settings.cost_budget, price_per_cpu_hour=settings.price_per_cpu_hour,
+            setup_cost=settings.setup_cost, manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
+            weight=settings.weight, max_attempts=settings.max_attempts)
     campaign.refresh_from_db()
     campaign.assets.set(assets)
     ClassQuota.objects.filter(campaign=campaign).delete()
@@ -897,6 +977,9 @@ def retry_frame(*, campaign_id: int, frame_id: int) -> int:
 def _kind_filter(kind: str) -> Q:
     """Errors whose first line is of this kind (see :func:`error_kind`): ``#`` matches a number."""
     import re
+
+    if "\x00" in kind:  # no stored error holds NUL (PostgreSQL text cannot), and the database refuses it in a query
+        return Q(pk__in=[])
 
     pattern = "^" + "".join("[0-9]+([.][0-9]+)?" if part == "#" else re.escape(part)
                             for part in re.split(r"(#)", kind) if part)
@@ -971,25 +1054,121 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     return frame
 
 
+ASSET_NAME_MAX_CHARS = 128  # Asset.name's max_length
+
+
+def _article(word: str) -> str:
+    return "an" if word[:1] and word[:1].lower() in "aeiou" else "a"
+
+
+def _asset_name_conflict(*, team: Any, object_class: ObjectClass, name: str) -> CampaignError | None:
+    """The error for a name a team cannot give an upload of this class, or None when the name is free.
+
+    Taken when the team already has an asset of that class and name, or when the shared library has one with the
+    same name up to letter case (a team upload would shadow it confusingly in the library and the planner). Only
+    the team's own assets and the shared library are looked at, so the answer never depends on another team's
+    assets and the message never mentions them.
+    """
+    owners = set(Asset.objects.filter(object_class=object_class)
+                 .filter(Q(team=team, name=name) | Q(team__isnull=True, name__iexact=name))
+                 .values_list("team_id", flat=True))
+    what = f"{_article(object_class.name)} {object_class.name} asset called {name!r}"
+    if team.pk in owners:
+        return CampaignError(f"team {team} already has {what}", field="name")
+    if None in owners:
+        return CampaignError(f"the shared library already has {what}; choose another name so the two are not "
+                             "confused", field="name")
+    return None
+
+
+@dataclass(frozen=True)
+class _AssetInput:
+    team: Any
+    object_class: ObjectClass
+    name: str
+    unit: str
+    creation_cost: Decimal
+
+
+def _clean_asset_input(*, user: Any, team: Any, object_class_name: str, name: Any, unit: str,
+                       creation_cost: Decimal | float | str) -> _AssetInput:
+    """Every check of an upload that needs no file, the name's availability last."""
+    from teams.permissions import PLANNER, has_role
+    from workers.render.meshes import UNIT_TO_M
+
+    if not has_role(user=user, team=team, role=PLANNER):
+        raise CampaignError(f"{user} is not a planner in team {team}", field="team")
+    name = _clean_name(name, "", max_length=ASSET_NAME_MAX_CHARS)
+    if unit != "auto" and unit not in UNIT_TO_M:
+        raise CampaignError(f"unknown unit {unit!r} (known: auto, {', '.join(UNIT_TO_M)})", field="unit")
+    try:
+        object_class = ObjectClass.objects.get(name=object_class_name)
+    except (ObjectClass.DoesNotExist, ValueError, TypeError) as exc:
+        raise CampaignError(f"unknown object class {object_class_name!r}", field="object_class") from exc
+    cost = _decimal(creation_cost, "creation_cost")
+    if conflict := _asset_name_conflict(team=team, object_class=object_class, name=name):
+        raise conflict
+    return _AssetInput(team, object_class, name, unit, cost)
+
+
+def _insert_asset(*, clean: _AssetInput, mesh_path: str) -> Asset:
+    """The asset row; a team asset with this class and name made meanwhile gives the name check's error."""
+    with _name_guard(lambda: _asset_name_conflict(team=clean.team, object_class=clean.object_class,
+                                                  name=clean.name)):
+        return Asset.objects.create(object_class=clean.object_class, name=clean.name, kind=Asset.Kind.MESH,
+                                    mesh_file=mesh_path, mesh_unit=clean.unit, team=clean.team,
+                                    creation_cost=clean.creation_cost)
+
+
 @transaction.atomic
 def upload_asset(*, user: Any, team: Any, object_class_name: str, name: str, mesh_path: str, original_name: str,
                  unit: str = "auto", creation_cost: Decimal | float | str = 0) -> Asset:
-    """Add an uploaded mesh (already validated by the caller, see ``campaigns.assets_upload``) to a team's library.
+    """Add a mesh that is already checked and stored (``mesh_path``: relative to MEDIA_ROOT) to a team's library.
 
-    ``mesh_path`` is a file under MEDIA_ROOT/assets/meshes/ (relative path)."""
-    from teams.permissions import PLANNER, has_role
+    The dashboard's upload goes through :func:`upload_mesh_asset`, which checks and stores the file itself."""
+    clean = _clean_asset_input(user=user, team=team, object_class_name=object_class_name, name=name, unit=unit,
+                               creation_cost=creation_cost)
+    return _insert_asset(clean=clean, mesh_path=mesh_path)
 
-    if not has_role(user=user, team=team, role=PLANNER):
-        raise CampaignError(f"team: {user} is not a planner in team {team}")
-    name = (name or "").strip()
-    if not name:
-        raise CampaignError("name: required")
+
+def upload_mesh_asset(*, user: Any, team: Any, object_class_name: str, name: str, upload: Any, unit: str = "auto",
+                      creation_cost: Decimal | float | str = 0) -> Asset:
+    """Check an uploaded mesh file, store it and add it to a team's library; on any failure nothing stays.
+
+    ``upload`` is a Django ``UploadedFile`` (``name``, ``size``, ``chunks()``). Order: the checks that need no
+    file (role, name, class, cost, the name free in the team and the shared library), then the file is staged
+    beside its final place and parsed in a limited child process (:mod:`campaigns.asset_files`), then the row is
+    inserted and the file renamed into place in one transaction. A request that loses the race for the name, a
+    mesh that does not parse or any other failure removes the staged file, so no mesh without a row is left in
+    MEDIA_ROOT. Raises :class:`CampaignError` (input) or :class:`campaigns.asset_files.UploadError` (the file).
+    Must not run inside a transaction (the row must be committed before the file counts as kept).
+    """
+    from django.conf import settings
+
+    from campaigns import asset_files
+
+    clean = _clean_asset_input(user=user, team=team, object_class_name=object_class_name, name=name, unit=unit,
+                               creation_cost=creation_cost)
+    staged = asset_files.stage_upload(upload)
     try:
-        object_class = ObjectClass.objects.get(name=object_class_name)
-    except ObjectClass.DoesNotExist as exc:
-        raise CampaignError(f"class: unknown object class {object_class_name!r}") from exc
-    if Asset.objects.filter(object_class=object_class, name=name).exists():
-        raise CampaignError(f"name: there is already a {object_class.name} asset called {name!r}")
-    cost = _decimal(creation_cost, "creation_cost")
-    return Asset.objects.create(object_class=object_class, name=name, kind=Asset.Kind.MESH, mesh_file=mesh_path,
-                                mesh_unit=unit, team=team, creation_cost=cost)
+        info = asset_files.check_mesh_file(path=staged.path, unit=clean.unit)
+        try:
+            with transaction.atomic(durable=True):
+                asset = _insert_asset(clean=clean, mesh_path=str(staged.final.relative_to(settings.MEDIA_ROOT)))
+                try:
+                    os.replace(staged.path, staged.final)
+                except OSError as exc:
+                    raise asset_files.UploadError(f"the file could not be stored ({exc.strerror or exc}); "
+                                                  "nothing was kept.") from exc
+        except BaseException:
+            staged.final.unlink(missing_ok=True)  # renamed, but the row did not commit
+            raise
+    finally:
+        staged.path.unlink(missing_ok=True)
+    try:
+        asset_files.write_asset_info(asset.pk, {**info, "format": staged.kind,
+                                                "original_name": str(getattr(upload, "name", ""))[:200]})
+    except OSError:  # the asset is kept; its preview render writes the extents again
+        log.warning("asset %s: could not write info.json", asset.pk, exc_info=True)
+    asset_files.request_preview(asset_pk=asset.pk)
+    return asset

@@ -189,9 +189,15 @@ def campaign_edit(request: HttpRequest, campaign_id: int) -> HttpResponse:
         budget_form = CostBudgetForm(request.POST or None, initial={"cost_budget": campaign.cost_budget})
         if request.method == "POST":
             if budget_form.is_valid():
-                services.set_cost_budget(campaign_id=campaign.pk, cost_budget=budget_form.cleaned_data["cost_budget"])
-                messages.success(request, f"Cost budget set to {budget_form.cleaned_data['cost_budget']}.")
-                return redirect("campaigns:detail", campaign_id=campaign.pk)
+                try:
+                    services.set_cost_budget(campaign_id=campaign.pk,
+                                             cost_budget=budget_form.cleaned_data["cost_budget"])
+                except services.CampaignError as exc:
+                    field = exc.field if exc.field in budget_form.fields else None
+                    budget_form.add_error(field, exc.message if field else str(exc))
+                else:
+                    messages.success(request, f"Cost budget set to {budget_form.cleaned_data['cost_budget']}.")
+                    return redirect("campaigns:detail", campaign_id=campaign.pk)
             return render(request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form},
                           status=400)
         return render(request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form})
@@ -394,7 +400,9 @@ def _boxes(instances: list[dict[str, Any]], match: Q | None, *, class_name: str,
 def frame_gallery(request: HttpRequest, campaign_id: int) -> HttpResponse:
     campaign = _campaign(request, campaign_id)
     class_name = request.GET.get("class", "")
-    if class_name and not campaign.quotas.filter(object_class__name=class_name).exists():
+    # A name with NUL is no class's (and PostgreSQL refuses it even in a lookup).
+    if class_name and ("\x00" in class_name
+                       or not campaign.quotas.filter(object_class__name=class_name).exists()):
         class_name = ""
     accepted = request.GET.get("accepted", "")
     accepted = accepted if accepted in ("accepted", "rejected") else ""
@@ -599,51 +607,20 @@ def asset_library(request: HttpRequest) -> HttpResponse:
 
 
 def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
-    """Validate the upload fully (content sniffing, size, a limited parse with scale checks); nothing is kept on error."""
+    """Validate and keep an upload through the service (content sniffing, size, a limited parse with scale checks,
+    the name free in the team); nothing is kept on error, and the error lands on its field."""
     if not form.is_valid():
         return None
-    upload = form.cleaned_data["mesh"]
-    if upload.size > asset_files.MAX_UPLOAD_BYTES:
-        form.add_error("mesh", f"The file is {upload.size / 2**20:.1f} MiB; the limit is "
-                               f"{asset_files.MAX_UPLOAD_BYTES // 2**20} MiB.")
-        return None
-    if upload.size == 0:
-        form.add_error("mesh", "The file is empty.")
-        return None
-    head = b""
-    for chunk in upload.chunks(chunk_size=4096):
-        head = chunk[:4096]
-        break
-    kind = asset_files.sniff_mesh_format(head, size_bytes=upload.size)
-    if kind is None:
-        form.add_error("mesh", "This is not a mesh file we can read: its content is not OBJ, PLY, STL or GLB "
-                               "(whatever its name says).")
-        return None
-    folder = Path(settings.MEDIA_ROOT) / "assets" / "meshes"
-    folder.mkdir(parents=True, exist_ok=True)
-    stored = folder / f"{uuid.uuid4().hex}.{kind}"
-    with open(stored, "wb") as out:
-        for chunk in upload.chunks():
-            out.write(chunk)
+    d = form.cleaned_data
     try:
-        info = asset_files.check_mesh_file(path=stored, unit=form.cleaned_data["unit"])
-        asset = services.upload_asset(
-            user=request.user, team=form.cleaned_data["team"], object_class_name=form.cleaned_data["object_class"].name,
-            name=form.cleaned_data["name"], mesh_path=str(stored.relative_to(settings.MEDIA_ROOT)),
-            original_name=upload.name, unit=form.cleaned_data["unit"],
-            creation_cost=form.cleaned_data["creation_cost"])
+        return services.upload_mesh_asset(
+            user=request.user, team=d["team"], object_class_name=d["object_class"].name, name=d["name"],
+            upload=d["mesh"], unit=d["unit"], creation_cost=d["creation_cost"])
     except asset_files.UploadError as exc:
-        stored.unlink(missing_ok=True)
         form.add_error("mesh", str(exc)[:1].upper() + str(exc)[1:])
-        return None
     except services.CampaignError as exc:
-        stored.unlink(missing_ok=True)
-        key = str(exc).split(":", 1)[0]
-        form.add_error(key if key in form.fields else None, str(exc).split(":", 1)[-1].strip())
-        return None
-    asset_files.write_asset_info(asset.pk, {**info, "format": kind, "original_name": upload.name[:200]})
-    asset_files.request_preview(asset_pk=asset.pk)
-    return asset
+        form.add_service_error(exc)
+    return None
 
 
 @require_GET

@@ -1,7 +1,10 @@
 /* Evenframe dashboard: live updates and charts. Progressive: every page works without this file.
  * - campaign list: polls /campaigns/live.json and updates status, progress, spend and ETA;
  * - planner: fetches /campaigns/estimate.json as the form changes and fills the estimate panel;
- * - campaign page: draws the plotly charts from #chart-data and polls <id>/live.json every few seconds. */
+ * - campaign page: draws the plotly charts from #chart-data and polls <id>/live.json every few seconds.
+ * Names from the database (classes, campaigns, assets) may hold any character: rows are found by comparing
+ * attribute values (byAttribute), never by building a selector from a name, and text reaches the page through
+ * textContent or, for plotly's labels (which read a little HTML), through plotlyText. */
 (function () {
   "use strict";
   var TEAL = "#1f7a74", TEAL_SOFT = "rgba(31,122,116,.14)", SLATE = "#5b7c91", CORAL = "#d9825b", INK = "#1f2a33",
@@ -15,6 +18,22 @@
     return path.split(".").reduce(function (o, k) { return o == null ? undefined : o[k]; }, obj);
   }
   function text(v) { return v === null || v === undefined || v === "" ? "—" : String(v); }
+  /* Elements matching a constant selector, keyed by the value of one of their attributes. */
+  function byAttribute(sel, attr, root) {
+    var out = Object.create(null);
+    $all(sel, root).forEach(function (el) { out[el.getAttribute(attr)] = el; });
+    return out;
+  }
+  function pill(kind, label) {
+    var el = document.createElement("span");
+    el.className = "pill " + kind;
+    el.textContent = label;
+    return el;
+  }
+  /* plotly reads <b>, <br>, <a href> and entities in labels: escape them so a name shows as it is. */
+  function plotlyText(v) {
+    return String(v).replace(/&/g, "&amp;").replace(/</g, "&lt;").replace(/>/g, "&gt;");
+  }
   function getJSON(url) {
     return fetch(url, { credentials: "same-origin", headers: { "Accept": "application/json" } }).then(function (r) {
       if (!r.ok) throw new Error("HTTP " + r.status);
@@ -27,17 +46,17 @@
     var url = root.getAttribute("data-list-live");
     function tick() {
       getJSON(url).then(function (data) {
+        var rows = byAttribute("tr[data-campaign]", "data-campaign", root);
         data.campaigns.forEach(function (c) {
-          var row = $('tr[data-campaign="' + c.id + '"]', root);
+          var row = rows[String(c.id)];
           if (!row) return;
+          var cells = byAttribute("[data-field]", "data-field", row);
           ["status_label", "progress_pct", "spent", "frames_done", "eta"].forEach(function (k) {
-            var el = $('[data-field="' + k + '"]', row);
-            if (el) el.textContent = text(c[k]);
+            if (cells[k]) cells[k].textContent = text(c[k]);
           });
-          var status = $('[data-field="status_label"]', row);
-          if (status) status.className = "pill status-" + c.status;
-          var bar = $('[data-field="progress_bar"]', row); if (bar) bar.style.width = c.progress_pct + "%";
-          var spend = $('[data-field="spent_bar"]', row); if (spend) spend.style.width = Math.min(100, c.spent_pct) + "%";
+          if (cells.status_label) cells.status_label.className = "pill status-" + c.status;
+          if (cells.progress_bar) cells.progress_bar.style.width = c.progress_pct + "%";
+          if (cells.spent_bar) cells.spent_bar.style.width = Math.min(100, c.spent_pct) + "%";
         });
       }).catch(function () {}).then(function () { setTimeout(tick, 5000); });
     }
@@ -49,9 +68,8 @@
     var url = panel.getAttribute("data-url"), timer = null, seq = 0;
     var body = $(".estimate-body", panel), empty = $(".estimate-empty", panel), err = $(".estimate-error", panel);
     function verdict(e) {
-      if (!e.within_budget) return '<span class="pill bad">over budget</span>';
-      return e.cheaper ? '<span class="pill ok">cheaper than labelling by hand</span>'
-                       : '<span class="pill warn">dearer than labelling by hand</span>';
+      if (!e.within_budget) return pill("bad", "over budget");
+      return e.cheaper ? pill("ok", "cheaper than labelling by hand") : pill("warn", "dearer than labelling by hand");
     }
     function update() {
       var params = new URLSearchParams(new FormData(form));
@@ -71,7 +89,7 @@
         var e = data.estimate;
         $all("[data-est]", panel).forEach(function (el) {
           var k = el.getAttribute("data-est");
-          if (k === "verdict") { el.innerHTML = verdict(e); return; }
+          if (k === "verdict") { el.replaceChildren(verdict(e)); return; }
           if (k === "fleet_time") { el.textContent = e.fleet_time || "no live worker"; return; }
           if (k === "instances_per_frame") { el.textContent = Math.round(e[k]); return; }
           el.textContent = text(e[k]);
@@ -105,7 +123,7 @@
     window.Plotly.react(el, traces, layout(lay), CONFIG);
   }
   function balanceChart(live) {
-    var names = live.quotas.map(function (q) { return q.class_name; });
+    var names = live.quotas.map(function (q) { return plotlyText(q.class_name); });
     draw("chart-balance", [
       { type: "bar", name: "quota", x: names, y: live.quotas.map(function (q) { return q.target; }),
         marker: { color: "rgba(0,0,0,0)", line: { color: SLATE, width: 1.5 } } },
@@ -165,13 +183,13 @@
     var traces = kinds.map(function (kind, i) {
       var r = cov.flux_ranges[kind];
       if (r) shapes.push({ type: "rect", xref: "x", yref: "paper", x0: r[0], x1: r[1], y0: 0, y1: 1, fillcolor: PALETTE[i % PALETTE.length], opacity: 0.09, line: { width: 0 }, layer: "below" });
-      return { type: "histogram", name: kind, x: cov.flux[kind], nbinsx: 24, opacity: 0.75, marker: { color: PALETTE[i % PALETTE.length] } };
+      return { type: "histogram", name: plotlyText(kind), x: cov.flux[kind], nbinsx: 24, opacity: 0.75, marker: { color: PALETTE[i % PALETTE.length] } };
     });
     draw("cov-flux", traces, { title: { text: "Light intensity (lm) by kind", font: { size: 13 }, x: 0.01 }, barmode: "overlay",
       shapes: shapes, margin: { l: 40, r: 10, t: 30, b: 30 }, legend: { y: 1.0, x: 1, xanchor: "right", orientation: "v" } });
     var classes = Object.keys(cov.azimuth_deg || {}).sort();
     draw("cov-azimuth", classes.map(function (name, i) {
-      return { type: "histogram", name: name, x: cov.azimuth_deg[name], xbins: { start: 0, end: 360, size: 30 },
+      return { type: "histogram", name: plotlyText(name), x: cov.azimuth_deg[name], xbins: { start: 0, end: 360, size: 30 },
         histnorm: "probability", marker: { color: PALETTE[i % PALETTE.length] } };
     }), { title: { text: "Viewing angle per class: camera azimuth around the object, 0° = front (budget: any angle)", font: { size: 13 }, x: 0.01 },
       barmode: "group", xaxis: { range: [0, 360], dtick: 30, title: { text: "degrees" } }, yaxis: { title: { text: "share of placements" } },
@@ -192,14 +210,16 @@
     $all("[data-live-bar]").forEach(function (el) {
       el.style.width = Math.min(100, Number(get(live, el.getAttribute("data-live-bar"))) || 0) + "%";
     });
+    var quotaRows = byAttribute("#quota-table tr[data-class]", "data-class");
     live.quotas.forEach(function (q) {
-      var row = $('#quota-table tr[data-class="' + q.class_name + '"]');
+      var row = quotaRows[q.class_name];
       if (!row) return;
-      $('[data-q="accepted"]', row).textContent = q.accepted;
-      $('[data-q="rejected"]', row).textContent = q.rejected;
-      $('[data-q="yield"]', row).textContent = q.yield.toFixed(2);
-      $('[data-q="bar"]', row).style.width = q.pct + "%";
-      $('[data-q="met"]', row).innerHTML = q.met ? '<span class="pill ok">met</span>' : "";
+      var cells = byAttribute("[data-q]", "data-q", row);
+      cells.accepted.textContent = q.accepted;
+      cells.rejected.textContent = q.rejected;
+      cells.yield.textContent = q.yield.toFixed(2);
+      cells.bar.style.width = q.pct + "%";
+      if (q.met) cells.met.replaceChildren(pill("ok", "met")); else cells.met.replaceChildren();
     });
     var fleet = $("#fleet-table tbody");
     if (fleet) {
