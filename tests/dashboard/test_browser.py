@@ -117,6 +117,9 @@ def test_plan_start_watch_retry_and_browse(page, live_server, people, object_cla
     assert page.locator("svg.boxes rect").count() == boxes
     if boxes:
         assert page.locator("svg.boxes rect").first.bounding_box()["width"] > 0
+    # The image loads after the page does: wait for it before reading its size.
+    page.wait_for_function("() => { const img = document.querySelector('img.layer.rgb');"
+                           " return img && img.complete && img.naturalWidth > 0; }", timeout=15000)
     assert page.evaluate("document.querySelector('img.layer.rgb').naturalWidth") == 64
     page.click("label[for=view-depth]")
     assert page.locator("img.layer.depth").is_visible()
