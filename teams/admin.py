@@ -5,12 +5,13 @@ from __future__ import annotations
 from typing import Any, ClassVar
 
 from django import forms
-from django.contrib import admin
+from django.contrib import admin, messages
 from django.contrib.auth import get_user_model
 from django.core.exceptions import ValidationError
+from django.db import IntegrityError
 from django.db.models import Field, ForeignKey, IntegerField, ManyToManyField, QuerySet
 from django.forms.models import BaseInlineFormSet
-from django.http import HttpRequest
+from django.http import HttpRequest, HttpResponse, HttpResponseRedirect
 
 from teams.models import Membership, Team
 from teams.permissions import (
@@ -91,6 +92,24 @@ class TeamScopedAdminMixin:
         form = super().get_form(request, obj, change=change, **kwargs)
         form.request_user = request.user  # a class made for this request by modelform_factory
         return form
+
+    def changeform_view(self, request: HttpRequest, object_id: str | None = None, form_url: str = "",
+                        extra_context: dict[str, Any] | None = None) -> HttpResponse:
+        """The admin's add and change pages, answering a lost race on a unique value with a message, not a 500.
+
+        The form checks unique values (a team's name, a campaign's name in its team…) before the save; two saves
+        of the same value at the same moment both pass that check and the database refuses the second. The
+        admin's own transaction has rolled the whole save back by then, so nothing was written.
+        """
+        try:
+            return super().changeform_view(request, object_id, form_url, extra_context)
+        except IntegrityError:
+            if request.method != "POST":  # only a save can lose that race
+                raise
+            self.message_user(request, "Not saved: another save took the same name (or another value that must be "
+                              "unique) a moment ago. Nothing was changed; check the values and save again.",
+                              level=messages.ERROR)
+            return HttpResponseRedirect(request.get_full_path())
 
     def get_formset(self, request: HttpRequest, obj: Any = None, **kwargs: Any) -> Any:
         formset = super().get_formset(request, obj, **kwargs)
