@@ -247,7 +247,7 @@ def render_frame(
     """
     from . import labels as labels_module
     from .backend import init_renderer
-    from .scene import build_scene, render_label_and_aux, render_radiance
+    from .scene import SUN_PASS_SPP_FACTOR, build_scene, render_label_and_aux, render_radiance
     from .spec import axis_rng
 
     timings = dict.fromkeys(STAGES, 0.0)
@@ -275,6 +275,8 @@ def render_frame(
     radiance_out, render_info = denoise_radiance(radiance_pass, wanted=wants_denoise, threads=threads)
     render_info.update({"spp": int(render["spp"]), "window_light": built.window_light,
                         "sun_pass": built.sun_scene is not None, "reconstruction_filter": "box"})
+    if built.sun_scene is not None:
+        render_info["sun_pass_spp"] = int(render["spp"]) * SUN_PASS_SPP_FACTOR
     timings["denoise"] = time.perf_counter() - start
 
     start = time.perf_counter()
