@@ -27,8 +27,8 @@ SECTION_TITLES = {
     "room": ("Room", "Sampled per layout."),
     "lighting": ("Lighting", "Sampled per lighting variant."),
     "camera": ("Camera", "Sampled per view."),
-    "appearance": ("Appearance", "Procedural textures on surfaces: how often a surface wears one, how many variants "
-                   "there are and their size."),
+    "appearance": ("Appearance", "Procedural textures on surfaces (how often a surface wears one, how many variants "
+                   "there are, their size) and unlabelled clutter (books, vases, rugs, pictures…) per frame."),
 }
 # A quota error's column (the QuotaInput attribute the service names) → the quota row's input.
 QUOTA_COLUMNS = {"target_accepted": "target", "min_visible_fraction": "visible", "min_box_px": "box",

@@ -164,8 +164,8 @@ def frames_to_redispatch(*, campaign: Campaign) -> QuerySet[Frame]:
 
 # --- dashboard reads (issue 5) ----------------------------------------------------------------------------------
 # Everything below aggregates in the database (values + Count/Sum, bucketed by frame index or minute). The only
-# reads that open files are the coverage histograms, which read a bounded sample of scene.json files, because the
-# sampled camera and light parameters live only there (see coverage_sample).
+# reads that open files are the coverage histograms and the appearance tallies, which read one bounded sample of
+# scene.json files, because the sampled camera, light and surface parameters live only there (see coverage_sample).
 
 import json as _json  # noqa: E402
 import math as _math  # noqa: E402
@@ -193,6 +193,8 @@ from django.utils import timezone as _timezone  # noqa: E402
 from campaigns.models import Asset, FrameEvent, Instance  # noqa: E402
 
 COVERAGE_SAMPLE_FRAMES = 500
+PLAIN_SURFACE = "plain"  # a material slot without a texture
+DISTRACTOR_HISTOGRAM_BARS = 16
 CHART_BUCKETS = 60
 FAILED_STATES = (State.QUEUED, State.RUNNING, State.FAILED, State.DEAD)
 
@@ -303,12 +305,94 @@ def _read_json(path: _Path) -> dict[str, _Any] | None:
         return None
 
 
+def texture_families(spec: _Any) -> Counter[str]:
+    """Material slots per texture family in one frame spec: the room's surfaces, every object's and distractor's parts.
+
+    A slot without a texture counts as :data:`PLAIN_SURFACE`. Malformed parts of a spec are skipped, never raised.
+    """
+    if not isinstance(spec, dict):
+        return Counter()
+    materials: list[_Any] = []
+    room = spec.get("room")
+    if isinstance(room, dict) and isinstance(room.get("materials"), dict):
+        materials += room["materials"].values()
+    for key in ("objects", "distractors"):
+        items = spec.get(key)
+        for item in items if isinstance(items, list) else ():
+            if isinstance(item, dict) and isinstance(item.get("materials"), dict):
+                materials += item["materials"].values()
+    families: Counter[str] = Counter()
+    for material in materials:
+        if not isinstance(material, dict):
+            continue
+        texture = material.get("texture")
+        family = texture.get("family") if isinstance(texture, dict) else None
+        families[str(family) if family else PLAIN_SURFACE] += 1
+    return families
+
+
+def distractor_count(spec: _Any) -> int | None:
+    """Number of distractors in one frame spec; None for a spec made before distractors existed.
+
+    A spec lists ``distractors`` only when it has some; its budget's ``appearance.distractor_count`` says that the
+    spec was made by a render core that draws them, so a spec with that field and no list has none.
+    """
+    if not isinstance(spec, dict):
+        return None
+    distractors = spec.get("distractors")
+    if isinstance(distractors, list):
+        return len(distractors)
+    budget = spec.get("budget")
+    appearance = budget.get("appearance") if isinstance(budget, dict) else None
+    return 0 if isinstance(appearance, dict) and "distractor_count" in appearance else None
+
+
+def appearance_summary(*, families: Counter[str], distractor_counts: Sequence[int], frames: int,
+                       library: Sequence[str] = ()) -> dict[str, _Any]:
+    """What the overview shows of the frames' surfaces and distractors, from tallies over ``frames`` scene files.
+
+    ``textures``: one row per family, most used first (plain surfaces last), with its share of all material slots;
+    ``not_drawn``: the families of ``library`` (the render core's texture families) that no slot wears.
+    ``distractors``: None when no frame lists distractors; else min / median / max over the frames that do and a
+    histogram of frames per distractor count (one bar per count, or per range of counts when there are more than
+    :data:`DISTRACTOR_HISTOGRAM_BARS` counts).
+    """
+    slots = sum(families.values())
+    textured = slots - families.get(PLAIN_SURFACE, 0)
+    top = max(families.values(), default=0)
+    rows = [{"family": family, "label": family.replace("_", " "), "slots": n, "plain": family == PLAIN_SURFACE,
+             "share_pct": round(100.0 * n / slots, 1) if slots else 0.0,
+             "bar_pct": round(100.0 * n / top, 1) if top else 0.0}
+            for family, n in sorted(families.items(), key=lambda item: (item[0] == PLAIN_SURFACE, -item[1], item[0]))]
+    distractors = None
+    if distractor_counts:
+        low, high = min(distractor_counts), max(distractor_counts)
+        width = max(1, _math.ceil((high - low + 1) / DISTRACTOR_HISTOGRAM_BARS))
+        per_bar = Counter((n - low) // width for n in distractor_counts)
+        tallest = max(per_bar.values())
+        bars = []
+        for bar in range((high - low) // width + 1):
+            first = low + bar * width
+            last = min(first + width - 1, high)
+            n = per_bar.get(bar, 0)
+            bars.append({"label": str(first) if first == last else f"{first}–{last}", "frames": n,
+                         "height_pct": round(100.0 * n / tallest, 1)})
+        distractors = {"frames": len(distractor_counts), "min": low, "max": high,
+                       "median": statistics.median(distractor_counts), "bars": bars}
+    return {"frames": frames, "slots": slots, "families": sum(1 for r in rows if not r["plain"]),
+            "textured_pct": round(100.0 * textured / slots, 1) if slots else 0.0, "textures": rows,
+            "not_drawn": [name.replace("_", " ") for name in sorted(set(library) - set(families))],
+            "library_size": len(library), "distractors": distractors}
+
+
 def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) -> dict[str, _Any]:
     """Sampled scene parameters of the latest ``limit`` done frames, read from their scene.json files.
 
-    No database column holds camera height, focal length, f-number, ISO, light CCT and flux, or viewing angles,
-    so this reads a bounded sample (at most ``limit`` files, about 10 kB each). Viewing angle: the camera's
-    azimuth around the object, 0° = seen from its front (local +y), and its elevation above the object's centre.
+    No database column holds camera height, focal length, f-number, ISO, light CCT and flux, viewing angles,
+    texture families or distractors, so this reads a bounded sample (at most ``limit`` files, about 10 kB each;
+    the database picks the files: the latest done frames by finish time). Viewing angle: the camera's azimuth
+    around the object, 0° = seen from its front (local +y), and its elevation above the object's centre.
+    ``appearance`` is :func:`appearance_summary` over the same files.
     """
     from django.conf import settings
 
@@ -319,10 +403,18 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
     flux: dict[str, list[float]] = {}
     azimuth: dict[str, list[float]] = {}
     elevation: dict[str, list[float]] = {}
+    families: Counter[str] = Counter()
+    distractor_counts: list[int] = []
+    specs_read = 0
     for relative in dirs:
         spec = _read_json(root / relative / "scene.json")
         if not spec:
             continue
+        specs_read += 1
+        families.update(texture_families(spec))
+        distractors = distractor_count(spec)
+        if distractors is not None:
+            distractor_counts.append(distractors)
         camera = spec.get("camera", {})
         position = camera.get("position_m") or [0, 0, 0]
         values["eye_height_m"].append(float(position[2]))
@@ -347,8 +439,20 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
               "f_number": budget["camera"]["f_number"], "iso": budget["camera"]["iso"],
               "cct_k": budget["lighting"]["cct_k"]}
     flux_ranges = {kind: budget["lighting"].get(f"{kind}_flux_lm") for kind in flux}
-    return {"frames_read": len(dirs), "limit": limit, "values": values, "ranges": ranges, "flux": flux,
-            "flux_ranges": flux_ranges, "azimuth_deg": azimuth, "elevation_deg": elevation}
+    return {"frames_read": len(dirs), "limit": limit, "frames_done": campaign.frames_done, "values": values,
+            "ranges": ranges, "flux": flux, "flux_ranges": flux_ranges, "azimuth_deg": azimuth,
+            "elevation_deg": elevation,
+            "appearance": {**appearance_summary(families=families, distractor_counts=distractor_counts,
+                                                frames=specs_read, library=_texture_library()),
+                           "distractor_range": budget.get("appearance", {}).get("distractor_count")}}
+
+
+def _texture_library() -> tuple[str, ...]:
+    try:
+        from workers.render.textures import FAMILIES
+    except ImportError:  # the web server may run without the render core
+        return ()
+    return tuple(FAMILIES)
 
 
 def _ignored_after_death() -> Exists:

@@ -54,6 +54,9 @@ TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
     "metal": ("brushed_metal",),
     "concrete": ("concrete",),
     "terracotta": ("concrete",),
+    # Distractors (workers.render.distractors): a rug wears one whole rug texture, a picture a print of a pattern.
+    "rug": ("rug",),
+    "artwork": ("wallpaper", "marble", "rug"),
 }
 
 #: Base-colour image size. 256 px over a 0.4–2.4 m tile is 1.6–9.4 mm per texel, about a pixel of a
@@ -86,27 +89,30 @@ def texture_record(family: str, variant: int, scale: float) -> dict[str, Any]:
             "tile_size_m": round(tile_size_m, 6), "resolution_px": TEXTURE_RESOLUTION_PX}
 
 
-def _materials(spec_room: dict[str, Any], objects: list[dict[str, Any]]) -> Iterator[dict[str, Any]]:
-    """Every material dict of the room and the objects, in a fixed order."""
+def _materials(spec_room: dict[str, Any], objects: list[dict[str, Any]],
+               distractors: list[dict[str, Any]] | None = None) -> Iterator[dict[str, Any]]:
+    """Every material dict of the room, the objects and the distractors, in a fixed order."""
     for slot in sorted(spec_room.get("materials", {})):
         yield spec_room["materials"][slot]
-    for obj in objects:
-        for slot in sorted(obj.get("materials", {}) or {}):
-            yield obj["materials"][slot]
+    for item in [*objects, *(distractors or [])]:
+        for slot in sorted(item.get("materials", {}) or {}):
+            yield item["materials"][slot]
 
 
 def assign_textures(room: dict[str, Any], objects: list[dict[str, Any]], appearance: dict[str, Any],
-                    rng: np.random.Generator) -> None:
-    """Give the materials of ``room`` and ``objects`` their textures, in place (see the module docstring).
+                    rng: np.random.Generator, *, distractors: list[dict[str, Any]] | None = None) -> None:
+    """Give the materials of ``room``, ``objects`` and ``distractors`` their textures, in place (see the module
+    docstring).
 
     ``appearance`` is the budget's section: ``texture_probability``, ``texture_variants``,
     ``texture_scale`` [low, high]. Every material draws the same number of random numbers whatever
-    it becomes, so one material's outcome never shifts another's.
+    it becomes, so one material's outcome never shifts another's; the distractors' materials come
+    last, so the room and the objects wear the same textures with or without them.
     """
     probability = float(appearance["texture_probability"])
     variants = int(appearance["texture_variants"])
     scale_low, scale_high = (float(v) for v in appearance["texture_scale"])
-    for material in _materials(room, objects):
+    for material in _materials(room, objects, distractors):
         draw_use, draw_family, draw_variant, draw_scale = rng.random(4)
         families = TEXTURE_FAMILIES.get(str(material.get("family", "")), ())
         if not families or draw_use >= probability:

@@ -248,6 +248,19 @@ FAMILIES: dict[str, MaterialFamily] = {
         (0.90, 0.84, 0.72), (0.93, 0.88, 0.70), (0.70, 0.62, 0.58),
     ), (1.0, 1.0)),
     "ceiling_paint": MaterialFamily("diffuse", ((0.95, 0.95, 0.94), (0.93, 0.92, 0.90)), (1.0, 1.0)),
+    # Unlabelled clutter (workers.render.distractors).
+    "rug": MaterialFamily("diffuse", (
+        (0.55, 0.18, 0.15), (0.20, 0.25, 0.42), (0.85, 0.80, 0.68), (0.45, 0.45, 0.44), (0.70, 0.45, 0.30),
+        (0.62, 0.66, 0.55),
+    ), (1.0, 1.0)),
+    "cardboard": MaterialFamily("diffuse", ((0.72, 0.56, 0.38), (0.66, 0.50, 0.34), (0.80, 0.70, 0.55)), (1.0, 1.0)),
+    "page_edges": MaterialFamily("diffuse", ((0.95, 0.94, 0.90), (0.92, 0.88, 0.78), (0.88, 0.84, 0.72)), (1.0, 1.0)),
+    "artwork": MaterialFamily("diffuse", (
+        (0.80, 0.35, 0.25), (0.25, 0.40, 0.60), (0.90, 0.80, 0.40), (0.30, 0.50, 0.35), (0.15, 0.15, 0.20),
+        (0.85, 0.85, 0.82),
+    ), (1.0, 1.0)),
+    # Silvered glass: a near-white conductor with almost no roughness.
+    "mirror": MaterialFamily("metal", ((0.92, 0.92, 0.92), (0.88, 0.89, 0.90)), (0.0, 0.04)),
 }
 
 # Linear albedo above ~0.95 does not occur in paints or fabrics and makes
@@ -399,6 +412,13 @@ def _tapered_box(cx: float, cy: float, z0: float, z1: float, half_bottom: float,
     return _hull(np.array(points))
 
 
+# Public names of the geometry helpers, for generators outside this module (workers.render.distractors).
+box_mesh = _box
+lathe_mesh = _lathe
+cylinder_mesh = _cylinder_z
+frustum_mesh = _frustum_z
+
+
 def _rounded_rect_xy(half_w: float, half_d: float, radius: float, arc_segments: int = 3) -> list[tuple[float, float]]:
     radius = max(0.0, min(radius, half_w, half_d))
     points = []
@@ -442,6 +462,9 @@ def _cushion(x0: float, x1: float, y0: float, y1: float, z0: float, z1: float,
     return _loft(rings)
 
 
+cushion_mesh = _cushion
+
+
 def _ellipsoid(center: tuple[float, float, float], radii: tuple[float, float, float]) -> trimesh.Trimesh:
     return _mesh(_ICOSPHERE_VERTICES * np.asarray(radii) + np.asarray(center), _ICOSPHERE_FACES)
 
@@ -450,6 +473,11 @@ def _disc_y(cx: float, cz: float, y0: float, y1: float, radius: float,
             sections: int = SECTIONS_FINE) -> trimesh.Trimesh:
     """A disc (short cylinder) whose axis is the local y axis: clock faces."""
     return _tube((cx, y0, cz), (cx, y1, cz), radius, sections)
+
+
+def concatenate_meshes(group: list[trimesh.Trimesh]) -> trimesh.Trimesh:
+    """One mesh from several (no merging of vertices)."""
+    return _concatenate(group)
 
 
 def _rotate_about_y(mesh: trimesh.Trimesh, angle_deg: float, center: tuple[float, float, float]) -> trimesh.Trimesh:
@@ -612,6 +640,30 @@ def _sample_upholstered(class_name: str, variant: str, rng: np.random.Generator)
     return _Sampled(p, (p["width_m"], p["depth_m"]), p["overall_height_m"], slots)
 
 
+def _back_cushion(p: dict[str, float]) -> tuple[float, float]:
+    """(thickness, top z) of the back cushions of an upholstered seat; thickness 0 when the back is too low for any."""
+    top = min(p["overall_height_m"] - 0.02, p["seat_height_m"] + 0.42)
+    if top - p["seat_height_m"] <= 0.12:
+        return 0.0, top
+    return min(0.14, (p["depth_m"] - p["back_thickness_m"]) * 0.3), top
+
+
+def seat_area(asset_spec: dict[str, Any]) -> dict[str, Any] | None:
+    """The free seat of a procedural sofa or armchair, in its local frame: ``{"center_m": [x, y], "size_m":
+    [w, d], "height_m", "back_top_m"}`` — between the arms, from the front of the back cushions to the front
+    edge, on top of the seat cushions; ``back_top_m`` is the height of the back (cushions or frame) above the
+    floor. None for other classes and for uploaded meshes (their seat is unknown)."""
+    if asset_spec.get("class_name") not in ("sofa", "armchair") or asset_spec.get("variant") == "user":
+        return None
+    p = asset_spec["params"]
+    hw, hd, aw = p["width_m"] / 2, p["depth_m"] / 2, p.get("arm_width_m", 0.0)
+    cushion_m, cushion_top_m = _back_cushion(p)
+    back = -hd + p["back_thickness_m"] + cushion_m
+    area = _support(0.0, (back + hd) / 2, 2 * (hw - aw), hd - back, p["seat_height_m"])
+    area["back_top_m"] = round(cushion_top_m if cushion_m > 0 else p["overall_height_m"], 6)
+    return area
+
+
 def _build_upholstered(class_name: str, variant: str, p: dict[str, float]) -> PartList:
     w, d, sh, h = p["width_m"], p["depth_m"], p["seat_height_m"], p["overall_height_m"]
     lh, ct, bt = p["leg_height_m"], p["cushion_thickness_m"], p["back_thickness_m"]
@@ -653,12 +705,11 @@ def _build_upholstered(class_name: str, variant: str, p: dict[str, float]) -> Pa
     inner0, inner1 = -hw + aw, hw - aw
     count = int(p.get("cushion_count", 1.0))
     step = (inner1 - inner0) / count
-    back_cushion_t = min(0.14, (d - bt) * 0.3)
+    back_cushion_t, top = _back_cushion(p)
     for k in range(count):
         x0, x1 = inner0 + k * step, inner0 + (k + 1) * step
         parts.append(("cushions", _cushion(x0, x1, -hd + bt, hd, deck_top, sh, corner_m=0.05, bevel_m=0.025)))
-        top = min(h - 0.02, sh + 0.42)
-        if top - sh > 0.12:
+        if back_cushion_t > 0:
             parts.append(("cushions", _cushion(x0, x1, -hd + bt, -hd + bt + back_cushion_t, sh, top,
                                                corner_m=0.05, bevel_m=0.03)))
     return parts
@@ -908,6 +959,11 @@ def _sample_lamp(variant: str, rng: np.random.Generator) -> _Sampled:
     # Where the lights module may put a bulb: inside the shade, which is an open tube.
     extra = {"light_anchor_m": [0.0, 0.0, round(anchor_z, 6)]}
     return _Sampled(p, (width, width), p["height_m"], slots, [], extra)
+
+
+def shade_tube_mesh(z0: float, z1: float, r0: float, r1: float, wall: float = 0.004) -> trimesh.Trimesh:
+    """An open-ended lamp shade about the z axis, radius r0 at z0 to r1 at z1, with a ``wall`` thick rim (m)."""
+    return _shade_tube(z0, z1, r0, r1, wall)
 
 
 def _shade_tube(z0: float, z1: float, r0: float, r1: float, wall: float = 0.004) -> trimesh.Trimesh:

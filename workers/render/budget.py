@@ -135,6 +135,11 @@ FIELDS: tuple[Field, ...] = (
     Field("appearance", "texture_scale", "range", "×", 0.25, 4.0,
           "Physical size of a texture relative to its variant's (board width, tile size, weave), drawn "
           "log-uniformly per surface."),
+    Field("appearance", "distractor_count", "int_range", "", 0, 40,
+          "Unlabelled clutter per frame: books, vases, bowls, boxes, cushions, picture frames, mirrors, rugs and "
+          "table lamps on floors, tables, seats and walls. It hides parts of labelled objects like any other "
+          "thing and never appears in the labels; an item that does not fit is left out. 0 turns it off.",
+          "Tobin et al. 2017; Tremblay et al. 2018 (distractor objects in domain randomization)"),
     # variation
     Field("variation", "layouts", "int", "", 1, 10_000_000, "Distinct room layouts."),
     Field("variation", "lighting_per_layout", "int", "", 1, 10_000, "Lighting variants per layout."),
@@ -181,7 +186,8 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "sensor_noise": True,
     },
     "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0, "min_contrast": 2.0},
-    "appearance": {"texture_probability": 0.85, "texture_variants": 32, "texture_scale": [0.8, 1.25]},
+    "appearance": {"texture_probability": 0.85, "texture_variants": 32, "texture_scale": [0.8, 1.25],
+                   "distractor_count": [3, 10]},
     "variation": {"layouts": 1000, "lighting_per_layout": 2, "views_per_lighting": 2},
 }
 

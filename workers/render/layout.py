@@ -16,6 +16,10 @@ height intervals overlap (so a clock may hang above a low sofa). Placement
 never drops an object: a composition that cannot be placed raises
 :class:`LayoutError` with the class, its count and the reason.
 
+:class:`ClutterPlacer` applies the same rules to extra, unlabelled items placed
+afterwards (:mod:`workers.render.distractors`): the objects stay where they
+are, and an item that does not fit is skipped instead of raising.
+
 World frame and yaw follow ``workers/render/README.md``: the room spans
 x ∈ [0, width_m], y ∈ [0, depth_m]; yaw is counter-clockwise about +z and an
 asset's front is its local +y.
@@ -25,6 +29,7 @@ from __future__ import annotations
 
 import math
 from collections import Counter
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -236,6 +241,10 @@ def _overlap(a: _Placed, b: _Placed) -> bool:
     return True
 
 
+# A last check on a collision-free candidate (extra items use it: a box must not half-stand on a rug).
+_Accept = Callable[[_Placed], bool]
+
+
 class _Failure(Exception):
     def __init__(self, message: str) -> None:
         super().__init__(message)
@@ -295,7 +304,7 @@ class _Placer:
         candidate.prepare(self.grow)
         return not any(_overlap(candidate, other) for other in self.placed if other.index != ignore)
 
-    def try_floor(self, index: int, spec: dict[str, Any], tries: int) -> _Placed | None:
+    def try_floor(self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None) -> _Placed | None:
         hw, hd = spec["footprint_m"][0] / 2, spec["footprint_m"][1] / 2
         yaw = 0.0
         x_range = y_range = (0.0, -1.0)
@@ -313,11 +322,12 @@ class _Placer:
             x = round(float(self.rng.uniform(*x_range)), 6)
             y = round(float(self.rng.uniform(*y_range)), 6)
             candidate = _Placed(index, spec, x, y, 0.0, yaw, "floor", None)
-            if self.free(candidate):
+            if self.free(candidate) and (accept is None or accept(candidate)):
                 return candidate
         return None
 
-    def try_against_wall(self, index: int, spec: dict[str, Any], tries: int) -> _Placed | None:
+    def try_against_wall(self, index: int, spec: dict[str, Any], tries: int,
+                         accept: _Accept | None = None) -> _Placed | None:
         w, d, h = spec["footprint_m"][0], spec["footprint_m"][1], spec["height_m"]
         walls = [wall for wall in WALLS if wall_length_m(self.room, wall) >= w + 2 * WALL_GAP_M
                  and (wall_length_m(self.room, "south" if wall in ("west", "east") else "west") >= d + 2 * WALL_GAP_M)]
@@ -332,11 +342,11 @@ class _Placer:
             x, y = _wall_point(self.room, wall, along, d / 2 + WALL_GAP_M)
             candidate = _Placed(index, spec, round(x, 6), round(y, 6), 0.0, WALL_FACING_YAW_DEG[wall],
                                 "against_wall", None, wall=wall)
-            if self.free(candidate):
+            if self.free(candidate) and (accept is None or accept(candidate)):
                 return candidate
         return None
 
-    def try_surface(self, index: int, spec: dict[str, Any]) -> _Placed | None:
+    def try_surface(self, index: int, spec: dict[str, Any], accept: _Accept | None = None) -> _Placed | None:
         w, d, h = spec["footprint_m"][0], spec["footprint_m"][1], spec["height_m"]
         supports = [(p, s) for p in self.placed if p.anchor != "surface" and p.spec["placement"] != "wall"
                     for s in p.spec.get("support_surfaces", [])
@@ -360,7 +370,8 @@ class _Placer:
             z = round(host.z + surface["height_m"], 6)
             candidate = _Placed(index, spec, x, y, z, yaw, "surface", host.index)
             # The host is excluded: the item stands on it (a tray top is slightly recessed).
-            if self.free(candidate, ignore=host.index) and self._inside_support(candidate, host, surface):
+            if self.free(candidate, ignore=host.index) and self._inside_support(candidate, host, surface) and (
+                    accept is None or accept(candidate)):
                 return candidate
         return None
 
@@ -374,7 +385,7 @@ class _Placer:
         return bool(np.all(np.abs(lx) <= surface["size_m"][0] / 2 + 1e-6)
                     and np.all(np.abs(ly) <= surface["size_m"][1] / 2 + 1e-6))
 
-    def try_wall(self, index: int, spec: dict[str, Any], tries: int) -> _Placed | None:
+    def try_wall(self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None) -> _Placed | None:
         w, h = spec["footprint_m"][0], spec["height_m"]
         mount = float(spec.get("mount_height_m", 1.5 - h / 2))
         # A low ceiling lowers the item rather than pushing it through the ceiling.
@@ -390,7 +401,7 @@ class _Placer:
             x, y = _wall_point(self.room, wall, along, 0.0)
             candidate = _Placed(index, spec, round(x, 6), round(y, 6), mount, WALL_FACING_YAW_DEG[wall], "wall",
                                 None, wall=wall)
-            if self.free(candidate):
+            if self.free(candidate) and (accept is None or accept(candidate)):
                 return candidate
         return None
 
@@ -516,3 +527,101 @@ def place_objects(room: dict[str, Any], asset_specs: list[dict[str, Any]], rng: 
         return objects
     assert failure is not None
     raise LayoutError(failure.message)
+
+
+# ---------------------------------------------------------------------------
+# Extra items among placed objects (unlabelled clutter)
+# ---------------------------------------------------------------------------
+
+CLUTTER_FLOOR_TRIES = 80
+CLUTTER_WALL_TRIES = 40
+
+
+class ClutterPlacer:
+    """Places extra items among objects already placed by :func:`place_objects`, which never move.
+
+    Same rules as :func:`place_objects` (clearance, wall gap, support surfaces inside the host's top,
+    wall items clear of windows), but an item that does not fit is skipped: each method returns None
+    instead of raising. Every item placed is remembered, so later items avoid it.
+
+    An item is a dict with ``footprint_m`` [w, d] and ``height_m`` (wall items also
+    ``mount_height_m``), in the asset frame of ``workers/render/README.md``. Each method returns
+    ``{"position_m", "yaw_deg", "anchor", "support_instance_id"}`` (wall items also ``"wall"``).
+    ``accept`` (optional) is a last check on a collision-free candidate's footprint polygon and
+    base height (m); it returns the base height to use, or None to refuse the spot.
+    """
+
+    def __init__(self, room: dict[str, Any], objects: list[dict[str, Any]], rng: np.random.Generator, *,
+                 clearance_m: float = DEFAULT_CLEARANCE_M) -> None:
+        self._placer = _Placer(room, rng, clearance_m, DEFAULT_MAX_TRIES)
+        self._instance_ids: list[int | None] = []
+        by_instance = {int(obj["instance_id"]): i for i, obj in enumerate(objects)}
+        for i, obj in enumerate(objects):
+            x, y, z = (float(v) for v in obj["position_m"])
+            support = obj.get("support_instance_id")
+            placed = _Placed(i, obj, x, y, z, float(obj["yaw_deg"]), str(obj.get("anchor", "floor")),
+                             None if support is None else by_instance.get(int(support)), wall=obj.get("wall"))
+            self._placer.placed.append(placed.prepare(self._placer.grow))
+            self._instance_ids.append(int(obj["instance_id"]))
+
+    def _item(self, item: dict[str, Any], placement: str) -> dict[str, Any]:
+        return {"footprint_m": [float(v) for v in item["footprint_m"]], "height_m": float(item["height_m"]),
+                "placement": placement, "support_surfaces": [],
+                **({"mount_height_m": float(item["mount_height_m"])} if "mount_height_m" in item else {})}
+
+    def _wrap(self, accept: Callable[[Polygon, float], float | None] | None) -> tuple[_Accept | None, dict]:
+        chosen: dict[str, float] = {}
+        if accept is None:
+            return None, chosen
+
+        def check(candidate: _Placed) -> bool:
+            z = accept(Polygon(_corners(candidate.spec, candidate.x, candidate.y, candidate.yaw_deg)), candidate.z)
+            if z is None:
+                return False
+            chosen["z"] = float(z)
+            return True
+        return check, chosen
+
+    def _commit(self, placed: _Placed | None, chosen: dict[str, float]) -> dict[str, Any] | None:
+        if placed is None:
+            return None
+        if "z" in chosen:
+            placed.z = round(chosen["z"], 6)
+        placed.prepare(self._placer.grow)
+        self._placer.placed.append(placed)
+        self._instance_ids.append(None)
+        host = None if placed.support_index is None else self._instance_ids[placed.support_index]
+        out: dict[str, Any] = {"position_m": [round(placed.x, 6), round(placed.y, 6), round(placed.z, 6)],
+                               "yaw_deg": round(placed.yaw_deg, 6), "anchor": placed.anchor,
+                               "support_instance_id": host}
+        if placed.wall is not None:
+            out["wall"] = placed.wall
+        return out
+
+    def floor(self, item: dict[str, Any], *, against_wall_probability: float = 0.0,
+              tries: int = CLUTTER_FLOOR_TRIES,
+              accept: Callable[[Polygon, float], float | None] | None = None) -> dict[str, Any] | None:
+        """Stand the item on the floor: back to a wall with ``against_wall_probability``, else anywhere free."""
+        spec = self._item(item, "floor")
+        index = len(self._placer.placed)
+        check, chosen = self._wrap(accept)
+        placed = None
+        if self._placer.rng.random() < against_wall_probability:
+            placed = self._placer.try_against_wall(index, spec, tries // 2, check)
+        if placed is None:
+            placed = self._placer.try_floor(index, spec, tries, check)
+        return self._commit(placed, chosen)
+
+    def surface(self, item: dict[str, Any], *,
+                accept: Callable[[Polygon, float], float | None] | None = None) -> dict[str, Any] | None:
+        """Stand the item on a support surface (table top, shelf top, tray) of an object, inside its rectangle."""
+        spec = self._item(item, "surface")
+        check, chosen = self._wrap(accept)
+        return self._commit(self._placer.try_surface(len(self._placer.placed), spec, check), chosen)
+
+    def wall(self, item: dict[str, Any], *, tries: int = CLUTTER_WALL_TRIES,
+             accept: Callable[[Polygon, float], float | None] | None = None) -> dict[str, Any] | None:
+        """Hang the item on a wall at its ``mount_height_m``, clear of windows and of whatever stands there."""
+        spec = self._item(item, "wall")
+        check, chosen = self._wrap(accept)
+        return self._commit(self._placer.try_wall(len(self._placer.placed), spec, tries, check), chosen)

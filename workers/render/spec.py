@@ -30,6 +30,9 @@ AXES: tuple[str, ...] = ("layout", "lighting", "camera", "noise")
 # Spawn key of the appearance stream (textures), derived from the layout sub-seed: frames that share a
 # layout share its surfaces, without a draw taken from the layout stream itself.
 _APPEARANCE_SPAWN_KEY = (len(AXES), 1)
+# Spawn key of the distractor stream (unlabelled clutter), also derived from the layout sub-seed: the labelled
+# objects, lights and camera of a seed stay what they were, and frames that share a layout share their clutter.
+_DISTRACTOR_SPAWN_KEY = (len(AXES), 2)
 # A sub-seed is a 32-bit unsigned integer: exact in JSON and in JavaScript.
 _SEED_MAX = 2**32
 
@@ -137,7 +140,8 @@ def make_spec(
     -------
     dict
         JSON-able spec: ``format_version``, ``seed``, ``sub_seeds``, ``budget``, ``composition``,
-        ``render``, ``room``, ``objects``, ``lights``, ``camera``, ``thresholds``.
+        ``render``, ``room``, ``objects``, ``lights``, ``camera``, ``thresholds``; ``distractors`` (unlabelled
+        clutter, :mod:`workers.render.distractors`) only when there are any.
 
     Raises
     ------
@@ -146,6 +150,7 @@ def make_spec(
     """
     from .appearance import assign_textures
     from .camera import sample_camera
+    from .distractors import clear_of_camera_and_lights, sample_distractors
     from .layout import place_objects, sample_room
     from .lights import sample_lights
 
@@ -162,14 +167,19 @@ def make_spec(
     objects = place_objects(room, asset_specs, layout_rng,
                             max_objects_per_m2=normalized["room"]["max_objects_per_m2"])
     objects = round_floats(objects)
+    # Distractors (unlabelled clutter) go in after the labelled objects, on a stream of their own keyed by the
+    # layout; with distractor_count [0, 0] nothing is drawn and the spec is what it was without them.
+    distractor_rng = np.random.default_rng(np.random.SeedSequence(sub_seeds["layout"], spawn_key=_DISTRACTOR_SPAWN_KEY))
+    distractors = round_floats(sample_distractors(room, objects, normalized["appearance"], distractor_rng))
     # Textures draw on a stream of their own, keyed by the layout: the room, objects, lights and camera of a
     # seed stay as they were, and frames that share a layout share their surfaces.
     appearance_rng = np.random.default_rng(np.random.SeedSequence(sub_seeds["layout"], spawn_key=_APPEARANCE_SPAWN_KEY))
-    assign_textures(room, objects, normalized["appearance"], appearance_rng)
-    room, objects = round_floats(room), round_floats(objects)
+    assign_textures(room, objects, normalized["appearance"], appearance_rng, distractors=distractors)
+    room, objects, distractors = round_floats(room), round_floats(objects), round_floats(distractors)
 
     lights = round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
     camera = round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera")))
+    distractors = clear_of_camera_and_lights(distractors, camera, lights)
 
     spec = {
         "format_version": SPEC_FORMAT_VERSION,
@@ -184,6 +194,9 @@ def make_spec(
         "camera": camera,
         "thresholds": dict(normalized["thresholds"]),
     }
+    if distractors:
+        # Only when there are any, so specs without clutter keep their bytes.
+        spec["distractors"] = distractors
     if clean_user_assets:
         # Only when there are uploads, so specs without them keep their bytes.
         spec["user_assets"] = {name: [dict(e) for e in entries] for name, entries in clean_user_assets.items()}
