@@ -25,6 +25,11 @@ def page(monkeypatch):
     if not os.path.exists("/usr/bin/chromium"):
         pytest.skip("Debian chromium is not installed")
     with playwright.sync_playwright() as p:
+        # Inside Playwright's event loop Django hands out context-local connections that can outlive a test;
+        # start from fresh ones (see tests/security/test_dashboard_js.py).
+        from django.db import connections
+
+        connections.close_all()
         browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
         context = browser.new_context(viewport={"width": 1366, "height": 900})
         context.set_default_timeout(30_000)

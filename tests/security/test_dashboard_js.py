@@ -52,6 +52,17 @@ def odd_world(transactional_db, django_user_model) -> dict[str, Any]:
     return {"team": team, "planner": planner, "campaign": campaign, "class": odd}
 
 
+def _drop_stale_connections() -> None:
+    """Close this context's database connections so the next query opens a fresh one.
+
+    Inside Playwright's event loop Django hands out context-local connections, which can outlive a test: one
+    opened by an earlier browser test and cut by the database-outage test (PostgreSQL) would fail here.
+    """
+    from django.db import connections
+
+    connections.close_all()
+
+
 @pytest.fixture
 def browser_page(monkeypatch, live_server, odd_world) -> Iterator[tuple[Any, list[str]]]:
     """A signed-in page and the list of problems seen on it (page errors, dialogs, console errors)."""
@@ -69,6 +80,7 @@ def browser_page(monkeypatch, live_server, odd_world) -> Iterator[tuple[Any, lis
     session = client.cookies[settings.SESSION_COOKIE_NAME].value
     problems: list[str] = []
     with playwright.sync_playwright() as p:
+        _drop_stale_connections()
         browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
         context = browser.new_context(viewport={"width": 1366, "height": 900})
         context.set_default_timeout(30_000)
