@@ -1231,16 +1231,7 @@ def export_dataset(
         raise ExportError(f"--out {out}: cannot create {parent}: {exc.strerror or exc}") from exc
     if not os.access(parent, os.W_OK | os.X_OK):
         raise ExportError(f"--out {out}: {parent} is not writable")
-    lock_path = parent / f".{out.name}.evenframe-lock"
-    try:
-        lock = open(lock_path, "w")  # noqa: SIM115
-    except OSError as exc:
-        raise ExportError(f"--out {out}: cannot write in {parent}: {exc.strerror or exc}") from exc
-    try:
-        try:
-            fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except OSError as exc:
-            raise ExportError(f"--out {out}: another export into it is running") from exc
+    with _export_lock(out):
         _recover(out)
         previous_root = _check_out_dir(out, campaign)
         staging = parent / f".{out.name}{_STAGING_MARK}{os.getpid()}"
@@ -1268,10 +1259,52 @@ def export_dataset(
             if staging.exists():
                 shutil.rmtree(staging, ignore_errors=True)
         return exporter.summary
+
+
+# How often a starting export tries again after locking a lock file that a finishing export had just removed; each
+# retry needs another export to finish in between, so running out of tries means the folder is very busy.
+_LOCK_ATTEMPTS = 50
+
+
+@contextlib.contextmanager
+def _export_lock(out: Path) -> Iterator[None]:
+    """Hold the lock that lets one export at a time write into ``out``; :class:`ExportError` if one already does.
+
+    The lock is an ``flock`` on the hidden file ``.NAME.evenframe-lock`` beside ``out``, removed again on release
+    so that no lock file is left behind. Removing a lock file opens a race: a starter that opened the file just
+    before the holder removed it would lock the removed file while a third export creates and locks a new one,
+    and both would write into ``out``. Hence the holder removes the file *before* unlocking it, only the holder
+    ever removes it, and a starter that got its lock checks that the path still names the file it locked
+    (same device and inode), opening the new file again if not.
+    """
+    parent = out.parent
+    lock_path = parent / f".{out.name}.evenframe-lock"
+    for _ in range(_LOCK_ATTEMPTS):
+        try:
+            lock = open(lock_path, "a")  # noqa: SIM115 - closed below or on release
+        except OSError as exc:
+            raise ExportError(f"--out {out}: cannot write in {parent}: {exc.strerror or exc}") from exc
+        try:
+            fcntl.flock(lock, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError as exc:
+            lock.close()  # not ours: never remove a file another export holds
+            raise ExportError(f"--out {out}: another export into it is running") from exc
+        try:
+            named = os.stat(lock_path)
+        except FileNotFoundError:
+            named = None
+        held = os.fstat(lock.fileno())
+        if named is not None and (named.st_dev, named.st_ino) == (held.st_dev, held.st_ino):
+            break
+        lock.close()  # we locked a file that its holder had already removed: try the one the path names now
+    else:
+        raise ExportError(f"--out {out}: another export into it is running")
+    try:
+        yield
     finally:
-        lock.close()
         with contextlib.suppress(OSError):
             lock_path.unlink()
+        lock.close()
 
 
 def _recover(out: Path) -> None:

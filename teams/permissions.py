@@ -11,6 +11,7 @@ from typing import Any
 
 from django.contrib.auth import get_user_model
 from django.core.exceptions import PermissionDenied
+from django.db import IntegrityError, transaction
 from django.db.models import Model, Q, QuerySet
 from django.http import Http404
 
@@ -79,13 +80,44 @@ def get_for_user_or_404(queryset: QuerySet, *, user: Any, role: str = VIEWER, te
 
 
 def personal_team(*, user: Any) -> Team:
-    """The team a user's work goes to when they name none: their only planner team, else a personal one."""
+    """The team a user's work goes to when they name none: their only planner team, else a personal one.
+
+    The personal team is the one whose ``personal_owner`` is the user, made on first use and named
+    "<username> (personal)" (with a number after it if another team already has that name). It is never
+    looked up by name: a team of that name may belong to other people, and taking it would make this user
+    its admin.
+    """
     planner_teams = list(teams_for(user=user, role=PLANNER)[:2])
     if len(planner_teams) == 1:
         return planner_teams[0]
-    team, _ = Team.objects.get_or_create(name=f"{user.get_username()} (personal)")
+    team = Team.objects.filter(personal_owner=user).first() or _create_personal_team(user)
     Membership.objects.get_or_create(team=team, user=user, defaults={"role": ADMIN})
     return team
+
+
+# Names tried for a new personal team before giving up; each one taken means another team already has it.
+_PERSONAL_NAME_ATTEMPTS = 20
+
+
+def _create_personal_team(user: Any) -> Team:
+    name_field = Team._meta.get_field("name")
+    suffix = " (personal)"
+    # A user name may be longer than a team name can be: shorten the user name, keep the suffix readable.
+    base = f"{user.get_username()[: name_field.max_length - len(suffix) - 4]}{suffix}"
+    for attempt in range(1, _PERSONAL_NAME_ATTEMPTS + 1):
+        name = base if attempt == 1 else f"{base} {attempt}"
+        if Team.objects.filter(name=name).exists():
+            continue
+        try:
+            with transaction.atomic():
+                return Team.objects.create(name=name, personal_owner=user)
+        except IntegrityError:
+            # Either a concurrent request made this user's personal team first (use it), or another team took
+            # the name in between (try the next one).
+            if (team := Team.objects.filter(personal_owner=user).first()) is not None:
+                return team
+    raise RuntimeError(f"no free name for a personal team of {user.get_username()!r} after "
+                       f"{_PERSONAL_NAME_ATTEMPTS} tries")
 
 
 @functools.cache

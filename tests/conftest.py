@@ -1,4 +1,4 @@
-"""Shared fixtures: real render worker processes against the test database and broker."""
+"""Shared fixtures: real render worker processes against the test database and broker; headless Chromium."""
 
 from __future__ import annotations
 
@@ -8,11 +8,16 @@ import subprocess
 import sys
 import time
 import uuid
+from collections.abc import Callable, Iterator
 from pathlib import Path
+from typing import Any
 
 import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
+CHROMIUM_PATH = "/usr/bin/chromium"  # Debian's package: Playwright's own browser downloads are not used
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+                 "--disable-component-update", "--disable-sync", "--no-first-run"]
 
 
 def _database_url_for_tests() -> str:
@@ -140,3 +145,46 @@ def _purge_stale_broker_messages(django_db_blocker):
     except Exception:  # noqa: BLE001 - an unreachable broker fails the tests that need it, with their own message
         pass
     yield
+
+
+@pytest.fixture
+def chromium_context(monkeypatch) -> Iterator[Any]:
+    """A fresh Playwright browser context (1366×900, 30 s default timeout) in headless Debian Chromium.
+
+    Skips when Playwright or ``/usr/bin/chromium`` is missing. Open pages with ``chromium_context.new_page()``.
+    """
+    # Playwright's sync API runs an event loop in this thread; Django's async-safety check would refuse the ORM
+    # calls a test makes between browser steps. Set for these tests only, never for the whole session.
+    monkeypatch.setenv("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
+    playwright = pytest.importorskip("playwright.sync_api")
+    if not os.path.exists(CHROMIUM_PATH):
+        pytest.skip("Debian chromium is not installed")
+    with playwright.sync_playwright() as p:
+        # Inside Playwright's event loop Django hands out context-local connections, which can outlive a test:
+        # one opened by an earlier browser test and cut by the database-outage test (PostgreSQL) would fail the
+        # next query. Close them so that the next query opens a fresh one.
+        from django.db import connections
+
+        connections.close_all()
+        browser = p.chromium.launch(executable_path=CHROMIUM_PATH, args=CHROMIUM_ARGS)
+        context = browser.new_context(viewport={"width": 1366, "height": 900})
+        context.set_default_timeout(30_000)
+        yield context
+        browser.close()
+
+
+def _wait_until(predicate: Callable[[], Any], timeout_s: float, what: str, *, poll_s: float = 0.3) -> Any:
+    deadline = time.monotonic() + timeout_s
+    while time.monotonic() < deadline:
+        value = predicate()
+        if value:
+            return value
+        time.sleep(poll_s)
+    raise AssertionError(f"timed out after {timeout_s} s waiting for {what}")
+
+
+@pytest.fixture
+def wait_until() -> Callable[..., Any]:
+    """``wait_until(predicate, timeout_s, what)``: poll until ``predicate()`` is truthy and return it; fail the
+    test naming ``what`` after ``timeout_s`` seconds."""
+    return _wait_until

@@ -3,38 +3,17 @@ render worker process rendering tiny frames (64×48, 4 spp)."""
 
 from __future__ import annotations
 
-import os
-import time
-
 import pytest
 
 from tests.dashboard.conftest import CUBE_OBJ_TEXT, PASSWORD, fail_frame
 
 pytestmark = [pytest.mark.browser, pytest.mark.worker]
 
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                 "--disable-component-update", "--disable-sync", "--no-first-run"]
-
 
 @pytest.fixture
-def page(monkeypatch):
-    # Playwright's sync API runs an event loop in this thread; Django's async-safety check would refuse the ORM
-    # calls the test makes between browser steps. Set for these tests only, never for the whole session.
-    monkeypatch.setenv("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
-    playwright = pytest.importorskip("playwright.sync_api")
-    if not os.path.exists("/usr/bin/chromium"):
-        pytest.skip("Debian chromium is not installed")
-    with playwright.sync_playwright() as p:
-        # Inside Playwright's event loop Django hands out context-local connections that can outlive a test;
-        # start from fresh ones (see tests/security/test_dashboard_js.py).
-        from django.db import connections
-
-        connections.close_all()
-        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
-        context = browser.new_context(viewport={"width": 1366, "height": 900})
-        context.set_default_timeout(30_000)
-        yield context.new_page()
-        browser.close()
+def page(chromium_context):
+    """A new page in a fresh headless Chromium (the shared ``chromium_context`` fixture, tests/conftest.py)."""
+    return chromium_context.new_page()
 
 
 def _login(page, base: str, username: str) -> None:
@@ -45,18 +24,8 @@ def _login(page, base: str, username: str) -> None:
     page.wait_for_url(base + "/campaigns/")
 
 
-def _wait(predicate, timeout_s: float, what: str):
-    deadline = time.monotonic() + timeout_s
-    while time.monotonic() < deadline:
-        value = predicate()
-        if value:
-            return value
-        time.sleep(0.3)
-    raise AssertionError(f"timed out after {timeout_s} s waiting for {what}")
-
-
 def test_plan_start_watch_retry_and_browse(page, live_server, people, object_classes, media_root,
-                                          render_worker_factory):
+                                          render_worker_factory, wait_until):
     from campaigns.models import Campaign, Frame
 
     base = live_server.url
@@ -110,7 +79,7 @@ def test_plan_start_watch_retry_and_browse(page, live_server, people, object_cla
     page.click("details >> summary:has-text('Traceback')")
     page.click("#frame-900 button:has-text('Retry')")
     page.wait_for_selector("text=sent back to the queue")
-    _wait(lambda: Frame.objects.get(pk=dead.pk).state == Frame.State.DONE, 90, "the retried frame to render")
+    wait_until(lambda: Frame.objects.get(pk=dead.pk).state == Frame.State.DONE, 90, "the retried frame to render")
 
     # Open a frame and see its boxes.
     page.click("nav.tabs >> text=Frames")

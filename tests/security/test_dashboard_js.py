@@ -9,9 +9,6 @@ and the planner's estimate follows a target typed for that class.
 
 from __future__ import annotations
 
-import os
-import time
-from collections.abc import Callable, Iterator
 from decimal import Decimal
 from typing import Any
 from urllib.parse import urlencode
@@ -21,8 +18,6 @@ from django.urls import reverse
 
 pytestmark = pytest.mark.browser
 
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                 "--disable-component-update", "--disable-sync", "--no-first-run"]
 # At most 64 characters (ObjectClass.name's column).
 CLASS_NAME = "c\"]'\\</script><b>b</b>&amp;<img src=x onerror=__pwned=1>"
 CAMPAIGN_NAME = ("Camp \"double\" 'single' \\back </script><script>window.__pwned=2</script> <b>bold</b> & "
@@ -52,56 +47,26 @@ def odd_world(transactional_db, django_user_model) -> dict[str, Any]:
     return {"team": team, "planner": planner, "campaign": campaign, "class": odd}
 
 
-def _drop_stale_connections() -> None:
-    """Close this context's database connections so the next query opens a fresh one.
-
-    Inside Playwright's event loop Django hands out context-local connections, which can outlive a test: one
-    opened by an earlier browser test and cut by the database-outage test (PostgreSQL) would fail here.
-    """
-    from django.db import connections
-
-    connections.close_all()
-
-
 @pytest.fixture
-def browser_page(monkeypatch, live_server, odd_world) -> Iterator[tuple[Any, list[str]]]:
-    """A signed-in page and the list of problems seen on it (page errors, dialogs, console errors)."""
+def browser_page(live_server, odd_world, chromium_context) -> tuple[Any, list[str]]:
+    """A signed-in page and the list of problems seen on it (page errors, dialogs, console errors).
+
+    ``chromium_context`` comes last so that the odd names are written before Playwright's event loop starts.
+    """
     from django.conf import settings
     from django.test import Client
 
-    # Playwright's sync API runs an event loop in this thread; the test's ORM calls between browser steps would
-    # be refused by Django's async-safety check. Set for these tests only.
-    monkeypatch.setenv("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
-    playwright = pytest.importorskip("playwright.sync_api")
-    if not os.path.exists("/usr/bin/chromium"):
-        pytest.skip("Debian chromium is not installed")
     client = Client()
     client.force_login(odd_world["planner"])
     session = client.cookies[settings.SESSION_COOKIE_NAME].value
     problems: list[str] = []
-    with playwright.sync_playwright() as p:
-        _drop_stale_connections()
-        browser = p.chromium.launch(executable_path="/usr/bin/chromium", args=CHROMIUM_ARGS)
-        context = browser.new_context(viewport={"width": 1366, "height": 900})
-        context.set_default_timeout(30_000)
-        context.add_cookies([{"name": settings.SESSION_COOKIE_NAME, "value": session, "url": live_server.url}])
-        page = context.new_page()
-        page.on("pageerror", lambda exc: problems.append(f"page error: {exc}"))
-        page.on("dialog", lambda dialog: (problems.append(f"dialog: {dialog.message}"), dialog.dismiss()))
-        page.on("console", lambda msg: problems.append(f"console {msg.type}: {msg.text}")
-                if msg.type == "error" and "Failed to load resource" not in msg.text else None)
-        yield page, problems
-        browser.close()
-
-
-def _wait(predicate: Callable[[], Any], timeout_s: float, what: str) -> Any:
-    deadline = time.monotonic() + timeout_s
-    while time.monotonic() < deadline:
-        value = predicate()
-        if value:
-            return value
-        time.sleep(0.3)
-    raise AssertionError(f"timed out after {timeout_s} s waiting for {what}")
+    chromium_context.add_cookies([{"name": settings.SESSION_COOKIE_NAME, "value": session, "url": live_server.url}])
+    page = chromium_context.new_page()
+    page.on("pageerror", lambda exc: problems.append(f"page error: {exc}"))
+    page.on("dialog", lambda dialog: (problems.append(f"dialog: {dialog.message}"), dialog.dismiss()))
+    page.on("console", lambda msg: problems.append(f"console {msg.type}: {msg.text}")
+            if msg.type == "error" and "Failed to load resource" not in msg.text else None)
+    return page, problems
 
 
 def _no_injection(page: Any, problems: list[str]) -> None:
@@ -109,7 +74,7 @@ def _no_injection(page: Any, problems: list[str]) -> None:
     assert problems == []
 
 
-def test_campaign_page_charts_and_polls_with_odd_names(browser_page, live_server, odd_world):
+def test_campaign_page_charts_and_polls_with_odd_names(browser_page, live_server, odd_world, wait_until):
     from campaigns.models import ClassQuota
 
     page, problems = browser_page
@@ -126,11 +91,11 @@ def test_campaign_page_charts_and_polls_with_odd_names(browser_page, live_server
     row = page.locator("#quota-table tbody tr").filter(has_text="/ 5")
     assert row.get_attribute("data-class") == CLASS_NAME
     assert row.locator("td").first.text_content() == CLASS_NAME
-    _wait(lambda: row.locator('[data-q="accepted"]').text_content() == "4", 25, "the poll to update the row")
+    wait_until(lambda: row.locator('[data-q="accepted"]').text_content() == "4", 25, "the poll to update the row")
     _no_injection(page, problems)
 
 
-def test_list_page_polls_with_odd_names(browser_page, live_server, odd_world):
+def test_list_page_polls_with_odd_names(browser_page, live_server, odd_world, wait_until):
     from campaigns.models import Campaign
 
     page, problems = browser_page
@@ -140,11 +105,12 @@ def test_list_page_polls_with_odd_names(browser_page, live_server, odd_world):
     assert link.text_content() == CAMPAIGN_NAME
     Campaign.objects.filter(pk=campaign.pk).update(frames_done=7)
     cell = page.locator(f'tr[data-campaign="{campaign.pk}"] [data-field="frames_done"]')
-    _wait(lambda: cell.text_content() == "7", 20, "the list poll to update the row")
+    wait_until(lambda: cell.text_content() == "7", 20, "the list poll to update the row")
     _no_injection(page, problems)
 
 
-def test_planner_estimate_follows_a_target_for_an_oddly_named_class(browser_page, live_server, odd_world):
+def test_planner_estimate_follows_a_target_for_an_oddly_named_class(browser_page, live_server, odd_world,
+                                                                     wait_until):
     page, problems = browser_page
     for url in (reverse("campaigns:create"), reverse("campaigns:edit", args=[odd_world["campaign"].pk])):
         page.goto(live_server.url + url)
@@ -157,7 +123,7 @@ def test_planner_estimate_follows_a_target_for_an_oddly_named_class(browser_page
             input.dispatchEvent(new Event("input", {bubbles: true}));
         }""", f"q_{CLASS_NAME}_target")
         page.wait_for_selector("#estimate .estimate-body:not([hidden])")
-        _wait(lambda: (page.text_content("[data-est=frames]") or "").strip().isdigit(), 20, "the estimate")
+        wait_until(lambda: (page.text_content("[data-est=frames]") or "").strip().isdigit(), 20, "the estimate")
         assert page.locator("[data-est=verdict] .pill").count() == 1
     assert page.input_value("#id_name") == CAMPAIGN_NAME
     _no_injection(page, problems)

@@ -62,6 +62,8 @@ import cv2
 import numpy as np
 from scipy import ndimage
 
+from workers.render import srgb
+
 # ΔE*ab ≈ 1 to 2.3 is commonly quoted as a just-noticeable difference (Sharma, Digital Color Imaging Handbook, 2003,
 # cited from memory).
 NOISE_FLOOR_LSTAR = 1.0  # common practice
@@ -83,14 +85,8 @@ _WHITE_XYZ = _SRGB_TO_XYZ.sum(axis=1)
 _RGB_TO_XYZ_N = (_SRGB_TO_XYZ / _WHITE_XYZ[:, None]).astype(np.float32)
 
 
-def _srgb_decode(code: np.ndarray) -> np.ndarray:
-    """IEC 61966-2-1 sRGB decoding of values in 0..1 to linear light in 0..1."""
-    code = np.asarray(code, dtype=np.float64)
-    return np.where(code <= 0.04045, code / 12.92, ((code + 0.055) / 1.055) ** 2.4)
-
-
-# Linear light of every 8-bit code value (exact decoding once, then a table look-up per pixel).
-_LINEAR_OF_CODE = _srgb_decode(np.arange(256) / 255.0).astype(np.float32)
+# Linear light of every 8-bit code value (exact decoding once, in float64, then a table look-up per pixel).
+_LINEAR_OF_CODE = srgb.decode(np.arange(256) / 255.0).astype(np.float32)
 
 # CIE 15:2004: f(t) = t^(1/3) for t > (6/29)^3, else t / (3 (6/29)^2) + 4/29.
 _LAB_EPSILON = (6.0 / 29.0) ** 3

@@ -34,6 +34,8 @@ from typing import Any
 
 import numpy as np
 
+from workers.render import srgb as srgb_transfer
+
 
 @dataclass(frozen=True)
 class Surface:
@@ -71,15 +73,13 @@ ALBEDO_MIN, ALBEDO_MAX = 0.005, 0.95
 
 
 def srgb_to_linear(srgb: np.ndarray | Sequence[float]) -> np.ndarray:
-    """sRGB-encoded values in [0, 1] to linear; IEC 61966-2-1 piecewise transfer function."""
-    c = np.asarray(srgb, dtype=np.float32)
-    return np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4).astype(np.float32)
+    """sRGB-encoded values in [0, 1] to linear float32; IEC 61966-2-1 (``workers.render.srgb.decode``)."""
+    return srgb_transfer.decode(np.asarray(srgb, dtype=np.float32))
 
 
 def linear_to_srgb8(linear: np.ndarray) -> np.ndarray:
     """Linear RGB in [0, 1] to sRGB-encoded uint8 (IEC 61966-2-1), values clipped first."""
-    c = np.clip(linear, 0.0, 1.0).astype(np.float32)
-    encoded = np.where(c <= 0.0031308, 12.92 * c, 1.055 * np.power(c, 1.0 / 2.4) - 0.055)
+    encoded = srgb_transfer.encode(np.clip(linear, 0.0, 1.0).astype(np.float32))
     return np.round(encoded * 255.0).astype(np.uint8)
 
 
