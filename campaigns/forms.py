@@ -16,7 +16,7 @@ from typing import Any
 from django import forms
 
 from campaigns import services
-from campaigns.models import Campaign, ObjectClass
+from campaigns.models import Asset, Campaign, ObjectClass
 from workers.render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
 
 SECTION_TITLES = {
@@ -82,6 +82,14 @@ def _switch_field(label: str, initial: bool) -> forms.Field:
                               widget=forms.CheckboxInput(attrs={"class": "switch"}))
 
 
+def _choices_field(field: Field, label: str, initial: list[str]) -> forms.Field:
+    """A budget choice list (``Field.kind == "choices"``): one checkbox per choice, at least one ticked."""
+    return forms.MultipleChoiceField(label=label, required=True, initial=list(initial),
+                                     choices=[(c, c.replace("_", " ")) for c in field.choices],
+                                     widget=forms.CheckboxSelectMultiple(attrs={"class": "choices"}),
+                                     error_messages={"required": "Choose at least one."})
+
+
 def _number_field(field: Field, label: str, initial: Any) -> forms.Field:
     attrs = {"step": _step(field), "min": f"{field.lower:g}", "max": f"{field.upper:g}", "class": "num"}
     if field.kind in ("int", "int_range"):
@@ -110,6 +118,15 @@ class CampaignForm(forms.Form):
     max_attempts = forms.IntegerField(min_value=1, max_value=20, initial=3, help_text="Attempts per frame before it "
                                       "is dead.")
 
+    assets = forms.ModelMultipleChoiceField(
+        queryset=None, required=False, widget=forms.CheckboxSelectMultiple, label="Assets",
+        help_text="What the campaign's objects may be: procedural generators and your team's uploads. Only the "
+                  "assets of classes with a target are used; an upload is used only where it is ticked, and only "
+                  "by a campaign of its own team.")
+    # Present in every rendering of the form: tells an untouched asset list (a client that never showed it) from
+    # one whose boxes were all cleared.
+    assets_shown = forms.BooleanField(required=False, widget=forms.HiddenInput, initial=True)
+
     COST_FIELDS = ("cost_budget", "price_per_cpu_hour", "setup_cost", "manual_labelling_rate_per_hour")
     RUN_FIELDS = ("seed", "weight", "max_attempts")
 
@@ -126,6 +143,7 @@ class CampaignForm(forms.Form):
                 self.fields[key].initial = getattr(campaign, key)
         else:
             self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
+        self._init_assets(user=user, campaign=campaign)
         # Known sections in their order, then any section the render core adds (titled from its key), so a new
         # budget section shows up in the form instead of breaking it.
         self.budget_rows: dict[str, list[dict[str, Any]]] = {s: [] for s in SECTION_ORDER}
@@ -142,6 +160,11 @@ class CampaignForm(forms.Form):
                 name = budget_field_name(field)
                 self.fields[name] = _switch_field(label, value)
                 row["names"] = [name]
+            elif field.kind == "choices":
+                name = budget_field_name(field)
+                self.fields[name] = _choices_field(field, label, value)
+                row["names"] = [name]
+                row["choices"] = True
             elif field.kind in ("range", "int_range"):
                 lo, hi = budget_field_name(field, "min"), budget_field_name(field, "max")
                 self.fields[lo] = _number_field(field, f"{label} min", _display(value[0]))
@@ -182,6 +205,28 @@ class CampaignForm(forms.Form):
                                                 "placeholder": "default"}))
             self.quota_rows.append({"object_class": oc, "names": names})
 
+    def _init_assets(self, *, user: Any, campaign: Campaign | None) -> None:
+        """Offer the shared procedural library and the uploads of the campaign's team (a new campaign: of every
+        team the user plans in; the service refuses another team's). Preselected: the campaign's own choice, or
+        the defaults of :func:`campaigns.services.default_campaign_assets` for every class."""
+        from django.db.models import Q
+
+        from teams.permissions import PLANNER, teams_for
+
+        team_ids = [campaign.team_id] if campaign is not None else list(
+            teams_for(user=user, role=PLANNER).values_list("pk", flat=True))
+        queryset = (Asset.objects.filter(Q(team__isnull=True) | Q(team_id__in=team_ids))
+                    .select_related("object_class", "team").order_by("object_class__name", "kind", "name"))
+        field = self.fields["assets"]
+        field.queryset = queryset
+        field.label_from_instance = _asset_choice_label
+        if campaign is not None:
+            field.initial = list(campaign.assets.values_list("pk", flat=True))
+        else:
+            class_names = list(ObjectClass.objects.values_list("name", flat=True))
+            field.initial = [a.pk for team_id in (team_ids or [None])
+                             for a in services.default_campaign_assets(team_id=team_id, class_names=class_names)]
+
     # --- layout helpers for the template ---------------------------------------------------------------------
 
     def sections(self) -> list[dict[str, Any]]:
@@ -211,6 +256,11 @@ class CampaignForm(forms.Form):
         for field in FIELDS:
             if field.kind == "bool":
                 value: Any = bool(data.get(budget_field_name(field)))  # an unchecked box is absent: False
+            elif field.kind == "choices":
+                value = data.get(budget_field_name(field))
+                if not value:
+                    complete = False
+                    continue
             elif field.kind in ("range", "int_range"):
                 lo = data.get(budget_field_name(field, "min"))
                 hi = data.get(budget_field_name(field, "max"))
@@ -234,6 +284,14 @@ class CampaignForm(forms.Form):
         if not quotas and not any(n in self.errors for r in self.quota_rows for n in r["names"]):
             self.add_error(None, "Give at least one class a target above 0.")
         data["quotas"] = quotas
+        quoted = {q.class_name for q in quotas}
+        team = self.campaign.team if self.campaign is not None else data.get("team")
+        team_id = getattr(team, "pk", None)
+        # None: the page never showed the list (an older client or a script), so the service picks the defaults.
+        # Another team's uploads (offered when the user plans in several teams) do not go with this campaign.
+        data["asset_ids"] = ([a.pk for a in data.get("assets") or []
+                              if a.object_class.name in quoted and a.team_id in (None, team_id)]
+                             if data.get("assets_shown") else None)
         if complete:
             try:
                 data["budget"] = services.normalize_campaign_budget(budget)
@@ -296,7 +354,16 @@ class CampaignForm(forms.Form):
         return {"name": d["name"], "quotas": d["quotas"], "budget": d["budget"], "cost_budget": d["cost_budget"],
                 "price_per_cpu_hour": d["price_per_cpu_hour"], "setup_cost": d["setup_cost"],
                 "manual_labelling_rate_per_hour": d["manual_labelling_rate_per_hour"], "weight": d["weight"],
-                "seed": d["seed"], "max_attempts": d["max_attempts"], "description": d.get("description", "")}
+                "seed": d["seed"], "max_attempts": d["max_attempts"], "description": d.get("description", ""),
+                "asset_ids": d.get("asset_ids")}
+
+
+def _asset_choice_label(asset: Asset) -> str:
+    if asset.kind == Asset.Kind.MESH:
+        owner = f" (upload, {asset.team.name})" if asset.team is not None else " (upload)"
+    else:
+        owner = " (procedural)"
+    return f"{asset.object_class.name}: {asset.name}{owner}"
 
 
 class CostBudgetForm(forms.Form):
@@ -310,8 +377,20 @@ class AssetUploadForm(forms.Form):
     team = forms.ModelChoiceField(queryset=None, empty_label=None)
     object_class = forms.ModelChoiceField(queryset=ObjectClass.objects.order_by("name"), empty_label=None,
                                           to_field_name="name", label="Class")
-    mesh = forms.FileField(help_text="OBJ, PLY, STL or GLB; the format is read from the file's content.")
+    AXES = (("+z", "+z"), ("+y", "+y (glTF)"), ("-z", "−z"), ("-y", "−y"), ("+x", "+x"), ("-x", "−x"))
+    FRONTS = (("", "default (+y for a z-up file, +z for a y-up file)"), ("+y", "+y"), ("-y", "−y"), ("+z", "+z"),
+              ("-z", "−z"), ("+x", "+x"), ("-x", "−x"))
+    LOOKS = (("keep", "keep the model's look (its materials and textures)"), ("randomize", "randomize its colours"))
+    mesh = forms.FileField(help_text="OBJ, PLY, STL or GLB; an OBJ with its MTL and images (or a glTF with its "
+                                     "files) as one .zip. The format is read from the file's content.")
     unit = forms.ChoiceField(choices=UNITS, initial="auto")
+    # Not required: a client that does not send them gets the defaults (+z up, the look kept).
+    up_axis = forms.ChoiceField(choices=AXES, initial="+z", required=False, label="Up axis",
+                                help_text="The file's axis that points up in the room.")
+    front = forms.ChoiceField(choices=FRONTS, initial="", required=False, label="Front",
+                              help_text="The file's axis the model's front faces (a clock's dial, a sofa's seat); "
+                                        "wall items hang with it towards the room.")
+    look = forms.ChoiceField(choices=LOOKS, initial="keep", required=False, label="Look")
     creation_cost = forms.DecimalField(min_value=0, max_digits=12, decimal_places=2, initial=Decimal("0"),
                                        help_text="One-off cost of modelling or licensing it.")
 

@@ -46,6 +46,14 @@ class Asset(models.Model):
     generator = models.CharField(max_length=128, blank=True, help_text="Render core generator (class name)")
     mesh_file = models.FileField(upload_to="assets/meshes/", blank=True)
     mesh_unit = models.CharField(max_length=8, default="auto", help_text="m, cm, mm, in or auto")
+    up_axis = models.CharField(max_length=2, default="+z",
+                               help_text="File axis pointing up: +z, +y (glTF), or any of ±x, ±y, ±z")
+    front = models.CharField(max_length=2, blank=True, default="",
+                             help_text="File axis the model's front faces (at right angles to the up axis); empty: "
+                                       "+y for a z-up file, +z for a y-up file")
+    look = models.CharField(max_length=16, choices=[("keep", "Keep the model's look"),
+                                                    ("randomize", "Randomize its colours")], default="randomize",
+                            help_text="Render with the file's materials and textures, or with random colours")
     team = models.ForeignKey("teams.Team", on_delete=models.PROTECT, related_name="assets", null=True, blank=True,
                              help_text="Owning team; empty for the shared procedural library")
     creation_cost = models.DecimalField(

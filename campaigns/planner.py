@@ -161,6 +161,9 @@ class FrameSeeds:
     layout_seed: int
     lighting_seed: int
     camera_seed: int
+    # The view's place among its layout's views (lighting × views_per_lighting + view): the render core keeps
+    # the views of one layout apart by it (``workers.render.spec.make_spec(view_slot=…)``). None: not kept apart.
+    view_slot: int | None = None
 
 
 def _derive(*words: int) -> int:
@@ -169,7 +172,7 @@ def _derive(*words: int) -> int:
 
 
 def frame_seeds(*, campaign_seed: int, index: int, layout_index: int, lighting_index: int,
-                view_index: int) -> FrameSeeds:
+                view_index: int, views_per_lighting: int | None = None) -> FrameSeeds:
     """Sub-seeds per axis: frames sharing a layout index share the room and furniture, and so on down.
 
     Derived with :class:`numpy.random.SeedSequence` from the campaign seed, so
@@ -181,6 +184,7 @@ def frame_seeds(*, campaign_seed: int, index: int, layout_index: int, lighting_i
         layout_seed=_derive(root, 1, layout_index),
         lighting_seed=_derive(root, 2, layout_index, lighting_index),
         camera_seed=_derive(root, 3, layout_index, lighting_index, view_index),
+        view_slot=None if views_per_lighting is None else int(lighting_index) * int(views_per_lighting) + int(view_index),
     )
 
 

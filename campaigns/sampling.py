@@ -88,7 +88,7 @@ def render_core_label_pass(*, threads: int | None = None, variant: str | None = 
         from workers.render.spec import make_spec
 
         spec = make_spec(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
-                         lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed)
+                         lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, view_slot=seeds.view_slot)
         return list(render_frame(spec, variant=variant, threads=threads).labels.get("instances", []))
 
     return run
@@ -147,7 +147,8 @@ def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[
                 views_per_lighting=variation["views_per_lighting"], layouts=variation["layouts"],
                 continue_layout=continue_layout)
             seeds = planner.frame_seeds(campaign_seed=campaign_seed, index=index, layout_index=coordinates[0],
-                                        lighting_index=coordinates[1], view_index=coordinates[2])
+                                        lighting_index=coordinates[1], view_index=coordinates[2],
+                                        views_per_lighting=variation["views_per_lighting"])
             if last is not None and continue_layout and coordinates[0] == last[0][0]:
                 composition = dict(last[1])
             else:

@@ -742,5 +742,6 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
         placement = _USER_PLACEMENT_BY_CLASS_RULE.get(asset_class.placement if asset_class else "floor", "floor")
         out.setdefault(asset.object_class.name, []).append({
             "asset_id": f"user/{asset.pk}", "mesh_path": str(path), "unit": asset.mesh_unit or "auto",
-            "up_axis": "z", "placement": placement})
+            "up_axis": asset.up_axis or "z", "placement": placement, "front": asset.front or "",
+            "look": asset.look or "randomize"})
     return out

@@ -326,6 +326,35 @@ def _usable_assets(*, team_id: int | None) -> QuerySet[Asset]:
     return Asset.objects.filter(Q(team__isnull=True) | Q(team_id=team_id))
 
 
+def default_campaign_assets(*, team_id: int | None, class_names: Iterable[str]) -> list[Asset]:
+    """The assets a campaign uses when its planner does not choose: for each quota class, its procedural
+    generators; an upload only when it is the team's one asset of a class that has no procedural generator.
+
+    Uploads are otherwise opt-in per campaign (the planner form lists them), so a new upload never joins a
+    campaign that did not ask for it.
+    """
+    names = set(class_names)
+    usable = list(_usable_assets(team_id=team_id).filter(object_class__name__in=names)
+                  .select_related("object_class").order_by("object_class__name", "pk"))
+    chosen = [a for a in usable if a.kind == Asset.Kind.PROCEDURAL]
+    with_generator = {a.object_class_id for a in chosen}
+    by_class: dict[int, list[Asset]] = {}
+    for asset in usable:
+        if asset.kind == Asset.Kind.MESH and asset.object_class_id not in with_generator:
+            by_class.setdefault(asset.object_class_id, []).append(asset)
+    chosen += [group[0] for group in by_class.values() if len(group) == 1]
+    return chosen
+
+
+def _chosen_assets(*, team_id: int | None, asset_ids: Iterable[int]) -> list[Asset]:
+    wanted = set(asset_ids)
+    assets = list(_usable_assets(team_id=team_id).filter(pk__in=wanted))
+    if len(assets) != len(wanted):
+        raise CampaignError(f"{len(wanted) - len(assets)} asset(s) are unknown or belong to another team",
+                            field="assets")
+    return assets
+
+
 def _write_quotas(*, campaign: Campaign, clean: Sequence[_CleanQuota]) -> None:
     ClassQuota.objects.bulk_create([
         ClassQuota(campaign=campaign, object_class=q.object_class, target_accepted=q.target_accepted,
@@ -376,15 +405,10 @@ def create_campaign(
                                manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
                                max_attempts=max_attempts)
     clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
-    usable = _usable_assets(team_id=team.pk)
     if asset_ids is not None:
-        wanted = set(asset_ids)
-        assets = list(usable.filter(pk__in=wanted))
-        if len(assets) != len(wanted):
-            raise CampaignError(f"{len(wanted) - len(assets)} asset(s) are unknown or belong to another team",
-                                field="assets")
+        assets = _chosen_assets(team_id=team.pk, asset_ids=asset_ids)
     else:
-        assets = list(usable.filter(object_class__name__in=[q.object_class.name for q in clean]))
+        assets = default_campaign_assets(team_id=team.pk, class_names=[q.object_class.name for q in clean])
     _check_fixed_cost(assets=assets, settings=settings)
     with _name_guard(lambda: _campaign_name_conflict(team_id=team.pk, name=name)):
         campaign = Campaign.objects.create(
@@ -891,8 +915,12 @@ def update_draft_campaign(
     seed: int = 0,
     max_attempts: int = 3,
     description: str = "",
+    asset_ids: Iterable[int] | None = None,
 ) -> Campaign:
-    """Replace a draft's settings and quotas (the team stays); only drafts, nothing written on bad input."""
+    """Replace a draft's settings and quotas (the team stays); only drafts, nothing written on bad input.
+
+    ``asset_ids`` replaces the draft's asset choice; None keeps its chosen assets of the classes still quoted and
+    gives newly quoted classes their defaults (:func:`default_campaign_assets`)."""
     campaign = _lock_campaign(campaign_id)
     if campaign.status != Status.DRAFT:
         raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
@@ -905,8 +933,13 @@ def update_draft_campaign(
                                manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
                                max_attempts=max_attempts)
     clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
-    assets = list(_usable_assets(team_id=campaign.team_id).filter(
-        object_class__name__in=[q.object_class.name for q in clean]))
+    class_names = {q.object_class.name for q in clean}
+    if asset_ids is not None:
+        assets = _chosen_assets(team_id=campaign.team_id, asset_ids=asset_ids)
+    else:
+        kept = [a for a in campaign.assets.select_related("object_class") if a.object_class.name in class_names]
+        covered = {a.object_class.name for a in kept}
+        assets = kept + default_campaign_assets(team_id=campaign.team_id, class_names=class_names - covered)
     _check_fixed_cost(assets=assets, settings=settings)
     with _name_guard(lambda: _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk)):
         Campaign.objects.filter(pk=campaign.pk).update(
@@ -1088,19 +1121,34 @@ class _AssetInput:
     name: str
     unit: str
     creation_cost: Decimal
+    up_axis: str = "+z"
+    front: str = ""
+    look: str = "randomize"
 
 
 def _clean_asset_input(*, user: Any, team: Any, object_class_name: str, name: Any, unit: str,
-                       creation_cost: Decimal | float | str) -> _AssetInput:
+                       creation_cost: Decimal | float | str, up_axis: str = "+z", front: str = "",
+                       look: str = "randomize") -> _AssetInput:
     """Every check of an upload that needs no file, the name's availability last."""
     from teams.permissions import PLANNER, has_role
-    from workers.render.meshes import UNIT_TO_M
+    from workers.render.meshes import FRONT_AXES, UNIT_TO_M, UP_AXES, axis_rotation
+    from workers.render.user_materials import LOOKS
 
     if not has_role(user=user, team=team, role=PLANNER):
         raise CampaignError(f"{user} is not a planner in team {team}", field="team")
     name = _clean_name(name, "", max_length=ASSET_NAME_MAX_CHARS)
     if unit != "auto" and unit not in UNIT_TO_M:
         raise CampaignError(f"unknown unit {unit!r} (known: auto, {', '.join(UNIT_TO_M)})", field="unit")
+    if up_axis not in UP_AXES:
+        raise CampaignError(f"unknown up axis {up_axis!r} (known: {', '.join(UP_AXES)})", field="up_axis")
+    if front and front not in FRONT_AXES:
+        raise CampaignError(f"unknown front {front!r} (known: {', '.join(FRONT_AXES)})", field="front")
+    try:
+        axis_rotation(up_axis, front or None)
+    except ValueError as exc:
+        raise CampaignError(str(exc), field="front") from exc
+    if look not in LOOKS:
+        raise CampaignError(f"unknown look {look!r} (known: {', '.join(LOOKS)})", field="look")
     try:
         object_class = ObjectClass.objects.get(name=object_class_name)
     except (ObjectClass.DoesNotExist, ValueError, TypeError) as exc:
@@ -1108,7 +1156,7 @@ def _clean_asset_input(*, user: Any, team: Any, object_class_name: str, name: An
     cost = _decimal(creation_cost, "creation_cost")
     if conflict := _asset_name_conflict(team=team, object_class=object_class, name=name):
         raise conflict
-    return _AssetInput(team, object_class, name, unit, cost)
+    return _AssetInput(team, object_class, name, unit, cost, up_axis, front or "", look)
 
 
 def _insert_asset(*, clean: _AssetInput, mesh_path: str) -> Asset:
@@ -1117,7 +1165,8 @@ def _insert_asset(*, clean: _AssetInput, mesh_path: str) -> Asset:
                                                   name=clean.name)):
         return Asset.objects.create(object_class=clean.object_class, name=clean.name, kind=Asset.Kind.MESH,
                                     mesh_file=mesh_path, mesh_unit=clean.unit, team=clean.team,
-                                    creation_cost=clean.creation_cost)
+                                    creation_cost=clean.creation_cost, up_axis=clean.up_axis, front=clean.front,
+                                    look=clean.look)
 
 
 @transaction.atomic
@@ -1132,15 +1181,22 @@ def upload_asset(*, user: Any, team: Any, object_class_name: str, name: str, mes
 
 
 def upload_mesh_asset(*, user: Any, team: Any, object_class_name: str, name: str, upload: Any, unit: str = "auto",
-                      creation_cost: Decimal | float | str = 0) -> Asset:
-    """Check an uploaded mesh file, store it and add it to a team's library; on any failure nothing stays.
+                      creation_cost: Decimal | float | str = 0, up_axis: str = "+z", front: str = "",
+                      look: str = "keep") -> Asset:
+    """Check an uploaded model, store it and add it to a team's library; on any failure nothing stays.
 
-    ``upload`` is a Django ``UploadedFile`` (``name``, ``size``, ``chunks()``). Order: the checks that need no
-    file (role, name, class, cost, the name free in the team and the shared library), then the file is staged
-    beside its final place and parsed in a limited child process (:mod:`campaigns.asset_files`), then the row is
-    inserted and the file renamed into place in one transaction. A request that loses the race for the name, a
-    mesh that does not parse or any other failure removes the staged file, so no mesh without a row is left in
-    MEDIA_ROOT. Raises :class:`CampaignError` (input) or :class:`campaigns.asset_files.UploadError` (the file).
+    ``upload`` is a Django ``UploadedFile`` (``name``, ``size``, ``chunks()``): an OBJ, PLY, STL or GLB file, or a
+    ``.zip`` holding one OBJ with its MTL and images (or a glTF with its buffers and images). ``up_axis`` and
+    ``front`` are the file axes pointing up and towards the model's front (``workers.render.meshes.axis_rotation``);
+    ``look`` "keep" renders the file's materials and textures, "randomize" random colours. Order: the checks that
+    need no file (role, name, class, cost, orientation, the name free in the team and the shared library), then the
+    file is staged beside its final place (a zip unpacked into a hidden folder, refusing path traversal and zip
+    bombs) and parsed in a limited child process (:mod:`campaigns.asset_files`: scale, faces, missing MTL or
+    texture files), then the row is inserted and the file (or folder) renamed into place in one transaction. A
+    request that loses the race for the name, a model that does not parse or any other failure removes what was
+    staged, so no model without a row is left in MEDIA_ROOT. Raises :class:`CampaignError` (input) or
+    :class:`campaigns.asset_files.UploadError` (the file). Its ``info.json`` records the normalized size in metres.
+    Uploads join no campaign by themselves: a campaign chooses them (:func:`create_campaign`).
     Must not run inside a transaction (the row must be committed before the file counts as kept).
     """
     from django.conf import settings
@@ -1148,25 +1204,29 @@ def upload_mesh_asset(*, user: Any, team: Any, object_class_name: str, name: str
     from campaigns import asset_files
 
     clean = _clean_asset_input(user=user, team=team, object_class_name=object_class_name, name=name, unit=unit,
-                               creation_cost=creation_cost)
+                               creation_cost=creation_cost, up_axis=up_axis, front=front, look=look)
     staged = asset_files.stage_upload(upload)
     try:
-        info = asset_files.check_mesh_file(path=staged.path, unit=clean.unit)
+        if staged.kind == "zip":
+            staged = asset_files.unpack_staged_zip(staged)
+        info = asset_files.check_mesh_file(path=staged.model_path, unit=clean.unit, up_axis=clean.up_axis,
+                                           front=clean.front)
         try:
             with transaction.atomic(durable=True):
-                asset = _insert_asset(clean=clean, mesh_path=str(staged.final.relative_to(settings.MEDIA_ROOT)))
+                asset = _insert_asset(clean=clean,
+                                      mesh_path=str(staged.final_model_path.relative_to(settings.MEDIA_ROOT)))
                 try:
                     os.replace(staged.path, staged.final)
                 except OSError as exc:
                     raise asset_files.UploadError(f"the file could not be stored ({exc.strerror or exc}); "
                                                   "nothing was kept.") from exc
         except BaseException:
-            staged.final.unlink(missing_ok=True)  # renamed, but the row did not commit
+            asset_files.remove_path(staged.final)  # renamed, but the row did not commit
             raise
     finally:
-        staged.path.unlink(missing_ok=True)
+        asset_files.discard(staged)
     try:
-        asset_files.write_asset_info(asset.pk, {**info, "format": staged.kind,
+        asset_files.write_asset_info(asset.pk, {**info, "format": staged.kind.removesuffix("-dir"),
                                                 "original_name": str(getattr(upload, "name", ""))[:200]})
     except OSError:  # the asset is kept; its preview render writes the extents again
         log.warning("asset %s: could not write info.json", asset.pk, exc_info=True)

@@ -266,6 +266,8 @@ def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
         value = budget_value(campaign.budget, f)
         if isinstance(value, bool):
             text = "on" if value else "off"
+        elif f.kind == "choices":
+            text = ", ".join(v.replace("_", " ") for v in value)
         else:
             text = f"{value[0]:g}–{value[1]:g}" if isinstance(value, list) else f"{value:g}"
         rows.append({"section": f.section, "name": f.name.replace("_", " "), "value": text, "unit": f.unit,
@@ -597,7 +599,10 @@ def asset_library(request: HttpRequest) -> HttpResponse:
         form = AssetUploadForm(request.POST, request.FILES, user=request.user)
         asset = _upload(request, form)
         if asset is not None:
-            messages.success(request, f"“{asset.name}” added to the library; its preview renders on the fleet.")
+            info = asset_files.asset_info(asset.pk)
+            size = f" Size in the room: {asset_files.size_text(info['extents_m'])}." if info.get("extents_m") else ""
+            messages.success(request, f"“{asset.name}” added to the library; its preview renders on the fleet.{size} "
+                                      "Campaigns use it only where they choose it.")
             return redirect("campaigns:assets")
         status = 400
     return render(request, "campaigns/assets.html", {"rows": _asset_rows(request), "form": form,
@@ -615,7 +620,8 @@ def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
     try:
         return services.upload_mesh_asset(
             user=request.user, team=d["team"], object_class_name=d["object_class"].name, name=d["name"],
-            upload=d["mesh"], unit=d["unit"], creation_cost=d["creation_cost"])
+            upload=d["mesh"], unit=d["unit"], creation_cost=d["creation_cost"], up_axis=d.get("up_axis") or "+z",
+            front=d.get("front") or "", look=d.get("look") or "keep")
     except asset_files.UploadError as exc:
         form.add_error("mesh", str(exc)[:1].upper() + str(exc)[1:])
     except services.CampaignError as exc:

@@ -43,7 +43,7 @@ def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], s
     threads = int(os.environ.get("EVENFRAME_RENDER_THREADS", "0") or 0) or None
     return render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
                                     lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed,
-                                    out_dir=out_dir, threads=threads, user_assets=user_assets or None)
+                                    view_slot=getattr(seeds, "view_slot", None), out_dir=out_dir, threads=threads, user_assets=user_assets or None)
 
 
 def _is_permanent(exc: BaseException) -> bool:
@@ -130,8 +130,10 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
             remove_partial_folders(frame_output_dir(campaign_id=claim.frame.campaign_id, index=claim.frame.index)[0])
         return {"frame_id": frame_id, "skipped": claim.reason}
     frame, campaign = claim.frame, claim.campaign
+    views_per_lighting = int((campaign.budget.get("variation") or {}).get("views_per_lighting", 1))
     seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index, layout_index=frame.layout_index,
-                                lighting_index=frame.lighting_index, view_index=frame.view_index)
+                                lighting_index=frame.lighting_index, view_index=frame.view_index,
+                                views_per_lighting=views_per_lighting)
     out_dir, relative = frame_output_dir(campaign_id=campaign.pk, index=frame.index)
     partial = out_dir.with_name(f".{out_dir.name}.partial-d{dispatch_no}-a{frame.attempts}-{os.getpid()}")
     # process_time counts every thread of this process, Dr.Jit's render threads included.

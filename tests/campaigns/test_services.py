@@ -405,12 +405,17 @@ def uploads(user, classes, media_root, django_user_model):
 
 
 def test_campaign_attaches_its_team_uploads_but_never_another_teams(make_campaign, uploads):
-    campaign = make_campaign(quotas={"chair": 3, "ottoman": 2})
+    # Uploads are opt-in per campaign (tests/campaigns/test_asset_choice.py): a default campaign has neither.
+    default = make_campaign(quotas={"chair": 3, "ottoman": 2})
+    assert not default.assets.filter(kind="mesh").exists()
+    campaign = services.create_campaign(owner=default.owner, name="chooses", quotas=[services.QuotaInput("ottoman", 2)],
+                                        budget=TINY_BUDGET, cost_budget=Decimal("100"),
+                                        price_per_cpu_hour=Decimal("0.05"), asset_ids=[uploads["ours"].pk])
     attached = set(campaign.assets.values_list("pk", flat=True))
     assert uploads["ours"].pk in attached and uploads["theirs"].pk not in attached
     assert selectors.campaign_user_mesh_entries(campaign=campaign) == {"ottoman": [{
         "asset_id": f"user/{uploads['ours'].pk}", "mesh_path": str(uploads["ours_path"].resolve()), "unit": "m",
-        "up_axis": "z", "placement": "floor"}]}
+        "up_axis": "+z", "placement": "floor", "front": "", "look": "randomize"}]}
     uploads["ours_path"].unlink()  # a missing file is left out rather than failing every frame
     assert selectors.campaign_user_mesh_entries(campaign=campaign) == {}
 
@@ -442,7 +447,9 @@ def test_task_places_uploads_and_the_library_counts_their_frames(make_campaign, 
         return result
 
     monkeypatch.setattr(workers.tasks, "render_frame_files", fake)
-    campaign = make_campaign(quotas={"chair": 30, "ottoman": 30}, start=True)
+    campaign = make_campaign(quotas={"chair": 30, "ottoman": 30})
+    campaign.assets.add(uploads["ours"])  # uploads are chosen per campaign
+    services.start_campaign(campaign_id=campaign.pk)
     asset_id = f"user/{uploads['ours'].pk}"
     for _ in range(10):  # each finished frame dispatches the next; stop once the upload was placed
         for message in outbox.take():

@@ -150,7 +150,9 @@ def _plan_data(team_obj, **overrides):
             "q_armchair_target": ""}
     for f in FIELDS:
         value = {**DEFAULT_BUDGET, **{k: {**DEFAULT_BUDGET[k], **v} for k, v in TINY_BUDGET.items()}}[f.section][f.name]
-        if isinstance(value, list):
+        if f.kind == "choices":
+            data[f"b_{f.section}_{f.name}"] = list(value)
+        elif isinstance(value, list):
             data[f"b_{f.section}_{f.name}_min"], data[f"b_{f.section}_{f.name}_max"] = value
         else:
             data[f"b_{f.section}_{f.name}"] = value

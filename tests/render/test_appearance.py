@@ -132,6 +132,7 @@ def test_textured_surfaces_show_their_texture_in_the_albedo_image():
     backend.init_renderer(variant="llvm_ad_rgb")
     budget = _budget(texture_probability=1.0)
     budget["render"].update(width_px=96, height_px=72)
+    budget["appearance"]["distractor_count"] = [0, 0]  # a rug's top would count as floor
     for seed in range(40):
         spec = make_spec(budget, {"chair": 1}, seed)
         texture = spec["room"]["materials"]["floor"].get("texture")
@@ -147,3 +148,102 @@ def test_textured_surfaces_show_their_texture_in_the_albedo_image():
     assert albedo.std(axis=0).max() > 0.01  # not one flat colour
     expected = appearance.texture_linear_rgb(texture).reshape(-1, 3).mean(axis=0)
     assert np.allclose(albedo.mean(axis=0), expected, rtol=0.15, atol=0.01)
+
+
+def test_texture_families_in_the_budget_limit_what_surfaces_wear():
+    """Only allowed families are drawn; a surface none of whose families is allowed stays plain, and the other
+    surfaces' draws do not move (each material draws the same four numbers whatever it becomes)."""
+    from workers.render.spec import make_spec
+
+    families_seen = set()
+    for seed in range(30):
+        full = make_spec(None, {"chair": 2, "sofa": 1}, seed)
+        only = make_spec({"appearance": {"texture_families": ["parquet", "plaster"]}}, {"chair": 2, "sofa": 1}, seed)
+        for slot, material in only["room"]["materials"].items():
+            texture = material.get("texture")
+            if texture:
+                families_seen.add(texture["family"])
+                assert texture["family"] in ("parquet", "plaster")
+                assert full["room"]["materials"][slot].get("texture", {}).get("variant") is not None
+        for obj in only["objects"]:
+            assert all("texture" not in m for m in obj["materials"].values())
+    assert families_seen == {"parquet", "plaster"}
+
+
+@pytest.mark.parametrize("normal", [(0, 0, 1), (0, 0, -1), (1, 0, 0), (-1, 0, 0), (0, 1, 0), (0, -1, 0)])
+def test_normal_map_tilt_follows_the_lambert_cosine_law_on_every_face(monkeypatch, normal):
+    """A normal map that tilts every normal 20° towards +v, on a Lambertian quad lit by a directional light 45° off
+    the face's normal towards its +v direction (∂p/∂v of the box projection): Lambert's cosine law gives the
+    radiance ratio cos(45° − 20°) / cos 45° = 1.28 against the flat quad (0.85 would mean the tangent frame is
+    left-handed on that face, so the map's +y runs along −v). Reference: Lambert's cosine law; Mitsuba's ``normalmap`` convention (n = 2·rgb − 1 in
+    the frame (∂p/∂u, n × ∂p/∂u, n))."""
+    import mitsuba as mi
+
+    from workers.render.scene import bsdf_dict, mesh_from_arrays
+
+    backend.init_renderer(variant="llvm_ad_rgb")
+    tilt = np.radians(20.0)
+    tilted = np.array([0.0, np.sin(tilt), np.cos(tilt)], dtype=np.float32)
+    monkeypatch.setattr(appearance, "texture_linear_rgb", lambda texture: np.full((8, 8, 3), 0.5, np.float32))
+    n = np.asarray(normal, dtype=float)
+    # Two in-plane axes, any orientation: the box projection decides which is u.
+    a = np.roll(np.abs(n), 1)
+    b = np.cross(n, a)
+    corners = np.array([-a - b, a - b, a + b, -a + b]) * 0.5
+    faces = np.array([[0, 1, 2], [0, 2, 3]])
+    if np.cross(corners[1] - corners[0], corners[2] - corners[0]) @ n < 0:
+        faces = faces[:, ::-1]
+    vertices, faces_uv, uv = appearance.box_uv(corners, faces, 1.0)
+    tri = vertices[faces_uv[0]]
+    # ∂p/∂v of the first triangle: solve [Δp] = [Δuv] · [∂p/∂u; ∂p/∂v].
+    duv = uv[faces_uv[0][1:]] - uv[faces_uv[0][0]]
+    dp = tri[1:] - tri[0]
+    dp_dv = np.linalg.solve(duv, dp)[1]
+    dp_dv /= np.linalg.norm(dp_dv)
+    to_light = np.cos(np.pi / 4) * n + np.sin(np.pi / 4) * dp_dv
+    means = {}
+    for mapped in (False, True):
+        encoded = (np.broadcast_to((tilted if mapped else np.array([0.0, 0.0, 1.0])), (8, 8, 3)) + 1.0) / 2.0
+        monkeypatch.setattr(appearance, "texture_normal_rgb", lambda texture, e=encoded: e.astype(np.float32))
+        material = {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0,
+                    "texture": {"family": "ceramic_tile", "params": {}, "seed": 0}}
+        bsdf = mi.load_dict(bsdf_dict(material))
+        scene = mi.load_dict({
+            "type": "scene", "quad": mesh_from_arrays("quad", vertices, faces_uv, bsdf, uv=uv),
+            "sun": {"type": "directional", "direction": (-to_light).tolist(), "irradiance": 1.0},
+            "sensor": {"type": "perspective", "fov": 20.0,
+                       "to_world": mi.ScalarTransform4f().look_at(origin=(2.0 * n).tolist(), target=[0, 0, 0],
+                                                                  up=a.tolist()),
+                       "film": {"type": "hdrfilm", "width": 16, "height": 16, "rfilter": {"type": "box"}},
+                       "sampler": {"type": "independent", "sample_count": 4}},
+            "integrator": {"type": "direct"}})
+        means[mapped] = float(np.asarray(mi.render(scene)).mean())
+    assert means[True] / means[False] == pytest.approx(np.cos(np.radians(25.0)) / np.cos(np.radians(45.0)), rel=0.02)
+
+
+def test_pooled_bsdfs_take_the_colour_and_relief_of_each_new_material():
+    """A BSDF handed back to the pool and taken again for another tiled material carries the new material's
+    base colour and normal map, read back through ``mi.traverse`` (the same images a fresh BSDF is built from)."""
+    import mitsuba as mi
+
+    from workers.render.scene import BsdfPool
+
+    backend.init_renderer(variant="llvm_ad_rgb")
+    pool = BsdfPool()
+
+    def tiled(variant: int) -> dict:
+        return {"kind": "plastic", "rgb": [0.5, 0.5, 0.5], "roughness": 0.3, "family": "floor_tile",
+                "texture": appearance.texture_record("ceramic_tile", variant, 1.0)}
+
+    first, second = tiled(1), tiled(2)
+    key, bsdf = pool.acquire(first)
+    pool.release([(key, bsdf)])
+    key_again, reused = pool.acquire(second)
+    assert key_again == key and reused is bsdf  # the same instance, recoloured
+    params = mi.traverse(reused)
+    assert np.allclose(np.asarray(params["brdf_0.normalmap.data"]), appearance.texture_normal_rgb(second["texture"]))
+    assert np.allclose(np.asarray(params["brdf_0.nested_bsdf.diffuse_reflectance.data"]),
+                       appearance.texture_linear_rgb(second["texture"]))
+    assert not np.allclose(appearance.texture_normal_rgb(first["texture"]), appearance.texture_normal_rgb(second["texture"]))
+    # A family without relief gets no normal map.
+    assert appearance.texture_normal_rgb(appearance.texture_record("marble", 1, 1.0)) is None

@@ -157,8 +157,9 @@ def test_portal_rectangles_fill_the_openings_and_face_the_room():
 @needs_llvm
 @pytest.mark.parametrize("sun", [False, True], ids=["sky", "sky+sun"])
 def test_window_portals_are_unbiased_against_brute_force(llvm, sun):
-    """Mean radiance of a window-lit room: portals (low spp) vs the constant sky found by brute-force
-    path tracing (high spp). Reference: the unbiased brute-force estimate; tolerance 3 %."""
+    """Mean radiance of a window-lit room behind glass: portals (low spp) vs the constant sky found by
+    brute-force path tracing through plain panes (high spp). Reference: the unbiased brute-force estimate;
+    tolerance 3 %."""
     from workers.render.scene import build_scene, render_radiance
 
     spec = _window_spec(spp=64, sun=sun, width_px=48, height_px=36)
@@ -166,6 +167,9 @@ def test_window_portals_are_unbiased_against_brute_force(llvm, sun):
     assert portal.window_light == "portal" and (portal.sun_scene is not None) == sun
     brute = build_scene(spec, window_light="dome")
     brute.spp = 4096
+    # The brute force meets the sky one vertex later than the portal (at the dome, behind the pane the portal
+    # is), so the same paths need one more bounce.
+    brute.max_depth += 1
     mean_portal = float(np.mean([render_radiance(portal, seed=s, aux=False).radiance_rgb.mean() for s in (1, 2)]))
     mean_brute = float(render_radiance(brute, seed=3, aux=False).radiance_rgb.mean())
     assert mean_portal == pytest.approx(mean_brute, rel=0.03)

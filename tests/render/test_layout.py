@@ -232,8 +232,8 @@ def test_sample_room_follows_the_budget():
     for room in rooms:
         for key in ("width_m", "depth_m", "height_m"):
             assert section[key][0] <= room[key] <= section[key][1]
-        assert room["floor_finish"] in ("wood", "tile", "carpet")
-        assert {m["kind"] for m in room["materials"].values()} <= {"diffuse", "plastic", "varnish"}
+        assert room["floor_finish"] in ("wood", "tile", "carpet", "concrete")
+        assert {m["kind"] for m in room["materials"].values()} <= {"diffuse", "plastic", "varnish", "metal"}
         with_window += bool(room["windows"])
         for window in room["windows"]:
             length = layout.wall_length_m(room, window["wall"])
@@ -245,5 +245,5 @@ def test_sample_room_follows_the_budget():
         json.dumps(room)
     # Reference: scipy's exact binomial test of the budget's window probability.
     assert stats.binomtest(with_window, len(rooms), section["window_probability"]).pvalue > 0.001
-    assert {r["floor_finish"] for r in rooms} == {"wood", "tile", "carpet"}
+    assert {r["floor_finish"] for r in rooms} == {"wood", "tile", "carpet", "concrete"}
     assets.room_parts(rooms[0])  # a sampled room builds

@@ -105,6 +105,8 @@ def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
         if isinstance(value, bool):
             if value:
                 data[f"b_{f.section}_{f.name}"] = "on"
+        elif f.kind == "choices":
+            data[f"b_{f.section}_{f.name}"] = list(value)
         elif isinstance(value, list):
             data[f"b_{f.section}_{f.name}_min"], data[f"b_{f.section}_{f.name}_max"] = value
         else:
@@ -328,7 +330,7 @@ class Visitor:
         self.token = re.search(r'name="csrfmiddlewaretoken" value="([^"]+)"', page)[1]
 
     def post_form(self, path: str, data: dict[str, Any]) -> Reply:
-        body = urllib.parse.urlencode({**data, "csrfmiddlewaretoken": self.token}).encode()
+        body = urllib.parse.urlencode({**data, "csrfmiddlewaretoken": self.token}, doseq=True).encode()
         return _send(self.base_url + path, cookie=self.cookie, body=body,
                      content_type="application/x-www-form-urlencoded")
 

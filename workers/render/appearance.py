@@ -46,7 +46,8 @@ TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
     "floor_wood": ("parquet", "wood"),
     "floor_tile": ("ceramic_tile", "stone_tile", "marble"),
     "carpet": ("carpet",),
-    "wall_paint": ("plaster", "wallpaper"),
+    "wall_paint": ("plaster",),
+    "wallpaper": ("wallpaper",),
     "ceiling_paint": ("plaster",),
     "fabric": ("fabric",),
     "bedding": ("fabric",),
@@ -58,6 +59,13 @@ TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
     "rug": ("rug",),
     "artwork": ("wallpaper", "marble", "rug"),
 }
+
+#: Texture families whose relief is rendered with their normal map (Mitsuba ``normalmap``): the grout between tiles
+#: and the joints between parquet boards, lines a few millimetres wide that catch grazing light at room scale.
+#: The other families' relief is either negligible (mean tilt under 0.5°: wood, marble, concrete, plaster,
+#: wallpaper, brushed metal) or finer than a pixel at 640×480 (fabric weave, carpet tufts, leather grain), where
+#: a normal map would only alias into noise the denoiser cannot tell from texture.
+NORMAL_MAP_FAMILIES: tuple[str, ...] = ("parquet", "ceramic_tile", "stone_tile")
 
 #: Base-colour image size. 256 px over a 0.4–2.4 m tile is 1.6–9.4 mm per texel, about a pixel of a
 #: 640×480 frame 1–3 m away; 512 px made textured renders slower (3 MB per texture, memory-bound lookups).
@@ -104,17 +112,18 @@ def assign_textures(room: dict[str, Any], objects: list[dict[str, Any]], appeara
     """Give the materials of ``room``, ``objects`` and ``distractors`` their textures, in place (see the module
     docstring).
 
-    ``appearance`` is the budget's section: ``texture_probability``, ``texture_variants``,
-    ``texture_scale`` [low, high]. Every material draws the same number of random numbers whatever
+    ``appearance`` is the budget's section: ``texture_probability``, ``texture_families`` (the families
+    allowed), ``texture_variants``, ``texture_scale`` [low, high]. Every material draws the same number of random numbers whatever
     it becomes, so one material's outcome never shifts another's; the distractors' materials come
     last, so the room and the objects wear the same textures with or without them.
     """
     probability = float(appearance["texture_probability"])
+    allowed = set(appearance.get("texture_families") or ())
     variants = int(appearance["texture_variants"])
     scale_low, scale_high = (float(v) for v in appearance["texture_scale"])
     for material in _materials(room, objects, distractors):
         draw_use, draw_family, draw_variant, draw_scale = rng.random(4)
-        families = TEXTURE_FAMILIES.get(str(material.get("family", "")), ())
+        families = [f for f in TEXTURE_FAMILIES.get(str(material.get("family", "")), ()) if f in allowed]
         if not families or draw_use >= probability:
             continue
         family = families[min(int(draw_family * len(families)), len(families) - 1)]
@@ -129,7 +138,8 @@ def box_uv(vertices_m: np.ndarray, faces: np.ndarray, tile_size_m: float,
 
     Vertices are unshared (each triangle gets its own three), since one corner may belong to faces
     projected along different axes. A triangle whose normal is closest to ±x is mapped (y, z), to ±y
-    (x, z), to ±z (x, y), in metres divided by ``tile_size_m``. ``frame`` = (rotation (3, 3), origin (3,))
+    (x, z), to ±z (x, y), in metres divided by ``tile_size_m``; u is mirrored on the faces where that
+    would make the tangent frame left-handed (normal maps then tilt the same way on every face). ``frame`` = (rotation (3, 3), origin (3,))
     projects in a local frame ``local = rotation.T @ (world − origin)`` instead of the world's.
     """
     if not tile_size_m > 0:
@@ -142,6 +152,11 @@ def box_uv(vertices_m: np.ndarray, faces: np.ndarray, tile_size_m: float,
     axis = np.argmax(np.abs(normals), axis=1)  # 0: x, 1: y, 2: z
     keep = np.array([[1, 2], [0, 2], [0, 1]])[axis]  # (F, 2): the two coordinates kept
     uv = np.take_along_axis(local, np.repeat(keep[:, None, :], 3, axis=1), axis=2) / float(tile_size_m)
+    # Mirror u where (∂p/∂u × ∂p/∂v) would point against the face's normal, so every face's tangent frame is
+    # right-handed and a normal map's +y runs along +v everywhere: y × z = +x and x × y = +z, but x × z = −y, so
+    # faces looking down −x or −z are mirrored, and for y those looking up +y.
+    positive = normals[np.arange(len(faces)), axis] > 0
+    uv[positive == (axis == 1), :, 0] *= -1.0
     count = len(faces)
     return (corners.reshape(-1, 3), np.arange(3 * count, dtype=np.int64).reshape(count, 3),
             uv.reshape(-1, 2))
@@ -166,6 +181,30 @@ def _linear_texture(family: str, params_json: str, seed: int, resolution_px: int
     linear = np.ascontiguousarray(srgb8_to_linear(srgb8), dtype=np.float32)
     linear.setflags(write=False)
     return linear
+
+
+@functools.lru_cache(maxsize=256)
+def _normal_texture(family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str) -> np.ndarray:
+    from PIL import Image
+
+    from .textures import texture_set
+
+    paths = texture_set(family, json.loads(params_json), seed, Path(cache_dir), resolution_px=resolution_px)
+    with Image.open(paths.normal) as image:
+        encoded = np.ascontiguousarray(np.asarray(image.convert("RGB"), dtype=np.float32) / 255.0)
+    encoded.setflags(write=False)
+    return encoded
+
+
+def texture_normal_rgb(texture: dict[str, Any]) -> np.ndarray | None:
+    """Tangent-space normal map (H, W, 3) float32 of a spec ``texture`` record, encoded as Mitsuba's ``normalmap``
+    reads it (n = 2·value − 1; x along +u, y along +v, z out of the surface), or None for a family not in
+    :data:`NORMAL_MAP_FAMILIES`. Same rows as :func:`texture_linear_rgb`."""
+    if str(texture["family"]) not in NORMAL_MAP_FAMILIES:
+        return None
+    params_json = json.dumps(dict(texture["params"]), sort_keys=True)
+    return _normal_texture(str(texture["family"]), params_json, int(texture["seed"]),
+                           int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)), str(texture_cache_dir()))
 
 
 def texture_linear_rgb(texture: dict[str, Any]) -> np.ndarray:

@@ -24,7 +24,6 @@ References
 
 from __future__ import annotations
 
-import functools
 import itertools
 import math
 import os
@@ -37,7 +36,7 @@ import numpy as np
 import trimesh
 from scipy.spatial import ConvexHull
 
-from workers.render import meshes
+from workers.render import meshes, srgb
 
 # ---------------------------------------------------------------------------
 # Handbook ranges
@@ -170,9 +169,8 @@ HANDBOOK_RANGES: dict[str, dict[str, DimensionRange]] = {
 
 
 def srgb_to_linear(rgb: tuple[float, float, float] | np.ndarray) -> np.ndarray:
-    """sRGB-encoded colour (0..1) to linear RGB; IEC 61966-2-1 piecewise transfer function."""
-    c = np.asarray(rgb, dtype=np.float64)
-    return np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    """sRGB-encoded colour (0..1) to linear RGB in float64; IEC 61966-2-1 (``workers.render.srgb.decode``)."""
+    return srgb.decode(np.asarray(rgb, dtype=np.float64))
 
 
 @dataclass(frozen=True)
@@ -1376,45 +1374,55 @@ def build_asset_parts(asset_spec: dict[str, Any]) -> list[Part]:
 # ---------------------------------------------------------------------------
 
 USER_PLACEMENTS = ("floor", "wall", "surface")
+#: "keep": the model's own materials, one part per material (workers.render.user_materials); "randomize": one
+#: part with a random material, as for a mesh without materials.
+USER_LOOKS = ("keep", "randomize")
 
 
-@functools.lru_cache(maxsize=32)
-def _cached_user_mesh(path: str, mtime_ns: int, size: int, unit: str, up_axis: str) -> trimesh.Trimesh:
-    # mtime and size in the key: a replaced file is reloaded, an unchanged one is parsed once per process.
-    return meshes.load_user_mesh(path, unit=unit, up_axis=up_axis)
+def _load_user_model(path: str, unit: str, up_axis: str, front: str | None) -> meshes.UserModel:
+    from workers.render.user_materials import load_model_cached
 
-
-def _load_user(path: str, unit: str, up_axis: str) -> trimesh.Trimesh:
-    try:
-        stat = os.stat(path)
-    except OSError as exc:
-        raise meshes.MeshError(f"mesh {Path(path).name}: cannot read the file ({exc.strerror or exc})") from exc
-    return _cached_user_mesh(path, stat.st_mtime_ns, stat.st_size, unit, up_axis).copy()
+    return load_model_cached(path, unit=unit, up_axis=up_axis, front=front)
 
 
 def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placement: str, rng: np.random.Generator,
-                    *, unit: str = "auto", up_axis: str = "z") -> dict[str, Any]:
-    """Wrap a user mesh (see :func:`workers.render.meshes.load_user_mesh`) as an asset spec.
+                    *, unit: str = "auto", up_axis: str = "z", front: str | None = None,
+                    look: str = "randomize") -> dict[str, Any]:
+    """Wrap a user model (see :func:`workers.render.meshes.load_user_model`) as an asset spec.
 
-    ``placement`` is "floor", "wall" (the mesh's back, its -y side, goes on the
-    wall) or "surface" (on a table top when one fits, else the floor).
-    Raises ``MeshError`` for a bad file and ``ValueError`` for a bad placement.
+    ``placement`` is "floor", "wall" (the model's back, its local -y side, goes on the wall and its front, the
+    file's ``front`` direction, faces the room) or "surface" (on a table top when one fits, else the floor).
+    ``look`` "keep" gives one material slot per model part (``part0``, ``part1``, …) from the file's materials
+    (:func:`workers.render.user_materials.look_material`); "randomize" one random ``body`` material.
+    The spec records ``front`` and ``look`` only when they differ from the defaults, so older specs keep their bytes.
+    Raises ``MeshError`` for a bad file and ``ValueError`` for a bad placement or look.
     """
+    from workers.render.user_materials import look_material, texture_record
+
     if placement not in USER_PLACEMENTS:
         raise ValueError(f"unknown placement {placement!r} (known: {', '.join(USER_PLACEMENTS)})")
+    if look not in USER_LOOKS:
+        raise ValueError(f"unknown look {look!r} (known: {', '.join(USER_LOOKS)})")
     if not class_name or not isinstance(class_name, str):
         raise ValueError("a user asset needs a class name")
     path = str(Path(mesh_path).resolve())
-    mesh = _load_user(path, unit, up_axis)
+    model = _load_user_model(path, unit, up_axis, front)
+    mesh = model.mesh()
     extent = mesh.bounds[1] - mesh.bounds[0]
+    if look == "keep":
+        materials = {f"part{k}": look_material(part.look, texture_record=texture_record(
+            mesh_path=path, unit=unit, up_axis=up_axis, front=front, part=k) if part.uv is not None else None)
+            for k, part in enumerate(model.parts)}
+    else:
+        materials = {"body": sample_material(("plastic", "painted", "wood", "metal", "fabric")[int(rng.integers(5))],
+                                             rng)}
     spec: dict[str, Any] = {
         "class_name": class_name,
         "asset_id": f"user/{Path(path).stem}",
         "variant": "user",
         "params": {"width_m": round(float(extent[0]), 6), "depth_m": round(float(extent[1]), 6),
                    "height_m": round(float(extent[2]), 6)},
-        "materials": {"body": sample_material(("plastic", "painted", "wood", "metal", "fabric")[int(rng.integers(5))],
-                                              rng)},
+        "materials": materials,
         "placement": placement,
         "footprint_m": [round(float(extent[0]), 6), round(float(extent[1]), 6)],
         "height_m": round(float(extent[2]), 6),
@@ -1423,6 +1431,10 @@ def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placemen
         "unit": unit,
         "up_axis": up_axis,
     }
+    if front:
+        spec["front"] = front
+    if look != "randomize":
+        spec["look"] = look
     if placement == "wall":
         # Centre between 1.2 and 1.8 m (common practice for hung objects), never below 0.3 m.
         spec["mount_height_m"] = round(max(0.3, float(rng.uniform(1.2, 1.8)) - float(extent[2]) / 2), 6)
@@ -1430,10 +1442,29 @@ def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placemen
 
 
 def _build_user_parts(spec: dict[str, Any]) -> list[Part]:
-    mesh = _load_user(spec["mesh_path"], spec.get("unit", "auto"), spec.get("up_axis", "z"))
-    if spec["placement"] == "wall":
-        mesh.apply_translation([0.0, -mesh.bounds[0][1], 0.0])  # back onto the plane y = 0
-    return [Part("body", mesh, dict(spec["materials"]["body"]))]
+    from workers.render.user_materials import mitsuba_uv
+
+    model = _load_user_model(spec["mesh_path"], spec.get("unit", "auto"), spec.get("up_axis", "z"),
+                             spec.get("front") or None)
+    # Back onto the plane y = 0 for wall items (their front, +y, faces the room).
+    shift = [0.0, -float(model.mesh().bounds[0][1]), 0.0] if spec["placement"] == "wall" else None
+    if spec.get("look", "randomize") != "keep":
+        mesh = model.mesh()
+        if shift is not None:
+            mesh.apply_translation(shift)
+        return [Part("body", mesh, dict(spec["materials"]["body"]))]
+    parts = []
+    for k, user_part in enumerate(model.parts):
+        mesh = user_part.mesh.copy()
+        if shift is not None:
+            mesh.apply_translation(shift)
+        material = dict(spec["materials"][f"part{k}"])
+        if material.get("user_texture") and user_part.uv is not None:
+            # Per-vertex texture coordinates ride along in the in-memory material (never in the JSON spec); the
+            # scene hands them to the mesh (workers.render.scene.build_scene).
+            material["uv"] = mitsuba_uv(user_part.uv)
+        parts.append(Part(f"part{k}", mesh, material))
+    return parts
 
 
 # ---------------------------------------------------------------------------
@@ -1502,4 +1533,7 @@ def room_parts(room: dict[str, Any]) -> list[Part]:
         boxes = _wall_boxes(room, wall)
         mesh = boxes[0] if len(boxes) == 1 else _concatenate(boxes)
         parts.append(Part(f"wall_{wall}", mesh, dict(materials["wall"])))
+    from .dressing import dressing_parts
+
+    parts += [Part(name, mesh, material) for name, mesh, material in dressing_parts(room)]
     return parts

@@ -31,12 +31,14 @@ class BudgetError(ValueError):
 class Field:
     section: str
     name: str
-    kind: str  # "range" (float [lo, hi]), "int_range", "float", "int", "probability", "bool" (a switch)
+    kind: str  # "range" (float [lo, hi]), "int_range", "float", "int", "probability", "bool" (a switch),
+    #            "choices" (a non-empty subset of ``choices``, kept in their order)
     unit: str
     lower: float  # physical lower bound (inclusive)
     upper: float  # physical upper bound (inclusive)
     help: str
     source: str = ""
+    choices: tuple[str, ...] = ()
 
 
 # Sources for default ranges. Values marked "from memory" were not re-checked
@@ -64,6 +66,22 @@ FIELDS: tuple[Field, ...] = (
           "Chance that a room has a window (and so can receive sunlight)."),
     Field("room", "max_objects_per_m2", "float", "1/m²", 0.05, 3.0,
           "Density limit: the most objects placed per square metre of floor."),
+    Field("room", "free_placement_probability", "probability", "", 0.0, 1.0,
+          "Share of layouts whose furniture stands anywhere at random angles (domain randomization); the rest "
+          "are arranged like a home: sofas, beds and shelves against walls, chairs round tables, coffee tables "
+          "in front of sofas, side tables and lamps beside seats. Drawn once per layout; 0 arranges every layout.",
+          "Tobin et al. 2017 (random placement in domain randomization); default 0.25 keeps most layouts "
+          "arranged (common practice)"),
+    Field("room", "room_types", "choices", "", 1, 4,
+          "Kinds of room drawn, each with plausible finishes: floors (parquet, tile, carpet, concrete), paint or "
+          "wallpaper, how often windows have curtains.", "common practice",
+          choices=("living_room", "bedroom", "dining_room", "office")),
+    Field("room", "door_count", "int_range", "", 0, 4,
+          "Closed doors with architraves and handles, on walls clear of windows; the floor in front of a door "
+          "stays free of furniture."),
+    Field("room", "curtain_probability", "probability", "", 0.0, 1.0,
+          "Chance that a window has curtains, times the room type's own (living room 0.8, bedroom 0.9, dining "
+          "room 0.6, office 0.35). 0 turns curtains off.", "common practice"),
     # lighting
     Field("lighting", "panel_count", "int_range", "", 0, 8, "Rectangular ceiling panels (area lights)."),
     Field("lighting", "panel_flux_lm", "range", "lm", 0.0, 50000.0, "Luminous flux of each panel.",
@@ -96,7 +114,20 @@ FIELDS: tuple[Field, ...] = (
           "Lens focal length; shorter is wider field of view."),
     Field("camera", "max_zoom_out", "float", "×", 1.0, 100.0,
           "How far the lens may zoom out from the sampled focal length to fit every object in view; "
-          "1 keeps the sampled focal length (more objects cut by the frame edge)."),
+          "1 keeps the sampled focal length, so focal lengths follow their range (objects may be cut by the "
+          "frame edge; the truncation thresholds decide). Above 1 focal lengths pile up at the short end."),
+    Field("camera", "distance_m", "range", "m", 0.3, 20.0,
+          "Distance from the camera to the object it frames (its subject), drawn uniformly; the focus "
+          "distance. A draw that does not fit in the room is drawn again, so keep the top below the room size.",
+          "1–3 m: the across-a-room distances of 3–6 m rooms (common practice)"),
+    Field("camera", "min_view_angle_deg", "float", "°", 0.0, 180.0,
+          "Views of one layout count as distinct when their viewing directions differ by at least this "
+          "much, or their positions by min_view_distance_m. 20° moves the picture by a fifth (18 mm lens) "
+          "to a half (50 mm) of its width.", "common practice"),
+    Field("camera", "min_view_distance_m", "float", "m", 0.0, 20.0,
+          "Views of one layout count as distinct when their positions are at least this far apart (or "
+          "their directions min_view_angle_deg). 0.5 m at 1–3 m from the subject turns it by 10–30°, "
+          "changing perspective and occlusions.", "common practice"),
     Field("camera", "sensor_width_mm", "float", "mm", 1.0, 100.0,
           "Sensor width; 36 mm is full frame. With the focal length it sets the field of view."),
     Field("camera", "f_number", "range", "", 0.95, 64.0,
@@ -129,6 +160,12 @@ FIELDS: tuple[Field, ...] = (
           "Share of wood, floor, wall, ceiling, fabric, leather and metal surfaces that wear a procedural "
           "texture (wood grain, parquet, tiles, carpet, plaster, wallpaper, weave…); the rest stay plain.",
           "Tobin et al. 2017; Tremblay et al. 2018 (random textures in domain randomization)"),
+    Field("appearance", "texture_families", "choices", "", 1, 13,
+          "Procedural texture families surfaces may wear, each only where it fits (wood grain on wood, parquet, "
+          "tiles, marble or concrete on floors, plaster or wallpaper on walls, weaves on upholstery…). A surface "
+          "none of whose families is allowed stays plain.",
+          choices=("wood", "parquet", "ceramic_tile", "stone_tile", "marble", "concrete", "carpet", "rug", "fabric",
+                   "leather", "plaster", "wallpaper", "brushed_metal")),
     Field("appearance", "texture_variants", "int", "", 1, 1000,
           "Texture variants per family. Each is generated once per machine and cached; more variants give "
           "more variety and a larger cache (about 1 MB each)."),
@@ -154,6 +191,10 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "height_m": [2.4, 3.0],
         "window_probability": 0.6,
         "max_objects_per_m2": 0.6,
+        "free_placement_probability": 0.25,
+        "room_types": ["living_room", "bedroom", "dining_room", "office"],
+        "door_count": [1, 2],
+        "curtain_probability": 1.0,
     },
     "lighting": {
         "panel_count": [0, 2],
@@ -174,7 +215,10 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
     "camera": {
         "eye_height_m": [0.9, 1.75],
         "focal_length_mm": [18.0, 50.0],
-        "max_zoom_out": 1.6,
+        "max_zoom_out": 1.0,
+        "distance_m": [1.0, 3.0],
+        "min_view_angle_deg": 20.0,
+        "min_view_distance_m": 0.5,
         "sensor_width_mm": 36.0,
         "f_number": [2.0, 11.0],
         "focus_jitter_fraction": 0.05,
@@ -186,7 +230,10 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "sensor_noise": True,
     },
     "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0, "min_contrast": 2.0},
-    "appearance": {"texture_probability": 0.85, "texture_variants": 32, "texture_scale": [0.8, 1.25],
+    "appearance": {"texture_probability": 0.85,
+                   "texture_families": ["wood", "parquet", "ceramic_tile", "stone_tile", "marble", "concrete", "carpet",
+                                        "rug", "fabric", "leather", "plaster", "wallpaper", "brushed_metal"],
+                   "texture_variants": 32, "texture_scale": [0.8, 1.25],
                    "distractor_count": [3, 10]},
     "variation": {"layouts": 1000, "lighting_per_layout": 2, "views_per_lighting": 2},
 }
@@ -208,6 +255,15 @@ def _number(value: Any, where: str, *, integer: bool) -> float | int:
 
 def _check_field(field: Field, value: Any) -> Any:
     where = f"{field.section}.{field.name}"
+    if field.kind == "choices":
+        if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
+            raise BudgetError(f"{where}: expected a list of names, got {value!r}")
+        unknown = [v for v in value if v not in field.choices]
+        if unknown:
+            raise BudgetError(f"{where}: unknown {', '.join(map(repr, unknown))} (known: {', '.join(field.choices)})")
+        if not value:
+            raise BudgetError(f"{where}: choose at least one of {', '.join(field.choices)}")
+        return [c for c in field.choices if c in value]
     if field.kind == "bool":
         if not isinstance(value, bool):
             raise BudgetError(f"{where}: expected true or false, got {value!r}")

@@ -94,6 +94,9 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--layout-seed", type=int, help="fix the layout sub-seed")
     parser.add_argument("--lighting-seed", type=int, help="fix the lighting sub-seed")
     parser.add_argument("--camera-seed", type=int, help="fix the camera sub-seed")
+    parser.add_argument("--view-slot", type=int,
+                        help="this view's index among its layout's views: the pose is drawn apart from the "
+                             "layout's earlier slots (with --layout-seed, one layout from several sides)")
     parser.add_argument("--variant", choices=("scalar_rgb", "llvm_ad_rgb"), help="Mitsuba variant")
     parser.add_argument("--threads", type=int, help="render threads")
     parser.add_argument("--preview", action="store_true", help="also write preview.png with the boxes drawn")
@@ -154,7 +157,8 @@ def run(argv: list[str] | None = None) -> int:
         budget = _budget(args)
         composition = parse_classes(args.classes) if args.classes else default_composition()
         spec = make_spec(budget, composition, args.seed, layout_seed=args.layout_seed,
-                         lighting_seed=args.lighting_seed, camera_seed=args.camera_seed)
+                         lighting_seed=args.lighting_seed, camera_seed=args.camera_seed,
+                         view_slot=args.view_slot)
     except ValueError as exc:  # BudgetError, LayoutError and composition errors are ValueErrors
         raise CliError(" ".join(str(exc).split()) or type(exc).__name__) from None
     spec_s = time.perf_counter() - start
@@ -331,7 +335,8 @@ def run_contact_sheet(args: argparse.Namespace) -> int:
                            "megapixels; lower --contact-sheet or --width/--height")
         composition = parse_classes(args.classes) if args.classes else default_composition()
         specs = [make_spec(budget, composition, args.seed + offset, layout_seed=args.layout_seed,
-                           lighting_seed=args.lighting_seed, camera_seed=args.camera_seed)
+                           lighting_seed=args.lighting_seed, camera_seed=args.camera_seed,
+                           view_slot=None if args.view_slot is None else args.view_slot + offset)
                  for offset in range(count)]
     except CliError:
         raise

@@ -144,6 +144,7 @@ MAT_PROBABILITY = 0.5
 LID_PROBABILITY = 0.5
 # Rugs lie under the classes people gather round (common practice), aligned with them.
 RUG_HOST_CLASSES = ("sofa", "coffee_table", "dining_table", "bed", "armchair")
+RUG_PREFERRED_HOSTS = ("coffee_table", "sofa")
 RUG_WALL_GAP_M = 0.1
 RUG_TRIES = 24
 SEAT_TRIES = 12
@@ -263,6 +264,9 @@ def _place_rug(item: dict[str, Any], room: dict[str, Any], objects: list[dict[st
                      (room["width_m"] - RUG_WALL_GAP_M, room["depth_m"] - RUG_WALL_GAP_M),
                      (RUG_WALL_GAP_M, room["depth_m"] - RUG_WALL_GAP_M)])
     hosts = [obj for obj in objects if obj["class_name"] in RUG_HOST_CLASSES and obj.get("anchor") != "surface"]
+    # A living room's rug lies under the coffee table or in front of the sofa (common practice); the other
+    # hosts only when there is neither.
+    hosts = [obj for obj in hosts if obj["class_name"] in RUG_PREFERRED_HOSTS] or hosts
     for attempt in range(RUG_TRIES):
         scale = 0.93 ** (attempt // 4)  # a rug too large for its spot shrinks (to the smallest size) rather than vanishes
         w, d = max(length * scale, ranges["length_m"].low), max(width * scale, ranges["width_m"].low)

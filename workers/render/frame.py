@@ -399,6 +399,7 @@ def render_frame_from_inputs(
     layout_seed: int | None = None,
     lighting_seed: int | None = None,
     camera_seed: int | None = None,
+    view_slot: int | None = None,
     out_dir: Path | None = None,
     variant: str | None = None,
     threads: int | None = None,
@@ -409,7 +410,7 @@ def render_frame_from_inputs(
 
     start = time.perf_counter()
     spec = make_spec(budget, composition, seed, layout_seed=layout_seed, lighting_seed=lighting_seed,
-                     camera_seed=camera_seed, user_assets=user_assets)
+                     camera_seed=camera_seed, view_slot=view_slot, user_assets=user_assets)
     spec_s = time.perf_counter() - start
     return render_frame(spec, out_dir=out_dir, variant=variant, threads=threads, spec_s=spec_s)
 

@@ -1,7 +1,11 @@
 """Rooms and collision-free furniture placement.
 
 :func:`sample_room` draws a room (size, finishes, windows) from the budget;
-:func:`place_objects` puts asset specs into it by bounded rejection sampling:
+:func:`place_objects` puts asset specs into it by bounded rejection sampling,
+in one of two modes (:data:`LAYOUT_MODES`, drawn per layout by
+:func:`choose_layout_mode` with the budget's ``room.free_placement_probability``):
+
+``"free"`` — domain randomization, the furniture stands anywhere:
 
 - floor items get a uniform yaw on [0°, 360°) and a uniform position; sofas,
   beds and bookshelves are often pushed back to a wall instead, facing the room;
@@ -10,11 +14,40 @@
 - wall items hang on a wall at their mount height, clear of windows and of
   tall furniture standing against that wall.
 
+``"home"`` — arranged like a home (:data:`HOME_ROLES`; every relation falls back
+to the next, the last being a free spot at a wall-aligned yaw):
+
+- sofas, beds, bookshelves and floor plants stand back to a wall
+  (:data:`WALL_GAP_M` off it), facing into the room;
+- dining tables stand wall-aligned with a zone kept free for chairs; chairs go
+  round them facing the table (:data:`DINING_CHAIR_GAP_M`, one place per
+  :data:`DINING_PLACE_WIDTH_M` of edge), or face a coffee table;
+- coffee tables stand in front of a sofa (else an armchair), armchairs and
+  ottomans face the coffee table or the sofa; side tables and floor lamps stand
+  beside a sofa, armchair or bed;
+- surface items prefer a table or shelf top; wall items as in ``"free"``.
+
+Each placed object records how it was placed in ``arrangement``: ``"free"``,
+``"against_wall"``, ``"wall"``, ``"on:<id>"``, ``"around_table:<id>"``,
+``"in_front_of:<id>"``, ``"facing:<id>"`` or ``"beside:<id>"`` (``<id>`` is the
+related object's ``instance_id``).
+
+In both modes a zone in front of every door of ``room.get("doors", [])``
+(the door's width plus :data:`DOOR_SIDE_MARGIN_M` each side, :data:`DOOR_CLEARANCE_DEPTH_M`
+into the room, up to the door head) is kept free of furniture and wall items.
+
 Footprints are oriented rectangles; two objects collide when their
 rectangles, grown by half the clearance each, overlap in plan *and* their
 height intervals overlap (so a clock may hang above a low sofa). Placement
 never drops an object: a composition that cannot be placed raises
 :class:`LayoutError` with the class, its count and the reason.
+
+Random stream (the layout stream of :mod:`workers.render.spec`), in order:
+:func:`sample_room`; the asset specs; one uniform draw in
+:func:`choose_layout_mode` (always taken, whatever the probability, so changing
+the probability flips modes without shifting later draws); then the draws of
+:func:`place_objects`, object by object in placement order. A layout is a pure
+function of the stream: same seed, same layout.
 
 :class:`ClutterPlacer` applies the same rules to extra, unlabelled items placed
 afterwards (:mod:`workers.render.distractors`): the objects stay where they
@@ -23,6 +56,11 @@ are, and an item that does not fit is skipped instead of raising.
 World frame and yaw follow ``workers/render/README.md``: the room spans
 x ∈ [0, width_m], y ∈ [0, depth_m]; yaw is counter-clockwise about +z and an
 asset's front is its local +y.
+
+References
+----------
+Neufert, Architects' Data, 4th ed. (furniture clearances, from memory); Panero &
+Zelnik, Human Dimension and Interior Space (1979) (seating distances, from memory).
 """
 
 from __future__ import annotations
@@ -41,11 +79,54 @@ from workers.render import assets
 WALLS: tuple[str, ...] = ("south", "north", "west", "east")
 # Yaw that turns an asset's front (local +y) to face into the room from each wall.
 WALL_FACING_YAW_DEG: dict[str, float] = {"south": 0.0, "north": 180.0, "west": 270.0, "east": 90.0}
-FLOOR_FINISHES: dict[str, str] = {"wood": "floor_wood", "tile": "floor_tile", "carpet": "carpet"}
 
 # How often these classes stand back to a wall rather than free in the room
 # (common practice: beds and bookcases almost always do, sofas often float).
 AGAINST_WALL_PROBABILITY: dict[str, float] = {"bed": 0.85, "bookshelf": 0.9, "sofa": 0.6}
+
+# Home arrangement (mode "home"). Distances are gaps between footprint edges; any gap is at least the
+# clearance below, which already keeps the rectangles apart.
+LAYOUT_MODES: tuple[str, ...] = ("free", "home")
+# Sofa front to coffee-table edge: 0.35–0.45 m leaves knee room and keeps the top within reach
+# (Neufert, Architects' Data; Panero & Zelnik 1979: 14–18 in; from memory).
+COFFEE_TABLE_GAP_M = (0.35, 0.50)
+# Dining chairs: the chair front stands this far from the table edge (pulled out a little; a chair pushed
+# under the top would overlap the table's footprint), one place per 0.6 m of edge (Neufert, from memory).
+DINING_CHAIR_GAP_M = (0.06, 0.20)
+DINING_PLACE_WIDTH_M = 0.6
+# Zone behind a dining table's edge to sit down and get up: about 0.75 m (Neufert, from memory); the table
+# first looks for a spot with this much free floor round it.
+DINING_ZONE_M = 0.75
+# Armchairs and chairs round a coffee table: their front 0.3–0.6 m from its edge (common practice).
+LOUNGE_GAP_M = (0.30, 0.60)
+# An armchair facing a sofa across the room with no coffee table: 1.0–2.0 m between fronts (common practice).
+FACING_SOFA_GAP_M = (1.0, 2.0)
+# An ottoman used as a footstool: 0.1–0.35 m in front of the seat (common practice).
+FOOTSTOOL_GAP_M = (0.10, 0.35)
+# Side tables and floor lamps beside a seat or bed: 6–15 cm from its side (common practice: within arm's reach).
+BESIDE_GAP_M = (0.06, 0.15)
+# Yaw scatter of things people move (chairs pulled out, armchairs turned), degrees (common practice).
+CHAIR_YAW_JITTER_DEG = 4.0
+ARMCHAIR_YAW_JITTER_DEG = 10.0
+RELATION_TRIES = 24  # tries per relation (slot or host) before the next fallback
+# Doors: keep free a rectangle the door's width (plus a margin each side for the frame) by this depth into
+# the room, up to the door head (common practice: a 0.8–0.9 m leaf swings through about that depth).
+DOOR_CLEARANCE_DEPTH_M = 0.8
+DOOR_SIDE_MARGIN_M = 0.05
+# A floor item whose footprint comes this close to a wall must not stand in front of a window below its top.
+WINDOW_NEAR_WALL_M = 0.3
+
+# Roles in a home arrangement, in placement order (hosts before the things arranged round them).
+HOME_ROLES: dict[str, str] = {
+    "bed": "against_wall", "sofa": "against_wall", "bookshelf": "against_wall",
+    "dining_table": "dining_table", "coffee_table": "coffee_table", "armchair": "lounge_seat",
+    "chair": "chair", "ottoman": "footstool", "side_table": "beside_seat", "floor_lamp": "beside_seat",
+    "potted_plant": "against_wall",
+}
+_ROLE_ORDER: tuple[str, ...] = ("against_wall", "dining_table", "coffee_table", "lounge_seat", "chair",
+                                "footstool", "beside_seat", "other")
+# Classes that count as seats for side tables and floor lamps, in order of preference.
+SEAT_CLASSES: tuple[str, ...] = ("sofa", "armchair", "bed")
 
 DEFAULT_CLEARANCE_M = 0.05  # gap kept between any two footprints; also hides tiny rounding overlaps
 WALL_GAP_M = 0.02  # free items keep this far from the walls; back-to-wall items stand this far off
@@ -97,29 +178,20 @@ def _sample_window(room: dict[str, Any], wall: str, rng: np.random.Generator) ->
 
 
 def sample_room(budget: dict[str, Any], rng: np.random.Generator) -> dict[str, Any]:
-    """Draw a room from ``budget["room"]``: size, floor/wall/ceiling finishes and windows.
+    """Draw a room from ``budget["room"]``: size, windows, then its dressing (:mod:`workers.render.dressing`).
 
-    Returns ``{"width_m", "depth_m", "height_m", "floor_finish", "materials":
-    {"floor", "wall", "ceiling"}, "windows": [{"wall", "center_m", "sill_m",
-    "width_m", "height_m"}]}``. ``center_m`` runs along the wall from its
-    lower-coordinate end (x for south/north, y for west/east).
+    Returns ``{"width_m", "depth_m", "height_m", "windows": [{"wall", "center_m", "sill_m", "width_m",
+    "height_m"}], "room_type", "floor_finish", "materials": {"floor", "wall", "ceiling", …}, "doors",
+    "skirting", "window_frames", "curtains"}``. ``center_m`` runs along the wall from its lower-coordinate
+    end (x for south/north, y for west/east).
     """
+    from .dressing import sample_dressing
+
     section = budget["room"]
     room: dict[str, Any] = {
         "width_m": round(float(rng.uniform(*section["width_m"])), 6),
         "depth_m": round(float(rng.uniform(*section["depth_m"])), 6),
         "height_m": round(float(rng.uniform(*section["height_m"])), 6),
-    }
-    finish = list(FLOOR_FINISHES)[int(rng.integers(len(FLOOR_FINISHES)))]
-    room["floor_finish"] = finish
-    wall_material = assets.sample_material("wall_paint", rng)
-    if rng.random() < 0.3:
-        # Eggshell paint has a soft sheen (common practice for living rooms).
-        wall_material = {**wall_material, "kind": "plastic", "roughness": round(float(rng.uniform(0.5, 0.8)), 6)}
-    room["materials"] = {
-        "floor": assets.sample_material(FLOOR_FINISHES[finish], rng),
-        "wall": wall_material,
-        "ceiling": assets.sample_material("ceiling_paint", rng),
     }
     windows = []
     if rng.random() < section["window_probability"]:
@@ -133,6 +205,7 @@ def sample_room(budget: dict[str, Any], rng: np.random.Generator) -> dict[str, A
             if second:
                 windows.append(second)
     room["windows"] = windows
+    sample_dressing(room, budget, rng)
     return room
 
 
@@ -214,6 +287,9 @@ class _Placed:
     z0: float = 0.0
     z1: float = 0.0
     wall: str | None = None
+    # How it was placed (the ``arrangement`` record): a relation kind and the related object's index.
+    relation: str = "free"
+    related_index: int | None = None
 
     def prepare(self, grow_m: float) -> _Placed:
         lcx, lcy, hw, hd = _local_rect(self.spec)
@@ -273,20 +349,64 @@ def _wall_point(room: dict[str, Any], wall: str, along_m: float, offset_m: float
 
 def _blocks_window(room: dict[str, Any], wall: str, u0: float, u1: float, z0: float, z1: float,
                    margin_m: float = 0.05) -> bool:
-    for window in room.get("windows", []):
-        if window["wall"] != wall:
-            continue
-        w0 = window["center_m"] - window["width_m"] / 2 - margin_m
-        w1 = window["center_m"] + window["width_m"] / 2 + margin_m
-        s0, s1 = window["sill_m"] - margin_m, window["sill_m"] + window["height_m"] + margin_m
-        if u0 < w1 and w0 < u1 and z0 < s1 and s0 < z1:
+    """Whether the wall rectangle u0..u1 × z0..z1 meets a window, a door or a curtain (with ``margin_m``)."""
+    from .dressing import wall_fixtures
+
+    taken = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"],
+              w["sill_m"] + w["height_m"]) for w in room.get("windows", []) if w["wall"] == wall]
+    for a0, a1, b0, b1 in [*taken, *wall_fixtures(room, wall)]:
+        if u0 < a1 + margin_m and a0 - margin_m < u1 and z0 < b1 + margin_m and b0 - margin_m < z1:
             return True
     return False
 
 
+def door_clearance_zones(room: dict[str, Any]) -> list[_Placed]:
+    """Boxes kept free in front of the room's doors, and where its curtains hang. Doors: ``room.get("doors", [])``, each ``{"wall", "center_m",
+    "width_m", "height_m"}`` (``center_m`` along the wall as for windows; an optional ``architrave_m``).
+
+    Each box is the door's width plus :data:`DOOR_SIDE_MARGIN_M` (or the architrave, if wider) each side, :data:`DOOR_CLEARANCE_DEPTH_M`
+    into the room (less in a shallower room), from the floor to the top of the casing (m). Raises
+    :class:`LayoutError` for a door record that is not such a dict.
+    """
+    zones = []
+    for k, door in enumerate(room.get("doors") or []):
+        try:
+            wall = str(door["wall"])
+            center, width, height = (float(door[key]) for key in ("center_m", "width_m", "height_m"))
+        except (KeyError, TypeError, ValueError) as exc:
+            raise LayoutError(f"door {k + 1}: expected {{wall, center_m, width_m, height_m}}, got {door!r}") from exc
+        if wall not in WALLS or not all(math.isfinite(v) for v in (center, width, height)) or width <= 0 \
+                or height <= 0:
+            raise LayoutError(f"door {k + 1}: wall must be one of {', '.join(WALLS)} and its sizes positive, "
+                              f"got {door!r}")
+        across = wall_length_m(room, "south" if wall in ("west", "east") else "west")
+        depth = min(DOOR_CLEARANCE_DEPTH_M, across)
+        # The architrave (door casing), when the door has one, is part of the door: nothing covers it either.
+        margin = max(DOOR_SIDE_MARGIN_M, float(door.get("architrave_m") or 0.0))
+        spec = {"footprint_m": [width + 2 * margin, depth], "height_m": height + margin, "placement": "floor"}
+        x, y = _wall_point(room, wall, center, depth / 2)
+        zones.append(_Placed(-1 - k, spec, x, y, 0.0, WALL_FACING_YAW_DEG[wall], "door_zone", None,
+                             wall=wall).prepare(0.0))
+    # Curtains that hang below a metre: their folds, from the wall to the front of the pleats, up to the rod.
+    from .dressing import CURTAIN_OFFSET_M, curtain_panels
+
+    for curtain in room.get("curtains") or []:
+        if float(curtain["bottom_m"]) >= 1.0:
+            continue
+        depth = CURTAIN_OFFSET_M + float(curtain["fold_depth_m"]) + 0.01
+        for a, b in curtain_panels(curtain):
+            spec = {"footprint_m": [b - a, depth], "height_m": float(curtain["rod_z_m"]), "placement": "floor"}
+            x, y = _wall_point(room, curtain["wall"], (a + b) / 2, depth / 2)
+            zones.append(_Placed(-1000 - len(zones), spec, x, y, 0.0, WALL_FACING_YAW_DEG[curtain["wall"]],
+                                 "curtain_zone", None, wall=curtain["wall"]).prepare(0.0))
+    return zones
+
+
 class _Placer:
-    def __init__(self, room: dict[str, Any], rng: np.random.Generator, clearance_m: float, max_tries: int) -> None:
+    def __init__(self, room: dict[str, Any], rng: np.random.Generator, clearance_m: float, max_tries: int,
+                 mode: str = "free") -> None:
         self.room = room
+        self.mode = mode
         self.rng = rng
         self.width = float(room["width_m"])
         self.depth = float(room["depth_m"])
@@ -294,6 +414,7 @@ class _Placer:
         self.grow = clearance_m / 2
         self.max_tries = max_tries
         self.placed: list[_Placed] = []
+        self.keep_clear = door_clearance_zones(room)
 
     def floor_cover_fraction(self) -> float:
         area = sum(p.spec["footprint_m"][0] * p.spec["footprint_m"][1] for p in self.placed
@@ -302,9 +423,13 @@ class _Placer:
 
     def free(self, candidate: _Placed, ignore: int | None = None) -> bool:
         candidate.prepare(self.grow)
+        if any(_overlap(candidate, zone) for zone in self.keep_clear):
+            return False
         return not any(_overlap(candidate, other) for other in self.placed if other.index != ignore)
 
-    def try_floor(self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None) -> _Placed | None:
+    def try_floor(self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None, *,
+                  aligned: bool = False) -> _Placed | None:
+        """A free floor spot at a uniform yaw, or (``aligned``) a yaw square to the walls (0, 90, 180, 270°)."""
         hw, hd = spec["footprint_m"][0] / 2, spec["footprint_m"][1] / 2
         yaw = 0.0
         x_range = y_range = (0.0, -1.0)
@@ -312,7 +437,7 @@ class _Placer:
             if attempt % YAW_TRIES == 0 or x_range[0] > x_range[1] or y_range[0] > y_range[1]:
                 # One yaw for a batch of positions: the yaw of a placed item stays uniform
                 # unless a whole batch fails, which only happens in crowded rooms.
-                yaw = _yaw(self.rng)
+                yaw = 90.0 * int(self.rng.integers(4)) if aligned else _yaw(self.rng)
                 c, s = abs(math.cos(math.radians(yaw))), abs(math.sin(math.radians(yaw)))
                 ex, ey = c * hw + s * hd, s * hw + c * hd
                 x_range = (ex + WALL_GAP_M, self.width - ex - WALL_GAP_M)
@@ -408,22 +533,220 @@ class _Placer:
     def place(self, index: int, spec: dict[str, Any], label: str) -> None:
         placement = spec["placement"]
         result: _Placed | None = None
-        if placement == "wall":
+        if self.mode == "home":
+            result = self._place_home(index, spec)
+        elif placement == "wall":
             result = self.try_wall(index, spec, self.max_tries)
         else:
             if placement == "surface":
                 result = self.try_surface(index, spec)
             if result is None and self.rng.random() < AGAINST_WALL_PROBABILITY.get(spec["class_name"], 0.0):
-                result = self.try_against_wall(index, spec, self.max_tries // 2)
+                result = self.try_against_wall(index, spec, self.max_tries // 2, self._clear_of_windows)
             if result is None:
                 result = self.try_floor(index, spec, self.max_tries)
         if result is None:
             where = "on any wall" if placement == "wall" else "collision-free"
+            doors = (f", {len(self.keep_clear)} zone(s) in front of doors and curtains kept free"
+                     if self.keep_clear else "")
             raise _Failure(
                 f"cannot place {label} in a {self.width:.1f} × {self.depth:.1f} m room: no {where} spot after "
-                f"{self.max_tries} tries (floor {100 * self.floor_cover_fraction():.0f}% covered)"
+                f"{self.max_tries} tries (floor {100 * self.floor_cover_fraction():.0f}% covered{doors})"
             )
         self.placed.append(result)
+
+    # -- home arrangement -------------------------------------------------------------------------------
+
+    def _place_home(self, index: int, spec: dict[str, Any]) -> _Placed | None:
+        """Try the class's relations in order of preference, then a free spot (wall-aligned yaw, then any)."""
+        placement = spec["placement"]
+        if placement == "wall":
+            return self.try_wall(index, spec, self.max_tries)
+        tries = self.max_tries
+        result: _Placed | None = None
+        if placement == "surface":
+            # Surface items prefer a top: twice the free draws before they give up on one.
+            result = self.try_surface(index, spec) or self.try_surface(index, spec)
+            role = "against_wall"
+        else:
+            role = HOME_ROLES.get(spec["class_name"], "other")
+        if result is None:
+            result = self._by_role(index, spec, role)
+        if result is None:
+            # A free spot square to the walls, not in front of a window; then, crowded, any free spot.
+            result = self.try_floor(index, spec, tries // 2, aligned=True, accept=self._clear_of_windows)
+        if result is None:
+            result = self.try_floor(index, spec, tries // 2)
+        return result
+
+    def _by_role(self, index: int, spec: dict[str, Any], role: str) -> _Placed | None:
+        classes = {p.index: p.spec["class_name"] for p in self.placed if p.anchor in ("floor", "against_wall")}
+        of = {name: [p for p in self.placed if classes.get(p.index) == name] for name in set(classes.values())}
+        if role == "against_wall":
+            return self.try_against_wall(index, spec, self.max_tries // 2, self._clear_of_windows)
+        if role == "dining_table":
+            # First a spot with the chair zone free all round, then any aligned spot.
+            return self.try_floor(index, spec, self.max_tries // 2, aligned=True,
+                                  accept=lambda c: self._clear_of_windows(c) and self._zone_free(c, DINING_ZONE_M))
+        if role == "coffee_table":
+            for host in of.get("sofa", []) + of.get("armchair", []):
+                found = self._in_front_of(index, spec, host, COFFEE_TABLE_GAP_M)
+                if found:
+                    return found
+            return None
+        if role in ("lounge_seat", "chair"):
+            if role == "chair":
+                for table in of.get("dining_table", []):
+                    found = self._round_table(index, spec, table, _dining_slots(table.spec), DINING_CHAIR_GAP_M,
+                                              CHAIR_YAW_JITTER_DEG, "around_table")
+                    if found:
+                        return found
+            jitter = ARMCHAIR_YAW_JITTER_DEG if role == "lounge_seat" else CHAIR_YAW_JITTER_DEG
+            for table in of.get("coffee_table", []):
+                found = self._round_table(index, spec, table, self._lounge_slots(table), LOUNGE_GAP_M, jitter,
+                                          "facing")
+                if found:
+                    return found
+            if role == "lounge_seat":
+                for sofa in of.get("sofa", []):
+                    found = self._in_front_of(index, spec, sofa, FACING_SOFA_GAP_M, turn_deg=180.0,
+                                              jitter_deg=jitter, relation="facing")
+                    if found:
+                        return found
+            return self.try_against_wall(index, spec, self.max_tries // 4, self._clear_of_windows)
+        if role == "footstool":
+            for host in of.get("armchair", []) + of.get("sofa", []):
+                found = self._in_front_of(index, spec, host, FOOTSTOOL_GAP_M)
+                if found:
+                    return found
+            for table in of.get("coffee_table", []):
+                found = self._round_table(index, spec, table, self._lounge_slots(table), FOOTSTOOL_GAP_M, 0.0,
+                                          "facing")
+                if found:
+                    return found
+            return None
+        if role == "beside_seat":
+            seats = [p for name in SEAT_CLASSES for p in of.get(name, [])]
+            for k in self.rng.permutation(len(seats)) if seats else ():
+                found = self._beside(index, spec, seats[int(k)])
+                if found:
+                    return found
+            return self.try_against_wall(index, spec, self.max_tries // 4, self._clear_of_windows)
+        return None
+
+    def _inside_room(self, candidate: _Placed, grow_m: float = 0.0) -> bool:
+        corners = _corners(candidate.spec, candidate.x, candidate.y, candidate.yaw_deg, grow_m)
+        gap = WALL_GAP_M - 1e-9 if grow_m == 0.0 else -1e-9
+        return bool(np.all(corners[:, 0] >= gap) and np.all(corners[:, 0] <= self.width - gap)
+                    and np.all(corners[:, 1] >= gap) and np.all(corners[:, 1] <= self.depth - gap))
+
+    def _clear_of_windows(self, candidate: _Placed) -> bool:
+        # try_floor keeps free items off the walls; arranged items can end up against one (a lamp beside a
+        # sofa that stands at a wall), so check the windows of every wall they come near.
+        corners = _corners(candidate.spec, candidate.x, candidate.y, candidate.yaw_deg)
+        lo, hi = corners.min(axis=0), corners.max(axis=0)
+        near = {"south": lo[1], "north": self.depth - hi[1], "west": lo[0], "east": self.width - hi[0]}
+        for wall, gap in near.items():
+            if gap <= WINDOW_NEAR_WALL_M:
+                u0, u1 = (lo[0], hi[0]) if wall in ("south", "north") else (lo[1], hi[1])
+                if _blocks_window(self.room, wall, float(u0), float(u1), 0.0, candidate.spec["height_m"]):
+                    return False
+        return True
+
+    def _zone_free(self, candidate: _Placed, zone_m: float) -> bool:
+        """The candidate grown by ``zone_m`` (m) on every side stays inside the room and clear of everything."""
+        grown = _Placed(candidate.index, candidate.spec, candidate.x, candidate.y, 0.0, candidate.yaw_deg,
+                        "floor", None)
+        if not self._inside_room(grown, zone_m):
+            return False
+        grown.prepare(self.grow + zone_m)
+        return not any(_overlap(grown, other) for other in [*self.keep_clear, *self.placed])
+
+    def _relative(self, index: int, spec: dict[str, Any], host: _Placed, local_x_m: float, local_y_m: float,
+                  relative_yaw_deg: float, relation: str) -> _Placed | None:
+        """The item at (local_x_m, local_y_m) in the host's frame, turned relative_yaw_deg from the host, if free."""
+        c, s = math.cos(math.radians(host.yaw_deg)), math.sin(math.radians(host.yaw_deg))
+        x = round(host.x + c * local_x_m - s * local_y_m, 6)
+        y = round(host.y + s * local_x_m + c * local_y_m, 6)
+        yaw = round((host.yaw_deg + relative_yaw_deg) % 360.0, 6) % 360.0
+        candidate = _Placed(index, spec, x, y, 0.0, yaw, "floor", None, relation=relation, related_index=host.index)
+        if self._inside_room(candidate) and self._clear_of_windows(candidate) and self.free(candidate):
+            return candidate
+        return None
+
+    def _in_front_of(self, index: int, spec: dict[str, Any], host: _Placed, gap_m: tuple[float, float], *,
+                     turn_deg: float = 0.0, jitter_deg: float = 0.0, relation: str = "in_front_of") -> _Placed | None:
+        """Centred in front of the host (its local +y), ``gap_m`` from its front edge; facing the host's way
+        turned by ``turn_deg`` (180: facing the host)."""
+        host_hd = host.spec["footprint_m"][1] / 2
+        turned = abs(math.sin(math.radians(turn_deg))) > 0.5
+        item_hd = spec["footprint_m"][0 if turned else 1] / 2
+        sideways_m = max(0.0, (host.spec["footprint_m"][0] - spec["footprint_m"][0]) / 4)
+        for _ in range(RELATION_TRIES):
+            gap = float(self.rng.uniform(*gap_m))
+            lx = float(self.rng.uniform(-sideways_m, sideways_m))
+            yaw = turn_deg + (float(self.rng.uniform(-jitter_deg, jitter_deg)) if jitter_deg else 0.0)
+            found = self._relative(index, spec, host, lx, host_hd + gap + item_hd, yaw, relation)
+            if found:
+                return found
+        return None
+
+    def _beside(self, index: int, spec: dict[str, Any], seat: _Placed) -> _Placed | None:
+        """Beside a seat's arm (a bed's head end), aligned with it, its back near the seat's back."""
+        seat_hw, seat_hd = seat.spec["footprint_m"][0] / 2, seat.spec["footprint_m"][1] / 2
+        item_hw, item_hd = spec["footprint_m"][0] / 2, spec["footprint_m"][1] / 2
+        back = -seat_hd + item_hd
+        # A night stand stands at the head of a bed; beside a sofa anywhere from its back to its front.
+        front = back + 0.1 if seat.spec["class_name"] == "bed" else max(back, seat_hd - item_hd)
+        for _ in range(RELATION_TRIES):
+            side = 1.0 if self.rng.random() < 0.5 else -1.0
+            gap = float(self.rng.uniform(*BESIDE_GAP_M))
+            ly = float(self.rng.uniform(back, front))
+            found = self._relative(index, spec, seat, side * (seat_hw + gap + item_hw), ly, 0.0, "beside")
+            if found:
+                return found
+        return None
+
+    def _lounge_slots(self, table: _Placed) -> list[tuple[str, float]]:
+        """Sides of a coffee table a seat may face it from: both ends, and the far side from the sofa it serves."""
+        sides = ["+x", "-x", "+y"]
+        if table.relation != "in_front_of":
+            sides.append("-y")
+        return [(side, 0.0) for side in sides]
+
+    def _round_table(self, index: int, spec: dict[str, Any], table: _Placed, slots: list[tuple[str, float]],
+                     gap_m: tuple[float, float], jitter_deg: float, relation: str) -> _Placed | None:
+        """A seat at one of the table's places (side, offset along it), its front ``gap_m`` from the edge,
+        facing the table."""
+        t_hw, t_hd = table.spec["footprint_m"][0] / 2, table.spec["footprint_m"][1] / 2
+        item_hd = spec["footprint_m"][1] / 2
+        order = self.rng.permutation(len(slots)) if slots else []
+        per_slot = max(2, RELATION_TRIES // max(1, len(slots)))
+        for k in order:
+            side, along = slots[int(k)]
+            for _ in range(per_slot):
+                distance = float(self.rng.uniform(*gap_m)) + item_hd
+                jitter = float(self.rng.uniform(-jitter_deg, jitter_deg)) if jitter_deg else 0.0
+                # The seat's front (local +y) turned to the table: yaw relative to the table per side.
+                lx, ly, yaw = {"-y": (along, -(t_hd + distance), 0.0), "+y": (along, t_hd + distance, 180.0),
+                               "+x": (t_hw + distance, along, 90.0), "-x": (-(t_hw + distance), along, 270.0)}[side]
+                found = self._relative(index, spec, table, lx, ly, yaw + jitter, relation)
+                if found:
+                    return found
+        return None
+
+
+def _dining_slots(table_spec: dict[str, Any]) -> list[tuple[str, float]]:
+    """Places at a dining table (side, offset along the side in m): one per :data:`DINING_PLACE_WIDTH_M` of each
+    long side and one at each end; a round table has one per side of its square footprint."""
+    w, d = table_spec["footprint_m"]
+    if str(table_spec.get("variant", "")).startswith("round"):
+        return [("+y", 0.0), ("-y", 0.0), ("+x", 0.0), ("-x", 0.0)]
+    slots: list[tuple[str, float]] = []
+    for sides, length in ((("+y", "-y"), w), (("+x", "-x"), d)):
+        n = max(1, int(length // DINING_PLACE_WIDTH_M))
+        for side in sides:
+            slots += [(side, -length / 2 + (k + 0.5) * length / n) for k in range(n)]
+    return slots
 
 
 def _order(asset_specs: list[dict[str, Any]]) -> list[int]:
@@ -437,6 +760,35 @@ def _order(asset_specs: list[dict[str, Any]]) -> list[int]:
         rank = {"floor": 0, "surface": 1, "wall": 2}[spec["placement"]]
         return rank, -spec["footprint_m"][0] * spec["footprint_m"][1], i
     return sorted(range(len(asset_specs)), key=key)
+
+
+def _order_home(asset_specs: list[dict[str, Any]]) -> list[int]:
+    """Placement order of a home arrangement: floor items by role (:data:`HOME_ROLES`: what others are arranged
+    round comes first), largest first within a role; then surface items, then wall items."""
+    def key(i: int) -> tuple[int, int, float, int]:
+        spec = asset_specs[i]
+        rank = {"floor": 0, "surface": 1, "wall": 2}[spec["placement"]]
+        role = _ROLE_ORDER.index(HOME_ROLES.get(spec["class_name"], "other")) if rank == 0 else 0
+        return rank, role, -spec["footprint_m"][0] * spec["footprint_m"][1], i
+    return sorted(range(len(asset_specs)), key=key)
+
+
+def choose_layout_mode(free_placement_probability: float, rng: np.random.Generator) -> str:
+    """``"free"`` with ``free_placement_probability``, else ``"home"`` (:data:`LAYOUT_MODES`).
+
+    Always takes exactly one uniform draw from ``rng``, whatever the probability, so the
+    draws after it do not depend on it. Raises :class:`LayoutError` for a probability outside [0, 1].
+    """
+    p = float(free_placement_probability)
+    if not 0.0 <= p <= 1.0:
+        raise LayoutError(f"free placement probability must be within 0–1, got {free_placement_probability!r}")
+    return "free" if rng.random() < p else "home"
+
+
+def arrangement_of(obj: dict[str, Any]) -> tuple[str, int | None]:
+    """(relation, related instance id) of a placed object's ``arrangement`` record, e.g. ("beside", 3)."""
+    relation, _, related = str(obj.get("arrangement", "free")).partition(":")
+    return relation, int(related) if related else None
 
 
 def _check_composition(room: dict[str, Any], asset_specs: list[dict[str, Any]],
@@ -474,14 +826,21 @@ def _check_composition(room: dict[str, Any], asset_specs: list[dict[str, Any]],
 
 def place_objects(room: dict[str, Any], asset_specs: list[dict[str, Any]], rng: np.random.Generator, *,
                   max_objects_per_m2: float | None = None, clearance_m: float = DEFAULT_CLEARANCE_M,
-                  max_tries: int = DEFAULT_MAX_TRIES, restarts: int = 3) -> list[dict[str, Any]]:
+                  max_tries: int = DEFAULT_MAX_TRIES, restarts: int = 3, mode: str = "free") -> list[dict[str, Any]]:
     """Place every asset spec in the room without collisions; return the objects in input order.
 
     Each object is its asset spec plus ``instance_id`` (1-based, input order),
     ``position_m`` [x, y, z] (the local origin in the world), ``yaw_deg`` in
     [0, 360), ``support_instance_id`` (the host's id for items standing on a
-    surface, else None) and ``anchor`` ("floor", "against_wall", "wall" or
-    "surface"). Wall items also get the ``mount_height_m`` actually used.
+    surface, else None), ``anchor`` ("floor", "against_wall", "wall" or
+    "surface": what holds it) and ``arrangement`` (how it was placed: "free",
+    "against_wall", "wall", "on:<id>", "around_table:<id>", "in_front_of:<id>",
+    "facing:<id>" or "beside:<id>", see the module docstring). Wall items also
+    get the ``mount_height_m`` actually used.
+
+    ``mode`` is "free" (uniform positions and yaws) or "home" (arranged like a
+    home); :func:`choose_layout_mode` draws it from the budget. The door
+    clearance zones of ``room.get("doors", [])`` are kept free in both.
 
     ``max_objects_per_m2`` is the budget's density limit (``budget["room"]
     ["max_objects_per_m2"]``); None means no limit. A failed greedy pass is
@@ -493,17 +852,20 @@ def place_objects(room: dict[str, Any], asset_specs: list[dict[str, Any]], rng: 
         Naming the class, its count and the reason (density limit, too large,
         floor area, or no collision-free spot after ``max_tries`` tries).
     """
+    if mode not in LAYOUT_MODES:
+        raise LayoutError(f"unknown layout mode {mode!r} (known: {', '.join(LAYOUT_MODES)})")
     _check_composition(room, asset_specs, max_objects_per_m2)
+    door_clearance_zones(room)  # a malformed door is refused before any draw
     totals = Counter(s["class_name"] for s in asset_specs)
     labels: dict[int, str] = {}
     seen: Counter[str] = Counter()
     for i, spec in enumerate(asset_specs):
         seen[spec["class_name"]] += 1
         labels[i] = f"{spec['class_name']} #{seen[spec['class_name']]} of {totals[spec['class_name']]}"
-    order = _order(asset_specs)
+    order = _order_home(asset_specs) if mode == "home" else _order(asset_specs)
     failure: _Failure | None = None
     for _ in range(max(1, restarts)):
-        placer = _Placer(room, rng, clearance_m, max_tries)
+        placer = _Placer(room, rng, clearance_m, max_tries, mode)
         try:
             for i in order:
                 placer.place(i, asset_specs[i], labels[i])
@@ -520,6 +882,12 @@ def place_objects(room: dict[str, Any], asset_specs: list[dict[str, Any]], rng: 
             obj["yaw_deg"] = round(p.yaw_deg, 6)
             obj["support_instance_id"] = None if p.support_index is None else p.support_index + 1
             obj["anchor"] = p.anchor
+            if p.related_index is not None:
+                obj["arrangement"] = f"{p.relation}:{p.related_index + 1}"
+            elif p.support_index is not None:
+                obj["arrangement"] = f"on:{p.support_index + 1}"
+            else:
+                obj["arrangement"] = p.anchor if p.anchor in ("wall", "against_wall") else "free"
             if p.anchor == "wall":
                 obj["wall"] = p.wall
                 obj["mount_height_m"] = round(p.z, 6)

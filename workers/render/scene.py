@@ -101,8 +101,9 @@ def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf:
 
 
 def emitting_quad(name: str, centre_m: Any, half_u_m: Any, half_v_m: Any, normal: Any, *,
-                  bsdf: dict[str, Any], emitter: dict[str, Any]) -> Any:
-    """A one-sided area emitter on the rectangle ``centre ± half_u ± half_v`` facing ``normal``.
+                  bsdf: dict[str, Any], emitter: dict[str, Any] | None) -> Any:
+    """A one-sided area emitter on the rectangle ``centre ± half_u ± half_v`` facing ``normal``
+    (``emitter=None``: the same quad, not emitting).
 
     Two triangles (an ``mi.Mesh``) rather than Mitsuba's ``rectangle`` shape: a rectangle keeps its
     placement as constants compiled into the render kernel, so every frame with a differently
@@ -120,7 +121,8 @@ def emitting_quad(name: str, centre_m: Any, half_u_m: Any, half_v_m: Any, normal
     props = mi.Properties()
     props.set_id(name)
     props["bsdf"] = mi.load_dict(bsdf)
-    props["emitter"] = mi.load_dict(emitter)
+    if emitter is not None:
+        props["emitter"] = mi.load_dict(emitter)
     mesh = mi.Mesh(name, vertex_count=4, face_count=2, props=props)
     params = mi.traverse(mesh)
     params["vertex_positions"] = type(params["vertex_positions"])(corners.astype(np.float32).reshape(-1))
@@ -134,6 +136,20 @@ def roughness_to_alpha(roughness: float) -> float:
     return float(roughness) ** 2
 
 
+_IOR = {"plastic": PLASTIC_IOR, "varnish": VARNISH_IOR}
+
+
+def _bsdf_type(kind: str, alpha: float) -> str:
+    """The Mitsuba BSDF plugin a material kind becomes (inside ``twosided``)."""
+    if kind == "diffuse":
+        return "diffuse"
+    if kind in ("plastic", "varnish"):
+        return "plastic" if alpha < SMOOTH_ALPHA else "roughplastic"
+    if kind == "metal":
+        return "roughconductor"
+    raise ValueError(f"unknown material kind {kind!r} (known: diffuse, plastic, varnish, metal)")
+
+
 def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     """Mitsuba BSDF dict for a spec material ``{"kind", "rgb", "roughness"}`` (and an optional ``texture``
     record, :mod:`workers.render.appearance`, whose base-colour image replaces ``rgb``).
@@ -145,27 +161,28 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     kind = material.get("kind", "diffuse")
     rgb = [float(c) for c in material.get("rgb", [0.5, 0.5, 0.5])]
     colour: dict[str, Any] = {"type": "rgb", "value": rgb}
-    if material.get("texture"):
-        from .appearance import texture_linear_rgb
-
+    if material.get("texture") or material.get("user_texture"):
         # Linear RGB already (raw); bilinear lookup, repeated: the box projection's uv run past 1.
-        colour = {"type": "bitmap", "bitmap": _mi().Bitmap(texture_linear_rgb(material["texture"]).copy()), "raw": True,
+        colour = {"type": "bitmap", "bitmap": _mi().Bitmap(_base_colour_image(material).copy()), "raw": True,
                   "filter_type": "bilinear", "wrap_mode": "repeat"}
     alpha = roughness_to_alpha(float(material.get("roughness", 0.5)))
-    if kind == "diffuse":
+    bsdf_type = _bsdf_type(kind, alpha)
+    if bsdf_type == "diffuse":
         inner: dict[str, Any] = {"type": "diffuse", "reflectance": colour}
-    elif kind in ("plastic", "varnish"):
-        ior = PLASTIC_IOR if kind == "plastic" else VARNISH_IOR
-        if alpha < SMOOTH_ALPHA:
-            inner = {"type": "plastic", "diffuse_reflectance": colour, "int_ior": ior}
-        else:
-            inner = {"type": "roughplastic", "distribution": "ggx", "alpha": alpha,
-                     "diffuse_reflectance": colour, "int_ior": ior}
-    elif kind == "metal":
+    elif bsdf_type == "plastic":
+        inner = {"type": "plastic", "diffuse_reflectance": colour, "int_ior": _IOR[kind]}
+    elif bsdf_type == "roughplastic":
+        inner = {"type": "roughplastic", "distribution": "ggx", "alpha": alpha, "diffuse_reflectance": colour,
+                 "int_ior": _IOR[kind]}
+    else:
         inner = {"type": "roughconductor", "material": "none", "distribution": "ggx",
                  "alpha": max(alpha, SMOOTH_ALPHA), "specular_reflectance": colour}
-    else:
-        raise ValueError(f"unknown material kind {kind!r} (known: diffuse, plastic, varnish, metal)")
+    normal = _normal_image(material)
+    if normal is not None:
+        # The relief of tiles and parquet (appearance.NORMAL_MAP_FAMILIES) bends the shading normal.
+        inner = {"type": "normalmap", "bsdf": inner,
+                 "normalmap": {"type": "bitmap", "bitmap": _mi().Bitmap(normal.copy()), "raw": True,
+                               "filter_type": "bilinear", "wrap_mode": "repeat"}}
     return {"type": "twosided", "material": inner}
 
 
@@ -184,6 +201,26 @@ _COLOUR_PARAMETER = {
 }
 
 
+def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
+    """Linear base-colour image of a textured material: a procedural ``texture`` or an upload's ``user_texture``."""
+    if material.get("user_texture"):
+        from .user_materials import texture_linear_rgb as user_texture_linear_rgb
+
+        return user_texture_linear_rgb(material["user_texture"])
+    from .appearance import texture_linear_rgb
+
+    return texture_linear_rgb(material["texture"])
+
+
+def _normal_image(material: dict[str, Any]) -> np.ndarray | None:
+    """The normal map of a procedurally textured material, when its family has one that shows."""
+    if not material.get("texture"):
+        return None
+    from .appearance import texture_normal_rgb
+
+    return texture_normal_rgb(material["texture"])
+
+
 def _snapped_material(material: dict[str, Any]) -> dict[str, Any]:
     kind = material.get("kind", "diffuse")
     roughness = float(material.get("roughness", 1.0))
@@ -194,6 +231,8 @@ def _snapped_material(material: dict[str, Any]) -> dict[str, Any]:
     snapped = {"kind": kind, "rgb": [float(c) for c in material.get("rgb", [0.5, 0.5, 0.5])], "roughness": roughness}
     if material.get("texture"):
         snapped["texture"] = material["texture"]
+    if material.get("user_texture"):
+        snapped["user_texture"] = material["user_texture"]
     return snapped
 
 
@@ -211,22 +250,22 @@ class BsdfPool:
     def acquire(self, material: dict[str, Any]) -> tuple[tuple, Any]:
         mi = _mi()
         snapped = _snapped_material(material)
-        texture = snapped.get("texture")
         # Textured instances are pooled apart, per texture size: their colour is an image, set the same way.
-        texture_shape = None
-        if texture:
-            from .appearance import texture_linear_rgb
-
-            image = texture_linear_rgb(texture)
-            texture_shape = image.shape
-        key = (mi.variant(), snapped["kind"], snapped["roughness"], texture_shape)
+        image = _base_colour_image(snapped) if snapped.get("texture") or snapped.get("user_texture") else None
+        normal = _normal_image(snapped)
+        key = (mi.variant(), snapped["kind"], snapped["roughness"], None if image is None else image.shape,
+               None if normal is None else normal.shape)
         free = self._free.setdefault(key, [])
         if not free:
             return key, mi.load_dict(bsdf_dict(snapped))
         bsdf = free.pop()
         params = mi.traverse(bsdf)
-        name = _COLOUR_PARAMETER[bsdf_dict({k: v for k, v in snapped.items() if k != "texture"})["material"]["type"]]
-        if texture:
+        name = _COLOUR_PARAMETER[_bsdf_type(snapped["kind"], roughness_to_alpha(snapped["roughness"]))]
+        if normal is not None:
+            # Inside a normalmap the BSDF is its nested_bsdf.
+            name = name.replace("brdf_0.", "brdf_0.nested_bsdf.", 1)
+            params["brdf_0.normalmap.data"] = mi.TensorXf(normal.copy())
+        if image is not None:
             params[name.removesuffix(".value") + ".data"] = mi.TensorXf(image.copy())
         else:
             params[name] = snapped["rgb"]
@@ -627,6 +666,59 @@ def _mean_lamp_flux_lm(lights: list[dict[str, Any]]) -> float:
     return sum(lamp_flux) / len(lamp_flux) if lamp_flux and sum(lamp_flux) > 0 else 0.0
 
 
+#: Window glass: soda-lime float glass, refractive index about 1.52 (from memory; 1.5 is the usual round value).
+GLASS_IOR = 1.5
+
+
+def thin_glass_transmittance(cos_theta: Any, ior: float = GLASS_IOR) -> np.ndarray:
+    """Transmittance of a thin non-absorbing pane (both faces, all inner reflections) at incidence cos θ.
+
+    Unpolarized Fresnel reflectance r of one air–glass face, then the geometric series of the light bounced
+    between the faces: R = r + (1 − r)² r / (1 − r²) = 2r / (1 + r), T = 1 − R — the model of Mitsuba's
+    ``thindielectric`` BSDF. At normal incidence and n = 1.5: r = 0.04, T = 0.923.
+
+    References
+    ----------
+    E. Hecht, *Optics*, 5th ed. (2017), §4.6 (Fresnel equations); Mitsuba 3 documentation, ``thindielectric``.
+    """
+    cos_i = np.clip(np.abs(np.asarray(cos_theta, dtype=np.float64)), 1e-9, 1.0)
+    sin_t = np.sqrt(np.maximum(0.0, 1.0 - cos_i**2)) / ior
+    cos_t = np.sqrt(np.maximum(0.0, 1.0 - sin_t**2))
+    r_s = ((cos_i - ior * cos_t) / (cos_i + ior * cos_t)) ** 2
+    r_p = ((ior * cos_i - cos_t) / (ior * cos_i + cos_t)) ** 2
+    r = 0.5 * (r_s + r_p)
+    return 1.0 - 2.0 * r / (1.0 + r)
+
+
+def diffuse_glass_transmittance(ior: float = GLASS_IOR) -> float:
+    """Cosine-weighted hemispherical mean of :func:`thin_glass_transmittance`: T̄ = 2 ∫₀¹ T(μ) μ dμ (0.845 at 1.5),
+    the fraction of a uniform sky's light that a pane lets into a room."""
+    mu, weights = np.polynomial.legendre.leggauss(64)
+    mu = 0.5 * (mu + 1.0)
+    return float(np.sum(0.5 * weights * 2.0 * thin_glass_transmittance(mu, ior) * mu))
+
+
+def glass_bsdf() -> dict[str, Any]:
+    """The window pane: transmits T̄ (:func:`diffuse_glass_transmittance`) straight through at every angle and
+    mirrors the rest (a ``mask`` of opacity 1 − T̄ over a perfect mirror).
+
+    Real glass transmits 0.92 at normal incidence and less at grazing angles (Fresnel). The pane keeps
+    its hemispherical mean instead, so the light a uniform sky sends into the room is right, and so the
+    portal (which can only emit the same radiance in every direction) and the brute-force pane are the
+    same optical model; what differs is only how the light is found, which the portal test checks.
+    """
+    return {"type": "mask", "opacity": {"type": "uniform", "value": 1.0 - diffuse_glass_transmittance()},
+            "bsdf": {"type": "conductor", "material": "none"}}
+
+
+def window_glass_entries(room: dict[str, Any]) -> dict[str, Any]:
+    """Plain panes (thin dielectric, no emission) in the window openings' outer faces: the glass of
+    ``window_light="dome"``, where the sky is found by paths that leave through it."""
+    return {f"window_glass_{index}": emitting_quad(f"window_glass_{index}", frame["centre_m"], frame["u"], frame["v"],
+                                                   frame["normal"], bsdf=glass_bsdf(), emitter=None)
+            for index, frame in enumerate(window_portal_frames(room))}
+
+
 def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
     """Each window opening's outer rectangle: centre, in-plane half axes and inward normal (world, m).
 
@@ -667,8 +759,9 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
     emitter of radiance L filling each opening therefore gives the same radiance along every path
     from inside (nothing outside the room's convex shell can send a ray back in), so the estimate
     stays unbiased — while next-event estimation now aims shadow rays at the openings instead of at
-    the whole sphere, most of which the walls block. Each portal's BSDF is black (nothing outside
-    reflects). Its NEE sampling weight is its flux Φ = π L A = E A over ``reference_flux_lm`` (the
+    the whole sphere, most of which the walls block. Each portal is also the window's pane
+    (:func:`glass_bsdf`): it mirrors part of the room and emits the sky times the pane's transmittance T̄;
+    the rays it lets through leave the room and meet nothing. Its NEE sampling weight is its flux Φ = π L A = E A over ``reference_flux_lm`` (the
     mean lamp flux, or the mean portal flux without lamps), at least 1 with lamps.
 
     References
@@ -679,11 +772,11 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
     """
     from .lights import emitter_quantities
 
-    radiance_rgb = emitter_quantities(dome)["radiance_rgb"]
+    radiance_rgb = [v * diffuse_glass_transmittance() for v in emitter_quantities(dome)["radiance_rgb"]]
     frames = window_portal_frames(room)
     if not frames or max(radiance_rgb) <= 0:
         return {}
-    fluxes = [float(dome["illuminance_lux"]) * frame["area_m2"] for frame in frames]
+    fluxes = [float(dome["illuminance_lux"]) * frame["area_m2"] * diffuse_glass_transmittance() for frame in frames]
     reference = reference_flux_lm if reference_flux_lm > 0 else sum(fluxes) / len(fluxes)
     entries = {}
     for index, (frame, flux_lm) in enumerate(zip(frames, fluxes, strict=True)):
@@ -693,7 +786,7 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
         name = f"window_portal_{index}"
         entries[name] = emitting_quad(
             name, frame["centre_m"], frame["u"], frame["v"], frame["normal"],
-            bsdf={"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.0, 0.0, 0.0]}},
+            bsdf=glass_bsdf(),
             emitter={"type": "area", "radiance": {"type": "rgb", "value": list(radiance_rgb)},
                      "sampling_weight": round(float(weight), 6)})
     return entries
@@ -791,8 +884,10 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
     """Spec → loaded Mitsuba scene (both sensors, path integrator settings, shape → instance map).
 
     ``window_light="portal"`` puts the sky into the window openings
-    (:func:`window_portal_entries`) and, when there is a sun, builds ``sun_scene`` with the sun
-    alone; ``"dome"`` keeps every light in one scene with the sky as a constant emitter.
+    (:func:`window_portal_entries`, which are also the panes); ``"dome"`` keeps the sky as a constant
+    emitter behind plain panes (:func:`window_glass_entries`), found only by paths that leave through them.
+    In both, a sun shining into a room with windows renders in ``sun_scene``, alone and without the panes
+    (glass would stop its shadow rays), at the glass's transmittance (:func:`glass_bsdf`).
     """
     from .appearance import box_uv, yaw_frame
     from .camera import aperture_radius_m, camera_matrices
@@ -811,8 +906,11 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
     )
     parts, triangles = scene_parts(spec)
     lights = spec["lights"]
-    use_portals = window_light == "portal" and bool(spec["room"].get("windows"))
-    sun_lights = [light for light in lights if light["kind"] == "sun"] if use_portals else []
+    windows = bool(spec["room"].get("windows"))
+    use_portals = window_light == "portal" and windows
+    # Glass stops the sun's shadow rays (a delta light behind a delta pane), so with windows the sun renders
+    # in a scene of its own, without the panes, its irradiance times the glass's transmittance.
+    sun_lights = [light for light in lights if light["kind"] == "sun"] if windows else []
     acquired: list[tuple[tuple, Any]] = []
     try:
         bsdfs: dict[str, Any] = {}
@@ -823,8 +921,8 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
             if key not in bsdfs:
                 acquired.append(BSDF_POOL.acquire(material))
                 bsdfs[key] = acquired[-1][1]
-            uv = None
-            if material.get("texture"):
+            uv = material.get("uv")  # an upload's own texture coordinates (workers.render.assets, look "keep")
+            if uv is None and material.get("texture"):
                 # Room surfaces are projected in the room's frame, objects and distractors in their own (the grain
                 # turns with them).
                 owner = objects_by_instance.get(instance_of_shape_id(shape_id))
@@ -844,9 +942,12 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
                 elif light["kind"] != "sun":
                     scene_dict.update(emitter_entries(light, index))
         else:
+            if windows:
+                scene_dict.update(window_glass_entries(spec["room"]))
             weights = emitter_sampling_weights(lights, spec["room"])
             for index, (light, weight) in enumerate(zip(lights, weights, strict=True)):
-                scene_dict.update(emitter_entries(light, index, sampling_weight=weight))
+                if light["kind"] != "sun" or not sun_lights:
+                    scene_dict.update(emitter_entries(light, index, sampling_weight=weight))
         built = load_scene(scene_dict, width_px=width_px, height_px=height_px, k_matrix=k_matrix,
                            rotation=rotation, translation=translation, spp=int(render["spp"]),
                            max_depth=int(render["max_depth"]))
@@ -855,7 +956,9 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
             sun_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: dict(rgb_sensor), **shapes}
             for index, light in enumerate(lights):
                 if light["kind"] == "sun":
-                    sun_dict.update(emitter_entries(light, index))
+                    through_glass = {**light, "illuminance_lux": float(light["illuminance_lux"])
+                                     * diffuse_glass_transmittance()}
+                    sun_dict.update(emitter_entries(through_glass, index))
             built.sun_scene = _mi().load_dict(sun_dict)
             opaque_lens_constants(built.sun_scene)
             built.sun_sensor = built.sun_scene.sensors()[0]

@@ -114,6 +114,7 @@ def make_spec(
     lighting_seed: int | None = None,
     camera_seed: int | None = None,
     user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None = None,
+    view_slot: int | None = None,
 ) -> dict[str, Any]:
     """Sample a complete frame spec.
 
@@ -131,16 +132,22 @@ def make_spec(
         composition) have the same room and objects.
     user_assets : mapping, optional
         ``{class_name: [entry, ...]}`` of uploaded meshes, each entry ``{"asset_id", "mesh_path", "unit",
-        "up_axis", "placement"}``. Each instance of a class with entries picks uniformly (layout stream) among
+        "up_axis", "placement"}`` and optionally ``"front"`` (the file axis the model faces, ±x/±y/±z) and
+        ``"look"`` ("keep" the model's materials or "randomize", the default). Each instance of a class with entries picks uniformly (layout stream) among
         the procedural generator and the entries; a picked entry becomes a
         :func:`workers.render.assets.user_asset_spec` carrying the entry's ``asset_id`` (and its mesh path, so
         the spec re-renders from its JSON). None or no entries for a class: that class samples exactly as before.
+    view_slot : int, optional
+        This view's index among the views of its layout (lighting index × views per lighting + view index).
+        Given, the camera pose is drawn apart from the layout's earlier views
+        (:func:`workers.render.camera.sample_camera`); None draws it from the camera stream alone.
 
     Returns
     -------
     dict
         JSON-able spec: ``format_version``, ``seed``, ``sub_seeds``, ``budget``, ``composition``,
-        ``render``, ``room``, ``objects``, ``lights``, ``camera``, ``thresholds``; ``distractors`` (unlabelled
+        ``render``, ``room``, ``layout_mode`` ("free" or "home", :func:`workers.render.layout.choose_layout_mode`),
+        ``objects``, ``lights``, ``camera``, ``thresholds``; ``distractors`` (unlabelled
         clutter, :mod:`workers.render.distractors`) only when there are any.
 
     Raises
@@ -151,21 +158,25 @@ def make_spec(
     from .appearance import assign_textures
     from .camera import sample_camera
     from .distractors import clear_of_camera_and_lights, sample_distractors
-    from .layout import place_objects, sample_room
+    from .layout import choose_layout_mode, place_objects, sample_room
     from .lights import sample_lights
 
     normalized = normalize_budget(budget)
     clean_composition = validate_composition(composition)
     sub_seeds = derive_sub_seeds(seed, layout_seed=layout_seed, lighting_seed=lighting_seed,
                                  camera_seed=camera_seed)
+    if view_slot is not None:
+        _check_seed("view_slot", view_slot)
 
     layout_rng = axis_rng(sub_seeds, "layout")
     room = round_floats(sample_room(normalized, layout_rng))
     clean_user_assets = _clean_user_assets(user_assets, clean_composition)
     asset_specs = [_sample_object(name, layout_rng, clean_user_assets.get(name, ()))
                    for name, count in clean_composition.items() for _ in range(count)]
+    # One draw on the layout stream picks free placement or a home arrangement (layout.choose_layout_mode).
+    layout_mode = choose_layout_mode(normalized["room"]["free_placement_probability"], layout_rng)
     objects = place_objects(room, asset_specs, layout_rng,
-                            max_objects_per_m2=normalized["room"]["max_objects_per_m2"])
+                            max_objects_per_m2=normalized["room"]["max_objects_per_m2"], mode=layout_mode)
     objects = round_floats(objects)
     # Distractors (unlabelled clutter) go in after the labelled objects, on a stream of their own keyed by the
     # layout; with distractor_count [0, 0] nothing is drawn and the spec is what it was without them.
@@ -178,7 +189,7 @@ def make_spec(
     room, objects, distractors = round_floats(room), round_floats(objects), round_floats(distractors)
 
     lights = round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
-    camera = round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera")))
+    camera = round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera"), view_slot=view_slot))
     distractors = clear_of_camera_and_lights(distractors, camera, lights)
 
     spec = {
@@ -189,6 +200,7 @@ def make_spec(
         "composition": clean_composition,
         "render": _render_settings(normalized),
         "room": room,
+        "layout_mode": layout_mode,
         "objects": objects,
         "lights": lights,
         "camera": camera,
@@ -205,12 +217,16 @@ def make_spec(
 
 
 
-_USER_ENTRY_KEYS = ("asset_id", "mesh_path", "unit", "up_axis", "placement")
+_USER_ENTRY_KEYS = ("asset_id", "mesh_path", "unit", "up_axis", "placement", "front", "look")
+_USER_LOOKS = ("keep", "randomize")
 
 
 def _clean_user_assets(user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None,
                        composition: dict[str, int]) -> dict[str, list[dict[str, str]]]:
-    """The entries of the classes in the composition (with at least one instance), in a fixed order."""
+    """The entries of the classes in the composition (with at least one instance), in a fixed order.
+
+    ``front`` and ``look`` are kept only when they differ from the defaults (no front: the up axis's default;
+    look "randomize"), so the specs of entries made before they existed keep their bytes."""
     if not user_assets:
         return {}
     clean: dict[str, list[dict[str, str]]] = {}
@@ -222,9 +238,21 @@ def _clean_user_assets(user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | 
         for entry in entries:
             if not entry.get("asset_id") or not entry.get("mesh_path"):
                 raise SpecError(f"user_assets: an entry of {name!r} needs an asset_id and a mesh_path")
-            rows.append({"asset_id": str(entry["asset_id"]), "mesh_path": str(entry["mesh_path"]),
-                         "unit": str(entry.get("unit") or "auto"), "up_axis": str(entry.get("up_axis") or "z"),
-                         "placement": str(entry.get("placement") or "floor")})
+            unknown = set(entry) - set(_USER_ENTRY_KEYS)
+            if unknown:
+                raise SpecError(f"user_assets: unknown key(s) {', '.join(sorted(map(str, unknown)))} in an entry of "
+                                f"{name!r} (known: {', '.join(_USER_ENTRY_KEYS)})")
+            look = str(entry.get("look") or "randomize")
+            if look not in _USER_LOOKS:
+                raise SpecError(f"user_assets: look {look!r} of {name!r} is not one of {', '.join(_USER_LOOKS)}")
+            row = {"asset_id": str(entry["asset_id"]), "mesh_path": str(entry["mesh_path"]),
+                   "unit": str(entry.get("unit") or "auto"), "up_axis": str(entry.get("up_axis") or "z"),
+                   "placement": str(entry.get("placement") or "floor")}
+            if entry.get("front"):
+                row["front"] = str(entry["front"])
+            if look != "randomize":
+                row["look"] = look
+            rows.append(row)
         clean[str(name)] = rows
     return clean
 
@@ -240,6 +268,7 @@ def _sample_object(class_name: str, rng: np.random.Generator, entries: Sequence[
         return sample_asset(class_name, rng)
     entry = entries[pick - 1]
     spec = user_asset_spec(entry["mesh_path"], class_name, entry["placement"], rng, unit=entry["unit"],
-                           up_axis=entry["up_axis"])
+                           up_axis=entry["up_axis"], front=entry.get("front") or None,
+                           look=entry.get("look", "randomize"))
     spec["asset_id"] = entry["asset_id"]
     return spec

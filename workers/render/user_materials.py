@@ -1,0 +1,289 @@
+"""The look of an uploaded model: its materials, read from trimesh's loaded visuals, as spec materials.
+
+An uploaded GLB / glTF or OBJ + MTL keeps its look when its asset says so (``look="keep"``):
+
+- :func:`visual_look` reads one part's visual (``TextureVisuals`` with a ``PBRMaterial`` or ``SimpleMaterial``,
+  or ``ColorVisuals``) into a plain :class:`Look`: base colour (linear), roughness, metallic and the base-colour
+  texture (sRGB-encoded 8-bit pixels, at most :data:`MAX_TEXTURE_PX` a side);
+- :func:`look_material` turns a look into a spec material (``workers/render/README.md``): metallic ≥ 0.5 →
+  ``metal`` (its base colour is the specular colour), else ``plastic`` (a dielectric of IOR 1.5 under a diffuse
+  base), roughness as the file has it; a textured part adds ``user_texture``, a JSON record naming the model file
+  and part, so the spec still re-renders from its JSON alone;
+- :func:`texture_linear_rgb` gives the scene (``workers.render.scene.bsdf_dict``) that part's base colour as a
+  linear float32 image: the texture decoded from sRGB times the base-colour factor.
+
+Not carried over: normal maps (Mitsuba 3 has a ``normalmap`` BSDF, but wrapping every textured part in it adds a
+BSDF type — one more kernel compile per frame structure — and changes the pooled BSDF's parameter paths, so it is
+left out), metallic-roughness and occlusion textures (their factors are used), emission, transparency (alpha is
+dropped: the part renders opaque), texture transforms and second UV sets.
+
+References
+----------
+- glTF 2.0 specification (Khronos, 2021), §3.9 "Materials": base colour = ``baseColorFactor`` × ``baseColorTexture``,
+  the texture sRGB-encoded, the factor linear; ``metallicFactor`` and ``roughnessFactor`` default to 1; dielectrics
+  have F0 = 0.04 (IOR 1.5); roughness is perceptual, alpha = roughness².
+- Wavefront MTL format (Alias|Wavefront, 1995): ``Kd`` diffuse colour, ``map_Kd`` diffuse texture, multiplied by Kd.
+- IEC 61966-2-1:1999 sRGB transfer function (:mod:`workers.render.srgb`).
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import os
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import srgb
+
+#: Largest texture side kept; bigger images are downsampled (a 1024 px texture already gives ~1 mm texels on a
+#: 1 m object, finer than a pixel of our frames; common practice for real-time asset budgets).
+MAX_TEXTURE_PX = 1024
+#: Base colour of a part that has no material at all: a neutral light grey (sRGB 0.7, linear ≈ 0.45).
+DEFAULT_RGB_LINEAR = (0.448, 0.448, 0.448)
+LOOKS: tuple[str, ...] = ("keep", "randomize")
+#: A dielectric this rough renders as plain diffuse: at GGX alpha = roughness² ≥ 0.9 the 4 % coat's highlight is
+#: spread over the hemisphere and no longer visible, and a diffuse BSDF is cheaper and noise-free (common practice).
+ROUGH_AS_DIFFUSE = 0.95
+# Albedo clamp: no real surface reflects all or none of the light; a texel at 0 or 1 would make the path tracer's
+# energy (and the denoiser's albedo) unphysical. Same idea as the procedural palette's clamp (common practice).
+_ALBEDO_MIN, _ALBEDO_MAX = 0.01, 0.95
+
+
+@dataclass
+class Look:
+    """One part's material: ``rgb`` linear base colour (the factor), ``roughness`` and ``metallic`` in 0..1,
+    ``texture`` (H, W, 3) uint8 sRGB-encoded base-colour pixels or None."""
+
+    rgb: tuple[float, float, float] = DEFAULT_RGB_LINEAR
+    roughness: float = 0.6
+    metallic: float = 0.0
+    texture: np.ndarray | None = field(default=None, repr=False)
+    name: str = ""
+
+
+def _unit_colour(value: Any) -> np.ndarray | None:
+    """RGB(A) colour as floats 0..1: trimesh keeps colours as uint8 (0..255), files may give floats."""
+    if value is None:
+        return None
+    array = np.asarray(value, dtype=np.float64).reshape(-1)
+    if array.size < 3 or not np.all(np.isfinite(array)):
+        return None
+    if np.asarray(value).dtype == np.uint8 or array.max() > 1.0:
+        array = array / 255.0
+    return np.clip(array[:3], 0.0, 1.0)
+
+
+def _texture_pixels(image: Any) -> np.ndarray | None:
+    """PIL image → (H, W, 3) uint8, alpha dropped, downsampled to :data:`MAX_TEXTURE_PX`."""
+    if image is None:
+        return None
+    try:
+        from PIL import Image
+
+        rgb = image.convert("RGB")
+        if max(rgb.size) > MAX_TEXTURE_PX:
+            rgb.thumbnail((MAX_TEXTURE_PX, MAX_TEXTURE_PX), Image.Resampling.LANCZOS)
+        pixels = np.asarray(rgb, dtype=np.uint8)
+    except (OSError, ValueError, AttributeError):
+        return None
+    return pixels if pixels.ndim == 3 and pixels.shape[0] > 0 and pixels.shape[1] > 0 else None
+
+
+def _factor(value: Any, default: float) -> float:
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return default
+    return float(np.clip(number, 0.0, 1.0)) if np.isfinite(number) else default
+
+
+def visual_look(visual: Any, *, has_uv: bool) -> Look:
+    """The :class:`Look` of one trimesh visual. A texture is kept only when the part has texture coordinates.
+
+    ``SimpleMaterial`` (OBJ + MTL): ``Kd`` is the (linear) base colour, its image the texture, roughness from the specular
+    exponent by trimesh's ``to_pbr`` ((2 / (Ns + 2))^¼), metallic 0 (MTL has no metals). ``PBRMaterial`` (glTF):
+    factors as stored, a missing metallic or roughness factor is 1 (glTF 2.0 §3.9.2 defaults).
+    ``ColorVisuals``: the main vertex or face colour (sRGB-encoded 8-bit).
+    """
+    from trimesh.visual.material import PBRMaterial, SimpleMaterial
+
+    material = getattr(visual, "material", None)
+    if isinstance(material, SimpleMaterial):
+        base = _unit_colour(material.diffuse)
+        pbr = material.to_pbr()
+        texture = _texture_pixels(material.image) if has_uv else None
+        # Kd is read as linear, like glTF's factor: it multiplies the map (MTL), and Blender's exporter writes the
+        # linear base colour there.
+        rgb = base if base is not None else np.asarray(DEFAULT_RGB_LINEAR)
+        return Look(rgb=_rgb_tuple(rgb), roughness=_factor(pbr.roughnessFactor, 0.6), metallic=0.0,
+                    texture=texture, name=str(getattr(material, "name", "") or ""))
+    if isinstance(material, PBRMaterial):
+        # glTF: baseColorFactor is linear already (§3.9.2); trimesh stores it as 8-bit.
+        base = _unit_colour(material.baseColorFactor)
+        rgb = base if base is not None else np.ones(3)
+        texture = _texture_pixels(material.baseColorTexture) if has_uv else None
+        if texture is None and material.baseColorTexture is None and base is None:
+            rgb = np.asarray(DEFAULT_RGB_LINEAR)
+        return Look(rgb=_rgb_tuple(rgb), roughness=_factor(material.roughnessFactor, 1.0),
+                    metallic=_factor(material.metallicFactor, 1.0), texture=texture,
+                    name=str(getattr(material, "name", "") or ""))
+    if getattr(visual, "kind", None) in ("vertex", "face"):
+        colour = _unit_colour(getattr(visual, "main_color", None))
+        if colour is not None:
+            return Look(rgb=_rgb_tuple(srgb.decode(colour)))
+    return Look()
+
+
+def _rgb_tuple(rgb: Any) -> tuple[float, float, float]:
+    array = np.asarray(rgb, dtype=np.float64).reshape(-1)[:3]
+    return tuple(round(float(v), 6) for v in array)  # type: ignore[return-value]
+
+
+def look_rgb_linear(look: Look) -> np.ndarray:
+    """The part's mean linear base colour (texture mean × factor, or the factor), clamped to plausible albedos."""
+    rgb = np.asarray(look.rgb, dtype=np.float64)
+    if look.texture is not None:
+        rgb = rgb * srgb.decode(look.texture.reshape(-1, 3).astype(np.float64) / 255.0).mean(axis=0)
+    return np.clip(rgb, _ALBEDO_MIN, _ALBEDO_MAX)
+
+
+def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Spec material (JSON) of a part: ``{"kind", "rgb", "roughness"}`` plus ``user_texture`` when textured.
+
+    Metallic ≥ 0.5 renders as ``metal`` (glTF: a metal's base colour is its specular F0); a dielectric as
+    ``plastic`` (glTF dielectric: diffuse base under a specular coat of F0 = 0.04, IOR 1.5), or as ``diffuse`` when
+    its roughness is at least :data:`ROUGH_AS_DIFFUSE`. There is no ``family``
+    key, so the procedural texture step never paints over the model's own look.
+    """
+    if look.metallic >= 0.5:
+        kind = "metal"
+    elif look.roughness >= ROUGH_AS_DIFFUSE:
+        kind = "diffuse"
+    else:
+        kind = "plastic"
+    material: dict[str, Any] = {"kind": kind, "rgb": [round(float(v), 6) for v in look_rgb_linear(look)],
+                                "roughness": round(float(look.roughness), 6)}
+    if look.texture is not None and texture_record is not None:
+        material["user_texture"] = dict(texture_record)
+    return material
+
+
+# --- the model cache and the scene hook --------------------------------------------------------------------------
+
+
+@functools.lru_cache(maxsize=16)
+def _cached_model(path: str, mtime_ns: int, size: int, unit: str, up_axis: str, front: str) -> Any:
+    # mtime and size in the key: a replaced file is reloaded, an unchanged one is parsed once per process.
+    from .meshes import load_user_model
+
+    return load_user_model(path, unit=unit, up_axis=up_axis, front=front or None)
+
+
+def load_model_cached(path: str, *, unit: str = "auto", up_axis: str = "z", front: str | None = None) -> Any:
+    """:func:`workers.render.meshes.load_user_model`, parsed once per process per file version. Shared: do not
+    change the returned meshes (copy them)."""
+    from .meshes import MeshError
+
+    try:
+        stat = os.stat(path)
+    except OSError as exc:
+        raise MeshError(f"mesh {Path(path).name}: cannot read the file ({exc.strerror or exc})") from exc
+    return _cached_model(str(path), stat.st_mtime_ns, stat.st_size, unit, up_axis, front or "")
+
+
+def texture_record(*, mesh_path: str, unit: str, up_axis: str, front: str | None, part: int) -> dict[str, Any]:
+    """The spec's ``user_texture`` record: enough to find the part's texture again from the JSON alone."""
+    return {"mesh_path": str(mesh_path), "unit": str(unit), "up_axis": str(up_axis), "front": str(front or ""),
+            "part": int(part)}
+
+
+@functools.lru_cache(maxsize=64)
+def _linear_texture(record_json: str) -> np.ndarray:
+    record = json.loads(record_json)
+    model = load_model_cached(record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"],
+                              front=record.get("front") or None)
+    index = int(record["part"])
+    if not 0 <= index < len(model.parts) or model.parts[index].look.texture is None:
+        raise ValueError(f"user texture: part {index} of {Path(record['mesh_path']).name} has no texture")
+    look = model.parts[index].look
+    linear = srgb.decode(look.texture.astype(np.float32) / np.float32(255.0)) * np.asarray(look.rgb, np.float32)
+    image = np.clip(linear, _ALBEDO_MIN, _ALBEDO_MAX).astype(np.float32)
+    image.setflags(write=False)
+    return image
+
+
+def texture_linear_rgb(record: dict[str, Any]) -> np.ndarray:
+    """Linear-RGB base colour (H, W, 3) float32 of a spec ``user_texture`` record (texture × factor; read-only,
+    cached per process). Row 0 is the image's top row, as Mitsuba's bitmap expects."""
+    return _linear_texture(json.dumps(record, sort_keys=True))
+
+
+def mitsuba_uv(uv: np.ndarray) -> np.ndarray:
+    """File texture coordinates (origin bottom left: OBJ, and glTF as trimesh gives it) → Mitsuba's (origin top
+    left, v down): v ↦ 1 − v."""
+    out = np.array(uv, dtype=np.float64, copy=True)
+    out[:, 1] = 1.0 - out[:, 1]
+    return out
+
+
+# --- files that must come with a model ---------------------------------------------------------------------------
+
+
+_MTLLIB = re.compile(r"^\s*mtllib\s+(.+?)\s*$", re.MULTILINE)
+_MAP = re.compile(r"^\s*map_Kd\s+(.+?)\s*$", re.MULTILINE | re.IGNORECASE)
+
+
+def _last_token(value: str) -> str:
+    # map_Kd may carry options before the file name (-s 1 1 1 name.png); the name is the last token.
+    return value.split()[-1] if value.split() else value
+
+
+def check_textures_present(model_path: Path) -> None:
+    """Refuse an OBJ whose MTL files or base-colour images, or a glTF whose images or buffers, are missing.
+
+    trimesh loads such a model without them (and without a word), which would silently lose its look. Only the
+    file names are read here (``mtllib``, ``map_Kd``; glTF ``images[].uri`` and ``buffers[].uri``); the materials
+    themselves come from trimesh. Raises ``ValueError`` naming the missing file.
+    """
+    folder = model_path.parent
+    suffix = model_path.suffix.lower()
+
+    def need(reference: str, what: str) -> None:
+        relative = reference.replace("\\", "/")
+        if relative.startswith("data:"):
+            return
+        from urllib.parse import unquote
+
+        target = (folder / unquote(relative)).resolve()
+        if not target.is_relative_to(folder.resolve()):
+            raise ValueError(f"the {what} {reference!r} points outside the model's folder")
+        if not target.is_file():
+            raise ValueError(f"the {what} {reference!r} is missing (send the model as a .zip with its files)")
+
+    if suffix == ".obj":
+        with open(model_path, encoding="utf-8", errors="replace") as handle:
+            text = handle.read(MAX_SCAN_BYTES)
+        for match in _MTLLIB.finditer(text):
+            mtl = match.group(1)
+            need(mtl, "material library")
+            mtl_text = (folder / mtl.replace("\\", "/")).read_text(encoding="utf-8", errors="replace")
+            for image in _MAP.finditer(mtl_text):
+                need(_last_token(image.group(1)), "texture")
+    elif suffix == ".gltf":
+        try:
+            document = json.loads(model_path.read_text(encoding="utf-8"))
+        except (OSError, ValueError) as exc:
+            raise ValueError(f"the glTF JSON cannot be read ({exc})") from exc
+        for key, what in (("buffers", "buffer"), ("images", "texture")):
+            for entry in document.get(key, []) if isinstance(document, dict) else []:
+                if isinstance(entry, dict) and isinstance(entry.get("uri"), str):
+                    need(entry["uri"], what)
+
+
+#: mtllib lines sit at the top of an OBJ; reading its first 4 MiB finds them without reading a big file twice.
+MAX_SCAN_BYTES = 4 * 1024 * 1024
