@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import trimesh
 
-from workers.render import assets
+from workers.render import assets, dressing
 
 # Independent copy of the handbook values the geometry is measured against
 # (not read from assets.HANDBOOK_RANGES, so a typo there shows up here).
@@ -250,7 +250,7 @@ def _hits(mesh: trimesh.Trimesh, origin, direction) -> int:
 
 
 def test_room_shell_has_window_openings():
-    parts = {p.name: p for p in assets.room_parts(ROOM)}
+    parts = {p.name: p for p in dressing.room_parts(ROOM)}
     assert set(parts) == {"floor", "ceiling", "wall_south", "wall_north", "wall_west", "wall_east"}
     south, east = parts["wall_south"].mesh, parts["wall_east"].mesh
     centre = [2.0, 1.5, 1.2]

@@ -10,8 +10,8 @@ from scipy import integrate
 from shapely.geometry import Polygon
 
 from workers.render import dressing, layout
-from workers.render.assets import WALL_THICKNESS_M, room_parts
 from workers.render.budget import BudgetError, normalize_budget
+from workers.render.dressing import WALL_THICKNESS_M, room_parts
 
 
 def _rooms(count: int, budget: dict | None = None) -> list[dict]:

@@ -12,7 +12,7 @@ from scipy import stats
 from scipy.spatial.transform import Rotation
 from shapely.geometry import Polygon, box
 
-from workers.render import assets, layout
+from workers.render import assets, dressing, layout
 from workers.render.budget import normalize_budget
 
 COMPOSITIONS = {
@@ -246,4 +246,4 @@ def test_sample_room_follows_the_budget():
     # Reference: scipy's exact binomial test of the budget's window probability.
     assert stats.binomtest(with_window, len(rooms), section["window_probability"]).pvalue > 0.001
     assert {r["floor_finish"] for r in rooms} == {"wood", "tile", "carpet", "concrete"}
-    assets.room_parts(rooms[0])  # a sampled room builds
+    dressing.room_parts(rooms[0])  # a sampled room builds

@@ -410,7 +410,7 @@ def _tapered_box(cx: float, cy: float, z0: float, z1: float, half_bottom: float,
     return _hull(np.array(points))
 
 
-# Public names of the geometry helpers, for generators outside this module (workers.render.distractors).
+# Public names of the geometry helpers, for generators outside this module (distractors, dressing).
 box_mesh = _box
 lathe_mesh = _lathe
 cylinder_mesh = _cylinder_z
@@ -1380,7 +1380,7 @@ USER_LOOKS = ("keep", "randomize")
 
 
 def _load_user_model(path: str, unit: str, up_axis: str, front: str | None) -> meshes.UserModel:
-    from workers.render.user_materials import load_model_cached
+    from workers.render.user_models import load_model_cached
 
     return load_model_cached(path, unit=unit, up_axis=up_axis, front=front)
 
@@ -1464,76 +1464,4 @@ def _build_user_parts(spec: dict[str, Any]) -> list[Part]:
             # scene hands them to the mesh (workers.render.scene.build_scene).
             material["uv"] = mitsuba_uv(user_part.uv)
         parts.append(Part(f"part{k}", mesh, material))
-    return parts
-
-
-# ---------------------------------------------------------------------------
-# Room shell
-# ---------------------------------------------------------------------------
-
-WALL_THICKNESS_M = 0.1  # behind the interior face; only its inner face is ever seen
-
-
-def _wall_length(room: dict[str, Any], wall: str) -> float:
-    return room["width_m"] if wall in ("south", "north") else room["depth_m"]
-
-
-def _wall_boxes(room: dict[str, Any], wall: str) -> list[trimesh.Trimesh]:
-    """Boxes making up one wall with its window openings cut out, in world coordinates.
-
-    The wall is cut on a grid at every opening edge and each column is merged
-    into as few boxes as its openings allow: rectangles around each hole.
-    """
-    length, height, t = _wall_length(room, wall), room["height_m"], WALL_THICKNESS_M
-    openings = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"],
-                 w["sill_m"] + w["height_m"]) for w in room.get("windows", []) if w["wall"] == wall]
-    # The wall runs past both corners by its thickness so the corners are closed.
-    us = sorted({-t, length + t, *(v for o in openings for v in o[:2])})
-    zs = sorted({0.0, height, *(v for o in openings for v in o[2:])})
-    rects = []
-    for u0, u1 in itertools.pairwise(us):
-        um = (u0 + u1) / 2
-        run_start = None
-        for z0, z1 in itertools.pairwise(zs):
-            zm = (z0 + z1) / 2
-            solid = not any(o[0] < um < o[1] and o[2] < zm < o[3] for o in openings)
-            if solid and run_start is None:
-                run_start = z0
-            if not solid and run_start is not None:
-                rects.append((u0, u1, run_start, z0))
-                run_start = None
-        if run_start is not None:
-            rects.append((u0, u1, run_start, height))
-    width, depth = room["width_m"], room["depth_m"]
-    boxes = []
-    for u0, u1, z0, z1 in rects:
-        if wall == "south":
-            boxes.append(_box(u0, u1, -t, 0.0, z0, z1))
-        elif wall == "north":
-            boxes.append(_box(u0, u1, depth, depth + t, z0, z1))
-        elif wall == "west":
-            boxes.append(_box(-t, 0.0, u0, u1, z0, z1))
-        else:
-            boxes.append(_box(width, width + t, u0, u1, z0, z1))
-    return boxes
-
-
-def room_parts(room: dict[str, Any]) -> list[Part]:
-    """Floor, ceiling and four walls (thick boxes outside the interior), window openings cut out.
-
-    World frame: the interior is x ∈ [0, width_m], y ∈ [0, depth_m], z ∈ [0, height_m].
-    """
-    width, depth, height, t = room["width_m"], room["depth_m"], room["height_m"], WALL_THICKNESS_M
-    materials = room["materials"]
-    parts = [
-        Part("floor", _box(-t, width + t, -t, depth + t, -t, 0.0), dict(materials["floor"])),
-        Part("ceiling", _box(-t, width + t, -t, depth + t, height, height + t), dict(materials["ceiling"])),
-    ]
-    for wall in ("south", "north", "west", "east"):
-        boxes = _wall_boxes(room, wall)
-        mesh = boxes[0] if len(boxes) == 1 else _concatenate(boxes)
-        parts.append(Part(f"wall_{wall}", mesh, dict(materials["wall"])))
-    from .dressing import dressing_parts
-
-    parts += [Part(name, mesh, material) for name, mesh, material in dressing_parts(room)]
     return parts

@@ -26,11 +26,17 @@ and 10–20 cm past each side (common practice).
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import trimesh
+
+from workers.render import assets
+
+WALLS: tuple[str, ...] = ("south", "north", "west", "east")
+WALL_THICKNESS_M = 0.1  # behind the interior face; only its inner face is ever seen
 
 
 #: Room types and the finishes they make plausible (common practice, not a survey): floor finish weights
@@ -115,8 +121,6 @@ def _door_span(door: dict[str, Any]) -> tuple[float, float]:
 
 def _sample_door(room: dict[str, Any], rng: np.random.Generator) -> dict[str, Any] | None:
     """One closed door on a wall, clear of windows, other doors and corners; None when no wall has room."""
-    from .layout import WALLS
-
     width = float(rng.uniform(*DOOR_WIDTH_M))
     architrave = float(rng.uniform(*ARCHITRAVE_WIDTH_M))
     height = min(float(rng.uniform(*DOOR_HEIGHT_M)), float(room["height_m"]) - DOOR_HEAD_GAP_M - architrave)
@@ -192,8 +196,6 @@ def sample_dressing(room: dict[str, Any], budget: dict[str, Any], rng: np.random
     ``materials`` (floor, wall, ceiling, skirting, door, architrave, handle, window_frame, curtain),
     ``doors``, ``skirting``, ``window_frames`` (one per window) and ``curtains``.
     """
-    from .assets import sample_material
-
     section = budget["room"]
     kinds = list(section["room_types"])
     room_type = kinds[int(rng.integers(len(kinds)))]
@@ -202,31 +204,31 @@ def sample_dressing(room: dict[str, Any], budget: dict[str, Any], rng: np.random
     finish = _choice(recipe.floor_weights, rng)
     room["floor_finish"] = finish
     wallpaper = bool(rng.random() < recipe.wallpaper_probability)
-    wall_material = sample_material("wall_paint", rng)
+    wall_material = assets.sample_material("wall_paint", rng)
     if wallpaper:
         wall_material = {**wall_material, "family": "wallpaper"}
     elif rng.random() < 0.3:
         # Eggshell paint has a soft sheen (common practice for living rooms).
         wall_material = {**wall_material, "kind": "plastic", "roughness": round(float(rng.uniform(0.5, 0.8)), 6)}
-    trim = sample_material("painted", rng) if rng.random() < 0.7 else sample_material("wood", rng)
+    trim = assets.sample_material("painted", rng) if rng.random() < 0.7 else assets.sample_material("wood", rng)
     if trim["family"] == "painted" and rng.random() < 0.7:
         # Most skirting and architraves are painted white (common practice).
         trim = {**trim, "rgb": [round(float(v), 6) for v in rng.uniform(0.72, 0.86) * np.ones(3)]}
-    door = sample_material("wood", rng) if rng.random() < 0.5 else trim
+    door = assets.sample_material("wood", rng) if rng.random() < 0.5 else trim
     frame_family = _choice({"painted": 0.6, "wood": 0.25, "metal": 0.15}, rng)
-    window_frame = sample_material(frame_family, rng)
+    window_frame = assets.sample_material(frame_family, rng)
     if frame_family == "painted":
         window_frame = {**window_frame, "rgb": [0.8, 0.8, 0.78]}  # white uPVC or painted timber (common practice)
     room["materials"] = {
-        "floor": sample_material(FLOOR_FINISHES[finish], rng),
+        "floor": assets.sample_material(FLOOR_FINISHES[finish], rng),
         "wall": wall_material,
-        "ceiling": sample_material("ceiling_paint", rng),
+        "ceiling": assets.sample_material("ceiling_paint", rng),
         "skirting": trim,
         "architrave": trim,
         "door": door,
-        "handle": sample_material("metal", rng),
+        "handle": assets.sample_material("metal", rng),
         "window_frame": window_frame,
-        "curtain": sample_material("fabric", rng),
+        "curtain": assets.sample_material("fabric", rng),
     }
     low, high = (int(v) for v in section["door_count"])
     doors: list[dict[str, Any]] = []
@@ -287,8 +289,6 @@ def wall_to_world(room: dict[str, Any], wall: str, uoz: np.ndarray) -> np.ndarra
 
 
 def _skirting(room: dict[str, Any]) -> list[trimesh.Trimesh]:
-    from .layout import WALLS
-
     skirting = room.get("skirting")
     if not skirting:
         return []
@@ -334,8 +334,6 @@ def _door(room: dict[str, Any], door: dict[str, Any]) -> dict[str, list[trimesh.
 
 
 def _window_frame(room: dict[str, Any], window: dict[str, Any], frame: dict[str, Any]) -> list[trimesh.Trimesh]:
-    from .assets import WALL_THICKNESS_M
-
     wall, c, w = window["wall"], float(window["center_m"]), float(window["width_m"])
     s, h, p = float(window["sill_m"]), float(window["height_m"]), float(frame["profile_m"])
     t = WALL_THICKNESS_M
@@ -415,3 +413,66 @@ def wall_fixtures(room: dict[str, Any], wall: str) -> list[tuple[float, float, f
             out.append((curtain["rod_start_m"] - 0.02, curtain["rod_end_m"] + 0.02, curtain["bottom_m"],
                         curtain["rod_z_m"] + 0.02))
     return out
+
+
+# ---------------------------------------------------------------------------
+# Room shell: floor, ceiling and walls with their window openings
+# ---------------------------------------------------------------------------
+
+def _wall_boxes(room: dict[str, Any], wall: str) -> list[trimesh.Trimesh]:
+    """Boxes making up one wall with its window openings cut out, in world coordinates.
+
+    The wall is cut on a grid at every opening edge and each column is merged
+    into as few boxes as its openings allow: rectangles around each hole.
+    """
+    length, height, t = wall_length_m(room, wall), room["height_m"], WALL_THICKNESS_M
+    openings = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"],
+                 w["sill_m"] + w["height_m"]) for w in room.get("windows", []) if w["wall"] == wall]
+    # The wall runs past both corners by its thickness so the corners are closed.
+    us = sorted({-t, length + t, *(v for o in openings for v in o[:2])})
+    zs = sorted({0.0, height, *(v for o in openings for v in o[2:])})
+    rects = []
+    for u0, u1 in itertools.pairwise(us):
+        um = (u0 + u1) / 2
+        run_start = None
+        for z0, z1 in itertools.pairwise(zs):
+            zm = (z0 + z1) / 2
+            solid = not any(o[0] < um < o[1] and o[2] < zm < o[3] for o in openings)
+            if solid and run_start is None:
+                run_start = z0
+            if not solid and run_start is not None:
+                rects.append((u0, u1, run_start, z0))
+                run_start = None
+        if run_start is not None:
+            rects.append((u0, u1, run_start, height))
+    width, depth = room["width_m"], room["depth_m"]
+    boxes = []
+    for u0, u1, z0, z1 in rects:
+        if wall == "south":
+            boxes.append(assets.box_mesh(u0, u1, -t, 0.0, z0, z1))
+        elif wall == "north":
+            boxes.append(assets.box_mesh(u0, u1, depth, depth + t, z0, z1))
+        elif wall == "west":
+            boxes.append(assets.box_mesh(-t, 0.0, u0, u1, z0, z1))
+        else:
+            boxes.append(assets.box_mesh(width, width + t, u0, u1, z0, z1))
+    return boxes
+
+
+def room_parts(room: dict[str, Any]) -> list[assets.Part]:
+    """Floor, ceiling and four walls (thick boxes outside the interior), window openings cut out.
+
+    World frame: the interior is x ∈ [0, width_m], y ∈ [0, depth_m], z ∈ [0, height_m].
+    """
+    width, depth, height, t = room["width_m"], room["depth_m"], room["height_m"], WALL_THICKNESS_M
+    materials = room["materials"]
+    parts = [
+        assets.Part("floor", assets.box_mesh(-t, width + t, -t, depth + t, -t, 0.0), dict(materials["floor"])),
+        assets.Part("ceiling", assets.box_mesh(-t, width + t, -t, depth + t, height, height + t), dict(materials["ceiling"])),
+    ]
+    for wall in WALLS:
+        boxes = _wall_boxes(room, wall)
+        mesh = boxes[0] if len(boxes) == 1 else assets.concatenate_meshes(boxes)
+        parts.append(assets.Part(f"wall_{wall}", mesh, dict(materials["wall"])))
+    parts += [assets.Part(name, mesh, material) for name, mesh, material in dressing_parts(room)]
+    return parts

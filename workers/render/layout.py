@@ -75,8 +75,15 @@ import numpy as np
 from shapely.geometry import Polygon
 
 from workers.render import assets
+from workers.render.dressing import (
+    CURTAIN_OFFSET_M,
+    WALLS,
+    curtain_panels,
+    sample_dressing,
+    wall_fixtures,
+    wall_length_m,
+)
 
-WALLS: tuple[str, ...] = ("south", "north", "west", "east")
 # Yaw that turns an asset's front (local +y) to face into the room from each wall.
 WALL_FACING_YAW_DEG: dict[str, float] = {"south": 0.0, "north": 180.0, "west": 270.0, "east": 90.0}
 
@@ -153,10 +160,6 @@ class LayoutError(ValueError):
 # Rooms
 # ---------------------------------------------------------------------------
 
-def wall_length_m(room: dict[str, Any], wall: str) -> float:
-    return float(room["width_m"] if wall in ("south", "north") else room["depth_m"])
-
-
 def _sample_window(room: dict[str, Any], wall: str, rng: np.random.Generator) -> dict[str, Any] | None:
     length, height = wall_length_m(room, wall), room["height_m"]
     max_width = min(WINDOW_WIDTH_M[1], length - 2 * WINDOW_CORNER_GAP_M)
@@ -185,8 +188,6 @@ def sample_room(budget: dict[str, Any], rng: np.random.Generator) -> dict[str, A
     "skirting", "window_frames", "curtains"}``. ``center_m`` runs along the wall from its lower-coordinate
     end (x for south/north, y for west/east).
     """
-    from .dressing import sample_dressing
-
     section = budget["room"]
     room: dict[str, Any] = {
         "width_m": round(float(rng.uniform(*section["width_m"])), 6),
@@ -350,8 +351,6 @@ def _wall_point(room: dict[str, Any], wall: str, along_m: float, offset_m: float
 def _blocks_window(room: dict[str, Any], wall: str, u0: float, u1: float, z0: float, z1: float,
                    margin_m: float = 0.05) -> bool:
     """Whether the wall rectangle u0..u1 × z0..z1 meets a window, a door or a curtain (with ``margin_m``)."""
-    from .dressing import wall_fixtures
-
     taken = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"],
               w["sill_m"] + w["height_m"]) for w in room.get("windows", []) if w["wall"] == wall]
     for a0, a1, b0, b1 in [*taken, *wall_fixtures(room, wall)]:
@@ -388,8 +387,6 @@ def door_clearance_zones(room: dict[str, Any]) -> list[_Placed]:
         zones.append(_Placed(-1 - k, spec, x, y, 0.0, WALL_FACING_YAW_DEG[wall], "door_zone", None,
                              wall=wall).prepare(0.0))
     # Curtains that hang below a metre: their folds, from the wall to the front of the pleats, up to the rod.
-    from .dressing import CURTAIN_OFFSET_M, curtain_panels
-
     for curtain in room.get("curtains") or []:
         if float(curtain["bottom_m"]) >= 1.0:
             continue

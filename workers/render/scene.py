@@ -204,7 +204,7 @@ _COLOUR_PARAMETER = {
 def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
     """Linear base-colour image of a textured material: a procedural ``texture`` or an upload's ``user_texture``."""
     if material.get("user_texture"):
-        from .user_materials import texture_linear_rgb as user_texture_linear_rgb
+        from .user_models import texture_linear_rgb as user_texture_linear_rgb
 
         return user_texture_linear_rgb(material["user_texture"])
     from .appearance import texture_linear_rgb
@@ -722,11 +722,11 @@ def window_glass_entries(room: dict[str, Any]) -> dict[str, Any]:
 def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
     """Each window opening's outer rectangle: centre, in-plane half axes and inward normal (world, m).
 
-    The rectangle lies in the wall's *outer* face (the wall is ``assets.WALL_THICKNESS_M`` thick), so
+    The rectangle lies in the wall's *outer* face (the wall is ``dressing.WALL_THICKNESS_M`` thick), so
     the window reveals see the sky through it exactly as they would see the open sky. The axes are
     right-handed, ``u × v = n``, so Mitsuba's rectangle (which emits towards its local +z) faces the room.
     """
-    from .assets import WALL_THICKNESS_M
+    from .dressing import WALL_THICKNESS_M
 
     width, depth, t = float(room["width_m"]), float(room["depth_m"]), WALL_THICKNESS_M
     frames = []
@@ -847,8 +847,8 @@ def scene_parts(spec: dict[str, Any]) -> tuple[list[tuple[str, np.ndarray, np.nd
     Distractor shapes are named ``"d{k}_p{j}"`` (k: position in ``spec["distractors"]``), so
     :func:`instance_of_shape_id` maps them to 0: they hide objects in the label pass like the room
     does and never get a label or amodal geometry of their own."""
-    from .assets import room_parts
     from .distractors import distractor_world_parts
+    from .dressing import room_parts
     from .layout import object_world_parts
 
     parts: list[tuple[str, np.ndarray, np.ndarray, dict[str, Any]]] = []

@@ -28,9 +28,7 @@ References
 
 from __future__ import annotations
 
-import functools
 import json
-import os
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -51,7 +49,7 @@ LOOKS: tuple[str, ...] = ("keep", "randomize")
 ROUGH_AS_DIFFUSE = 0.95
 # Albedo clamp: no real surface reflects all or none of the light; a texel at 0 or 1 would make the path tracer's
 # energy (and the denoiser's albedo) unphysical. Same idea as the procedural palette's clamp (common practice).
-_ALBEDO_MIN, _ALBEDO_MAX = 0.01, 0.95
+ALBEDO_MIN, ALBEDO_MAX = 0.01, 0.95
 
 
 @dataclass
@@ -149,7 +147,7 @@ def look_rgb_linear(look: Look) -> np.ndarray:
     rgb = np.asarray(look.rgb, dtype=np.float64)
     if look.texture is not None:
         rgb = rgb * srgb.decode(look.texture.reshape(-1, 3).astype(np.float64) / 255.0).mean(axis=0)
-    return np.clip(rgb, _ALBEDO_MIN, _ALBEDO_MAX)
+    return np.clip(rgb, ALBEDO_MIN, ALBEDO_MAX)
 
 
 def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -> dict[str, Any]:
@@ -176,51 +174,10 @@ def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -
 # --- the model cache and the scene hook --------------------------------------------------------------------------
 
 
-@functools.lru_cache(maxsize=16)
-def _cached_model(path: str, mtime_ns: int, size: int, unit: str, up_axis: str, front: str) -> Any:
-    # mtime and size in the key: a replaced file is reloaded, an unchanged one is parsed once per process.
-    from .meshes import load_user_model
-
-    return load_user_model(path, unit=unit, up_axis=up_axis, front=front or None)
-
-
-def load_model_cached(path: str, *, unit: str = "auto", up_axis: str = "z", front: str | None = None) -> Any:
-    """:func:`workers.render.meshes.load_user_model`, parsed once per process per file version. Shared: do not
-    change the returned meshes (copy them)."""
-    from .meshes import MeshError
-
-    try:
-        stat = os.stat(path)
-    except OSError as exc:
-        raise MeshError(f"mesh {Path(path).name}: cannot read the file ({exc.strerror or exc})") from exc
-    return _cached_model(str(path), stat.st_mtime_ns, stat.st_size, unit, up_axis, front or "")
-
-
 def texture_record(*, mesh_path: str, unit: str, up_axis: str, front: str | None, part: int) -> dict[str, Any]:
     """The spec's ``user_texture`` record: enough to find the part's texture again from the JSON alone."""
     return {"mesh_path": str(mesh_path), "unit": str(unit), "up_axis": str(up_axis), "front": str(front or ""),
             "part": int(part)}
-
-
-@functools.lru_cache(maxsize=64)
-def _linear_texture(record_json: str) -> np.ndarray:
-    record = json.loads(record_json)
-    model = load_model_cached(record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"],
-                              front=record.get("front") or None)
-    index = int(record["part"])
-    if not 0 <= index < len(model.parts) or model.parts[index].look.texture is None:
-        raise ValueError(f"user texture: part {index} of {Path(record['mesh_path']).name} has no texture")
-    look = model.parts[index].look
-    linear = srgb.decode(look.texture.astype(np.float32) / np.float32(255.0)) * np.asarray(look.rgb, np.float32)
-    image = np.clip(linear, _ALBEDO_MIN, _ALBEDO_MAX).astype(np.float32)
-    image.setflags(write=False)
-    return image
-
-
-def texture_linear_rgb(record: dict[str, Any]) -> np.ndarray:
-    """Linear-RGB base colour (H, W, 3) float32 of a spec ``user_texture`` record (texture × factor; read-only,
-    cached per process). Row 0 is the image's top row, as Mitsuba's bitmap expects."""
-    return _linear_texture(json.dumps(record, sort_keys=True))
 
 
 def mitsuba_uv(uv: np.ndarray) -> np.ndarray:
