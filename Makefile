@@ -34,7 +34,7 @@ lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 
 bench: $(STAMP)
-	$(PY) -m workers.render.bench --frames 5
+	$(PY) -m render.bench --frames 5
 
 clean:
 	rm -rf data/test .pytest_cache

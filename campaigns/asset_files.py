@@ -1,13 +1,13 @@
 """Uploaded meshes and asset previews: format sniffing, a resource-limited parse, and the 128×128 preview render.
 
 Upload validation never parses a user's file in the web process: :func:`check_mesh_file` runs
-``workers.render.meshes.load_user_mesh`` in a child process with a memory cap (``RLIMIT_AS``), a CPU-time cap and
+``render.meshes.load_user_mesh`` in a child process with a memory cap (``RLIMIT_AS``), a CPU-time cap and
 a wall-clock timeout, and reads back its one-line verdict. The preview (:func:`render_asset_preview`) runs in a
 render worker (task ``evenframe.asset_preview`` in :mod:`campaigns.tasks`) or in ``manage.py asset_previews``;
 the library shows "preview pending" until the file exists.
 
 An OBJ with its MTL and images (or a glTF with its buffers) arrives as one ``.zip``: it is unpacked into a hidden
-``.partial-<random>/`` folder (:func:`unpack_staged_zip`, through ``workers.render.meshes.extract_model_zip``:
+``.partial-<random>/`` folder (:func:`unpack_staged_zip`, through ``render.meshes.extract_model_zip``:
 no path traversal, links, zip bombs or encrypted entries) and that folder is renamed to ``<random>/`` like a file.
 
 Files of asset ``pk`` live under ``MEDIA_ROOT/assets/<pk>/``: ``info.json`` (extents, faces, unit) and
@@ -116,7 +116,7 @@ def unpack_staged_zip(staged: StagedMesh) -> StagedMesh:
     Raises :class:`UploadError` with the render core's reason (path traversal, links, too many or too large
     entries, a zip bomb, not exactly one model file) and leaves nothing behind.
     """
-    from workers.render.meshes import MeshError, extract_model_zip
+    from render.meshes import MeshError, extract_model_zip
 
     token = staged.final.name.split(".")[0]
     folder = staged.path.with_name(f".partial-{token}")
@@ -195,7 +195,7 @@ import json, resource, sys
 memory, cpu = int(sys.argv[3]), int(sys.argv[4])
 resource.setrlimit(resource.RLIMIT_AS, (memory, memory))
 resource.setrlimit(resource.RLIMIT_CPU, (cpu, cpu))
-from workers.render.meshes import MeshError, load_user_model
+from render.meshes import MeshError, load_user_model
 try:
     model = load_user_model(sys.argv[1], unit=sys.argv[2], up_axis=sys.argv[5], front=sys.argv[6] or None)
     mesh = model.mesh()
@@ -212,7 +212,7 @@ else:
 
 
 def check_mesh_file(*, path: Path, unit: str, up_axis: str = "+z", front: str = "") -> dict[str, Any]:
-    """Parse a model with :func:`workers.render.meshes.load_user_model` in a limited child process.
+    """Parse a model with :func:`render.meshes.load_user_model` in a limited child process.
 
     Returns ``{"extents_m": [x, y, z], "faces": n, "vertices": n, "unit", "parts", "textured_parts"}``, extents in
     metres after normalization (x across the front, y front to back, z up); raises
@@ -272,10 +272,10 @@ def preview_path(asset_pk: int) -> Path:
 
 def _asset_parts(*, kind: str, class_name: str, mesh_path: str | None, unit: str, up_axis: str = "z",
                  front: str = "", look: str = "randomize") -> list[Any]:
-    """The asset's parts (``workers.render.assets.Part``) in its local frame: front +y, z up."""
+    """The asset's parts (``render.assets.Part``) in its local frame: front +y, z up."""
     import numpy as np
 
-    from workers.render import assets
+    from render import assets
 
     if kind == "mesh":
         spec = assets.user_asset_spec(mesh_path, class_name, "floor", np.random.default_rng(7), unit=unit,
@@ -306,13 +306,13 @@ def render_asset_preview(*, asset_pk: int, kind: str, class_name: str, mesh_path
     import numpy as np
     import trimesh
 
-    from workers.render.backend import init_renderer
+    from render.backend import init_renderer
 
     init_renderer(variant=variant)
     import mitsuba as mi
 
-    from workers.render import scene as render_scene
-    from workers.render import srgb
+    from render import scene as render_scene
+    from render import srgb
 
     parts = _asset_parts(kind=kind, class_name=class_name, mesh_path=mesh_path, unit=unit, up_axis=up_axis,
                          front=front, look=look)

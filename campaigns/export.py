@@ -978,7 +978,7 @@ class _Exporter:
     @staticmethod
     def _rle_from_mask(frame_dir: Path, instance_id: int, cache: dict[str, np.ndarray]) -> dict[str, Any]:
         """COCO RLE of one instance from the frame's 16-bit mask (the render core's own encoder)."""
-        from workers.render.labels import mask_to_rle
+        from render.labels import mask_to_rle
 
         if "ids" not in cache:
             import cv2

@@ -1,4 +1,4 @@
-"""Planner forms. The randomization inputs are generated from ``workers.render.budget.FIELDS`` (unit, bounds, help),
+"""Planner forms. The randomization inputs are generated from ``render.budget.FIELDS`` (unit, bounds, help),
 never written by hand (switches, ``kind == "bool"``, are checkboxes); quotas are one row per object class (target 0 =
 not in the campaign) with its own thresholds, empty meaning the budget's acceptance default.
 
@@ -17,7 +17,7 @@ from django import forms
 
 from campaigns import services
 from campaigns.models import Asset, Campaign, ObjectClass
-from workers.render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
+from render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
 
 SECTION_TITLES = {
     "render": ("Render settings", "Image size and path-tracing quality; cost grows linearly with pixels × samples."),
@@ -309,7 +309,7 @@ class CampaignForm(forms.Form):
                 self.add_error(key, message)
                 return
         elif field == "budget":
-            # The render core's budget errors are text (workers.render.budget.BudgetError carries no field).
+            # The render core's budget errors are text (render.budget.BudgetError carries no field).
             self._add_error_from_text(f"budget: {message}")
             return
         elif field in self.fields:

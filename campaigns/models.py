@@ -106,7 +106,7 @@ class Campaign(models.Model):
     pause_reason = models.CharField(max_length=16, choices=PauseReason.choices, blank=True, default="")
     pause_detail = models.CharField(max_length=500, blank=True)
     seed = models.BigIntegerField(default=0, help_text="Root seed; every frame's seed derives from it")
-    budget = models.JSONField(help_text="Randomization budget, normalized by workers.render.budget.normalize_budget")
+    budget = models.JSONField(help_text="Randomization budget, normalized by render.budget.normalize_budget")
     assets = models.ManyToManyField(Asset, blank=True, related_name="campaigns")
     cost_budget = models.DecimalField(max_digits=14, decimal_places=2, help_text="Most the campaign may spend")
     price_per_cpu_hour = models.DecimalField(max_digits=10, decimal_places=4)

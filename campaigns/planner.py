@@ -30,7 +30,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from workers.render.frame import contrast_reason  # pure (no renderer import): one wording for the reject reason
+from render.frame import contrast_reason  # pure (no renderer import): one wording for the reject reason
 
 PRIOR_YIELD = 0.5  # common practice: an uninformative-ish prior mean for "accepted"
 PRIOR_STRENGTH = 4.0  # pseudo-placements; small so observations dominate after a few frames
@@ -162,7 +162,7 @@ class FrameSeeds:
     lighting_seed: int
     camera_seed: int
     # The view's place among its layout's views (lighting × views_per_lighting + view): the render core keeps
-    # the views of one layout apart by it (``workers.render.spec.make_spec(view_slot=…)``). None: not kept apart.
+    # the views of one layout apart by it (``render.spec.make_spec(view_slot=…)``). None: not kept apart.
     view_slot: int | None = None
 
 
@@ -226,7 +226,7 @@ def accept_instance(label: Mapping, *, min_visible_fraction: float, min_box_px: 
 
     References
     ----------
-    The contrast rule and its wording: ``workers.render.frame.contrast_reason``.
+    The contrast rule and its wording: ``render.frame.contrast_reason``.
     """
     box = label.get("bbox")
     area_px = int(label.get("mask_area_px") or 0)

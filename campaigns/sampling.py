@@ -30,9 +30,9 @@ MAX_OBJECTS_PER_FRAME = 12
 
 def room_floor_area_m2(*, budget: Mapping[str, Any], seeds: planner.FrameSeeds) -> float:
     """Floor area of the room this frame's layout seed gives (the room is the layout stream's first draw)."""
-    from workers.render.budget import normalize_budget
-    from workers.render.layout import sample_room
-    from workers.render.spec import axis_rng, derive_sub_seeds
+    from render.budget import normalize_budget
+    from render.layout import sample_room
+    from render.spec import axis_rng, derive_sub_seeds
 
     sub_seeds = derive_sub_seeds(seeds.seed, layout_seed=seeds.layout_seed, lighting_seed=seeds.lighting_seed,
                                  camera_seed=seeds.camera_seed)
@@ -84,8 +84,8 @@ def render_core_label_pass(*, threads: int | None = None, variant: str | None = 
     """Labels of one frame from the render core (``make_spec`` + ``render_frame``, nothing written)."""
 
     def run(budget: dict[str, Any], composition: dict[str, int], seeds: planner.FrameSeeds) -> list[dict[str, Any]]:
-        from workers.render.frame import render_frame
-        from workers.render.spec import make_spec
+        from render.frame import render_frame
+        from render.spec import make_spec
 
         spec = make_spec(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
                          lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, view_slot=seeds.view_slot)
@@ -105,7 +105,7 @@ def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[
     the label pass's. ``in_flight`` frames are planned before the oldest one's
     labels are known, as the scheduler does with several frames queued.
     """
-    from workers.render.layout import LayoutError
+    from render.layout import LayoutError
 
     if strategy not in ("planner", "uniform"):
         raise ValueError(f"strategy must be 'planner' or 'uniform', got {strategy!r}")

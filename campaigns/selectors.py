@@ -449,7 +449,7 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
 
 def _texture_library() -> tuple[str, ...]:
     try:
-        from workers.render.textures import FAMILIES
+        from render.textures import FAMILIES
     except ImportError:  # the web server may run without the render core
         return ()
     return tuple(FAMILIES)
@@ -728,7 +728,7 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
     from django.conf import settings
 
     try:
-        from workers.render.assets import CLASSES
+        from render.assets import CLASSES
     except ImportError:  # the web server may run without the render core
         CLASSES = {}
     root = _Path(settings.MEDIA_ROOT).resolve()

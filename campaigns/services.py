@@ -188,7 +188,7 @@ def _finite(value: Any, what: str, **where: Any) -> float:
 
 def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any]:
     """The render core's ``normalize_budget`` plus the campaign caps; :class:`CampaignError` on bad input."""
-    from workers.render.budget import BudgetError, normalize_budget
+    from render.budget import BudgetError, normalize_budget
 
     try:
         normalized = normalize_budget(dict(budget or {}))
@@ -210,7 +210,7 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
 
 def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]) -> list[_CleanQuota]:
     """Check class quotas against the normalized budget; an empty threshold takes the budget's default."""
-    from workers.render.budget import FIELDS_BY_KEY
+    from render.budget import FIELDS_BY_KEY
 
     max_contrast = FIELDS_BY_KEY["thresholds", "min_contrast"].upper
     if not quotas:
@@ -1130,9 +1130,9 @@ def _clean_asset_input(*, user: Any, team: Any, object_class_name: str, name: An
                        creation_cost: Decimal | float | str, up_axis: str = "+z", front: str = "",
                        look: str = "randomize") -> _AssetInput:
     """Every check of an upload that needs no file, the name's availability last."""
+    from render.meshes import FRONT_AXES, UNIT_TO_M, UP_AXES, axis_rotation
+    from render.user_materials import LOOKS
     from teams.permissions import PLANNER, has_role
-    from workers.render.meshes import FRONT_AXES, UNIT_TO_M, UP_AXES, axis_rotation
-    from workers.render.user_materials import LOOKS
 
     if not has_role(user=user, team=team, role=PLANNER):
         raise CampaignError(f"{user} is not a planner in team {team}", field="team")
@@ -1187,7 +1187,7 @@ def upload_mesh_asset(*, user: Any, team: Any, object_class_name: str, name: str
 
     ``upload`` is a Django ``UploadedFile`` (``name``, ``size``, ``chunks()``): an OBJ, PLY, STL or GLB file, or a
     ``.zip`` holding one OBJ with its MTL and images (or a glTF with its buffers and images). ``up_axis`` and
-    ``front`` are the file axes pointing up and towards the model's front (``workers.render.meshes.axis_rotation``);
+    ``front`` are the file axes pointing up and towards the model's front (``render.meshes.axis_rotation``);
     ``look`` "keep" renders the file's materials and textures, "randomize" random colours. Order: the checks that
     need no file (role, name, class, cost, orientation, the name free in the team and the shared library), then the
     file is staged beside its final place (a zip unpacked into a hidden folder, refusing path traversal and zip

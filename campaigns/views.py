@@ -259,7 +259,7 @@ def _eta(live: dict[str, Any]) -> str:
 
 
 def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
-    from workers.render.budget import FIELDS
+    from render.budget import FIELDS
 
     rows = []
     for f in FIELDS:
@@ -567,7 +567,7 @@ def frame_rerender(request: HttpRequest, campaign_id: int, index: int) -> HttpRe
 
 
 def _asset_rows(request: HttpRequest) -> list[dict[str, Any]]:
-    from workers.render.assets import HANDBOOK_RANGES
+    from render.assets import HANDBOOK_RANGES
 
     rows = selectors.asset_library(user=request.user)
     for row in rows:

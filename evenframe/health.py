@@ -60,7 +60,7 @@ def check_workers() -> Check:
 
 
 def check_renderer() -> Check:
-    from workers.render.backend import choose_backend
+    from render.backend import choose_backend
 
     try:
         choice = choose_backend()

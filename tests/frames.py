@@ -16,7 +16,7 @@ def render_frame_plan(plan: FramePlan, *, budget: Mapping[str, Any], campaign_se
     """Render each planned frame with the seeds a worker would use; index → folder of its files."""
     from campaigns import planner
     from campaigns.services import normalize_campaign_budget
-    from workers.render.frame import render_frame_from_inputs
+    from render.frame import render_frame_from_inputs
 
     normalized = normalize_campaign_budget(budget)
     out = {}

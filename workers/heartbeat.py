@@ -23,8 +23,8 @@ _state: dict = {}
 
 
 def _beat(hostname: str, concurrency: int) -> None:
+    from render.backend import choose_backend
     from workers.models import WorkerHeartbeat
-    from workers.render.backend import choose_backend
 
     try:
         choice = choose_backend()

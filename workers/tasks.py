@@ -38,7 +38,7 @@ def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], s
 
     ``user_assets`` are the campaign's uploaded meshes (``campaigns.selectors.campaign_user_mesh_entries``).
     """
-    from workers.render.frame import render_frame_from_inputs
+    from render.frame import render_frame_from_inputs
 
     threads = int(os.environ.get("EVENFRAME_RENDER_THREADS", "0") or 0) or None
     return render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
@@ -49,10 +49,10 @@ def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], s
 def _is_permanent(exc: BaseException) -> bool:
     """Errors that the same inputs would raise again: no point retrying."""
     try:
-        from workers.render.budget import BudgetError
-        from workers.render.layout import LayoutError
-        from workers.render.meshes import MeshError
-        from workers.render.spec import SpecError
+        from render.budget import BudgetError
+        from render.layout import LayoutError
+        from render.meshes import MeshError
+        from render.spec import SpecError
     except ImportError:  # render core incomplete: treat everything as transient
         return False
     return isinstance(exc, (LayoutError, BudgetError, SpecError, MeshError))

@@ -58,7 +58,7 @@ class Migration(migrations.Migration):
                 ('pause_reason', models.CharField(blank=True, choices=[('', '—'), ('user', 'Paused by a user'), ('budget', 'The next frame would take spend over the cost budget'), ('failures', 'Too many frames failed')], default='', max_length=16)),
                 ('pause_detail', models.CharField(blank=True, max_length=500)),
                 ('seed', models.BigIntegerField(default=0, help_text="Root seed; every frame's seed derives from it")),
-                ('budget', models.JSONField(help_text='Randomization budget, normalized by workers.render.budget.normalize_budget')),
+                ('budget', models.JSONField(help_text='Randomization budget, normalized by render.budget.normalize_budget')),
                 ('cost_budget', models.DecimalField(decimal_places=2, help_text='Most the campaign may spend', max_digits=14)),
                 ('price_per_cpu_hour', models.DecimalField(decimal_places=4, max_digits=10)),
                 ('setup_cost', models.DecimalField(decimal_places=2, default=Decimal('0'), max_digits=12)),

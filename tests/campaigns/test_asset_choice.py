@@ -50,7 +50,7 @@ def _create(user, name, quotas, **kwargs) -> Campaign:
 
 
 def _asset_ids_in_specs(campaign: Campaign, composition: dict[str, int], seeds: range) -> set[str]:
-    from workers.render.spec import make_spec
+    from render.spec import make_spec
 
     entries = selectors.campaign_user_mesh_entries(campaign=campaign)
     ids = set()

@@ -96,11 +96,11 @@ def test_accept_instance_uses_quota_thresholds():
 
 
 def test_accept_instance_judges_contrast_by_the_quota_minimum():
-    from workers.render.frame import contrast_reason
+    from render.frame import contrast_reason
 
     label = {"visible_fraction": 0.9, "bbox": [10, 10, 20, 20], "mask_area_px": 300, "contrast": 1.42}
     ok, reasons = planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0)
-    # The wording is the render core's own (workers.render.frame.contrast_reason), never a copy of it.
+    # The wording is the render core's own (render.frame.contrast_reason), never a copy of it.
     assert not ok and reasons == [contrast_reason(label, min_contrast=2.0)] and reasons[0].startswith("contrast 1.42")
     assert planner.accept_instance({**label, "contrast": 2.0}, min_visible_fraction=0.3, min_box_px=6,
                                    min_contrast=2.0) == (True, [])  # at the minimum: accepted

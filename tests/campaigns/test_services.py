@@ -278,7 +278,7 @@ def test_quota_min_contrast_defaults_to_the_budget_and_is_stored(user, classes):
 
 
 def test_result_judges_contrast_by_the_quota_and_stores_it(user, classes, outbox, media_root):
-    from workers.render.frame import contrast_reason
+    from render.frame import contrast_reason
 
     campaign = services.create_campaign(
         owner=user, name="contrast", budget=TINY_BUDGET, cost_budget="100", price_per_cpu_hour="0.05",
@@ -358,7 +358,7 @@ def test_lost_message_is_sent_again_and_the_old_one_is_stale(make_campaign, outb
 
 def test_permanent_error_is_dead_at_once_and_dead_frames_in_a_row_pause(make_campaign, outbox, fake_render,
                                                                         media_root):
-    from workers.render.layout import LayoutError
+    from render.layout import LayoutError
 
     campaign = make_campaign(quotas={"chair": 30}, start=True)
     fake_render.fail = 100
@@ -431,8 +431,8 @@ def test_explicit_asset_ids_of_another_team_are_refused(user, uploads):
 def test_task_places_uploads_and_the_library_counts_their_frames(make_campaign, outbox, uploads, monkeypatch):
     """The task hands the campaign's uploads to the spec; labels carry ``user/<pk>`` (render faked from the spec)."""
     import workers.tasks
+    from render.spec import make_spec
     from tests.campaigns.conftest import FakeResult
-    from workers.render.spec import make_spec
 
     seen = []
 

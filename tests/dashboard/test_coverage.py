@@ -102,7 +102,7 @@ def test_overview_shows_texture_families_and_distractors(client, textured_campai
     assert re.findall(r'<tr data-family="([^"]+)"', page)[-1] == "plain"
     assert "latest 4 done frames: 18 slots, 61.1 % textured, 7 families" in page
     assert "<td>ceramic tile</td>" in page and "<td>plain (no texture)</td>" in page
-    from workers.render.textures import FAMILIES
+    from render.textures import FAMILIES
 
     not_drawn = sorted(set(FAMILIES) - set(EXPECTED_FAMILIES))
     assert (f"Not drawn in these frames ({len(not_drawn)} of {len(FAMILIES)} families): "
@@ -183,7 +183,7 @@ def test_another_teams_user_gets_404(client, textured_campaign, people):
 
 
 def test_texture_families_and_distractors_of_a_real_spec():
-    from workers.render.spec import make_spec
+    from render.spec import make_spec
 
     spec = make_spec({"render": {"width_px": 32, "height_px": 24, "spp": 1}}, {"chair": 2, "wall_clock": 1}, 5)
     expected: Counter[str] = Counter()

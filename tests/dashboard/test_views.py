@@ -142,7 +142,7 @@ def test_live_json_has_counters_and_series(client, done_campaign, people):
 
 
 def _plan_data(team_obj, **overrides):
-    from workers.render.budget import DEFAULT_BUDGET, FIELDS
+    from render.budget import DEFAULT_BUDGET, FIELDS
 
     data = {"name": "Lamps and clocks", "team": team_obj.pk, "description": "", "seed": 5, "cost_budget": "50",
             "price_per_cpu_hour": "0.05", "setup_cost": "1", "manual_labelling_rate_per_hour": "12", "weight": 1,
@@ -161,7 +161,7 @@ def _plan_data(team_obj, **overrides):
 
 
 def test_planner_form_has_every_budget_field_with_unit_and_help(client, people, object_classes):
-    from workers.render.budget import FIELDS
+    from render.budget import FIELDS
 
     client.force_login(people["pia"])
     page = client.get(reverse("campaigns:create")).content.decode()

@@ -94,7 +94,7 @@ def test_masks_areas_and_boxes_agree_with_pycocotools(real_campaign, tmp_path):
 
 
 def test_every_frame_parameter_and_campaign_facts_are_exported(real_campaign, tmp_path):
-    from workers.render.spec import spec_from_json
+    from render.spec import spec_from_json
 
     out = tmp_path / "dataset"
     _export(real_campaign, out)

@@ -10,7 +10,7 @@ from hypothesis import strategies as st
 
 from campaigns import services
 from campaigns.models import Campaign, ClassQuota, FrameEvent
-from workers.render.budget import DEFAULT_BUDGET, FIELDS, BudgetError, normalize_budget
+from render.budget import DEFAULT_BUDGET, FIELDS, BudgetError, normalize_budget
 
 JUNK = st.one_of(
     st.none(), st.booleans(), st.integers(min_value=-10**20, max_value=10**20),

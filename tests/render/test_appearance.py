@@ -1,7 +1,7 @@
 """Textured materials: assignment in the spec, box-projected texture coordinates, textures in the render.
 
 Frames here are tiny; the flat-surface share over 50 default frames comes from
-``python -m workers.render.bench_appearance``.
+``python -m render.bench_appearance``.
 """
 
 from __future__ import annotations
@@ -11,8 +11,8 @@ import copy
 import numpy as np
 import pytest
 
-from workers.render import appearance, backend
-from workers.render.budget import DEFAULT_BUDGET, BudgetError, normalize_budget
+from render import appearance, backend
+from render.budget import DEFAULT_BUDGET, BudgetError, normalize_budget
 
 LLVM = "llvm_ad_rgb" in backend.available_variants()
 
@@ -68,8 +68,8 @@ def test_box_uv_refuses_a_non_positive_tile():
 
 
 def test_textures_go_to_texturable_families_only_and_keep_the_rest_of_the_spec():
-    from workers.render.cli import default_composition
-    from workers.render.spec import make_spec
+    from render.cli import default_composition
+    from render.spec import make_spec
 
     composition = default_composition()
     plain = make_spec(_budget(texture_probability=0.0), composition, 11)
@@ -94,8 +94,8 @@ def test_textures_go_to_texturable_families_only_and_keep_the_rest_of_the_spec()
 
 
 def test_frames_that_share_a_layout_share_their_surfaces():
-    from workers.render.cli import default_composition
-    from workers.render.spec import make_spec
+    from render.cli import default_composition
+    from render.spec import make_spec
 
     budget = _budget(texture_probability=1.0)
     first = make_spec(budget, default_composition(), 5, layout_seed=77)
@@ -126,8 +126,8 @@ def test_textured_surfaces_show_their_texture_in_the_albedo_image():
     """The label pass's albedo image (Mitsuba ``aov`` integrator, ``albedo``) of a textured floor varies from
     pixel to pixel, and its mean matches the texture's mean linear colour (box projection samples the
     whole tile evenly over many repeats; tolerance 15 % for the part of the tile in view)."""
-    from workers.render.scene import build_scene, render_label_and_aux
-    from workers.render.spec import make_spec
+    from render.scene import build_scene, render_label_and_aux
+    from render.spec import make_spec
 
     backend.init_renderer(variant="llvm_ad_rgb")
     budget = _budget(texture_probability=1.0)
@@ -153,7 +153,7 @@ def test_textured_surfaces_show_their_texture_in_the_albedo_image():
 def test_texture_families_in_the_budget_limit_what_surfaces_wear():
     """Only allowed families are drawn; a surface none of whose families is allowed stays plain, and the other
     surfaces' draws do not move (each material draws the same four numbers whatever it becomes)."""
-    from workers.render.spec import make_spec
+    from render.spec import make_spec
 
     families_seen = set()
     for seed in range(30):
@@ -179,7 +179,7 @@ def test_normal_map_tilt_follows_the_lambert_cosine_law_on_every_face(monkeypatc
     the frame (∂p/∂u, n × ∂p/∂u, n))."""
     import mitsuba as mi
 
-    from workers.render.scene import bsdf_dict, mesh_from_arrays
+    from render.scene import bsdf_dict, mesh_from_arrays
 
     backend.init_renderer(variant="llvm_ad_rgb")
     tilt = np.radians(20.0)
@@ -226,7 +226,7 @@ def test_pooled_bsdfs_take_the_colour_and_relief_of_each_new_material():
     base colour and normal map, read back through ``mi.traverse`` (the same images a fresh BSDF is built from)."""
     import mitsuba as mi
 
-    from workers.render.scene import BsdfPool
+    from render.scene import BsdfPool
 
     backend.init_renderer(variant="llvm_ad_rgb")
     pool = BsdfPool()

@@ -17,9 +17,9 @@ from scipy.spatial.transform import Rotation
 from shapely.geometry import LineString, Point, Polygon, box
 from shapely.ops import nearest_points
 
-from workers.render import assets, distractors, layout
-from workers.render.budget import BudgetError, normalize_budget
-from workers.render.spec import make_spec
+from render import assets, distractors, layout
+from render.budget import BudgetError, normalize_budget
+from render.spec import make_spec
 
 COMPOSITIONS = {
     "living": ["sofa", "coffee_table", "armchair", "side_table", "floor_lamp", "potted_plant", "wall_clock"],

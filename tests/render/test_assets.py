@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import trimesh
 
-from workers.render import assets, dressing
+from render import assets, dressing
 
 # Independent copy of the handbook values the geometry is measured against
 # (not read from assets.HANDBOOK_RANGES, so a typo there shows up here).

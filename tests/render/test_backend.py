@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import pytest
 
-from workers.render import backend
+from render import backend
 
 
 def _fake_libs(tmp_path, names):

@@ -8,8 +8,8 @@ import cv2
 import numpy as np
 import pytest
 
-from workers.render import camera
-from workers.render.budget import normalize_budget
+from render import camera
+from render.budget import normalize_budget
 
 
 def _random_pose(rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:

@@ -3,7 +3,7 @@
 Spec level only (no rendering), so these run in seconds. The distribution checks are one-sample
 Kolmogorov–Smirnov tests, ``scipy.stats.kstest`` (reference: SciPy, Virtanen et al. 2020, *Nature Methods*
 17: 261–272), against the continuous uniform distribution ``scipy.stats.uniform(loc=lo, scale=hi - lo)``
-that the budget's ``range`` fields are drawn from (``workers/render/budget.py``, field help).
+that the budget's ``range`` fields are drawn from (``render/budget.py``, field help).
 """
 
 from __future__ import annotations
@@ -15,10 +15,10 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from workers.render import camera
-from workers.render.budget import BudgetError, normalize_budget
-from workers.render.layout import LayoutError
-from workers.render.spec import SpecError, make_spec
+from render import camera
+from render.budget import BudgetError, normalize_budget
+from render.layout import LayoutError
+from render.spec import SpecError, make_spec
 
 COMPOSITION = {"chair": 2, "coffee_table": 1, "potted_plant": 1, "wall_clock": 1}
 # Small frames keep the spec cheap; framing reads the image size, so the aspect ratio matches the default.

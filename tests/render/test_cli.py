@@ -1,4 +1,4 @@
-"""``python -m workers.render`` in a subprocess: files, preview, one-line errors with exit status 2."""
+"""``python -m render`` in a subprocess: files, preview, one-line errors with exit status 2."""
 
 from __future__ import annotations
 
@@ -16,7 +16,7 @@ TINY = ["--width", "64", "--height", "48", "--spp", "2"]
 
 def _run(*args: str, timeout: float = 180) -> subprocess.CompletedProcess:
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    return subprocess.run([sys.executable, "-m", "workers.render", *args], cwd=ROOT, env=env, capture_output=True,
+    return subprocess.run([sys.executable, "-m", "render", *args], cwd=ROOT, env=env, capture_output=True,
                           text=True, timeout=timeout)
 
 
@@ -72,7 +72,7 @@ SHEET_TINY = ["--width", "32", "--height", "24", "--spp", "1"]
 
 def _tile(sheet, position: int, columns: int, width: int, height: int):
     """The frame's pixels of one tile (the label strip below it excluded)."""
-    from workers.render.cli import SHEET_GAP_PX, label_strip_height_px
+    from render.cli import SHEET_GAP_PX, label_strip_height_px
 
     row, col = divmod(position, columns)
     x = SHEET_GAP_PX + col * (width + SHEET_GAP_PX)
@@ -84,8 +84,8 @@ def test_contact_sheet_tiles_are_the_frames_rendered_alone(tmp_path, capsys):
     import numpy as np
     from PIL import Image
 
-    from workers.render.budget import normalize_budget
-    from workers.render.cli import (
+    from render.budget import normalize_budget
+    from render.cli import (
         SHEET_BACKGROUND_RGB,
         SHEET_GAP_PX,
         default_composition,
@@ -94,8 +94,8 @@ def test_contact_sheet_tiles_are_the_frames_rendered_alone(tmp_path, capsys):
         main,
         tile_caption,
     )
-    from workers.render.frame import ACCEPTED_RGB, REJECTED_RGB, render_frame
-    from workers.render.spec import make_spec
+    from render.frame import ACCEPTED_RGB, REJECTED_RGB, render_frame
+    from render.spec import make_spec
 
     out = tmp_path / "sheet.png"
     # In this process, so the sheet and the frames below are rendered by the same loaded code.
@@ -153,7 +153,7 @@ def test_contact_sheet_tiles_are_the_frames_rendered_alone(tmp_path, capsys):
 def test_contact_sheet_into_a_folder_with_columns_and_boxes(tmp_path):
     from PIL import Image
 
-    from workers.render.cli import CONTACT_SHEET_NAME, SHEET_GAP_PX, label_strip_height_px
+    from render.cli import CONTACT_SHEET_NAME, SHEET_GAP_PX, label_strip_height_px
 
     out = tmp_path / "sheets"  # does not exist yet: a folder
     done = _run("--seed", "2", "--contact-sheet", "2", "--columns", "1", "--boxes", "--out", str(out), *SHEET_TINY)

@@ -2,7 +2,7 @@
 
 Outside references named beside the checks: shapely for footprints and containment, OpenCV
 ``projectPoints`` for the independent projection of an occluding box, handbook furniture sizes
-(from memory) in ``workers.render.distractors.KINDS``.
+(from memory) in ``render.distractors.KINDS``.
 """
 
 from __future__ import annotations
@@ -16,9 +16,9 @@ import pytest
 import shapely
 from shapely.geometry import Polygon, box
 
-from workers.render import appearance, assets, backend, distractors, layout
-from workers.render.budget import DEFAULT_BUDGET, BudgetError, normalize_budget
-from workers.render.spec import make_spec, spec_to_json
+from render import appearance, assets, backend, distractors, layout
+from render.budget import DEFAULT_BUDGET, BudgetError, normalize_budget
+from render.spec import make_spec, spec_to_json
 
 LIVING = {"sofa": 1, "armchair": 1, "coffee_table": 1, "side_table": 1, "bookshelf": 1, "wall_clock": 1,
           "potted_plant": 1}
@@ -303,8 +303,8 @@ VARIANT = "llvm_ad_rgb" if "llvm_ad_rgb" in backend.available_variants() else "s
 
 
 def test_distractors_never_get_labels_but_show_in_the_frame():
-    from workers.render.frame import render_frame
-    from workers.render.scene import build_scene
+    from render.frame import render_frame
+    from render.scene import build_scene
 
     spec = make_spec(_budget(distractor_count=[10, 10], texture_probability=0.0), LIVING, 4)
     assert len(spec["distractors"]) >= 5
@@ -341,7 +341,7 @@ def _projected_box(record: dict, R: np.ndarray, t: np.ndarray, K: np.ndarray) ->
 
 
 def test_an_object_behind_a_distractor_box_loses_exactly_the_covered_pixels():
-    from workers.render.frame import render_frame
+    from render.frame import render_frame
 
     spec = make_spec(_budget(distractor_count=[0, 0], texture_probability=0.0), {"ottoman": 1}, 2)
     bare = render_frame(spec, variant=VARIANT)

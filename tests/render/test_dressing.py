@@ -9,9 +9,9 @@ import pytest
 from scipy import integrate
 from shapely.geometry import Polygon
 
-from workers.render import dressing, layout
-from workers.render.budget import BudgetError, normalize_budget
-from workers.render.dressing import WALL_THICKNESS_M, room_parts
+from render import dressing, layout
+from render.budget import BudgetError, normalize_budget
+from render.dressing import WALL_THICKNESS_M, room_parts
 
 
 def _rooms(count: int, budget: dict | None = None) -> list[dict]:
@@ -152,7 +152,7 @@ def test_clearance_zones_lie_in_front_of_doors_and_under_curtains():
 
 
 def test_placed_objects_keep_door_fronts_and_curtains_free():
-    from workers.render.spec import make_spec
+    from render.spec import make_spec
 
     checked = curtained = 0
     for seed in range(40):
@@ -178,8 +178,8 @@ def test_thin_glass_transmittance_matches_fresnel_and_the_handbook_value():
     """At normal incidence one face reflects r = ((n − 1)/(n + 1))² = 0.04 and a pane 2r/(1 + r) = 0.077, so
     T = 0.923 (Hecht, Optics, §4.6); at every angle our formula equals the one built on Mitsuba's own Fresnel
     term (``mi.fresnel``, the term its ``thindielectric`` BSDF uses)."""
-    from workers.render.backend import init_renderer
-    from workers.render.scene import thin_glass_transmittance
+    from render.backend import init_renderer
+    from render.scene import thin_glass_transmittance
 
     assert float(thin_glass_transmittance(1.0)) == pytest.approx(1 - 2 * 0.04 / 1.04, abs=1e-9)
     init_renderer(variant="scalar_rgb")
@@ -192,7 +192,7 @@ def test_thin_glass_transmittance_matches_fresnel_and_the_handbook_value():
 
 
 def test_diffuse_glass_transmittance_is_the_cosine_weighted_mean():
-    from workers.render.scene import diffuse_glass_transmittance, thin_glass_transmittance
+    from render.scene import diffuse_glass_transmittance, thin_glass_transmittance
 
     # Reference: scipy's adaptive quadrature of 2 ∫ T(μ) μ dμ.
     expected, _ = integrate.quad(lambda mu: 2.0 * float(thin_glass_transmittance(mu)) * mu, 0.0, 1.0)

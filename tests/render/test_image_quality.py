@@ -1,7 +1,7 @@
 """Image pipeline: denoiser, box-filtered film, window portals, exposure that behaves like a camera.
 
 Each check names its outside reference beside it. Frames are tiny (≤ 96 px) so the module stays
-quick on two cores; the quality figures themselves come from ``python -m workers.render.bench_quality``.
+quick on two cores; the quality figures themselves come from ``python -m render.bench_quality``.
 """
 
 from __future__ import annotations
@@ -11,7 +11,7 @@ import math
 import numpy as np
 import pytest
 
-from workers.render import backend
+from render import backend
 
 LLVM = "llvm_ad_rgb" in backend.available_variants()
 needs_llvm = pytest.mark.skipif(not LLVM, reason="libLLVM >= 17 is needed for the quick JIT renders here")
@@ -20,7 +20,7 @@ needs_llvm = pytest.mark.skipif(not LLVM, reason="libLLVM >= 17 is needed for th
 def _window_spec(*, spp: int, sun: bool, width_px: int = 64, height_px: int = 48, lamps: bool = False,
                  textures: bool = True) -> dict:
     """A room with one window, lit by the sky (and the sun), no lamps unless asked."""
-    from workers.render.spec import make_spec
+    from render.spec import make_spec
 
     lighting = {"panel_count": [0, 0], "point_count": [1, 1] if lamps else [0, 0], "spot_count": [0, 0],
                 "sun_probability": 1.0 if sun else 0.0, "dome_illuminance_lux": [15000.0, 15000.0],
@@ -54,7 +54,7 @@ def llvm():
 
 @needs_llvm
 def test_rgb_film_uses_a_box_reconstruction_filter(llvm):
-    from workers.render.scene import build_scene
+    from render.scene import build_scene
 
     built = build_scene(_window_spec(spp=1, sun=False))
     rfilter = built.rgb_sensor.film().rfilter()
@@ -71,7 +71,7 @@ def test_box_filter_noise_is_spatially_uncorrelated(llvm):
     Reference: the sample autocorrelation of independent pixels is 0 ± 2/sqrt(n) (Box & Jenkins,
     *Time Series Analysis*, large-lag standard error, from memory); a gaussian filter gave 0.39.
     """
-    from workers.render.scene import build_scene, render_radiance
+    from render.scene import build_scene, render_radiance
 
     spec = _window_spec(spp=1, sun=False, width_px=96, height_px=72)
     built = build_scene(spec)
@@ -85,13 +85,13 @@ def test_box_filter_noise_is_spatially_uncorrelated(llvm):
 
 
 def test_denoiser_loads_here():
-    from workers.render.denoise import denoiser_status
+    from render.denoise import denoiser_status
 
     assert denoiser_status() is None
 
 
 def test_denoiser_refuses_mismatched_auxiliary_images():
-    from workers.render.denoise import denoise
+    from render.denoise import denoise
 
     with pytest.raises(ValueError, match="albedo"):
         denoise(np.zeros((8, 8, 3), np.float32), albedo_rgb=np.zeros((4, 8, 3), np.float32))
@@ -100,7 +100,7 @@ def test_denoiser_refuses_mismatched_auxiliary_images():
 def test_denoiser_removes_synthetic_noise_from_a_smooth_image():
     """Additive Gaussian noise on a smooth ramp: the RT filter must cut the RMSE several-fold
     (reference: the ramp itself; the RMSE of the noisy input is the noise σ)."""
-    from workers.render.denoise import denoise
+    from render.denoise import denoise
 
     height, width = 64, 96
     ramp = np.linspace(0.2, 1.0, width, dtype=np.float32)[None, :, None] * np.ones((height, 1, 3), np.float32)
@@ -118,9 +118,9 @@ def test_denoiser_lowers_the_error_of_a_noisy_render(llvm):
     (reference: the converged render; metric: scikit-image PSNR on the exposed 8-bit images)."""
     from skimage.metrics import peak_signal_noise_ratio
 
-    from workers.render.camera import encode_srgb_8bit
-    from workers.render.denoise import denoise
-    from workers.render.scene import build_scene, render_radiance
+    from render.camera import encode_srgb_8bit
+    from render.denoise import denoise
+    from render.scene import build_scene, render_radiance
 
     built = build_scene(_window_spec(spp=1, sun=False, width_px=96, height_px=72))
     noisy = render_radiance(built, seed=5, aux=True)
@@ -139,7 +139,7 @@ def test_denoiser_lowers_the_error_of_a_noisy_render(llvm):
 
 
 def test_portal_rectangles_fill_the_openings_and_face_the_room():
-    from workers.render.scene import window_portal_frames
+    from render.scene import window_portal_frames
 
     room = {"width_m": 4.0, "depth_m": 5.0, "height_m": 2.6, "windows": [
         {"wall": wall, "center_m": 1.5, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.0}
@@ -160,7 +160,7 @@ def test_window_portals_are_unbiased_against_brute_force(llvm, sun):
     """Mean radiance of a window-lit room behind glass: portals (low spp) vs the constant sky found by
     brute-force path tracing through plain panes (high spp). Reference: the unbiased brute-force estimate;
     tolerance 3 %."""
-    from workers.render.scene import build_scene, render_radiance
+    from render.scene import build_scene, render_radiance
 
     spec = _window_spec(spp=64, sun=sun, width_px=48, height_px=36)
     portal = build_scene(spec, window_light="portal")
@@ -179,7 +179,7 @@ def test_window_portals_are_unbiased_against_brute_force(llvm, sun):
 def test_window_portals_cut_the_noise_of_sky_light(llvm):
     """Same samples, much less noise: per-pixel error against a converged portal render (the brute
     force sees the sky only when a path happens to leave through the window)."""
-    from workers.render.scene import build_scene, render_radiance
+    from render.scene import build_scene, render_radiance
 
     spec = _window_spec(spp=4, sun=False, width_px=48, height_px=36)
     reference = build_scene(spec)
@@ -197,7 +197,7 @@ def test_emitting_quad_emits_on_its_normal_side_only(llvm):
     """A one-sided area emitter (Mitsuba ``area`` plugin: emits where the surface normal faces the
     viewer) on our two-triangle quad: seen from the front its radiance is the emitter's, seen from
     behind it is dark."""
-    from workers.render.scene import emitting_quad
+    from render.scene import emitting_quad
 
     mi = llvm
     quad = emitting_quad("q", (0.0, 0.0, 0.0), (0.5, 0.0, 0.0), (0.0, 0.5, 0.0), (0.0, 0.0, 1.0),
@@ -219,10 +219,10 @@ _KERNEL_REUSE_SCRIPT = """
 import copy, json, sys
 sys.path.insert(0, sys.argv[1])
 from tests.render.test_image_quality import _window_spec
-from workers.render import backend
+from render import backend
 backend.init_renderer(variant="llvm_ad_rgb")
 import drjit as dr
-from workers.render.scene import build_scene, render_label_and_aux, render_radiance
+from render.scene import build_scene, render_label_and_aux, render_radiance
 
 def hashes(spec):
     built = build_scene(spec)
@@ -288,7 +288,7 @@ def _correct_shutter_s(luminance: float, f_number: float, iso: float) -> float:
 
 @pytest.mark.parametrize("luminance", np.geomspace(0.5, 200000.0, 61).tolist())
 def test_exposure_is_never_more_than_a_third_of_a_stop_off_when_the_iso_range_allows(luminance):
-    from workers.render.frame import auto_exposure
+    from render.frame import auto_exposure
 
     chosen = auto_exposure(luminance, CAMERA)
     lo_s, hi_s = CAMERA["shutter_limits_s"]
@@ -315,7 +315,7 @@ def test_meter_reads_the_log_average_luminance():
     """Reinhard et al. 2002, eq. 1: the key of a scene is exp(mean(log(δ + L))). Analytic cases: a
     uniform image reads its own luminance; 3 % of the pixels at 1000× the rest read 1000^0.03 ≈ 1.23×
     the rest (the arithmetic mean would read 31×)."""
-    from workers.render.camera import METER_LOG_DELTA_CD_M2, metered_luminance_cd_m2
+    from render.camera import METER_LOG_DELTA_CD_M2, metered_luminance_cd_m2
 
     uniform = np.full((40, 50, 3), 20.0, dtype=np.float32)
     assert metered_luminance_cd_m2(uniform) == pytest.approx(20.0 + METER_LOG_DELTA_CD_M2, rel=1e-6)
@@ -331,8 +331,8 @@ def test_a_lamp_in_view_does_not_darken_the_room():
     """A room at 10 cd/m² with a lamp at 10,000 cd/m² on 3 % of the frame: the room's pixels come out
     within half a stop of where the same room without the lamp puts them (an averaging meter would put
     them 5 stops lower)."""
-    from workers.render.camera import LUMINANCE_WEIGHTS
-    from workers.render.frame import expose
+    from render.camera import LUMINANCE_WEIGHTS
+    from render.frame import expose
 
     camera = dict(CAMERA, sensor_noise=False, f_number=4.0, iso=400.0)
     room = np.full((100, 100, 3), 10.0, dtype=np.float32)
@@ -351,7 +351,7 @@ def test_a_lamp_in_view_does_not_darken_the_room():
 
 def test_bright_scene_lowers_the_iso_instead_of_overexposing():
     """The reported case: the metered time at the sampled ISO is shorter than the shortest shutter."""
-    from workers.render.frame import auto_exposure
+    from render.frame import auto_exposure
 
     luminance = 3000.0  # a bright sunlit room, cd/m² (order of magnitude, from memory)
     assert _correct_shutter_s(luminance, 8.0, 800.0) < 1 / 500  # at ISO 800 the shutter would clamp
@@ -362,8 +362,8 @@ def test_bright_scene_lowers_the_iso_instead_of_overexposing():
 
 
 def test_sensor_noise_switch_off_gives_the_noise_free_image():
-    from workers.render.camera import encode_srgb_8bit, exposure_scale
-    from workers.render.frame import expose
+    from render.camera import encode_srgb_8bit, exposure_scale
+    from render.frame import expose
 
     radiance = np.random.default_rng(1).uniform(5.0, 80.0, (24, 32, 3)).astype(np.float32)
     camera = CAMERA | {"sensor_noise": False}
@@ -378,7 +378,7 @@ def test_sensor_noise_switch_off_gives_the_noise_free_image():
 
 
 def test_budget_switches_are_booleans():
-    from workers.render.budget import BudgetError, normalize_budget
+    from render.budget import BudgetError, normalize_budget
 
     budget = normalize_budget({"render": {"denoise": False}, "camera": {"sensor_noise": False}})
     assert budget["render"]["denoise"] is False and budget["camera"]["sensor_noise"] is False

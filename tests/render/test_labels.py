@@ -9,7 +9,7 @@ import pytest
 import shapely
 from pycocotools import mask as mask_utils
 
-from workers.render import camera, labels
+from render import camera, labels
 
 WIDTH, HEIGHT = 64, 48
 # A camera at the origin looking along +z with OpenCV axes = world axes, f = 100 px.

@@ -12,8 +12,8 @@ from scipy import stats
 from scipy.spatial.transform import Rotation
 from shapely.geometry import Polygon, box
 
-from workers.render import assets, dressing, layout
-from workers.render.budget import normalize_budget
+from render import assets, dressing, layout
+from render.budget import normalize_budget
 
 COMPOSITIONS = {
     "living": ["sofa", "coffee_table", "armchair", "potted_plant", "wall_clock"],

@@ -10,8 +10,8 @@ import numpy as np
 import pytest
 from scipy import integrate
 
-from workers.render import lights
-from workers.render.budget import normalize_budget
+from render import lights
+from render.budget import normalize_budget
 
 ROOM_WITH_WINDOW = {
     "width_m": 4.0, "depth_m": 5.0, "height_m": 2.7,

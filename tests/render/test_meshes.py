@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 import trimesh
 
-from workers.render import meshes
-from workers.render.meshes import MeshError, load_user_mesh
+from render import meshes
+from render.meshes import MeshError, load_user_mesh
 
 
 def _box(extents: tuple[float, float, float], offset: tuple[float, float, float] = (0.0, 0.0, 0.0)) -> trimesh.Trimesh:

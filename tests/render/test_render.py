@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 import trimesh
 
-from workers.render import backend
+from render import backend
 
 VARIANTS = backend.available_variants()
 W, H = 96, 72
@@ -40,7 +40,7 @@ def _look_at_cv(position, target, up=(0.0, 0.0, 1.0)):
 
 def _scene(mi, k_matrix, rotation, translation, shapes: dict, *, lights: dict | None = None, spp: int = 4,
            width: int = W, height: int = H, max_depth: int = 3):
-    from workers.render import scene as sc
+    from render import scene as sc
 
     rgb_sensor, label_sensor = sc.sensor_dicts(k_matrix, rotation, translation, width, height, spp=spp)
     scene_dict = {"type": "scene", sc.RGB_SENSOR_ID: rgb_sensor, sc.LABEL_SENSOR_ID: label_sensor}
@@ -51,7 +51,7 @@ def _scene(mi, k_matrix, rotation, translation, shapes: dict, *, lights: dict | 
 
 
 def _mesh(mi, name, mesh: trimesh.Trimesh, material=None):
-    from workers.render import scene as sc
+    from render import scene as sc
 
     bsdf = mi.load_dict(sc.bsdf_dict(material or {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0}))
     return sc.mesh_from_arrays(name, mesh.vertices, mesh.faces, bsdf)
@@ -61,7 +61,7 @@ def _mesh(mi, name, mesh: trimesh.Trimesh, material=None):
 @pytest.mark.parametrize("principal_point", [(W / 2, H / 2), (W / 2 - 7.0, H / 2 + 5.0)])
 def test_cube_mask_box_matches_projected_corners(variant, principal_point):
     """Reference: OpenCV ``cv2.projectPoints`` of the cube's 8 corners; the mask box is within 1 px."""
-    from workers.render import scene as sc
+    from render import scene as sc
 
     mi = _init(variant)
     k_matrix = np.array([[80.0, 0.0, principal_point[0]], [0.0, 80.0, principal_point[1]], [0.0, 0.0, 1.0]])
@@ -80,7 +80,7 @@ def test_cube_mask_box_matches_projected_corners(variant, principal_point):
     projected_box = np.array([*corners.min(axis=0), *corners.max(axis=0)])
     np.testing.assert_allclose(mask_box, projected_box, atol=1.0)
     # and our own projection agrees with OpenCV's
-    from workers.render.camera import project_points
+    from render.camera import project_points
 
     np.testing.assert_allclose(project_points(cube.vertices, rotation, translation, k_matrix), corners, atol=1e-6)
 
@@ -89,7 +89,7 @@ def test_cube_mask_box_matches_projected_corners(variant, principal_point):
 def test_shape_index_maps_to_instances(variant):
     """Several objects, ids in shuffled order, extra shapes created before: each instance's mask lies
     around its own projected centre (reference: cv2.projectPoints)."""
-    from workers.render import scene as sc
+    from render import scene as sc
 
     mi = _init(variant)
     _ = [mi.load_dict({"type": "sphere"}) for _ in range(3)]  # shift the registry ids
@@ -125,7 +125,7 @@ def test_shape_index_maps_to_instances(variant):
 def test_depth_of_a_plane_is_z_depth(variant):
     """Analytic: a plane perpendicular to the optical axis at distance D has z-depth D at every
     pixel (the AOV's ray distance would be D / cos θ off-axis) — within 1 %."""
-    from workers.render import scene as sc
+    from render import scene as sc
 
     mi = _init(variant)
     distance_m = 2.7
@@ -148,8 +148,8 @@ def test_lambertian_plane_under_point_source(variant):
     The light goes through ``scene.emitter_entries`` (a spec light dict of flux Φ, I = Φ / 4π cd),
     so this also checks the render unit convention: Y of the render is luminance in cd/m².
     """
-    from workers.render import scene as sc
-    from workers.render.camera import luminance_cd_m2
+    from render import scene as sc
+    from render.camera import luminance_cd_m2
 
     mi = _init(variant)
     albedo, distance_m, flux_lm = 0.6, 1.5, 1200.0
@@ -184,14 +184,14 @@ COMPOSITION = {"chair": 2, "coffee_table": 1, "wall_clock": 1}
 
 @pytest.fixture(scope="module")
 def tiny_spec():
-    from workers.render.spec import make_spec
+    from render.spec import make_spec
 
     return make_spec(TINY_BUDGET, COMPOSITION, 21)
 
 
 @pytest.mark.parametrize("variant", VARIANTS)
 def test_frame_on_each_variant(variant, tiny_spec, tmp_path):
-    from workers.render.frame import OUTPUT_FILES, STAGES, render_frame
+    from render.frame import OUTPUT_FILES, STAGES, render_frame
 
     result = render_frame(tiny_spec, out_dir=tmp_path, variant=variant)
     assert result.rgb.shape == (H, W, 3) and result.rgb.dtype == np.uint8
@@ -227,7 +227,7 @@ def test_frame_on_each_variant(variant, tiny_spec, tmp_path):
 
     assert json.loads((tmp_path / "labels.json").read_text()) == labels
     assert tuple(json.loads((tmp_path / "timings.json").read_text())) == STAGES
-    from workers.render.spec import spec_from_json
+    from render.spec import spec_from_json
 
     assert spec_from_json((tmp_path / "scene.json").read_text()) == tiny_spec
 
@@ -236,8 +236,8 @@ def test_frame_on_each_variant(variant, tiny_spec, tmp_path):
 def test_same_spec_renders_identically(variant, tiny_spec):
     """GUIDE §3: threaded backends differ by ~1e-6 in float; labels must match exactly and the
     8-bit RGB almost everywhere (a tiny fraction of pixels ±1)."""
-    from workers.render.frame import render_frame
-    from workers.render.spec import spec_from_json, spec_to_json
+    from render.frame import render_frame
+    from render.spec import spec_from_json, spec_to_json
 
     first = render_frame(tiny_spec, variant=variant)
     second = render_frame(spec_from_json(spec_to_json(tiny_spec)), variant=variant)  # via JSON, as a re-render
@@ -255,7 +255,7 @@ def test_metered_exposure_follows_iso_2720():
     """ISO 2720 reflected-light meter, N²/t = L S / K with K = 12.5: a uniform scene of luminance L
     gets t = K N² / (L S) on the 1/3-stop grid (within 1/6 stop), and lands at the ISO 12232
     saturation-based signal q K / 78 ≈ 0.104 of saturation (q = 0.65)."""
-    from workers.render.frame import expose
+    from render.frame import expose
 
     luminance, f_number, iso = 37.0, 4.0, 200.0
     camera = {"f_number": f_number, "iso": iso, "exposure_compensation_ev": 0.0, "shutter_limits_s": [1e-5, 30.0],
@@ -277,7 +277,7 @@ def test_metered_exposure_follows_iso_2720():
 
 
 def test_metered_shutter_ignores_float_noise():
-    from workers.render.frame import expose
+    from render.frame import expose
 
     camera = {"f_number": 2.8, "iso": 400.0, "exposure_compensation_ev": 0.3, "shutter_limits_s": [1e-4, 1.0],
               "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
@@ -288,7 +288,7 @@ def test_metered_shutter_ignores_float_noise():
 
 
 def test_preview_draws_boxes(tiny_spec):
-    from workers.render.frame import ACCEPTED_RGB, REJECTED_RGB, draw_preview
+    from render.frame import ACCEPTED_RGB, REJECTED_RGB, draw_preview
 
     rgb = np.full((H, W, 3), 128, np.uint8)
     labels = {"instances": [
@@ -305,8 +305,8 @@ def test_preview_draws_boxes(tiny_spec):
 def test_auto_iso_raises_sensitivity_before_underexposing():
     # ISO 2720 meter (K = 12.5): a dim scene that would need 1 s at ISO 100 gets ISO raised (marked 1/3-stop
     # speeds, ISO 12232) so that the longest allowed shutter, 1/8 s, is enough: 8x → ISO 800.
-    from workers.render import camera as cam
-    from workers.render.frame import expose
+    from render import camera as cam
+    from render.frame import expose
 
     f_number, iso = 4.0, 100.0
     luminance = 12.5 * f_number**2 / (1.0 * iso)  # N²/t = L S / K with t = 1 s

@@ -6,8 +6,8 @@ import json
 
 import pytest
 
-from workers.render.budget import BudgetError
-from workers.render.spec import (
+from render.budget import BudgetError
+from render.spec import (
     AXES,
     SPEC_FORMAT_VERSION,
     derive_sub_seeds,
@@ -83,7 +83,7 @@ def test_shared_layout_seed_keeps_layout_and_varies_lighting_and_camera():
 
 
 def test_equal_sub_seeds_on_two_axes_are_still_independent_streams():
-    from workers.render.spec import axis_rng
+    from render.spec import axis_rng
 
     seeds = {axis: 9 for axis in AXES}
     draws = {axis: axis_rng(seeds, axis).random() for axis in AXES}
@@ -135,7 +135,7 @@ def test_bad_budget_and_seed():
 
 
 def test_layout_error_propagates_with_its_reason():
-    from workers.render.layout import LayoutError
+    from render.layout import LayoutError
 
     tiny = {"room": {"width_m": [2.0, 2.0], "depth_m": [2.0, 2.0], "max_objects_per_m2": 0.05}}
     with pytest.raises(LayoutError) as info:
@@ -161,7 +161,7 @@ def _user_assets(path):
 
 
 def test_user_mesh_appears_with_its_asset_id_and_procedural_variety_stays(box_obj):
-    from workers.render.assets import build_asset_parts
+    from render.assets import build_asset_parts
 
     composition = {"ottoman": 2, "chair": 1}
     ids = []

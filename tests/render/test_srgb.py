@@ -1,11 +1,11 @@
-"""The one sRGB transfer function (``workers.render.srgb``) against colour-science and the standard's own numbers."""
+"""The one sRGB transfer function (``render.srgb``) against colour-science and the standard's own numbers."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
 
-from workers.render import srgb
+from render import srgb
 
 CODES = np.linspace(0.0, 1.0, 2001)
 
@@ -56,8 +56,8 @@ def test_keeps_float32_and_promotes_integers():
 
 def test_callers_use_the_shared_function():
     # The per-module copies are gone: each entry point now agrees with the shared function bit for bit.
-    from workers.render import assets, camera, visibility
-    from workers.render.textures import maps
+    from render import assets, camera, visibility
+    from render.textures import maps
 
     levels = np.linspace(0.0, 1.0, 1001)
     assert np.array_equal(assets.srgb_to_linear(levels), srgb.decode(levels))

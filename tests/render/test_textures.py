@@ -13,9 +13,9 @@ import pytest
 from PIL import Image
 from scipy import ndimage
 
-from workers.render import textures
-from workers.render.textures import cache, maps, noise
-from workers.render.textures.registry import TextureParamError
+from render import textures
+from render.textures import cache, maps, noise
+from render.textures.registry import TextureParamError
 
 FAMILIES = sorted(textures.FAMILIES)
 RESOLUTION_PX = 128

@@ -22,8 +22,8 @@ import pytest
 import trimesh
 from PIL import Image
 
-from workers.render import assets, backend, scene
-from workers.render.meshes import MeshError, extract_model_zip, load_user_model
+from render import assets, backend, scene
+from render.meshes import MeshError, extract_model_zip, load_user_model
 
 RED_SRGB8 = (200, 40, 40)
 GREEN_SRGB8 = (40, 160, 60)
@@ -200,8 +200,8 @@ def _dial_clock_glb(path: Path) -> Path:
 
 
 def test_flat_modelled_clock_hangs_face_out_on_the_wall(tmp_path):
-    from workers.render.layout import object_world_parts, place_objects, sample_room
-    from workers.render.spec import normalize_budget
+    from render.layout import object_world_parts, place_objects, sample_room
+    from render.spec import normalize_budget
 
     path = _dial_clock_glb(tmp_path / "clock.glb")
     spec = assets.user_asset_spec(path, "wall_clock", "wall", np.random.default_rng(2), unit="m", up_axis="+y",
@@ -253,7 +253,7 @@ def test_front_along_the_up_axis_is_refused(tmp_path):
 
 
 def test_rotation_is_proper_and_sends_up_and_front_home():
-    from workers.render.meshes import FRONT_AXES, UP_AXES, axis_rotation
+    from render.meshes import FRONT_AXES, UP_AXES, axis_rotation
 
     for up in UP_AXES:
         for front in FRONT_AXES:
@@ -316,8 +316,8 @@ def test_missing_texture_in_an_obj_zip_is_a_clear_error(tmp_path):
 
 def test_a_frame_with_a_kept_look_upload_renders_through_the_scene_hook(tmp_path, mi):
     """make_spec → build_scene (twice: the second reuses pooled BSDFs, recoloured from the image) → render."""
-    from workers.render import spec as spec_module
-    from workers.render.frame import render_frame
+    from render import spec as spec_module
+    from render.frame import render_frame
 
     path = _dial_clock_glb(tmp_path / "clock.glb")
     quad = _textured_quad_glb(tmp_path / "quad.glb")

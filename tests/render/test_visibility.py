@@ -8,7 +8,7 @@ import warnings
 import numpy as np
 import pytest
 
-from workers.render import visibility
+from render import visibility
 
 with warnings.catch_warnings():  # colour-science warns at import that matplotlib is absent
     warnings.simplefilter("ignore")

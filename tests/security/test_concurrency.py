@@ -93,7 +93,7 @@ def no_preview(monkeypatch) -> None:
 
 
 def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
-    from workers.render.budget import DEFAULT_BUDGET, FIELDS
+    from render.budget import DEFAULT_BUDGET, FIELDS
 
     data: dict[str, Any] = {
         "name": name, "team": team_pk, "description": "", "seed": 5, "cost_budget": "50",

@@ -48,7 +48,7 @@ REPO_ROOT = Path(__file__).resolve().parents[3]
 def render_template_frame(out_dir: Path, *, seed: int = 3) -> Path:
     """One real tiny frame by the render core (imported here, never at Django load)."""
     from campaigns.services import normalize_campaign_budget
-    from workers.render.frame import render_frame_from_inputs
+    from render.frame import render_frame_from_inputs
 
     render_frame_from_inputs(normalize_campaign_budget(TEMPLATE_BUDGET), TEMPLATE_COMPOSITION, seed, out_dir=out_dir)
     return out_dir

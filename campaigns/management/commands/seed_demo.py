@@ -54,7 +54,7 @@ DEMO_SEED = 20240611
 
 
 def demo_class_names() -> list[str]:
-    from workers.render.assets import CLASSES
+    from render.assets import CLASSES
 
     return sorted(CLASSES)
 

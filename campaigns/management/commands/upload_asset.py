@@ -13,8 +13,8 @@ from django.core.files import File
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
 from campaigns import asset_files, services
-from workers.render.meshes import FRONT_AXES, SIGNED_AXES, UNIT_TO_M
-from workers.render.user_materials import LOOKS
+from render.meshes import FRONT_AXES, SIGNED_AXES, UNIT_TO_M
+from render.user_materials import LOOKS
 
 
 class Command(BaseCommand):

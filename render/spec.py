@@ -122,7 +122,7 @@ def make_spec(
     ----------
     budget : dict or None
         A (partial) randomization budget; merged over the defaults and validated
-        (:class:`workers.render.budget.BudgetError` on bad input).
+        (:class:`render.budget.BudgetError` on bad input).
     composition : dict
         ``{class_name: count}``; unknown classes or negative counts raise ``ValueError``.
     seed : int
@@ -135,20 +135,20 @@ def make_spec(
         "up_axis", "placement"}`` and optionally ``"front"`` (the file axis the model faces, ±x/±y/±z) and
         ``"look"`` ("keep" the model's materials or "randomize", the default). Each instance of a class with entries picks uniformly (layout stream) among
         the procedural generator and the entries; a picked entry becomes a
-        :func:`workers.render.assets.user_asset_spec` carrying the entry's ``asset_id`` (and its mesh path, so
+        :func:`render.assets.user_asset_spec` carrying the entry's ``asset_id`` (and its mesh path, so
         the spec re-renders from its JSON). None or no entries for a class: that class samples exactly as before.
     view_slot : int, optional
         This view's index among the views of its layout (lighting index × views per lighting + view index).
         Given, the camera pose is drawn apart from the layout's earlier views
-        (:func:`workers.render.camera.sample_camera`); None draws it from the camera stream alone.
+        (:func:`render.camera.sample_camera`); None draws it from the camera stream alone.
 
     Returns
     -------
     dict
         JSON-able spec: ``format_version``, ``seed``, ``sub_seeds``, ``budget``, ``composition``,
-        ``render``, ``room``, ``layout_mode`` ("free" or "home", :func:`workers.render.layout.choose_layout_mode`),
+        ``render``, ``room``, ``layout_mode`` ("free" or "home", :func:`render.layout.choose_layout_mode`),
         ``objects``, ``lights``, ``camera``, ``thresholds``; ``distractors`` (unlabelled
-        clutter, :mod:`workers.render.distractors`) only when there are any.
+        clutter, :mod:`render.distractors`) only when there are any.
 
     Raises
     ------

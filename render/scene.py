@@ -16,7 +16,7 @@ shape pointer), not its position in the scene dict or in ``scene.shapes()``;
 instance id through the shape's ``id()`` (``"i{instance_id}_p{k}"``; room
 and light shapes map to 0, the background).
 
-Call :func:`workers.render.backend.init_renderer` before anything here.
+Call :func:`render.backend.init_renderer` before anything here.
 
 References
 ----------
@@ -152,7 +152,7 @@ def _bsdf_type(kind: str, alpha: float) -> str:
 
 def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     """Mitsuba BSDF dict for a spec material ``{"kind", "rgb", "roughness"}`` (and an optional ``texture``
-    record, :mod:`workers.render.appearance`, whose base-colour image replaces ``rgb``).
+    record, :mod:`render.appearance`, whose base-colour image replaces ``rgb``).
 
     Every BSDF is wrapped in ``twosided``: procedural parts and the room's
     walls are seen from whichever side, and a one-sided BSDF renders black
@@ -795,7 +795,7 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
 def emitter_entries(light: dict[str, Any], index: int, *, sampling_weight: float = 1.0) -> dict[str, dict[str, Any]]:
     """Scene-dict entries (id → plugin dict, or a built mesh for panels) for one light of the spec.
 
-    Magnitudes come from :func:`workers.render.lights.emitter_quantities`, so the rendered
+    Magnitudes come from :func:`render.lights.emitter_quantities`, so the rendered
     linear-sRGB radiance has Y = luminance in cd/m².
     """
     entries = _emitter_entries(light, index)
@@ -921,7 +921,7 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
             if key not in bsdfs:
                 acquired.append(BSDF_POOL.acquire(material))
                 bsdfs[key] = acquired[-1][1]
-            uv = material.get("uv")  # an upload's own texture coordinates (workers.render.assets, look "keep")
+            uv = material.get("uv")  # an upload's own texture coordinates (render.assets, look "keep")
             if uv is None and material.get("texture"):
                 # Room surfaces are projected in the room's frame, objects and distractors in their own (the grain
                 # turns with them).

@@ -62,7 +62,7 @@ import cv2
 import numpy as np
 from scipy import ndimage
 
-from workers.render import srgb
+from render import srgb
 
 # ΔE*ab ≈ 1 to 2.3 is commonly quoted as a just-noticeable difference (Sharma, Digital Color Imaging Handbook, 2003,
 # cited from memory).

@@ -9,7 +9,7 @@ Three steps, each pure or cached:
    ``appearance.texture_probability``, a ``texture`` record ``{"family", "variant", "params",
    "seed", "tile_size_m", "resolution_px"}``. Variants: each family has a fixed library of
    ``appearance.texture_variants`` parameter sets (variant k: parameters drawn with seed k), so a
-   fleet generates each texture once (:func:`workers.render.textures.texture_set` caches it on
+   fleet generates each texture once (:func:`render.textures.texture_set` caches it on
    disk) however many frames use it; the physical scale still varies per material by
    ``appearance.texture_scale``.
 2. :func:`box_uv` (at scene build): texture coordinates by box projection in metres. Each
@@ -38,7 +38,7 @@ from typing import Any
 
 import numpy as np
 
-#: Asset material family (``workers.render.assets.FAMILIES``) → texture families it may wear.
+#: Asset material family (``render.assets.FAMILIES``) → texture families it may wear.
 #: Plastic, painted and ceramic surfaces, foliage, paper and lampshades stay plain-coloured: in a
 #: home they are plain.
 TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
@@ -55,7 +55,7 @@ TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
     "metal": ("brushed_metal",),
     "concrete": ("concrete",),
     "terracotta": ("concrete",),
-    # Distractors (workers.render.distractors): a rug wears one whole rug texture, a picture a print of a pattern.
+    # Distractors (render.distractors): a rug wears one whole rug texture, a picture a print of a pattern.
     "rug": ("rug",),
     "artwork": ("wallpaper", "marble", "rug"),
 }

@@ -5,7 +5,7 @@ A user mesh becomes an asset like the procedural ones: metres, z up, front on
 own up axis and front direction (any of ±x, ±y, ±z) are turned onto +z and +y
 by one proper rotation (:func:`axis_rotation`). :func:`load_user_model` keeps
 the model's parts, one per material, with their texture coordinates and look
-(:mod:`workers.render.user_materials`); :func:`load_user_mesh` is the same
+(:mod:`render.user_materials`); :func:`load_user_mesh` is the same
 geometry as one mesh. An OBJ with its MTL and images arrives as a zip,
 unpacked by :func:`extract_model_zip`. Anything that
 would make a frame silently wrong (an empty or corrupt file, NaN vertices, a
@@ -110,7 +110,7 @@ class UserPart:
     """One material's worth of a user model, in the local frame: metres, z up, front +y.
 
     ``uv``: (V, 2) texture coordinates in the file's convention (origin at the image's bottom left, as trimesh
-    gives them) or None; ``look``: see :func:`workers.render.user_materials.visual_look`.
+    gives them) or None; ``look``: see :func:`render.user_materials.visual_look`.
     """
 
     mesh: trimesh.Trimesh

@@ -1,7 +1,7 @@
 """Uploaded models at scene build: parsed once per process per file version, and their base-colour textures.
 
-Split from :mod:`workers.render.user_materials` (what a model's visuals mean, no file access) and
-:mod:`workers.render.meshes` (reading and normalizing the file), which this module joins.
+Split from :mod:`render.user_materials` (what a model's visuals mean, no file access) and
+:mod:`render.meshes` (reading and normalizing the file), which this module joins.
 """
 
 from __future__ import annotations
@@ -14,9 +14,9 @@ from typing import Any
 
 import numpy as np
 
-from workers.render import srgb
-from workers.render.meshes import MeshError, load_user_model
-from workers.render.user_materials import ALBEDO_MAX, ALBEDO_MIN
+from render import srgb
+from render.meshes import MeshError, load_user_model
+from render.user_materials import ALBEDO_MAX, ALBEDO_MIN
 
 
 @functools.lru_cache(maxsize=16)
@@ -26,7 +26,7 @@ def _cached_model(path: str, mtime_ns: int, size: int, unit: str, up_axis: str, 
 
 
 def load_model_cached(path: str, *, unit: str = "auto", up_axis: str = "z", front: str | None = None) -> Any:
-    """:func:`workers.render.meshes.load_user_model`, parsed once per process per file version. Shared: do not
+    """:func:`render.meshes.load_user_model`, parsed once per process per file version. Shared: do not
     change the returned meshes (copy them)."""
     try:
         stat = os.stat(path)

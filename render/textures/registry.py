@@ -15,7 +15,7 @@ kind of the scene spec its maps belong under (``diffuse``, ``plastic``,
 ``varnish``, ``metal``; for ``metal`` the base colour is the specular
 reflectance).
 
-Output encodings and axes: see :mod:`workers.render.textures.maps`.
+Output encodings and axes: see :mod:`render.textures.maps`.
 
 References
 ----------
@@ -34,7 +34,7 @@ from typing import Any
 
 import numpy as np
 
-from workers.render.rounding import round_floats
+from render.rounding import round_floats
 
 from . import finishes, stone, textiles, wood
 from .maps import Surface, TextureMaps, finish

@@ -1,6 +1,6 @@
 """Benchmark: end-to-end frame time against Mitsuba's render call alone.
 
-``python -m workers.render.bench --frames 5 [--width 640 --height 480 --spp 32] [--variant llvm_ad_rgb]``
+``python -m render.bench --frames 5 [--width 640 --height 480 --spp 32] [--variant llvm_ad_rgb]``
 
 Renders one warm-up frame (JIT compilation, integrator construction; excluded), then ``--frames``
 frames end to end (spec, scene build, render, label pass, labels, encode with the files written
@@ -24,7 +24,7 @@ TARGET_RATIO = 1.15
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m workers.render.bench", description=__doc__.split("\n\n")[0])
+    parser = argparse.ArgumentParser(prog="python -m render.bench", description=__doc__.split("\n\n")[0])
     parser.add_argument("--frames", type=int, default=5)
     parser.add_argument("--width", type=int, default=640)
     parser.add_argument("--height", type=int, default=480)

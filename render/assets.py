@@ -11,7 +11,7 @@ building are split so the scene spec stays plain JSON:
   deterministically and without a random generator, so any worker can
   rebuild the same geometry from the spec alone.
 
-Local frame (see ``workers/render/README.md``): metres, z up, origin at the
+Local frame (see ``render/README.md``): metres, z up, origin at the
 centre of the footprint on the base, front towards local +y. Wall items put
 their back on the plane y = 0, face +y, origin at the bottom centre of the back.
 
@@ -36,7 +36,7 @@ import numpy as np
 import trimesh
 from scipy.spatial import ConvexHull
 
-from workers.render import meshes, srgb
+from render import meshes, srgb
 
 # ---------------------------------------------------------------------------
 # Handbook ranges
@@ -169,7 +169,7 @@ HANDBOOK_RANGES: dict[str, dict[str, DimensionRange]] = {
 
 
 def srgb_to_linear(rgb: tuple[float, float, float] | np.ndarray) -> np.ndarray:
-    """sRGB-encoded colour (0..1) to linear RGB in float64; IEC 61966-2-1 (``workers.render.srgb.decode``)."""
+    """sRGB-encoded colour (0..1) to linear RGB in float64; IEC 61966-2-1 (``render.srgb.decode``)."""
     return srgb.decode(np.asarray(rgb, dtype=np.float64))
 
 
@@ -246,7 +246,7 @@ FAMILIES: dict[str, MaterialFamily] = {
         (0.90, 0.84, 0.72), (0.93, 0.88, 0.70), (0.70, 0.62, 0.58),
     ), (1.0, 1.0)),
     "ceiling_paint": MaterialFamily("diffuse", ((0.95, 0.95, 0.94), (0.93, 0.92, 0.90)), (1.0, 1.0)),
-    # Unlabelled clutter (workers.render.distractors).
+    # Unlabelled clutter (render.distractors).
     "rug": MaterialFamily("diffuse", (
         (0.55, 0.18, 0.15), (0.20, 0.25, 0.42), (0.85, 0.80, 0.68), (0.45, 0.45, 0.44), (0.70, 0.45, 0.30),
         (0.62, 0.66, 0.55),
@@ -1374,13 +1374,13 @@ def build_asset_parts(asset_spec: dict[str, Any]) -> list[Part]:
 # ---------------------------------------------------------------------------
 
 USER_PLACEMENTS = ("floor", "wall", "surface")
-#: "keep": the model's own materials, one part per material (workers.render.user_materials); "randomize": one
+#: "keep": the model's own materials, one part per material (render.user_materials); "randomize": one
 #: part with a random material, as for a mesh without materials.
 USER_LOOKS = ("keep", "randomize")
 
 
 def _load_user_model(path: str, unit: str, up_axis: str, front: str | None) -> meshes.UserModel:
-    from workers.render.user_models import load_model_cached
+    from render.user_models import load_model_cached
 
     return load_model_cached(path, unit=unit, up_axis=up_axis, front=front)
 
@@ -1388,16 +1388,16 @@ def _load_user_model(path: str, unit: str, up_axis: str, front: str | None) -> m
 def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placement: str, rng: np.random.Generator,
                     *, unit: str = "auto", up_axis: str = "z", front: str | None = None,
                     look: str = "randomize") -> dict[str, Any]:
-    """Wrap a user model (see :func:`workers.render.meshes.load_user_model`) as an asset spec.
+    """Wrap a user model (see :func:`render.meshes.load_user_model`) as an asset spec.
 
     ``placement`` is "floor", "wall" (the model's back, its local -y side, goes on the wall and its front, the
     file's ``front`` direction, faces the room) or "surface" (on a table top when one fits, else the floor).
     ``look`` "keep" gives one material slot per model part (``part0``, ``part1``, …) from the file's materials
-    (:func:`workers.render.user_materials.look_material`); "randomize" one random ``body`` material.
+    (:func:`render.user_materials.look_material`); "randomize" one random ``body`` material.
     The spec records ``front`` and ``look`` only when they differ from the defaults, so older specs keep their bytes.
     Raises ``MeshError`` for a bad file and ``ValueError`` for a bad placement or look.
     """
-    from workers.render.user_materials import look_material, texture_record
+    from render.user_materials import look_material, texture_record
 
     if placement not in USER_PLACEMENTS:
         raise ValueError(f"unknown placement {placement!r} (known: {', '.join(USER_PLACEMENTS)})")
@@ -1442,7 +1442,7 @@ def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placemen
 
 
 def _build_user_parts(spec: dict[str, Any]) -> list[Part]:
-    from workers.render.user_materials import mitsuba_uv
+    from render.user_materials import mitsuba_uv
 
     model = _load_user_model(spec["mesh_path"], spec.get("unit", "auto"), spec.get("up_axis", "z"),
                              spec.get("front") or None)
@@ -1461,7 +1461,7 @@ def _build_user_parts(spec: dict[str, Any]) -> list[Part]:
         material = dict(spec["materials"][f"part{k}"])
         if material.get("user_texture") and user_part.uv is not None:
             # Per-vertex texture coordinates ride along in the in-memory material (never in the JSON spec); the
-            # scene hands them to the mesh (workers.render.scene.build_scene).
+            # scene hands them to the mesh (render.scene.build_scene).
             material["uv"] = mitsuba_uv(user_part.uv)
         parts.append(Part(f"part{k}", mesh, material))
     return parts

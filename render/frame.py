@@ -143,7 +143,7 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
            noise: bool = True) -> tuple[np.ndarray, dict[str, Any]]:
     """Meter, expose, add sensor noise, clip and sRGB-encode a linear render (Y in cd/m²).
 
-    The meter reads the log-average luminance (:func:`workers.render.camera.metered_luminance_cd_m2`:
+    The meter reads the log-average luminance (:func:`render.camera.metered_luminance_cd_m2`:
     lamps and sun patches in view do not darken the room); exposure is :func:`auto_exposure`; sensor
     noise (shot + read, EMVA 1288 model) is added when ``noise`` and the camera's ``sensor_noise``
     switch (default on) are both true. Returns the uint8
@@ -155,7 +155,7 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
     References
     ----------
     ISO 2720:1974 (meter, K = 12.5), ISO 12232:2019 (saturation-based speed), IEC 61966-2-1 (sRGB OETF),
-    EMVA 1288 (noise model) — see :mod:`workers.render.camera`.
+    EMVA 1288 (noise model) — see :mod:`render.camera`.
     """
     from . import camera as cam
 
@@ -228,7 +228,7 @@ def render_frame(
     spec_s: float = 0.0,
     window_light: str = "portal",
 ) -> FrameResult:
-    """Render a spec from :func:`workers.render.spec.make_spec` (or its JSON read back).
+    """Render a spec from :func:`render.spec.make_spec` (or its JSON read back).
 
     Parameters
     ----------
@@ -237,13 +237,13 @@ def render_frame(
     out_dir : Path, optional
         Directory for the output files (see :data:`OUTPUT_FILES`).
     variant : str, optional
-        ``scalar_rgb`` or ``llvm_ad_rgb``; default: :func:`workers.render.backend.choose_backend`.
+        ``scalar_rgb`` or ``llvm_ad_rgb``; default: :func:`render.backend.choose_backend`.
     threads : int, optional
         Dr.Jit thread-pool size.
     spec_s : float
         Time already spent making the spec, reported as the ``spec`` stage.
     window_light : str
-        ``portal`` (default) or ``dome``: how sky light enters (see :func:`workers.render.scene.build_scene`).
+        ``portal`` (default) or ``dome``: how sky light enters (see :func:`render.scene.build_scene`).
     """
     from . import labels as labels_module
     from .backend import init_renderer
@@ -340,7 +340,7 @@ def judge_visibility(rgb: np.ndarray, instance_ids: np.ndarray, instances: list[
 
     Measured on the final 8-bit image (after exposure and sensor noise): what the detector will
     see. Instances already not visible geometrically keep contrast 0 and no extra reason.
-    See :mod:`workers.render.visibility` for the measure.
+    See :mod:`render.visibility` for the measure.
     """
     from .labels import thresholds_for_class
     from .visibility import instance_contrasts, noise_sigma_lightness
@@ -405,7 +405,7 @@ def render_frame_from_inputs(
     threads: int | None = None,
     user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None = None,
 ) -> FrameResult:
-    """:func:`workers.render.spec.make_spec` then :func:`render_frame`, timing the spec stage too."""
+    """:func:`render.spec.make_spec` then :func:`render_frame`, timing the spec stage too."""
     from .spec import make_spec
 
     start = time.perf_counter()

@@ -21,12 +21,12 @@ Conventions (see ``README.md``):
   inside the pixel (measured: up to half a pixel). Use
   ``{"type": "stratified", "sample_count": 1, "jitter": False}`` so each
   pixel is sampled exactly at its centre, the same rule as
-  :func:`workers.render.labels.rasterize_triangles`.
+  :func:`render.labels.rasterize_triangles`.
 
 Exposure: the render's Y channel (0.2126 R + 0.7152 G + 0.0722 B, linear
 sRGB) is luminance in cd/m². :func:`exposure_scale` maps it to the sensor
 signal (1.0 = saturation), :func:`apply_sensor_noise` adds shot and read
-noise, :func:`encode_srgb_8bit` clips and encodes; ``workers.render.frame.expose``
+noise, :func:`encode_srgb_8bit` clips and encodes; ``render.frame.expose``
 chains metering (with auto-ISO), exposure, noise and encoding.
 """
 
@@ -502,7 +502,7 @@ def encode_srgb_8bit(signal_rgb: np.ndarray) -> np.ndarray:
     IEC 61966-2-1:1999, sRGB encoding (12.92 x below 0.0031308, else 1.055 x^(1/2.4) − 0.055).
     """
     linear = np.clip(np.asarray(signal_rgb, dtype=np.float32), 0.0, 1.0)
-    from workers.render import srgb
+    from render import srgb
 
     return np.round(srgb.encode(linear) * 255.0).astype(np.uint8)
 
@@ -622,7 +622,7 @@ def _aim(positions: np.ndarray, centres: np.ndarray) -> tuple[np.ndarray, np.nda
     return yaw, pitch, span_yaw, elevation.max(axis=1) - elevation.min(axis=1)
 
 
-#: Budgets normalized before these fields existed read these values (the defaults of ``workers.render.budget``).
+#: Budgets normalized before these fields existed read these values (the defaults of ``render.budget``).
 DEFAULT_MAX_ZOOM_OUT = 1.0
 DEFAULT_DISTANCE_M = (1.0, 3.0)
 DEFAULT_MIN_VIEW_ANGLE_DEG = 20.0

@@ -5,11 +5,11 @@ An uploaded GLB / glTF or OBJ + MTL keeps its look when its asset says so (``loo
 - :func:`visual_look` reads one part's visual (``TextureVisuals`` with a ``PBRMaterial`` or ``SimpleMaterial``,
   or ``ColorVisuals``) into a plain :class:`Look`: base colour (linear), roughness, metallic and the base-colour
   texture (sRGB-encoded 8-bit pixels, at most :data:`MAX_TEXTURE_PX` a side);
-- :func:`look_material` turns a look into a spec material (``workers/render/README.md``): metallic ≥ 0.5 →
+- :func:`look_material` turns a look into a spec material (``render/README.md``): metallic ≥ 0.5 →
   ``metal`` (its base colour is the specular colour), else ``plastic`` (a dielectric of IOR 1.5 under a diffuse
   base), roughness as the file has it; a textured part adds ``user_texture``, a JSON record naming the model file
   and part, so the spec still re-renders from its JSON alone;
-- :func:`texture_linear_rgb` gives the scene (``workers.render.scene.bsdf_dict``) that part's base colour as a
+- :func:`texture_linear_rgb` gives the scene (``render.scene.bsdf_dict``) that part's base colour as a
   linear float32 image: the texture decoded from sRGB times the base-colour factor.
 
 Not carried over: normal maps (Mitsuba 3 has a ``normalmap`` BSDF, but wrapping every textured part in it adds a
@@ -23,7 +23,7 @@ References
   the texture sRGB-encoded, the factor linear; ``metallicFactor`` and ``roughnessFactor`` default to 1; dielectrics
   have F0 = 0.04 (IOR 1.5); roughness is perceptual, alpha = roughness².
 - Wavefront MTL format (Alias|Wavefront, 1995): ``Kd`` diffuse colour, ``map_Kd`` diffuse texture, multiplied by Kd.
-- IEC 61966-2-1:1999 sRGB transfer function (:mod:`workers.render.srgb`).
+- IEC 61966-2-1:1999 sRGB transfer function (:mod:`render.srgb`).
 """
 
 from __future__ import annotations

@@ -4,7 +4,7 @@ Pure numpy / pycocotools; no Mitsuba, no Django.
 
 Counting rule. Every pixel count here samples the pixel centre (integer + 0.5), the rule the
 label pass follows when its sampler is ``stratified`` with one sample and ``jitter = False``
-(see :mod:`workers.render.camera`): a pixel belongs to a triangle when its centre lies inside it,
+(see :mod:`render.camera`): a pixel belongs to a triangle when its centre lies inside it,
 with half-open spans (``left <= x < right`` on each pixel-centre row, ``top <= y < bottom``) so
 triangles sharing an edge never count a pixel twice or leave a gap.
 
@@ -101,7 +101,7 @@ def project_triangles(
     triangles_world : numpy.ndarray, shape (N, 3, 3)
         Triangles in world coordinates (m).
     R, t, K : numpy.ndarray
-        OpenCV extrinsics and intrinsics (see :mod:`workers.render.camera`).
+        OpenCV extrinsics and intrinsics (see :mod:`render.camera`).
     near_m : float
         Near-plane distance (m).
 
@@ -113,7 +113,7 @@ def project_triangles(
     References
     ----------
     Sutherland & Hodgman, "Reentrant polygon clipping", *Comm. ACM* 17(1), 1974; pinhole
-    projection as in :func:`workers.render.camera.project_points`.
+    projection as in :func:`render.camera.project_points`.
     """
     tri = np.asarray(triangles_world, dtype=float).reshape(-1, 3, 3)
     cam = tri @ np.asarray(R, dtype=float).T + np.asarray(t, dtype=float)

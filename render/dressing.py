@@ -1,6 +1,6 @@
 """Dressed rooms: room types with plausible finishes, skirting boards, doors, window frames and curtains.
 
-A room is drawn by :func:`workers.render.layout.sample_room` (size, windows); this module adds what
+A room is drawn by :func:`render.layout.sample_room` (size, windows); this module adds what
 makes a box into a room, all of it unlabelled background:
 
 - :func:`sample_dressing` (spec time, on the layout stream): the room type (``room.room_types`` in the
@@ -10,7 +10,7 @@ makes a box into a room, all of it unlabelled background:
 - :func:`dressing_parts` (scene build): triangle meshes of all of it, one part per material.
 
 The glass of the windows is not geometry here: the window portal that carries the sky into the room
-(:func:`workers.render.scene.window_portal_entries`) is itself the pane (a thin dielectric), so the sky
+(:func:`render.scene.window_portal_entries`) is itself the pane (a thin dielectric), so the sky
 stays sampled directly.
 
 Frame of reference on a wall: ``u`` runs along the wall from its lower-coordinate end, ``o`` is the
@@ -33,7 +33,7 @@ from typing import Any
 import numpy as np
 import trimesh
 
-from workers.render import assets
+from render import assets
 
 WALLS: tuple[str, ...] = ("south", "north", "west", "east")
 WALL_THICKNESS_M = 0.1  # behind the interior face; only its inner face is ever seen
@@ -55,7 +55,7 @@ ROOM_TYPES: dict[str, RoomType] = {
     "office": RoomType({"carpet": 0.45, "wood": 0.20, "tile": 0.15, "concrete": 0.20}, 0.05, 0.35),
 }
 
-#: Floor finish → material family (``workers.render.assets.FAMILIES``).
+#: Floor finish → material family (``render.assets.FAMILIES``).
 FLOOR_FINISHES: dict[str, str] = {"wood": "floor_wood", "tile": "floor_tile", "carpet": "carpet",
                                   "concrete": "concrete"}
 

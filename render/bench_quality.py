@@ -1,6 +1,6 @@
 """Image-quality benchmark: default frames against high-spp references, and quality per CPU-second.
 
-``python -m workers.render.bench_quality [--per-kind 3] [--width 320 --height 240] [--reference-spp 2048]``
+``python -m render.bench_quality [--per-kind 3] [--width 320 --height 240] [--reference-spp 2048]``
 
 1. Seeds: the first ``--per-kind`` seeds (default composition) of each lighting kind — ``lamp``
    (no window), ``window`` (sky through a window brings more flux than the lamps, no sun) and
@@ -10,7 +10,7 @@
    checks it against brute force). Its linear radiance is cached under ``--cache`` by the spec's bytes, so
    reruns are quick; it is exposed like any frame (sensor noise off) each run.
 3. Default frame: the campaign default budget (only the resolution changed), end to end through
-   :func:`workers.render.frame.render_frame`, timed in process CPU seconds (all threads). PSNR and
+   :func:`render.frame.render_frame`, timed in process CPU seconds (all threads). PSNR and
    SSIM (scikit-image ``metrics``) of its 8-bit image against the reference's: once with the
    default's sensor noise (what the dataset gets; the noise is a deliberate randomization) and once
    with sensor noise off (the render's own error).
@@ -117,7 +117,7 @@ def _with(spec: dict[str, Any], *, spp: int | None = None, denoise: bool | None 
 
 def reference_rgb(spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None) -> np.ndarray:
     """The reference 8-bit image of ``spec``: its high-spp linear radiance (cached on disk by the reference
-    spec's bytes), exposed by today's :func:`workers.render.frame.expose` with sensor noise off.
+    spec's bytes), exposed by today's :func:`render.frame.expose` with sensor noise off.
 
     The cache holds radiance, not the 8-bit image, so a change to exposure or encoding never compares
     default frames with a reference exposed the old way.
@@ -181,7 +181,7 @@ def cpu_per_frame(args: argparse.Namespace, seeds: list[int], default_render: di
 
     cpu: dict[str, dict[str, list[float]]] = {}
     for pipeline in ("previous", "new"):
-        command = [sys.executable, "-m", "workers.render.bench_quality", "--cpu-pipeline", pipeline,
+        command = [sys.executable, "-m", "render.bench_quality", "--cpu-pipeline", pipeline,
                    "--cpu-seeds", ",".join(map(str, seeds)), "--cpu-width", str(args.cpu_width),
                    "--cpu-height", str(args.cpu_height), "--variant", args.variant]
         if args.threads:
@@ -206,7 +206,7 @@ def cpu_per_frame(args: argparse.Namespace, seeds: list[int], default_render: di
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m workers.render.bench_quality", description=__doc__.split("\n\n")[0])
+    parser = argparse.ArgumentParser(prog="python -m render.bench_quality", description=__doc__.split("\n\n")[0])
     parser.add_argument("--per-kind", type=int, default=3, help="seeds per lighting kind (lamp, window, sun)")
     parser.add_argument("--width", type=int, default=320)
     parser.add_argument("--height", type=int, default=240)

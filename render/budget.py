@@ -49,7 +49,7 @@ FIELDS: tuple[Field, ...] = (
     Field("render", "height_px", "int", "px", 16, MAX_RESOLUTION_PX, "Image height in pixels."),
     Field("render", "spp", "int", "samples", 1, MAX_SPP,
           "Path-tracing samples per pixel: more is less noisy and slower, linearly. With the denoiser on, "
-          "4 already gives clean frames (python -m workers.render.bench_quality measures it)."),
+          "4 already gives clean frames (python -m render.bench_quality measures it)."),
     Field("render", "denoise", "bool", "", 0, 1,
           "Denoise the linear render (Intel Open Image Denoise, with albedo and normal images) before "
           "exposure and sensor noise. Off: the raw path-traced noise stays in the image."),

@@ -34,7 +34,7 @@ from typing import Any
 
 import numpy as np
 
-from workers.render import srgb as srgb_transfer
+from render import srgb as srgb_transfer
 
 
 @dataclass(frozen=True)
@@ -73,7 +73,7 @@ ALBEDO_MIN, ALBEDO_MAX = 0.005, 0.95
 
 
 def srgb_to_linear(srgb: np.ndarray | Sequence[float]) -> np.ndarray:
-    """sRGB-encoded values in [0, 1] to linear float32; IEC 61966-2-1 (``workers.render.srgb.decode``)."""
+    """sRGB-encoded values in [0, 1] to linear float32; IEC 61966-2-1 (``render.srgb.decode``)."""
     return srgb_transfer.decode(np.asarray(srgb, dtype=np.float32))
 
 

@@ -2,11 +2,11 @@
 
 Distractors are things a home holds besides the labelled classes. They are rendered like any
 other surface — they hide parts of labelled objects, cast shadows and show in mirrors — but their
-shapes are named ``"d{k}_p{j}"`` (:mod:`workers.render.scene`), so the label pass counts them as
+shapes are named ``"d{k}_p{j}"`` (:mod:`render.scene`), so the label pass counts them as
 background and they never appear in the labels.
 
 - :func:`sample_distractors` (at spec time, on its own random stream keyed by the layout, see
-  :mod:`workers.render.spec`) draws the budget's ``appearance.distractor_count`` items and places
+  :mod:`render.spec`) draws the budget's ``appearance.distractor_count`` items and places
   them *after* the labelled objects, which never move: rugs on the floor under or near furniture,
   boxes, floor vases and floor cushions on the free floor (collision-free, inside the room),
   books, vases, bowls, small boxes and table lamps on the tops of tables, shelves and trays
@@ -16,11 +16,11 @@ background and they never appear in the labels.
 - :func:`clear_of_camera_and_lights` drops the few that would stand where the camera is (the
   camera is sampled from the labelled objects only) or around a lamp bulb.
 - :func:`build_distractor_parts` / :func:`distractor_world_parts` turn a record back into meshes,
-  deterministically, like :func:`workers.render.assets.build_asset_parts`.
+  deterministically, like :func:`render.assets.build_asset_parts`.
 
 A distractor record (plain JSON) is ``{"kind", "anchor", "position_m", "yaw_deg", "size_m" [w, d, h],
 "params", "materials"}`` plus ``"support_instance_id"`` (the host of surface and seat items) and
-``"wall"`` (wall items). Local frames follow ``workers/render/README.md``: origin at the centre of
+``"wall"`` (wall items). Local frames follow ``render/README.md``: origin at the centre of
 the footprint on the base, front towards +y; wall items have their back on the plane y = 0.
 
 References
@@ -42,7 +42,7 @@ import numpy as np
 import trimesh
 from shapely.geometry import Polygon
 
-from workers.render import assets, layout
+from render import assets, layout
 
 R = assets.DimensionRange
 
@@ -355,9 +355,9 @@ def sample_distractors(room: dict[str, Any], objects: list[dict[str, Any]], appe
     Parameters
     ----------
     room : dict
-        The room of :func:`workers.render.layout.sample_room`.
+        The room of :func:`render.layout.sample_room`.
     objects : list of dict
-        The labelled objects of :func:`workers.render.layout.place_objects`.
+        The labelled objects of :func:`render.layout.place_objects`.
     appearance : dict
         The budget's ``appearance`` section; ``distractor_count`` [low, high] is the number drawn
         (uniform integer). With high = 0 nothing is drawn from ``rng``.
@@ -615,7 +615,7 @@ def _build(kind: str, p: dict[str, Any]) -> PartList:
 
 
 def build_distractor_parts(distractor: dict[str, Any]) -> list[assets.Part]:
-    """A distractor's meshes in its local frame, one :class:`workers.render.assets.Part` per material slot."""
+    """A distractor's meshes in its local frame, one :class:`render.assets.Part` per material slot."""
     grouped: dict[str, list[trimesh.Trimesh]] = {}
     for slot, mesh in _build(distractor["kind"], distractor["params"]):
         grouped.setdefault(slot, []).append(mesh)
@@ -633,7 +633,7 @@ def distractor_world_parts(distractor: dict[str, Any]) -> list[assets.Part]:
 
 
 def texture_frame(distractor: dict[str, Any], material: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
-    """(matrix, origin) for :func:`workers.render.appearance.box_uv` on one of the distractor's materials.
+    """(matrix, origin) for :func:`render.appearance.box_uv` on one of the distractor's materials.
 
     A rug and a picture wear their texture once, edge to edge (a rug texture is a whole rug with its
     border): their frame starts at the item's corner and is scaled so the item spans one tile. Every

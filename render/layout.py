@@ -42,7 +42,7 @@ height intervals overlap (so a clock may hang above a low sofa). Placement
 never drops an object: a composition that cannot be placed raises
 :class:`LayoutError` with the class, its count and the reason.
 
-Random stream (the layout stream of :mod:`workers.render.spec`), in order:
+Random stream (the layout stream of :mod:`render.spec`), in order:
 :func:`sample_room`; the asset specs; one uniform draw in
 :func:`choose_layout_mode` (always taken, whatever the probability, so changing
 the probability flips modes without shifting later draws); then the draws of
@@ -50,10 +50,10 @@ the probability flips modes without shifting later draws); then the draws of
 function of the stream: same seed, same layout.
 
 :class:`ClutterPlacer` applies the same rules to extra, unlabelled items placed
-afterwards (:mod:`workers.render.distractors`): the objects stay where they
+afterwards (:mod:`render.distractors`): the objects stay where they
 are, and an item that does not fit is skipped instead of raising.
 
-World frame and yaw follow ``workers/render/README.md``: the room spans
+World frame and yaw follow ``render/README.md``: the room spans
 x ∈ [0, width_m], y ∈ [0, depth_m]; yaw is counter-clockwise about +z and an
 asset's front is its local +y.
 
@@ -74,8 +74,8 @@ from typing import Any
 import numpy as np
 from shapely.geometry import Polygon
 
-from workers.render import assets
-from workers.render.dressing import (
+from render import assets
+from render.dressing import (
     CURTAIN_OFFSET_M,
     WALLS,
     curtain_panels,
@@ -181,7 +181,7 @@ def _sample_window(room: dict[str, Any], wall: str, rng: np.random.Generator) ->
 
 
 def sample_room(budget: dict[str, Any], rng: np.random.Generator) -> dict[str, Any]:
-    """Draw a room from ``budget["room"]``: size, windows, then its dressing (:mod:`workers.render.dressing`).
+    """Draw a room from ``budget["room"]``: size, windows, then its dressing (:mod:`render.dressing`).
 
     Returns ``{"width_m", "depth_m", "height_m", "windows": [{"wall", "center_m", "sill_m", "width_m",
     "height_m"}], "room_type", "floor_finish", "materials": {"floor", "wall", "ceiling", …}, "doors",
@@ -910,7 +910,7 @@ class ClutterPlacer:
     instead of raising. Every item placed is remembered, so later items avoid it.
 
     An item is a dict with ``footprint_m`` [w, d] and ``height_m`` (wall items also
-    ``mount_height_m``), in the asset frame of ``workers/render/README.md``. Each method returns
+    ``mount_height_m``), in the asset frame of ``render/README.md``. Each method returns
     ``{"position_m", "yaw_deg", "anchor", "support_instance_id"}`` (wall items also ``"wall"``).
     ``accept`` (optional) is a last check on a collision-free candidate's footprint polygon and
     base height (m); it returns the base height to use, or None to refuse the spot.

@@ -1,12 +1,12 @@
 """Command line: render one frame to a directory, or a contact sheet of consecutive seeds.
 
-``python -m workers.render --seed N --out DIR [--budget FILE] [--classes chair=2,wall_clock=1]
+``python -m render --seed N --out DIR [--budget FILE] [--classes chair=2,wall_clock=1]
 [--width W --height H --spp S] [--variant scalar_rgb|llvm_ad_rgb] [--threads T] [--preview]``
 
-Writes the files of :func:`workers.render.frame.render_frame` (plus ``preview.png`` with
+Writes the files of :func:`render.frame.render_frame` (plus ``preview.png`` with
 ``--preview``) and prints the per-stage timings.
 
-``python -m workers.render --seed N --contact-sheet COUNT --out PATH [--columns C] [--boxes] [...]``
+``python -m render --seed N --contact-sheet COUNT --out PATH [--columns C] [--boxes] [...]``
 
 Renders COUNT frames (seeds N, N+1, …, every other option as for one frame) and writes one PNG
 grid: PATH itself when it ends in ``.png``, else ``PATH/contact_sheet.png``. Each tile is the frame
@@ -83,7 +83,7 @@ def parse_classes(text: str) -> dict[str, int]:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = _Parser(prog="python -m workers.render", description="Render one synthetic frame with labels.")
+    parser = _Parser(prog="python -m render", description="Render one synthetic frame with labels.")
     parser.add_argument("--seed", type=int, required=True, help="frame seed (non-negative integer)")
     parser.add_argument("--out", type=Path, required=True, help="output directory")
     parser.add_argument("--budget", help="randomization budget JSON file (partial; merged over the defaults)")

@@ -1,6 +1,6 @@
 """Appearance benchmark: how much of what the camera sees is a flat colour, and what textures cost.
 
-``python -m workers.render.bench_appearance [--frames 50] [--cpu-frames 10] [--width 320 --height 240]``
+``python -m render.bench_appearance [--frames 50] [--cpu-frames 10] [--width 320 --height 240]``
 
 1. Flat share: over ``--frames`` default frames (seeds 0, 1, …, default composition), the share of
    visible pixels (depth > 0) whose albedo — the label pass's ``albedo`` image, Mitsuba's ``aov``
@@ -53,7 +53,7 @@ def _budget(width_px: int, height_px: int, texture_probability: float | None = N
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m workers.render.bench_appearance",
+    parser = argparse.ArgumentParser(prog="python -m render.bench_appearance",
                                      description=__doc__.split("\n\n")[0])
     parser.add_argument("--frames", type=int, default=50)
     parser.add_argument("--width", type=int, default=320)

@@ -1,6 +1,6 @@
 """Texture generation time per family, and a contact sheet to look at.
 
-``python -m workers.render.bench_textures [--sheet /tmp/tex.png] [--resolution 512] [--seeds 2] [--first-seed 0]
+``python -m render.bench_textures [--sheet /tmp/tex.png] [--resolution 512] [--seeds 2] [--first-seed 0]
 [--family NAME ...]``
 
 For every family and ``seeds`` seeds from ``--first-seed`` on it draws parameters with
@@ -26,8 +26,8 @@ from pathlib import Path
 import numpy as np
 from PIL import Image, ImageDraw
 
-from workers.render.textures import FAMILIES, generate_texture, sample_texture_params
-from workers.render.textures.maps import TextureMaps, linear_to_srgb8, srgb8_to_linear
+from render.textures import FAMILIES, generate_texture, sample_texture_params
+from render.textures.maps import TextureMaps, linear_to_srgb8, srgb8_to_linear
 
 TARGET_S = 1.0
 LABEL_PX = 14
@@ -55,7 +55,7 @@ def cells(maps: TextureMaps, cell_px: int) -> list[np.ndarray]:
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m workers.render.bench_textures",
+    parser = argparse.ArgumentParser(prog="python -m render.bench_textures",
                                      description=__doc__.split("\n\n")[0])
     parser.add_argument("--sheet", type=Path, help="write the contact sheet PNG here")
     parser.add_argument("--resolution", type=int, default=512)
