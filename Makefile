@@ -6,10 +6,10 @@ STAMP := $(VENV)/.installed
 
 .PHONY: install demo test test-embedded test-services lint bench clean
 
-$(STAMP): requirements.txt
+$(STAMP): requirements.txt requirements-dev.txt
 	@test -x $(PY) || $(PYTHON) -m venv $(VENV)
 	$(PY) -m pip install --quiet --upgrade pip
-	$(PY) -m pip install --quiet -r requirements.txt
+	$(PY) -m pip install --quiet -r requirements-dev.txt
 	@touch $(STAMP)
 
 install: $(STAMP)
@@ -30,8 +30,13 @@ test-services: $(STAMP)
 	EVENFRAME_SECRET_KEY=$${EVENFRAME_SECRET_KEY:-test-only-secret-key-for-the-suite-0123456789abcdef} \
 	EVENFRAME_DEBUG=1 $(MAKE) test
 
+# Style, the import contracts of DEVELOPERS.md (pyproject.toml [tool.importlinter]), private names, and types
+# (mypy with the Django plugin; it reads the settings, so it gets a data folder of its own).
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
+	$(VENV)/bin/lint-imports
+	$(PY) scripts/check_private_names.py
+	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy campaigns datasets render teams fleet evenframe
 
 bench: $(STAMP)
 	$(PY) -m render.bench --frames 5

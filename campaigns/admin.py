@@ -105,6 +105,8 @@ class CampaignAdminForm(forms.ModelForm):
 
     def clean(self) -> dict[str, Any]:
         data = super().clean()
+        if data is None:  # ModelForm.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
+            data = self.cleaned_data
         team = data.get("team")
         if team is None:
             return data

@@ -5,3 +5,12 @@ class CampaignsConfig(AppConfig):
     name = "campaigns"
     verbose_name = "Campaigns"
     default_auto_field = "django.db.models.BigAutoField"
+
+    def ready(self) -> None:
+        # The scheduler answers the two hooks that lower layers call without importing it: the services' request
+        # to top up a campaign (campaigns.messaging) and the fleet's recovery sweep (fleet.hooks).
+        from campaigns import messaging, scheduler
+        from fleet import hooks
+
+        messaging.register_dispatcher(scheduler.dispatch)
+        hooks.register_sweep(scheduler.sweep)

@@ -26,7 +26,7 @@ import sys
 import uuid
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 MAX_UPLOAD_BYTES = 32 * 1024 * 1024
 CHECK_TIMEOUT_S = 30.0
@@ -59,6 +59,7 @@ def sniff_mesh_format(head: bytes, *, size_bytes: int) -> str | None:
         return "ply"
     if len(head) >= 84 and size_bytes == 84 + 50 * struct.unpack("<I", head[80:84])[0]:
         return "stl"
+    text: str | None
     try:
         text = head.decode("utf-8")
     except UnicodeDecodeError:
@@ -278,6 +279,8 @@ def _asset_parts(*, kind: str, class_name: str, mesh_path: str | None, unit: str
     from render import assets
 
     if kind == "mesh":
+        if mesh_path is None:
+            raise ValueError(f"mesh asset {class_name!r} has no mesh file")
         spec = assets.user_asset_spec(mesh_path, class_name, "floor", np.random.default_rng(7), unit=unit,
                                       up_axis=up_axis or "z", front=front or None,
                                       look="keep" if look == "keep" else "randomize")
@@ -316,7 +319,8 @@ def render_asset_preview(*, asset_pk: int, kind: str, class_name: str, mesh_path
 
     parts = _asset_parts(kind=kind, class_name=class_name, mesh_path=mesh_path, unit=unit, up_axis=up_axis,
                          front=front, look=look)
-    combined = trimesh.util.concatenate([p.mesh for p in parts])
+    # trimesh annotates concatenate() as returning Geometry; Trimesh parts concatenate to a Trimesh.
+    combined = cast(trimesh.Trimesh, trimesh.util.concatenate([p.mesh for p in parts]))
     low, high = combined.bounds
     centre = (low + high) / 2
     radius = float(np.linalg.norm(high - low)) / 2 or 0.5

@@ -9,15 +9,18 @@ message) are put on the field they name.
 
 from __future__ import annotations
 
-import re
+from collections.abc import Sequence
 from decimal import Decimal
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from django import forms
 
 from campaigns import services
 from campaigns.models import Asset, Campaign, ObjectClass
 from render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
+
+if TYPE_CHECKING:
+    from teams.models import Team
 
 SECTION_TITLES = {
     "render": ("Render settings", "Image size and path-tracing quality; cost grows linearly with pixels × samples."),
@@ -33,8 +36,6 @@ SECTION_TITLES = {
 # A quota error's column (the QuotaInput attribute the service names) → the quota row's input.
 QUOTA_COLUMNS = {"target_accepted": "target", "min_visible_fraction": "visible", "min_box_px": "box",
                  "min_contrast": "contrast"}
-# Only for an error given as text alone (no field): its message after ``quota 'cls':`` → the column.
-QUOTA_ERROR_COLUMNS = (("min visible fraction", "visible"), ("min box size", "box"), ("min contrast", "contrast"))
 SECTION_ORDER = ("render", "variation", "thresholds", "room", "lighting", "camera", "appearance")
 UNIT_TEXT = {"": "", "1/m²": "per m²"}
 # Field names carry their unit (units in names); the label shows the unit beside it instead.
@@ -90,6 +91,15 @@ def _choices_field(field: Field, label: str, initial: list[str]) -> forms.Field:
                                      error_messages={"required": "Choose at least one."})
 
 
+def _model_choice_field(form: forms.Form, name: str) -> forms.ModelChoiceField[Any]:
+    """The form's field ``name``, declared on the form class as a model choice field (``form.fields`` holds
+    plain ``Field``s as far as the type checker knows)."""
+    field = form.fields[name]
+    if not isinstance(field, forms.ModelChoiceField):
+        raise TypeError(f"{type(form).__name__}.{name} is a {type(field).__name__}, not a ModelChoiceField")
+    return field
+
+
 def _number_field(field: Field, label: str, initial: Any) -> forms.Field:
     attrs = {"step": _step(field), "min": f"{field.lower:g}", "max": f"{field.upper:g}", "class": "num"}
     if field.kind in ("int", "int_range"):
@@ -99,11 +109,19 @@ def _number_field(field: Field, label: str, initial: Any) -> forms.Field:
                             widget=forms.NumberInput(attrs=attrs))
 
 
+class _AssetChoiceField(forms.ModelMultipleChoiceField):
+    """Assets labelled with their class, name and origin (procedural, or the team that uploaded them)."""
+
+    def label_from_instance(self, obj: Asset) -> str:
+        return _asset_choice_label(obj)
+
+
 class CampaignForm(forms.Form):
     name = forms.CharField(max_length=200)
-    team = forms.ModelChoiceField(queryset=None, empty_label=None, help_text="Campaigns go to a team you plan in.")
+    team: forms.ModelChoiceField[Team] = forms.ModelChoiceField(
+        queryset=None, empty_label=None, help_text="Campaigns go to a team you plan in.")
     description = forms.CharField(required=False, widget=forms.Textarea(attrs={"rows": 2}))
-    seed = forms.IntegerField(min_value=0, max_value=2**62, initial=0, help_text="Root seed: same seed, same frames.")
+    seed = forms.IntegerField(min_value=0, max_value=services.MAX_SEED, initial=0, help_text="Root seed: same seed, same frames.")
     cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2, initial=Decimal("100.00"),
                                      help_text="Most the campaign may spend, fixed costs included.")
     price_per_cpu_hour = forms.DecimalField(min_value=0, max_digits=10, decimal_places=4, initial=Decimal("0.05"),
@@ -113,12 +131,12 @@ class CampaignForm(forms.Form):
     manual_labelling_rate_per_hour = forms.DecimalField(
         min_value=0, max_digits=10, decimal_places=2, initial=Decimal("12.00"), label="Manual labelling rate per hour",
         help_text="Hourly rate of annotators, for the comparison with labelling by hand.")
-    weight = forms.IntegerField(min_value=1, max_value=1000, initial=1, help_text="Share of the fleet relative to "
+    weight = forms.IntegerField(min_value=1, max_value=services.MAX_WEIGHT, initial=1, help_text="Share of the fleet relative to "
                                 "other running campaigns.")
-    max_attempts = forms.IntegerField(min_value=1, max_value=20, initial=3, help_text="Attempts per frame before it "
+    max_attempts = forms.IntegerField(min_value=1, max_value=services.MAX_ATTEMPTS, initial=3, help_text="Attempts per frame before it "
                                       "is dead.")
 
-    assets = forms.ModelMultipleChoiceField(
+    assets = _AssetChoiceField(
         queryset=None, required=False, widget=forms.CheckboxSelectMultiple, label="Assets",
         help_text="What the campaign's objects may be: procedural generators and your team's uploads. Only the "
                   "assets of classes with a target are used; an upload is used only where it is ticked, and only "
@@ -142,7 +160,7 @@ class CampaignForm(forms.Form):
                         "manual_labelling_rate_per_hour", "weight", "max_attempts"):
                 self.fields[key].initial = getattr(campaign, key)
         else:
-            self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
+            _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
         self._init_assets(user=user, campaign=campaign)
         # Known sections in their order, then any section the render core adds (titled from its key), so a new
         # budget section shows up in the form instead of breaking it.
@@ -178,7 +196,7 @@ class CampaignForm(forms.Form):
         quotas = {}
         if campaign is not None:
             quotas = {q.object_class.name: q for q in campaign.quotas.select_related("object_class")}
-        self.quota_rows = []
+        self.quota_rows: list[dict[str, Any]] = []
         contrast_field = FIELDS_BY_KEY["thresholds", "min_contrast"]
         for oc in ObjectClass.objects.order_by("name"):
             q = quotas.get(oc.name)
@@ -217,14 +235,14 @@ class CampaignForm(forms.Form):
             teams_for(user=user, role=PLANNER).values_list("pk", flat=True))
         queryset = (Asset.objects.filter(Q(team__isnull=True) | Q(team_id__in=team_ids))
                     .select_related("object_class", "team").order_by("object_class__name", "kind", "name"))
-        field = self.fields["assets"]
+        field = _model_choice_field(self, "assets")
         field.queryset = queryset
-        field.label_from_instance = _asset_choice_label
         if campaign is not None:
             field.initial = list(campaign.assets.values_list("pk", flat=True))
         else:
             class_names = list(ObjectClass.objects.values_list("name", flat=True))
-            field.initial = [a.pk for team_id in (team_ids or [None])
+            owner_ids: Sequence[int | None] = team_ids or [None]  # None: the shared procedural library
+            field.initial = [a.pk for team_id in owner_ids
                              for a in services.default_campaign_assets(team_id=team_id, class_names=class_names)]
 
     # --- layout helpers for the template ---------------------------------------------------------------------
@@ -251,6 +269,8 @@ class CampaignForm(forms.Form):
 
     def clean(self) -> dict[str, Any]:
         data = super().clean()
+        if data is None:  # Form.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
+            data = self.cleaned_data
         budget: dict[str, dict[str, Any]] = {}
         complete = True
         for field in FIELDS:
@@ -299,55 +319,31 @@ class CampaignForm(forms.Form):
                 self.add_service_error(exc)
         return data
 
-    def add_service_error(self, exc: Exception) -> None:
-        """Put a service's error on the input it names: its ``field``, a quota row's column, or a budget input."""
+    def add_service_error(self, exc: services.CampaignError) -> None:
+        """Put a service's error on the input it names: its ``field``, a quota row's column, or a budget input
+        (``budget_field``: section, name and the end of a range). Anything else is an error of the whole form."""
         field = getattr(exc, "field", "")
         message = getattr(exc, "message", str(exc))
-        if field == "quota" and getattr(exc, "class_name", None) is not None:
+        if field == "quota" and exc.class_name is not None:
             key = f"q_{exc.class_name}_{QUOTA_COLUMNS.get(exc.column, 'target')}"
             if key in self.fields:
                 self.add_error(key, message)
                 return
-        elif field == "budget":
-            # The render core's budget errors are text (render.budget.BudgetError carries no field).
-            self._add_error_from_text(f"budget: {message}")
-            return
+        elif field == "budget" and exc.budget_field:
+            section, name, part = exc.budget_field
+            budget_field = FIELDS_BY_KEY.get((section, name))
+            if budget_field is not None:
+                if budget_field.kind in ("range", "int_range"):
+                    key = budget_field_name(budget_field, part or "min")
+                else:
+                    key = budget_field_name(budget_field)
+                if key in self.fields:
+                    self.add_error(key, exc.detail)
+                    return
         elif field in self.fields:
             self.add_error(field, message)
             return
-        if field:
-            self.add_error(None, str(exc))
-            return
-        self._add_error_from_text(str(exc))
-
-    def _add_error_from_text(self, message: str) -> None:
-        """An error known only by its text (``render.spp: …``, ``quota 'chair': …``, ``name: …``)."""
-        text = message.removeprefix("budget: ")
-        m = re.match(r"(?P<section>\w+)\.(?P<name>\w+)( (?P<part>min|max))?:", text)
-        if m and (m["section"], m["name"]) in {(f.section, f.name) for f in FIELDS}:
-            field = next(f for f in FIELDS if (f.section, f.name) == (m["section"], m["name"]))
-            if field.kind in ("range", "int_range"):
-                key = budget_field_name(field, m["part"] or "min")
-            else:
-                key = budget_field_name(field)
-            if key in self.fields:
-                self.add_error(key, text[m.end():].strip())
-                return
-        m = re.match(r"render\.width_px × height_px", text)
-        if m:
-            self.add_error(budget_field_name(FIELDS[0]), text.split(":", 1)[-1].strip())
-            return
-        m = re.match(r"quota '(?P<cls>[\w-]+)':", message)
-        if m and f"q_{m['cls']}_target" in self.fields:
-            detail = message[m.end():].strip()
-            column = next((c for prefix, c in QUOTA_ERROR_COLUMNS if detail.startswith(prefix)), "target")
-            self.add_error(f"q_{m['cls']}_{column}", detail)
-            return
-        m = re.match(r"(?P<key>\w+):", message)
-        if m and m["key"] in self.fields:
-            self.add_error(m["key"], message[m.end():].strip())
-            return
-        self.add_error(None, message)
+        self.add_error(None, str(exc))
 
     def service_kwargs(self) -> dict[str, Any]:
         d = self.cleaned_data
@@ -374,7 +370,7 @@ class AssetUploadForm(forms.Form):
     UNITS = (("auto", "guess from size"), ("m", "metres"), ("cm", "centimetres"), ("mm", "millimetres"),
              ("in", "inches"))
     name = forms.CharField(max_length=128)
-    team = forms.ModelChoiceField(queryset=None, empty_label=None)
+    team: forms.ModelChoiceField[Team] = forms.ModelChoiceField(queryset=None, empty_label=None)
     object_class = forms.ModelChoiceField(queryset=ObjectClass.objects.order_by("name"), empty_label=None,
                                           to_field_name="name", label="Class")
     AXES = (("+z", "+z"), ("+y", "+y (glTF)"), ("-z", "−z"), ("-y", "−y"), ("+x", "+x"), ("-x", "−x"))
@@ -398,7 +394,7 @@ class AssetUploadForm(forms.Form):
         from teams.permissions import PLANNER, teams_for
 
         super().__init__(*args, **kwargs)
-        self.fields["team"].queryset = teams_for(user=user, role=PLANNER)
+        _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
 
     def add_service_error(self, exc: Exception) -> None:
         """Put a service's error on the input it names (``name``, ``team``, ``object_class``, …), else on the form."""

@@ -17,6 +17,7 @@ from pathlib import Path
 
 from django.db.models import Count, Q, Sum
 
+from campaigns.frame_files import frame_relative_dir
 from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
 
 State = Frame.State
@@ -90,7 +91,7 @@ def missing_frame_files(*, campaign: Campaign, media_root: Path) -> list[int]:
     missing = []
     for index, output_dir in Frame.objects.filter(campaign=campaign, state=State.DONE).values_list(
             "index", "output_dir").iterator(2000):
-        folder = Path(media_root) / (output_dir or f"campaigns/{campaign.pk}/frames/{index}")
+        folder = Path(media_root) / (output_dir or frame_relative_dir(campaign_id=campaign.pk, index=index))
         if not all((folder / name).is_file() and (folder / name).stat().st_size > 0 for name in FRAME_FILES):
             missing.append(index)
     return missing

@@ -178,7 +178,7 @@ def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[
         placed.update(composition)
         for label in labels:
             name = label.get("class_name")
-            if name not in quotas:
+            if name is None or name not in quotas:
                 continue
             rule = quotas[name]
             # No min_contrast: the label pass's 1-spp, low-resolution image is far noisier than the campaign's, so

@@ -15,24 +15,25 @@ messages change nothing.
 
 from __future__ import annotations
 
+import functools
 import logging
 import math
 from collections.abc import Mapping
-from datetime import timedelta
+from dataclasses import dataclass, field
+from datetime import datetime, timedelta
+from decimal import Decimal
 
 from django.conf import settings
 from django.db import transaction
 from django.db.models import Q
 from django.utils import timezone
 
-from campaigns import costs, planner, selectors, services
+from campaigns import costs, messaging, planner, selectors, services
 from campaigns.models import Campaign, Frame
 from campaigns.sampling import max_objects_for_frame
 
 log = logging.getLogger("evenframe.campaigns")
 
-TASK_NAME = "evenframe.render_frame"
-TASK_ID_PREFIX = "ef"
 # Frames queued per worker slot: one rendering and one waiting, so a worker never idles between frames.
 QUEUE_DEPTH_PER_SLOT = 2
 # With no live worker, keep this many frames waiting per campaign so a worker that starts finds work.
@@ -75,15 +76,6 @@ def share_slots(*, total_slots: int, weights: Mapping[int, int]) -> dict[int, in
 # --- sending ----------------------------------------------------------------------------------------------
 
 
-def send_frame_task(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str,
-                    countdown_s: float = 0.0) -> None:
-    """Put one render task on the broker. Tests replace this to capture messages instead."""
-    from evenframe.celery import app
-
-    app.send_task(TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
-                  task_id=task_id, countdown=countdown_s if countdown_s > 0 else None)
-
-
 def send_messages(*, messages: list[tuple[int, int, str, float]], campaign_uid: str) -> int:
     """Send after commit; a message the broker refuses is marked unsent and goes out with the next sweep.
 
@@ -92,7 +84,7 @@ def send_messages(*, messages: list[tuple[int, int, str, float]], campaign_uid: 
     sent = 0
     for frame_id, dispatch_no, task_id, countdown in messages:
         try:
-            send_frame_task(frame_id=frame_id, dispatch_no=dispatch_no, campaign_uid=campaign_uid, task_id=task_id,
+            messaging.send_frame_task(frame_id=frame_id, dispatch_no=dispatch_no, campaign_uid=campaign_uid, task_id=task_id,
                             countdown_s=countdown)
             sent += 1
         except Exception:  # noqa: BLE001 - any broker error: the sweep resends, so log and go on
@@ -105,33 +97,17 @@ def send_messages(*, messages: list[tuple[int, int, str, float]], campaign_uid: 
     return sent
 
 
-def revoke_tasks(*, task_ids: list[str]) -> None:
-    """Best effort: brokers with remote control (Redis) drop the messages; the task re-checks state anyway."""
-    if not task_ids:
-        return
-    from django.conf import settings
-
-    if settings.CELERY_BROKER_URL.startswith("filesystem://"):
-        return  # no remote control on this transport; claim_frame releases the frames instead
-    try:
-        from evenframe.celery import app
-
-        app.control.revoke(task_ids)
-    except Exception:  # noqa: BLE001 - revocation is an optimisation; claim_frame is the guarantee
-        log.warning("could not revoke %d task(s); workers will release them at start", len(task_ids), exc_info=True)
-
-
 # --- dispatch ---------------------------------------------------------------------------------------------
 
 
 def campaign_slots_live() -> bool:
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     return live_workers().exists()
 
 
 def campaign_slots() -> dict[int, int]:
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     weights = dict(Campaign.objects.filter(status=Status.RUNNING).values_list("pk", "weight"))
     total = fleet_slots(concurrencies=list(live_workers().values_list("concurrency", flat=True)))
@@ -172,101 +148,147 @@ def dispatch(*, campaign_id: int | None = None) -> int:
     return sent
 
 
+@dataclass
+class _Round:
+    """One dispatch of one campaign, inside its transaction (campaign row locked)."""
+
+    campaign: Campaign
+    share: int
+    expected_cpu_s: float
+    frame_cost: Decimal
+    spent: Decimal
+    now: datetime
+    messages: list[tuple[int, int, str, float]] = field(default_factory=list)
+    in_flight: int = 0
+    budget_blocked: bool = False
+
+    def affordable(self) -> bool:
+        return costs.can_afford_frame(spent=self.spent, committed=selectors.committed_cost(campaign=self.campaign),
+                                      next_frame_cost=self.frame_cost, cost_budget=self.campaign.cost_budget)
+
+    def send(self, frame: Frame, countdown_s: float = 0.0) -> None:
+        self.messages.append((frame.pk, frame.dispatch_count, frame.task_id, countdown_s))
+
+
 def _dispatch_one(campaign_id: int) -> int:
-    messages: list[tuple[int, int, str, float]] = []
+    """Top up one campaign: pause it if its frames keep dying, resend what needs resending, then fill its share
+    of the fleet with revoked frames and new ones, inside its budget. Messages go out after commit."""
     with transaction.atomic():
         try:
-            campaign = services._lock_campaign(campaign_id)
+            campaign = services.lock_campaign(campaign_id)
         except services.CampaignError:
             return 0
-        if campaign.status != Status.RUNNING:
+        if campaign.status != Status.RUNNING or _pause_if_failing(campaign):
             return 0
-        recent = list(Frame.objects.filter(campaign=campaign, state__in=(State.DONE, State.DEAD))
-                      .order_by("-finished_at").values_list("state", flat=True)[:DEAD_IN_A_ROW_PAUSE])
-        if len(recent) == DEAD_IN_A_ROW_PAUSE and all(s == State.DEAD for s in recent):
-            services._set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.FAILURES,
-                                 detail=f"the last {DEAD_IN_A_ROW_PAUSE} frames are dead; see their errors",
-                                 allowed_from=(Status.RUNNING,))
-            services._on_commit_revoke(services._revoke_waiting_frames(campaign, detail="campaign paused (failures)"))
-            return 0
-        share = campaign_slots().get(campaign.pk, SLOTS_WITHOUT_WORKERS)
         expected_cpu_s = selectors.expected_frame_cpu_s(campaign=campaign)
-        frame_cost = costs.expected_frame_cost(expected_cpu_s=expected_cpu_s,
-                                               price_per_cpu_hour=campaign.price_per_cpu_hour)
-        spent = selectors.total_spent(campaign=campaign)
-        now = timezone.now()
-
-        def affordable() -> bool:
-            return costs.can_afford_frame(spent=spent, committed=selectors.committed_cost(campaign=campaign),
-                                          next_frame_cost=frame_cost, cost_budget=campaign.cost_budget)
-
-        # 1. Failed frames go back on the queue at once; their backoff becomes the message countdown.
-        for frame in Frame.objects.filter(campaign=campaign, state=State.FAILED).order_by("index"):
-            countdown = max(0.0, (frame.retry_at - now).total_seconds()) if frame.retry_at else 0.0
-            again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s,
-                                           task_id_prefix=TASK_ID_PREFIX)
-            if again:
-                messages.append((again.pk, again.dispatch_count, again.task_id, countdown))
-        # A message the broker refused (send_messages cleared queued_at) never left: send it again as it is.
-        for frame in Frame.objects.filter(campaign=campaign, state=State.QUEUED, queued_at__isnull=True):
-            if services.mark_message_resent(frame_id=frame.pk, dispatch_no=frame.dispatch_count):
-                countdown = max(0.0, (frame.retry_at - now).total_seconds()) if frame.retry_at else 0.0
-                messages.append((frame.pk, frame.dispatch_count, frame.task_id, countdown))
+        step = _Round(campaign=campaign, share=campaign_slots().get(campaign.pk, SLOTS_WITHOUT_WORKERS),
+                      expected_cpu_s=expected_cpu_s,
+                      frame_cost=costs.expected_frame_cost(expected_cpu_s=expected_cpu_s,
+                                                           price_per_cpu_hour=campaign.price_per_cpu_hour),
+                      spent=selectors.total_spent(campaign=campaign), now=timezone.now())
+        _requeue_failed(step)
+        _resend_unsent(step)
         if campaign_slots_live():
-            # Waiting too long past its due time: the message may be anywhere, so a new dispatch number.
-            stale_before = now - timedelta(seconds=STALE_QUEUED_S)
-            stale = Q(queued_at__lt=stale_before) & (Q(retry_at__isnull=True) | Q(retry_at__lt=stale_before))
-            for frame in Frame.objects.filter(stale, campaign=campaign, state=State.QUEUED).order_by("index"):
-                again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s,
-                                               task_id_prefix=TASK_ID_PREFIX)
-                if again:
-                    messages.append((again.pk, again.dispatch_count, again.task_id, 0.0))
-        in_flight = Frame.objects.filter(campaign=campaign, state__in=Frame.IN_FLIGHT_STATES).count()
-        budget_blocked = False
-        # 2. Revoked frames (paused, then resumed) keep their index and seed; the planner picks a new composition.
-        for frame in Frame.objects.filter(campaign=campaign, state=State.REVOKED).order_by("index"):
-            if in_flight >= share:
-                break
-            if not affordable():
-                budget_blocked = True
-                break
-            progress = selectors.class_progress(campaign=campaign)
-            seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index,
-                                        layout_index=frame.layout_index, lighting_index=frame.lighting_index,
-                                        view_index=frame.view_index)
-            composition = planner.plan_composition(progress, max_objects=max_objects_for_frame(
-                budget=campaign.budget, seeds=seeds))
-            if not composition:
-                break
-            again = services.requeue_frame(frame=frame, composition=composition, expected_cpu_s=expected_cpu_s,
-                                           task_id_prefix=TASK_ID_PREFIX)
-            if again:
-                messages.append((again.pk, again.dispatch_count, again.task_id, 0.0))
-                in_flight += 1
-        # 3. New frames.
-        while in_flight < share and not budget_blocked:
-            last = Frame.objects.filter(campaign=campaign).order_by("-index").first()
-            planned = plan_next(campaign=campaign, progress=selectors.class_progress(campaign=campaign), last=last)
-            if planned is None:
-                break
-            if not affordable():
-                budget_blocked = True
-                break
-            coordinates, composition = planned
-            frame = services.create_frame(campaign=campaign, index=(last.index + 1) if last else 0,
-                                          coordinates=coordinates, composition=composition,
-                                          expected_cpu_s=expected_cpu_s, task_id_prefix=TASK_ID_PREFIX)
-            messages.append((frame.pk, frame.dispatch_count, frame.task_id, 0.0))
-            in_flight += 1
-        if budget_blocked and in_flight == 0:
-            services._set_status(
+            _requeue_stale(step)
+        step.in_flight = Frame.objects.filter(campaign=campaign, state__in=Frame.IN_FLIGHT_STATES).count()
+        _requeue_revoked(step)
+        _create_new_frames(step)
+        if step.budget_blocked and step.in_flight == 0:
+            services.set_status(
                 campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET,
-                detail=f"spent {spent}; the next frame (≈ {frame_cost}) would exceed the budget {campaign.cost_budget}",
+                detail=f"spent {step.spent}; the next frame (≈ {step.frame_cost}) would exceed the budget "
+                       f"{campaign.cost_budget}",
                 allowed_from=(Status.RUNNING,))
-
-        uid = str(campaign.uid)
+        uid, messages = str(campaign.uid), step.messages
         transaction.on_commit(lambda: send_messages(messages=messages, campaign_uid=uid))
     return len(messages)
+
+
+def _pause_if_failing(campaign: Campaign) -> bool:
+    """Pause a campaign whose last DEAD_IN_A_ROW_PAUSE finished frames are all dead; True when it did."""
+    recent = list(Frame.objects.filter(campaign=campaign, state__in=(State.DONE, State.DEAD))
+                  .order_by("-finished_at").values_list("state", flat=True)[:DEAD_IN_A_ROW_PAUSE])
+    if len(recent) < DEAD_IN_A_ROW_PAUSE or any(s != State.DEAD for s in recent):
+        return False
+    services.set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.FAILURES,
+                        detail=f"the last {DEAD_IN_A_ROW_PAUSE} frames are dead; see their errors",
+                        allowed_from=(Status.RUNNING,))
+    messaging.revoke_on_commit(services.revoke_waiting_frames(campaign, detail="campaign paused (failures)"))
+    return True
+
+
+def _countdown_s(frame: Frame, now: datetime) -> float:
+    return max(0.0, (frame.retry_at - now).total_seconds()) if frame.retry_at else 0.0
+
+
+def _requeue_failed(step: _Round) -> None:
+    """Failed frames go back on the queue at once; their backoff becomes the message countdown."""
+    for frame in Frame.objects.filter(campaign=step.campaign, state=State.FAILED).order_by("index"):
+        countdown = _countdown_s(frame, step.now)
+        again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s)
+        if again:
+            step.send(again, countdown)
+
+
+def _resend_unsent(step: _Round) -> None:
+    """A message the broker refused (send_messages cleared queued_at) never left: send it again as it is."""
+    for frame in Frame.objects.filter(campaign=step.campaign, state=State.QUEUED, queued_at__isnull=True):
+        if services.mark_message_resent(frame_id=frame.pk, dispatch_no=frame.dispatch_count):
+            step.send(frame, _countdown_s(frame, step.now))
+
+
+def _requeue_stale(step: _Round) -> None:
+    """Waiting too long past its due time while workers are live: the message may be anywhere, so a new dispatch
+    number."""
+    stale_before = step.now - timedelta(seconds=STALE_QUEUED_S)
+    stale = Q(queued_at__lt=stale_before) & (Q(retry_at__isnull=True) | Q(retry_at__lt=stale_before))
+    for frame in Frame.objects.filter(stale, campaign=step.campaign, state=State.QUEUED).order_by("index"):
+        again = services.requeue_frame(frame=frame, composition=None, expected_cpu_s=frame.expected_cpu_s)
+        if again:
+            step.send(again)
+
+
+def _requeue_revoked(step: _Round) -> None:
+    """Revoked frames (paused, then resumed) keep their index and seed; the planner picks a new composition."""
+    campaign = step.campaign
+    for frame in Frame.objects.filter(campaign=campaign, state=State.REVOKED).order_by("index"):
+        if step.in_flight >= step.share:
+            break
+        if not step.affordable():
+            step.budget_blocked = True
+            break
+        progress = selectors.class_progress(campaign=campaign)
+        seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index,
+                                    layout_index=frame.layout_index, lighting_index=frame.lighting_index,
+                                    view_index=frame.view_index)
+        composition = planner.plan_composition(progress, max_objects=max_objects_for_frame(
+            budget=campaign.budget, seeds=seeds))
+        if not composition:
+            break
+        again = services.requeue_frame(frame=frame, composition=composition, expected_cpu_s=step.expected_cpu_s)
+        if again:
+            step.send(again)
+            step.in_flight += 1
+
+
+def _create_new_frames(step: _Round) -> None:
+    """New frames from the planner until the campaign's share is in flight, nothing more is needed, or the budget
+    stops it."""
+    campaign = step.campaign
+    while step.in_flight < step.share and not step.budget_blocked:
+        last = Frame.objects.filter(campaign=campaign).order_by("-index").first()
+        planned = plan_next(campaign=campaign, progress=selectors.class_progress(campaign=campaign), last=last)
+        if planned is None:
+            break
+        if not step.affordable():
+            step.budget_blocked = True
+            break
+        coordinates, composition = planned
+        frame = services.create_frame(campaign=campaign, index=(last.index + 1) if last else 0,
+                                      coordinates=coordinates, composition=composition,
+                                      expected_cpu_s=step.expected_cpu_s)
+        step.send(frame)
+        step.in_flight += 1
 
 
 # --- recovery ---------------------------------------------------------------------------------------------
@@ -279,22 +301,23 @@ def sweep() -> dict[str, int]:
     campaign tick``; safe to run anywhere at once (campaign lock, conditional updates). This, not broker
     redelivery, is what recovers a frame after kill -9 on both transports (see services.release_lost_frames).
     """
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     live = list(live_workers().values_list("hostname", flat=True))
     started_before = timezone.now() - timedelta(seconds=settings.WORKER_LIVE_WINDOW_S)
     campaign_ids = set(Frame.objects.filter(state=State.RUNNING, started_at__lt=started_before)
                        .exclude(worker_host__in=live).values_list("campaign_id", flat=True))
     counts = {"requeued": 0, "dead": 0, "revoked": 0, "sent": 0}
+    count_key: dict[str, str] = {State.QUEUED: "requeued", State.DEAD: "dead", State.REVOKED: "revoked"}
     for campaign_id in sorted(campaign_ids):
         with transaction.atomic():
             released = services.release_lost_frames(campaign_id=campaign_id, live_hosts=live,
-                                                    started_before=started_before, task_id_prefix=TASK_ID_PREFIX)
+                                                    started_before=started_before)
             uid = str(Campaign.objects.values_list("uid", flat=True).get(pk=campaign_id))
             messages = [(r.frame_id, r.dispatch_no, r.task_id, 0.0) for r in released if r.to_state == State.QUEUED]
-            transaction.on_commit(lambda m=messages, u=uid: send_messages(messages=m, campaign_uid=u))
+            transaction.on_commit(functools.partial(send_messages, messages=messages, campaign_uid=uid))
         for r in released:
-            counts[{State.QUEUED: "requeued", State.DEAD: "dead", State.REVOKED: "revoked"}[r.to_state]] += 1
+            counts[count_key[r.to_state]] += 1
             if r.to_state != State.QUEUED:
                 _remove_partial_folders(campaign_id=campaign_id, index=r.index)
         if released:
@@ -307,7 +330,7 @@ def sweep() -> dict[str, int]:
 def _remove_partial_folders(*, campaign_id: int, index: int) -> None:
     """A frame that settled without a result may have a killed attempt's partial folder; the sweep runs where
     the media is (in a worker), so it removes it. Best effort: files are not the frame's state."""
-    from workers.tasks import frame_output_dir, remove_partial_folders
+    from campaigns.frame_files import frame_output_dir, remove_partial_folders
 
     try:
         remove_partial_folders(frame_output_dir(campaign_id=campaign_id, index=index)[0])

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import statistics
 from collections import Counter
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from decimal import Decimal
+from typing import cast
 
 from django.db.models import Count, QuerySet, Sum
 
@@ -23,8 +24,9 @@ def campaign_list() -> QuerySet[Campaign]:
 
 def observed_cpu_s(*, campaign: Campaign, limit: int = RECENT_FRAMES_FOR_ESTIMATES) -> list[float]:
     """CPU seconds of the most recent done frames (a bounded list: the median is not portable SQL)."""
-    return list(Frame.objects.filter(campaign=campaign, state=State.DONE, cpu_s__isnull=False)
-                .order_by("-finished_at").values_list("cpu_s", flat=True)[:limit])
+    cpu_s = (Frame.objects.filter(campaign=campaign, state=State.DONE, cpu_s__isnull=False)
+             .order_by("-finished_at").values_list("cpu_s", flat=True)[:limit])
+    return cast("list[float]", list(cpu_s))  # cpu_s__isnull=False: no None in the column
 
 
 def expected_frame_cpu_s(*, campaign: Campaign) -> float:
@@ -112,7 +114,7 @@ class CampaignSummary:
 
 
 def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     campaign.refresh_from_db()
     quota_rows = [
@@ -126,7 +128,9 @@ def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
             "object_class__name", "target_accepted", "accepted_count", "rejected_count", "placed_count", "met_at")
     ]
     done = Frame.objects.filter(campaign=campaign, state=State.DONE)
-    recent = list(done.order_by("-finished_at").values_list("cpu_s", "wall_s")[:RECENT_FRAMES_FOR_ESTIMATES])
+    # record_result() sets cpu_s and wall_s on every frame it marks done: neither is None here.
+    recent = cast("list[tuple[float, float]]",
+                  list(done.order_by("-finished_at").values_list("cpu_s", "wall_s")[:RECENT_FRAMES_FOR_ESTIMATES]))
     median_cpu_s = statistics.median(r[0] for r in recent) if recent else None
     median_wall_s = statistics.median(r[1] for r in recent) if recent else None
     fixed = fixed_cost(campaign=campaign)
@@ -281,7 +285,7 @@ def throughput(*, campaign: Campaign, minutes: int = 120) -> dict[str, _Any]:
 
 def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
     """Live workers with their frames in the last hour (all campaigns) and CPU use (CPU s per wall s per slot)."""
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     now = _timezone.now()
     since = now - _timedelta(seconds=window_s)
@@ -471,7 +475,7 @@ def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
 
     The database groups by the full error text (few distinct texts); groups with the same first line merge here.
     """
-    from campaigns.services import error_kind
+    from campaigns.errors import error_kind
 
     groups: dict[str, dict[str, _Any]] = {}
     for row in failed_frames(campaign=campaign).values("error").annotate(
@@ -508,9 +512,9 @@ def instance_filter(*, class_name: str = "", accepted: str = "", min_visible_fra
     return query if query else None
 
 
-def frame_instances(*, frame_ids: Sequence[int]) -> dict[int, list[dict[str, _Any]]]:
+def frame_instances(*, frame_ids: Sequence[int]) -> dict[int, list[Mapping[str, _Any]]]:
     """Instances of some frames (one query), for box overlays and labels tables."""
-    out: dict[int, list[dict[str, _Any]]] = {fid: [] for fid in frame_ids}
+    out: dict[int, list[Mapping[str, _Any]]] = {fid: [] for fid in frame_ids}
     for row in Instance.objects.filter(frame_id__in=list(frame_ids)).order_by("frame_id", "instance_id").values(
             "frame_id", "instance_id", "object_class__name", "asset_id", "bbox_xywh_px", "amodal_bbox_xywh_px",
             "visible_fraction", "contrast", "occlusion_fraction", "truncation_fraction", "mask_area_px", "accepted",
@@ -632,12 +636,12 @@ def plan_estimate(*, budget: dict[str, _Any], targets: dict[str, int], cost_budg
     ``min(12, density × mean floor area)`` objects (the scheduler's density limit). ``budget`` is normalized.
     """
     from campaigns.sampling import MAX_OBJECTS_PER_FRAME
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     render = budget["render"]
     frame_time = frame_time_estimate(width_px=render["width_px"], height_px=render["height_px"], spp=render["spp"],
                                      history=history)
-    seen = {r["object_class__name"]: r for r in ClassQuota.objects.filter(campaign__in=history.values("pk"))
+    seen: dict[str, Mapping[str, _Any]] = {r["object_class__name"]: r for r in ClassQuota.objects.filter(campaign__in=history.values("pk"))
             .values("object_class__name").annotate(a=Sum("accepted_count"), p=Sum("placed_count"))}
     yields = {name: planner.posterior_yield(accepted=seen.get(name, {}).get("a") or 0,
                                             placed=seen.get(name, {}).get("p") or 0) for name in targets}
@@ -735,6 +739,8 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
     out: dict[str, list[dict[str, str]]] = {}
     for asset in (campaign.assets.filter(kind=Asset.Kind.MESH).exclude(mesh_file="")
                   .select_related("object_class").order_by("pk")):
+        if asset.mesh_file.name is None:  # excluded by the query (mesh_file="" is no file)
+            continue
         path = (root / asset.mesh_file.name).resolve()
         if not path.is_relative_to(root) or not path.is_file():
             continue

@@ -36,7 +36,7 @@ from django.db.models import F, Q, QuerySet
 from django.db.models.functions import Coalesce
 from django.utils import timezone
 
-from campaigns import costs, planner
+from campaigns import costs, errors, messaging, planner, selectors
 from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
 
 log = logging.getLogger("evenframe.campaigns")
@@ -47,6 +47,8 @@ MAX_CAMPAIGN_SPP = 1024
 MAX_TARGET_ACCEPTED = 1_000_000
 # The form's limit too; far below what the database integer holds, so no weight reaches it as an overflow.
 MAX_WEIGHT = 1000
+MAX_SEED = 2**63 - 1  # a campaign seed fits a signed 64-bit database integer
+MAX_ATTEMPTS = 20
 RETRY_BACKOFF_BASE_S = 2.0
 RETRY_BACKOFF_MAX_S = 300.0
 
@@ -63,11 +65,15 @@ class CampaignError(ValueError):
     ``message`` is the text for that input. ``str(error)`` reads ``"field: message"`` for commands and logs.
     """
 
-    def __init__(self, message: str, *, field: str = "", class_name: str | None = None, column: str = "") -> None:
+    def __init__(self, message: str, *, field: str = "", class_name: str | None = None, column: str = "",
+                 budget_field: tuple[str, str, str] | None = None, detail: str = "") -> None:
         self.message = message
         self.field = field
         self.class_name = class_name
         self.column = column
+        # For field "budget": (section, name, part) of the budget input, and the message for that input alone.
+        self.budget_field = budget_field
+        self.detail = detail or message
         if field == "quota" and class_name is not None:
             text = f"quota {class_name!r}: {message}"
         else:
@@ -97,7 +103,7 @@ class _CleanQuota(NamedTuple):
 # --- helpers ---------------------------------------------------------------------------------------
 
 
-def _lock_campaign(campaign_id: int) -> Campaign:
+def lock_campaign(campaign_id: int) -> Campaign:
     try:
         return Campaign.objects.select_for_update().get(pk=campaign_id)
     except Campaign.DoesNotExist as exc:
@@ -154,25 +160,6 @@ def _decimal(value: Any, what: str, *, minimum: Decimal = Decimal(0)) -> Decimal
     return number
 
 
-def _on_commit_dispatch(campaign_id: int | None) -> None:
-    def run() -> None:
-        from campaigns import scheduler
-
-        scheduler.dispatch(campaign_id=campaign_id)
-
-    transaction.on_commit(run)
-
-
-def _on_commit_revoke(task_ids: list[str]) -> None:
-    if task_ids:
-        def run() -> None:
-            from campaigns import scheduler
-
-            scheduler.revoke_tasks(task_ids=task_ids)
-
-        transaction.on_commit(run)
-
-
 def _finite(value: Any, what: str, **where: Any) -> float:
     """A finite number from user input, or a CampaignError saying ``what`` is wrong (``where``: its field)."""
     if isinstance(value, bool):
@@ -193,15 +180,17 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
     try:
         normalized = normalize_budget(dict(budget or {}))
     except BudgetError as exc:
-        raise CampaignError(str(exc), field="budget") from exc
+        raise CampaignError(str(exc), field="budget", detail=exc.detail,
+                            budget_field=(exc.section, exc.name, exc.part) if exc.name else None) from exc
     render = normalized["render"]
     pixels = render["width_px"] * render["height_px"]
     if pixels > MAX_CAMPAIGN_PIXELS:
-        raise CampaignError(f"render.width_px × height_px = {pixels} px exceeds the campaign cap of "
-                            f"{MAX_CAMPAIGN_PIXELS} px (1920×1080)", field="budget")
+        detail = f"{pixels} px exceeds the campaign cap of {MAX_CAMPAIGN_PIXELS} px (1920×1080)"
+        raise CampaignError(f"render.width_px × height_px = {detail}", field="budget", detail=detail,
+                            budget_field=("render", "width_px", ""))
     if render["spp"] > MAX_CAMPAIGN_SPP:
-        raise CampaignError(f"render.spp {render['spp']} exceeds the campaign cap of {MAX_CAMPAIGN_SPP}",
-                            field="budget")
+        detail = f"{render['spp']} exceeds the campaign cap of {MAX_CAMPAIGN_SPP}"
+        raise CampaignError(f"render.spp {detail}", field="budget", detail=detail, budget_field=("render", "spp", ""))
     return normalized
 
 
@@ -314,10 +303,10 @@ def _clean_settings(*, cost_budget: Any, price_per_cpu_hour: Any, setup_cost: An
     )
     if isinstance(weight, bool) or not isinstance(weight, int) or not 1 <= weight <= MAX_WEIGHT:
         raise CampaignError(f"must be a whole number from 1 to {MAX_WEIGHT}, got {weight!r}", field="weight")
-    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed < 2**63:
+    if isinstance(seed, bool) or not isinstance(seed, int) or not 0 <= seed <= MAX_SEED:
         raise CampaignError(f"must be a whole number from 0 to 2^63 − 1, got {seed!r}", field="seed")
-    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= 20:
-        raise CampaignError(f"must be between 1 and 20, got {max_attempts!r}", field="max_attempts")
+    if isinstance(max_attempts, bool) or not isinstance(max_attempts, int) or not 1 <= max_attempts <= MAX_ATTEMPTS:
+        raise CampaignError(f"must be between 1 and {MAX_ATTEMPTS}, got {max_attempts!r}", field="max_attempts")
     return settings
 
 
@@ -423,12 +412,7 @@ def create_campaign(
     return campaign
 
 
-def campaign_fixed_cost(*, campaign: Campaign) -> Decimal:
-    return costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in campaign.assets.all()],
-                            setup_cost=campaign.setup_cost)
-
-
-def _set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "",
+def set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "",
                 allowed_from: Sequence[str]) -> None:
     if campaign.status not in allowed_from:
         raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; cannot go to {to} "
@@ -446,7 +430,7 @@ def _set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = 
         setattr(campaign, key, value)
 
 
-def _revoke_waiting_frames(campaign: Campaign, *, detail: str, states: Sequence[str] = (State.QUEUED,)) -> list[str]:
+def revoke_waiting_frames(campaign: Campaign, *, detail: str, states: Sequence[str] = (State.QUEUED,)) -> list[str]:
     """Queued (and optionally failed) frames become revoked; returns their task ids for a best-effort revoke."""
     waiting = list(Frame.objects.filter(campaign=campaign, state__in=states).values_list("pk", "state", "task_id"))
     task_ids = []
@@ -462,51 +446,49 @@ def _revoke_waiting_frames(campaign: Campaign, *, detail: str, states: Sequence[
 @transaction.atomic
 def start_campaign(*, campaign_id: int) -> Campaign:
     """draft → running, then dispatch the first frames (after commit)."""
-    campaign = _lock_campaign(campaign_id)
-    fixed = campaign_fixed_cost(campaign=campaign)
+    campaign = lock_campaign(campaign_id)
+    fixed = selectors.fixed_cost(campaign=campaign)
     if fixed > campaign.cost_budget:
         raise CampaignError(f"the fixed costs {fixed} already exceed the cost budget {campaign.cost_budget}")
-    _set_status(campaign, Status.RUNNING, allowed_from=(Status.DRAFT,))
+    set_status(campaign, Status.RUNNING, allowed_from=(Status.DRAFT,))
     ClassQuota.objects.filter(campaign=campaign, met_at__isnull=True, target_accepted=0).update(met_at=timezone.now())
-    _on_commit_dispatch(campaign.pk)
+    messaging.request_dispatch_on_commit(campaign.pk)
     return campaign
 
 
 @transaction.atomic
 def pause_campaign(*, campaign_id: int, reason: str = Campaign.PauseReason.USER, detail: str = "") -> Campaign:
     """running → paused: dispatch stops and queued frames are revoked; running frames finish and are recorded."""
-    campaign = _lock_campaign(campaign_id)
-    _set_status(campaign, Status.PAUSED, reason=reason, detail=detail, allowed_from=(Status.RUNNING,))
-    _on_commit_revoke(_revoke_waiting_frames(campaign, detail=f"campaign paused ({reason})"))
+    campaign = lock_campaign(campaign_id)
+    set_status(campaign, Status.PAUSED, reason=reason, detail=detail, allowed_from=(Status.RUNNING,))
+    messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail=f"campaign paused ({reason})"))
     return campaign
 
 
 @transaction.atomic
 def resume_campaign(*, campaign_id: int) -> Campaign:
     """paused → running; revoked frames are dispatched again with their own index and seed."""
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     if campaign.status == Status.PAUSED and campaign.pause_reason == Campaign.PauseReason.BUDGET:
-        from campaigns import selectors
-
         if not selectors.can_afford_next_frame(campaign=campaign):
             raise CampaignError("the next frame would still take spend over the cost budget; raise the budget first")
-    _set_status(campaign, Status.RUNNING, allowed_from=(Status.PAUSED,))
-    _on_commit_dispatch(campaign.pk)
+    set_status(campaign, Status.RUNNING, allowed_from=(Status.PAUSED,))
+    messaging.request_dispatch_on_commit(campaign.pk)
     return campaign
 
 
 @transaction.atomic
 def cancel_campaign(*, campaign_id: int) -> Campaign:
     """Any unfinished status → cancelled; waiting frames are revoked for good."""
-    campaign = _lock_campaign(campaign_id)
-    _set_status(campaign, Status.CANCELLED, allowed_from=(Status.DRAFT, Status.RUNNING, Status.PAUSED))
-    _on_commit_revoke(_revoke_waiting_frames(campaign, detail="campaign cancelled", states=(State.QUEUED, State.FAILED)))
+    campaign = lock_campaign(campaign_id)
+    set_status(campaign, Status.CANCELLED, allowed_from=(Status.DRAFT, Status.RUNNING, Status.PAUSED))
+    messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail="campaign cancelled", states=(State.QUEUED, State.FAILED)))
     return campaign
 
 
 @transaction.atomic
 def set_cost_budget(*, campaign_id: int, cost_budget: Decimal | float | str) -> Campaign:
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     value = _decimal(cost_budget, "cost_budget")
     Campaign.objects.filter(pk=campaign.pk).update(cost_budget=value)
     _event(campaign_id=campaign.pk, from_state=campaign.status, to_state=campaign.status,
@@ -519,8 +501,9 @@ def set_cost_budget(*, campaign_id: int, cost_budget: Decimal | float | str) -> 
 
 
 def create_frame(*, campaign: Campaign, index: int, coordinates: tuple[int, int, int], composition: dict[str, int],
-                 expected_cpu_s: float, task_id_prefix: str) -> Frame:
-    """A new queued frame; call inside the scheduler's transaction (campaign row locked)."""
+                 expected_cpu_s: float, task_id_prefix: str = messaging.TASK_ID_PREFIX) -> Frame:
+    """A new queued frame; call inside the scheduler's transaction (campaign row locked). ``task_id_prefix``: tests
+    that record frames without a broker mark their task ids apart."""
     layout, lighting, view = coordinates
     seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=index, layout_index=layout,
                                 lighting_index=lighting, view_index=view)
@@ -528,20 +511,20 @@ def create_frame(*, campaign: Campaign, index: int, coordinates: tuple[int, int,
     frame = Frame.objects.create(
         campaign=campaign, index=index, seed=seeds.seed, layout_index=layout, lighting_index=lighting,
         view_index=view, composition=dict(sorted(composition.items())), state=State.QUEUED, dispatch_count=1,
-        task_id=f"{task_id_prefix}-c{campaign.pk}-f{index}-d1", expected_cpu_s=expected_cpu_s, queued_at=now,
+        task_id=messaging.task_id(campaign_id=campaign.pk, index=index, dispatch_no=1, prefix=task_id_prefix),
+        expected_cpu_s=expected_cpu_s, queued_at=now,
     )
     _event(campaign_id=campaign.pk, frame_id=frame.pk, to_state=State.QUEUED,
            detail=f"composition {frame.composition}")
     return frame
 
 
-def requeue_frame(*, frame: Frame, composition: dict[str, int] | None, expected_cpu_s: float,
-                  task_id_prefix: str) -> Frame | None:
+def requeue_frame(*, frame: Frame, composition: dict[str, int] | None, expected_cpu_s: float) -> Frame | None:
     """failed (retry due), revoked (campaign resumed) or a stale queued frame → queued with a new message id.
 
     Returns None if the frame moved meanwhile."""
     dispatch_no = frame.dispatch_count + 1
-    task_id = f"{task_id_prefix}-c{frame.campaign_id}-f{frame.index}-d{dispatch_no}"
+    task_id = messaging.task_id(campaign_id=frame.campaign_id, index=frame.index, dispatch_no=dispatch_no)
     fields: dict[str, Any] = {"state": State.QUEUED, "dispatch_count": dispatch_no, "task_id": task_id,
                               "expected_cpu_s": expected_cpu_s, "queued_at": timezone.now()}
     if composition is not None:
@@ -578,8 +561,7 @@ class LostFrame:
 
 
 @transaction.atomic
-def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_before: Any,
-                        task_id_prefix: str) -> list[LostFrame]:
+def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_before: Any) -> list[LostFrame]:
     """Frames ``running`` on a worker that is not live (kill -9, power loss, a partition) are taken back.
 
     A lost message is not redelivered by the file-system transport (it deletes the message file when a
@@ -590,7 +572,7 @@ def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_
     Only frames started before ``started_before`` count, so a worker whose first heartbeat is not yet written
     does not lose the frame it just claimed. The caller sends the returned queued frames after commit.
     """
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     live = set(live_hosts)
     lost = (Frame.objects.filter(campaign=campaign, state=State.RUNNING, started_at__lt=started_before)
             .exclude(worker_host__in=live).order_by("index"))
@@ -614,7 +596,7 @@ def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_
                 released.append(LostFrame(frame.pk, frame.index, State.DEAD, frame.dispatch_count, frame.task_id))
             continue
         dispatch_no = frame.dispatch_count + 1
-        task_id = f"{task_id_prefix}-c{campaign.pk}-f{frame.index}-d{dispatch_no}"
+        task_id = messaging.task_id(campaign_id=campaign.pk, index=frame.index, dispatch_no=dispatch_no)
         if same.update(state=State.QUEUED, dispatch_count=dispatch_no, task_id=task_id, queued_at=now,
                        retry_at=None, error=why):
             _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.QUEUED,
@@ -652,7 +634,7 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
     key = _frame_key(frame_id)
     if key is None:
         return Claim(False, "no such frame")
-    campaign = _lock_campaign(key[0])
+    campaign = lock_campaign(key[0])
     if campaign_uid is not None and str(campaign.uid) != str(campaign_uid):
         log.error("frame %s: message for campaign %s, but this database's frame belongs to campaign %s — is this "
                   "worker on the same DATABASE_URL as the scheduler?", frame_id, campaign_uid, campaign.uid)
@@ -668,10 +650,8 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
                worker_host=worker_host, detail=f"released at start: campaign is {campaign.status}")
         return Claim(False, f"campaign is {campaign.status}")
     if frame.state == State.QUEUED:
-        from campaigns import selectors
-
         committed = selectors.committed_cost(campaign=campaign, states=(State.RUNNING,))
-        spent = campaign.compute_cost_spent + campaign_fixed_cost(campaign=campaign)
+        spent = campaign.compute_cost_spent + selectors.fixed_cost(campaign=campaign)
         next_cost = costs.expected_frame_cost(expected_cpu_s=frame.expected_cpu_s,
                                               price_per_cpu_hour=campaign.price_per_cpu_hour)
         if not costs.can_afford_frame(spent=spent, committed=committed, next_frame_cost=next_cost,
@@ -681,9 +661,9 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
                    worker_host=worker_host, detail="not started: expected cost would exceed the budget")
             detail = (f"spent {costs.money(spent)} + running {committed} + next frame ≈ {next_cost} "
                       f"> budget {campaign.cost_budget}")
-            _set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET, detail=detail,
+            set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET, detail=detail,
                         allowed_from=(Status.RUNNING,))
-            _on_commit_revoke(_revoke_waiting_frames(campaign, detail="campaign paused (budget)"))
+            messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail="campaign paused (budget)"))
             return Claim(False, "budget")
     now = timezone.now()
     attempts = frame.attempts + 1
@@ -735,7 +715,7 @@ def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[s
     key = _frame_key(frame_id)
     if key is None:
         return False
-    campaign = _lock_campaign(key[0])
+    campaign = lock_campaign(key[0])
     price = campaign.price_per_cpu_hour
     cost = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=price)
     now = timezone.now()
@@ -811,9 +791,9 @@ def _mark_quotas_met(*, campaign: Campaign, frame_id: int | None) -> None:
             Q(met_at__isnull=True) | Q(accepted_count__lt=F("target_accepted"))).exists():
         campaign.refresh_from_db(fields=["status"])
         if campaign.status in (Status.RUNNING, Status.PAUSED):
-            _set_status(campaign, Status.COMPLETED, detail="every quota is met",
+            set_status(campaign, Status.COMPLETED, detail="every quota is met",
                         allowed_from=(Status.RUNNING, Status.PAUSED))
-            _on_commit_revoke(_revoke_waiting_frames(campaign, detail="campaign completed",
+            messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail="campaign completed",
                                                      states=(State.QUEUED, State.FAILED)))
 
 
@@ -834,7 +814,7 @@ def record_failure(*, frame_id: int, dispatch_no: int, error: str, traceback: st
     key = _frame_key(frame_id)
     if key is None:
         return "stale"
-    campaign = _lock_campaign(key[0])
+    campaign = lock_campaign(key[0])
     frame = Frame.objects.get(pk=frame_id)
     if frame.state != State.RUNNING or frame.dispatch_count != dispatch_no:
         return "stale"
@@ -886,18 +866,6 @@ def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_co
 # --- dashboard actions (added for the dashboard, issue 5) ------------------------------------------------------
 
 
-def error_kind(error: str) -> str:
-    """The failed-jobs grouping key: exception type and the first line of its message, numbers shown as ``#``.
-
-    ``LayoutError: cannot place bed ×6 … in a 2.3 × 2.5 m room`` and the same error in a 2.5 × 2.5 m room are one
-    kind; :func:`frames_of_error_kind` finds the frames of a kind with a database regex built from it.
-    """
-    import re
-
-    return re.sub(r"\d+(?:\.\d+)?", "#", (error or "").split("\n", 1)[0])[:ERROR_KIND_CHARS]
-
-
-ERROR_KIND_CHARS = 300
 
 
 @transaction.atomic
@@ -921,7 +889,7 @@ def update_draft_campaign(
 
     ``asset_ids`` replaces the draft's asset choice; None keeps its chosen assets of the classes still quoted and
     gives newly quoted classes their defaults (:func:`default_campaign_assets`)."""
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     if campaign.status != Status.DRAFT:
         raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
                             "(the cost budget of a started campaign can still be changed)")
@@ -958,7 +926,7 @@ def update_draft_campaign(
 @transaction.atomic
 def delete_campaign(*, campaign_id: int) -> None:
     """Delete a campaign that is not running, with its frames and events; its frame files go after commit."""
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     if campaign.status == Status.RUNNING:
         raise CampaignError(f"campaign {campaign.name!r} is running; pause or cancel it first")
     pk = campaign.pk
@@ -988,7 +956,7 @@ def _retry_dead(campaign: Campaign, frame_ids: Sequence[int], *, detail: str) ->
     if retried:
         Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") - retried)
         if campaign.status == Status.RUNNING:
-            _on_commit_dispatch(campaign.pk)
+            messaging.request_dispatch_on_commit(campaign.pk)
     return retried
 
 
@@ -1002,34 +970,20 @@ def retry_frame(*, campaign_id: int, frame_id: int) -> int:
     """A dead frame gets its attempts back and goes to failed, due now; the scheduler sends it again.
 
     On a paused campaign it waits until the campaign resumes. Returns 1, or 0 when the frame was not dead."""
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     _check_retryable(campaign)
     return _retry_dead(campaign, [frame_id], detail="retried from the dashboard")
 
 
-def _kind_filter(kind: str) -> Q:
-    """Errors whose first line is of this kind (see :func:`error_kind`): ``#`` matches a number."""
-    import re
-
-    if "\x00" in kind:  # no stored error holds NUL (PostgreSQL text cannot), and the database refuses it in a query
-        return Q(pk__in=[])
-
-    pattern = "^" + "".join("[0-9]+([.][0-9]+)?" if part == "#" else re.escape(part)
-                            for part in re.split(r"(#)", kind) if part)
-    if len(kind) < ERROR_KIND_CHARS:  # a key shorter than the cap is the whole first line
-        pattern += "(\n|$)"
-    return Q(error__regex=pattern)
-
-
 def frames_of_error_kind(*, campaign: Campaign, kind: str, states: Sequence[str] = (State.DEAD,)):
     """Frames of a campaign whose error's first line is ``kind`` (see :func:`error_kind`)."""
-    return Frame.objects.filter(campaign=campaign, state__in=states).filter(_kind_filter(kind))
+    return Frame.objects.filter(campaign=campaign, state__in=states).filter(errors.kind_filter(kind))
 
 
 @transaction.atomic
 def retry_failed_of_kind(*, campaign_id: int, kind: str) -> int:
     """Retry every dead frame whose error is of this kind; returns how many."""
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     _check_retryable(campaign)
     ids = list(frames_of_error_kind(campaign=campaign, kind=kind).values_list("pk", flat=True))
     return _retry_dead(campaign, ids, detail=f"retried with all of kind {kind[:200]!r}")
@@ -1044,9 +998,9 @@ def ignore_frame(*, campaign_id: int, frame_id: int, kind: str | None = None) ->
 
     Recorded as an ``ignored`` event after the frame's death: a frame retried later and dead again shows
     once more. Returns how many frames were ignored."""
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     frames = Frame.objects.filter(campaign=campaign, state=State.DEAD)
-    frames = frames.filter(_kind_filter(kind)) if kind is not None else frames.filter(pk=frame_id)
+    frames = frames.filter(errors.kind_filter(kind)) if kind is not None else frames.filter(pk=frame_id)
     ids = list(frames.values_list("pk", flat=True))
     for fid in ids:
         _event(campaign_id=campaign.pk, frame_id=fid, from_state=State.DEAD, to_state=IGNORED,
@@ -1062,9 +1016,7 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     room, furniture, lights and camera; only the noise sub-seed (from the new index) differs. It renders on the
     fleet like any frame, so the campaign must be running (a paused campaign re-plans released frames).
     """
-    from campaigns import scheduler
-
-    campaign = _lock_campaign(campaign_id)
+    campaign = lock_campaign(campaign_id)
     if campaign.status != Status.RUNNING:
         raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; start or resume it to re-render "
                             "(frames render on the fleet only while it runs)")
@@ -1077,12 +1029,11 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     last_index = Frame.objects.filter(campaign=campaign).order_by("-index").values_list("index", flat=True).first()
     frame = create_frame(campaign=campaign, index=(last_index or 0) + 1,
                          coordinates=(source.layout_index, source.lighting_index, source.view_index),
-                         composition=dict(source.composition), expected_cpu_s=source.cpu_s or source.expected_cpu_s,
-                         task_id_prefix=scheduler.TASK_ID_PREFIX)
+                         composition=dict(source.composition), expected_cpu_s=source.cpu_s or source.expected_cpu_s)
     _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state="", to_state=State.QUEUED,
            detail=f"re-render of frame {source.index}")
     uid, fid, dispatch_no, task_id = str(campaign.uid), frame.pk, frame.dispatch_count, frame.task_id
-    transaction.on_commit(lambda: scheduler.send_frame_task(frame_id=fid, dispatch_no=dispatch_no,
+    transaction.on_commit(lambda: messaging.send_frame_task(frame_id=fid, dispatch_no=dispatch_no,
                                                             campaign_uid=uid, task_id=task_id))
     return frame
 

@@ -12,6 +12,7 @@ import json
 import math
 import os
 import uuid
+from collections.abc import Mapping, Sequence
 from functools import lru_cache
 from pathlib import Path
 from typing import Any
@@ -33,7 +34,7 @@ from django.urls import reverse
 from django.views.decorators.cache import never_cache
 from django.views.decorators.http import require_GET, require_POST
 
-from campaigns import asset_files, selectors, services
+from campaigns import asset_files, errors, selectors, services
 from campaigns.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
 from campaigns.models import Asset, Campaign, Frame
 from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user
@@ -334,9 +335,9 @@ def failed_jobs(request: HttpRequest, campaign_id: int) -> HttpResponse:
     kind = request.GET.get("kind", "")
     frames = selectors.failed_frames(campaign=campaign)
     if kind:
-        frames = frames.filter(services._kind_filter(kind))
+        frames = frames.filter(errors.kind_filter(kind))
     page = Paginator(frames.order_by("-started_at", "-index"), FAILED_PAGE).get_page(request.GET.get("page"))
-    rows = [{"frame": f, "kind": services.error_kind(f.error), "first_line": f.error.split("\n", 1)[0]} for f in page]
+    rows = [{"frame": f, "kind": errors.error_kind(f.error), "first_line": f.error.split("\n", 1)[0]} for f in page]
     return render(request, "campaigns/failed.html", {
         "c": campaign, "groups": groups, "kind": kind, "page": page, "rows": rows, **_roles(request, campaign)})
 
@@ -385,7 +386,7 @@ def _float_or_none(text: str | None, *, low: float, high: float) -> float | None
     return min(high, max(low, value))
 
 
-def _boxes(instances: list[dict[str, Any]], match: Q | None, *, class_name: str, accepted: str,
+def _boxes(instances: Sequence[Mapping[str, Any]], match: Q | None, *, class_name: str, accepted: str,
            min_visible: float | None) -> list[dict[str, Any]]:
     out = []
     for inst in instances:

@@ -47,7 +47,7 @@ def check_broker() -> Check:
 
 
 def check_workers() -> Check:
-    from workers.models import live_workers
+    from fleet.models import live_workers
 
     try:
         workers = list(live_workers())

@@ -80,7 +80,8 @@ INSTALLED_APPS = [
     "evenframe",
     "teams",
     "campaigns",
-    "workers",
+    "datasets",
+    "fleet",
     "axes",
 ]
 
@@ -131,7 +132,7 @@ else:
     DATABASES = {
         "default": {
             "ENGINE": "django.db.backends.sqlite3",
-            "NAME": DATA_DIR / "evenframe.sqlite3",
+            "NAME": str(DATA_DIR / "evenframe.sqlite3"),  # a str, as from DATABASE_URL
         }
     }
 if DATABASES["default"]["ENGINE"] == "django.db.backends.sqlite3":

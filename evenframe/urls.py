@@ -12,7 +12,7 @@ urlpatterns = [
     path("health.json", views.health_json, name="health-json"),
     path("admin/", admin.site.urls),
     path("campaigns/", include("campaigns.urls")),
-    path("campaigns/", include("campaigns.export_urls")),
+    path("campaigns/", include("datasets.urls")),
     # Media (rendered frames) behind login; in a real deployment a proxy may serve them instead.
     path("media/<path:path>", views.protected_media, name="media"),
 ]

@@ -547,12 +547,13 @@ def _sample_chair(variant: str, rng: np.random.Generator) -> _Sampled:
     names = ("seat_height_m", "seat_width_m", "seat_depth_m", "overall_height_m", "seat_thickness_m",
              "leg_thickness_m")
     p = {n: _draw(rng, "chair", n) for n in names}
-    slots = {
+    slots_by_variant: dict[str, dict[str, tuple[str, ...]]] = {
         "slat_back": {"frame": ("wood", "painted"), "seat": ("wood", "fabric", "leather")},
         "panel_back": {"legs": ("wood", "metal"), "upholstery": ("fabric", "leather")},
         "sled_base": {"frame": ("metal",), "shell": ("plastic", "wood", "painted")},
         "pedestal": {"base": ("metal", "plastic", "painted"), "seat": ("fabric", "leather", "plastic")},
-    }[variant]
+    }
+    slots = slots_by_variant[variant]
     if variant == "slat_back":
         p["slat_count"] = float(rng.integers(2, 5))
     return _Sampled(p, (p["seat_width_m"], p["seat_depth_m"]), p["overall_height_m"], slots)
@@ -631,8 +632,9 @@ def _sample_upholstered(class_name: str, variant: str, rng: np.random.Generator)
         # A slipper chair has no arms to widen it; keep it chair-wide.
         p["width_m"] = round(min(p["width_m"], 0.75), 6)
     upholstery = ("fabric", "fabric", "leather")  # fabric twice: most upholstery is cloth
-    slots = {"body": upholstery, "cushions": ("fabric",) if variant != "tuxedo" else upholstery,
-             "legs": ("wood", "metal")}
+    slots: dict[str, tuple[str, ...]] = {"body": upholstery,
+                                         "cushions": ("fabric",) if variant != "tuxedo" else upholstery,
+                                         "legs": ("wood", "metal")}
     if variant == "rolled_arm" and class_name == "sofa":
         slots.pop("legs")  # skirted to the floor
     return _Sampled(p, (p["width_m"], p["depth_m"]), p["overall_height_m"], slots)
@@ -739,7 +741,7 @@ def _sample_table(class_name: str, variant: str, rng: np.random.Generator) -> _S
     else:
         support = _support(0.0, 0.0, w - 0.04, d - 0.04, p["top_height_m"])
     top_families = ("wood", "painted", "plastic") if class_name != "dining_table" else ("wood", "wood", "painted")
-    slots = {"top": top_families, "base": ("wood", "metal", "painted")}
+    slots: dict[str, tuple[str, ...]] = {"top": top_families, "base": ("wood", "metal", "painted")}
     if variant == "drawer_cube":
         slots["handle"] = ("metal",)
     return _Sampled(p, (w, d), p["top_height_m"], slots, [support])
@@ -831,7 +833,7 @@ def _sample_ottoman(variant: str, rng: np.random.Generator) -> _Sampled:
         if variant == "bench":
             p["width_m"] = round(max(p["width_m"], 0.8), 6)  # a bench seats two
         w, d = p["width_m"], p["depth_m"]
-    slots = {"upholstery": ("fabric", "leather")}
+    slots: dict[str, tuple[str, ...]] = {"upholstery": ("fabric", "leather")}
     if variant in ("bench", "box"):
         slots["legs"] = ("wood", "metal")
     if variant == "tray_top":
@@ -951,8 +953,9 @@ def _sample_lamp(variant: str, rng: np.random.Generator) -> _Sampled:
     if variant == "uplighter":
         p["shade_height_m"] = round(min(p["shade_height_m"], 0.2), 6)
     width = max(ground, p["shade_diameter_m"])
-    slots = {"base": ("metal", "wood", "painted"), "shade": ("lampshade",) if variant != "uplighter"
-             else ("metal", "painted", "lampshade")}
+    slots: dict[str, tuple[str, ...]] = {"base": ("metal", "wood", "painted"),
+                                         "shade": ("lampshade",) if variant != "uplighter"
+                                         else ("metal", "painted", "lampshade")}
     anchor_z = p["height_m"] - p["shade_height_m"] * (0.3 if variant == "uplighter" else 0.5)
     # Where the lights module may put a bulb: inside the shade, which is an open tube.
     extra = {"light_anchor_m": [0.0, 0.0, round(anchor_z, 6)]}
@@ -1026,7 +1029,7 @@ def _sample_bookshelf(variant: str, rng: np.random.Generator) -> _Sampled:
     # Compartments between the bottom board and the top board at the chosen clear spacing.
     usable = p["height_m"] - _PLINTH_M - 2 * t
     p["shelf_count"] = float(max(1, int((usable + t) // (p["shelf_spacing_m"] + t))))
-    slots = {"carcass": ("wood", "painted", "wood")}
+    slots: dict[str, tuple[str, ...]] = {"carcass": ("wood", "painted", "wood")}
     if variant == "back_panel_books":
         slots.update({"books_a": ("book",), "books_b": ("book",), "books_c": ("book",)})
     if variant == "ladder":

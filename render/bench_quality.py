@@ -43,7 +43,7 @@ import sys
 import tempfile
 import time
 from pathlib import Path
-from typing import Any
+from typing import Any, TypedDict
 
 import numpy as np
 
@@ -53,8 +53,16 @@ GOAL_MEDIAN_SSIM = 0.9
 GOAL_CPU_RATIO = 1 / 3
 GOAL_EQUAL_CPU_GAIN_DB = 8.0
 KINDS = ("lamp", "window", "sun")
+
+
+class _RenderDefault(TypedDict):
+    spp: int
+    denoise: bool
+    window_light: str
+
+
 #: The default before denoising and portals (for the CPU comparison).
-PREVIOUS_DEFAULT = {"spp": 32, "denoise": False, "window_light": "dome"}
+PREVIOUS_DEFAULT: _RenderDefault = {"spp": 32, "denoise": False, "window_light": "dome"}
 
 
 def lighting_kind(spec: dict[str, Any]) -> str | None:

@@ -47,7 +47,7 @@ def cells(maps: TextureMaps, cell_px: int) -> list[np.ndarray]:
 
     def fit(image: np.ndarray) -> np.ndarray:
         mode = "L" if image.ndim == 2 else "RGB"
-        return np.asarray(Image.fromarray(image, mode).convert("RGB").resize((cell_px, cell_px), Image.LANCZOS))
+        return np.asarray(Image.fromarray(image, mode).convert("RGB").resize((cell_px, cell_px), Image.Resampling.LANCZOS))
 
     rough = np.round(maps.roughness * 255).astype(np.uint8)
     return [fit(maps.base_color_srgb8), fit(maps.base_color_srgb8[crop, crop]), fit(raking_light(maps, crop)),

@@ -24,7 +24,17 @@ MAX_SPP = 4096
 
 
 class BudgetError(ValueError):
-    """A budget field is missing, of the wrong type, out of bounds or min > max."""
+    """A budget field is missing, of the wrong type, out of bounds or min > max.
+
+    Structured for forms: ``section`` and ``name`` say which field (empty when the error is about the budget
+    as a whole), ``part`` is ``"min"`` or ``"max"`` for one end of a range, ``detail`` is the message for that
+    input; ``str(error)`` reads ``"section.name[ part]: detail"`` for commands and logs.
+    """
+
+    def __init__(self, detail: str, *, section: str = "", name: str = "", part: str = "") -> None:
+        self.detail, self.section, self.name, self.part = detail, section, name, part
+        where = ".".join(p for p in (section, name) if p) + (f" {part}" if part else "")
+        super().__init__(f"{where}: {detail}" if where else detail)
 
 
 @dataclass(frozen=True)
@@ -241,51 +251,49 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
 FIELDS_BY_KEY: dict[tuple[str, str], Field] = {(f.section, f.name): f for f in FIELDS}
 
 
-def _number(value: Any, where: str, *, integer: bool) -> float | int:
+def _number(value: Any, where: dict[str, str], *, integer: bool) -> float | int:
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise BudgetError(f"{where}: expected a number, got {value!r}")
+        raise BudgetError(f"expected a number, got {value!r}", **where)
     if isinstance(value, float) and not math.isfinite(value):
-        raise BudgetError(f"{where}: must be finite, got {value!r}")
+        raise BudgetError(f"must be finite, got {value!r}", **where)
     if integer:
         if isinstance(value, float) and not value.is_integer():
-            raise BudgetError(f"{where}: expected a whole number, got {value!r}")
+            raise BudgetError(f"expected a whole number, got {value!r}", **where)
         return int(value)
     return float(value)
 
 
 def _check_field(field: Field, value: Any) -> Any:
-    where = f"{field.section}.{field.name}"
+    where = {"section": field.section, "name": field.name}
     if field.kind == "choices":
         if not isinstance(value, (list, tuple)) or not all(isinstance(v, str) for v in value):
-            raise BudgetError(f"{where}: expected a list of names, got {value!r}")
+            raise BudgetError(f"expected a list of names, got {value!r}", **where)
         unknown = [v for v in value if v not in field.choices]
         if unknown:
-            raise BudgetError(f"{where}: unknown {', '.join(map(repr, unknown))} (known: {', '.join(field.choices)})")
+            raise BudgetError(f"unknown {', '.join(map(repr, unknown))} (known: {', '.join(field.choices)})", **where)
         if not value:
-            raise BudgetError(f"{where}: choose at least one of {', '.join(field.choices)}")
+            raise BudgetError(f"choose at least one of {', '.join(field.choices)}", **where)
         return [c for c in field.choices if c in value]
     if field.kind == "bool":
         if not isinstance(value, bool):
-            raise BudgetError(f"{where}: expected true or false, got {value!r}")
+            raise BudgetError(f"expected true or false, got {value!r}", **where)
         return value
     integer = field.kind in ("int", "int_range")
     unit = f" {field.unit}" if field.unit else ""
     if field.kind in ("range", "int_range"):
         if not isinstance(value, (list, tuple)) or len(value) != 2:
-            raise BudgetError(f"{where}: expected [min, max], got {value!r}")
-        lo = _number(value[0], where + " min", integer=integer)
-        hi = _number(value[1], where + " max", integer=integer)
+            raise BudgetError(f"expected [min, max], got {value!r}", **where)
+        lo = _number(value[0], {**where, "part": "min"}, integer=integer)
+        hi = _number(value[1], {**where, "part": "max"}, integer=integer)
         if lo > hi:
-            raise BudgetError(f"{where}: min {lo}{unit} is greater than max {hi}{unit}")
+            raise BudgetError(f"min {lo}{unit} is greater than max {hi}{unit}", **where)
         for bound in (lo, hi):
             if bound < field.lower or bound > field.upper:
-                raise BudgetError(
-                    f"{where}: {bound}{unit} is outside the allowed {field.lower:g}–{field.upper:g}{unit}"
-                )
+                raise BudgetError(f"{bound}{unit} is outside the allowed {field.lower:g}–{field.upper:g}{unit}", **where)
         return [lo, hi]
     number = _number(value, where, integer=integer)
     if number < field.lower or number > field.upper:
-        raise BudgetError(f"{where}: {number}{unit} is outside the allowed {field.lower:g}–{field.upper:g}{unit}")
+        raise BudgetError(f"{number}{unit} is outside the allowed {field.lower:g}–{field.upper:g}{unit}", **where)
     return number
 
 
@@ -303,11 +311,11 @@ def normalize_budget(partial: dict[str, Any] | None = None) -> dict[str, Any]:
         if section not in budget:
             raise BudgetError(f"budget: unknown section {section!r} (known: {', '.join(budget)})")
         if not isinstance(values, dict):
-            raise BudgetError(f"{section}: expected an object, got {values!r}")
+            raise BudgetError(f"expected an object, got {values!r}", section=str(section))
         for name, value in values.items():
             if (section, name) not in FIELDS_BY_KEY:
                 known = ", ".join(f.name for f in FIELDS if f.section == section)
-                raise BudgetError(f"{section}.{name}: unknown field (known: {known})")
+                raise BudgetError(f"unknown field (known: {known})", section=str(section), name=str(name))
             budget[section][name] = value
     for field in FIELDS:
         budget[field.section][field.name] = _check_field(field, budget[field.section][field.name])
@@ -315,7 +323,7 @@ def normalize_budget(partial: dict[str, Any] | None = None) -> dict[str, Any]:
     if lighting["panel_count"][1] + lighting["point_count"][1] + lighting["spot_count"][1] == 0 and (
         lighting["dome_illuminance_lux"][1] == 0 and lighting["sun_probability"] == 0
     ):
-        raise BudgetError("lighting: every light source is disabled; the frames would be black")
+        raise BudgetError("every light source is disabled; the frames would be black", section="lighting")
     return budget
 
 

@@ -33,7 +33,7 @@ chains metering (with auto-ISO), exposure, noise and encoding.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from typing import Any
 
 import numpy as np
@@ -546,6 +546,7 @@ def object_bounds_m(obj: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
     stored, else the yawed footprint rectangle centred on ``position_m`` from its base
     (z = position z) up to ``height_m``.
     """
+    object_world_bounds: Callable[[dict[str, Any]], tuple[np.ndarray, np.ndarray]] | None
     try:
         from .layout import object_world_bounds
     except ImportError:
@@ -794,12 +795,12 @@ class _Framing:
         to_subject /= np.linalg.norm(to_subject, axis=1, keepdims=True)
         yaw, pitch, _, _ = _aim(positions, self.centres)
         bisector = np.column_stack([np.cos(pitch) * np.cos(yaw), np.cos(pitch) * np.sin(yaw), np.sin(pitch)])
-        directions = []
+        blended: list[np.ndarray] = []
         for blend in _AIM_BLENDS:
             direction = (1.0 - blend) * to_subject + blend * bisector
             norm = np.linalg.norm(direction, axis=1, keepdims=True)
-            directions.append(np.where(norm > 1e-6, direction / np.maximum(norm, 1e-12), to_subject))
-        directions = np.concatenate(directions)
+            blended.append(np.where(norm > 1e-6, direction / np.maximum(norm, 1e-12), to_subject))
+        directions = np.concatenate(blended)
         positions = np.tile(positions, (len(_AIM_BLENDS), 1))
         pitch_deg = np.degrees(np.arcsin(np.clip(directions[:, 2], -1.0, 1.0)))
         level = (pitch_deg >= -MAX_PITCH_DOWN_DEG) & (pitch_deg <= MAX_PITCH_UP_DEG)
@@ -817,13 +818,16 @@ class _Framing:
         least ``min_box_px`` — something that can pass the label thresholds. All in: every object centre
         in frame.
         """
+        corners = self.corners
+        if corners is None:  # no objects: candidate_views() offers no view to judge
+            raise ValueError("judge() needs a room with at least one object")
         rotations = _rotations_towards(positions, positions + directions)
         focal_px = self.focal_px(focal_length_mm)
         w, h = self.width_px, self.height_px
         n = len(self.centres)
         centre_in = _in_frame(rotations, positions, self.centres, focal_px, w, h)
-        corner_in = _in_frame(rotations, positions, self.corners.reshape(-1, 3), focal_px, w, h)
-        hidden = _hidden_mask(rotations, positions, self.centres, self.corners)
+        corner_in = _in_frame(rotations, positions, corners.reshape(-1, 3), focal_px, w, h)
+        hidden = _hidden_mask(rotations, positions, self.centres, corners)
         score = centre_in.sum(axis=1) + 0.5 * corner_in.reshape(len(positions), n, 8).mean(axis=2).sum(axis=1)
         score -= hidden.sum(axis=1)
         f = self.footprints
@@ -831,9 +835,9 @@ class _Framing:
         gap_y = np.maximum(np.maximum(f[None, :, 1] - positions[:, None, 1], 0), positions[:, None, 1] - f[None, :, 3])
         # Standing right next to furniture fills the frame with it.
         score -= (np.hypot(np.maximum(gap_x, 0), np.maximum(gap_y, 0)) < CLOSE_OBJECT_M).sum(axis=1)
-        share, side_px = _box_in_frame(rotations, positions, self.corners, focal_px, w, h)
+        share, side_px = _box_in_frame(rotations, positions, corners, focal_px, w, h)
         useful = ((share >= max(self.min_visible_fraction, 1e-6)) & (side_px >= self.min_box_px) & ~hidden).any(axis=1)
-        return score, useful, centre_in.all(axis=1)
+        return score, useful, np.all(centre_in, axis=1)
 
     def apart_from(self, positions: np.ndarray, directions: np.ndarray,
                    others: Sequence[tuple[np.ndarray, np.ndarray]]) -> tuple[np.ndarray, np.ndarray]:

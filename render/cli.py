@@ -29,7 +29,7 @@ import sys
 from collections import Counter
 from collections.abc import Mapping
 from pathlib import Path
-from typing import Any
+from typing import Any, NoReturn
 
 import numpy as np
 
@@ -55,7 +55,7 @@ class CliError(Exception):
 
 
 class _Parser(argparse.ArgumentParser):
-    def error(self, message: str) -> None:  # one line, no usage block
+    def error(self, message: str) -> NoReturn:  # one line, no usage block
         raise CliError(message)
 
 
@@ -149,7 +149,7 @@ def run(argv: list[str] | None = None) -> int:
             raise CliError(f"{flag} applies to a contact sheet only (add --contact-sheet COUNT)")
     import time
 
-    from .frame import _write_png, draw_preview, render_frame
+    from .frame import draw_preview, render_frame, write_png
     from .spec import make_spec
 
     start = time.perf_counter()
@@ -164,7 +164,7 @@ def run(argv: list[str] | None = None) -> int:
     spec_s = time.perf_counter() - start
     result = render_frame(spec, out_dir=args.out, variant=args.variant, threads=args.threads, spec_s=spec_s)
     if args.preview:
-        _write_png(args.out / "preview.png", draw_preview(result.rgb, result.labels))
+        write_png(args.out / "preview.png", draw_preview(result.rgb, result.labels))
     instances = result.labels.get("instances", [])
     accepted = sum(1 for instance in instances if instance.get("accepted"))
     exposure = result.labels.get("exposure", {})

@@ -28,6 +28,7 @@ import os
 import threading
 from dataclasses import dataclass
 from pathlib import Path
+from typing import overload
 
 import numpy as np
 
@@ -137,6 +138,14 @@ def denoiser_status() -> str | None:
     except DenoiserUnavailable as exc:
         return str(exc)
     return None
+
+
+@overload
+def _image(array: np.ndarray, shape: tuple[int, ...], name: str) -> np.ndarray: ...
+
+
+@overload
+def _image(array: np.ndarray | None, shape: tuple[int, ...], name: str) -> np.ndarray | None: ...
 
 
 def _image(array: np.ndarray | None, shape: tuple[int, ...], name: str) -> np.ndarray | None:

@@ -230,9 +230,10 @@ def sample_distractor(kind: str, rng: np.random.Generator) -> dict[str, Any]:
     """An unplaced distractor record of one kind: size, parameters and materials (no position yet)."""
     spec = KINDS[kind]
     params, size = _sample_params(kind, rng)
-    slots = dict(spec.slots)
+    slots: dict[str, tuple[str, ...]] = dict(spec.slots)
     if kind == "book_stack":
-        slots = {f"cover_{k}": ("book",) for k in range(len(params["books"]))} | {"pages": ("page_edges",)}
+        slots = {f"cover_{k}": ("book",) for k in range(len(params["books"]))}
+        slots["pages"] = ("page_edges",)
     if kind == "picture_frame" and not params["mat_m"]:
         slots.pop("mat")
     materials = {slot: assets.sample_material(families[int(rng.integers(len(families)))], rng)

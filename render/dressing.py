@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import itertools
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import trimesh
@@ -397,7 +397,8 @@ def dressing_parts(room: dict[str, Any]) -> list[tuple[str, trimesh.Trimesh, dic
     out = []
     for slot, meshes in groups.items():
         if meshes and slot in materials:
-            out.append((slot, trimesh.util.concatenate(meshes), dict(materials[slot])))
+            # trimesh annotates concatenate() as returning Geometry; a list of Trimesh concatenates to a Trimesh.
+            out.append((slot, cast(trimesh.Trimesh, trimesh.util.concatenate(meshes)), dict(materials[slot])))
     return out
 
 

@@ -185,7 +185,7 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
     return rgb, exposure
 
 
-def _write_png(path: Path, image: np.ndarray) -> None:
+def write_png(path: Path, image: np.ndarray) -> None:
     import cv2
 
     params = [cv2.IMWRITE_PNG_COMPRESSION, PNG_COMPRESSION_LEVEL]
@@ -211,8 +211,8 @@ def write_frame_files(result: FrameResult, out_dir: Path, *, spec_json: str | No
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     files = {name: out_dir / name for name in OUTPUT_FILES}
-    _write_png(files["rgb.png"], result.rgb)
-    _write_png(files["instances.png"], result.instance_ids.astype(np.uint16))
+    write_png(files["rgb.png"], result.rgb)
+    write_png(files["instances.png"], result.instance_ids.astype(np.uint16))
     np.save(files["depth.npy"], result.depth_m.astype(np.float32))
     files["labels.json"].write_text(_dump_json(result.labels) + "\n", encoding="utf-8")
     files["scene.json"].write_text((spec_json or spec_to_json(result.spec)) + "\n", encoding="utf-8")

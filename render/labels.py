@@ -361,7 +361,7 @@ def instance_labels(
         rule = thresholds_for_class(obj.get("class_name", ""), thresholds, class_thresholds)
         min_visible, min_box = rule["min_visible_fraction"], rule["min_box_px"]
         reasons = []
-        if area == 0:
+        if bbox is None or area == 0:  # no bbox means no pixel (area 0)
             reasons.append("not visible")
         else:
             if visible_fraction < min_visible:

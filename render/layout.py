@@ -716,7 +716,7 @@ class _Placer:
         facing the table."""
         t_hw, t_hd = table.spec["footprint_m"][0] / 2, table.spec["footprint_m"][1] / 2
         item_hd = spec["footprint_m"][1] / 2
-        order = self.rng.permutation(len(slots)) if slots else []
+        order: np.ndarray | list[int] = self.rng.permutation(len(slots)) if slots else []
         per_slot = max(2, RELATION_TRIES // max(1, len(slots)))
         for k in order:
             side, along = slots[int(k)]

@@ -326,6 +326,8 @@ def _panel(rng, lighting, room, placed: list[tuple[float, float, float, float]])
             best, best_gap = (cx, cy), gap
         if gap > 0.3:
             break
+    if best is None:  # every candidate's gap compares greater than -inf unless the room's size is NaN
+        raise ValueError(f"no ceiling panel position in a {width} x {depth} m room")
     placed.append((best[0], best[1], sx, sy))
     return {
         "kind": "panel",
@@ -344,6 +346,8 @@ def _free_point(rng, room, boxes: np.ndarray, z_range: tuple[float, float]) -> l
         point = np.array([rng.uniform(mx, width - mx), rng.uniform(my, depth - my), rng.uniform(*z_range)])
         if _clear_of_objects(point, boxes, OBJECT_MARGIN_M):
             break
+    if point is None:  # the loop above always runs, so a candidate was drawn
+        raise RuntimeError("no candidate point was drawn")
     return [float(v) for v in point]
 
 

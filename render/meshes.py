@@ -18,7 +18,7 @@ from __future__ import annotations
 import os
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import trimesh
@@ -130,7 +130,8 @@ class UserModel:
     def mesh(self) -> trimesh.Trimesh:
         """All parts as one mesh (no merging)."""
         meshes = [p.mesh for p in self.parts]
-        return meshes[0].copy() if len(meshes) == 1 else trimesh.util.concatenate(meshes)
+        # trimesh annotates concatenate() as returning Geometry; for a list of Trimesh parts it returns a Trimesh.
+        return meshes[0].copy() if len(meshes) == 1 else cast(trimesh.Trimesh, trimesh.util.concatenate(meshes))
 
 
 def _pieces(loaded: object, name: str) -> list[trimesh.Trimesh]:

@@ -481,7 +481,7 @@ def opaque_lens_constants(scene: Any) -> None:
     params = mi.traverse(scene)
     keys = [key for key in params.keys() if key.endswith((".aperture_radius", ".focus_distance"))]
     for key in keys:
-        params[key] = dr.opaque(mi.Float, float(dr.ravel(params[key])[0]))
+        params[key] = dr.opaque(mi.Float, float(dr.ravel(params[key])[0]))  # type: ignore[index]  # drjit's stub types ravel() as returning object
     if keys:
         params.update()
 

@@ -2,14 +2,15 @@
 
 from __future__ import annotations
 
-from typing import Any, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from django import forms
 from django.contrib import admin, messages
 from django.contrib.auth import get_user_model
-from django.core.exceptions import ValidationError
+from django.core.exceptions import ImproperlyConfigured, ValidationError
 from django.db import IntegrityError
 from django.db.models import Field, ForeignKey, IntegerField, ManyToManyField, QuerySet
+from django.db.models.fields.related import RelatedField
 from django.forms.models import BaseInlineFormSet
 from django.http import HttpRequest, HttpResponse, HttpResponseRedirect
 
@@ -34,6 +35,8 @@ class RowIdsField(forms.ModelMultipleChoiceField):
     """
 
     def clean(self, value: Any) -> Any:
+        if self.queryset is None:  # the admin's formfield_for_manytomany always passes one
+            raise ImproperlyConfigured("RowIdsField needs a queryset")
         key_field = self.queryset.model._meta.pk if not self.to_field_name else (
             self.queryset.model._meta.get_field(self.to_field_name))
         if isinstance(key_field, IntegerField) and isinstance(value, (list, tuple)):
@@ -48,7 +51,29 @@ class RowIdsField(forms.ModelMultipleChoiceField):
         return super().clean(value)
 
 
-class TeamScopedAdminMixin:
+if TYPE_CHECKING:
+    from django.contrib.admin.options import BaseModelAdmin
+    from django_stubs_ext import StrOrPromise
+
+    class _AdminBase(BaseModelAdmin[Any]):
+        """What the mixins below reach through ``super()``: the admin options every admin class and inline has,
+        a ``ModelAdmin``'s form, form view and messages, an ``InlineModelAdmin``'s formset. A mixin is combined
+        with one of the two; each method is only called on the kind of class that has it."""
+
+        def get_form(self, request: HttpRequest, obj: Any = None, change: bool = False, **kwargs: Any) -> Any: ...
+
+        def changeform_view(self, request: HttpRequest, object_id: str | None = None, form_url: str = "",
+                            extra_context: dict[str, Any] | None = None) -> HttpResponse: ...
+
+        def message_user(self, request: HttpRequest, message: StrOrPromise, level: int | str = messages.INFO,
+                         extra_tags: str = "", fail_silently: bool = False) -> None: ...
+
+        def get_formset(self, request: HttpRequest, obj: Any = None, **kwargs: Any) -> Any: ...
+else:
+    _AdminBase = object
+
+
+class TeamScopedAdminMixin(_AdminBase):
     """Rows, drop-downs and forms of an admin class or inline, limited to the signed-in user's teams.
 
     - Lists and change pages show only rows of the user's teams (and shared rows), through
@@ -68,7 +93,7 @@ class TeamScopedAdminMixin:
     def get_queryset(self, request: HttpRequest) -> QuerySet:
         return scope_by_team(super().get_queryset(request), user=request.user, role=VIEWER)
 
-    def _scoped_choices(self, db_field: Field, request: HttpRequest, kwargs: dict[str, Any]) -> QuerySet:
+    def _scoped_choices(self, db_field: RelatedField, request: HttpRequest, kwargs: dict[str, Any]) -> QuerySet:
         queryset = kwargs.get("queryset")
         if queryset is None:
             db = kwargs.get("using")
@@ -134,7 +159,10 @@ class MemberField(forms.ModelChoiceField):
 
     def prepare_value(self, value: Any) -> Any:
         if isinstance(value, int) and not isinstance(value, bool):  # a saved membership's user id
-            return (self.queryset.filter(pk=value).values_list(self.to_field_name, flat=True).first() or "")
+            queryset, to_field_name = self.queryset, self.to_field_name
+            if queryset is None or to_field_name is None:  # both are set in __init__
+                raise ImproperlyConfigured("MemberField needs its queryset and to_field_name")
+            return (queryset.filter(pk=value).values_list(to_field_name, flat=True).first() or "")
         return super().prepare_value(value)
 
 
@@ -149,6 +177,8 @@ class MembershipAdminForm(forms.ModelForm):
 
     def clean(self) -> dict[str, Any]:
         data = super().clean()
+        if data is None:  # ModelForm.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
+            data = self.cleaned_data
         if self.request_user is None or (self.instance.pk is not None and not self.has_changed()):
             return data
         team = data.get("team") if "team" in self.fields else None
@@ -177,11 +207,11 @@ class MembershipInlineFormSet(BaseInlineFormSet):
                 raise ValidationError("You cannot remove your own membership; another admin of the team can.")
 
 
-class MembershipFieldsMixin:
+class MembershipFieldsMixin(_AdminBase):
     """The membership form for both the membership admin and the team page's inline: the user by name."""
 
-    form = MembershipAdminForm
-    choice_role = ADMIN  # members are managed by the team's admins
+    form: type[forms.ModelForm[Any]] = MembershipAdminForm  # the admin options' type, shared with the inline
+    choice_role: ClassVar[str] = ADMIN  # members are managed by the team's admins
 
     def formfield_for_dbfield(self, db_field: Field, request: HttpRequest, **kwargs: Any) -> Any:
         if db_field.name == "user":

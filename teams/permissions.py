@@ -18,7 +18,7 @@ from django.http import Http404
 from teams.models import Membership, Team
 
 VIEWER, PLANNER, ADMIN = Membership.Role.VIEWER, Membership.Role.PLANNER, Membership.Role.ADMIN
-ROLE_RANK = {VIEWER: 1, PLANNER: 2, ADMIN: 3}
+ROLE_RANK: dict[str, int] = {VIEWER: 1, PLANNER: 2, ADMIN: 3}  # Role members are str: a role read as text finds its rank
 
 
 def _rank(role: str) -> int:
@@ -100,10 +100,11 @@ _PERSONAL_NAME_ATTEMPTS = 20
 
 
 def _create_personal_team(user: Any) -> Team:
-    name_field = Team._meta.get_field("name")
+    max_length = Team._meta.get_field("name").max_length
     suffix = " (personal)"
     # A user name may be longer than a team name can be: shorten the user name, keep the suffix readable.
-    base = f"{user.get_username()[: name_field.max_length - len(suffix) - 4]}{suffix}"
+    keep = None if max_length is None else max_length - len(suffix) - 4  # None: no limit, the whole user name
+    base = f"{user.get_username()[:keep]}{suffix}"
     for attempt in range(1, _PERSONAL_NAME_ATTEMPTS + 1):
         name = base if attempt == 1 else f"{base} {attempt}"
         if Team.objects.filter(name=name).exists():
@@ -136,6 +137,8 @@ def _team_owner(model: type[Model]) -> tuple[str, bool] | None:
                 if not field.concrete or not (field.many_to_one or field.one_to_one):
                     continue
                 target = field.related_model
+                if target is None:  # a concrete to-one field always names its model
+                    continue
                 if target is Team:
                     # Only a model's own optional team means "shared with everyone" (the procedural asset library).
                     return f"{prefix}{field.name}", bool(field.null and not prefix)
@@ -167,7 +170,8 @@ def scope_by_team(queryset: QuerySet, *, user: Any, role: str = VIEWER) -> Query
     every row for models no team owns; user accounts that are members of those teams. Admin lists and every
     drop-down of the admin go through this, so a choice that is not offered is also refused when posted.
     """
-    owner = _team_owner(queryset.model)
+    model: type[Model] = queryset.model
+    owner = _team_owner(model)
     if owner is None or getattr(user, "is_superuser", False):
         return queryset
     path, shared = owner

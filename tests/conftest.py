@@ -89,7 +89,7 @@ def render_worker_factory(transactional_db, tmp_path):
     from django.conf import settings
 
     from evenframe.celery import ensure_broker_folders
-    from workers.models import WorkerHeartbeat
+    from fleet.models import WorkerHeartbeat
 
     ensure_broker_folders()
     started: list[WorkerProcess] = []

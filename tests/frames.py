@@ -37,7 +37,7 @@ def record_frames(campaign: Any, rendered: Mapping[int, Path], plan: FramePlan, 
     from django.db import transaction
 
     from campaigns import services
-    from workers.tasks import frame_output_dir
+    from campaigns.frame_files import frame_output_dir
 
     frames = []
     for index, layout, view, composition in plan:

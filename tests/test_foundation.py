@@ -146,7 +146,7 @@ def test_health_reports_no_worker_as_failing(client, django_user_model):
 @pytest.mark.worker
 def test_task_runs_in_a_separate_worker_process(render_worker_factory, client, django_user_model):
     """A task sent through the configured broker is executed by another process, which the health page sees."""
-    from workers.tasks import ping
+    from fleet.tasks import ping
 
     worker = render_worker_factory(concurrency=1)
     token = uuid.uuid4().hex
@@ -160,7 +160,7 @@ def test_task_runs_in_a_separate_worker_process(render_worker_factory, client, d
     workers_check = next(c for c in body["checks"] if c["name"] == "workers")
     assert worker.name in workers_check["detail"]
     worker.stop()
-    from workers.models import WorkerHeartbeat
+    from fleet.models import WorkerHeartbeat
 
     assert WorkerHeartbeat.objects.get(hostname=worker.name).stopped_at is not None
 

@@ -79,7 +79,7 @@ def plaster(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -
     finish_kind = params["finish"]
     clouds = periodic_noise(rng, size_px, tile_size_m, largest_m=0.6, smallest_m=0.02, beta=2.2)
     stipple = periodic_noise(rng, size_px, tile_size_m, largest_m=0.005, smallest_m=max(0.001, pixel_m), beta=1.0)
-    roughness = np.full((size_px, size_px), float(params["roughness"]), np.float32)
+    roughness: np.ndarray = np.full((size_px, size_px), float(params["roughness"]), np.float32)
     tone = variation * clouds
     if finish_kind == "smooth":
         height = 0.3 * relief_m * stipple
@@ -151,7 +151,7 @@ def wallpaper(params: Mapping[str, Any], rng: np.random.Generator, size_px: int)
     half_drop = pattern != "stripes"
     columns = whole_count(tile_size_m, float(params["repeat_m"]), multiple=2 if half_drop else 1)
     cell_w = size_px / columns
-    accent_mask = np.zeros((size_px, size_px), np.float32)
+    accent_mask: np.ndarray = np.zeros((size_px, size_px), np.float32)
     if pattern == "stripes":
         ink_mask = band_coverage(distance_to_lines(x_px, cell_w, 0.5 * cell_w), coverage * cell_w)
         for _ in range(int(rng.integers(0, 3))):

@@ -61,7 +61,7 @@ class Outbox(list):
     """Messages the scheduler would have put on the broker: dicts of frame_id, dispatch_no, task_id, countdown_s."""
 
     def deliver(self, message: dict) -> dict:
-        from workers.tasks import render_frame
+        from campaigns.tasks import render_frame
 
         kwargs = {k: message[k] for k in ("frame_id", "dispatch_no", "campaign_uid")}
         result = render_frame.apply(kwargs=kwargs, task_id=message["task_id"])
@@ -76,7 +76,7 @@ class Outbox(list):
 @pytest.fixture
 def outbox(monkeypatch):
     """Capture task messages instead of sending them, so a test delivers them (once, twice, or never)."""
-    from campaigns import scheduler
+    from campaigns import messaging
 
     box = Outbox()
 
@@ -84,14 +84,14 @@ def outbox(monkeypatch):
         box.append({"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid,
                     "task_id": task_id, "countdown_s": countdown_s})
 
-    monkeypatch.setattr(scheduler, "send_frame_task", capture)
+    monkeypatch.setattr(messaging, "send_frame_task", capture)
     return box
 
 
 @pytest.fixture
 def live_worker_rows(transactional_db):
     """Pretend heartbeats (no process): the scheduler sizes in-flight work from these."""
-    from workers.models import WorkerHeartbeat
+    from fleet.models import WorkerHeartbeat
 
     def make(*concurrencies: int):
         return [WorkerHeartbeat.objects.create(hostname=f"fake-{i}@test", machine="test", pid=1000 + i,
@@ -122,7 +122,7 @@ def fake_render(monkeypatch):
 
     ``fake_render.fail = n`` makes the next n calls raise; ``fake_render.calls`` counts calls.
     """
-    import workers.tasks
+    import campaigns.tasks
 
     class Fake:
         def __init__(self) -> None:
@@ -138,5 +138,5 @@ def fake_render(monkeypatch):
             return FakeResult(composition)
 
     fake = Fake()
-    monkeypatch.setattr(workers.tasks, "render_frame_files", fake)
+    monkeypatch.setattr(campaigns.tasks, "render_frame_files", fake)
     return fake

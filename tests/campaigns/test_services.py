@@ -430,7 +430,7 @@ def test_explicit_asset_ids_of_another_team_are_refused(user, uploads):
 
 def test_task_places_uploads_and_the_library_counts_their_frames(make_campaign, outbox, uploads, monkeypatch):
     """The task hands the campaign's uploads to the spec; labels carry ``user/<pk>`` (render faked from the spec)."""
-    import workers.tasks
+    import campaigns.tasks
     from render.spec import make_spec
     from tests.campaigns.conftest import FakeResult
 
@@ -446,7 +446,7 @@ def test_task_places_uploads_and_the_library_counts_their_frames(make_campaign, 
                                                          strict=True)]}
         return result
 
-    monkeypatch.setattr(workers.tasks, "render_frame_files", fake)
+    monkeypatch.setattr(campaigns.tasks, "render_frame_files", fake)
     campaign = make_campaign(quotas={"chair": 30, "ottoman": 30})
     campaign.assets.add(uploads["ours"])  # uploads are chosen per campaign
     services.start_campaign(campaign_id=campaign.pk)

@@ -79,10 +79,10 @@ def make_campaign(people, object_classes):
 @pytest.fixture
 def outbox(monkeypatch):
     """Capture the scheduler's task messages instead of sending them."""
-    from campaigns import scheduler
+    from campaigns import messaging
 
     box: list[dict] = []
-    monkeypatch.setattr(scheduler, "send_frame_task", lambda **kw: box.append(kw))
+    monkeypatch.setattr(messaging, "send_frame_task", lambda **kw: box.append(kw))
     return box
 
 

@@ -58,7 +58,7 @@ def _record(campaign, media_root, specs, *, first_index: int = 0, write_files: b
     from django.db import transaction
 
     from campaigns import services
-    from workers.tasks import frame_output_dir
+    from campaigns.frame_files import frame_output_dir
 
     for offset, spec in enumerate(specs):
         index = first_index + offset

@@ -205,8 +205,13 @@ def test_a_service_error_on_a_quota_threshold_lands_on_its_column(client, people
 
     form = CampaignForm(_plan_data(people["team"]), user=people["pia"])
     assert form.is_valid(), form.errors
-    form.add_service_error(CampaignError("quota 'chair': min contrast must be between 0 and 1000, got 2000"))
-    form.add_service_error(CampaignError("quota 'wall_clock': min box size must be between 0 and 64 px, got 99"))
+    form.add_service_error(CampaignError("min contrast must be between 0 and 1000, got 2000", field="quota",
+                                         class_name="chair", column="min_contrast"))
+    form.add_service_error(CampaignError("min box size must be between 0 and 64 px, got 99", field="quota",
+                                         class_name="wall_clock", column="min_box_px"))
+    # An error with no field is the whole form's, whatever its text looks like (no message parsing).
+    form.add_service_error(CampaignError("quota 'chair': min box size must be between 0 and 64 px, got 99"))
+    assert "q_chair_box" not in form.errors and form.non_field_errors()
     assert form.errors["q_chair_contrast"] == ["min contrast must be between 0 and 1000, got 2000"]
     assert "q_wall_clock_box" in form.errors and "q_chair_target" not in form.errors
 

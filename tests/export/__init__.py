@@ -1,1 +1,1 @@
-"""Dataset export tests (campaigns/export.py and its commands and view)."""
+"""Dataset export tests (the datasets app: export, its commands and view)."""

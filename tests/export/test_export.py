@@ -15,18 +15,22 @@ from pycocotools import mask as mask_utils
 from pycocotools.coco import COCO
 from pycocotools.cocoeval import COCOeval
 
-from campaigns import export
+from datasets.manifest import MANIFEST_NAME
+from datasets.options import ExportOptions
+from datasets.splits import SPLITS
+from datasets.verify import verify_dataset
+from datasets.writer import ExportSummary, export_dataset
 from tests.export.conftest import FRAME_PLAN
 
 pytestmark = [pytest.mark.django_db, pytest.mark.filterwarnings("ignore::DeprecationWarning:pycocotools.*")]
 
 
-def _export(campaign, out: Path, **options) -> export.ExportSummary:
-    return export.export_dataset(campaign_id=campaign.pk, out_dir=out, options=export.ExportOptions(**options))
+def _export(campaign, out: Path, **options) -> ExportSummary:
+    return export_dataset(campaign_id=campaign.pk, out_dir=out, options=ExportOptions(**options))
 
 
 def _coco_files(out: Path) -> list[Path]:
-    return [out / "annotations" / f"{split}.json" for split in export.SPLITS
+    return [out / "annotations" / f"{split}.json" for split in SPLITS
             if (out / "annotations" / f"{split}.json").exists()]
 
 
@@ -140,9 +144,9 @@ def test_manifest_verifies_and_names_every_altered_missing_or_added_file(real_ca
     _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
     call_command("verify_dataset", str(out))
     assert "OK" in capsys.readouterr().out
-    manifest = [json.loads(line) for line in (out / export.MANIFEST_NAME).read_text().splitlines()[1:]]
+    manifest = [json.loads(line) for line in (out / MANIFEST_NAME).read_text().splitlines()[1:]]
     listed = {e["path"] for e in manifest}
-    on_disk = {str(p.relative_to(out)) for p in out.rglob("*") if p.is_file()} - {export.MANIFEST_NAME}
+    on_disk = {str(p.relative_to(out)) for p in out.rglob("*") if p.is_file()} - {MANIFEST_NAME}
     assert listed == on_disk  # every file, and only those
     for entry in manifest[:5]:
         assert (out / entry["path"]).stat().st_size == entry["size"] and len(entry["sha256"]) == 64
@@ -172,7 +176,7 @@ def test_yolo_labels_match_the_coco_boxes(real_campaign, tmp_path):
     categories = json.loads((out / "annotations" / "train.json").read_text())["categories"]
     assert data["names"] == {c["id"] - 1: c["name"] for c in categories} and data["nc"] == len(categories)
     assert (out / "classes.txt").read_text().split() == [c["name"] for c in categories]
-    for split in export.SPLITS:
+    for split in SPLITS:
         listed = (out / data[split]).read_text().split()
         coco = json.loads((out / "annotations" / f"{split}.json").read_text())
         assert sorted(listed) == sorted(f"./images/{i['file_name']}" for i in coco["images"])
@@ -244,14 +248,14 @@ def test_reexport_writes_only_what_is_new(real_campaign, rendered_frames, media_
     per_frame_files = 3  # image, mask, YOLO label
     assert first.files_reused == 0 and first.files_written == first.files
     inode = (out / "images" / "000000.png").stat().st_ino
-    before = {e["path"]: e for e in map(json.loads, (out / export.MANIFEST_NAME).read_text().splitlines()[1:])}
+    before = {e["path"]: e for e in map(json.loads, (out / MANIFEST_NAME).read_text().splitlines()[1:])}
     splits_before = json.loads((out / "splits.json").read_text())["assignment"]
 
     again = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
     assert again.files_reused == per_frame_files * len(FRAME_PLAN)
     assert again.files_written == again.files - again.files_reused  # only the aggregate files
     assert (out / "images" / "000000.png").stat().st_ino == inode  # linked, not rewritten
-    after = {e["path"]: e for e in map(json.loads, (out / export.MANIFEST_NAME).read_text().splitlines()[1:])}
+    after = {e["path"]: e for e in map(json.loads, (out / MANIFEST_NAME).read_text().splitlines()[1:])}
     assert {p: e["sha256"] for p, e in after.items()} == {p: e["sha256"] for p, e in before.items()}
 
     # The campaign grows by one layout of two frames (re-rendering frames 6 and 7 under new indices 8 and 9
@@ -267,7 +271,7 @@ def test_reexport_writes_only_what_is_new(real_campaign, rendered_frames, media_
     old_split = {layout: s for s, layouts in splits_before.items() for layout in layouts}
     new_split = {layout: s for s, layouts in splits_after.items() for layout in layouts}
     assert {layout: new_split[layout] for layout in old_split} == old_split  # old layouts keep their split
-    assert export.verify_dataset(directory=out).ok
+    assert verify_dataset(directory=out).ok
 
     # A changed source frame is copied again.
     os.utime(media_root / f"campaigns/{real_campaign.pk}/frames/0/rgb.png", ns=(1, 1))
@@ -279,8 +283,8 @@ def test_reexport_of_an_unchanged_campaign_gives_identical_files(real_campaign, 
     one, two = tmp_path / "one", tmp_path / "two"
     _export(real_campaign, one, formats=frozenset({"coco", "yolo"}))
     _export(real_campaign, two, formats=frozenset({"coco", "yolo"}))
-    lines_one = (one / export.MANIFEST_NAME).read_text().splitlines()[1:]
-    lines_two = (two / export.MANIFEST_NAME).read_text().splitlines()[1:]
+    lines_one = (one / MANIFEST_NAME).read_text().splitlines()[1:]
+    lines_two = (two / MANIFEST_NAME).read_text().splitlines()[1:]
     strip = [{k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")} for line in lines_one]
     assert strip == [{k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")}
                      for line in lines_two]  # deterministic: same content, same order, same checksums
@@ -325,12 +329,12 @@ def test_a_failure_midway_leaves_the_previous_export_untouched(real_campaign, me
     tmp_path.mkdir()
     out = tmp_path / "dataset"
     _export(real_campaign, out)
-    manifest_before = (out / export.MANIFEST_NAME).read_bytes()
+    manifest_before = (out / MANIFEST_NAME).read_bytes()
     (media_root / f"campaigns/{real_campaign.pk}/frames/5/instances.png").unlink()
     with pytest.raises(CommandError, match=r"missing frame file .*frames/5/instances.png"):
         call_command("export_dataset", str(real_campaign.pk), "--out", str(out))
-    assert (out / export.MANIFEST_NAME).read_bytes() == manifest_before
-    assert export.verify_dataset(directory=out).ok
+    assert (out / MANIFEST_NAME).read_bytes() == manifest_before
+    assert verify_dataset(directory=out).ok
     assert sorted(p.name for p in tmp_path.iterdir()) == ["dataset"]
     fresh = tmp_path / "fresh"
     with pytest.raises(CommandError):
@@ -346,7 +350,7 @@ def test_command_output_and_empty_campaign(make_campaign, media_root, tmp_path, 
     assert f"exported campaign {campaign.pk}: 0 frames in 0 layouts" in text and "frames/s" in text
     gt = COCO(str(out / "annotations" / "train.json"))
     assert gt.getImgIds() == [] and len(gt.getCatIds()) == 6
-    assert export.verify_dataset(directory=out).ok
+    assert verify_dataset(directory=out).ok
 
 
 def test_instances_recorded_without_rle_get_one_from_the_mask_image(real_campaign, tmp_path):

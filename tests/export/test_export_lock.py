@@ -10,7 +10,8 @@ from pathlib import Path
 
 import pytest
 
-from campaigns import export
+from datasets import writer
+from datasets.errors import ExportError
 
 
 def _hold(path: Path):
@@ -24,7 +25,7 @@ def test_a_starter_that_locks_a_just_released_file_does_not_run_beside_a_third(t
     # The race: B opens the lock file, A finishes and releases it, B locks it, C starts. Before the fix A removed
     # the file on release, so B held a removed file while C created and locked a new one: two writers.
     out = tmp_path / "dataset"
-    a = export._export_lock(out)
+    a = writer._export_lock(out)
     a.__enter__()
     real_flock = fcntl.flock
     calls = {"n": 0}
@@ -41,17 +42,17 @@ def test_a_starter_that_locks_a_just_released_file_does_not_run_beside_a_third(t
                 a.__exit__(None, None, None)
             return real_flock(handle, flags)
 
-    monkeypatch.setattr(export, "fcntl", SlowStarter)
-    b = export._export_lock(out)
+    monkeypatch.setattr(writer, "fcntl", SlowStarter)
+    b = writer._export_lock(out)
     b.__enter__()  # B gets the lock, on the file the path names now
-    monkeypatch.setattr(export, "fcntl", fcntl)
+    monkeypatch.setattr(writer, "fcntl", fcntl)
     assert calls["n"] == 2  # B noticed it had locked a removed file and locked the current one instead
-    with pytest.raises(export.ExportError, match="another export into it is running"):
-        with export._export_lock(out):  # C
+    with pytest.raises(ExportError, match="another export into it is running"):
+        with writer._export_lock(out):  # C
             pass
     b.__exit__(None, None, None)
     assert list(tmp_path.iterdir()) == []  # no lock file left behind
-    with export._export_lock(out):
+    with writer._export_lock(out):
         pass
 
 
@@ -64,8 +65,8 @@ def test_a_refused_export_leaves_the_running_exports_lock_alone(make_campaign, t
     holder = _hold(tmp_path / ".dataset.evenframe-lock")
     try:
         for _ in range(2):
-            with pytest.raises(export.ExportError, match="another export into it is running"):
-                export.export_dataset(campaign_id=campaign.pk, out_dir=out)
+            with pytest.raises(ExportError, match="another export into it is running"):
+                writer.export_dataset(campaign_id=campaign.pk, out_dir=out)
         assert (tmp_path / ".dataset.evenframe-lock").exists()
         assert not out.exists()
     finally:
@@ -77,7 +78,7 @@ def _contend(out: str, log: str, until: float) -> None:
     path = Path(out)
     while time.monotonic() < until:
         try:
-            with export._export_lock(path):
+            with writer._export_lock(path):
                 fd = os.open(log, os.O_WRONLY | os.O_APPEND)
                 try:
                     os.write(fd, f"in {os.getpid()}\n".encode())
@@ -85,7 +86,7 @@ def _contend(out: str, log: str, until: float) -> None:
                     os.write(fd, f"out {os.getpid()}\n".encode())
                 finally:
                     os.close(fd)
-        except export.ExportError:
+        except ExportError:
             pass
 
 

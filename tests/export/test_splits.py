@@ -7,7 +7,9 @@ import json
 import numpy as np
 import pytest
 
-from campaigns import export
+from datasets.options import parse_split_ratios
+from datasets.splits import SPLITS, assign_splits, split_shares
+from datasets.writer import export_dataset
 
 TOLERANCE_PP = 2.0
 # Skewed class mix with rare classes (invented, like a furniture catalogue): chair common, clock rare.
@@ -33,9 +35,9 @@ def max_deviation_pp(shares: np.ndarray, ratios, columns=slice(None, -1)) -> flo
 def test_per_class_shares_within_two_points(ratios, seed):
     counts = synthetic_layouts(600, seed)
     layouts = list(range(len(counts)))
-    assignment = export.assign_splits(group_ids=layouts, counts=counts, ratios=ratios, seed=seed)
+    assignment = assign_splits(group_ids=layouts, counts=counts, ratios=ratios, seed=seed)
     assert set(assignment) == set(layouts)
-    shares = export.split_shares(group_ids=layouts, counts=counts, assignment=assignment)
+    shares = split_shares(group_ids=layouts, counts=counts, assignment=assignment)
     assert max_deviation_pp(shares, ratios) <= TOLERANCE_PP
     assert max_deviation_pp(shares, ratios, columns=slice(-1, None)) <= TOLERANCE_PP  # frames too
     if ratios[2] == 0:
@@ -45,30 +47,30 @@ def test_per_class_shares_within_two_points(ratios, seed):
 def test_assignment_is_deterministic_from_the_seed_and_keeps_pinned_layouts():
     counts = synthetic_layouts(400, 9)
     layouts = list(range(1000, 1400))
-    a = export.assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=5)
-    assert a == export.assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=5)
-    assert a != export.assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=6)
+    a = assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=5)
+    assert a == assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=5)
+    assert a != assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=6)
     # A campaign that grew: the first 300 layouts keep their split; the new ones even out the shares.
-    first = export.assign_splits(group_ids=layouts[:300], counts=counts[:300], ratios=(0.8, 0.1, 0.1), seed=5)
-    grown = export.assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=5, pinned=first)
+    first = assign_splits(group_ids=layouts[:300], counts=counts[:300], ratios=(0.8, 0.1, 0.1), seed=5)
+    grown = assign_splits(group_ids=layouts, counts=counts, ratios=(0.8, 0.1, 0.1), seed=5, pinned=first)
     assert {layout: grown[layout] for layout in first} == first
-    shares = export.split_shares(group_ids=layouts, counts=counts, assignment=grown)
+    shares = split_shares(group_ids=layouts, counts=counts, assignment=grown)
     assert max_deviation_pp(shares, (0.8, 0.1, 0.1)) <= TOLERANCE_PP
 
 
 def test_too_few_layouts_is_reported_not_hidden():
     counts = synthetic_layouts(3, 1)
-    assignment = export.assign_splits(group_ids=[0, 1, 2], counts=counts, ratios=(0.8, 0.1, 0.1), seed=1)
+    assignment = assign_splits(group_ids=[0, 1, 2], counts=counts, ratios=(0.8, 0.1, 0.1), seed=1)
     assert len(assignment) == 3  # every layout gets a split, the shares simply cannot be close with three
     assert sorted(assignment.values()) == ["test", "train", "val"]  # but no requested split stays empty
-    two = export.assign_splits(group_ids=[0, 1], counts=counts[:2], ratios=(0.8, 0.1, 0.1), seed=1)
+    two = assign_splits(group_ids=[0, 1], counts=counts[:2], ratios=(0.8, 0.1, 0.1), seed=1)
     assert len(two) == 2 and "train" in two.values()
 
 
 @pytest.mark.parametrize("text, expected", [("0.8,0.1,0.1", (0.8, 0.1, 0.1)), (" 1, 0, 0 ", (1.0, 0.0, 0.0)),
                                             ("0.7,0.2,0.1", (0.7, 0.2, 0.1))])
 def test_parse_split_ratios(text, expected):
-    assert export.parse_split_ratios(text) == pytest.approx(expected)
+    assert parse_split_ratios(text) == pytest.approx(expected)
 
 
 @pytest.mark.django_db
@@ -76,17 +78,17 @@ def test_synthetic_campaign_export_meets_the_tolerance_and_never_splits_a_layout
         owner, object_classes, rendered_frames, media_root, tmp_path):
     """1,200 layouts × 2 views through the real exporter (rows bulk-inserted, files hard-linked: bench_export's
     generator)."""
-    from campaigns.management.commands.bench_export import make_synthetic_campaign
+    from datasets.management.commands.bench_export import make_synthetic_campaign
 
     campaign = make_synthetic_campaign(owner=owner, template_dir=rendered_frames[0], media_root=media_root,
                                        frames=2400, views_per_layout=2, seed=4, name="synthetic splits")
     out = tmp_path / "dataset"
-    summary = export.export_dataset(campaign_id=campaign.pk, out_dir=out)
+    summary = export_dataset(campaign_id=campaign.pk, out_dir=out)
     assert summary.frames == 2400 and summary.layouts == 1200
     assert summary.max_share_deviation_pp is not None and summary.max_share_deviation_pp <= TOLERANCE_PP
     stats = json.loads((out / "class_statistics.json").read_text())
     for row in stats["classes"]:
-        for split, ratio in zip(export.SPLITS, (0.8, 0.1, 0.1), strict=True):
+        for split, ratio in zip(SPLITS, (0.8, 0.1, 0.1), strict=True):
             assert abs(row["share"][split] - ratio) * 100 <= TOLERANCE_PP, (row["name"], split)
     split_of_layout: dict[int, set[str]] = {}
     with open(out / "scenes.jsonl", encoding="utf-8") as handle:

@@ -9,7 +9,10 @@ import pytest
 from django.urls import reverse
 from pycocotools.coco import COCO
 
-from campaigns import export
+from datasets.manifest import MANIFEST_NAME, iter_manifest_entries
+from datasets.options import ExportOptions
+from datasets.verify import verify_dataset
+from datasets.writer import export_dataset
 
 pytestmark = [pytest.mark.django_db, pytest.mark.filterwarnings("ignore::DeprecationWarning:pycocotools.*")]
 
@@ -34,19 +37,19 @@ def test_owner_downloads_a_streamed_zip_that_verifies(client, real_campaign, tmp
     assert archive.testzip() is None
     root = f"evenframe-campaign-{real_campaign.pk}"
     names = archive.namelist()
-    assert names[-1] == f"{root}/{export.MANIFEST_NAME}"  # the manifest comes last
+    assert names[-1] == f"{root}/{MANIFEST_NAME}"  # the manifest comes last
     assert f"{root}/labels/000000.txt" in names and f"{root}/data.yaml" in names
     archive.extractall(tmp_path)
-    report = export.verify_dataset(directory=tmp_path / root)
+    report = verify_dataset(directory=tmp_path / root)
     assert report.ok, report.problems
     gt = COCO(str(tmp_path / root / "annotations" / "train.json"))  # pycocotools loads it
     assert gt.getAnnIds()
     # The same content as a directory export (checksums of every file but the manifest).
     directory = tmp_path / "directory-export"
-    export.export_dataset(campaign_id=real_campaign.pk, out_dir=directory, options=export.ExportOptions(
+    export_dataset(campaign_id=real_campaign.pk, out_dir=directory, options=ExportOptions(
         ratios=(0.5, 0.25, 0.25), formats=frozenset({"coco", "yolo"})))
-    zipped = {e["path"]: e["sha256"] for e in export.iter_manifest_entries(tmp_path / root / export.MANIFEST_NAME)}
-    exported = {e["path"]: e["sha256"] for e in export.iter_manifest_entries(directory / export.MANIFEST_NAME)}
+    zipped = {e["path"]: e["sha256"] for e in iter_manifest_entries(tmp_path / root / MANIFEST_NAME)}
+    exported = {e["path"]: e["sha256"] for e in iter_manifest_entries(directory / MANIFEST_NAME)}
     assert zipped == exported
     capsys.readouterr()
 

@@ -122,7 +122,7 @@ def private_redis(tmp_path, settings, monkeypatch):
         pytest.skip("Redis restart test: the suite runs on the embedded file-system broker")
     from celery import Celery
 
-    from campaigns import scheduler
+    from campaigns import messaging
 
     server = PrivateRedis(free_port(), tmp_path / "redis.log")
     server.start()
@@ -133,11 +133,11 @@ def private_redis(tmp_path, settings, monkeypatch):
                     task_serializer="json", accept_content=["json"], broker_connection_retry_on_startup=True)
 
     def send(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str, countdown_s: float = 0.0) -> None:
-        app.send_task(scheduler.TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no,
+        app.send_task(messaging.TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no,
                                                    "campaign_uid": campaign_uid},
                       task_id=task_id, countdown=countdown_s if countdown_s > 0 else None)
 
-    monkeypatch.setattr(scheduler, "send_frame_task", send)
+    monkeypatch.setattr(messaging, "send_frame_task", send)
     yield server
     server.stop()
     from evenframe.celery import app as project_app

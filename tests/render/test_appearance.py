@@ -247,3 +247,55 @@ def test_pooled_bsdfs_take_the_colour_and_relief_of_each_new_material():
     assert not np.allclose(appearance.texture_normal_rgb(first["texture"]), appearance.texture_normal_rgb(second["texture"]))
     # A family without relief gets no normal map.
     assert appearance.texture_normal_rgb(appearance.texture_record("marble", 1, 1.0)) is None
+
+
+def test_a_one_metre_checker_on_the_floor_has_its_corners_where_project_points_puts_them(monkeypatch):
+    """A checker of 1 m squares (a 2 m texture tile of 2 × 2 squares, box-projected in metres) on a floor seen by
+    a 28 mm camera: at every grid corner that OpenCV ``cv2.projectPoints`` places inside the image (with our
+    camera's R, t, K), the albedo image shows the checker's corner — points inside its four squares (projected
+    the same way) alternate dark and light. A wrong texture scale, a shifted projection or a mirrored axis moves the squares'
+    corners off the predicted pixels. Reference: OpenCV projectPoints (pinhole model)."""
+    import cv2
+    import mitsuba as mi
+
+    from render.camera import camera_matrices
+    from render.scene import aov_integrator, bsdf_dict, mesh_from_arrays, sensor_dicts
+
+    backend.init_renderer(variant="llvm_ad_rgb")
+    squares = (np.indices((256, 256)) // 128).sum(axis=0) % 2  # 2 × 2 squares over the 2 m tile
+    image = np.where(squares[..., None] == 1, 0.8, 0.05).astype(np.float32).repeat(3, axis=2)
+    monkeypatch.setattr(appearance, "texture_linear_rgb", lambda texture: image)
+    monkeypatch.setattr(appearance, "texture_normal_rgb", lambda texture: None)
+    corners = np.array([[-6.0, -6.0, 0.0], [6.0, -6.0, 0.0], [6.0, 6.0, 0.0], [-6.0, 6.0, 0.0]])
+    vertices, faces, uv = appearance.box_uv(corners, np.array([[0, 1, 2], [0, 2, 3]]), 2.0)
+    material = {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0,
+                "texture": {"family": "wood", "params": {}, "seed": 0}}
+    width_px, height_px = 160, 120
+    camera = {"position_m": [0.3, -3.2, 1.6], "target_m": [0.1, 0.6, 0.0], "focal_length_mm": 28.0,
+              "sensor_width_mm": 36.0}
+    rotation, translation, k_matrix = camera_matrices(camera, width_px, height_px)
+    _, label_sensor = sensor_dicts(k_matrix, rotation, translation, width_px, height_px, spp=1)
+    scene = mi.load_dict({"type": "scene", "sensor": label_sensor,
+                          "floor": mesh_from_arrays("floor", vertices, faces, mi.load_dict(bsdf_dict(material)), uv=uv)})
+    albedo = np.asarray(mi.render(scene, integrator=aov_integrator()))[..., 2:5].mean(axis=2)
+    rvec, _ = cv2.Rodrigues(rotation)
+
+    def project(points: np.ndarray) -> np.ndarray:
+        return cv2.projectPoints(np.asarray(points, np.float64), rvec, translation, k_matrix, None)[0].reshape(-1, 2)
+
+    checked = 0
+    for x in range(-4, 5):
+        for y in range(-3, 6):
+            (u, v), *neighbours = project([[x, y, 0], [x + 1, y, 0], [x, y + 1, 0], [x - 1, y, 0], [x, y - 1, 0]])
+            # Corners whose squares are at least 12 px across (the far rows shrink to a few pixels).
+            if not (6 <= u < width_px - 6 and 6 <= v < height_px - 6) or min(
+                    np.hypot(*(np.asarray(n) - (u, v))) for n in neighbours) < 12:
+                continue
+            # A point 40 % of the way to the centre of each of the corner's four squares lies inside that square,
+            # whatever the perspective: diagonal squares share a colour, neighbouring ones do not.
+            centres = project([[x + dx, y + dy, 0] for dx, dy in ((0.5, 0.5), (-0.5, -0.5), (0.5, -0.5), (-0.5, 0.5))])
+            inside = (u, v) + 0.4 * (centres - (u, v))
+            light = [bool(albedo[int(py), int(px)] > 0.4) for px, py in inside]
+            assert light[0] == light[1] and light[2] == light[3] and light[0] != light[2], (x, y, u, v)
+            checked += 1
+    assert checked >= 6

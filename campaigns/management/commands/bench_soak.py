@@ -121,7 +121,7 @@ class Command(BaseCommand):
         return Worker(proc, name, log_path)
 
     def _wait_live(self, workers: list[Worker], timeout_s: float = 120) -> None:
-        from workers.models import WorkerHeartbeat
+        from fleet.models import WorkerHeartbeat
 
         deadline = time.monotonic() + timeout_s
         names = {w.name for w in workers}

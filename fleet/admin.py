@@ -1,6 +1,6 @@
 from django.contrib import admin
 
-from workers.models import WorkerHeartbeat
+from fleet.models import WorkerHeartbeat
 
 
 @admin.register(WorkerHeartbeat)

@@ -6,7 +6,7 @@ import time
 
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
-from campaigns import export
+from datasets.verify import verify_dataset
 
 
 class Command(BaseCommand):
@@ -17,7 +17,7 @@ class Command(BaseCommand):
 
     def handle(self, *args, **options) -> None:
         start = time.perf_counter()
-        report = export.verify_dataset(directory=options["directory"])
+        report = verify_dataset(directory=options["directory"])
         seconds = time.perf_counter() - start
         for problem in report.problems:
             self.stderr.write(problem)

@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
-from campaigns import export
+from datasets.errors import ExportError
+from datasets.options import ExportOptions, parse_formats, parse_split_ratios
+from datasets.writer import export_dataset
 
 
 class Command(BaseCommand):
@@ -23,9 +25,9 @@ class Command(BaseCommand):
 
     def handle(self, *args, **options) -> None:
         try:
-            export_options = export.ExportOptions(
-                accepted_only=options["accepted_only"], ratios=export.parse_split_ratios(options["splits"]),
-                formats=export.parse_formats(options["format"]),
+            export_options = ExportOptions(
+                accepted_only=options["accepted_only"], ratios=parse_split_ratios(options["splits"]),
+                formats=parse_formats(options["format"]),
             )
             verbosity = options["verbosity"]
 
@@ -33,10 +35,10 @@ class Command(BaseCommand):
                 if verbosity >= 2:
                     self.stderr.write(f"  {done} / {total} frames")
 
-            summary = export.export_dataset(campaign_id=options["campaign"], out_dir=options["out"],
-                                            options=export_options, media_root=options.get("media_root"),
-                                            progress=progress)
-        except export.ExportError as exc:
+            summary = export_dataset(campaign_id=options["campaign"], out_dir=options["out"],
+                                     options=export_options, media_root=options.get("media_root"),
+                                     progress=progress)
+        except ExportError as exc:
             raise CommandError(str(exc)) from exc
         for line in summary.lines():
             self.stdout.write(line)

@@ -23,8 +23,8 @@ _state: dict = {}
 
 
 def _beat(hostname: str, concurrency: int) -> None:
+    from fleet.models import WorkerHeartbeat
     from render.backend import choose_backend
-    from workers.models import WorkerHeartbeat
 
     try:
         choice = choose_backend()
@@ -71,18 +71,18 @@ def _beat(hostname: str, concurrency: int) -> None:
 
 
 def _sweep() -> None:
-    from campaigns import scheduler
+    from fleet import hooks
 
     try:
-        counts = scheduler.sweep()
-        if any(counts[k] for k in ("requeued", "dead", "revoked")):
+        counts = hooks.run_sweep()
+        if counts and any(counts.get(k) for k in ("requeued", "dead", "revoked")):
             log.warning("recovery sweep: %s", counts)
     except Exception:  # noqa: BLE001 - the next sweep tries again
         log.warning("recovery sweep failed; retrying at the next one", exc_info=True)
 
 
 def _mark_stopped(hostname: str) -> None:
-    from workers.models import WorkerHeartbeat
+    from fleet.models import WorkerHeartbeat
 
     try:
         close_old_connections()

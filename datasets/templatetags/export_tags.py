@@ -1,4 +1,4 @@
-"""Template helpers for the dataset download (the permission rule itself lives in campaigns.export.can_export)."""
+"""Template helpers for the dataset download (the permission rule itself lives in datasets.permissions.can_export)."""
 
 from __future__ import annotations
 
@@ -6,7 +6,7 @@ from typing import Any
 
 from django import template
 
-from campaigns import export
+from datasets import permissions
 
 register = template.Library()
 
@@ -14,4 +14,4 @@ register = template.Library()
 @register.filter
 def can_export(user: Any, campaign: Any) -> bool:
     """``{% if request.user|can_export:campaign %}``."""
-    return export.can_export(user=user, campaign=campaign)
+    return permissions.can_export(user=user, campaign=campaign)

@@ -5,35 +5,38 @@ from __future__ import annotations
 from django.http import (
     Http404,
     HttpRequest,
-    HttpResponse,
     HttpResponseBadRequest,
     StreamingHttpResponse,
 )
+from django.http.response import HttpResponseBase
 from django.shortcuts import get_object_or_404
 from django.views.decorators.http import require_GET
 
-from campaigns import export
 from campaigns.models import Campaign
+from datasets.errors import ExportError
+from datasets.options import ExportOptions, parse_formats, parse_split_ratios
+from datasets.permissions import can_export
+from datasets.writer import stream_dataset_zip
 
 
 @require_GET
-def download_dataset_zip(request: HttpRequest, campaign_id: int) -> HttpResponse:
+def download_dataset_zip(request: HttpRequest, campaign_id: int) -> HttpResponseBase:
     """``GET …/export.zip?accepted_only=1&splits=0.8,0.1,0.1&format=coco|yolo|both`` → the export, streamed.
 
     Options are checked before the first byte is sent, so bad ones give a 400, not a broken download.
     """
     campaign = get_object_or_404(Campaign.objects.select_related("owner"), pk=campaign_id)
-    if not export.can_export(user=request.user, campaign=campaign):
+    if not can_export(user=request.user, campaign=campaign):
         raise Http404("no such campaign")  # outsiders must not learn that the campaign exists (teams rule)
     try:
-        options = export.ExportOptions(
+        options = ExportOptions(
             accepted_only=request.GET.get("accepted_only", "").lower() in ("1", "true", "yes", "on"),
-            ratios=export.parse_split_ratios(request.GET.get("splits") or "0.8,0.1,0.1"),
-            formats=export.parse_formats(request.GET.get("format") or "coco"),
+            ratios=parse_split_ratios(request.GET.get("splits") or "0.8,0.1,0.1"),
+            formats=parse_formats(request.GET.get("format") or "coco"),
         )
-    except export.ExportError as exc:
+    except ExportError as exc:
         return HttpResponseBadRequest(f"{exc}\n")
-    response = StreamingHttpResponse(export.stream_dataset_zip(campaign=campaign, options=options),
+    response = StreamingHttpResponse(stream_dataset_zip(campaign=campaign, options=options),
                                      content_type="application/zip")
     response["Content-Disposition"] = f'attachment; filename="evenframe-campaign-{campaign.pk}.zip"'
     response["Cache-Control"] = "no-store"

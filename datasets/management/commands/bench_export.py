@@ -29,6 +29,7 @@ from django.db import connection, transaction
 from django.utils import timezone
 
 from campaigns import services
+from campaigns.frame_files import frame_relative_dir
 from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
 
 TEMPLATE_FILES: tuple[str, ...] = ("rgb.png", "instances.png", "labels.json", "scene.json")
@@ -109,7 +110,7 @@ def make_synthetic_campaign(
                 campaign=campaign, index=index, seed=index, layout_index=index // views_per_layout,
                 lighting_index=0, view_index=index % views_per_layout, composition=composition,
                 state=Frame.State.DONE, attempts=1, dispatch_count=1, cpu_s=1.0, wall_s=1.0,
-                compute_cost=Decimal("0.000014"), finished_at=now, output_dir=f"campaigns/{campaign.pk}/frames/{index}",
+                compute_cost=Decimal("0.000014"), finished_at=now, output_dir=frame_relative_dir(campaign_id=campaign.pk, index=index),
             ))
         with transaction.atomic():
             created = Frame.objects.bulk_create(rows)
@@ -133,7 +134,7 @@ def make_synthetic_campaign(
                     ))
             Instance.objects.bulk_create(instances, batch_size=BATCH)
         for index in indices:
-            folder = media_root / f"campaigns/{campaign.pk}/frames/{index}"
+            folder = media_root / frame_relative_dir(campaign_id=campaign.pk, index=index)
             folder.mkdir(parents=True, exist_ok=True)
             for file_name in TEMPLATE_FILES:
                 target = folder / file_name
