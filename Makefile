@@ -34,6 +34,7 @@ test-services: $(STAMP)
 # (mypy with the Django plugin; it reads the settings, so it gets a data folder of its own).
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
+	$(VENV)/bin/ruff format --check .
 	$(VENV)/bin/lint-imports
 	$(PY) scripts/check_private_names.py
 	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy campaigns datasets render teams fleet evenframe

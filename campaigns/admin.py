@@ -80,8 +80,15 @@ class ClassQuotaInline(TeamScopedAdminMixin, admin.TabularInline):
     readonly_fields = ("placed_count", "accepted_count", "rejected_count", "met_at")
 
 
-COUNTER_FIELDS = ("frames_done", "frames_dead", "instances_accepted", "instances_rejected", "cpu_s_spent",
-                  "wall_s_spent", "compute_cost_spent")
+COUNTER_FIELDS = (
+    "frames_done",
+    "frames_dead",
+    "instances_accepted",
+    "instances_rejected",
+    "cpu_s_spent",
+    "wall_s_spent",
+    "compute_cost_spent",
+)
 
 
 class CampaignAdminForm(forms.ModelForm):
@@ -105,7 +112,9 @@ class CampaignAdminForm(forms.ModelForm):
 
     def clean(self) -> dict[str, Any]:
         data = super().clean()
-        if data is None:  # ModelForm.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
+        if (
+            data is None
+        ):  # ModelForm.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
             data = self.cleaned_data
         team = data.get("team")
         if team is None:
@@ -122,8 +131,19 @@ class CampaignAdminForm(forms.ModelForm):
 @admin.register(Campaign)
 class CampaignAdmin(TeamScopedAdmin):
     form = CampaignAdminForm
-    list_display = ("name", "team", "owner", "status", "pause_reason", "weight", "frames_done", "instances_accepted",
-                    "compute_cost_spent", "cost_budget", "created_at")
+    list_display = (
+        "name",
+        "team",
+        "owner",
+        "status",
+        "pause_reason",
+        "weight",
+        "frames_done",
+        "instances_accepted",
+        "compute_cost_spent",
+        "cost_budget",
+        "created_at",
+    )
     list_filter = ("status", ("team", admin.RelatedOnlyFieldListFilter))
     search_fields = ("name",)
     readonly_fields = ("status", "pause_reason", "pause_detail", "started_at", "finished_at", *COUNTER_FIELDS)
@@ -133,16 +153,37 @@ class CampaignAdmin(TeamScopedAdmin):
 
 @admin.register(ClassQuota)
 class ClassQuotaAdmin(TeamScopedAdmin):
-    list_display = ("campaign", "object_class", "target_accepted", "accepted_count", "rejected_count",
-                    "placed_count", "min_visible_fraction", "min_box_px", "min_contrast", "met_at")
+    list_display = (
+        "campaign",
+        "object_class",
+        "target_accepted",
+        "accepted_count",
+        "rejected_count",
+        "placed_count",
+        "min_visible_fraction",
+        "min_box_px",
+        "min_contrast",
+        "met_at",
+    )
     list_filter = ("object_class",)
     readonly_fields = ("placed_count", "accepted_count", "rejected_count", "met_at")
 
 
 @admin.register(Frame)
 class FrameAdmin(RecordAdmin):
-    list_display = ("campaign", "index", "state", "attempts", "worker_host", "cpu_s", "wall_s", "layout_index",
-                    "lighting_index", "view_index", "finished_at")
+    list_display = (
+        "campaign",
+        "index",
+        "state",
+        "attempts",
+        "worker_host",
+        "cpu_s",
+        "wall_s",
+        "layout_index",
+        "lighting_index",
+        "view_index",
+        "finished_at",
+    )
     list_filter = ("state",)
     search_fields = ("task_id", "worker_host")
     readonly_fields = [f.name for f in Frame._meta.fields]

@@ -136,8 +136,9 @@ def unpack_staged_zip(staged: StagedMesh) -> StagedMesh:
     finally:
         staged.path.unlink(missing_ok=True)
     final = staged.final.with_name(token)
-    return StagedMesh(path=folder, final=final, kind="zip-dir", model=model,
-                      final_model=final / model.relative_to(folder))
+    return StagedMesh(
+        path=folder, final=final, kind="zip-dir", model=model, final_model=final / model.relative_to(folder)
+    )
 
 
 def meshes_dir() -> Path:
@@ -164,8 +165,10 @@ def stage_upload(upload: Any) -> StagedMesh:
         break
     kind = sniff_mesh_format(head, size_bytes=size)
     if kind is None:
-        raise UploadError("this is not a mesh file we can read: its content is not OBJ, PLY, STL, GLB or a zip "
-                          "(whatever its name says).")
+        raise UploadError(
+            "this is not a mesh file we can read: its content is not OBJ, PLY, STL, GLB or a zip "
+            "(whatever its name says)."
+        )
     folder = meshes_dir()
     folder.mkdir(parents=True, exist_ok=True)
     token = uuid.uuid4().hex
@@ -222,9 +225,21 @@ def check_mesh_file(*, path: Path, unit: str, up_axis: str = "+z", front: str = 
     """
     try:
         done = subprocess.run(
-            [sys.executable, "-c", _CHECK_SCRIPT, str(path), unit, str(CHECK_MEMORY_BYTES), str(CHECK_CPU_S),
-             up_axis, front],
-            cwd=ROOT, capture_output=True, text=True, timeout=CHECK_TIMEOUT_S,
+            [
+                sys.executable,
+                "-c",
+                _CHECK_SCRIPT,
+                str(path),
+                unit,
+                str(CHECK_MEMORY_BYTES),
+                str(CHECK_CPU_S),
+                up_axis,
+                front,
+            ],
+            cwd=ROOT,
+            capture_output=True,
+            text=True,
+            timeout=CHECK_TIMEOUT_S,
             env={**os.environ, "PYTHONPATH": str(ROOT)},
         )
     except subprocess.TimeoutExpired as exc:
@@ -271,8 +286,16 @@ def preview_path(asset_pk: int) -> Path:
 # --- the preview render (render worker side; imports Mitsuba) -------------------------------------------------------
 
 
-def _asset_parts(*, kind: str, class_name: str, mesh_path: str | None, unit: str, up_axis: str = "z",
-                 front: str = "", look: str = "randomize") -> list[Any]:
+def _asset_parts(
+    *,
+    kind: str,
+    class_name: str,
+    mesh_path: str | None,
+    unit: str,
+    up_axis: str = "z",
+    front: str = "",
+    look: str = "randomize",
+) -> list[Any]:
     """The asset's parts (``render.assets.Part``) in its local frame: front +y, z up."""
     import numpy as np
 
@@ -281,9 +304,16 @@ def _asset_parts(*, kind: str, class_name: str, mesh_path: str | None, unit: str
     if kind == "mesh":
         if mesh_path is None:
             raise ValueError(f"mesh asset {class_name!r} has no mesh file")
-        spec = assets.user_asset_spec(mesh_path, class_name, "floor", np.random.default_rng(7), unit=unit,
-                                      up_axis=up_axis or "z", front=front or None,
-                                      look="keep" if look == "keep" else "randomize")
+        spec = assets.user_asset_spec(
+            mesh_path,
+            class_name,
+            "floor",
+            np.random.default_rng(7),
+            unit=unit,
+            up_axis=up_axis or "z",
+            front=front or None,
+            look="keep" if look == "keep" else "randomize",
+        )
         if look != "keep":
             # A random colour would say nothing about the model; the preview shows its shape in a neutral grey.
             spec["materials"] = {"body": {"kind": "diffuse", "rgb": [0.55, 0.6, 0.62], "roughness": 1.0}}
@@ -297,9 +327,18 @@ def _asset_parts(*, kind: str, class_name: str, mesh_path: str | None, unit: str
 PREVIEW_EYE_DIRECTION = (0.45, 2.6, 0.9)
 
 
-def render_asset_preview(*, asset_pk: int, kind: str, class_name: str, mesh_path: str | None = None,
-                         unit: str = "auto", variant: str | None = None, up_axis: str = "z", front: str = "",
-                         look: str = "randomize") -> Path:
+def render_asset_preview(
+    *,
+    asset_pk: int,
+    kind: str,
+    class_name: str,
+    mesh_path: str | None = None,
+    unit: str = "auto",
+    variant: str | None = None,
+    up_axis: str = "z",
+    front: str = "",
+    look: str = "randomize",
+) -> Path:
     """Render a 128×128 studio view of one asset from its front (local +y) under a sky and a key light to
     preview.png, with the model's own materials when its look is kept.
 
@@ -317,8 +356,9 @@ def render_asset_preview(*, asset_pk: int, kind: str, class_name: str, mesh_path
     from render import scene as render_scene
     from render import srgb
 
-    parts = _asset_parts(kind=kind, class_name=class_name, mesh_path=mesh_path, unit=unit, up_axis=up_axis,
-                         front=front, look=look)
+    parts = _asset_parts(
+        kind=kind, class_name=class_name, mesh_path=mesh_path, unit=unit, up_axis=up_axis, front=front, look=look
+    )
     # trimesh annotates concatenate() as returning Geometry; Trimesh parts concatenate to a Trimesh.
     combined = cast(trimesh.Trimesh, trimesh.util.concatenate([p.mesh for p in parts]))
     low, high = combined.bounds
@@ -326,23 +366,30 @@ def render_asset_preview(*, asset_pk: int, kind: str, class_name: str, mesh_path
     radius = float(np.linalg.norm(high - low)) / 2 or 0.5
     eye = centre + radius * np.array(PREVIEW_EYE_DIRECTION)
     scene: dict[str, Any] = {
-        "type": "scene", "integrator": {"type": "path", "max_depth": 4},
-        "sensor": {"type": "perspective", "fov": 40.0,
-                   "to_world": mi.ScalarTransform4f().look_at(origin=eye.tolist(), target=centre.tolist(),
-                                                              up=[0, 0, 1]),
-                   "film": {"type": "hdrfilm", "width": PREVIEW_PX, "height": PREVIEW_PX, "pixel_format": "rgb"},
-                   "sampler": {"type": "independent", "sample_count": PREVIEW_SPP}},
+        "type": "scene",
+        "integrator": {"type": "path", "max_depth": 4},
+        "sensor": {
+            "type": "perspective",
+            "fov": 40.0,
+            "to_world": mi.ScalarTransform4f().look_at(origin=eye.tolist(), target=centre.tolist(), up=[0, 0, 1]),
+            "film": {"type": "hdrfilm", "width": PREVIEW_PX, "height": PREVIEW_PX, "pixel_format": "rgb"},
+            "sampler": {"type": "independent", "sample_count": PREVIEW_SPP},
+        },
         "sky": {"type": "constant", "radiance": {"type": "rgb", "value": [0.55, 0.6, 0.62]}},
         "key": {"type": "directional", "direction": [-0.4, -0.6, -1.0], "irradiance": {"type": "rgb", "value": 2.2}},
-        "floor": {"type": "rectangle", "to_world": mi.ScalarTransform4f().translate([centre[0], centre[1], low[2]])
-                  @ mi.ScalarTransform4f().scale(radius * 6),
-                  "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.55, 0.6, 0.62]}}},
+        "floor": {
+            "type": "rectangle",
+            "to_world": mi.ScalarTransform4f().translate([centre[0], centre[1], low[2]])
+            @ mi.ScalarTransform4f().scale(radius * 6),
+            "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.55, 0.6, 0.62]}},
+        },
     }
     for i, part in enumerate(parts):
         material = part.material
         bsdf = mi.load_dict(render_scene.bsdf_dict(material))
-        scene[f"part{i}"] = render_scene.mesh_from_arrays(f"part{i}", part.mesh.vertices, part.mesh.faces, bsdf,
-                                                          uv=material.get("uv"))
+        scene[f"part{i}"] = render_scene.mesh_from_arrays(
+            f"part{i}", part.mesh.vertices, part.mesh.faces, bsdf, uv=material.get("uv")
+        )
     image = np.asarray(mi.render(mi.load_dict(scene)))
     rgb8 = (np.clip(srgb.encode(np.clip(image, 0, 1)), 0, 1) * 255 + 0.5).astype(np.uint8)
     folder = asset_dir(asset_pk)
@@ -362,9 +409,16 @@ def render_preview_for(asset: Any) -> Path:
     from django.conf import settings
 
     mesh_path = str(Path(settings.MEDIA_ROOT) / asset.mesh_file.name) if asset.mesh_file else None
-    return render_asset_preview(asset_pk=asset.pk, kind=asset.kind, class_name=asset.object_class.name,
-                                mesh_path=mesh_path, unit=asset.mesh_unit, up_axis=asset.up_axis or "z",
-                                front=asset.front or "", look=asset.look or "randomize")
+    return render_asset_preview(
+        asset_pk=asset.pk,
+        kind=asset.kind,
+        class_name=asset.object_class.name,
+        mesh_path=mesh_path,
+        unit=asset.mesh_unit,
+        up_axis=asset.up_axis or "z",
+        front=asset.front or "",
+        look=asset.look or "randomize",
+    )
 
 
 def request_preview(*, asset_pk: int) -> None:
@@ -376,5 +430,6 @@ def request_preview(*, asset_pk: int) -> None:
 
         app.send_task("evenframe.asset_preview", kwargs={"asset_pk": asset_pk})
     except Exception:  # noqa: BLE001 - a missing preview shows as pending; the upload itself succeeded
-        logging.getLogger("evenframe.campaigns").warning("could not request preview of asset %s", asset_pk,
-                                                         exc_info=True)
+        logging.getLogger("evenframe.campaigns").warning(
+            "could not request preview of asset %s", asset_pk, exc_info=True
+        )

@@ -47,16 +47,36 @@ class AnnotationReference:
 
 
 MANUAL_ANNOTATION_REFERENCES: tuple[AnnotationReference, ...] = (
-    AnnotationReference("su2012_box", "Su, Deng & Fei-Fei 2012, Crowdsourcing annotations for visual object detection",
-                        "one bounding box, drawing only", 25.5),
-    AnnotationReference("su2012_box_qc", "Su, Deng & Fei-Fei 2012, Crowdsourcing annotations for visual object "
-                        "detection", "one bounding box with quality control", 42.0),
-    AnnotationReference("papadopoulos2017_extreme", "Papadopoulos et al., ICCV 2017, Extreme clicking for efficient "
-                        "object annotation", "one box by extreme clicking", 7.0),
-    AnnotationReference("papadopoulos2017_conventional", "Papadopoulos et al., ICCV 2017 (citing the conventional "
-                        "way)", "one box, conventional drawing", 34.5),
-    AnnotationReference("lin2014_polygon", "Lin et al. 2014, Microsoft COCO: Common Objects in Context",
-                        "one instance polygon mask", 79.0),
+    AnnotationReference(
+        "su2012_box",
+        "Su, Deng & Fei-Fei 2012, Crowdsourcing annotations for visual object detection",
+        "one bounding box, drawing only",
+        25.5,
+    ),
+    AnnotationReference(
+        "su2012_box_qc",
+        "Su, Deng & Fei-Fei 2012, Crowdsourcing annotations for visual object detection",
+        "one bounding box with quality control",
+        42.0,
+    ),
+    AnnotationReference(
+        "papadopoulos2017_extreme",
+        "Papadopoulos et al., ICCV 2017, Extreme clicking for efficient object annotation",
+        "one box by extreme clicking",
+        7.0,
+    ),
+    AnnotationReference(
+        "papadopoulos2017_conventional",
+        "Papadopoulos et al., ICCV 2017 (citing the conventional way)",
+        "one box, conventional drawing",
+        34.5,
+    ),
+    AnnotationReference(
+        "lin2014_polygon",
+        "Lin et al. 2014, Microsoft COCO: Common Objects in Context",
+        "one instance polygon mask",
+        79.0,
+    ),
 )
 REFERENCES_BY_KEY = {r.key: r for r in MANUAL_ANNOTATION_REFERENCES}
 # What Evenframe's labels replace: a box and a pixel-exact mask per instance, so the fair comparison is
@@ -128,8 +148,14 @@ class Projection:
     seconds_remaining: float | None
 
 
-def project_remaining(*, placements_needed: float, instances_per_frame: float, cost_per_frame: Decimal | None,
-                      wall_s_per_frame: float | None, parallel_slots: int) -> Projection:
+def project_remaining(
+    *,
+    placements_needed: float,
+    instances_per_frame: float,
+    cost_per_frame: Decimal | None,
+    wall_s_per_frame: float | None,
+    parallel_slots: int,
+) -> Projection:
     """Frames, cost and time to fill the remaining quotas from observed rates and the live fleet.
 
     ``placements_needed`` comes from the planner (deficits divided by the
@@ -156,8 +182,9 @@ class ManualComparison:
     references: tuple[AnnotationReference, ...]
 
 
-def manual_labelling_cost(*, instances: int, rate_per_hour: Decimal,
-                          reference_keys: Sequence[str] = DEFAULT_MANUAL_KEYS) -> ManualComparison:
+def manual_labelling_cost(
+    *, instances: int, rate_per_hour: Decimal, reference_keys: Sequence[str] = DEFAULT_MANUAL_KEYS
+) -> ManualComparison:
     """What labelling ``instances`` by hand would cost at ``rate_per_hour``: published seconds per instance summed
     over the chosen annotation steps (default: a box with quality control plus a polygon mask)."""
     refs = tuple(REFERENCES_BY_KEY[k] for k in reference_keys)
@@ -166,8 +193,9 @@ def manual_labelling_cost(*, instances: int, rate_per_hour: Decimal,
     return ManualComparison(seconds, per_instance, money(per_instance * instances), refs)
 
 
-def break_even_frames(*, fixed: Decimal, compute_cost_per_frame: Decimal, accepted_per_frame: float,
-                      manual_cost_per_instance: Decimal) -> int | None:
+def break_even_frames(
+    *, fixed: Decimal, compute_cost_per_frame: Decimal, accepted_per_frame: float, manual_cost_per_instance: Decimal
+) -> int | None:
     """Frames after which rendering (fixed + n × per-frame cost) is cheaper than labelling the same instances.
 
     Solves ``fixed + n·c = n·a·m`` for n; ``None`` when a frame's labels are

@@ -23,8 +23,9 @@ def kind_filter(kind: str) -> Q:
     if "\x00" in kind:  # no stored error holds NUL (PostgreSQL text cannot), and the database refuses it in a query
         return Q(pk__in=[])
 
-    pattern = "^" + "".join("[0-9]+([.][0-9]+)?" if part == "#" else re.escape(part)
-                            for part in re.split(r"(#)", kind) if part)
+    pattern = "^" + "".join(
+        "[0-9]+([.][0-9]+)?" if part == "#" else re.escape(part) for part in re.split(r"(#)", kind) if part
+    )
     if len(kind) < ERROR_KIND_CHARS:  # a key shorter than the cap is the whole first line
         pattern += "(\n|$)"
     return Q(error__regex=pattern)

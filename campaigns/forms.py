@@ -24,24 +24,40 @@ if TYPE_CHECKING:
 
 SECTION_TITLES = {
     "render": ("Render settings", "Image size and path-tracing quality; cost grows linearly with pixels × samples."),
-    "variation": ("Variation budget", "How many distinct layouts, lighting variants per layout and camera views per "
-                  "lighting the campaign walks through; frames sharing a layout share its room and furniture."),
+    "variation": (
+        "Variation budget",
+        "How many distinct layouts, lighting variants per layout and camera views per "
+        "lighting the campaign walks through; frames sharing a layout share its room and furniture.",
+    ),
     "thresholds": ("Acceptance defaults", "Used for every class unless its quota row says otherwise."),
     "room": ("Room", "Sampled per layout."),
     "lighting": ("Lighting", "Sampled per lighting variant."),
     "camera": ("Camera", "Sampled per view."),
-    "appearance": ("Appearance", "Procedural textures on surfaces (how often a surface wears one, how many variants "
-                   "there are, their size) and unlabelled clutter (books, vases, rugs, pictures…) per frame."),
+    "appearance": (
+        "Appearance",
+        "Procedural textures on surfaces (how often a surface wears one, how many variants "
+        "there are, their size) and unlabelled clutter (books, vases, rugs, pictures…) per frame.",
+    ),
 }
 # A quota error's column (the QuotaInput attribute the service names) → the quota row's input.
-QUOTA_COLUMNS = {"target_accepted": "target", "min_visible_fraction": "visible", "min_box_px": "box",
-                 "min_contrast": "contrast"}
+QUOTA_COLUMNS = {
+    "target_accepted": "target",
+    "min_visible_fraction": "visible",
+    "min_box_px": "box",
+    "min_contrast": "contrast",
+}
 SECTION_ORDER = ("render", "variation", "thresholds", "room", "lighting", "camera", "appearance")
 UNIT_TEXT = {"": "", "1/m²": "per m²"}
 # Field names carry their unit (units in names); the label shows the unit beside it instead.
 UNIT_SUFFIXES = ("_per_m2", "_px", "_mm", "_m", "_lm", "_k", "_deg", "_lux", "_s", "_ev", "_electrons")
-LABEL_OVERRIDES = {"spp": "samples per pixel", "cct_k": "colour temperature (CCT)", "iso": "ISO",
-                   "f_number": "f-number", "max_depth": "max path depth", "eye_height_m": "camera (eye) height"}
+LABEL_OVERRIDES = {
+    "spp": "samples per pixel",
+    "cct_k": "colour temperature (CCT)",
+    "iso": "ISO",
+    "f_number": "f-number",
+    "max_depth": "max path depth",
+    "eye_height_m": "camera (eye) height",
+}
 
 
 def field_label(field: Field) -> str:
@@ -79,16 +95,21 @@ def budget_value(budget: dict[str, Any], field: Field) -> Any:
 
 def _switch_field(label: str, initial: bool) -> forms.Field:
     """A budget switch (``Field.kind == "bool"``): a checkbox; unchecked is absent from a POST, so False."""
-    return forms.BooleanField(label=label, required=False, initial=bool(initial),
-                              widget=forms.CheckboxInput(attrs={"class": "switch"}))
+    return forms.BooleanField(
+        label=label, required=False, initial=bool(initial), widget=forms.CheckboxInput(attrs={"class": "switch"})
+    )
 
 
 def _choices_field(field: Field, label: str, initial: list[str]) -> forms.Field:
     """A budget choice list (``Field.kind == "choices"``): one checkbox per choice, at least one ticked."""
-    return forms.MultipleChoiceField(label=label, required=True, initial=list(initial),
-                                     choices=[(c, c.replace("_", " ")) for c in field.choices],
-                                     widget=forms.CheckboxSelectMultiple(attrs={"class": "choices"}),
-                                     error_messages={"required": "Choose at least one."})
+    return forms.MultipleChoiceField(
+        label=label,
+        required=True,
+        initial=list(initial),
+        choices=[(c, c.replace("_", " ")) for c in field.choices],
+        widget=forms.CheckboxSelectMultiple(attrs={"class": "choices"}),
+        error_messages={"required": "Choose at least one."},
+    )
 
 
 def _model_choice_field(form: forms.Form, name: str) -> forms.ModelChoiceField[Any]:
@@ -103,10 +124,20 @@ def _model_choice_field(form: forms.Form, name: str) -> forms.ModelChoiceField[A
 def _number_field(field: Field, label: str, initial: Any) -> forms.Field:
     attrs = {"step": _step(field), "min": f"{field.lower:g}", "max": f"{field.upper:g}", "class": "num"}
     if field.kind in ("int", "int_range"):
-        return forms.IntegerField(label=label, min_value=int(field.lower), max_value=int(field.upper),
-                                  initial=initial, widget=forms.NumberInput(attrs=attrs))
-    return forms.FloatField(label=label, min_value=field.lower, max_value=field.upper, initial=initial,
-                            widget=forms.NumberInput(attrs=attrs))
+        return forms.IntegerField(
+            label=label,
+            min_value=int(field.lower),
+            max_value=int(field.upper),
+            initial=initial,
+            widget=forms.NumberInput(attrs=attrs),
+        )
+    return forms.FloatField(
+        label=label,
+        min_value=field.lower,
+        max_value=field.upper,
+        initial=initial,
+        widget=forms.NumberInput(attrs=attrs),
+    )
 
 
 class _AssetChoiceField(forms.ModelMultipleChoiceField):
@@ -119,28 +150,56 @@ class _AssetChoiceField(forms.ModelMultipleChoiceField):
 class CampaignForm(forms.Form):
     name = forms.CharField(max_length=200)
     team: forms.ModelChoiceField[Team] = forms.ModelChoiceField(
-        queryset=None, empty_label=None, help_text="Campaigns go to a team you plan in.")
+        queryset=None, empty_label=None, help_text="Campaigns go to a team you plan in."
+    )
     description = forms.CharField(required=False, widget=forms.Textarea(attrs={"rows": 2}))
-    seed = forms.IntegerField(min_value=0, max_value=services.MAX_SEED, initial=0, help_text="Root seed: same seed, same frames.")
-    cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2, initial=Decimal("100.00"),
-                                     help_text="Most the campaign may spend, fixed costs included.")
-    price_per_cpu_hour = forms.DecimalField(min_value=0, max_digits=10, decimal_places=4, initial=Decimal("0.05"),
-                                            label="Price per CPU-hour")
-    setup_cost = forms.DecimalField(min_value=0, max_digits=12, decimal_places=2, initial=Decimal("0"),
-                                    help_text="One-off cost of planning and checking the campaign.")
+    seed = forms.IntegerField(
+        min_value=0, max_value=services.MAX_SEED, initial=0, help_text="Root seed: same seed, same frames."
+    )
+    cost_budget = forms.DecimalField(
+        min_value=0,
+        max_digits=14,
+        decimal_places=2,
+        initial=Decimal("100.00"),
+        help_text="Most the campaign may spend, fixed costs included.",
+    )
+    price_per_cpu_hour = forms.DecimalField(
+        min_value=0, max_digits=10, decimal_places=4, initial=Decimal("0.05"), label="Price per CPU-hour"
+    )
+    setup_cost = forms.DecimalField(
+        min_value=0,
+        max_digits=12,
+        decimal_places=2,
+        initial=Decimal("0"),
+        help_text="One-off cost of planning and checking the campaign.",
+    )
     manual_labelling_rate_per_hour = forms.DecimalField(
-        min_value=0, max_digits=10, decimal_places=2, initial=Decimal("12.00"), label="Manual labelling rate per hour",
-        help_text="Hourly rate of annotators, for the comparison with labelling by hand.")
-    weight = forms.IntegerField(min_value=1, max_value=services.MAX_WEIGHT, initial=1, help_text="Share of the fleet relative to "
-                                "other running campaigns.")
-    max_attempts = forms.IntegerField(min_value=1, max_value=services.MAX_ATTEMPTS, initial=3, help_text="Attempts per frame before it "
-                                      "is dead.")
+        min_value=0,
+        max_digits=10,
+        decimal_places=2,
+        initial=Decimal("12.00"),
+        label="Manual labelling rate per hour",
+        help_text="Hourly rate of annotators, for the comparison with labelling by hand.",
+    )
+    weight = forms.IntegerField(
+        min_value=1,
+        max_value=services.MAX_WEIGHT,
+        initial=1,
+        help_text="Share of the fleet relative to other running campaigns.",
+    )
+    max_attempts = forms.IntegerField(
+        min_value=1, max_value=services.MAX_ATTEMPTS, initial=3, help_text="Attempts per frame before it is dead."
+    )
 
     assets = _AssetChoiceField(
-        queryset=None, required=False, widget=forms.CheckboxSelectMultiple, label="Assets",
+        queryset=None,
+        required=False,
+        widget=forms.CheckboxSelectMultiple,
+        label="Assets",
         help_text="What the campaign's objects may be: procedural generators and your team's uploads. Only the "
-                  "assets of classes with a target are used; an upload is used only where it is ticked, and only "
-                  "by a campaign of its own team.")
+        "assets of classes with a target are used; an upload is used only where it is ticked, and only "
+        "by a campaign of its own team.",
+    )
     # Present in every rendering of the form: tells an untouched asset list (a client that never showed it) from
     # one whose boxes were all cleared.
     assets_shown = forms.BooleanField(required=False, widget=forms.HiddenInput, initial=True)
@@ -156,8 +215,17 @@ class CampaignForm(forms.Form):
         budget = campaign.budget if campaign else DEFAULT_BUDGET
         if campaign is not None:
             del self.fields["team"]  # a campaign stays in its team
-            for key in ("name", "description", "seed", "cost_budget", "price_per_cpu_hour", "setup_cost",
-                        "manual_labelling_rate_per_hour", "weight", "max_attempts"):
+            for key in (
+                "name",
+                "description",
+                "seed",
+                "cost_budget",
+                "price_per_cpu_hour",
+                "setup_cost",
+                "manual_labelling_rate_per_hour",
+                "weight",
+                "max_attempts",
+            ):
                 self.fields[key].initial = getattr(campaign, key)
         else:
             _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
@@ -171,9 +239,14 @@ class CampaignForm(forms.Form):
             value = budget_value(budget, field)
             unit = UNIT_TEXT.get(field.unit, field.unit)
             label = field_label(field)
-            row: dict[str, Any] = {"field": field, "unit": unit, "label": label, "help": field.help,
-                                   "bounds": f"{field.lower:g}–{field.upper:g}{(' ' + unit) if unit else ''}",
-                                   "switch": field.kind == "bool"}
+            row: dict[str, Any] = {
+                "field": field,
+                "unit": unit,
+                "label": label,
+                "help": field.help,
+                "bounds": f"{field.lower:g}–{field.upper:g}{(' ' + unit) if unit else ''}",
+                "switch": field.kind == "bool",
+            }
             if field.kind == "bool":
                 name = budget_field_name(field)
                 self.fields[name] = _switch_field(label, value)
@@ -202,25 +275,48 @@ class CampaignForm(forms.Form):
             q = quotas.get(oc.name)
             names = (f"q_{oc.name}_target", f"q_{oc.name}_visible", f"q_{oc.name}_box", f"q_{oc.name}_contrast")
             self.fields[names[0]] = forms.IntegerField(
-                label=f"{oc.label or oc.name} target", required=False, min_value=0,
-                max_value=services.MAX_TARGET_ACCEPTED, initial=q.target_accepted if q else 0,
-                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": 1}))
+                label=f"{oc.label or oc.name} target",
+                required=False,
+                min_value=0,
+                max_value=services.MAX_TARGET_ACCEPTED,
+                initial=q.target_accepted if q else 0,
+                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": 1}),
+            )
             self.fields[names[1]] = forms.FloatField(
-                label=f"{oc.label or oc.name} min visible fraction", required=False, min_value=0, max_value=1,
+                label=f"{oc.label or oc.name} min visible fraction",
+                required=False,
+                min_value=0,
+                max_value=1,
                 initial=q.min_visible_fraction if q else None,
-                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "max": 1, "step": "any",
-                                                "placeholder": "default"}))
+                widget=forms.NumberInput(
+                    attrs={"class": "num", "min": 0, "max": 1, "step": "any", "placeholder": "default"}
+                ),
+            )
             self.fields[names[2]] = forms.FloatField(
-                label=f"{oc.label or oc.name} min box", required=False, min_value=0, max_value=4096,
+                label=f"{oc.label or oc.name} min box",
+                required=False,
+                min_value=0,
+                max_value=4096,
                 initial=q.min_box_px if q else None,
-                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": "any", "placeholder": "default"}))
+                widget=forms.NumberInput(attrs={"class": "num", "min": 0, "step": "any", "placeholder": "default"}),
+            )
             # Empty takes the budget's thresholds.min_contrast (the acceptance default below the quotas).
             self.fields[names[3]] = forms.FloatField(
-                label=f"{oc.label or oc.name} min contrast", required=False, min_value=contrast_field.lower,
-                max_value=contrast_field.upper, initial=_display(q.min_contrast) if q else None,
-                widget=forms.NumberInput(attrs={"class": "num", "min": f"{contrast_field.lower:g}",
-                                                "max": f"{contrast_field.upper:g}", "step": "any",
-                                                "placeholder": "default"}))
+                label=f"{oc.label or oc.name} min contrast",
+                required=False,
+                min_value=contrast_field.lower,
+                max_value=contrast_field.upper,
+                initial=_display(q.min_contrast) if q else None,
+                widget=forms.NumberInput(
+                    attrs={
+                        "class": "num",
+                        "min": f"{contrast_field.lower:g}",
+                        "max": f"{contrast_field.upper:g}",
+                        "step": "any",
+                        "placeholder": "default",
+                    }
+                ),
+            )
             self.quota_rows.append({"object_class": oc, "names": names})
 
     def _init_assets(self, *, user: Any, campaign: Campaign | None) -> None:
@@ -231,10 +327,16 @@ class CampaignForm(forms.Form):
 
         from teams.permissions import PLANNER, teams_for
 
-        team_ids = [campaign.team_id] if campaign is not None else list(
-            teams_for(user=user, role=PLANNER).values_list("pk", flat=True))
-        queryset = (Asset.objects.filter(Q(team__isnull=True) | Q(team_id__in=team_ids))
-                    .select_related("object_class", "team").order_by("object_class__name", "kind", "name"))
+        team_ids = (
+            [campaign.team_id]
+            if campaign is not None
+            else list(teams_for(user=user, role=PLANNER).values_list("pk", flat=True))
+        )
+        queryset = (
+            Asset.objects.filter(Q(team__isnull=True) | Q(team_id__in=team_ids))
+            .select_related("object_class", "team")
+            .order_by("object_class__name", "kind", "name")
+        )
         field = _model_choice_field(self, "assets")
         field.queryset = queryset
         if campaign is not None:
@@ -242,8 +344,11 @@ class CampaignForm(forms.Form):
         else:
             class_names = list(ObjectClass.objects.values_list("name", flat=True))
             owner_ids: Sequence[int | None] = team_ids or [None]  # None: the shared procedural library
-            field.initial = [a.pk for team_id in owner_ids
-                             for a in services.default_campaign_assets(team_id=team_id, class_names=class_names)]
+            field.initial = [
+                a.pk
+                for team_id in owner_ids
+                for a in services.default_campaign_assets(team_id=team_id, class_names=class_names)
+            ]
 
     # --- layout helpers for the template ---------------------------------------------------------------------
 
@@ -256,8 +361,16 @@ class CampaignForm(forms.Form):
         return out
 
     def quota_table(self) -> list[dict[str, Any]]:
-        return [{"object_class": r["object_class"], "target": self[r["names"][0]], "visible": self[r["names"][1]],
-                 "box": self[r["names"][2]], "contrast": self[r["names"][3]]} for r in self.quota_rows]
+        return [
+            {
+                "object_class": r["object_class"],
+                "target": self[r["names"][0]],
+                "visible": self[r["names"][1]],
+                "box": self[r["names"][2]],
+                "contrast": self[r["names"][3]],
+            }
+            for r in self.quota_rows
+        ]
 
     def cost_fields(self) -> list[forms.BoundField]:
         return [self[n] for n in self.COST_FIELDS]
@@ -298,9 +411,15 @@ class CampaignForm(forms.Form):
         for row in self.quota_rows:
             target = data.get(row["names"][0])
             if target:
-                quotas.append(services.QuotaInput(row["object_class"].name, int(target),
-                                                  data.get(row["names"][1]), data.get(row["names"][2]),
-                                                  data.get(row["names"][3])))
+                quotas.append(
+                    services.QuotaInput(
+                        row["object_class"].name,
+                        int(target),
+                        data.get(row["names"][1]),
+                        data.get(row["names"][2]),
+                        data.get(row["names"][3]),
+                    )
+                )
         if not quotas and not any(n in self.errors for r in self.quota_rows for n in r["names"]):
             self.add_error(None, "Give at least one class a target above 0.")
         data["quotas"] = quotas
@@ -309,9 +428,11 @@ class CampaignForm(forms.Form):
         team_id = getattr(team, "pk", None)
         # None: the page never showed the list (an older client or a script), so the service picks the defaults.
         # Another team's uploads (offered when the user plans in several teams) do not go with this campaign.
-        data["asset_ids"] = ([a.pk for a in data.get("assets") or []
-                              if a.object_class.name in quoted and a.team_id in (None, team_id)]
-                             if data.get("assets_shown") else None)
+        data["asset_ids"] = (
+            [a.pk for a in data.get("assets") or [] if a.object_class.name in quoted and a.team_id in (None, team_id)]
+            if data.get("assets_shown")
+            else None
+        )
         if complete:
             try:
                 data["budget"] = services.normalize_campaign_budget(budget)
@@ -347,11 +468,20 @@ class CampaignForm(forms.Form):
 
     def service_kwargs(self) -> dict[str, Any]:
         d = self.cleaned_data
-        return {"name": d["name"], "quotas": d["quotas"], "budget": d["budget"], "cost_budget": d["cost_budget"],
-                "price_per_cpu_hour": d["price_per_cpu_hour"], "setup_cost": d["setup_cost"],
-                "manual_labelling_rate_per_hour": d["manual_labelling_rate_per_hour"], "weight": d["weight"],
-                "seed": d["seed"], "max_attempts": d["max_attempts"], "description": d.get("description", ""),
-                "asset_ids": d.get("asset_ids")}
+        return {
+            "name": d["name"],
+            "quotas": d["quotas"],
+            "budget": d["budget"],
+            "cost_budget": d["cost_budget"],
+            "price_per_cpu_hour": d["price_per_cpu_hour"],
+            "setup_cost": d["setup_cost"],
+            "manual_labelling_rate_per_hour": d["manual_labelling_rate_per_hour"],
+            "weight": d["weight"],
+            "seed": d["seed"],
+            "max_attempts": d["max_attempts"],
+            "description": d.get("description", ""),
+            "asset_ids": d.get("asset_ids"),
+        }
 
 
 def _asset_choice_label(asset: Asset) -> str:
@@ -367,28 +497,58 @@ class CostBudgetForm(forms.Form):
 
 
 class AssetUploadForm(forms.Form):
-    UNITS = (("auto", "guess from size"), ("m", "metres"), ("cm", "centimetres"), ("mm", "millimetres"),
-             ("in", "inches"))
+    UNITS = (
+        ("auto", "guess from size"),
+        ("m", "metres"),
+        ("cm", "centimetres"),
+        ("mm", "millimetres"),
+        ("in", "inches"),
+    )
     name = forms.CharField(max_length=128)
     team: forms.ModelChoiceField[Team] = forms.ModelChoiceField(queryset=None, empty_label=None)
-    object_class = forms.ModelChoiceField(queryset=ObjectClass.objects.order_by("name"), empty_label=None,
-                                          to_field_name="name", label="Class")
+    object_class = forms.ModelChoiceField(
+        queryset=ObjectClass.objects.order_by("name"), empty_label=None, to_field_name="name", label="Class"
+    )
     AXES = (("+z", "+z"), ("+y", "+y (glTF)"), ("-z", "−z"), ("-y", "−y"), ("+x", "+x"), ("-x", "−x"))
-    FRONTS = (("", "default (+y for a z-up file, +z for a y-up file)"), ("+y", "+y"), ("-y", "−y"), ("+z", "+z"),
-              ("-z", "−z"), ("+x", "+x"), ("-x", "−x"))
+    FRONTS = (
+        ("", "default (+y for a z-up file, +z for a y-up file)"),
+        ("+y", "+y"),
+        ("-y", "−y"),
+        ("+z", "+z"),
+        ("-z", "−z"),
+        ("+x", "+x"),
+        ("-x", "−x"),
+    )
     LOOKS = (("keep", "keep the model's look (its materials and textures)"), ("randomize", "randomize its colours"))
-    mesh = forms.FileField(help_text="OBJ, PLY, STL or GLB; an OBJ with its MTL and images (or a glTF with its "
-                                     "files) as one .zip. The format is read from the file's content.")
+    mesh = forms.FileField(
+        help_text="OBJ, PLY, STL or GLB; an OBJ with its MTL and images (or a glTF with its "
+        "files) as one .zip. The format is read from the file's content."
+    )
     unit = forms.ChoiceField(choices=UNITS, initial="auto")
     # Not required: a client that does not send them gets the defaults (+z up, the look kept).
-    up_axis = forms.ChoiceField(choices=AXES, initial="+z", required=False, label="Up axis",
-                                help_text="The file's axis that points up in the room.")
-    front = forms.ChoiceField(choices=FRONTS, initial="", required=False, label="Front",
-                              help_text="The file's axis the model's front faces (a clock's dial, a sofa's seat); "
-                                        "wall items hang with it towards the room.")
+    up_axis = forms.ChoiceField(
+        choices=AXES,
+        initial="+z",
+        required=False,
+        label="Up axis",
+        help_text="The file's axis that points up in the room.",
+    )
+    front = forms.ChoiceField(
+        choices=FRONTS,
+        initial="",
+        required=False,
+        label="Front",
+        help_text="The file's axis the model's front faces (a clock's dial, a sofa's seat); "
+        "wall items hang with it towards the room.",
+    )
     look = forms.ChoiceField(choices=LOOKS, initial="keep", required=False, label="Look")
-    creation_cost = forms.DecimalField(min_value=0, max_digits=12, decimal_places=2, initial=Decimal("0"),
-                                       help_text="One-off cost of modelling or licensing it.")
+    creation_cost = forms.DecimalField(
+        min_value=0,
+        max_digits=12,
+        decimal_places=2,
+        initial=Decimal("0"),
+        help_text="One-off cost of modelling or licensing it.",
+    )
 
     def __init__(self, *args: Any, user: Any, **kwargs: Any) -> None:
         from teams.permissions import PLANNER, teams_for

@@ -46,51 +46,81 @@ def recount(*, campaign: Campaign) -> Recount:
     states = dict(frames.order_by().values_list("state").annotate(n=Count("pk")).values_list("state", "n"))
     spend = frames.aggregate(cpu_s=Sum("cpu_s"), wall_s=Sum("wall_s"), cost=Sum("compute_cost"))
     instances = Instance.objects.filter(campaign=campaign)
-    per_class = {row["object_class_id"]: row for row in instances.order_by().values("object_class_id").annotate(
-        n_accepted=Count("pk", filter=Q(accepted=True)), n_rejected=Count("pk", filter=Q(accepted=False)))}
+    per_class = {
+        row["object_class_id"]: row
+        for row in instances.order_by()
+        .values("object_class_id")
+        .annotate(n_accepted=Count("pk", filter=Q(accepted=True)), n_rejected=Count("pk", filter=Q(accepted=False)))
+    }
     placed: Counter[str] = Counter()
     for composition in frames.filter(state=State.DONE).values_list("composition", flat=True).iterator(2000):
         placed.update({name: int(n) for name, n in (composition or {}).items()})
 
     stored: dict[str, float | int | Decimal] = {
-        "frames_done": campaign.frames_done, "frames_dead": campaign.frames_dead,
-        "instances_accepted": campaign.instances_accepted, "instances_rejected": campaign.instances_rejected,
-        "cpu_s_spent": campaign.cpu_s_spent, "compute_cost_spent": Decimal(campaign.compute_cost_spent),
+        "frames_done": campaign.frames_done,
+        "frames_dead": campaign.frames_dead,
+        "instances_accepted": campaign.instances_accepted,
+        "instances_rejected": campaign.instances_rejected,
+        "cpu_s_spent": campaign.cpu_s_spent,
+        "compute_cost_spent": Decimal(campaign.compute_cost_spent),
     }
     counted: dict[str, float | int | Decimal] = {
-        "frames_done": states.get(State.DONE, 0), "frames_dead": states.get(State.DEAD, 0),
+        "frames_done": states.get(State.DONE, 0),
+        "frames_dead": states.get(State.DEAD, 0),
         "instances_accepted": instances.filter(accepted=True).count(),
         "instances_rejected": instances.filter(accepted=False).count(),
-        "cpu_s_spent": float(spend["cpu_s"] or 0.0), "compute_cost_spent": Decimal(spend["cost"] or 0),
+        "cpu_s_spent": float(spend["cpu_s"] or 0.0),
+        "compute_cost_spent": Decimal(spend["cost"] or 0),
     }
     for quota in ClassQuota.objects.filter(campaign=campaign).select_related("object_class"):
         name = quota.object_class.name
         row = per_class.get(quota.object_class_id, {"n_accepted": 0, "n_rejected": 0})
-        stored.update({f"{name}.accepted": quota.accepted_count, f"{name}.rejected": quota.rejected_count,
-                       f"{name}.placed": quota.placed_count})
-        counted.update({f"{name}.accepted": row["n_accepted"], f"{name}.rejected": row["n_rejected"],
-                        f"{name}.placed": placed[name]})
+        stored.update(
+            {
+                f"{name}.accepted": quota.accepted_count,
+                f"{name}.rejected": quota.rejected_count,
+                f"{name}.placed": quota.placed_count,
+            }
+        )
+        counted.update(
+            {
+                f"{name}.accepted": row["n_accepted"],
+                f"{name}.rejected": row["n_rejected"],
+                f"{name}.placed": placed[name],
+            }
+        )
     mismatches = {}
     for key, value in stored.items():
         other = counted[key]
         # CPU seconds are float sums added in another order: equal to rounding, not bit for bit.
-        same = (math.isclose(float(value), float(other), rel_tol=1e-9, abs_tol=1e-9) if key == "cpu_s_spent"
-                else value == other)
+        same = (
+            math.isclose(float(value), float(other), rel_tol=1e-9, abs_tol=1e-9)
+            if key == "cpu_s_spent"
+            else value == other
+        )
         if not same:
             mismatches[key] = (value, other)
     # A frame recorded done twice, and instance rows on a frame that is not done, are both double counting.
-    double = (FrameEvent.objects.filter(campaign=campaign, to_state=State.DONE).order_by().values("frame_id")
-              .annotate(n=Count("pk")).filter(n__gt=1).count())
+    double = (
+        FrameEvent.objects.filter(campaign=campaign, to_state=State.DONE)
+        .order_by()
+        .values("frame_id")
+        .annotate(n=Count("pk"))
+        .filter(n__gt=1)
+        .count()
+    )
     stray = instances.exclude(frame__state=State.DONE).count()
-    return Recount(stored=stored, counted=counted, double_counted_frames=double, stray_instances=stray,
-                   mismatches=mismatches)
+    return Recount(
+        stored=stored, counted=counted, double_counted_frames=double, stray_instances=stray, mismatches=mismatches
+    )
 
 
 def missing_frame_files(*, campaign: Campaign, media_root: Path) -> list[int]:
     """Indices of done frames whose folder lacks one of :data:`FRAME_FILES` (output lost or half-written)."""
     missing = []
-    for index, output_dir in Frame.objects.filter(campaign=campaign, state=State.DONE).values_list(
-            "index", "output_dir").iterator(2000):
+    for index, output_dir in (
+        Frame.objects.filter(campaign=campaign, state=State.DONE).values_list("index", "output_dir").iterator(2000)
+    ):
         folder = Path(media_root) / (output_dir or frame_relative_dir(campaign_id=campaign.pk, index=index))
         if not all((folder / name).is_file() and (folder / name).stat().st_size > 0 for name in FRAME_FILES):
             missing.append(index)

@@ -26,13 +26,18 @@ def task_id(*, campaign_id: int, index: int, dispatch_no: int, prefix: str = TAS
     return f"{prefix}-c{int(campaign_id)}-f{int(index)}-d{int(dispatch_no)}"
 
 
-def send_frame_task(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str,
-                    countdown_s: float = 0.0) -> None:
+def send_frame_task(
+    *, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str, countdown_s: float = 0.0
+) -> None:
     """Put one render task on the broker. Tests replace this to capture messages instead."""
     from evenframe.celery import app
 
-    app.send_task(TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
-                  task_id=task_id, countdown=countdown_s if countdown_s > 0 else None)
+    app.send_task(
+        TASK_NAME,
+        kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
+        task_id=task_id,
+        countdown=countdown_s if countdown_s > 0 else None,
+    )
 
 
 def revoke_tasks(*, task_ids: list[str]) -> None:
@@ -59,6 +64,7 @@ def register_dispatcher(dispatch: Callable[..., int]) -> None:
 
 def request_dispatch_on_commit(campaign_id: int | None) -> None:
     """Top up ``campaign_id``'s frames in flight (all running campaigns for None) once the transaction commits."""
+
     def run() -> None:
         if _dispatcher is None:
             log.warning("no dispatcher registered; campaign %s waits for the next sweep", campaign_id)

@@ -46,18 +46,35 @@ class Asset(models.Model):
     generator = models.CharField(max_length=128, blank=True, help_text="Render core generator (class name)")
     mesh_file = models.FileField(upload_to="assets/meshes/", blank=True)
     mesh_unit = models.CharField(max_length=8, default="auto", help_text="m, cm, mm, in or auto")
-    up_axis = models.CharField(max_length=2, default="+z",
-                               help_text="File axis pointing up: +z, +y (glTF), or any of ±x, ±y, ±z")
-    front = models.CharField(max_length=2, blank=True, default="",
-                             help_text="File axis the model's front faces (at right angles to the up axis); empty: "
-                                       "+y for a z-up file, +z for a y-up file")
-    look = models.CharField(max_length=16, choices=[("keep", "Keep the model's look"),
-                                                    ("randomize", "Randomize its colours")], default="randomize",
-                            help_text="Render with the file's materials and textures, or with random colours")
-    team = models.ForeignKey("teams.Team", on_delete=models.PROTECT, related_name="assets", null=True, blank=True,
-                             help_text="Owning team; empty for the shared procedural library")
+    up_axis = models.CharField(
+        max_length=2, default="+z", help_text="File axis pointing up: +z, +y (glTF), or any of ±x, ±y, ±z"
+    )
+    front = models.CharField(
+        max_length=2,
+        blank=True,
+        default="",
+        help_text="File axis the model's front faces (at right angles to the up axis); empty: "
+        "+y for a z-up file, +z for a y-up file",
+    )
+    look = models.CharField(
+        max_length=16,
+        choices=[("keep", "Keep the model's look"), ("randomize", "Randomize its colours")],
+        default="randomize",
+        help_text="Render with the file's materials and textures, or with random colours",
+    )
+    team = models.ForeignKey(
+        "teams.Team",
+        on_delete=models.PROTECT,
+        related_name="assets",
+        null=True,
+        blank=True,
+        help_text="Owning team; empty for the shared procedural library",
+    )
     creation_cost = models.DecimalField(
-        max_digits=12, decimal_places=2, default=Decimal("0"), validators=[MinValueValidator(Decimal("0"))],
+        max_digits=12,
+        decimal_places=2,
+        default=Decimal("0"),
+        validators=[MinValueValidator(Decimal("0"))],
         help_text="One-off cost of making the asset (modelling, licensing), in the campaign currency",
     )
     created_at = models.DateTimeField(default=timezone.now)
@@ -69,10 +86,16 @@ class Asset(models.Model):
         # A team upload may not take a shared asset's name either (campaigns.services checks that, with a message
         # that names only the shared library).
         constraints = [
-            models.UniqueConstraint(fields=["team", "object_class", "name"], condition=models.Q(team__isnull=False),
-                                    name="asset_unique_name_per_team_and_class"),
-            models.UniqueConstraint(fields=["object_class", "name"], condition=models.Q(team__isnull=True),
-                                    name="asset_unique_shared_name_per_class"),
+            models.UniqueConstraint(
+                fields=["team", "object_class", "name"],
+                condition=models.Q(team__isnull=False),
+                name="asset_unique_name_per_team_and_class",
+            ),
+            models.UniqueConstraint(
+                fields=["object_class", "name"],
+                condition=models.Q(team__isnull=True),
+                name="asset_unique_shared_name_per_class",
+            ),
             models.CheckConstraint(condition=models.Q(creation_cost__gte=0), name="asset_creation_cost_non_negative"),
         ]
 
@@ -96,10 +119,14 @@ class Campaign(models.Model):
 
     name = models.CharField(max_length=200)
     team = models.ForeignKey("teams.Team", on_delete=models.PROTECT, related_name="campaigns")
-    uid = models.UUIDField(default=uuid.uuid4, unique=True, editable=False,
-                           help_text="Carried by every task message: a worker whose database does not hold this "
-                                     "campaign (a misconfigured fleet) refuses the message instead of rendering "
-                                     "another frame with the same id")
+    uid = models.UUIDField(
+        default=uuid.uuid4,
+        unique=True,
+        editable=False,
+        help_text="Carried by every task message: a worker whose database does not hold this "
+        "campaign (a misconfigured fleet) refuses the message instead of rendering "
+        "another frame with the same id",
+    )
     owner = models.ForeignKey(settings.AUTH_USER_MODEL, on_delete=models.PROTECT, related_name="campaigns")
     description = models.TextField(blank=True)
     status = models.CharField(max_length=16, choices=Status.choices, default=Status.DRAFT, db_index=True)
@@ -163,8 +190,10 @@ class ClassQuota(models.Model):
     min_visible_fraction = models.FloatField(default=0.25)
     min_box_px = models.FloatField(default=16.0)
     min_contrast = models.FloatField(
-        default=2.0, help_text="Least contrast (ΔE*ab between the object and its surroundings ÷ the image's noise, "
-                               "at least 1 ΔE) an accepted instance shows in the final image; 0 = not judged")
+        default=2.0,
+        help_text="Least contrast (ΔE*ab between the object and its surroundings ÷ the image's noise, "
+        "at least 1 ΔE) an accepted instance shows in the final image; 0 = not judged",
+    )
 
     # Counters: changed only by F() increments in campaigns.services.
     placed_count = models.PositiveIntegerField(default=0, help_text="Instances requested in finished frames")
@@ -264,12 +293,16 @@ class Instance(models.Model):
     instance_id = models.PositiveIntegerField(help_text="Id in the frame's instance mask")
     asset_id = models.CharField(max_length=200, blank=True)
     bbox_xywh_px = models.JSONField(null=True, blank=True, help_text="COCO [x, y, w, h] of the visible pixels")
-    amodal_bbox_xywh_px = models.JSONField(null=True, blank=True,
-                                           help_text="[x, y, w, h] of the whole projection, not clipped")
+    amodal_bbox_xywh_px = models.JSONField(
+        null=True, blank=True, help_text="[x, y, w, h] of the whole projection, not clipped"
+    )
     visible_fraction = models.FloatField()
-    contrast = models.FloatField(null=True, blank=True,
-                                 help_text="ΔE*ab against the surrounding ring ÷ image noise (render core); "
-                                           "empty for frames rendered before the measure existed")
+    contrast = models.FloatField(
+        null=True,
+        blank=True,
+        help_text="ΔE*ab against the surrounding ring ÷ image noise (render core); "
+        "empty for frames rendered before the measure existed",
+    )
     occlusion_fraction = models.FloatField(default=0.0)
     truncation_fraction = models.FloatField(default=0.0)
     mask_area_px = models.PositiveIntegerField(default=0)

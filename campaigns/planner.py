@@ -51,8 +51,9 @@ class ClassProgress:
         return max(0, self.target_accepted - self.accepted)
 
 
-def posterior_yield(*, accepted: int, placed: int, prior_mean: float = PRIOR_YIELD,
-                    prior_strength: float = PRIOR_STRENGTH) -> float:
+def posterior_yield(
+    *, accepted: int, placed: int, prior_mean: float = PRIOR_YIELD, prior_strength: float = PRIOR_STRENGTH
+) -> float:
     """Posterior mean accepted-yield per placed instance (Beta-Binomial); in (0, 1]."""
     if placed < 0 or accepted < 0:
         raise ValueError("accepted and placed must be non-negative")
@@ -69,20 +70,27 @@ def max_objects_for_room(*, floor_area_m2: float, max_objects_per_m2: float, cap
     return min(limit, cap) if cap else limit
 
 
-def placements_needed(progress: Sequence[ClassProgress], *, prior_mean: float = PRIOR_YIELD,
-                      prior_strength: float = PRIOR_STRENGTH) -> dict[str, float]:
+def placements_needed(
+    progress: Sequence[ClassProgress], *, prior_mean: float = PRIOR_YIELD, prior_strength: float = PRIOR_STRENGTH
+) -> dict[str, float]:
     """Expected placements each class still needs, after counting what is in flight."""
     needs: dict[str, float] = {}
     for item in progress:
-        y = posterior_yield(accepted=item.accepted, placed=item.placed, prior_mean=prior_mean,
-                            prior_strength=prior_strength)
+        y = posterior_yield(
+            accepted=item.accepted, placed=item.placed, prior_mean=prior_mean, prior_strength=prior_strength
+        )
         remaining = item.deficit - item.in_flight_placed * y
         needs[item.name] = max(0.0, remaining) / y
     return needs
 
 
-def plan_composition(progress: Sequence[ClassProgress], *, max_objects: int, prior_mean: float = PRIOR_YIELD,
-                     prior_strength: float = PRIOR_STRENGTH) -> dict[str, int]:
+def plan_composition(
+    progress: Sequence[ClassProgress],
+    *,
+    max_objects: int,
+    prior_mean: float = PRIOR_YIELD,
+    prior_strength: float = PRIOR_STRENGTH,
+) -> dict[str, int]:
     """The next frame's composition {class name: instances}; empty when nothing more is needed now.
 
     When the classes together need more placements than the frame holds,
@@ -137,8 +145,9 @@ def uniform_composition(class_names: Sequence[str], *, max_objects: int, rng: np
     return {name: int(count) for name, count in zip(names, counts, strict=True) if count > 0}
 
 
-def composition_still_useful(composition: Mapping[str, int], needs: Mapping[str, float], *,
-                             min_useful_fraction: float = 0.75) -> bool:
+def composition_still_useful(
+    composition: Mapping[str, int], needs: Mapping[str, float], *, min_useful_fraction: float = 0.75
+) -> bool:
     """Whether another view of an existing layout still serves the quotas.
 
     True when at least ``min_useful_fraction`` of its placements are still
@@ -167,12 +176,21 @@ class FrameSeeds:
 
 
 def _derive(*words: int) -> int:
-    return int(np.random.SeedSequence([int(w) & 0xFFFFFFFF for w in words]).generate_state(1, dtype=np.uint64)[0]
-               & 0x7FFFFFFFFFFFFFFF)
+    return int(
+        np.random.SeedSequence([int(w) & 0xFFFFFFFF for w in words]).generate_state(1, dtype=np.uint64)[0]
+        & 0x7FFFFFFFFFFFFFFF
+    )
 
 
-def frame_seeds(*, campaign_seed: int, index: int, layout_index: int, lighting_index: int,
-                view_index: int, views_per_lighting: int | None = None) -> FrameSeeds:
+def frame_seeds(
+    *,
+    campaign_seed: int,
+    index: int,
+    layout_index: int,
+    lighting_index: int,
+    view_index: int,
+    views_per_lighting: int | None = None,
+) -> FrameSeeds:
     """Sub-seeds per axis: frames sharing a layout index share the room and furniture, and so on down.
 
     Derived with :class:`numpy.random.SeedSequence` from the campaign seed, so
@@ -184,12 +202,20 @@ def frame_seeds(*, campaign_seed: int, index: int, layout_index: int, lighting_i
         layout_seed=_derive(root, 1, layout_index),
         lighting_seed=_derive(root, 2, layout_index, lighting_index),
         camera_seed=_derive(root, 3, layout_index, lighting_index, view_index),
-        view_slot=None if views_per_lighting is None else int(lighting_index) * int(views_per_lighting) + int(view_index),
+        view_slot=None
+        if views_per_lighting is None
+        else int(lighting_index) * int(views_per_lighting) + int(view_index),
     )
 
 
-def next_coordinates(previous: tuple[int, int, int] | None, *, lighting_per_layout: int, views_per_lighting: int,
-                     layouts: int, continue_layout: bool) -> tuple[int, int, int]:
+def next_coordinates(
+    previous: tuple[int, int, int] | None,
+    *,
+    lighting_per_layout: int,
+    views_per_lighting: int,
+    layouts: int,
+    continue_layout: bool,
+) -> tuple[int, int, int]:
     """(layout, lighting, view) of the next frame.
 
     The variation budget walks views within a lighting variant, lighting
@@ -211,8 +237,9 @@ def next_coordinates(previous: tuple[int, int, int] | None, *, lighting_per_layo
 # --- acceptance -----------------------------------------------------------------------------------
 
 
-def accept_instance(label: Mapping, *, min_visible_fraction: float, min_box_px: float,
-                    min_contrast: float = 0.0) -> tuple[bool, list[str]]:
+def accept_instance(
+    label: Mapping, *, min_visible_fraction: float, min_box_px: float, min_contrast: float = 0.0
+) -> tuple[bool, list[str]]:
     """Accept one label row of the render core by its class quota's own thresholds.
 
     The render core judges with the budget's global thresholds; a quota may

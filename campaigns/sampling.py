@@ -34,16 +34,19 @@ def room_floor_area_m2(*, budget: Mapping[str, Any], seeds: planner.FrameSeeds) 
     from render.layout import sample_room
     from render.spec import axis_rng, derive_sub_seeds
 
-    sub_seeds = derive_sub_seeds(seeds.seed, layout_seed=seeds.layout_seed, lighting_seed=seeds.lighting_seed,
-                                 camera_seed=seeds.camera_seed)
+    sub_seeds = derive_sub_seeds(
+        seeds.seed, layout_seed=seeds.layout_seed, lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed
+    )
     room = sample_room(normalize_budget(dict(budget)), axis_rng(sub_seeds, "layout"))
     return float(room["width_m"]) * float(room["depth_m"])
 
 
 def max_objects_for_frame(*, budget: Mapping[str, Any], seeds: planner.FrameSeeds) -> int:
-    return planner.max_objects_for_room(floor_area_m2=room_floor_area_m2(budget=budget, seeds=seeds),
-                                        max_objects_per_m2=budget["room"]["max_objects_per_m2"],
-                                        cap=MAX_OBJECTS_PER_FRAME)
+    return planner.max_objects_for_room(
+        floor_area_m2=room_floor_area_m2(budget=budget, seeds=seeds),
+        max_objects_per_m2=budget["room"]["max_objects_per_m2"],
+        cap=MAX_OBJECTS_PER_FRAME,
+    )
 
 
 @dataclass(frozen=True)
@@ -87,16 +90,32 @@ def render_core_label_pass(*, threads: int | None = None, variant: str | None = 
         from render.frame import render_frame
         from render.spec import make_spec
 
-        spec = make_spec(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
-                         lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, view_slot=seeds.view_slot)
+        spec = make_spec(
+            budget,
+            composition,
+            seeds.seed,
+            layout_seed=seeds.layout_seed,
+            lighting_seed=seeds.lighting_seed,
+            camera_seed=seeds.camera_seed,
+            view_slot=seeds.view_slot,
+        )
         return list(render_frame(spec, variant=variant, threads=threads).labels.get("instances", []))
 
     return run
 
 
-def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[str, Any], campaign_seed: int,
-             label_width_px: int = 80, label_height_px: int = 60, max_frames: int = 2000, in_flight: int = 1,
-             label_pass: LabelPass | None = None) -> SimulationResult:
+def simulate(
+    *,
+    strategy: str,
+    quotas: Mapping[str, QuotaRule],
+    budget: Mapping[str, Any],
+    campaign_seed: int,
+    label_width_px: int = 80,
+    label_height_px: int = 60,
+    max_frames: int = 2000,
+    in_flight: int = 1,
+    label_pass: LabelPass | None = None,
+) -> SimulationResult:
     """Fill ``quotas`` frame by frame with ``strategy`` ("planner" or "uniform") on real scene sampling.
 
     Both strategies walk the same variation budget, get the same room (and so
@@ -140,15 +159,26 @@ def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[
             needs = planner.placements_needed(progress())
             if strategy == "planner" and sum(needs.values()) <= 0:
                 break
-            continue_layout = last is not None and last[0][0] not in failed_layouts and (
-                strategy == "uniform" or planner.composition_still_useful(last[1], needs))
+            continue_layout = (
+                last is not None
+                and last[0][0] not in failed_layouts
+                and (strategy == "uniform" or planner.composition_still_useful(last[1], needs))
+            )
             coordinates = planner.next_coordinates(
-                last[0] if last else None, lighting_per_layout=variation["lighting_per_layout"],
-                views_per_lighting=variation["views_per_lighting"], layouts=variation["layouts"],
-                continue_layout=continue_layout)
-            seeds = planner.frame_seeds(campaign_seed=campaign_seed, index=index, layout_index=coordinates[0],
-                                        lighting_index=coordinates[1], view_index=coordinates[2],
-                                        views_per_lighting=variation["views_per_lighting"])
+                last[0] if last else None,
+                lighting_per_layout=variation["lighting_per_layout"],
+                views_per_lighting=variation["views_per_lighting"],
+                layouts=variation["layouts"],
+                continue_layout=continue_layout,
+            )
+            seeds = planner.frame_seeds(
+                campaign_seed=campaign_seed,
+                index=index,
+                layout_index=coordinates[0],
+                lighting_index=coordinates[1],
+                view_index=coordinates[2],
+                views_per_lighting=variation["views_per_lighting"],
+            )
             if last is not None and continue_layout and coordinates[0] == last[0][0]:
                 composition = dict(last[1])
             else:
@@ -183,13 +213,21 @@ def simulate(*, strategy: str, quotas: Mapping[str, QuotaRule], budget: Mapping[
             rule = quotas[name]
             # No min_contrast: the label pass's 1-spp, low-resolution image is far noisier than the campaign's, so
             # its contrast says nothing about the campaign's frames (box sizes, unlike contrast, scale with size).
-            ok, _ = planner.accept_instance(label, min_visible_fraction=rule.min_visible_fraction,
-                                            min_box_px=rule.min_box_px * scale)
+            ok, _ = planner.accept_instance(
+                label, min_visible_fraction=rule.min_visible_fraction, min_box_px=rule.min_box_px * scale
+            )
             if ok:
                 accepted[name] += 1
     surplus = sum(max(0, accepted[n] - quotas[n].target_accepted) for n in names)
     return SimulationResult(
-        strategy=strategy, frames=frames, filled=filled(), accepted=dict(accepted), placed=dict(placed),
-        surplus=surplus, quota_sum=sum(q.target_accepted for q in quotas.values()), frame_cpu_s=cpu_times,
-        layout_errors=layout_errors, wall_s=time.perf_counter() - wall_start,
+        strategy=strategy,
+        frames=frames,
+        filled=filled(),
+        accepted=dict(accepted),
+        placed=dict(placed),
+        surplus=surplus,
+        quota_sum=sum(q.target_accepted for q in quotas.values()),
+        frame_cpu_s=cpu_times,
+        layout_errors=layout_errors,
+        wall_s=time.perf_counter() - wall_start,
     )

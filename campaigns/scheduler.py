@@ -84,12 +84,18 @@ def send_messages(*, messages: list[tuple[int, int, str, float]], campaign_uid: 
     sent = 0
     for frame_id, dispatch_no, task_id, countdown in messages:
         try:
-            messaging.send_frame_task(frame_id=frame_id, dispatch_no=dispatch_no, campaign_uid=campaign_uid, task_id=task_id,
-                            countdown_s=countdown)
+            messaging.send_frame_task(
+                frame_id=frame_id,
+                dispatch_no=dispatch_no,
+                campaign_uid=campaign_uid,
+                task_id=task_id,
+                countdown_s=countdown,
+            )
             sent += 1
         except Exception:  # noqa: BLE001 - any broker error: the sweep resends, so log and go on
-            log.warning("frame %s: message %s not sent; the next sweep sends it again", frame_id, task_id,
-                        exc_info=True)
+            log.warning(
+                "frame %s: message %s not sent; the next sweep sends it again", frame_id, task_id, exc_info=True
+            )
             try:
                 services.mark_message_unsent(frame_id=frame_id, dispatch_no=dispatch_no)
             except Exception:  # noqa: BLE001 - the stale-queued timeout still resends it
@@ -114,34 +120,49 @@ def campaign_slots() -> dict[int, int]:
     return share_slots(total_slots=total, weights=weights)
 
 
-def plan_next(*, campaign: Campaign, progress: list[planner.ClassProgress],
-              last: Frame | None) -> tuple[tuple[int, int, int], dict[str, int]] | None:
+def plan_next(
+    *, campaign: Campaign, progress: list[planner.ClassProgress], last: Frame | None
+) -> tuple[tuple[int, int, int], dict[str, int]] | None:
     """Coordinates and composition of the next new frame, or None when nothing more is needed now."""
     variation = campaign.budget["variation"]
     needs = planner.placements_needed(progress)
     if sum(needs.values()) <= 0:
         return None
     # A dead frame's layout (e.g. the objects did not fit) is not tried again with another view.
-    continue_layout = (last is not None and last.state != State.DEAD
-                       and planner.composition_still_useful(last.composition, needs))
+    continue_layout = (
+        last is not None and last.state != State.DEAD and planner.composition_still_useful(last.composition, needs)
+    )
     previous = (last.layout_index, last.lighting_index, last.view_index) if last is not None else None
-    coordinates = planner.next_coordinates(previous, lighting_per_layout=variation["lighting_per_layout"],
-                                           views_per_lighting=variation["views_per_lighting"],
-                                           layouts=variation["layouts"], continue_layout=continue_layout)
+    coordinates = planner.next_coordinates(
+        previous,
+        lighting_per_layout=variation["lighting_per_layout"],
+        views_per_lighting=variation["views_per_lighting"],
+        layouts=variation["layouts"],
+        continue_layout=continue_layout,
+    )
     if last is not None and coordinates[0] == last.layout_index and continue_layout:
         return coordinates, dict(last.composition)  # same layout: same objects, another light or view
     index = (last.index + 1) if last is not None else 0
-    seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=index, layout_index=coordinates[0],
-                                lighting_index=coordinates[1], view_index=coordinates[2])
-    composition = planner.plan_composition(progress, max_objects=max_objects_for_frame(budget=campaign.budget,
-                                                                                       seeds=seeds))
+    seeds = planner.frame_seeds(
+        campaign_seed=campaign.seed,
+        index=index,
+        layout_index=coordinates[0],
+        lighting_index=coordinates[1],
+        view_index=coordinates[2],
+    )
+    composition = planner.plan_composition(
+        progress, max_objects=max_objects_for_frame(budget=campaign.budget, seeds=seeds)
+    )
     return (coordinates, composition) if composition else None
 
 
 def dispatch(*, campaign_id: int | None = None) -> int:
     """Top up every running campaign (or one) to its share of the fleet; returns messages sent."""
-    ids = [campaign_id] if campaign_id is not None else list(
-        Campaign.objects.filter(status=Status.RUNNING).values_list("pk", flat=True))
+    ids = (
+        [campaign_id]
+        if campaign_id is not None
+        else list(Campaign.objects.filter(status=Status.RUNNING).values_list("pk", flat=True))
+    )
     sent = 0
     for cid in ids:
         sent += _dispatch_one(cid)
@@ -163,8 +184,12 @@ class _Round:
     budget_blocked: bool = False
 
     def affordable(self) -> bool:
-        return costs.can_afford_frame(spent=self.spent, committed=selectors.committed_cost(campaign=self.campaign),
-                                      next_frame_cost=self.frame_cost, cost_budget=self.campaign.cost_budget)
+        return costs.can_afford_frame(
+            spent=self.spent,
+            committed=selectors.committed_cost(campaign=self.campaign),
+            next_frame_cost=self.frame_cost,
+            cost_budget=self.campaign.cost_budget,
+        )
 
     def send(self, frame: Frame, countdown_s: float = 0.0) -> None:
         self.messages.append((frame.pk, frame.dispatch_count, frame.task_id, countdown_s))
@@ -181,11 +206,16 @@ def _dispatch_one(campaign_id: int) -> int:
         if campaign.status != Status.RUNNING or _pause_if_failing(campaign):
             return 0
         expected_cpu_s = selectors.expected_frame_cpu_s(campaign=campaign)
-        step = _Round(campaign=campaign, share=campaign_slots().get(campaign.pk, SLOTS_WITHOUT_WORKERS),
-                      expected_cpu_s=expected_cpu_s,
-                      frame_cost=costs.expected_frame_cost(expected_cpu_s=expected_cpu_s,
-                                                           price_per_cpu_hour=campaign.price_per_cpu_hour),
-                      spent=selectors.total_spent(campaign=campaign), now=timezone.now())
+        step = _Round(
+            campaign=campaign,
+            share=campaign_slots().get(campaign.pk, SLOTS_WITHOUT_WORKERS),
+            expected_cpu_s=expected_cpu_s,
+            frame_cost=costs.expected_frame_cost(
+                expected_cpu_s=expected_cpu_s, price_per_cpu_hour=campaign.price_per_cpu_hour
+            ),
+            spent=selectors.total_spent(campaign=campaign),
+            now=timezone.now(),
+        )
         _requeue_failed(step)
         _resend_unsent(step)
         if campaign_slots_live():
@@ -195,10 +225,13 @@ def _dispatch_one(campaign_id: int) -> int:
         _create_new_frames(step)
         if step.budget_blocked and step.in_flight == 0:
             services.set_status(
-                campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET,
+                campaign,
+                Status.PAUSED,
+                reason=Campaign.PauseReason.BUDGET,
                 detail=f"spent {step.spent}; the next frame (≈ {step.frame_cost}) would exceed the budget "
-                       f"{campaign.cost_budget}",
-                allowed_from=(Status.RUNNING,))
+                f"{campaign.cost_budget}",
+                allowed_from=(Status.RUNNING,),
+            )
         uid, messages = str(campaign.uid), step.messages
         transaction.on_commit(lambda: send_messages(messages=messages, campaign_uid=uid))
     return len(messages)
@@ -206,13 +239,20 @@ def _dispatch_one(campaign_id: int) -> int:
 
 def _pause_if_failing(campaign: Campaign) -> bool:
     """Pause a campaign whose last DEAD_IN_A_ROW_PAUSE finished frames are all dead; True when it did."""
-    recent = list(Frame.objects.filter(campaign=campaign, state__in=(State.DONE, State.DEAD))
-                  .order_by("-finished_at").values_list("state", flat=True)[:DEAD_IN_A_ROW_PAUSE])
+    recent = list(
+        Frame.objects.filter(campaign=campaign, state__in=(State.DONE, State.DEAD))
+        .order_by("-finished_at")
+        .values_list("state", flat=True)[:DEAD_IN_A_ROW_PAUSE]
+    )
     if len(recent) < DEAD_IN_A_ROW_PAUSE or any(s != State.DEAD for s in recent):
         return False
-    services.set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.FAILURES,
-                        detail=f"the last {DEAD_IN_A_ROW_PAUSE} frames are dead; see their errors",
-                        allowed_from=(Status.RUNNING,))
+    services.set_status(
+        campaign,
+        Status.PAUSED,
+        reason=Campaign.PauseReason.FAILURES,
+        detail=f"the last {DEAD_IN_A_ROW_PAUSE} frames are dead; see their errors",
+        allowed_from=(Status.RUNNING,),
+    )
     messaging.revoke_on_commit(services.revoke_waiting_frames(campaign, detail="campaign paused (failures)"))
     return True
 
@@ -258,11 +298,16 @@ def _requeue_revoked(step: _Round) -> None:
             step.budget_blocked = True
             break
         progress = selectors.class_progress(campaign=campaign)
-        seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index,
-                                    layout_index=frame.layout_index, lighting_index=frame.lighting_index,
-                                    view_index=frame.view_index)
-        composition = planner.plan_composition(progress, max_objects=max_objects_for_frame(
-            budget=campaign.budget, seeds=seeds))
+        seeds = planner.frame_seeds(
+            campaign_seed=campaign.seed,
+            index=frame.index,
+            layout_index=frame.layout_index,
+            lighting_index=frame.lighting_index,
+            view_index=frame.view_index,
+        )
+        composition = planner.plan_composition(
+            progress, max_objects=max_objects_for_frame(budget=campaign.budget, seeds=seeds)
+        )
         if not composition:
             break
         again = services.requeue_frame(frame=frame, composition=composition, expected_cpu_s=step.expected_cpu_s)
@@ -284,9 +329,13 @@ def _create_new_frames(step: _Round) -> None:
             step.budget_blocked = True
             break
         coordinates, composition = planned
-        frame = services.create_frame(campaign=campaign, index=(last.index + 1) if last else 0,
-                                      coordinates=coordinates, composition=composition,
-                                      expected_cpu_s=step.expected_cpu_s)
+        frame = services.create_frame(
+            campaign=campaign,
+            index=(last.index + 1) if last else 0,
+            coordinates=coordinates,
+            composition=composition,
+            expected_cpu_s=step.expected_cpu_s,
+        )
         step.send(frame)
         step.in_flight += 1
 
@@ -305,14 +354,18 @@ def sweep() -> dict[str, int]:
 
     live = list(live_workers().values_list("hostname", flat=True))
     started_before = timezone.now() - timedelta(seconds=settings.WORKER_LIVE_WINDOW_S)
-    campaign_ids = set(Frame.objects.filter(state=State.RUNNING, started_at__lt=started_before)
-                       .exclude(worker_host__in=live).values_list("campaign_id", flat=True))
+    campaign_ids = set(
+        Frame.objects.filter(state=State.RUNNING, started_at__lt=started_before)
+        .exclude(worker_host__in=live)
+        .values_list("campaign_id", flat=True)
+    )
     counts = {"requeued": 0, "dead": 0, "revoked": 0, "sent": 0}
     count_key: dict[str, str] = {State.QUEUED: "requeued", State.DEAD: "dead", State.REVOKED: "revoked"}
     for campaign_id in sorted(campaign_ids):
         with transaction.atomic():
-            released = services.release_lost_frames(campaign_id=campaign_id, live_hosts=live,
-                                                    started_before=started_before)
+            released = services.release_lost_frames(
+                campaign_id=campaign_id, live_hosts=live, started_before=started_before
+            )
             uid = str(Campaign.objects.values_list("uid", flat=True).get(pk=campaign_id))
             messages = [(r.frame_id, r.dispatch_no, r.task_id, 0.0) for r in released if r.to_state == State.QUEUED]
             transaction.on_commit(functools.partial(send_messages, messages=messages, campaign_uid=uid))
@@ -321,8 +374,11 @@ def sweep() -> dict[str, int]:
             if r.to_state != State.QUEUED:
                 _remove_partial_folders(campaign_id=campaign_id, index=r.index)
         if released:
-            log.warning("sweep: campaign %s: %s", campaign_id, ", ".join(
-                f"frame id {r.frame_id} → {r.to_state}" for r in released))
+            log.warning(
+                "sweep: campaign %s: %s",
+                campaign_id,
+                ", ".join(f"frame id {r.frame_id} → {r.to_state}" for r in released),
+            )
     counts["sent"] = dispatch()
     return counts
 

@@ -24,20 +24,28 @@ def campaign_list() -> QuerySet[Campaign]:
 
 def observed_cpu_s(*, campaign: Campaign, limit: int = RECENT_FRAMES_FOR_ESTIMATES) -> list[float]:
     """CPU seconds of the most recent done frames (a bounded list: the median is not portable SQL)."""
-    cpu_s = (Frame.objects.filter(campaign=campaign, state=State.DONE, cpu_s__isnull=False)
-             .order_by("-finished_at").values_list("cpu_s", flat=True)[:limit])
+    cpu_s = (
+        Frame.objects.filter(campaign=campaign, state=State.DONE, cpu_s__isnull=False)
+        .order_by("-finished_at")
+        .values_list("cpu_s", flat=True)[:limit]
+    )
     return cast("list[float]", list(cpu_s))  # cpu_s__isnull=False: no None in the column
 
 
 def expected_frame_cpu_s(*, campaign: Campaign) -> float:
-    return costs.expected_frame_cpu_s(observed_cpu_s=observed_cpu_s(campaign=campaign), width_px=campaign.width_px,
-                                      height_px=campaign.height_px, spp=campaign.spp)
+    return costs.expected_frame_cpu_s(
+        observed_cpu_s=observed_cpu_s(campaign=campaign),
+        width_px=campaign.width_px,
+        height_px=campaign.height_px,
+        spp=campaign.spp,
+    )
 
 
 def committed_cost(*, campaign: Campaign, states: Sequence[str] = tuple(Frame.IN_FLIGHT_STATES)) -> Decimal:
     """Expected cost of the frames started or waiting to start (their estimate at dispatch)."""
-    total_cpu_s = Frame.objects.filter(campaign=campaign, state__in=states).aggregate(
-        s=Sum("expected_cpu_s"))["s"] or 0.0
+    total_cpu_s = (
+        Frame.objects.filter(campaign=campaign, state__in=states).aggregate(s=Sum("expected_cpu_s"))["s"] or 0.0
+    )
     return costs.frame_compute_cost(cpu_s=total_cpu_s, price_per_cpu_hour=campaign.price_per_cpu_hour)
 
 
@@ -51,17 +59,23 @@ def total_spent(*, campaign: Campaign) -> Decimal:
 
 
 def can_afford_next_frame(*, campaign: Campaign) -> bool:
-    next_cost = costs.expected_frame_cost(expected_cpu_s=expected_frame_cpu_s(campaign=campaign),
-                                          price_per_cpu_hour=campaign.price_per_cpu_hour)
-    return costs.can_afford_frame(spent=total_spent(campaign=campaign), committed=committed_cost(campaign=campaign),
-                                  next_frame_cost=next_cost, cost_budget=campaign.cost_budget)
+    next_cost = costs.expected_frame_cost(
+        expected_cpu_s=expected_frame_cpu_s(campaign=campaign), price_per_cpu_hour=campaign.price_per_cpu_hour
+    )
+    return costs.can_afford_frame(
+        spent=total_spent(campaign=campaign),
+        committed=committed_cost(campaign=campaign),
+        next_frame_cost=next_cost,
+        cost_budget=campaign.cost_budget,
+    )
 
 
 def in_flight_placed(*, campaign: Campaign) -> Counter[str]:
     """Instances per class in frames dispatched but not finished (bounded by the in-flight limit)."""
     placed: Counter[str] = Counter()
     for composition in Frame.objects.filter(campaign=campaign, state__in=Frame.IN_FLIGHT_STATES).values_list(
-            "composition", flat=True):
+        "composition", flat=True
+    ):
         placed.update({k: int(v) for k, v in (composition or {}).items()})
     return placed
 
@@ -69,8 +83,9 @@ def in_flight_placed(*, campaign: Campaign) -> Counter[str]:
 def class_progress(*, campaign: Campaign, include_in_flight: bool = True) -> list[planner.ClassProgress]:
     flight = in_flight_placed(campaign=campaign) if include_in_flight else Counter()
     return [
-        planner.ClassProgress(name=name, target_accepted=target, accepted=accepted, placed=placed,
-                              in_flight_placed=flight.get(name, 0))
+        planner.ClassProgress(
+            name=name, target_accepted=target, accepted=accepted, placed=placed, in_flight_placed=flight.get(name, 0)
+        )
         for name, target, accepted, placed in ClassQuota.objects.filter(campaign=campaign)
         .order_by("object_class__name")
         .values_list("object_class__name", "target_accepted", "accepted_count", "placed_count")
@@ -119,45 +134,74 @@ def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
     campaign.refresh_from_db()
     quota_rows = [
         QuotaRow(
-            class_name=q["object_class__name"], target=q["target_accepted"], accepted=q["accepted_count"],
-            rejected=q["rejected_count"], placed=q["placed_count"],
+            class_name=q["object_class__name"],
+            target=q["target_accepted"],
+            accepted=q["accepted_count"],
+            rejected=q["rejected_count"],
+            placed=q["placed_count"],
             yield_estimate=planner.posterior_yield(accepted=q["accepted_count"], placed=q["placed_count"]),
             met=q["met_at"] is not None,
         )
-        for q in ClassQuota.objects.filter(campaign=campaign).order_by("object_class__name").values(
-            "object_class__name", "target_accepted", "accepted_count", "rejected_count", "placed_count", "met_at")
+        for q in ClassQuota.objects.filter(campaign=campaign)
+        .order_by("object_class__name")
+        .values("object_class__name", "target_accepted", "accepted_count", "rejected_count", "placed_count", "met_at")
     ]
     done = Frame.objects.filter(campaign=campaign, state=State.DONE)
     # record_result() sets cpu_s and wall_s on every frame it marks done: neither is None here.
-    recent = cast("list[tuple[float, float]]",
-                  list(done.order_by("-finished_at").values_list("cpu_s", "wall_s")[:RECENT_FRAMES_FOR_ESTIMATES]))
+    recent = cast(
+        "list[tuple[float, float]]",
+        list(done.order_by("-finished_at").values_list("cpu_s", "wall_s")[:RECENT_FRAMES_FOR_ESTIMATES]),
+    )
     median_cpu_s = statistics.median(r[0] for r in recent) if recent else None
     median_wall_s = statistics.median(r[1] for r in recent) if recent else None
     fixed = fixed_cost(campaign=campaign)
     compute = costs.money(campaign.compute_cost_spent)
-    amortized = costs.amortized_cost(fixed=fixed, compute_spent=compute, frames_done=campaign.frames_done,
-                                     accepted_instances=campaign.instances_accepted)
+    amortized = costs.amortized_cost(
+        fixed=fixed,
+        compute_spent=compute,
+        frames_done=campaign.frames_done,
+        accepted_instances=campaign.instances_accepted,
+    )
     live_slots = live_workers().aggregate(s=Sum("concurrency"))["s"] or 0
     progress = class_progress(campaign=campaign, include_in_flight=False)
     needed = sum(planner.placements_needed(progress).values())
     placed_total = sum(q.placed for q in quota_rows)
     per_frame = placed_total / campaign.frames_done if campaign.frames_done else 0.0
     expected_cpu = expected_frame_cpu_s(campaign=campaign)
-    cost_per_frame = costs.expected_frame_cost(expected_cpu_s=expected_cpu, price_per_cpu_hour=campaign.price_per_cpu_hour)
-    projection = costs.project_remaining(placements_needed=needed, instances_per_frame=per_frame,
-                                         cost_per_frame=cost_per_frame, wall_s_per_frame=median_wall_s,
-                                         parallel_slots=live_slots)
+    cost_per_frame = costs.expected_frame_cost(
+        expected_cpu_s=expected_cpu, price_per_cpu_hour=campaign.price_per_cpu_hour
+    )
+    projection = costs.project_remaining(
+        placements_needed=needed,
+        instances_per_frame=per_frame,
+        cost_per_frame=cost_per_frame,
+        wall_s_per_frame=median_wall_s,
+        parallel_slots=live_slots,
+    )
     total_target = sum(q.target for q in quota_rows)
     manual = costs.manual_labelling_cost(instances=total_target, rate_per_hour=campaign.manual_labelling_rate_per_hour)
     accepted_per_frame = campaign.instances_accepted / campaign.frames_done if campaign.frames_done else 0.0
-    break_even = costs.break_even_frames(fixed=fixed, compute_cost_per_frame=cost_per_frame,
-                                         accepted_per_frame=accepted_per_frame,
-                                         manual_cost_per_instance=manual.cost_per_instance)
+    break_even = costs.break_even_frames(
+        fixed=fixed,
+        compute_cost_per_frame=cost_per_frame,
+        accepted_per_frame=accepted_per_frame,
+        manual_cost_per_instance=manual.cost_per_instance,
+    )
     return CampaignSummary(
-        campaign=campaign, quotas=quota_rows, frames=frame_state_counts(campaign=campaign), fixed=fixed,
-        compute_spent=compute, total_spent=costs.money(fixed + compute), cpu_s_spent=campaign.cpu_s_spent,
-        median_cpu_s=median_cpu_s, median_wall_s=median_wall_s, amortized=amortized, projection=projection,
-        manual=manual, break_even_frames=break_even, live_slots=live_slots,
+        campaign=campaign,
+        quotas=quota_rows,
+        frames=frame_state_counts(campaign=campaign),
+        fixed=fixed,
+        compute_spent=compute,
+        total_spent=costs.money(fixed + compute),
+        cpu_s_spent=campaign.cpu_s_spent,
+        median_cpu_s=median_cpu_s,
+        median_wall_s=median_wall_s,
+        amortized=amortized,
+        projection=projection,
+        manual=manual,
+        break_even_frames=break_even,
+        live_slots=live_slots,
     )
 
 
@@ -209,18 +253,33 @@ def campaign_rows(*, campaigns: QuerySet[Campaign]) -> list[dict[str, _Any]]:
     ETA is the pace since start (accepted-towards-quota per second) applied to what is left: a simple, honest
     figure for a list; the campaign page has the planner-based projection.
     """
-    quota_target = ClassQuota.objects.filter(campaign=OuterRef("pk")).values("campaign").annotate(
-        s=Sum("target_accepted")).values("s")
-    quota_done = ClassQuota.objects.filter(campaign=OuterRef("pk")).values("campaign").annotate(
-        s=Sum(Least("accepted_count", "target_accepted"))).values("s")
-    asset_cost = Asset.objects.filter(campaigns=OuterRef("pk")).values("campaigns").annotate(
-        s=Sum("creation_cost")).values("s")
+    quota_target = (
+        ClassQuota.objects.filter(campaign=OuterRef("pk"))
+        .values("campaign")
+        .annotate(s=Sum("target_accepted"))
+        .values("s")
+    )
+    quota_done = (
+        ClassQuota.objects.filter(campaign=OuterRef("pk"))
+        .values("campaign")
+        .annotate(s=Sum(Least("accepted_count", "target_accepted")))
+        .values("s")
+    )
+    asset_cost = (
+        Asset.objects.filter(campaigns=OuterRef("pk")).values("campaigns").annotate(s=Sum("creation_cost")).values("s")
+    )
     money_field = DecimalField(max_digits=16, decimal_places=6)
-    rows = campaigns.select_related("team").annotate(
-        target_total=Coalesce(Subquery(quota_target, output_field=IntegerField()), 0),
-        towards_quota=Coalesce(Subquery(quota_done, output_field=IntegerField()), 0),
-        asset_cost=Coalesce(Subquery(asset_cost, output_field=money_field), Value(Decimal(0)), output_field=money_field),
-    ).order_by("-created_at")
+    rows = (
+        campaigns.select_related("team")
+        .annotate(
+            target_total=Coalesce(Subquery(quota_target, output_field=IntegerField()), 0),
+            towards_quota=Coalesce(Subquery(quota_done, output_field=IntegerField()), 0),
+            asset_cost=Coalesce(
+                Subquery(asset_cost, output_field=money_field), Value(Decimal(0)), output_field=money_field
+            ),
+        )
+        .order_by("-created_at")
+    )
     now = _timezone.now()
     out = []
     for c in rows:
@@ -230,9 +289,18 @@ def campaign_rows(*, campaigns: QuerySet[Campaign]) -> list[dict[str, _Any]]:
         if c.status == Campaign.Status.RUNNING and c.started_at and c.towards_quota:
             elapsed = (now - c.started_at).total_seconds()
             eta_s = (c.target_total - c.towards_quota) * elapsed / c.towards_quota
-        out.append({"campaign": c, "progress": progress, "progress_pct": round(100 * progress, 1),
-                    "spent": spent, "spent_pct": float(100 * spent / c.cost_budget) if c.cost_budget else 0.0,
-                    "eta_s": eta_s, "target_total": c.target_total, "towards_quota": c.towards_quota})
+        out.append(
+            {
+                "campaign": c,
+                "progress": progress,
+                "progress_pct": round(100 * progress, 1),
+                "spent": spent,
+                "spent_pct": float(100 * spent / c.cost_budget) if c.cost_budget else 0.0,
+                "eta_s": eta_s,
+                "target_total": c.target_total,
+                "towards_quota": c.towards_quota,
+            }
+        )
     return out
 
 
@@ -249,12 +317,20 @@ def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
     """
     size = _index_bucket_size(campaign=campaign)
     bucket = ExpressionWrapper(F("index") / size, output_field=IntegerField())
-    frames = list(Frame.objects.filter(campaign=campaign, state=State.DONE).annotate(b=bucket).values("b")
-                  .annotate(n=Count("pk"), cost=Sum("compute_cost"), cpu=Sum("cpu_s"), last=Max("finished_at"))
-                  .order_by("b"))
-    accepted = dict(Instance.objects.filter(campaign=campaign, accepted=True)
-                    .annotate(b=ExpressionWrapper(F("frame__index") / size, output_field=IntegerField()))
-                    .values("b").annotate(n=Count("pk")).values_list("b", "n"))
+    frames = list(
+        Frame.objects.filter(campaign=campaign, state=State.DONE)
+        .annotate(b=bucket)
+        .values("b")
+        .annotate(n=Count("pk"), cost=Sum("compute_cost"), cpu=Sum("cpu_s"), last=Max("finished_at"))
+        .order_by("b")
+    )
+    accepted = dict(
+        Instance.objects.filter(campaign=campaign, accepted=True)
+        .annotate(b=ExpressionWrapper(F("frame__index") / size, output_field=IntegerField()))
+        .values("b")
+        .annotate(n=Count("pk"))
+        .values_list("b", "n")
+    )
     fixed = fixed_cost(campaign=campaign)
     manual = costs.manual_labelling_cost(instances=1, rate_per_hour=campaign.manual_labelling_rate_per_hour)
     cumulative_frames, cumulative_cost, cumulative_accepted = 0, Decimal(fixed), 0
@@ -267,20 +343,34 @@ def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
         per_instance.append(float(cumulative_cost / cumulative_accepted) if cumulative_accepted else None)
         per_frame.append(float((row["cost"] or 0) / row["n"]))
         times.append(row["last"].isoformat() if row["last"] else None)
-    return {"bucket_frames": size, "frames": x_frames, "cost_per_accepted": per_instance,
-            "cost_per_frame": per_frame, "times": times, "manual_cost_per_instance": float(manual.cost_per_instance),
-            "fixed": float(fixed)}
+    return {
+        "bucket_frames": size,
+        "frames": x_frames,
+        "cost_per_accepted": per_instance,
+        "cost_per_frame": per_frame,
+        "times": times,
+        "manual_cost_per_instance": float(manual.cost_per_instance),
+        "fixed": float(fixed),
+    }
 
 
 def throughput(*, campaign: Campaign, minutes: int = 120) -> dict[str, _Any]:
     """Done frames per minute over the last ``minutes`` (one grouped query) and the rate of the last 10 minutes."""
     since = _timezone.now() - _timedelta(minutes=minutes)
-    rows = list(Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=since)
-                .annotate(m=TruncMinute("finished_at")).values("m").annotate(n=Count("pk")).order_by("m"))
+    rows = list(
+        Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=since)
+        .annotate(m=TruncMinute("finished_at"))
+        .values("m")
+        .annotate(n=Count("pk"))
+        .order_by("m")
+    )
     recent_since = _timezone.now() - _timedelta(minutes=10)
     recent = Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=recent_since).count()
-    return {"minutes": [r["m"].isoformat() for r in rows], "frames": [r["n"] for r in rows],
-            "frames_per_hour_10min": recent * 6}
+    return {
+        "minutes": [r["m"].isoformat() for r in rows],
+        "frames": [r["n"] for r in rows],
+        "frames_per_hour_10min": recent * 6,
+    }
 
 
 def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
@@ -289,16 +379,28 @@ def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
 
     now = _timezone.now()
     since = now - _timedelta(seconds=window_s)
-    per_host = {r["worker_host"]: r for r in Frame.objects.filter(state=State.DONE, finished_at__gte=since)
-                .values("worker_host").annotate(n=Count("pk"), cpu=Sum("cpu_s"))}
+    per_host = {
+        r["worker_host"]: r
+        for r in Frame.objects.filter(state=State.DONE, finished_at__gte=since)
+        .values("worker_host")
+        .annotate(n=Count("pk"), cpu=Sum("cpu_s"))
+    }
     out = []
     for w in live_workers().order_by("hostname"):
         seconds = max(1.0, min(window_s, (now - w.started_at).total_seconds()))
         row = per_host.get(w.hostname, {"n": 0, "cpu": 0.0})
-        out.append({"hostname": w.hostname, "machine": w.machine, "concurrency": w.concurrency,
-                    "variant": w.renderer_variant, "last_seen_s": round((now - w.last_seen).total_seconds(), 1),
-                    "frames_last_hour": row["n"], "frames_per_hour": round(row["n"] * 3600.0 / seconds, 1),
-                    "cpu_use": round((row["cpu"] or 0.0) / seconds / max(1, w.concurrency), 3)})
+        out.append(
+            {
+                "hostname": w.hostname,
+                "machine": w.machine,
+                "concurrency": w.concurrency,
+                "variant": w.renderer_variant,
+                "last_seen_s": round((now - w.last_seen).total_seconds(), 1),
+                "frames_last_hour": row["n"],
+                "frames_per_hour": round(row["n"] * 3600.0 / seconds, 1),
+                "cpu_use": round((row["cpu"] or 0.0) / seconds / max(1, w.concurrency), 3),
+            }
+        )
     return out
 
 
@@ -351,8 +453,9 @@ def distractor_count(spec: _Any) -> int | None:
     return 0 if isinstance(appearance, dict) and "distractor_count" in appearance else None
 
 
-def appearance_summary(*, families: Counter[str], distractor_counts: Sequence[int], frames: int,
-                       library: Sequence[str] = ()) -> dict[str, _Any]:
+def appearance_summary(
+    *, families: Counter[str], distractor_counts: Sequence[int], frames: int, library: Sequence[str] = ()
+) -> dict[str, _Any]:
     """What the overview shows of the frames' surfaces and distractors, from tallies over ``frames`` scene files.
 
     ``textures``: one row per family, most used first (plain surfaces last), with its share of all material slots;
@@ -364,10 +467,17 @@ def appearance_summary(*, families: Counter[str], distractor_counts: Sequence[in
     slots = sum(families.values())
     textured = slots - families.get(PLAIN_SURFACE, 0)
     top = max(families.values(), default=0)
-    rows = [{"family": family, "label": family.replace("_", " "), "slots": n, "plain": family == PLAIN_SURFACE,
-             "share_pct": round(100.0 * n / slots, 1) if slots else 0.0,
-             "bar_pct": round(100.0 * n / top, 1) if top else 0.0}
-            for family, n in sorted(families.items(), key=lambda item: (item[0] == PLAIN_SURFACE, -item[1], item[0]))]
+    rows = [
+        {
+            "family": family,
+            "label": family.replace("_", " "),
+            "slots": n,
+            "plain": family == PLAIN_SURFACE,
+            "share_pct": round(100.0 * n / slots, 1) if slots else 0.0,
+            "bar_pct": round(100.0 * n / top, 1) if top else 0.0,
+        }
+        for family, n in sorted(families.items(), key=lambda item: (item[0] == PLAIN_SURFACE, -item[1], item[0]))
+    ]
     distractors = None
     if distractor_counts:
         low, high = min(distractor_counts), max(distractor_counts)
@@ -379,14 +489,30 @@ def appearance_summary(*, families: Counter[str], distractor_counts: Sequence[in
             first = low + bar * width
             last = min(first + width - 1, high)
             n = per_bar.get(bar, 0)
-            bars.append({"label": str(first) if first == last else f"{first}–{last}", "frames": n,
-                         "height_pct": round(100.0 * n / tallest, 1)})
-        distractors = {"frames": len(distractor_counts), "min": low, "max": high,
-                       "median": statistics.median(distractor_counts), "bars": bars}
-    return {"frames": frames, "slots": slots, "families": sum(1 for r in rows if not r["plain"]),
-            "textured_pct": round(100.0 * textured / slots, 1) if slots else 0.0, "textures": rows,
-            "not_drawn": [name.replace("_", " ") for name in sorted(set(library) - set(families))],
-            "library_size": len(library), "distractors": distractors}
+            bars.append(
+                {
+                    "label": str(first) if first == last else f"{first}–{last}",
+                    "frames": n,
+                    "height_pct": round(100.0 * n / tallest, 1),
+                }
+            )
+        distractors = {
+            "frames": len(distractor_counts),
+            "min": low,
+            "max": high,
+            "median": statistics.median(distractor_counts),
+            "bars": bars,
+        }
+    return {
+        "frames": frames,
+        "slots": slots,
+        "families": sum(1 for r in rows if not r["plain"]),
+        "textured_pct": round(100.0 * textured / slots, 1) if slots else 0.0,
+        "textures": rows,
+        "not_drawn": [name.replace("_", " ") for name in sorted(set(library) - set(families))],
+        "library_size": len(library),
+        "distractors": distractors,
+    }
 
 
 def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) -> dict[str, _Any]:
@@ -400,8 +526,12 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
     """
     from django.conf import settings
 
-    dirs = list(Frame.objects.filter(campaign=campaign, state=State.DONE).exclude(output_dir="")
-                .order_by("-finished_at").values_list("output_dir", flat=True)[:limit])
+    dirs = list(
+        Frame.objects.filter(campaign=campaign, state=State.DONE)
+        .exclude(output_dir="")
+        .order_by("-finished_at")
+        .values_list("output_dir", flat=True)[:limit]
+    )
     root = _Path(settings.MEDIA_ROOT)
     values: dict[str, list[float]] = {k: [] for k in ("eye_height_m", "focal_length_mm", "f_number", "iso", "cct_k")}
     flux: dict[str, list[float]] = {}
@@ -439,16 +569,31 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
             azimuth.setdefault(name, []).append(round((_math.degrees(_math.atan2(dy, dx)) - front_deg) % 360.0, 2))
             elevation.setdefault(name, []).append(round(_math.degrees(_math.atan2(dz, _math.hypot(dx, dy))), 2))
     budget = campaign.budget
-    ranges = {"eye_height_m": budget["camera"]["eye_height_m"], "focal_length_mm": budget["camera"]["focal_length_mm"],
-              "f_number": budget["camera"]["f_number"], "iso": budget["camera"]["iso"],
-              "cct_k": budget["lighting"]["cct_k"]}
+    ranges = {
+        "eye_height_m": budget["camera"]["eye_height_m"],
+        "focal_length_mm": budget["camera"]["focal_length_mm"],
+        "f_number": budget["camera"]["f_number"],
+        "iso": budget["camera"]["iso"],
+        "cct_k": budget["lighting"]["cct_k"],
+    }
     flux_ranges = {kind: budget["lighting"].get(f"{kind}_flux_lm") for kind in flux}
-    return {"frames_read": len(dirs), "limit": limit, "frames_done": campaign.frames_done, "values": values,
-            "ranges": ranges, "flux": flux, "flux_ranges": flux_ranges, "azimuth_deg": azimuth,
-            "elevation_deg": elevation,
-            "appearance": {**appearance_summary(families=families, distractor_counts=distractor_counts,
-                                                frames=specs_read, library=_texture_library()),
-                           "distractor_range": budget.get("appearance", {}).get("distractor_count")}}
+    return {
+        "frames_read": len(dirs),
+        "limit": limit,
+        "frames_done": campaign.frames_done,
+        "values": values,
+        "ranges": ranges,
+        "flux": flux,
+        "flux_ranges": flux_ranges,
+        "azimuth_deg": azimuth,
+        "elevation_deg": elevation,
+        "appearance": {
+            **appearance_summary(
+                families=families, distractor_counts=distractor_counts, frames=specs_read, library=_texture_library()
+            ),
+            "distractor_range": budget.get("appearance", {}).get("distractor_count"),
+        },
+    }
 
 
 def _texture_library() -> tuple[str, ...]:
@@ -460,14 +605,19 @@ def _texture_library() -> tuple[str, ...]:
 
 
 def _ignored_after_death() -> Exists:
-    return Exists(FrameEvent.objects.filter(frame=OuterRef("pk"), to_state="ignored",
-                                            created_at__gte=OuterRef("finished_at")))
+    return Exists(
+        FrameEvent.objects.filter(frame=OuterRef("pk"), to_state="ignored", created_at__gte=OuterRef("finished_at"))
+    )
 
 
 def failed_frames(*, campaign: Campaign) -> QuerySet[Frame]:
     """Frames whose last attempt failed and that nobody ignored: dead ones, and ones waiting to retry."""
-    return (Frame.objects.filter(campaign=campaign, state__in=FAILED_STATES).exclude(error="")
-            .annotate(ignored=_ignored_after_death()).filter(ignored=False))
+    return (
+        Frame.objects.filter(campaign=campaign, state__in=FAILED_STATES)
+        .exclude(error="")
+        .annotate(ignored=_ignored_after_death())
+        .filter(ignored=False)
+    )
 
 
 def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
@@ -478,8 +628,11 @@ def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
     from campaigns.errors import error_kind
 
     groups: dict[str, dict[str, _Any]] = {}
-    for row in failed_frames(campaign=campaign).values("error").annotate(
-            n=Count("pk"), dead=Count("pk", filter=Q(state=State.DEAD)), last=Max("started_at")):
+    for row in (
+        failed_frames(campaign=campaign)
+        .values("error")
+        .annotate(n=Count("pk"), dead=Count("pk", filter=Q(state=State.DEAD)), last=Max("started_at"))
+    ):
         kind = error_kind(row["error"])
         g = groups.setdefault(kind, {"kind": kind, "count": 0, "dead": 0, "last": None})
         g["count"] += row["n"]
@@ -489,8 +642,9 @@ def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
     return sorted(groups.values(), key=lambda g: (-g["count"], g["kind"]))
 
 
-def gallery_frames(*, campaign: Campaign, class_name: str = "", accepted: str = "",
-                   min_visible_fraction: float | None = None) -> QuerySet[Frame]:
+def gallery_frames(
+    *, campaign: Campaign, class_name: str = "", accepted: str = "", min_visible_fraction: float | None = None
+) -> QuerySet[Frame]:
     """Done frames that hold at least one instance matching every given filter."""
     frames = Frame.objects.filter(campaign=campaign, state=State.DONE)
     match = instance_filter(class_name=class_name, accepted=accepted, min_visible_fraction=min_visible_fraction)
@@ -515,10 +669,25 @@ def instance_filter(*, class_name: str = "", accepted: str = "", min_visible_fra
 def frame_instances(*, frame_ids: Sequence[int]) -> dict[int, list[Mapping[str, _Any]]]:
     """Instances of some frames (one query), for box overlays and labels tables."""
     out: dict[int, list[Mapping[str, _Any]]] = {fid: [] for fid in frame_ids}
-    for row in Instance.objects.filter(frame_id__in=list(frame_ids)).order_by("frame_id", "instance_id").values(
-            "frame_id", "instance_id", "object_class__name", "asset_id", "bbox_xywh_px", "amodal_bbox_xywh_px",
-            "visible_fraction", "contrast", "occlusion_fraction", "truncation_fraction", "mask_area_px", "accepted",
-            "reject_reasons"):
+    for row in (
+        Instance.objects.filter(frame_id__in=list(frame_ids))
+        .order_by("frame_id", "instance_id")
+        .values(
+            "frame_id",
+            "instance_id",
+            "object_class__name",
+            "asset_id",
+            "bbox_xywh_px",
+            "amodal_bbox_xywh_px",
+            "visible_fraction",
+            "contrast",
+            "occlusion_fraction",
+            "truncation_fraction",
+            "mask_area_px",
+            "accepted",
+            "reject_reasons",
+        )
+    ):
         out[row["frame_id"]].append(row)
     return out
 
@@ -532,19 +701,33 @@ def asset_library(*, user: _Any) -> list[dict[str, _Any]]:
     """
     from teams.permissions import scope_to_user
 
-    assets = scope_to_user(Asset.objects.all(), user=user, include_shared=True).select_related(
-        "object_class", "team").order_by("object_class__name", "kind", "name")
+    assets = (
+        scope_to_user(Asset.objects.all(), user=user, include_shared=True)
+        .select_related("object_class", "team")
+        .order_by("object_class__name", "kind", "name")
+    )
     visible = scope_to_user(Instance.objects.all(), user=user, team_field="campaign__team")
-    by_class = dict(visible.values("object_class__name").annotate(n=Count("frame", distinct=True))
-                    .values_list("object_class__name", "n"))
-    by_asset_id = dict(visible.filter(asset_id__startswith="user/").values("asset_id")
-                       .annotate(n=Count("frame", distinct=True)).values_list("asset_id", "n"))
+    by_class = dict(
+        visible.values("object_class__name")
+        .annotate(n=Count("frame", distinct=True))
+        .values_list("object_class__name", "n")
+    )
+    by_asset_id = dict(
+        visible.filter(asset_id__startswith="user/")
+        .values("asset_id")
+        .annotate(n=Count("frame", distinct=True))
+        .values_list("asset_id", "n")
+    )
     out = []
     for a in assets:
-        frames = by_class.get(a.object_class.name, 0) if a.kind == Asset.Kind.PROCEDURAL else by_asset_id.get(
-            f"user/{a.pk}", 0)
-        out.append({"asset": a, "frames": frames,
-                    "per_appearance": costs.money(a.creation_cost / frames) if frames else None})
+        frames = (
+            by_class.get(a.object_class.name, 0)
+            if a.kind == Asset.Kind.PROCEDURAL
+            else by_asset_id.get(f"user/{a.pk}", 0)
+        )
+        out.append(
+            {"asset": a, "frames": frames, "per_appearance": costs.money(a.creation_cost / frames) if frames else None}
+        )
     return out
 
 
@@ -574,10 +757,15 @@ def frame_time_estimate(*, width_px: int, height_px: int, spp: int, history: Que
     samples.
     """
     samples = width_px * height_px * spp
-    stats = {r["campaign"]: r for r in Frame.objects.filter(
-        campaign__in=history.values("pk")[:HISTORY_CAMPAIGNS], state=State.DONE, cpu_s__isnull=False)
-        .values("campaign").annotate(n=Count("pk"), cpu=Avg("cpu_s"), wall=Avg("wall_s"))
-        if r["n"] >= HISTORY_MIN_FRAMES}
+    stats = {
+        r["campaign"]: r
+        for r in Frame.objects.filter(
+            campaign__in=history.values("pk")[:HISTORY_CAMPAIGNS], state=State.DONE, cpu_s__isnull=False
+        )
+        .values("campaign")
+        .annotate(n=Count("pk"), cpu=Avg("cpu_s"), wall=Avg("wall_s"))
+        if r["n"] >= HISTORY_MIN_FRAMES
+    }
     candidates = []
     for pk, budget in Campaign.objects.filter(pk__in=list(stats)).values_list("pk", "budget"):
         r = budget.get("render", {})
@@ -596,14 +784,22 @@ def frame_time_estimate(*, width_px: int, height_px: int, spp: int, history: Que
             cpu_sum += scaled * s["n"]
             wall_ratio_sum += (s["wall"] / s["cpu"] if s["cpu"] else 1.0) * s["n"]
             names.append(f"{r['width_px']}×{r['height_px']} px × {r['spp']} spp ({s['n']} frames)")
-        return FrameTimeEstimate(cpu_s=cpu_sum / total_n, wall_per_cpu=wall_ratio_sum / total_n, source="history",
-                                 detail="history of " + "; ".join(names) + ", scaled by pixels × spp")
+        return FrameTimeEstimate(
+            cpu_s=cpu_sum / total_n,
+            wall_per_cpu=wall_ratio_sum / total_n,
+            source="history",
+            detail="history of " + "; ".join(names) + ", scaled by pixels × spp",
+        )
     return FrameTimeEstimate(
-        cpu_s=costs.prior_frame_cpu_s(width_px=width_px, height_px=height_px, spp=spp), wall_per_cpu=1.0,
+        cpu_s=costs.prior_frame_cpu_s(width_px=width_px, height_px=height_px, spp=spp),
+        wall_per_cpu=1.0,
         source="constant",
-        detail=(f"no similar campaign has finished frames yet: the constant measured on this machine, "
-                f"{costs.PRIOR_FRAME_OVERHEAD_CPU_S:g} CPU s per frame + {costs.PRIOR_CPU_S_PER_SAMPLE * 1e6:g} CPU s "
-                "per megapixel-sample"))
+        detail=(
+            f"no similar campaign has finished frames yet: the constant measured on this machine, "
+            f"{costs.PRIOR_FRAME_OVERHEAD_CPU_S:g} CPU s per frame + {costs.PRIOR_CPU_S_PER_SAMPLE * 1e6:g} CPU s "
+            "per megapixel-sample"
+        ),
+    )
 
 
 @dataclass(frozen=True)
@@ -626,9 +822,16 @@ class PlanEstimate:
     yields: dict[str, float]
 
 
-def plan_estimate(*, budget: dict[str, _Any], targets: dict[str, int], cost_budget: Decimal,
-                  price_per_cpu_hour: Decimal, setup_cost: Decimal, manual_rate_per_hour: Decimal,
-                  history: QuerySet[Campaign]) -> PlanEstimate:
+def plan_estimate(
+    *,
+    budget: dict[str, _Any],
+    targets: dict[str, int],
+    cost_budget: Decimal,
+    price_per_cpu_hour: Decimal,
+    setup_cost: Decimal,
+    manual_rate_per_hour: Decimal,
+    history: QuerySet[Campaign],
+) -> PlanEstimate:
     """Frames, CPU-hours, cost, time on the live workers and cost per accepted instance for a planned campaign.
 
     Frames: each class needs ``target / yield`` placements, with the yield per class from the history of the
@@ -639,12 +842,21 @@ def plan_estimate(*, budget: dict[str, _Any], targets: dict[str, int], cost_budg
     from fleet.models import live_workers
 
     render = budget["render"]
-    frame_time = frame_time_estimate(width_px=render["width_px"], height_px=render["height_px"], spp=render["spp"],
-                                     history=history)
-    seen: dict[str, Mapping[str, _Any]] = {r["object_class__name"]: r for r in ClassQuota.objects.filter(campaign__in=history.values("pk"))
-            .values("object_class__name").annotate(a=Sum("accepted_count"), p=Sum("placed_count"))}
-    yields = {name: planner.posterior_yield(accepted=seen.get(name, {}).get("a") or 0,
-                                            placed=seen.get(name, {}).get("p") or 0) for name in targets}
+    frame_time = frame_time_estimate(
+        width_px=render["width_px"], height_px=render["height_px"], spp=render["spp"], history=history
+    )
+    seen: dict[str, Mapping[str, _Any]] = {
+        r["object_class__name"]: r
+        for r in ClassQuota.objects.filter(campaign__in=history.values("pk"))
+        .values("object_class__name")
+        .annotate(a=Sum("accepted_count"), p=Sum("placed_count"))
+    }
+    yields = {
+        name: planner.posterior_yield(
+            accepted=seen.get(name, {}).get("a") or 0, placed=seen.get(name, {}).get("p") or 0
+        )
+        for name in targets
+    }
     placements = sum(t / yields[n] for n, t in targets.items())
     room = budget["room"]
     area = (sum(room["width_m"]) / 2) * (sum(room["depth_m"]) / 2)
@@ -653,7 +865,8 @@ def plan_estimate(*, budget: dict[str, _Any], targets: dict[str, int], cost_budg
     cpu_s = frames * frame_time.cpu_s
     compute = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=price_per_cpu_hour)
     creation = Asset.objects.filter(object_class__name__in=list(targets), team__isnull=True).aggregate(
-        s=Sum("creation_cost"))["s"] or Decimal(0)
+        s=Sum("creation_cost")
+    )["s"] or Decimal(0)
     fixed = costs.fixed_cost(asset_creation_costs=[creation], setup_cost=setup_cost)
     total = costs.money(fixed + compute)
     slots = live_workers().aggregate(s=Sum("concurrency"))["s"] or 0
@@ -661,11 +874,23 @@ def plan_estimate(*, budget: dict[str, _Any], targets: dict[str, int], cost_budg
     instances = sum(targets.values())
     manual = costs.manual_labelling_cost(instances=instances, rate_per_hour=manual_rate_per_hour)
     return PlanEstimate(
-        frames=frames, instances_per_frame=per_frame, cpu_hours=cpu_s / 3600.0, compute_cost=compute, fixed_cost=fixed,
-        total_cost=total, within_budget=total <= cost_budget, wall_s_on_fleet=wall, live_slots=slots,
+        frames=frames,
+        instances_per_frame=per_frame,
+        cpu_hours=cpu_s / 3600.0,
+        compute_cost=compute,
+        fixed_cost=fixed,
+        total_cost=total,
+        within_budget=total <= cost_budget,
+        wall_s_on_fleet=wall,
+        live_slots=slots,
         cost_per_accepted=costs.money(total / instances) if instances else None,
-        manual_cost_per_instance=manual.cost_per_instance, manual_total=manual.cost_for_instances,
-        frame_cpu_s=frame_time.cpu_s, source=frame_time.source, detail=frame_time.detail, yields=yields)
+        manual_cost_per_instance=manual.cost_per_instance,
+        manual_total=manual.cost_for_instances,
+        frame_cpu_s=frame_time.cpu_s,
+        source=frame_time.source,
+        detail=frame_time.detail,
+        yields=yields,
+    )
 
 
 def campaign_live(*, campaign: Campaign) -> dict[str, _Any]:
@@ -678,33 +903,53 @@ def campaign_live(*, campaign: Campaign) -> dict[str, _Any]:
     imbalance = (max(ratios) / min(ratios)) if ratios and min(ratios) > 0 else None
     towards = sum(min(a, t) for a, t in zip(accepted, targets, strict=True))
     return {
-        "status": c.status, "status_label": c.get_status_display(), "pause_reason": c.get_pause_reason_display()
-        if c.pause_reason else "", "pause_detail": c.pause_detail,
-        "frames": s.frames, "frames_done": c.frames_done, "frames_dead": c.frames_dead,
-        "instances_accepted": c.instances_accepted, "instances_rejected": c.instances_rejected,
+        "status": c.status,
+        "status_label": c.get_status_display(),
+        "pause_reason": c.get_pause_reason_display() if c.pause_reason else "",
+        "pause_detail": c.pause_detail,
+        "frames": s.frames,
+        "frames_done": c.frames_done,
+        "frames_dead": c.frames_dead,
+        "instances_accepted": c.instances_accepted,
+        "instances_rejected": c.instances_rejected,
         "progress_pct": round(100 * towards / sum(targets), 1) if sum(targets) else 0.0,
-        "quotas": [{"class_name": q.class_name, "target": q.target, "accepted": q.accepted, "rejected": q.rejected,
-                    "placed": q.placed, "yield": round(q.yield_estimate, 3), "met": q.met,
-                    "pct": round(100 * min(1.0, q.accepted / q.target), 1) if q.target else 100.0}
-                   for q in s.quotas],
+        "quotas": [
+            {
+                "class_name": q.class_name,
+                "target": q.target,
+                "accepted": q.accepted,
+                "rejected": q.rejected,
+                "placed": q.placed,
+                "yield": round(q.yield_estimate, 3),
+                "met": q.met,
+                "pct": round(100 * min(1.0, q.accepted / q.target), 1) if q.target else 100.0,
+            }
+            for q in s.quotas
+        ],
         "imbalance_ratio": round(imbalance, 2) if imbalance else None,
         "spent": str(costs.money(s.total_spent).quantize(Decimal("0.0001"))),
         "spent_pct": round(float(100 * s.total_spent / c.cost_budget), 1) if c.cost_budget else 0.0,
-        "cost_budget": str(c.cost_budget), "fixed": str(s.fixed), "compute": str(s.compute_spent.quantize(
-            Decimal("0.0001"))), "cpu_s": round(s.cpu_s_spent, 1),
+        "cost_budget": str(c.cost_budget),
+        "fixed": str(s.fixed),
+        "compute": str(s.compute_spent.quantize(Decimal("0.0001"))),
+        "cpu_s": round(s.cpu_s_spent, 1),
         "per_accepted": str(s.amortized.per_accepted_instance.quantize(Decimal("0.0001")))
-        if s.amortized.per_accepted_instance is not None else None,
+        if s.amortized.per_accepted_instance is not None
+        else None,
         "manual_per_instance": str(s.manual.cost_per_instance.quantize(Decimal("0.0001"))),
         "break_even_frames": s.break_even_frames,
         "median_cpu_s": round(s.median_cpu_s, 2) if s.median_cpu_s is not None else None,
         "median_wall_s": round(s.median_wall_s, 2) if s.median_wall_s is not None else None,
         "frames_remaining": s.projection.frames_remaining,
         "cost_remaining": str(s.projection.cost_remaining.quantize(Decimal("0.0001")))
-        if s.projection.cost_remaining is not None else None,
+        if s.projection.cost_remaining is not None
+        else None,
         "eta_s": round(s.projection.seconds_remaining) if s.projection.seconds_remaining is not None else None,
         "live_slots": s.live_slots,
         "failed_open": failed_frames(campaign=c).count(),
-        "series": cost_series(campaign=c), "throughput": throughput(campaign=c), "fleet": fleet(),
+        "series": cost_series(campaign=c),
+        "throughput": throughput(campaign=c),
+        "fleet": fleet(),
     }
 
 
@@ -737,8 +982,9 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
         CLASSES = {}
     root = _Path(settings.MEDIA_ROOT).resolve()
     out: dict[str, list[dict[str, str]]] = {}
-    for asset in (campaign.assets.filter(kind=Asset.Kind.MESH).exclude(mesh_file="")
-                  .select_related("object_class").order_by("pk")):
+    for asset in (
+        campaign.assets.filter(kind=Asset.Kind.MESH).exclude(mesh_file="").select_related("object_class").order_by("pk")
+    ):
         if asset.mesh_file.name is None:  # excluded by the query (mesh_file="" is no file)
             continue
         path = (root / asset.mesh_file.name).resolve()
@@ -746,8 +992,15 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
             continue
         asset_class = CLASSES.get(asset.object_class.name)
         placement = _USER_PLACEMENT_BY_CLASS_RULE.get(asset_class.placement if asset_class else "floor", "floor")
-        out.setdefault(asset.object_class.name, []).append({
-            "asset_id": f"user/{asset.pk}", "mesh_path": str(path), "unit": asset.mesh_unit or "auto",
-            "up_axis": asset.up_axis or "z", "placement": placement, "front": asset.front or "",
-            "look": asset.look or "randomize"})
+        out.setdefault(asset.object_class.name, []).append(
+            {
+                "asset_id": f"user/{asset.pk}",
+                "mesh_path": str(path),
+                "unit": asset.mesh_unit or "auto",
+                "up_axis": asset.up_axis or "z",
+                "placement": placement,
+                "front": asset.front or "",
+                "look": asset.look or "randomize",
+            }
+        )
     return out

@@ -65,8 +65,16 @@ class CampaignError(ValueError):
     ``message`` is the text for that input. ``str(error)`` reads ``"field: message"`` for commands and logs.
     """
 
-    def __init__(self, message: str, *, field: str = "", class_name: str | None = None, column: str = "",
-                 budget_field: tuple[str, str, str] | None = None, detail: str = "") -> None:
+    def __init__(
+        self,
+        message: str,
+        *,
+        field: str = "",
+        class_name: str | None = None,
+        column: str = "",
+        budget_field: tuple[str, str, str] | None = None,
+        detail: str = "",
+    ) -> None:
         self.message = message
         self.field = field
         self.class_name = class_name
@@ -130,10 +138,23 @@ def _name_guard(conflict: Callable[[], CampaignError | None]) -> Iterator[None]:
         raise error from None
 
 
-def _event(*, campaign_id: int, to_state: str, from_state: str = "", frame_id: int | None = None,
-           worker_host: str = "", detail: str = "") -> None:
-    FrameEvent.objects.create(campaign_id=campaign_id, frame_id=frame_id, from_state=from_state, to_state=to_state,
-                              worker_host=worker_host[:255], detail=detail)
+def _event(
+    *,
+    campaign_id: int,
+    to_state: str,
+    from_state: str = "",
+    frame_id: int | None = None,
+    worker_host: str = "",
+    detail: str = "",
+) -> None:
+    FrameEvent.objects.create(
+        campaign_id=campaign_id,
+        frame_id=frame_id,
+        from_state=from_state,
+        to_state=to_state,
+        worker_host=worker_host[:255],
+        detail=detail,
+    )
 
 
 # Largest accepted money values: below what the DecimalFields can store (max_digits), so input is refused
@@ -180,14 +201,22 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
     try:
         normalized = normalize_budget(dict(budget or {}))
     except BudgetError as exc:
-        raise CampaignError(str(exc), field="budget", detail=exc.detail,
-                            budget_field=(exc.section, exc.name, exc.part) if exc.name else None) from exc
+        raise CampaignError(
+            str(exc),
+            field="budget",
+            detail=exc.detail,
+            budget_field=(exc.section, exc.name, exc.part) if exc.name else None,
+        ) from exc
     render = normalized["render"]
     pixels = render["width_px"] * render["height_px"]
     if pixels > MAX_CAMPAIGN_PIXELS:
         detail = f"{pixels} px exceeds the campaign cap of {MAX_CAMPAIGN_PIXELS} px (1920×1080)"
-        raise CampaignError(f"render.width_px × height_px = {detail}", field="budget", detail=detail,
-                            budget_field=("render", "width_px", ""))
+        raise CampaignError(
+            f"render.width_px × height_px = {detail}",
+            field="budget",
+            detail=detail,
+            budget_field=("render", "width_px", ""),
+        )
     if render["spp"] > MAX_CAMPAIGN_SPP:
         detail = f"{render['spp']} exceeds the campaign cap of {MAX_CAMPAIGN_SPP}"
         raise CampaignError(f"render.spp {detail}", field="budget", detail=detail, budget_field=("render", "spp", ""))
@@ -210,13 +239,16 @@ def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapp
         if not isinstance(q.class_name, str):
             raise CampaignError(f"class name must be text, got {q.class_name!r}", field="quota")
     # A name with NUL cannot exist (PostgreSQL text cannot hold it, and refuses it even in a lookup): unknown.
-    classes = {c.name: c for c in ObjectClass.objects.filter(
-        name__in=[q.class_name for q in quotas if "\x00" not in q.class_name])}
+    classes = {
+        c.name: c
+        for c in ObjectClass.objects.filter(name__in=[q.class_name for q in quotas if "\x00" not in q.class_name])
+    }
     thresholds = normalized_budget["thresholds"]
     longest_side_px = max(normalized_budget["render"]["width_px"], normalized_budget["render"]["height_px"])
     seen: set[str] = set()
     clean: list[_CleanQuota] = []
     for q in quotas:
+
         def where(column: str = "target_accepted", class_name: str = q.class_name) -> dict[str, Any]:
             """The error's place: this quota row's ``column`` (a QuotaInput attribute)."""
             return {"field": "quota", "class_name": class_name, "column": column}
@@ -229,23 +261,36 @@ def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapp
         if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
             raise CampaignError(f"target must be a whole number, got {q.target_accepted!r}", **where())
         if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
-            raise CampaignError(f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}",
-                                **where())
-        vis = thresholds["min_visible_fraction"] if q.min_visible_fraction is None else _finite(
-            q.min_visible_fraction, "min visible fraction", **where("min_visible_fraction"))
-        box = thresholds["min_box_px"] if q.min_box_px is None else _finite(
-            q.min_box_px, "min box size", **where("min_box_px"))
-        contrast = thresholds["min_contrast"] if q.min_contrast is None else _finite(
-            q.min_contrast, "min contrast", **where("min_contrast"))
+            raise CampaignError(
+                f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}", **where()
+            )
+        vis = (
+            thresholds["min_visible_fraction"]
+            if q.min_visible_fraction is None
+            else _finite(q.min_visible_fraction, "min visible fraction", **where("min_visible_fraction"))
+        )
+        box = (
+            thresholds["min_box_px"]
+            if q.min_box_px is None
+            else _finite(q.min_box_px, "min box size", **where("min_box_px"))
+        )
+        contrast = (
+            thresholds["min_contrast"]
+            if q.min_contrast is None
+            else _finite(q.min_contrast, "min contrast", **where("min_contrast"))
+        )
         if not 0.0 <= vis <= 1.0:
-            raise CampaignError(f"min visible fraction must be between 0 and 1, got {vis}",
-                                **where("min_visible_fraction"))
+            raise CampaignError(
+                f"min visible fraction must be between 0 and 1, got {vis}", **where("min_visible_fraction")
+            )
         if not 0.0 <= box <= longest_side_px:
-            raise CampaignError(f"min box size must be between 0 and {longest_side_px} px, got {box}",
-                                **where("min_box_px"))
+            raise CampaignError(
+                f"min box size must be between 0 and {longest_side_px} px, got {box}", **where("min_box_px")
+            )
         if not 0.0 <= contrast <= max_contrast:
-            raise CampaignError(f"min contrast must be between 0 and {max_contrast:g}, got {contrast:g}",
-                                **where("min_contrast"))
+            raise CampaignError(
+                f"min contrast must be between 0 and {max_contrast:g}, got {contrast:g}", **where("min_contrast")
+            )
         clean.append(_CleanQuota(classes[q.class_name], q.target_accepted, vis, box, contrast))
     if sum(q.target_accepted for q in clean) == 0:
         raise CampaignError("every target is 0; nothing to render", field="quotas")
@@ -291,15 +336,25 @@ class _Settings:
     max_attempts: int
 
 
-def _clean_settings(*, cost_budget: Any, price_per_cpu_hour: Any, setup_cost: Any,
-                    manual_labelling_rate_per_hour: Any, weight: Any, seed: Any, max_attempts: Any) -> _Settings:
+def _clean_settings(
+    *,
+    cost_budget: Any,
+    price_per_cpu_hour: Any,
+    setup_cost: Any,
+    manual_labelling_rate_per_hour: Any,
+    weight: Any,
+    seed: Any,
+    max_attempts: Any,
+) -> _Settings:
     """The money and run settings shared by :func:`create_campaign` and :func:`update_draft_campaign`."""
     settings = _Settings(
         cost_budget=_decimal(cost_budget, "cost_budget"),
         price_per_cpu_hour=_decimal(price_per_cpu_hour, "price_per_cpu_hour"),
         setup_cost=_decimal(setup_cost, "setup_cost"),
         manual_labelling_rate_per_hour=_decimal(manual_labelling_rate_per_hour, "manual_labelling_rate_per_hour"),
-        weight=weight, seed=seed, max_attempts=max_attempts,
+        weight=weight,
+        seed=seed,
+        max_attempts=max_attempts,
     )
     if isinstance(weight, bool) or not isinstance(weight, int) or not 1 <= weight <= MAX_WEIGHT:
         raise CampaignError(f"must be a whole number from 1 to {MAX_WEIGHT}, got {weight!r}", field="weight")
@@ -323,8 +378,12 @@ def default_campaign_assets(*, team_id: int | None, class_names: Iterable[str]) 
     campaign that did not ask for it.
     """
     names = set(class_names)
-    usable = list(_usable_assets(team_id=team_id).filter(object_class__name__in=names)
-                  .select_related("object_class").order_by("object_class__name", "pk"))
+    usable = list(
+        _usable_assets(team_id=team_id)
+        .filter(object_class__name__in=names)
+        .select_related("object_class")
+        .order_by("object_class__name", "pk")
+    )
     chosen = [a for a in usable if a.kind == Asset.Kind.PROCEDURAL]
     with_generator = {a.object_class_id for a in chosen}
     by_class: dict[int, list[Asset]] = {}
@@ -339,24 +398,35 @@ def _chosen_assets(*, team_id: int | None, asset_ids: Iterable[int]) -> list[Ass
     wanted = set(asset_ids)
     assets = list(_usable_assets(team_id=team_id).filter(pk__in=wanted))
     if len(assets) != len(wanted):
-        raise CampaignError(f"{len(wanted) - len(assets)} asset(s) are unknown or belong to another team",
-                            field="assets")
+        raise CampaignError(
+            f"{len(wanted) - len(assets)} asset(s) are unknown or belong to another team", field="assets"
+        )
     return assets
 
 
 def _write_quotas(*, campaign: Campaign, clean: Sequence[_CleanQuota]) -> None:
-    ClassQuota.objects.bulk_create([
-        ClassQuota(campaign=campaign, object_class=q.object_class, target_accepted=q.target_accepted,
-                   min_visible_fraction=q.min_visible_fraction, min_box_px=q.min_box_px, min_contrast=q.min_contrast)
-        for q in clean
-    ])
+    ClassQuota.objects.bulk_create(
+        [
+            ClassQuota(
+                campaign=campaign,
+                object_class=q.object_class,
+                target_accepted=q.target_accepted,
+                min_visible_fraction=q.min_visible_fraction,
+                min_box_px=q.min_box_px,
+                min_contrast=q.min_contrast,
+            )
+            for q in clean
+        ]
+    )
 
 
 def _check_fixed_cost(*, assets: Sequence[Asset], settings: _Settings) -> None:
     fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=settings.setup_cost)
     if fixed > settings.cost_budget:
-        raise CampaignError(f"{settings.cost_budget} is less than the fixed costs {fixed} "
-                            "(setup cost plus asset creation costs)", field="cost_budget")
+        raise CampaignError(
+            f"{settings.cost_budget} is less than the fixed costs {fixed} (setup cost plus asset creation costs)",
+            field="cost_budget",
+        )
 
 
 @transaction.atomic
@@ -390,9 +460,15 @@ def create_campaign(
     if conflict := _campaign_name_conflict(team_id=team.pk, name=name):
         raise conflict
     normalized = normalize_campaign_budget(budget)
-    settings = _clean_settings(cost_budget=cost_budget, price_per_cpu_hour=price_per_cpu_hour, setup_cost=setup_cost,
-                               manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
-                               max_attempts=max_attempts)
+    settings = _clean_settings(
+        cost_budget=cost_budget,
+        price_per_cpu_hour=price_per_cpu_hour,
+        setup_cost=setup_cost,
+        manual_labelling_rate_per_hour=manual_labelling_rate_per_hour,
+        weight=weight,
+        seed=seed,
+        max_attempts=max_attempts,
+    )
     clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
     if asset_ids is not None:
         assets = _chosen_assets(team_id=team.pk, asset_ids=asset_ids)
@@ -401,10 +477,18 @@ def create_campaign(
     _check_fixed_cost(assets=assets, settings=settings)
     with _name_guard(lambda: _campaign_name_conflict(team_id=team.pk, name=name)):
         campaign = Campaign.objects.create(
-            name=name, team=team, owner=owner, description=description, seed=settings.seed, budget=normalized,
-            cost_budget=settings.cost_budget, price_per_cpu_hour=settings.price_per_cpu_hour,
-            setup_cost=settings.setup_cost, manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
-            weight=settings.weight, max_attempts=settings.max_attempts,
+            name=name,
+            team=team,
+            owner=owner,
+            description=description,
+            seed=settings.seed,
+            budget=normalized,
+            cost_budget=settings.cost_budget,
+            price_per_cpu_hour=settings.price_per_cpu_hour,
+            setup_cost=settings.setup_cost,
+            manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
+            weight=settings.weight,
+            max_attempts=settings.max_attempts,
         )
     campaign.assets.set(assets)
     _write_quotas(campaign=campaign, clean=clean)
@@ -412,11 +496,12 @@ def create_campaign(
     return campaign
 
 
-def set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "",
-                allowed_from: Sequence[str]) -> None:
+def set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "", allowed_from: Sequence[str]) -> None:
     if campaign.status not in allowed_from:
-        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; cannot go to {to} "
-                            f"(allowed from: {', '.join(allowed_from)})")
+        raise CampaignError(
+            f"campaign {campaign.name!r} is {campaign.status}; cannot go to {to} "
+            f"(allowed from: {', '.join(allowed_from)})"
+        )
     now = timezone.now()
     fields: dict[str, Any] = {"status": to, "pause_reason": reason, "pause_detail": detail[:500]}
     if to == Status.RUNNING and campaign.started_at is None:
@@ -424,8 +509,12 @@ def set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "
     if to in (Status.COMPLETED, Status.CANCELLED):
         fields["finished_at"] = now
     Campaign.objects.filter(pk=campaign.pk).update(**fields)
-    _event(campaign_id=campaign.pk, from_state=campaign.status, to_state=to,
-           detail=" — ".join(x for x in (reason, detail) if x))
+    _event(
+        campaign_id=campaign.pk,
+        from_state=campaign.status,
+        to_state=to,
+        detail=" — ".join(x for x in (reason, detail) if x),
+    )
     for key, value in fields.items():
         setattr(campaign, key, value)
 
@@ -436,8 +525,7 @@ def revoke_waiting_frames(campaign: Campaign, *, detail: str, states: Sequence[s
     task_ids = []
     for frame_id, state, task_id in waiting:
         if Frame.objects.filter(pk=frame_id, state=state).update(state=State.REVOKED, retry_at=None):
-            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=state, to_state=State.REVOKED,
-                   detail=detail)
+            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=state, to_state=State.REVOKED, detail=detail)
             if task_id:
                 task_ids.append(task_id)
     return task_ids
@@ -482,7 +570,9 @@ def cancel_campaign(*, campaign_id: int) -> Campaign:
     """Any unfinished status → cancelled; waiting frames are revoked for good."""
     campaign = lock_campaign(campaign_id)
     set_status(campaign, Status.CANCELLED, allowed_from=(Status.DRAFT, Status.RUNNING, Status.PAUSED))
-    messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail="campaign cancelled", states=(State.QUEUED, State.FAILED)))
+    messaging.revoke_on_commit(
+        revoke_waiting_frames(campaign, detail="campaign cancelled", states=(State.QUEUED, State.FAILED))
+    )
     return campaign
 
 
@@ -491,8 +581,12 @@ def set_cost_budget(*, campaign_id: int, cost_budget: Decimal | float | str) -> 
     campaign = lock_campaign(campaign_id)
     value = _decimal(cost_budget, "cost_budget")
     Campaign.objects.filter(pk=campaign.pk).update(cost_budget=value)
-    _event(campaign_id=campaign.pk, from_state=campaign.status, to_state=campaign.status,
-           detail=f"cost budget {campaign.cost_budget} → {value}")
+    _event(
+        campaign_id=campaign.pk,
+        from_state=campaign.status,
+        to_state=campaign.status,
+        detail=f"cost budget {campaign.cost_budget} → {value}",
+    )
     campaign.cost_budget = value
     return campaign
 
@@ -500,22 +594,37 @@ def set_cost_budget(*, campaign_id: int, cost_budget: Decimal | float | str) -> 
 # --- frames: created by the scheduler ----------------------------------------------------------------
 
 
-def create_frame(*, campaign: Campaign, index: int, coordinates: tuple[int, int, int], composition: dict[str, int],
-                 expected_cpu_s: float, task_id_prefix: str = messaging.TASK_ID_PREFIX) -> Frame:
+def create_frame(
+    *,
+    campaign: Campaign,
+    index: int,
+    coordinates: tuple[int, int, int],
+    composition: dict[str, int],
+    expected_cpu_s: float,
+    task_id_prefix: str = messaging.TASK_ID_PREFIX,
+) -> Frame:
     """A new queued frame; call inside the scheduler's transaction (campaign row locked). ``task_id_prefix``: tests
     that record frames without a broker mark their task ids apart."""
     layout, lighting, view = coordinates
-    seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=index, layout_index=layout,
-                                lighting_index=lighting, view_index=view)
+    seeds = planner.frame_seeds(
+        campaign_seed=campaign.seed, index=index, layout_index=layout, lighting_index=lighting, view_index=view
+    )
     now = timezone.now()
     frame = Frame.objects.create(
-        campaign=campaign, index=index, seed=seeds.seed, layout_index=layout, lighting_index=lighting,
-        view_index=view, composition=dict(sorted(composition.items())), state=State.QUEUED, dispatch_count=1,
+        campaign=campaign,
+        index=index,
+        seed=seeds.seed,
+        layout_index=layout,
+        lighting_index=lighting,
+        view_index=view,
+        composition=dict(sorted(composition.items())),
+        state=State.QUEUED,
+        dispatch_count=1,
         task_id=messaging.task_id(campaign_id=campaign.pk, index=index, dispatch_no=1, prefix=task_id_prefix),
-        expected_cpu_s=expected_cpu_s, queued_at=now,
+        expected_cpu_s=expected_cpu_s,
+        queued_at=now,
     )
-    _event(campaign_id=campaign.pk, frame_id=frame.pk, to_state=State.QUEUED,
-           detail=f"composition {frame.composition}")
+    _event(campaign_id=campaign.pk, frame_id=frame.pk, to_state=State.QUEUED, detail=f"composition {frame.composition}")
     return frame
 
 
@@ -525,14 +634,24 @@ def requeue_frame(*, frame: Frame, composition: dict[str, int] | None, expected_
     Returns None if the frame moved meanwhile."""
     dispatch_no = frame.dispatch_count + 1
     task_id = messaging.task_id(campaign_id=frame.campaign_id, index=frame.index, dispatch_no=dispatch_no)
-    fields: dict[str, Any] = {"state": State.QUEUED, "dispatch_count": dispatch_no, "task_id": task_id,
-                              "expected_cpu_s": expected_cpu_s, "queued_at": timezone.now()}
+    fields: dict[str, Any] = {
+        "state": State.QUEUED,
+        "dispatch_count": dispatch_no,
+        "task_id": task_id,
+        "expected_cpu_s": expected_cpu_s,
+        "queued_at": timezone.now(),
+    }
     if composition is not None:
         fields["composition"] = dict(sorted(composition.items()))
     if not Frame.objects.filter(pk=frame.pk, state=frame.state, dispatch_count=frame.dispatch_count).update(**fields):
         return None
-    _event(campaign_id=frame.campaign_id, frame_id=frame.pk, from_state=frame.state, to_state=State.QUEUED,
-           detail=f"dispatch {dispatch_no}" + (f", composition {fields['composition']}" if composition else ""))
+    _event(
+        campaign_id=frame.campaign_id,
+        frame_id=frame.pk,
+        from_state=frame.state,
+        to_state=State.QUEUED,
+        detail=f"dispatch {dispatch_no}" + (f", composition {fields['composition']}" if composition else ""),
+    )
     frame.refresh_from_db()
     return frame
 
@@ -540,15 +659,19 @@ def requeue_frame(*, frame: Frame, composition: dict[str, int] | None, expected_
 def mark_message_unsent(*, frame_id: int, dispatch_no: int) -> bool:
     """The broker refused this queued frame's message (e.g. Redis is down): clear ``queued_at`` so the next
     dispatch or sweep sends it again at once instead of waiting for the stale-queued timeout."""
-    return bool(Frame.objects.filter(pk=frame_id, state=State.QUEUED, dispatch_count=dispatch_no)
-                .update(queued_at=None))
+    return bool(
+        Frame.objects.filter(pk=frame_id, state=State.QUEUED, dispatch_count=dispatch_no).update(queued_at=None)
+    )
 
 
 def mark_message_resent(*, frame_id: int, dispatch_no: int) -> bool:
     """An unsent message goes out again under the same dispatch number (it never reached the broker, so no
     copy can be delivered; a new number per failed send would also run the counter up during a long outage)."""
-    return bool(Frame.objects.filter(pk=frame_id, state=State.QUEUED, dispatch_count=dispatch_no,
-                                     queued_at__isnull=True).update(queued_at=timezone.now()))
+    return bool(
+        Frame.objects.filter(
+            pk=frame_id, state=State.QUEUED, dispatch_count=dispatch_no, queued_at__isnull=True
+        ).update(queued_at=timezone.now())
+    )
 
 
 @dataclass(frozen=True)
@@ -574,33 +697,58 @@ def release_lost_frames(*, campaign_id: int, live_hosts: Iterable[str], started_
     """
     campaign = lock_campaign(campaign_id)
     live = set(live_hosts)
-    lost = (Frame.objects.filter(campaign=campaign, state=State.RUNNING, started_at__lt=started_before)
-            .exclude(worker_host__in=live).order_by("index"))
+    lost = (
+        Frame.objects.filter(campaign=campaign, state=State.RUNNING, started_at__lt=started_before)
+        .exclude(worker_host__in=live)
+        .order_by("index")
+    )
     now = timezone.now()
     released: list[LostFrame] = []
     for frame in lost:
-        same = Frame.objects.filter(pk=frame.pk, state=State.RUNNING, dispatch_count=frame.dispatch_count,
-                                    attempts=frame.attempts, worker_host=frame.worker_host)
+        same = Frame.objects.filter(
+            pk=frame.pk,
+            state=State.RUNNING,
+            dispatch_count=frame.dispatch_count,
+            attempts=frame.attempts,
+            worker_host=frame.worker_host,
+        )
         why = f"worker {frame.worker_host} lost during attempt {frame.attempts} (no heartbeat)"
         if campaign.status != Status.RUNNING:
             if same.update(state=State.REVOKED, retry_at=None, error=why):
-                _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.REVOKED,
-                       detail=f"{why}; campaign is {campaign.status}")
+                _event(
+                    campaign_id=campaign.pk,
+                    frame_id=frame.pk,
+                    from_state=State.RUNNING,
+                    to_state=State.REVOKED,
+                    detail=f"{why}; campaign is {campaign.status}",
+                )
                 released.append(LostFrame(frame.pk, frame.index, State.REVOKED, frame.dispatch_count, frame.task_id))
             continue
         if frame.attempts >= campaign.max_attempts:
             if same.update(state=State.DEAD, finished_at=now, error=why, retry_at=None):
-                _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.DEAD,
-                       detail=f"{why}; attempt limit reached")
+                _event(
+                    campaign_id=campaign.pk,
+                    frame_id=frame.pk,
+                    from_state=State.RUNNING,
+                    to_state=State.DEAD,
+                    detail=f"{why}; attempt limit reached",
+                )
                 Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") + 1)
                 released.append(LostFrame(frame.pk, frame.index, State.DEAD, frame.dispatch_count, frame.task_id))
             continue
         dispatch_no = frame.dispatch_count + 1
         task_id = messaging.task_id(campaign_id=campaign.pk, index=frame.index, dispatch_no=dispatch_no)
-        if same.update(state=State.QUEUED, dispatch_count=dispatch_no, task_id=task_id, queued_at=now,
-                       retry_at=None, error=why):
-            _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.RUNNING, to_state=State.QUEUED,
-                   worker_host=frame.worker_host, detail=f"{why}; dispatch {dispatch_no}")
+        if same.update(
+            state=State.QUEUED, dispatch_count=dispatch_no, task_id=task_id, queued_at=now, retry_at=None, error=why
+        ):
+            _event(
+                campaign_id=campaign.pk,
+                frame_id=frame.pk,
+                from_state=State.RUNNING,
+                to_state=State.QUEUED,
+                worker_host=frame.worker_host,
+                detail=f"{why}; dispatch {dispatch_no}",
+            )
             released.append(LostFrame(frame.pk, frame.index, State.QUEUED, dispatch_no, task_id))
     return released
 
@@ -622,8 +770,9 @@ def _frame_key(frame_id: int) -> tuple[int, int] | None:
 
 
 @transaction.atomic
-def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: str = "",
-                campaign_uid: str | None = None) -> Claim:
+def claim_frame(
+    *, frame_id: int, dispatch_no: int, worker_host: str, task_id: str = "", campaign_uid: str | None = None
+) -> Claim:
     """A worker takes a frame: queued → running, or running → running when the message was redelivered.
 
     The campaign's state is checked here too (the file-system broker cannot
@@ -636,8 +785,13 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
         return Claim(False, "no such frame")
     campaign = lock_campaign(key[0])
     if campaign_uid is not None and str(campaign.uid) != str(campaign_uid):
-        log.error("frame %s: message for campaign %s, but this database's frame belongs to campaign %s — is this "
-                  "worker on the same DATABASE_URL as the scheduler?", frame_id, campaign_uid, campaign.uid)
+        log.error(
+            "frame %s: message for campaign %s, but this database's frame belongs to campaign %s — is this "
+            "worker on the same DATABASE_URL as the scheduler?",
+            frame_id,
+            campaign_uid,
+            campaign.uid,
+        )
         return Claim(False, "message is for another database's campaign")
     frame = Frame.objects.get(pk=frame_id)
     if frame.dispatch_count != dispatch_no:
@@ -646,23 +800,44 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
         return Claim(False, f"frame is {frame.state}")
     if campaign.status != Status.RUNNING:
         Frame.objects.filter(pk=frame.pk, state=frame.state).update(state=State.REVOKED)
-        _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.REVOKED,
-               worker_host=worker_host, detail=f"released at start: campaign is {campaign.status}")
+        _event(
+            campaign_id=campaign.pk,
+            frame_id=frame.pk,
+            from_state=frame.state,
+            to_state=State.REVOKED,
+            worker_host=worker_host,
+            detail=f"released at start: campaign is {campaign.status}",
+        )
         return Claim(False, f"campaign is {campaign.status}")
     if frame.state == State.QUEUED:
         committed = selectors.committed_cost(campaign=campaign, states=(State.RUNNING,))
         spent = campaign.compute_cost_spent + selectors.fixed_cost(campaign=campaign)
-        next_cost = costs.expected_frame_cost(expected_cpu_s=frame.expected_cpu_s,
-                                              price_per_cpu_hour=campaign.price_per_cpu_hour)
-        if not costs.can_afford_frame(spent=spent, committed=committed, next_frame_cost=next_cost,
-                                      cost_budget=campaign.cost_budget):
+        next_cost = costs.expected_frame_cost(
+            expected_cpu_s=frame.expected_cpu_s, price_per_cpu_hour=campaign.price_per_cpu_hour
+        )
+        if not costs.can_afford_frame(
+            spent=spent, committed=committed, next_frame_cost=next_cost, cost_budget=campaign.cost_budget
+        ):
             Frame.objects.filter(pk=frame.pk, state=State.QUEUED).update(state=State.REVOKED)
-            _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=State.QUEUED, to_state=State.REVOKED,
-                   worker_host=worker_host, detail="not started: expected cost would exceed the budget")
-            detail = (f"spent {costs.money(spent)} + running {committed} + next frame ≈ {next_cost} "
-                      f"> budget {campaign.cost_budget}")
-            set_status(campaign, Status.PAUSED, reason=Campaign.PauseReason.BUDGET, detail=detail,
-                        allowed_from=(Status.RUNNING,))
+            _event(
+                campaign_id=campaign.pk,
+                frame_id=frame.pk,
+                from_state=State.QUEUED,
+                to_state=State.REVOKED,
+                worker_host=worker_host,
+                detail="not started: expected cost would exceed the budget",
+            )
+            detail = (
+                f"spent {costs.money(spent)} + running {committed} + next frame ≈ {next_cost} "
+                f"> budget {campaign.cost_budget}"
+            )
+            set_status(
+                campaign,
+                Status.PAUSED,
+                reason=Campaign.PauseReason.BUDGET,
+                detail=detail,
+                allowed_from=(Status.RUNNING,),
+            )
             messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail="campaign paused (budget)"))
             return Claim(False, "budget")
     now = timezone.now()
@@ -670,21 +845,36 @@ def claim_frame(*, frame_id: int, dispatch_no: int, worker_host: str, task_id: s
     if attempts > campaign.max_attempts:
         # A message redelivered after its worker died, once too often.
         Frame.objects.filter(pk=frame.pk, state=frame.state).update(
-            state=State.DEAD, finished_at=now, error=frame.error or "worker lost the task too many times")
-        _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.DEAD,
-               worker_host=worker_host, detail="attempt limit reached on redelivery")
+            state=State.DEAD, finished_at=now, error=frame.error or "worker lost the task too many times"
+        )
+        _event(
+            campaign_id=campaign.pk,
+            frame_id=frame.pk,
+            from_state=frame.state,
+            to_state=State.DEAD,
+            worker_host=worker_host,
+            detail="attempt limit reached on redelivery",
+        )
         Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") + 1)
         frame.refresh_from_db()
         return Claim(False, "attempt limit reached", frame, campaign)  # the task cleans up the lost attempts' files
     updated = Frame.objects.filter(pk=frame.pk, state=frame.state, dispatch_count=dispatch_no).update(
-        state=State.RUNNING, attempts=attempts, worker_host=worker_host[:255], started_at=now,
+        state=State.RUNNING,
+        attempts=attempts,
+        worker_host=worker_host[:255],
+        started_at=now,
         task_id=task_id or frame.task_id,
     )
     if not updated:
         return Claim(False, "frame changed meanwhile")
-    _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state=frame.state, to_state=State.RUNNING,
-           worker_host=worker_host, detail=f"attempt {attempts}" + (" (redelivered)" if frame.state == State.RUNNING
-                                                                     else ""))
+    _event(
+        campaign_id=campaign.pk,
+        frame_id=frame.pk,
+        from_state=frame.state,
+        to_state=State.RUNNING,
+        worker_host=worker_host,
+        detail=f"attempt {attempts}" + (" (redelivered)" if frame.state == State.RUNNING else ""),
+    )
     frame.refresh_from_db()
     return Claim(True, "claimed", frame, campaign)
 
@@ -708,9 +898,17 @@ def _optional_float(value: Any) -> float | None:
 
 
 @transaction.atomic
-def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[str, Any]], cpu_s: float,
-                  wall_s: float, timings_s: Mapping[str, float] | None = None, output_dir: str = "",
-                  worker_host: str = "") -> bool:
+def record_result(
+    *,
+    frame_id: int,
+    dispatch_no: int,
+    labels: Sequence[Mapping[str, Any]],
+    cpu_s: float,
+    wall_s: float,
+    timings_s: Mapping[str, float] | None = None,
+    output_dir: str = "",
+    worker_host: str = "",
+) -> bool:
     """running → done with its instances and counters; False (and no change) for a duplicate or stale result."""
     key = _frame_key(frame_id)
     if key is None:
@@ -722,18 +920,32 @@ def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[s
     # A frame's CPU, wall time and cost add up over its attempts (record_failure adds the failed ones), so the
     # campaign counters always equal the sum over frame rows (campaigns.integrity.recount).
     updated = Frame.objects.filter(pk=frame_id, state=State.RUNNING, dispatch_count=dispatch_no).update(
-        state=State.DONE, cpu_s=Coalesce(F("cpu_s"), 0.0) + cpu_s, wall_s=Coalesce(F("wall_s"), 0.0) + wall_s,
-        compute_cost=Coalesce(F("compute_cost"), Decimal(0)) + cost, timings_s=dict(timings_s or {}),
-        output_dir=output_dir, finished_at=now, error="", traceback="", retry_at=None,
+        state=State.DONE,
+        cpu_s=Coalesce(F("cpu_s"), 0.0) + cpu_s,
+        wall_s=Coalesce(F("wall_s"), 0.0) + wall_s,
+        compute_cost=Coalesce(F("compute_cost"), Decimal(0)) + cost,
+        timings_s=dict(timings_s or {}),
+        output_dir=output_dir,
+        finished_at=now,
+        error="",
+        traceback="",
+        retry_at=None,
     )
     if not updated:
         log.info("frame %s: duplicate or stale result ignored", frame_id)
         return False
     frame = Frame.objects.get(pk=frame_id)
-    _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=State.RUNNING, to_state=State.DONE,
-           worker_host=worker_host or frame.worker_host, detail=f"{len(labels)} instances, {cpu_s:.2f} CPU s")
-    quotas = {q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related(
-        "object_class")}
+    _event(
+        campaign_id=campaign.pk,
+        frame_id=frame_id,
+        from_state=State.RUNNING,
+        to_state=State.DONE,
+        worker_host=worker_host or frame.worker_host,
+        detail=f"{len(labels)} instances, {cpu_s:.2f} CPU s",
+    )
+    quotas = {
+        q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related("object_class")
+    }
     accepted: Counter[str] = Counter()
     rejected: Counter[str] = Counter()
     rows = []
@@ -743,35 +955,48 @@ def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[s
         if quota is None:
             log.warning("frame %s: instance of class %r has no quota; not stored", frame_id, class_name)
             continue
-        ok, reasons = planner.accept_instance(label, min_visible_fraction=quota.min_visible_fraction,
-                                              min_box_px=quota.min_box_px, min_contrast=quota.min_contrast)
+        ok, reasons = planner.accept_instance(
+            label,
+            min_visible_fraction=quota.min_visible_fraction,
+            min_box_px=quota.min_box_px,
+            min_contrast=quota.min_contrast,
+        )
         (accepted if ok else rejected)[class_name] += 1
-        rows.append(Instance(
-            frame_id=frame_id, campaign=campaign, object_class_id=quota.object_class_id,
-            instance_id=int(label["instance_id"]), asset_id=str(label.get("asset_id", ""))[:200],
-            bbox_xywh_px=_box(label, "bbox"), amodal_bbox_xywh_px=_box(label, "amodal_bbox"),
-            visible_fraction=float(label.get("visible_fraction") or 0.0),
-            contrast=_optional_float(label.get("contrast")),
-            occlusion_fraction=float(label.get("occlusion_fraction") or 0.0),
-            truncation_fraction=float(label.get("truncation_fraction") or 0.0),
-            mask_area_px=int(label.get("mask_area_px") or 0),
-            segmentation_rle=label.get("segmentation"),
-            accepted=ok, reject_reasons=reasons,
-        ))
+        rows.append(
+            Instance(
+                frame_id=frame_id,
+                campaign=campaign,
+                object_class_id=quota.object_class_id,
+                instance_id=int(label["instance_id"]),
+                asset_id=str(label.get("asset_id", ""))[:200],
+                bbox_xywh_px=_box(label, "bbox"),
+                amodal_bbox_xywh_px=_box(label, "amodal_bbox"),
+                visible_fraction=float(label.get("visible_fraction") or 0.0),
+                contrast=_optional_float(label.get("contrast")),
+                occlusion_fraction=float(label.get("occlusion_fraction") or 0.0),
+                truncation_fraction=float(label.get("truncation_fraction") or 0.0),
+                mask_area_px=int(label.get("mask_area_px") or 0),
+                segmentation_rle=label.get("segmentation"),
+                accepted=ok,
+                reject_reasons=reasons,
+            )
+        )
     Instance.objects.bulk_create(rows)
     placed = Counter({name: int(count) for name, count in (frame.composition or {}).items()})
     for class_name, quota in quotas.items():
         a, r, p = accepted[class_name], rejected[class_name], placed[class_name]
         if a or r or p:
             ClassQuota.objects.filter(pk=quota.pk).update(
-                accepted_count=F("accepted_count") + a, rejected_count=F("rejected_count") + r,
+                accepted_count=F("accepted_count") + a,
+                rejected_count=F("rejected_count") + r,
                 placed_count=F("placed_count") + p,
             )
     Campaign.objects.filter(pk=campaign.pk).update(
         frames_done=F("frames_done") + 1,
         instances_accepted=F("instances_accepted") + sum(accepted.values()),
         instances_rejected=F("instances_rejected") + sum(rejected.values()),
-        cpu_s_spent=F("cpu_s_spent") + cpu_s, wall_s_spent=F("wall_s_spent") + wall_s,
+        cpu_s_spent=F("cpu_s_spent") + cpu_s,
+        wall_s_spent=F("wall_s_spent") + wall_s,
         compute_cost_spent=F("compute_cost_spent") + cost,
     )
     _mark_quotas_met(campaign=campaign, frame_id=frame_id)
@@ -781,20 +1006,31 @@ def record_result(*, frame_id: int, dispatch_no: int, labels: Sequence[Mapping[s
 def _mark_quotas_met(*, campaign: Campaign, frame_id: int | None) -> None:
     """Each quota is marked met once (conditional update); the campaign completes once every quota is met."""
     now = timezone.now()
-    newly_met = ClassQuota.objects.filter(campaign=campaign, met_at__isnull=True,
-                                          accepted_count__gte=F("target_accepted"))
+    newly_met = ClassQuota.objects.filter(
+        campaign=campaign, met_at__isnull=True, accepted_count__gte=F("target_accepted")
+    )
     for quota_id, class_name in newly_met.values_list("pk", "object_class__name"):
         if ClassQuota.objects.filter(pk=quota_id, met_at__isnull=True).update(met_at=now):
-            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state="", to_state="quota_met",
-                   detail=f"quota for {class_name} met")
-    if not ClassQuota.objects.filter(campaign=campaign).filter(
-            Q(met_at__isnull=True) | Q(accepted_count__lt=F("target_accepted"))).exists():
+            _event(
+                campaign_id=campaign.pk,
+                frame_id=frame_id,
+                from_state="",
+                to_state="quota_met",
+                detail=f"quota for {class_name} met",
+            )
+    if (
+        not ClassQuota.objects.filter(campaign=campaign)
+        .filter(Q(met_at__isnull=True) | Q(accepted_count__lt=F("target_accepted")))
+        .exists()
+    ):
         campaign.refresh_from_db(fields=["status"])
         if campaign.status in (Status.RUNNING, Status.PAUSED):
-            set_status(campaign, Status.COMPLETED, detail="every quota is met",
-                        allowed_from=(Status.RUNNING, Status.PAUSED))
-            messaging.revoke_on_commit(revoke_waiting_frames(campaign, detail="campaign completed",
-                                                     states=(State.QUEUED, State.FAILED)))
+            set_status(
+                campaign, Status.COMPLETED, detail="every quota is met", allowed_from=(Status.RUNNING, Status.PAUSED)
+            )
+            messaging.revoke_on_commit(
+                revoke_waiting_frames(campaign, detail="campaign completed", states=(State.QUEUED, State.FAILED))
+            )
 
 
 def retry_backoff_s(*, attempts: int) -> float:
@@ -803,8 +1039,17 @@ def retry_backoff_s(*, attempts: int) -> float:
 
 
 @transaction.atomic
-def record_failure(*, frame_id: int, dispatch_no: int, error: str, traceback: str = "", cpu_s: float = 0.0,
-                   wall_s: float = 0.0, permanent: bool = False, worker_host: str = "") -> str:
+def record_failure(
+    *,
+    frame_id: int,
+    dispatch_no: int,
+    error: str,
+    traceback: str = "",
+    cpu_s: float = 0.0,
+    wall_s: float = 0.0,
+    permanent: bool = False,
+    worker_host: str = "",
+) -> str:
     """running → failed (retry later with backoff) or dead (attempt limit, or a permanent error).
 
     Returns the new state, or ``"stale"`` when the frame was not running
@@ -824,19 +1069,31 @@ def record_failure(*, frame_id: int, dispatch_no: int, error: str, traceback: st
     retry_at = None if dead else now + timedelta(seconds=retry_backoff_s(attempts=frame.attempts))
     cost = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=campaign.price_per_cpu_hour)
     updated = Frame.objects.filter(pk=frame_id, state=State.RUNNING, dispatch_count=dispatch_no).update(
-        state=to_state, error=error[:10000], traceback=traceback[-20000:], retry_at=retry_at,
-        finished_at=now if dead else None, cpu_s=(frame.cpu_s or 0.0) + cpu_s, wall_s=(frame.wall_s or 0.0) + wall_s,
+        state=to_state,
+        error=error[:10000],
+        traceback=traceback[-20000:],
+        retry_at=retry_at,
+        finished_at=now if dead else None,
+        cpu_s=(frame.cpu_s or 0.0) + cpu_s,
+        wall_s=(frame.wall_s or 0.0) + wall_s,
         compute_cost=(frame.compute_cost or Decimal(0)) + cost,
     )
     if not updated:
         return "stale"
     why = "permanent error" if permanent else (f"attempt {frame.attempts} of {campaign.max_attempts}")
-    _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=State.RUNNING, to_state=to_state,
-           worker_host=worker_host or frame.worker_host,
-           detail=f"{why}: {error[:300]}" + ("" if dead else f"; retry at {retry_at:%H:%M:%S}"))
+    _event(
+        campaign_id=campaign.pk,
+        frame_id=frame_id,
+        from_state=State.RUNNING,
+        to_state=to_state,
+        worker_host=worker_host or frame.worker_host,
+        detail=f"{why}: {error[:300]}" + ("" if dead else f"; retry at {retry_at:%H:%M:%S}"),
+    )
     Campaign.objects.filter(pk=campaign.pk).update(
-        frames_dead=F("frames_dead") + (1 if dead else 0), cpu_s_spent=F("cpu_s_spent") + cpu_s,
-        wall_s_spent=F("wall_s_spent") + wall_s, compute_cost_spent=F("compute_cost_spent") + cost,
+        frames_dead=F("frames_dead") + (1 if dead else 0),
+        cpu_s_spent=F("cpu_s_spent") + cpu_s,
+        wall_s_spent=F("wall_s_spent") + wall_s,
+        compute_cost_spent=F("compute_cost_spent") + cost,
     )
     return to_state
 
@@ -845,8 +1102,9 @@ def record_failure(*, frame_id: int, dispatch_no: int, error: str, traceback: st
 
 
 def ensure_object_class(*, name: str, label: str = "", description: str = "") -> ObjectClass:
-    obj, _ = ObjectClass.objects.get_or_create(name=name, defaults={"label": label or name.replace("_", " "),
-                                                                    "description": description})
+    obj, _ = ObjectClass.objects.get_or_create(
+        name=name, defaults={"label": label or name.replace("_", " "), "description": description}
+    )
     return obj
 
 
@@ -857,15 +1115,15 @@ def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_co
     returned here (names are unique per team, and the shared library is its own namespace)."""
     cost = _decimal(creation_cost, "creation_cost")
     asset, _ = Asset.objects.get_or_create(
-        object_class=object_class, name=name, team=None,
+        object_class=object_class,
+        name=name,
+        team=None,
         defaults={"kind": Asset.Kind.PROCEDURAL, "generator": object_class.name, "creation_cost": cost},
     )
     return asset
 
 
 # --- dashboard actions (added for the dashboard, issue 5) ------------------------------------------------------
-
-
 
 
 @transaction.atomic
@@ -891,15 +1149,23 @@ def update_draft_campaign(
     gives newly quoted classes their defaults (:func:`default_campaign_assets`)."""
     campaign = lock_campaign(campaign_id)
     if campaign.status != Status.DRAFT:
-        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
-                            "(the cost budget of a started campaign can still be changed)")
+        raise CampaignError(
+            f"campaign {campaign.name!r} is {campaign.status}; only drafts can be edited "
+            "(the cost budget of a started campaign can still be changed)"
+        )
     name = _clean_name(name, description)
     if conflict := _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk):
         raise conflict
     normalized = normalize_campaign_budget(budget)
-    settings = _clean_settings(cost_budget=cost_budget, price_per_cpu_hour=price_per_cpu_hour, setup_cost=setup_cost,
-                               manual_labelling_rate_per_hour=manual_labelling_rate_per_hour, weight=weight, seed=seed,
-                               max_attempts=max_attempts)
+    settings = _clean_settings(
+        cost_budget=cost_budget,
+        price_per_cpu_hour=price_per_cpu_hour,
+        setup_cost=setup_cost,
+        manual_labelling_rate_per_hour=manual_labelling_rate_per_hour,
+        weight=weight,
+        seed=seed,
+        max_attempts=max_attempts,
+    )
     clean = _clean_quota_inputs(quotas=quotas, normalized_budget=normalized)
     class_names = {q.object_class.name for q in clean}
     if asset_ids is not None:
@@ -911,10 +1177,17 @@ def update_draft_campaign(
     _check_fixed_cost(assets=assets, settings=settings)
     with _name_guard(lambda: _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk)):
         Campaign.objects.filter(pk=campaign.pk).update(
-            name=name, description=description, seed=settings.seed, budget=normalized,
-            cost_budget=settings.cost_budget, price_per_cpu_hour=settings.price_per_cpu_hour,
-            setup_cost=settings.setup_cost, manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
-            weight=settings.weight, max_attempts=settings.max_attempts)
+            name=name,
+            description=description,
+            seed=settings.seed,
+            budget=normalized,
+            cost_budget=settings.cost_budget,
+            price_per_cpu_hour=settings.price_per_cpu_hour,
+            setup_cost=settings.setup_cost,
+            manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
+            weight=settings.weight,
+            max_attempts=settings.max_attempts,
+        )
     campaign.refresh_from_db()
     campaign.assets.set(assets)
     ClassQuota.objects.filter(campaign=campaign).delete()
@@ -949,9 +1222,11 @@ def _retry_dead(campaign: Campaign, frame_ids: Sequence[int], *, detail: str) ->
     for frame_id in frame_ids:
         # Conditional on the frame still being dead: a double click or two users retry it once.
         if Frame.objects.filter(pk=frame_id, campaign=campaign, state=State.DEAD).update(
-                state=State.FAILED, attempts=0, retry_at=now, finished_at=None):
-            _event(campaign_id=campaign.pk, frame_id=frame_id, from_state=State.DEAD, to_state=State.FAILED,
-                   detail=detail)
+            state=State.FAILED, attempts=0, retry_at=now, finished_at=None
+        ):
+            _event(
+                campaign_id=campaign.pk, frame_id=frame_id, from_state=State.DEAD, to_state=State.FAILED, detail=detail
+            )
             retried += 1
     if retried:
         Campaign.objects.filter(pk=campaign.pk).update(frames_dead=F("frames_dead") - retried)
@@ -1003,8 +1278,13 @@ def ignore_frame(*, campaign_id: int, frame_id: int, kind: str | None = None) ->
     frames = frames.filter(errors.kind_filter(kind)) if kind is not None else frames.filter(pk=frame_id)
     ids = list(frames.values_list("pk", flat=True))
     for fid in ids:
-        _event(campaign_id=campaign.pk, frame_id=fid, from_state=State.DEAD, to_state=IGNORED,
-               detail="ignored from the dashboard")
+        _event(
+            campaign_id=campaign.pk,
+            frame_id=fid,
+            from_state=State.DEAD,
+            to_state=IGNORED,
+            detail="ignored from the dashboard",
+        )
     return len(ids)
 
 
@@ -1018,8 +1298,10 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     """
     campaign = lock_campaign(campaign_id)
     if campaign.status != Status.RUNNING:
-        raise CampaignError(f"campaign {campaign.name!r} is {campaign.status}; start or resume it to re-render "
-                            "(frames render on the fleet only while it runs)")
+        raise CampaignError(
+            f"campaign {campaign.name!r} is {campaign.status}; start or resume it to re-render "
+            "(frames render on the fleet only while it runs)"
+        )
     try:
         source = Frame.objects.get(pk=frame_id, campaign=campaign)
     except Frame.DoesNotExist as exc:
@@ -1027,14 +1309,24 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     if source.state != State.DONE:
         raise CampaignError(f"frame {source.index} is {source.state}; only done frames are re-rendered")
     last_index = Frame.objects.filter(campaign=campaign).order_by("-index").values_list("index", flat=True).first()
-    frame = create_frame(campaign=campaign, index=(last_index or 0) + 1,
-                         coordinates=(source.layout_index, source.lighting_index, source.view_index),
-                         composition=dict(source.composition), expected_cpu_s=source.cpu_s or source.expected_cpu_s)
-    _event(campaign_id=campaign.pk, frame_id=frame.pk, from_state="", to_state=State.QUEUED,
-           detail=f"re-render of frame {source.index}")
+    frame = create_frame(
+        campaign=campaign,
+        index=(last_index or 0) + 1,
+        coordinates=(source.layout_index, source.lighting_index, source.view_index),
+        composition=dict(source.composition),
+        expected_cpu_s=source.cpu_s or source.expected_cpu_s,
+    )
+    _event(
+        campaign_id=campaign.pk,
+        frame_id=frame.pk,
+        from_state="",
+        to_state=State.QUEUED,
+        detail=f"re-render of frame {source.index}",
+    )
     uid, fid, dispatch_no, task_id = str(campaign.uid), frame.pk, frame.dispatch_count, frame.task_id
-    transaction.on_commit(lambda: messaging.send_frame_task(frame_id=fid, dispatch_no=dispatch_no,
-                                                            campaign_uid=uid, task_id=task_id))
+    transaction.on_commit(
+        lambda: messaging.send_frame_task(frame_id=fid, dispatch_no=dispatch_no, campaign_uid=uid, task_id=task_id)
+    )
     return frame
 
 
@@ -1053,15 +1345,18 @@ def _asset_name_conflict(*, team: Any, object_class: ObjectClass, name: str) -> 
     the team's own assets and the shared library are looked at, so the answer never depends on another team's
     assets and the message never mentions them.
     """
-    owners = set(Asset.objects.filter(object_class=object_class)
-                 .filter(Q(team=team, name=name) | Q(team__isnull=True, name__iexact=name))
-                 .values_list("team_id", flat=True))
+    owners = set(
+        Asset.objects.filter(object_class=object_class)
+        .filter(Q(team=team, name=name) | Q(team__isnull=True, name__iexact=name))
+        .values_list("team_id", flat=True)
+    )
     what = f"{_article(object_class.name)} {object_class.name} asset called {name!r}"
     if team.pk in owners:
         return CampaignError(f"team {team} already has {what}", field="name")
     if None in owners:
-        return CampaignError(f"the shared library already has {what}; choose another name so the two are not "
-                             "confused", field="name")
+        return CampaignError(
+            f"the shared library already has {what}; choose another name so the two are not confused", field="name"
+        )
     return None
 
 
@@ -1077,9 +1372,18 @@ class _AssetInput:
     look: str = "randomize"
 
 
-def _clean_asset_input(*, user: Any, team: Any, object_class_name: str, name: Any, unit: str,
-                       creation_cost: Decimal | float | str, up_axis: str = "+z", front: str = "",
-                       look: str = "randomize") -> _AssetInput:
+def _clean_asset_input(
+    *,
+    user: Any,
+    team: Any,
+    object_class_name: str,
+    name: Any,
+    unit: str,
+    creation_cost: Decimal | float | str,
+    up_axis: str = "+z",
+    front: str = "",
+    look: str = "randomize",
+) -> _AssetInput:
     """Every check of an upload that needs no file, the name's availability last."""
     from render.meshes import FRONT_AXES, UNIT_TO_M, UP_AXES, axis_rotation
     from render.user_materials import LOOKS
@@ -1112,28 +1416,55 @@ def _clean_asset_input(*, user: Any, team: Any, object_class_name: str, name: An
 
 def _insert_asset(*, clean: _AssetInput, mesh_path: str) -> Asset:
     """The asset row; a team asset with this class and name made meanwhile gives the name check's error."""
-    with _name_guard(lambda: _asset_name_conflict(team=clean.team, object_class=clean.object_class,
-                                                  name=clean.name)):
-        return Asset.objects.create(object_class=clean.object_class, name=clean.name, kind=Asset.Kind.MESH,
-                                    mesh_file=mesh_path, mesh_unit=clean.unit, team=clean.team,
-                                    creation_cost=clean.creation_cost, up_axis=clean.up_axis, front=clean.front,
-                                    look=clean.look)
+    with _name_guard(lambda: _asset_name_conflict(team=clean.team, object_class=clean.object_class, name=clean.name)):
+        return Asset.objects.create(
+            object_class=clean.object_class,
+            name=clean.name,
+            kind=Asset.Kind.MESH,
+            mesh_file=mesh_path,
+            mesh_unit=clean.unit,
+            team=clean.team,
+            creation_cost=clean.creation_cost,
+            up_axis=clean.up_axis,
+            front=clean.front,
+            look=clean.look,
+        )
 
 
 @transaction.atomic
-def upload_asset(*, user: Any, team: Any, object_class_name: str, name: str, mesh_path: str, original_name: str,
-                 unit: str = "auto", creation_cost: Decimal | float | str = 0) -> Asset:
+def upload_asset(
+    *,
+    user: Any,
+    team: Any,
+    object_class_name: str,
+    name: str,
+    mesh_path: str,
+    original_name: str,
+    unit: str = "auto",
+    creation_cost: Decimal | float | str = 0,
+) -> Asset:
     """Add a mesh that is already checked and stored (``mesh_path``: relative to MEDIA_ROOT) to a team's library.
 
     The dashboard's upload goes through :func:`upload_mesh_asset`, which checks and stores the file itself."""
-    clean = _clean_asset_input(user=user, team=team, object_class_name=object_class_name, name=name, unit=unit,
-                               creation_cost=creation_cost)
+    clean = _clean_asset_input(
+        user=user, team=team, object_class_name=object_class_name, name=name, unit=unit, creation_cost=creation_cost
+    )
     return _insert_asset(clean=clean, mesh_path=mesh_path)
 
 
-def upload_mesh_asset(*, user: Any, team: Any, object_class_name: str, name: str, upload: Any, unit: str = "auto",
-                      creation_cost: Decimal | float | str = 0, up_axis: str = "+z", front: str = "",
-                      look: str = "keep") -> Asset:
+def upload_mesh_asset(
+    *,
+    user: Any,
+    team: Any,
+    object_class_name: str,
+    name: str,
+    upload: Any,
+    unit: str = "auto",
+    creation_cost: Decimal | float | str = 0,
+    up_axis: str = "+z",
+    front: str = "",
+    look: str = "keep",
+) -> Asset:
     """Check an uploaded model, store it and add it to a team's library; on any failure nothing stays.
 
     ``upload`` is a Django ``UploadedFile`` (``name``, ``size``, ``chunks()``): an OBJ, PLY, STL or GLB file, or a
@@ -1154,31 +1485,49 @@ def upload_mesh_asset(*, user: Any, team: Any, object_class_name: str, name: str
 
     from campaigns import asset_files
 
-    clean = _clean_asset_input(user=user, team=team, object_class_name=object_class_name, name=name, unit=unit,
-                               creation_cost=creation_cost, up_axis=up_axis, front=front, look=look)
+    clean = _clean_asset_input(
+        user=user,
+        team=team,
+        object_class_name=object_class_name,
+        name=name,
+        unit=unit,
+        creation_cost=creation_cost,
+        up_axis=up_axis,
+        front=front,
+        look=look,
+    )
     staged = asset_files.stage_upload(upload)
     try:
         if staged.kind == "zip":
             staged = asset_files.unpack_staged_zip(staged)
-        info = asset_files.check_mesh_file(path=staged.model_path, unit=clean.unit, up_axis=clean.up_axis,
-                                           front=clean.front)
+        info = asset_files.check_mesh_file(
+            path=staged.model_path, unit=clean.unit, up_axis=clean.up_axis, front=clean.front
+        )
         try:
             with transaction.atomic(durable=True):
-                asset = _insert_asset(clean=clean,
-                                      mesh_path=str(staged.final_model_path.relative_to(settings.MEDIA_ROOT)))
+                asset = _insert_asset(
+                    clean=clean, mesh_path=str(staged.final_model_path.relative_to(settings.MEDIA_ROOT))
+                )
                 try:
                     os.replace(staged.path, staged.final)
                 except OSError as exc:
-                    raise asset_files.UploadError(f"the file could not be stored ({exc.strerror or exc}); "
-                                                  "nothing was kept.") from exc
+                    raise asset_files.UploadError(
+                        f"the file could not be stored ({exc.strerror or exc}); nothing was kept."
+                    ) from exc
         except BaseException:
             asset_files.remove_path(staged.final)  # renamed, but the row did not commit
             raise
     finally:
         asset_files.discard(staged)
     try:
-        asset_files.write_asset_info(asset.pk, {**info, "format": staged.kind.removesuffix("-dir"),
-                                                "original_name": str(getattr(upload, "name", ""))[:200]})
+        asset_files.write_asset_info(
+            asset.pk,
+            {
+                **info,
+                "format": staged.kind.removesuffix("-dir"),
+                "original_name": str(getattr(upload, "name", ""))[:200],
+            },
+        )
     except OSError:  # the asset is kept; its preview render writes the extents again
         log.warning("asset %s: could not write info.json", asset.pk, exc_info=True)
     asset_files.request_preview(asset_pk=asset.pk)

@@ -23,8 +23,14 @@ log = logging.getLogger("evenframe.workers")
 T = TypeVar("T")
 
 
-def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], seeds: Any, out_dir: Path,
-                       user_assets: dict[str, list[dict[str, str]]] | None = None) -> Any:
+def render_frame_files(
+    *,
+    budget: dict[str, Any],
+    composition: dict[str, int],
+    seeds: Any,
+    out_dir: Path,
+    user_assets: dict[str, list[dict[str, str]]] | None = None,
+) -> Any:
     """Call the render core (imported here, in the worker process, never at Django load).
 
     ``user_assets`` are the campaign's uploaded meshes (``campaigns.selectors.campaign_user_mesh_entries``).
@@ -32,9 +38,18 @@ def render_frame_files(*, budget: dict[str, Any], composition: dict[str, int], s
     from render.frame import render_frame_from_inputs
 
     threads = int(os.environ.get("EVENFRAME_RENDER_THREADS", "0") or 0) or None
-    return render_frame_from_inputs(budget, composition, seeds.seed, layout_seed=seeds.layout_seed,
-                                    lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed,
-                                    view_slot=getattr(seeds, "view_slot", None), out_dir=out_dir, threads=threads, user_assets=user_assets or None)
+    return render_frame_from_inputs(
+        budget,
+        composition,
+        seeds.seed,
+        layout_seed=seeds.layout_seed,
+        lighting_seed=seeds.lighting_seed,
+        camera_seed=seeds.camera_seed,
+        view_slot=getattr(seeds, "view_slot", None),
+        out_dir=out_dir,
+        threads=threads,
+        user_assets=user_assets or None,
+    )
 
 
 def _is_permanent(exc: BaseException) -> bool:
@@ -88,9 +103,16 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
     from fleet import faults
 
     host = getattr(self.request, "hostname", None) or socket.gethostname()
-    claim = with_database_retry(lambda: services.claim_frame(
-        frame_id=frame_id, dispatch_no=dispatch_no, worker_host=host,
-        task_id=getattr(self.request, "id", None) or "", campaign_uid=campaign_uid), what=f"frame {frame_id} claim")
+    claim = with_database_retry(
+        lambda: services.claim_frame(
+            frame_id=frame_id,
+            dispatch_no=dispatch_no,
+            worker_host=host,
+            task_id=getattr(self.request, "id", None) or "",
+            campaign_uid=campaign_uid,
+        ),
+        what=f"frame {frame_id} claim",
+    )
     if not claim.ok:
         log.info("frame %s (dispatch %s) not rendered: %s", frame_id, dispatch_no, claim.reason)
         if claim.frame is not None and claim.frame.state == "dead":
@@ -100,9 +122,14 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
     if frame is None or campaign is None:  # claim_frame() returns both with every successful claim
         raise RuntimeError(f"frame {frame_id}: the claim succeeded without its frame and campaign")
     views_per_lighting = int((campaign.budget.get("variation") or {}).get("views_per_lighting", 1))
-    seeds = planner.frame_seeds(campaign_seed=campaign.seed, index=frame.index, layout_index=frame.layout_index,
-                                lighting_index=frame.lighting_index, view_index=frame.view_index,
-                                views_per_lighting=views_per_lighting)
+    seeds = planner.frame_seeds(
+        campaign_seed=campaign.seed,
+        index=frame.index,
+        layout_index=frame.layout_index,
+        lighting_index=frame.lighting_index,
+        view_index=frame.view_index,
+        views_per_lighting=views_per_lighting,
+    )
     out_dir, relative = frame_output_dir(campaign_id=campaign.pk, index=frame.index)
     partial = out_dir.with_name(f".{out_dir.name}.partial-d{dispatch_no}-a{frame.attempts}-{os.getpid()}")
     # process_time counts every thread of this process, Dr.Jit's render threads included.
@@ -111,25 +138,47 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
         shutil.rmtree(partial, ignore_errors=True)
         partial.mkdir(parents=True)
         faults.before_render(campaign_id=campaign.pk, index=frame.index, attempt=frame.attempts)
-        user_assets = with_database_retry(lambda: selectors.campaign_user_mesh_entries(campaign=campaign),
-                                          what=f"frame {frame_id} assets")
-        result = render_frame_files(budget=campaign.budget, composition=frame.composition, seeds=seeds,
-                                    out_dir=partial, user_assets=user_assets)
+        user_assets = with_database_retry(
+            lambda: selectors.campaign_user_mesh_entries(campaign=campaign), what=f"frame {frame_id} assets"
+        )
+        result = render_frame_files(
+            budget=campaign.budget, composition=frame.composition, seeds=seeds, out_dir=partial, user_assets=user_assets
+        )
         publish_frame_dir(partial=partial, final=out_dir)
     except Exception as exc:  # noqa: BLE001 - every failure is recorded on the frame, then retried or dead
         cpu_s, wall_s = time.process_time() - cpu_start, time.perf_counter() - wall_start
         shutil.rmtree(partial, ignore_errors=True)
         error, trace, permanent = f"{type(exc).__name__}: {exc}", traceback_module.format_exc(), _is_permanent(exc)
-        state = with_database_retry(lambda: services.record_failure(
-            frame_id=frame_id, dispatch_no=dispatch_no, error=error, traceback=trace, cpu_s=cpu_s, wall_s=wall_s,
-            permanent=permanent, worker_host=host), what=f"frame {frame_id}")
+        state = with_database_retry(
+            lambda: services.record_failure(
+                frame_id=frame_id,
+                dispatch_no=dispatch_no,
+                error=error,
+                traceback=trace,
+                cpu_s=cpu_s,
+                wall_s=wall_s,
+                permanent=permanent,
+                worker_host=host,
+            ),
+            what=f"frame {frame_id}",
+        )
         log.warning("frame %s failed (%s): %s", frame_id, state, exc)
         _dispatch_after(scheduler, campaign.pk)
         return {"frame_id": frame_id, "state": state, "error": str(exc)}
     cpu_s, wall_s = time.process_time() - cpu_start, time.perf_counter() - wall_start
-    recorded = with_database_retry(lambda: services.record_result(
-        frame_id=frame_id, dispatch_no=dispatch_no, labels=result.labels.get("instances", []), cpu_s=cpu_s,
-        wall_s=wall_s, timings_s=result.timings_s, output_dir=relative, worker_host=host), what=f"frame {frame_id}")
+    recorded = with_database_retry(
+        lambda: services.record_result(
+            frame_id=frame_id,
+            dispatch_no=dispatch_no,
+            labels=result.labels.get("instances", []),
+            cpu_s=cpu_s,
+            wall_s=wall_s,
+            timings_s=result.timings_s,
+            output_dir=relative,
+            worker_host=host,
+        ),
+        what=f"frame {frame_id}",
+    )
     _dispatch_after(scheduler, campaign.pk)
     return {"frame_id": frame_id, "recorded": recorded, "cpu_s": round(cpu_s, 3), "wall_s": round(wall_s, 3)}
 

@@ -45,13 +45,16 @@ THUMB_WIDTH_PX = 320
 
 
 def _campaign(request: HttpRequest, campaign_id: int, role: str = VIEWER) -> Campaign:
-    return get_for_user_or_404(Campaign.objects.select_related("team", "owner"), user=request.user, role=role,
-                               pk=campaign_id)
+    return get_for_user_or_404(
+        Campaign.objects.select_related("team", "owner"), user=request.user, role=role, pk=campaign_id
+    )
 
 
 def _roles(request: HttpRequest, campaign: Campaign) -> dict[str, bool]:
-    return {"can_plan": has_role(user=request.user, team=campaign.team_id, role=PLANNER),
-            "can_admin": has_role(user=request.user, team=campaign.team_id, role=ADMIN)}
+    return {
+        "can_plan": has_role(user=request.user, team=campaign.team_id, role=PLANNER),
+        "can_admin": has_role(user=request.user, team=campaign.team_id, role=ADMIN),
+    }
 
 
 def _duration(seconds: float | None) -> str:
@@ -104,8 +107,11 @@ def campaign_list(request: HttpRequest) -> HttpResponse:
         row["eta"] = _duration(row["eta_s"]) if row["eta_s"] is not None else None
     from teams.permissions import teams_for
 
-    return render(request, "campaigns/list.html", {
-        "rows": rows, "can_create": teams_for(user=request.user, role=PLANNER).exists()})
+    return render(
+        request,
+        "campaigns/list.html",
+        {"rows": rows, "can_create": teams_for(user=request.user, role=PLANNER).exists()},
+    )
 
 
 @never_cache
@@ -115,10 +121,18 @@ def campaign_list_live(request: HttpRequest) -> JsonResponse:
     out = []
     for row in selectors.campaign_rows(campaigns=campaigns):
         c = row["campaign"]
-        out.append({"id": c.pk, "status": c.status, "status_label": c.get_status_display(),
-                    "progress_pct": row["progress_pct"], "spent": f"{row['spent']:.2f}",
-                    "spent_pct": round(row["spent_pct"], 1), "frames_done": c.frames_done,
-                    "eta": _duration(row["eta_s"]) if row["eta_s"] is not None else "—"})
+        out.append(
+            {
+                "id": c.pk,
+                "status": c.status,
+                "status_label": c.get_status_display(),
+                "progress_pct": row["progress_pct"],
+                "spent": f"{row['spent']:.2f}",
+                "spent_pct": round(row["spent_pct"], 1),
+                "frames_done": c.frames_done,
+                "eta": _duration(row["eta_s"]) if row["eta_s"] is not None else "—",
+            }
+        )
     return JsonResponse({"campaigns": out})
 
 
@@ -132,29 +146,54 @@ def _estimate(request: HttpRequest, form: CampaignForm) -> dict[str, Any] | None
     d = form.cleaned_data
     history = scope_to_user(Campaign.objects.all(), user=request.user)
     est = selectors.plan_estimate(
-        budget=d["budget"], targets={q.class_name: q.target_accepted for q in d["quotas"]},
-        cost_budget=d["cost_budget"], price_per_cpu_hour=d["price_per_cpu_hour"], setup_cost=d["setup_cost"],
-        manual_rate_per_hour=d["manual_labelling_rate_per_hour"], history=history)
+        budget=d["budget"],
+        targets={q.class_name: q.target_accepted for q in d["quotas"]},
+        cost_budget=d["cost_budget"],
+        price_per_cpu_hour=d["price_per_cpu_hour"],
+        setup_cost=d["setup_cost"],
+        manual_rate_per_hour=d["manual_labelling_rate_per_hour"],
+        history=history,
+    )
     return {
-        "frames": est.frames, "instances_per_frame": est.instances_per_frame, "cpu_hours": round(est.cpu_hours, 3),
-        "frame_cpu_s": round(est.frame_cpu_s, 3), "compute_cost": f"{est.compute_cost:.4f}",
-        "fixed_cost": f"{est.fixed_cost:.2f}", "total_cost": f"{est.total_cost:.2f}",
-        "cost_budget": f"{d['cost_budget']:.2f}", "within_budget": est.within_budget,
+        "frames": est.frames,
+        "instances_per_frame": est.instances_per_frame,
+        "cpu_hours": round(est.cpu_hours, 3),
+        "frame_cpu_s": round(est.frame_cpu_s, 3),
+        "compute_cost": f"{est.compute_cost:.4f}",
+        "fixed_cost": f"{est.fixed_cost:.2f}",
+        "total_cost": f"{est.total_cost:.2f}",
+        "cost_budget": f"{d['cost_budget']:.2f}",
+        "within_budget": est.within_budget,
         "fleet_time": _duration(est.wall_s_on_fleet) if est.wall_s_on_fleet is not None else None,
         "live_slots": est.live_slots,
         "cost_per_accepted": f"{est.cost_per_accepted:.4f}" if est.cost_per_accepted is not None else None,
         "manual_cost_per_instance": f"{est.manual_cost_per_instance:.4f}",
-        "manual_total": f"{est.manual_total:.2f}", "source": est.source, "detail": est.detail,
+        "manual_total": f"{est.manual_total:.2f}",
+        "source": est.source,
+        "detail": est.detail,
         "cheaper": (est.cost_per_accepted is not None and est.cost_per_accepted < est.manual_cost_per_instance),
     }
 
 
-def _planner_page(request: HttpRequest, form: CampaignForm, *, campaign: Campaign | None,
-                  estimate: dict[str, Any] | None, status: int = 200) -> HttpResponse:
-    return render(request, "campaigns/plan.html", {
-        "form": form, "campaign": campaign, "estimate": estimate,
-        "estimate_url": reverse("campaigns:estimate"),
-    }, status=status)
+def _planner_page(
+    request: HttpRequest,
+    form: CampaignForm,
+    *,
+    campaign: Campaign | None,
+    estimate: dict[str, Any] | None,
+    status: int = 200,
+) -> HttpResponse:
+    return render(
+        request,
+        "campaigns/plan.html",
+        {
+            "form": form,
+            "campaign": campaign,
+            "estimate": estimate,
+            "estimate_url": reverse("campaigns:estimate"),
+        },
+        status=status,
+    )
 
 
 def campaign_create(request: HttpRequest) -> HttpResponse:
@@ -170,11 +209,15 @@ def campaign_create(request: HttpRequest) -> HttpResponse:
     form = CampaignForm(request.POST, user=request.user)
     estimate = _estimate(request, form)
     if "preview" in request.POST or estimate is None:
-        return _planner_page(request, form, campaign=None, estimate=estimate,
-                             status=200 if estimate is not None or "preview" in request.POST else 400)
+        return _planner_page(
+            request,
+            form,
+            campaign=None,
+            estimate=estimate,
+            status=200 if estimate is not None or "preview" in request.POST else 400,
+        )
     try:
-        campaign = services.create_campaign(owner=request.user, team=form.cleaned_data["team"],
-                                            **form.service_kwargs())
+        campaign = services.create_campaign(owner=request.user, team=form.cleaned_data["team"], **form.service_kwargs())
     except services.CampaignError as exc:
         form.add_service_error(exc)
         return _planner_page(request, form, campaign=None, estimate=estimate, status=400)
@@ -191,25 +234,33 @@ def campaign_edit(request: HttpRequest, campaign_id: int) -> HttpResponse:
         if request.method == "POST":
             if budget_form.is_valid():
                 try:
-                    services.set_cost_budget(campaign_id=campaign.pk,
-                                             cost_budget=budget_form.cleaned_data["cost_budget"])
+                    services.set_cost_budget(
+                        campaign_id=campaign.pk, cost_budget=budget_form.cleaned_data["cost_budget"]
+                    )
                 except services.CampaignError as exc:
                     field = exc.field if exc.field in budget_form.fields else None
                     budget_form.add_error(field, exc.message if field else str(exc))
                 else:
                     messages.success(request, f"Cost budget set to {budget_form.cleaned_data['cost_budget']}.")
                     return redirect("campaigns:detail", campaign_id=campaign.pk)
-            return render(request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form},
-                          status=400)
+            return render(
+                request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form}, status=400
+            )
         return render(request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form})
     if request.method == "GET":
-        return _planner_page(request, CampaignForm(user=request.user, campaign=campaign), campaign=campaign,
-                             estimate=None)
+        return _planner_page(
+            request, CampaignForm(user=request.user, campaign=campaign), campaign=campaign, estimate=None
+        )
     form = CampaignForm(request.POST, user=request.user, campaign=campaign)
     estimate = _estimate(request, form)
     if "preview" in request.POST or estimate is None:
-        return _planner_page(request, form, campaign=campaign, estimate=estimate,
-                             status=200 if estimate is not None or "preview" in request.POST else 400)
+        return _planner_page(
+            request,
+            form,
+            campaign=campaign,
+            estimate=estimate,
+            status=200 if estimate is not None or "preview" in request.POST else 400,
+        )
     try:
         services.update_draft_campaign(campaign_id=campaign.pk, **form.service_kwargs())
     except services.CampaignError as exc:
@@ -242,13 +293,21 @@ def campaign_detail(request: HttpRequest, campaign_id: int) -> HttpResponse:
     live = selectors.campaign_live(campaign=campaign)
     live["eta"] = _eta(live)
     coverage = selectors.coverage_sample(campaign=campaign)
-    return render(request, "campaigns/detail.html", {
-        "c": campaign, "live": live, "eta": live["eta"],
-        "chart_data": {"live": live, "coverage": coverage},
-        "coverage": coverage, "plotly_url": reverse("campaigns:plotly", kwargs={"version": plotly_version()}),
-        "live_url": reverse("campaigns:live", kwargs={"campaign_id": campaign.pk}),
-        "budget_rows": _budget_summary(campaign), **_roles(request, campaign),
-    })
+    return render(
+        request,
+        "campaigns/detail.html",
+        {
+            "c": campaign,
+            "live": live,
+            "eta": live["eta"],
+            "chart_data": {"live": live, "coverage": coverage},
+            "coverage": coverage,
+            "plotly_url": reverse("campaigns:plotly", kwargs={"version": plotly_version()}),
+            "live_url": reverse("campaigns:live", kwargs={"campaign_id": campaign.pk}),
+            "budget_rows": _budget_summary(campaign),
+            **_roles(request, campaign),
+        },
+    )
 
 
 def _eta(live: dict[str, Any]) -> str:
@@ -271,8 +330,9 @@ def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
             text = ", ".join(v.replace("_", " ") for v in value)
         else:
             text = f"{value[0]:g}–{value[1]:g}" if isinstance(value, list) else f"{value:g}"
-        rows.append({"section": f.section, "name": f.name.replace("_", " "), "value": text, "unit": f.unit,
-                     "help": f.help})
+        rows.append(
+            {"section": f.section, "name": f.name.replace("_", " "), "value": text, "unit": f.unit, "help": f.help}
+        )
     return rows
 
 
@@ -338,9 +398,11 @@ def failed_jobs(request: HttpRequest, campaign_id: int) -> HttpResponse:
         frames = frames.filter(errors.kind_filter(kind))
     page = Paginator(frames.order_by("-started_at", "-index"), FAILED_PAGE).get_page(request.GET.get("page"))
     rows = [{"frame": f, "kind": errors.error_kind(f.error), "first_line": f.error.split("\n", 1)[0]} for f in page]
-    return render(request, "campaigns/failed.html", {
-        "c": campaign, "groups": groups, "kind": kind, "page": page, "rows": rows, **_roles(request, campaign)})
-
+    return render(
+        request,
+        "campaigns/failed.html",
+        {"c": campaign, "groups": groups, "kind": kind, "page": page, "rows": rows, **_roles(request, campaign)},
+    )
 
 
 @require_POST
@@ -358,10 +420,16 @@ def failed_action(request: HttpRequest, campaign_id: int, action: str) -> HttpRe
         return redirect(back)
     try:
         if action == "retry":
-            n = (services.retry_failed_of_kind(campaign_id=campaign.pk, kind=kind) if kind is not None
-                 else services.retry_frame(campaign_id=campaign.pk, frame_id=int(frame_id)))
-            verb = "sent back to the queue" if campaign.status == Campaign.Status.RUNNING else \
-                "set to retry when the campaign runs"
+            n = (
+                services.retry_failed_of_kind(campaign_id=campaign.pk, kind=kind)
+                if kind is not None
+                else services.retry_frame(campaign_id=campaign.pk, frame_id=int(frame_id))
+            )
+            verb = (
+                "sent back to the queue"
+                if campaign.status == Campaign.Status.RUNNING
+                else "set to retry when the campaign runs"
+            )
             messages.success(request, f"{n} frame(s) {verb}." if n else "Nothing to retry: no dead frame matched.")
         elif action == "ignore":
             n = services.ignore_frame(campaign_id=campaign.pk, frame_id=int(frame_id or 0), kind=kind)
@@ -386,16 +454,24 @@ def _float_or_none(text: str | None, *, low: float, high: float) -> float | None
     return min(high, max(low, value))
 
 
-def _boxes(instances: Sequence[Mapping[str, Any]], match: Q | None, *, class_name: str, accepted: str,
-           min_visible: float | None) -> list[dict[str, Any]]:
+def _boxes(
+    instances: Sequence[Mapping[str, Any]],
+    match: Q | None,
+    *,
+    class_name: str,
+    accepted: str,
+    min_visible: float | None,
+) -> list[dict[str, Any]]:
     out = []
     for inst in instances:
         box = inst["bbox_xywh_px"]
-        matches = ((not class_name or inst["object_class__name"] == class_name)
-                   and (accepted != "accepted" or inst["accepted"]) and (accepted != "rejected" or not inst["accepted"])
-                   and (min_visible is None or inst["visible_fraction"] >= min_visible))
-        out.append({**inst, "box": box, "matches": matches,
-                    "reasons": ", ".join(inst["reject_reasons"] or [])})
+        matches = (
+            (not class_name or inst["object_class__name"] == class_name)
+            and (accepted != "accepted" or inst["accepted"])
+            and (accepted != "rejected" or not inst["accepted"])
+            and (min_visible is None or inst["visible_fraction"] >= min_visible)
+        )
+        out.append({**inst, "box": box, "matches": matches, "reasons": ", ".join(inst["reject_reasons"] or [])})
     return out
 
 
@@ -404,28 +480,45 @@ def frame_gallery(request: HttpRequest, campaign_id: int) -> HttpResponse:
     campaign = _campaign(request, campaign_id)
     class_name = request.GET.get("class", "")
     # A name with NUL is no class's (and PostgreSQL refuses it even in a lookup).
-    if class_name and ("\x00" in class_name
-                       or not campaign.quotas.filter(object_class__name=class_name).exists()):
+    if class_name and ("\x00" in class_name or not campaign.quotas.filter(object_class__name=class_name).exists()):
         class_name = ""
     accepted = request.GET.get("accepted", "")
     accepted = accepted if accepted in ("accepted", "rejected") else ""
     min_visible = _float_or_none(request.GET.get("min_visible"), low=0.0, high=1.0)
-    frames = selectors.gallery_frames(campaign=campaign, class_name=class_name, accepted=accepted,
-                                      min_visible_fraction=min_visible)
+    frames = selectors.gallery_frames(
+        campaign=campaign, class_name=class_name, accepted=accepted, min_visible_fraction=min_visible
+    )
     page = Paginator(frames, GALLERY_PAGE).get_page(request.GET.get("page"))
     instances = selectors.frame_instances(frame_ids=[f.pk for f in page])
     match = selectors.instance_filter(class_name=class_name, accepted=accepted, min_visible_fraction=min_visible)
-    tiles = [{"frame": f, "boxes": _boxes(instances[f.pk], match, class_name=class_name, accepted=accepted,
-                                          min_visible=min_visible)} for f in page]
+    tiles = [
+        {
+            "frame": f,
+            "boxes": _boxes(instances[f.pk], match, class_name=class_name, accepted=accepted, min_visible=min_visible),
+        }
+        for f in page
+    ]
     query = request.GET.copy()
     query.pop("page", None)
-    return render(request, "campaigns/gallery.html", {
-        "c": campaign, "page": page, "tiles": tiles, "class_name": class_name, "accepted": accepted,
-        "min_visible": "" if min_visible is None else f"{min_visible:g}", "query": query.urlencode(),
-        "classes": list(campaign.quotas.order_by("object_class__name").values_list("object_class__name", flat=True)),
-        "filtered": bool(class_name or accepted or min_visible is not None),
-        "label_size": round(campaign.width_px / 20, 2), **_roles(request, campaign),
-    })
+    return render(
+        request,
+        "campaigns/gallery.html",
+        {
+            "c": campaign,
+            "page": page,
+            "tiles": tiles,
+            "class_name": class_name,
+            "accepted": accepted,
+            "min_visible": "" if min_visible is None else f"{min_visible:g}",
+            "query": query.urlencode(),
+            "classes": list(
+                campaign.quotas.order_by("object_class__name").values_list("object_class__name", flat=True)
+            ),
+            "filtered": bool(class_name or accepted or min_visible is not None),
+            "label_size": round(campaign.width_px / 20, 2),
+            **_roles(request, campaign),
+        },
+    )
 
 
 def _frame(campaign: Campaign, index: int) -> Frame:
@@ -469,15 +562,29 @@ def frame_detail(request: HttpRequest, campaign_id: int, index: int) -> HttpResp
             labels = _read_json(folder / "labels.json")
     prev_index, next_index = selectors.frame_neighbours(frame=frame)
     render_settings = spec.get("render") or campaign.budget["render"]
-    return render(request, "campaigns/frame.html", {
-        "c": campaign, "frame": frame, "boxes": boxes, "spec": spec, "has_files": has_files,
-        "camera": spec.get("camera", {}), "lights": spec.get("lights", []), "room": spec.get("room", {}),
-        "exposure": labels.get("exposure", {}), "variant": labels.get("variant", ""),
-        "width_px": render_settings["width_px"], "height_px": render_settings["height_px"],
-        "prev_index": prev_index, "next_index": next_index, "timings": frame.timings_s or {},
-        "label_size": round(render_settings["width_px"] / 48, 2),
-        **_roles(request, campaign),
-    })
+    return render(
+        request,
+        "campaigns/frame.html",
+        {
+            "c": campaign,
+            "frame": frame,
+            "boxes": boxes,
+            "spec": spec,
+            "has_files": has_files,
+            "camera": spec.get("camera", {}),
+            "lights": spec.get("lights", []),
+            "room": spec.get("room", {}),
+            "exposure": labels.get("exposure", {}),
+            "variant": labels.get("variant", ""),
+            "width_px": render_settings["width_px"],
+            "height_px": render_settings["height_px"],
+            "prev_index": prev_index,
+            "next_index": next_index,
+            "timings": frame.timings_s or {},
+            "label_size": round(render_settings["width_px"] / 48, 2),
+            **_roles(request, campaign),
+        },
+    )
 
 
 FRAME_FILES = {"rgb.png", "thumb.jpg", "mask.png", "depth.png", "scene.json", "labels.json"}
@@ -579,8 +686,11 @@ def _asset_rows(request: HttpRequest) -> list[dict[str, Any]]:
         extents = info.get("extents_m")
         row["dimensions"] = " × ".join(f"{v:.2f}" for v in extents) + " m" if extents else None
         ranges = HANDBOOK_RANGES.get(a.object_class.name, {}) if a.kind == Asset.Kind.PROCEDURAL else {}
-        row["ranges"] = [f"{k.removesuffix('_m').replace('_', ' ')} {r.low:g}–{r.high:g} m"
-                         for k, r in ranges.items() if k.endswith("_m")][:3]
+        row["ranges"] = [
+            f"{k.removesuffix('_m').replace('_', ' ')} {r.low:g}–{r.high:g} m"
+            for k, r in ranges.items()
+            if k.endswith("_m")
+        ][:3]
     return rows
 
 
@@ -602,14 +712,24 @@ def asset_library(request: HttpRequest) -> HttpResponse:
         if asset is not None:
             info = asset_files.asset_info(asset.pk)
             size = f" Size in the room: {asset_files.size_text(info['extents_m'])}." if info.get("extents_m") else ""
-            messages.success(request, f"“{asset.name}” added to the library; its preview renders on the fleet.{size} "
-                                      "Campaigns use it only where they choose it.")
+            messages.success(
+                request,
+                f"“{asset.name}” added to the library; its preview renders on the fleet.{size} "
+                "Campaigns use it only where they choose it.",
+            )
             return redirect("campaigns:assets")
         status = 400
-    return render(request, "campaigns/assets.html", {"rows": _asset_rows(request), "form": form,
-                                                     "can_upload": can_upload,
-                                                     "max_upload_mib": asset_files.MAX_UPLOAD_BYTES // 2**20},
-                  status=status)
+    return render(
+        request,
+        "campaigns/assets.html",
+        {
+            "rows": _asset_rows(request),
+            "form": form,
+            "can_upload": can_upload,
+            "max_upload_mib": asset_files.MAX_UPLOAD_BYTES // 2**20,
+        },
+        status=status,
+    )
 
 
 def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
@@ -620,9 +740,17 @@ def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
     d = form.cleaned_data
     try:
         return services.upload_mesh_asset(
-            user=request.user, team=d["team"], object_class_name=d["object_class"].name, name=d["name"],
-            upload=d["mesh"], unit=d["unit"], creation_cost=d["creation_cost"], up_axis=d.get("up_axis") or "+z",
-            front=d.get("front") or "", look=d.get("look") or "keep")
+            user=request.user,
+            team=d["team"],
+            object_class_name=d["object_class"].name,
+            name=d["name"],
+            upload=d["mesh"],
+            unit=d["unit"],
+            creation_cost=d["creation_cost"],
+            up_axis=d.get("up_axis") or "+z",
+            front=d.get("front") or "",
+            look=d.get("look") or "keep",
+        )
     except asset_files.UploadError as exc:
         form.add_error("mesh", str(exc)[:1].upper() + str(exc)[1:])
     except services.CampaignError as exc:
@@ -641,4 +769,3 @@ def asset_preview(request: HttpRequest, asset_id: int) -> FileResponse:
     response = FileResponse(open(path, "rb"), content_type="image/png")
     response["Cache-Control"] = "private, max-age=600"
     return response
-

@@ -52,28 +52,48 @@ def part_name(split: str, kind: str) -> str:
     return f"{split}-{kind}.part"
 
 
-def image_entry(frame: FrameRow, *, split: str, stem: str, width_px: int, height_px: int,
-                labels: dict[str, Any]) -> dict[str, Any]:
+def image_entry(
+    frame: FrameRow, *, split: str, stem: str, width_px: int, height_px: int, labels: dict[str, Any]
+) -> dict[str, Any]:
     """A COCO image with the frame's camera (from its labels), exposure and scene coordinates."""
     index = frame.index
     return {
-        "id": int(index), "file_name": f"{stem}.png", "width": width_px, "height": height_px,
-        "mask_file_name": f"{stem}.png", "split": split, "frame_index": int(index),
-        "layout_index": int(frame.layout_index), "lighting_index": int(frame.lighting_index),
-        "view_index": int(frame.view_index), "seed": int(frame.seed), "camera": labels.get("camera"),
-        "exposure": labels.get("exposure"), "renderer_variant": labels.get("variant"),
+        "id": int(index),
+        "file_name": f"{stem}.png",
+        "width": width_px,
+        "height": height_px,
+        "mask_file_name": f"{stem}.png",
+        "split": split,
+        "frame_index": int(index),
+        "layout_index": int(frame.layout_index),
+        "lighting_index": int(frame.lighting_index),
+        "view_index": int(frame.view_index),
+        "seed": int(frame.seed),
+        "camera": labels.get("camera"),
+        "exposure": labels.get("exposure"),
+        "renderer_variant": labels.get("variant"),
     }
 
 
 def annotation_entry(row: InstanceRow, *, category: Category, rle: dict[str, Any]) -> dict[str, Any]:
     """A COCO annotation (the instance row's primary key is its id) with the visibility measures."""
     return {
-        "id": int(row.pk), "image_id": int(row.frame_index), "category_id": category.category_id,
-        "bbox": [float(v) for v in row.bbox], "area": int(row.mask_area_px), "segmentation": rle, "iscrowd": 0,
-        "instance_id": int(row.instance_id), "asset_id": row.asset_id,
-        "visible_fraction": row.visible_fraction, "contrast": row.contrast,
-        "occlusion_fraction": row.occlusion_fraction, "truncation_fraction": row.truncation_fraction,
-        "amodal_bbox": row.amodal_bbox, "accepted": bool(row.accepted), "reject_reasons": row.reject_reasons or [],
+        "id": int(row.pk),
+        "image_id": int(row.frame_index),
+        "category_id": category.category_id,
+        "bbox": [float(v) for v in row.bbox],
+        "area": int(row.mask_area_px),
+        "segmentation": rle,
+        "iscrowd": 0,
+        "instance_id": int(row.instance_id),
+        "asset_id": row.asset_id,
+        "visible_fraction": row.visible_fraction,
+        "contrast": row.contrast,
+        "occlusion_fraction": row.occlusion_fraction,
+        "truncation_fraction": row.truncation_fraction,
+        "amodal_bbox": row.amodal_bbox,
+        "accepted": bool(row.accepted),
+        "reject_reasons": row.reject_reasons or [],
     }
 
 
@@ -99,14 +119,27 @@ def write_coco(sink: Sink, *, split: str, campaign: Any, categories: Sequence[Ca
     c = campaign
     info = {
         "description": f"Evenframe campaign {c.pk} {c.name!r}, {split} split",
-        "version": f"campaign-{c.pk}", "year": c.created_at.year, "contributor": c.owner.get_username(),
-        "date_created": c.created_at.isoformat(), "url": "",
+        "version": f"campaign-{c.pk}",
+        "year": c.created_at.year,
+        "contributor": c.owner.get_username(),
+        "date_created": c.created_at.isoformat(),
+        "url": "",
     }
-    coco_categories = [{"id": cat.category_id, "name": cat.name, "supercategory": "object", "label": cat.label}
-                       for cat in categories]
-    head = ('{"info":' + dumps(info) + ',"licenses":[],"categories":' + dumps(coco_categories)
-            + ',"images":[\n').encode()
+    coco_categories = [
+        {"id": cat.category_id, "name": cat.name, "supercategory": "object", "label": cat.label} for cat in categories
+    ]
+    head = (
+        '{"info":' + dumps(info) + ',"licenses":[],"categories":' + dumps(coco_categories) + ',"images":[\n'
+    ).encode()
     scratch = sink.scratch
-    yield from copy_into(sink, f"annotations/{split}.json", [
-        head, scratch / part_name(split, "images"), b'\n],"annotations":[\n', scratch / part_name(split, "annotations"),
-        b"\n]}\n"])
+    yield from copy_into(
+        sink,
+        f"annotations/{split}.json",
+        [
+            head,
+            scratch / part_name(split, "images"),
+            b'\n],"annotations":[\n',
+            scratch / part_name(split, "annotations"),
+            b"\n]}\n",
+        ],
+    )

@@ -19,8 +19,21 @@ from datasets.queries import Category, InstanceRow
 from datasets.splits import SPLITS
 
 SOFTWARE_PACKAGES: tuple[str, ...] = (
-    "mitsuba", "drjit", "Django", "celery", "kombu", "numpy", "scipy", "pycocotools", "opencv-python-headless",
-    "pillow", "trimesh", "manifold3d", "shapely", "psycopg", "PyYAML",
+    "mitsuba",
+    "drjit",
+    "Django",
+    "celery",
+    "kombu",
+    "numpy",
+    "scipy",
+    "pycocotools",
+    "opencv-python-headless",
+    "pillow",
+    "trimesh",
+    "manifold3d",
+    "shapely",
+    "psycopg",
+    "PyYAML",
 )
 
 
@@ -32,8 +45,7 @@ def software_versions() -> dict[str, Any]:
             packages[name] = metadata.version(name)
         except metadata.PackageNotFoundError:
             packages[name] = None
-    return {"python": platform.python_version(), "platform": platform.platform(terse=True),
-            "packages": packages}
+    return {"python": platform.python_version(), "platform": platform.platform(terse=True), "packages": packages}
 
 
 @dataclass
@@ -63,52 +75,91 @@ class ClassStats:
         self.area_px_sum += int(row.mask_area_px)
 
 
-def class_statistics(*, campaign: Any, options: ExportOptions, categories: Sequence[Category],
-                     stats: Mapping[int, ClassStats], images: Counter, annotations: Counter) -> dict:
+def class_statistics(
+    *,
+    campaign: Any,
+    options: ExportOptions,
+    categories: Sequence[Category],
+    stats: Mapping[int, ClassStats],
+    images: Counter,
+    annotations: Counter,
+) -> dict:
     """``class_statistics.json``: per class and split, what was exported, with the quota's thresholds and counters."""
     from campaigns.models import ClassQuota
 
-    quotas = {q["object_class_id"]: q for q in ClassQuota.objects.filter(campaign=campaign).values(
-        "object_class_id", "target_accepted", "accepted_count", "rejected_count", "placed_count",
-        "min_visible_fraction", "min_box_px", "min_contrast")}
+    quotas = {
+        q["object_class_id"]: q
+        for q in ClassQuota.objects.filter(campaign=campaign).values(
+            "object_class_id",
+            "target_accepted",
+            "accepted_count",
+            "rejected_count",
+            "placed_count",
+            "min_visible_fraction",
+            "min_box_px",
+            "min_contrast",
+        )
+    }
     classes = []
     for cat in categories:
         s = stats[cat.object_class_id]
         n = sum(s.instances.values())
         q: Mapping[str, Any] = quotas.get(cat.object_class_id, {})
-        classes.append({
-            "name": cat.name, "category_id": cat.category_id, "yolo_index": cat.yolo_index,
-            "quota": {"target_accepted": q.get("target_accepted"), "accepted": q.get("accepted_count"),
-                      "rejected": q.get("rejected_count"), "placed": q.get("placed_count"),
-                      "min_visible_fraction": q.get("min_visible_fraction"), "min_box_px": q.get("min_box_px"),
-                      "min_contrast": q.get("min_contrast")},
-            "exported_instances": {**{sp: s.instances[sp] for sp in SPLITS}, "total": n},
-            "exported_accepted": {**{sp: s.accepted[sp] for sp in SPLITS}, "total": sum(s.accepted.values())},
-            "share": {sp: (round(s.instances[sp] / n, 6) if n else None) for sp in SPLITS},
-            "frames_with_class": {**{sp: s.frames[sp] for sp in SPLITS}, "total": sum(s.frames.values())},
-            "mean_visible_fraction": round(s.visible_fraction_sum / n, 6) if n else None,
-            # over the instances that have one; instances_with_contrast says how many that is
-            "mean_contrast": round(s.contrast_sum / s.contrast_n, 6) if s.contrast_n else None,
-            "instances_with_contrast": s.contrast_n,
-            "mean_occlusion_fraction": round(s.occlusion_fraction_sum / n, 6) if n else None,
-            "mean_truncation_fraction": round(s.truncation_fraction_sum / n, 6) if n else None,
-            "mean_area_px": round(s.area_px_sum / n, 3) if n else None,
-        })
-    return {"campaign_id": campaign.pk, "accepted_only": options.accepted_only,
-            "images": {**{s: images[s] for s in SPLITS}, "total": sum(images.values())},
-            "annotations": {**{s: annotations[s] for s in SPLITS}, "total": sum(annotations.values())},
-            "classes": classes}
+        classes.append(
+            {
+                "name": cat.name,
+                "category_id": cat.category_id,
+                "yolo_index": cat.yolo_index,
+                "quota": {
+                    "target_accepted": q.get("target_accepted"),
+                    "accepted": q.get("accepted_count"),
+                    "rejected": q.get("rejected_count"),
+                    "placed": q.get("placed_count"),
+                    "min_visible_fraction": q.get("min_visible_fraction"),
+                    "min_box_px": q.get("min_box_px"),
+                    "min_contrast": q.get("min_contrast"),
+                },
+                "exported_instances": {**{sp: s.instances[sp] for sp in SPLITS}, "total": n},
+                "exported_accepted": {**{sp: s.accepted[sp] for sp in SPLITS}, "total": sum(s.accepted.values())},
+                "share": {sp: (round(s.instances[sp] / n, 6) if n else None) for sp in SPLITS},
+                "frames_with_class": {**{sp: s.frames[sp] for sp in SPLITS}, "total": sum(s.frames.values())},
+                "mean_visible_fraction": round(s.visible_fraction_sum / n, 6) if n else None,
+                # over the instances that have one; instances_with_contrast says how many that is
+                "mean_contrast": round(s.contrast_sum / s.contrast_n, 6) if s.contrast_n else None,
+                "instances_with_contrast": s.contrast_n,
+                "mean_occlusion_fraction": round(s.occlusion_fraction_sum / n, 6) if n else None,
+                "mean_truncation_fraction": round(s.truncation_fraction_sum / n, 6) if n else None,
+                "mean_area_px": round(s.area_px_sum / n, 3) if n else None,
+            }
+        )
+    return {
+        "campaign_id": campaign.pk,
+        "accepted_only": options.accepted_only,
+        "images": {**{s: images[s] for s in SPLITS}, "total": sum(images.values())},
+        "annotations": {**{s: annotations[s] for s in SPLITS}, "total": sum(annotations.values())},
+        "classes": classes,
+    }
 
 
-def splits_json(*, campaign: Any, options: ExportOptions, categories: Sequence[Category], layouts: list[int],
-                assignment: Mapping[int, str], shares: np.ndarray | None, layouts_per_split: Counter) -> dict:
+def splits_json(
+    *,
+    campaign: Any,
+    options: ExportOptions,
+    categories: Sequence[Category],
+    layouts: list[int],
+    assignment: Mapping[int, str],
+    shares: np.ndarray | None,
+    layouts_per_split: Counter,
+) -> dict:
     """``splits.json``: ratios, method, achieved shares and every layout's split (what a re-export pins)."""
     columns = [c.name for c in categories] + ["(frames)"]
     achieved = {}
     if shares is not None:
         for i, name in enumerate(columns):
-            achieved[name] = {s: (None if not np.isfinite(shares[j, i]) else round(float(shares[j, i]), 6))
-                              for j, s in enumerate(SPLITS)}
+            achieved[name] = {
+                s: (None if not np.isfinite(shares[j, i]) else round(float(shares[j, i]), 6))
+                for j, s in enumerate(SPLITS)
+            }
     by_split: dict[str, list[int]] = {s: [] for s in SPLITS}
     for layout in layouts:
         by_split[assignment[layout]].append(int(layout))
@@ -117,7 +168,7 @@ def splits_json(*, campaign: Any, options: ExportOptions, categories: Sequence[C
         "seed": campaign.seed,
         "unit": "layout (Frame.layout_index): frames that share a layout share its split",
         "method": "greedy largest-first balance of per-class instance counts (assign_splits); layouts "
-                  "assigned by a previous export with the same ratios keep their split",
+        "assigned by a previous export with the same ratios keep their split",
         "balanced_on": "exported instances" + (" (accepted only)" if options.accepted_only else ""),
         "layouts": {s: layouts_per_split[s] for s in SPLITS},
         "achieved_shares": achieved,
@@ -131,30 +182,72 @@ def campaign_json(*, campaign: Any) -> dict:
 
     c = campaign
     quotas = [
-        {"class_name": q["object_class__name"], "target_accepted": q["target_accepted"],
-         "min_visible_fraction": q["min_visible_fraction"], "min_box_px": q["min_box_px"],
-         "min_contrast": q["min_contrast"], "accepted": q["accepted_count"], "rejected": q["rejected_count"],
-         "placed": q["placed_count"], "met_at": q["met_at"]}
+        {
+            "class_name": q["object_class__name"],
+            "target_accepted": q["target_accepted"],
+            "min_visible_fraction": q["min_visible_fraction"],
+            "min_box_px": q["min_box_px"],
+            "min_contrast": q["min_contrast"],
+            "accepted": q["accepted_count"],
+            "rejected": q["rejected_count"],
+            "placed": q["placed_count"],
+            "met_at": q["met_at"],
+        }
         for q in c.quotas.order_by("object_class__name").values(
-            "object_class__name", "target_accepted", "min_visible_fraction", "min_box_px", "min_contrast",
-            "accepted_count", "rejected_count", "placed_count", "met_at")
+            "object_class__name",
+            "target_accepted",
+            "min_visible_fraction",
+            "min_box_px",
+            "min_contrast",
+            "accepted_count",
+            "rejected_count",
+            "placed_count",
+            "met_at",
+        )
     ]
-    assets = [{"class_name": a["object_class__name"], "name": a["name"], "kind": a["kind"],
-               "generator": a["generator"], "mesh_file": a["mesh_file"], "creation_cost": a["creation_cost"]}
-              for a in c.assets.order_by("object_class__name", "name").values(
-                  "object_class__name", "name", "kind", "generator", "mesh_file", "creation_cost")]
+    assets = [
+        {
+            "class_name": a["object_class__name"],
+            "name": a["name"],
+            "kind": a["kind"],
+            "generator": a["generator"],
+            "mesh_file": a["mesh_file"],
+            "creation_cost": a["creation_cost"],
+        }
+        for a in c.assets.order_by("object_class__name", "name").values(
+            "object_class__name", "name", "kind", "generator", "mesh_file", "creation_cost"
+        )
+    ]
     return {
-        "id": c.pk, "name": c.name, "description": c.description, "owner": c.owner.get_username(),
-        "status": c.status, "seed": c.seed, "weight": c.weight, "max_attempts": c.max_attempts,
-        "created_at": c.created_at, "started_at": c.started_at, "finished_at": c.finished_at,
+        "id": c.pk,
+        "name": c.name,
+        "description": c.description,
+        "owner": c.owner.get_username(),
+        "status": c.status,
+        "seed": c.seed,
+        "weight": c.weight,
+        "max_attempts": c.max_attempts,
+        "created_at": c.created_at,
+        "started_at": c.started_at,
+        "finished_at": c.finished_at,
         "budget": c.budget,
-        "costs": {"cost_budget": c.cost_budget, "price_per_cpu_hour": c.price_per_cpu_hour,
-                  "setup_cost": c.setup_cost, "manual_labelling_rate_per_hour": c.manual_labelling_rate_per_hour,
-                  "fixed_cost": selectors.fixed_cost(campaign=c), "compute_cost_spent": c.compute_cost_spent,
-                  "total_spent": selectors.total_spent(campaign=c), "cpu_s_spent": c.cpu_s_spent,
-                  "wall_s_spent": c.wall_s_spent},
-        "counters": {"frames_done": c.frames_done, "frames_dead": c.frames_dead,
-                     "instances_accepted": c.instances_accepted, "instances_rejected": c.instances_rejected},
+        "costs": {
+            "cost_budget": c.cost_budget,
+            "price_per_cpu_hour": c.price_per_cpu_hour,
+            "setup_cost": c.setup_cost,
+            "manual_labelling_rate_per_hour": c.manual_labelling_rate_per_hour,
+            "fixed_cost": selectors.fixed_cost(campaign=c),
+            "compute_cost_spent": c.compute_cost_spent,
+            "total_spent": selectors.total_spent(campaign=c),
+            "cpu_s_spent": c.cpu_s_spent,
+            "wall_s_spent": c.wall_s_spent,
+        },
+        "counters": {
+            "frames_done": c.frames_done,
+            "frames_dead": c.frames_dead,
+            "instances_accepted": c.instances_accepted,
+            "instances_rejected": c.instances_rejected,
+        },
         "quotas": quotas,
         "assets": assets,
     }
@@ -167,25 +260,37 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
     yolo = "yolo" in options.formats
     coco = "coco" in options.formats
     lines = [
-        f"# Evenframe dataset: campaign {c.pk} “{c.name}”", "",
-        f"Classes: {names}. Splits: " + ", ".join(
-            f"{s} {r:g}" for s, r in zip(SPLITS, options.ratios, strict=True)) + " (by layout).",
-        "Instances: " + ("accepted by the campaign's quota rules only." if options.accepted_only
-                         else "every visible instance; `accepted` says whether the quota rule accepted it."),
-        "", "| path | content |", "|---|---|",
+        f"# Evenframe dataset: campaign {c.pk} “{c.name}”",
+        "",
+        f"Classes: {names}. Splits: "
+        + ", ".join(f"{s} {r:g}" for s, r in zip(SPLITS, options.ratios, strict=True))
+        + " (by layout).",
+        "Instances: "
+        + (
+            "accepted by the campaign's quota rules only."
+            if options.accepted_only
+            else "every visible instance; `accepted` says whether the quota rule accepted it."
+        ),
+        "",
+        "| path | content |",
+        "|---|---|",
         "| `images/<stem>.png` | RGB frame, sRGB 8 bit |",
         "| `masks/<stem>.png` | 16-bit instance ids (0 = background); annotation `instance_id` |",
     ]
     if coco:
-        lines.append("| `annotations/<split>.json` | COCO instances: bbox, area, RLE segmentation, iscrowd 0; "
-                     "extra per annotation: visible/occlusion/truncation fraction, contrast (ΔE*ab against the "
-                     "surroundings ÷ image noise; null for frames rendered before it was measured), amodal_bbox, "
-                     "accepted; "
-                     "extra per image: camera K, R, t (OpenCV), exposure, layout/lighting/view index, seed. "
-                     "`file_name` is relative to `images/` |")
+        lines.append(
+            "| `annotations/<split>.json` | COCO instances: bbox, area, RLE segmentation, iscrowd 0; "
+            "extra per annotation: visible/occlusion/truncation fraction, contrast (ΔE*ab against the "
+            "surroundings ÷ image noise; null for frames rendered before it was measured), amodal_bbox, "
+            "accepted; "
+            "extra per image: camera K, R, t (OpenCV), exposure, layout/lighting/view index, seed. "
+            "`file_name` is relative to `images/` |"
+        )
     if yolo:
-        lines.append("| `labels/<stem>.txt`, `data.yaml`, `classes.txt`, `<split>.txt` | YOLO: "
-                     "`class cx cy w h` normalised; split lists of image paths |")
+        lines.append(
+            "| `labels/<stem>.txt`, `data.yaml`, `classes.txt`, `<split>.txt` | YOLO: "
+            "`class cx cy w h` normalised; split lists of image paths |"
+        )
     lines += [
         "| `scenes.jsonl` | one line per frame: the full scene spec (`scene`) and render facts |",
         "| `campaign.json` | campaign settings, randomization budget, quotas, costs |",
@@ -195,6 +300,8 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
         "| `splits.json` | ratios, method, achieved shares, each layout's split |",
         "| `manifest.jsonl` | header, then every file with size and SHA-256; "
         "check with `manage.py verify_dataset DIR` |",
-        "", f"Active splits: {', '.join(active)}.", "",
+        "",
+        f"Active splits: {', '.join(active)}.",
+        "",
     ]
     return "\n".join(lines)

@@ -52,5 +52,8 @@ class ExportOptions:
     formats: frozenset[str] = frozenset({"coco"})
 
     def as_json(self) -> dict[str, Any]:
-        return {"accepted_only": self.accepted_only, "splits": dict(zip(SPLITS, self.ratios, strict=True)),
-                "formats": sorted(self.formats)}
+        return {
+            "accepted_only": self.accepted_only,
+            "splits": dict(zip(SPLITS, self.ratios, strict=True)),
+            "formats": sorted(self.formats),
+        }

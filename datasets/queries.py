@@ -48,10 +48,15 @@ def campaign_categories(*, campaign: Any) -> list[Category]:
     """The campaign's quota classes, sorted by name: COCO ids 1…K, YOLO indices 0…K−1."""
     from campaigns.models import ClassQuota
 
-    rows = (ClassQuota.objects.filter(campaign=campaign).order_by("object_class__name")
-            .values_list("object_class_id", "object_class__name", "object_class__label"))
-    return [Category(category_id=i + 1, yolo_index=i, object_class_id=oc_id, name=name, label=label or name)
-            for i, (oc_id, name, label) in enumerate(rows)]
+    rows = (
+        ClassQuota.objects.filter(campaign=campaign)
+        .order_by("object_class__name")
+        .values_list("object_class_id", "object_class__name", "object_class__label")
+    )
+    return [
+        Category(category_id=i + 1, yolo_index=i, object_class_id=oc_id, name=name, label=label or name)
+        for i, (oc_id, name, label) in enumerate(rows)
+    ]
 
 
 def done_frames(campaign: Any, finished_before: datetime) -> Any:
@@ -65,28 +70,40 @@ def exported_instances(campaign: Any, finished_before: datetime, accepted_only: 
     """The instances in the export: visible (a mask and a box) on a done frame; accepted ones only if asked."""
     from campaigns.models import Frame, Instance
 
-    query = Instance.objects.filter(campaign=campaign, frame__state=Frame.State.DONE,
-                                    frame__finished_at__lte=finished_before, mask_area_px__gt=0,
-                                    bbox_xywh_px__isnull=False)
+    query = Instance.objects.filter(
+        campaign=campaign,
+        frame__state=Frame.State.DONE,
+        frame__finished_at__lte=finished_before,
+        mask_area_px__gt=0,
+        bbox_xywh_px__isnull=False,
+    )
     return query.filter(accepted=True) if accepted_only else query
 
 
-def layout_counts(*, campaign: Any, categories: Sequence[Category], accepted_only: bool,
-                  finished_before: datetime) -> tuple[list[int], np.ndarray]:
+def layout_counts(
+    *, campaign: Any, categories: Sequence[Category], accepted_only: bool, finished_before: datetime
+) -> tuple[list[int], np.ndarray]:
     """Per layout: exported instances per category and the frame count (last column). Aggregated in SQL."""
     from django.db.models import Count
 
     column = {c.object_class_id: i for i, c in enumerate(categories)}
-    frames_per_layout = dict(done_frames(campaign, finished_before).values_list("layout_index")
-                             .annotate(n=Count("pk")).order_by("layout_index"))
+    frames_per_layout = dict(
+        done_frames(campaign, finished_before)
+        .values_list("layout_index")
+        .annotate(n=Count("pk"))
+        .order_by("layout_index")
+    )
     layouts = sorted(frames_per_layout)
     row_of = {layout: i for i, layout in enumerate(layouts)}
     counts = np.zeros((len(layouts), len(categories) + 1), dtype=np.int64)
     for layout, row in row_of.items():
         counts[row, -1] = frames_per_layout[layout]
-    rows = (exported_instances(campaign, finished_before, accepted_only)
-            .values_list("frame__layout_index", "object_class_id").annotate(n=Count("pk"))
-            .order_by("frame__layout_index", "object_class_id"))
+    rows = (
+        exported_instances(campaign, finished_before, accepted_only)
+        .values_list("frame__layout_index", "object_class_id")
+        .annotate(n=Count("pk"))
+        .order_by("frame__layout_index", "object_class_id")
+    )
     for layout, class_id, n in rows:
         if layout in row_of and class_id in column:
             counts[row_of[layout], column[class_id]] += n
@@ -131,21 +148,52 @@ class InstanceRow(NamedTuple):
 
 def frame_rows(campaign: Any, finished_before: datetime) -> Iterator[FrameRow]:
     """The exported frames in index order, streamed."""
-    return map(FrameRow._make, done_frames(campaign, finished_before).order_by("index")
-               .values_list("index", "layout_index", "lighting_index", "view_index", "seed", "output_dir",
-                            "composition", "cpu_s", "wall_s", "worker_host", "finished_at")
-               .iterator(chunk_size=FRAME_CHUNK))
+    return map(
+        FrameRow._make,
+        done_frames(campaign, finished_before)
+        .order_by("index")
+        .values_list(
+            "index",
+            "layout_index",
+            "lighting_index",
+            "view_index",
+            "seed",
+            "output_dir",
+            "composition",
+            "cpu_s",
+            "wall_s",
+            "worker_host",
+            "finished_at",
+        )
+        .iterator(chunk_size=FRAME_CHUNK),
+    )
 
 
 def instance_rows(campaign: Any, finished_before: datetime, accepted_only: bool) -> Iterator[InstanceRow]:
     """The exported instances in (frame index, instance id) order, streamed."""
-    return map(InstanceRow._make, exported_instances(campaign, finished_before, accepted_only)
-               .order_by("frame__index", "instance_id")
-               .values_list("frame__index", "pk", "instance_id", "object_class_id", "asset_id", "bbox_xywh_px",
-                            "amodal_bbox_xywh_px", "visible_fraction", "contrast", "occlusion_fraction",
-                            "truncation_fraction", "mask_area_px", "segmentation_rle", "accepted",
-                            "reject_reasons")
-               .iterator(chunk_size=INSTANCE_CHUNK))
+    return map(
+        InstanceRow._make,
+        exported_instances(campaign, finished_before, accepted_only)
+        .order_by("frame__index", "instance_id")
+        .values_list(
+            "frame__index",
+            "pk",
+            "instance_id",
+            "object_class_id",
+            "asset_id",
+            "bbox_xywh_px",
+            "amodal_bbox_xywh_px",
+            "visible_fraction",
+            "contrast",
+            "occlusion_fraction",
+            "truncation_fraction",
+            "mask_area_px",
+            "segmentation_rle",
+            "accepted",
+            "reject_reasons",
+        )
+        .iterator(chunk_size=INSTANCE_CHUNK),
+    )
 
 
 class InstancesByFrame:

@@ -175,8 +175,13 @@ class DirectorySink(Sink):
                 sha.update(chunk)
                 size += len(chunk)
                 writer.write(chunk)
-        entry = {"path": path, "size": size, "sha256": sha.hexdigest(), "mtime_ns": os.stat(dest).st_mtime_ns,
-                 "source": [src.st_size, src.st_mtime_ns]}
+        entry = {
+            "path": path,
+            "size": size,
+            "sha256": sha.hexdigest(),
+            "mtime_ns": os.stat(dest).st_mtime_ns,
+            "source": [src.st_size, src.st_mtime_ns],
+        }
         if frame is not None:
             entry["frame"] = frame
         self._record(entry, written=True)
@@ -199,8 +204,15 @@ class DirectorySink(Sink):
         with open(dest, "wb") as raw:
             writer = HashingWriter(raw)
             yield writer
-        self._record({"path": path, "size": writer.size, "sha256": writer.sha.hexdigest(),
-                      "mtime_ns": os.stat(dest).st_mtime_ns}, written=True)
+        self._record(
+            {
+                "path": path,
+                "size": writer.size,
+                "sha256": writer.sha.hexdigest(),
+                "mtime_ns": os.stat(dest).st_mtime_ns,
+            },
+            written=True,
+        )
 
     def _open_manifest(self) -> contextlib.AbstractContextManager[IO[bytes]]:
         return open(self.staging / MANIFEST_NAME, "wb")

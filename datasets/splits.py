@@ -74,26 +74,38 @@ def assign_splits(
     w = np.ones(n_columns) if weights is None else np.asarray(weights, dtype=np.float64)
     targets = ratios_arr[:, None] * totals[None, :]
     achieved = np.zeros((n_splits, n_columns))
-    result, free = _place_pinned(group_ids=group_ids, counts=counts, ratios=ratios_arr, pinned=pinned or {},
-                                 achieved=achieved)
+    result, free = _place_pinned(
+        group_ids=group_ids, counts=counts, ratios=ratios_arr, pinned=pinned or {}, achieved=achieved
+    )
     if free:
         order = _largest_first_order(free=free, counts=counts, seed=seed)
         allowed = ratios_arr > 0
-        chosen = _greedy_assign(order=order, counts=counts, targets=targets, weights=w, allowed=allowed,
-                                achieved=achieved)
-        _refine(order=order, counts=counts, targets=targets, totals=totals, weights=w, allowed=allowed,
-                achieved=achieved, chosen=chosen)
-        _fill_empty_splits(order=order, group_ids=group_ids, counts=counts, allowed=allowed, achieved=achieved,
-                           chosen=chosen)
+        chosen = _greedy_assign(
+            order=order, counts=counts, targets=targets, weights=w, allowed=allowed, achieved=achieved
+        )
+        _refine(
+            order=order,
+            counts=counts,
+            targets=targets,
+            totals=totals,
+            weights=w,
+            allowed=allowed,
+            achieved=achieved,
+            chosen=chosen,
+        )
+        _fill_empty_splits(
+            order=order, group_ids=group_ids, counts=counts, allowed=allowed, achieved=achieved, chosen=chosen
+        )
         for row in order:
             result[int(group_ids[row])] = SPLITS[chosen[row]]
     return result
 
 
-def _place_pinned(*, group_ids: Sequence[int], counts: np.ndarray, ratios: np.ndarray, pinned: Mapping[int, str],
-                  achieved: np.ndarray) -> tuple[dict[int, str], list[int]]:
+def _place_pinned(
+    *, group_ids: Sequence[int], counts: np.ndarray, ratios: np.ndarray, pinned: Mapping[int, str], achieved: np.ndarray
+) -> tuple[dict[int, str], list[int]]:
     """Groups pinned to a split that is still asked for keep it (added to ``achieved``); the rows of the rest."""
-    split_of_name = {name: i for i, name in enumerate(SPLITS[:len(ratios)])}
+    split_of_name = {name: i for i, name in enumerate(SPLITS[: len(ratios)])}
     result: dict[int, str] = {}
     free: list[int] = []
     for row, group in enumerate(group_ids):
@@ -113,8 +125,15 @@ def _largest_first_order(*, free: list[int], counts: np.ndarray, seed: int) -> n
     return order[np.argsort(-counts[order].sum(axis=1), kind="stable")]
 
 
-def _greedy_assign(*, order: np.ndarray, counts: np.ndarray, targets: np.ndarray, weights: np.ndarray,
-                   allowed: np.ndarray, achieved: np.ndarray) -> np.ndarray:
+def _greedy_assign(
+    *,
+    order: np.ndarray,
+    counts: np.ndarray,
+    targets: np.ndarray,
+    weights: np.ndarray,
+    allowed: np.ndarray,
+    achieved: np.ndarray,
+) -> np.ndarray:
     """Each row in ``order`` to the allowed split with the largest weighted relative deficit; split per row."""
     inverse_targets = np.where(targets > 0, 1.0 / np.where(targets > 0, targets, 1.0), 0.0)
     chosen = np.zeros(len(counts), dtype=np.int64)
@@ -126,8 +145,17 @@ def _greedy_assign(*, order: np.ndarray, counts: np.ndarray, targets: np.ndarray
     return chosen
 
 
-def _refine(*, order: np.ndarray, counts: np.ndarray, targets: np.ndarray, totals: np.ndarray, weights: np.ndarray,
-            allowed: np.ndarray, achieved: np.ndarray, chosen: np.ndarray) -> None:
+def _refine(
+    *,
+    order: np.ndarray,
+    counts: np.ndarray,
+    targets: np.ndarray,
+    totals: np.ndarray,
+    weights: np.ndarray,
+    allowed: np.ndarray,
+    achieved: np.ndarray,
+    chosen: np.ndarray,
+) -> None:
     """Move single groups while that lowers Σ_s Σ_k w_k ((A_sk − T_sk) / N_k)², the squared share deviations.
 
     That is what a tolerance in percentage points measures. Moving v from s to s' changes it by
@@ -153,8 +181,15 @@ def _refine(*, order: np.ndarray, counts: np.ndarray, targets: np.ndarray, total
             break
 
 
-def _fill_empty_splits(*, order: np.ndarray, group_ids: Sequence[int], counts: np.ndarray, allowed: np.ndarray,
-                       achieved: np.ndarray, chosen: np.ndarray) -> None:
+def _fill_empty_splits(
+    *,
+    order: np.ndarray,
+    group_ids: Sequence[int],
+    counts: np.ndarray,
+    allowed: np.ndarray,
+    achieved: np.ndarray,
+    chosen: np.ndarray,
+) -> None:
     """A split the user asked for is never left empty while another holds several groups (tiny campaigns)."""
     n_splits = len(allowed)
     for empty in np.flatnonzero(allowed):

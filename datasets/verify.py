@@ -57,8 +57,7 @@ def verify_dataset(*, directory: str | Path) -> VerifyReport:
     except (ValueError, KeyError, UnicodeDecodeError) as exc:
         report.problems.append(f"altered: {MANIFEST_NAME} (unreadable entry: {exc})")
     if header.get("files") is not None and header["files"] != report.files:
-        report.problems.append(f"altered: {MANIFEST_NAME} (lists {report.files} files, header says "
-                               f"{header['files']})")
+        report.problems.append(f"altered: {MANIFEST_NAME} (lists {report.files} files, header says {header['files']})")
     for dirpath, dirnames, filenames in os.walk(root):
         dirnames.sort()
         for name in sorted(filenames):

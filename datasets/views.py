@@ -36,8 +36,9 @@ def download_dataset_zip(request: HttpRequest, campaign_id: int) -> HttpResponse
         )
     except ExportError as exc:
         return HttpResponseBadRequest(f"{exc}\n")
-    response = StreamingHttpResponse(stream_dataset_zip(campaign=campaign, options=options),
-                                     content_type="application/zip")
+    response = StreamingHttpResponse(
+        stream_dataset_zip(campaign=campaign, options=options), content_type="application/zip"
+    )
     response["Content-Disposition"] = f'attachment; filename="evenframe-campaign-{campaign.pk}.zip"'
     response["Cache-Control"] = "no-store"
     response["X-Accel-Buffering"] = "no"  # let a proxy pass the stream through instead of buffering it

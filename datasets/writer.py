@@ -100,10 +100,15 @@ class ExportSummary:
     peak_rss_mb: float = 0.0
 
     def lines(self) -> list[str]:
-        splits = ", ".join(f"{s} {self.images_per_split.get(s, 0)} images / {self.annotations_per_split.get(s, 0)}"
-                           " annotations" for s in SPLITS)
-        deviation = ("n/a (no instances)" if self.max_share_deviation_pp is None
-                     else f"{self.max_share_deviation_pp:.2f} percentage points")
+        splits = ", ".join(
+            f"{s} {self.images_per_split.get(s, 0)} images / {self.annotations_per_split.get(s, 0)} annotations"
+            for s in SPLITS
+        )
+        deviation = (
+            "n/a (no instances)"
+            if self.max_share_deviation_pp is None
+            else f"{self.max_share_deviation_pp:.2f} percentage points"
+        )
         if self.max_share_deviation_pp is not None and self.max_share_deviation_pp > 2.0:
             deviation += f" (more than 2: {self.layouts} layouts are too few for these ratios)"
 
@@ -171,9 +176,15 @@ class _ScratchFiles:
 class _Exporter:
     """One export run; :meth:`run` is a generator that yields after every file so a zip can be streamed."""
 
-    def __init__(self, *, campaign: Any, options: ExportOptions, media_root: Path,
-                 pinned: Mapping[int, str] | None = None,
-                 progress: Callable[[int, int], None] | None = None) -> None:
+    def __init__(
+        self,
+        *,
+        campaign: Any,
+        options: ExportOptions,
+        media_root: Path,
+        pinned: Mapping[int, str] | None = None,
+        progress: Callable[[int, int], None] | None = None,
+    ) -> None:
         from django.utils import timezone
 
         self.campaign = campaign
@@ -206,11 +217,21 @@ class _Exporter:
     def _plan_splits(self) -> _SplitPlan:
         """Per-layout counts from the database and their split (previous splits pinned)."""
         options = self.options
-        layouts, counts = layout_counts(campaign=self.campaign, categories=self.categories,
-                                        accepted_only=options.accepted_only, finished_before=self.finished_before)
+        layouts, counts = layout_counts(
+            campaign=self.campaign,
+            categories=self.categories,
+            accepted_only=options.accepted_only,
+            finished_before=self.finished_before,
+        )
         weights = [1.0] * len(self.categories) + [FRAME_BALANCE_WEIGHT]
-        assignment = assign_splits(group_ids=layouts, counts=counts, ratios=options.ratios, seed=self.campaign.seed,
-                                   pinned=self.pinned, weights=weights)
+        assignment = assign_splits(
+            group_ids=layouts,
+            counts=counts,
+            ratios=options.ratios,
+            seed=self.campaign.seed,
+            pinned=self.pinned,
+            weights=weights,
+        )
         active = [s for s, r in zip(SPLITS, options.ratios, strict=True) if r > 0]
         return _SplitPlan(layouts=layouts, counts=counts, assignment=assignment, active=active)
 
@@ -226,8 +247,15 @@ class _Exporter:
                 self.progress(tally.frames, n_frames)
             yield
 
-    def _export_frame(self, sink: Sink, frame: FrameRow, instances: Iterator[InstanceRow], plan: _SplitPlan,
-                      files: _ScratchFiles, tally: _Tally) -> None:
+    def _export_frame(
+        self,
+        sink: Sink,
+        frame: FrameRow,
+        instances: Iterator[InstanceRow],
+        plan: _SplitPlan,
+        files: _ScratchFiles,
+        tally: _Tally,
+    ) -> None:
         """One frame: image and mask, its COCO image and annotations, its YOLO labels, its ``scenes.jsonl`` line."""
         index = frame.index
         split = plan.assignment.get(frame.layout_index)
@@ -244,19 +272,36 @@ class _Exporter:
         width_px = int(image.get("width_px") or self.campaign.width_px)
         height_px = int(image.get("height_px") or self.campaign.height_px)
         tally.variants[labels.get("variant") or "unknown"] += 1
-        image_entry = coco.image_entry(frame, split=split, stem=stem, width_px=width_px, height_px=height_px,
-                                       labels=labels)
+        image_entry = coco.image_entry(
+            frame, split=split, stem=stem, width_px=width_px, height_px=height_px, labels=labels
+        )
         files.coco.append(split, "images", dumps(image_entry))
         tally.images[split] += 1
-        yolo_lines = self._export_instances(instances, split=split, frame_dir=frame_dir, width_px=width_px,
-                                            height_px=height_px, files=files, tally=tally)
+        yolo_lines = self._export_instances(
+            instances,
+            split=split,
+            frame_dir=frame_dir,
+            width_px=width_px,
+            height_px=height_px,
+            files=files,
+            tally=tally,
+        )
         if files.yolo_lists:
             sink.put_bytes(path=f"labels/{stem}.txt", data="".join(yolo_lines).encode(), frame=index)
             files.yolo_lists[split].write(yolo.list_line(stem))
         files.scenes.write(self._scene_line(frame, split=split, scene_text=scene_text, frame_dir=frame_dir))
 
-    def _export_instances(self, instances: Iterator[InstanceRow], *, split: str, frame_dir: Path, width_px: int,
-                          height_px: int, files: _ScratchFiles, tally: _Tally) -> list[str]:
+    def _export_instances(
+        self,
+        instances: Iterator[InstanceRow],
+        *,
+        split: str,
+        frame_dir: Path,
+        width_px: int,
+        height_px: int,
+        files: _ScratchFiles,
+        tally: _Tally,
+    ) -> list[str]:
         """A frame's instances into its split's COCO annotations and the statistics; returns its YOLO lines."""
         yolo_lines: list[str] = []
         classes_in_frame: set[int] = set()
@@ -282,11 +327,24 @@ class _Exporter:
     def _scene_line(frame: FrameRow, *, split: str, scene_text: str, frame_dir: Path) -> str:
         """The frame's ``scenes.jsonl`` line: its coordinates and render facts, then the scene spec as rendered."""
         finished_at = frame.finished_at
-        render_facts = {"cpu_s": frame.cpu_s, "wall_s": frame.wall_s, "worker_host": frame.worker_host,
-                        "finished_at": finished_at.isoformat() if finished_at else None}
-        head = dumps({"frame_index": int(frame.index), "split": split, "layout_index": int(frame.layout_index),
-                      "lighting_index": int(frame.lighting_index), "view_index": int(frame.view_index),
-                      "seed": int(frame.seed), "composition": frame.composition, "render": render_facts})
+        render_facts = {
+            "cpu_s": frame.cpu_s,
+            "wall_s": frame.wall_s,
+            "worker_host": frame.worker_host,
+            "finished_at": finished_at.isoformat() if finished_at else None,
+        }
+        head = dumps(
+            {
+                "frame_index": int(frame.index),
+                "split": split,
+                "layout_index": int(frame.layout_index),
+                "lighting_index": int(frame.lighting_index),
+                "view_index": int(frame.view_index),
+                "seed": int(frame.seed),
+                "composition": frame.composition,
+                "render": render_facts,
+            }
+        )
         if "\n" in scene_text or not (scene_text.startswith("{") and scene_text.endswith("}")):
             # Not the render core's canonical one-line JSON: parse (fails loudly) and re-dump.
             try:
@@ -304,18 +362,40 @@ class _Exporter:
         if yolo_lists:
             yield from yolo.write_yolo_meta(sink, campaign=campaign, categories=categories, active=plan.active)
         yield from copy_into(sink, "scenes.jsonl", [sink.scratch / "scenes.part"])
-        class_stats = metadata.class_statistics(campaign=campaign, options=options, categories=categories,
-                                                stats=tally.stats, images=tally.images,
-                                                annotations=tally.annotations)
+        class_stats = metadata.class_statistics(
+            campaign=campaign,
+            options=options,
+            categories=categories,
+            stats=tally.stats,
+            images=tally.images,
+            annotations=tally.annotations,
+        )
         sink.put_bytes(path="class_statistics.json", data=pretty(class_stats))
-        sink.put_bytes(path="splits.json", data=pretty(metadata.splits_json(
-            campaign=campaign, options=options, categories=categories, layouts=plan.layouts,
-            assignment=plan.assignment, shares=plan.shares, layouts_per_split=plan.layouts_per_split)))
+        sink.put_bytes(
+            path="splits.json",
+            data=pretty(
+                metadata.splits_json(
+                    campaign=campaign,
+                    options=options,
+                    categories=categories,
+                    layouts=plan.layouts,
+                    assignment=plan.assignment,
+                    shares=plan.shares,
+                    layouts_per_split=plan.layouts_per_split,
+                )
+            ),
+        )
         sink.put_bytes(path="campaign.json", data=pretty(metadata.campaign_json(campaign=campaign)))
-        sink.put_bytes(path="software.json", data=pretty({**metadata.software_versions(),
-                                                          "renderer_variants": dict(sorted(tally.variants.items()))}))
-        sink.put_bytes(path="README.md", data=metadata.readme(campaign=campaign, options=options,
-                                                              categories=categories, active=plan.active).encode())
+        sink.put_bytes(
+            path="software.json",
+            data=pretty({**metadata.software_versions(), "renderer_variants": dict(sorted(tally.variants.items()))}),
+        )
+        sink.put_bytes(
+            path="README.md",
+            data=metadata.readme(
+                campaign=campaign, options=options, categories=categories, active=plan.active
+            ).encode(),
+        )
 
     def _finish(self, sink: Sink, plan: _SplitPlan, tally: _Tally, start: float) -> None:
         """The manifest (written last) and the summary."""
@@ -325,12 +405,18 @@ class _Exporter:
         summary.images_per_split = {s: tally.images[s] for s in SPLITS}
         summary.annotations_per_split = {s: tally.annotations[s] for s in SPLITS}
         summary.max_share_deviation_pp = self._max_share_deviation_pp(plan.shares)
-        sink.write_manifest({
-            "format": EXPORT_FORMAT, "format_version": EXPORT_FORMAT_VERSION, "campaign_id": self.campaign.pk,
-            "campaign_name": self.campaign.name, "campaign_seed": self.campaign.seed,
-            "exported_at": self.finished_before.isoformat(), "frames": tally.frames,
-            "options": self.options.as_json(),
-        })
+        sink.write_manifest(
+            {
+                "format": EXPORT_FORMAT,
+                "format_version": EXPORT_FORMAT_VERSION,
+                "campaign_id": self.campaign.pk,
+                "campaign_name": self.campaign.name,
+                "campaign_seed": self.campaign.seed,
+                "exported_at": self.finished_before.isoformat(),
+                "frames": tally.frames,
+                "options": self.options.as_json(),
+            }
+        )
         for key in ("files", "bytes_total", "files_written", "bytes_written", "files_reused"):
             setattr(summary, key, getattr(sink.counts, key))
         summary.seconds = time.perf_counter() - start
@@ -387,8 +473,12 @@ def _previous_pinning(previous_root: Path | None, *, campaign: Any, options: Exp
         return {}
     if data.get("seed") != campaign.seed or data.get("ratios") != dict(zip(SPLITS, options.ratios, strict=True)):
         return {}
-    return {int(layout): split for split, layout_list in (data.get("assignment") or {}).items()
-            if split in SPLITS for layout in layout_list}
+    return {
+        int(layout): split
+        for split, layout_list in (data.get("assignment") or {}).items()
+        if split in SPLITS
+        for layout in layout_list
+    }
 
 
 def _check_out_dir(out: Path, campaign: Any) -> Path | None:
@@ -400,13 +490,17 @@ def _check_out_dir(out: Path, campaign: Any) -> Path | None:
     manifest = out / MANIFEST_NAME
     if not manifest.is_file():
         if any(out.iterdir()):
-            raise ExportError(f"--out {out}: not empty and not an Evenframe export (no {MANIFEST_NAME}); "
-                              "choose a new or empty directory")
+            raise ExportError(
+                f"--out {out}: not empty and not an Evenframe export (no {MANIFEST_NAME}); "
+                "choose a new or empty directory"
+            )
         return None
     header = read_manifest_header(manifest)
     if header.get("campaign_id") != campaign.pk:
-        raise ExportError(f"--out {out}: holds an export of campaign {header.get('campaign_id')}, "
-                          f"not {campaign.pk}; choose another directory")
+        raise ExportError(
+            f"--out {out}: holds an export of campaign {header.get('campaign_id')}, "
+            f"not {campaign.pk}; choose another directory"
+        )
     return out
 
 
@@ -448,9 +542,13 @@ def export_dataset(
         sink: DirectorySink | None = None
         try:
             sink = DirectorySink(staging=staging, previous_root=previous_root)
-            exporter = _Exporter(campaign=campaign, options=options, media_root=media,
-                                 pinned=_previous_pinning(previous_root, campaign=campaign, options=options),
-                                 progress=progress)
+            exporter = _Exporter(
+                campaign=campaign,
+                options=options,
+                media_root=media,
+                pinned=_previous_pinning(previous_root, campaign=campaign, options=options),
+                progress=progress,
+            )
             exporter.summary.out = str(out)
             for _ in exporter.run(sink):
                 pass
@@ -538,8 +636,9 @@ def _swap_in(staging: Path, out: Path) -> None:
         os.rename(staging, out)
 
 
-def stream_dataset_zip(*, campaign: Any, options: ExportOptions | None = None,
-                       media_root: str | Path | None = None) -> Iterator[bytes]:
+def stream_dataset_zip(
+    *, campaign: Any, options: ExportOptions | None = None, media_root: str | Path | None = None
+) -> Iterator[bytes]:
     """The export as a zip, produced chunk by chunk (one frame's files at a time) for a streamed download.
 
     Entries sit under ``evenframe-campaign-<id>/``; unzipped, that folder verifies with ``verify_dataset``.

@@ -19,8 +19,10 @@ from datasets.sinks import Sink, copy_into
 def label_line(category: Category, bbox: Sequence[float], width_px: int, height_px: int) -> str:
     """``class cx cy w h`` of a pixel box ``[x, y, w, h]``, normalised by the image size, six decimals."""
     x, y, w, h = (float(v) for v in bbox)
-    return (f"{category.yolo_index} {(x + w / 2) / width_px:.6f} "
-            f"{(y + h / 2) / height_px:.6f} {w / width_px:.6f} {h / height_px:.6f}\n")
+    return (
+        f"{category.yolo_index} {(x + w / 2) / width_px:.6f} "
+        f"{(y + h / 2) / height_px:.6f} {w / width_px:.6f} {h / height_px:.6f}\n"
+    )
 
 
 def open_split_lists(scratch: Path, splits: Sequence[str]) -> dict[str, IO[str]]:
@@ -33,16 +35,19 @@ def list_line(stem: str) -> str:
     return f"./images/{stem}.png\n"
 
 
-def write_yolo_meta(sink: Sink, *, campaign: Any, categories: Sequence[Category],
-                    active: Sequence[str]) -> Iterator[None]:
+def write_yolo_meta(
+    sink: Sink, *, campaign: Any, categories: Sequence[Category], active: Sequence[str]
+) -> Iterator[None]:
     """``data.yaml``, ``classes.txt`` and ``<split>.txt`` for each active split; yields while it copies."""
     import yaml
 
     names = {cat.yolo_index: cat.name for cat in categories}
     data = {"names": names, "nc": len(names), **{s: f"{s}.txt" for s in active}}
-    header = ("# YOLO dataset of Evenframe campaign "
-              f"{campaign.pk}. Paths are relative to this file's folder; labels/<stem>.txt sits beside "
-              "images/<stem>.png.\n")
+    header = (
+        "# YOLO dataset of Evenframe campaign "
+        f"{campaign.pk}. Paths are relative to this file's folder; labels/<stem>.txt sits beside "
+        "images/<stem>.png.\n"
+    )
     sink.put_bytes(path="data.yaml", data=(header + yaml.safe_dump(data, sort_keys=False)).encode())
     sink.put_bytes(path="classes.txt", data="".join(f"{names[i]}\n" for i in sorted(names)).encode())
     for split in active:

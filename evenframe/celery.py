@@ -24,7 +24,7 @@ def ensure_broker_folders() -> None:
             os.makedirs(folder, exist_ok=True)
     backend = settings.CELERY_RESULT_BACKEND
     if backend.startswith("file://"):
-        os.makedirs(backend[len("file://"):], exist_ok=True)
+        os.makedirs(backend[len("file://") :], exist_ok=True)
 
 
 @app.on_after_configure.connect

@@ -54,7 +54,9 @@ def check_workers() -> Check:
     except Exception as exc:  # noqa: BLE001
         return Check("workers", False, f"{type(exc).__name__}: {exc}")
     if not workers:
-        return Check("workers", False, f"no worker has sent a heartbeat in the last {settings.WORKER_LIVE_WINDOW_S:g} s")
+        return Check(
+            "workers", False, f"no worker has sent a heartbeat in the last {settings.WORKER_LIVE_WINDOW_S:g} s"
+        )
     names = ", ".join(f"{w.hostname} ({w.renderer_variant}, {w.concurrency}×)" for w in workers)
     return Check("workers", True, f"{len(workers)} live: {names}")
 

@@ -40,8 +40,9 @@ def client_ip_address(request: HttpRequest) -> str | None:
     return _valid_address(request.META.get("REMOTE_ADDR", "") or "")
 
 
-def lockout_response(request: HttpRequest, original_response: HttpResponse | None = None,
-                     credentials: dict[str, Any] | None = None) -> HttpResponse:
+def lockout_response(
+    request: HttpRequest, original_response: HttpResponse | None = None, credentials: dict[str, Any] | None = None
+) -> HttpResponse:
     """429 Too Many Requests with a page that says what happened and when to try again."""
     cooloff_s = settings.AXES_COOLOFF_TIME.total_seconds()
     context = {"failure_limit": settings.AXES_FAILURE_LIMIT, "cooloff_minutes": math.ceil(cooloff_s / 60)}
@@ -63,6 +64,7 @@ class RejectNulHeadersMiddleware:
     def __call__(self, request: HttpRequest) -> HttpResponse:
         for key, value in request.META.items():
             if key.startswith("HTTP_") and isinstance(value, str) and "\x00" in value:
-                return HttpResponseBadRequest("A request header contains a NUL character.",
-                                              content_type="text/plain; charset=utf-8")
+                return HttpResponseBadRequest(
+                    "A request header contains a NUL character.", content_type="text/plain; charset=utf-8"
+                )
         return self.get_response(request)

@@ -258,7 +258,8 @@ _LOCKOUT_BY = {
 _lockout_by = os.environ.get("EVENFRAME_LOGIN_LOCKOUT_BY", "").strip() or "user-and-ip"
 if _lockout_by not in _LOCKOUT_BY:
     raise ImproperlyConfigured(
-        f"EVENFRAME_LOGIN_LOCKOUT_BY must be one of {', '.join(_LOCKOUT_BY)}, got {_lockout_by!r}")
+        f"EVENFRAME_LOGIN_LOCKOUT_BY must be one of {', '.join(_LOCKOUT_BY)}, got {_lockout_by!r}"
+    )
 AXES_LOCKOUT_PARAMETERS = _LOCKOUT_BY[_lockout_by]
 AXES_FAILURE_LIMIT = int(env_number("EVENFRAME_LOGIN_FAILURE_LIMIT", 5, minimum=1, whole=True))
 AXES_COOLOFF_TIME = timedelta(minutes=env_number("EVENFRAME_LOGIN_COOLOFF_MINUTES", 15, minimum=0.1))

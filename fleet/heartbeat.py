@@ -63,8 +63,12 @@ def _beat(hostname: str, concurrency: int) -> None:
         # beats have gone through for a whole live window: after a database outage every heartbeat is old, and
         # a worker that came back first must not take the running frames of workers that are about to beat.
         now = time.monotonic()
-        if (settings.WORKER_SWEEP_S > 0 and now - last_sweep >= settings.WORKER_SWEEP_S
-                and healthy_since is not None and now - healthy_since >= settings.WORKER_LIVE_WINDOW_S):
+        if (
+            settings.WORKER_SWEEP_S > 0
+            and now - last_sweep >= settings.WORKER_SWEEP_S
+            and healthy_since is not None
+            and now - healthy_since >= settings.WORKER_LIVE_WINDOW_S
+        ):
             last_sweep = now
             _sweep()
         _stop.wait(settings.WORKER_HEARTBEAT_S)

@@ -93,12 +93,19 @@ def texture_record(family: str, variant: int, scale: float) -> dict[str, Any]:
     """The spec's ``texture`` record of one variant of a family, its tile scaled by ``scale``."""
     params = dict(_variant_params(family, int(variant)))
     tile_size_m = float(params.get("tile_size_m", 1.0)) * float(scale)
-    return {"family": family, "variant": int(variant), "params": params, "seed": int(variant),
-            "tile_size_m": round(tile_size_m, 6), "resolution_px": TEXTURE_RESOLUTION_PX}
+    return {
+        "family": family,
+        "variant": int(variant),
+        "params": params,
+        "seed": int(variant),
+        "tile_size_m": round(tile_size_m, 6),
+        "resolution_px": TEXTURE_RESOLUTION_PX,
+    }
 
 
-def _materials(spec_room: dict[str, Any], objects: list[dict[str, Any]],
-               distractors: list[dict[str, Any]] | None = None) -> Iterator[dict[str, Any]]:
+def _materials(
+    spec_room: dict[str, Any], objects: list[dict[str, Any]], distractors: list[dict[str, Any]] | None = None
+) -> Iterator[dict[str, Any]]:
     """Every material dict of the room, the objects and the distractors, in a fixed order."""
     for slot in sorted(spec_room.get("materials", {})):
         yield spec_room["materials"][slot]
@@ -107,8 +114,14 @@ def _materials(spec_room: dict[str, Any], objects: list[dict[str, Any]],
             yield item["materials"][slot]
 
 
-def assign_textures(room: dict[str, Any], objects: list[dict[str, Any]], appearance: dict[str, Any],
-                    rng: np.random.Generator, *, distractors: list[dict[str, Any]] | None = None) -> None:
+def assign_textures(
+    room: dict[str, Any],
+    objects: list[dict[str, Any]],
+    appearance: dict[str, Any],
+    rng: np.random.Generator,
+    *,
+    distractors: list[dict[str, Any]] | None = None,
+) -> None:
     """Give the materials of ``room``, ``objects`` and ``distractors`` their textures, in place (see the module
     docstring).
 
@@ -132,8 +145,9 @@ def assign_textures(room: dict[str, Any], objects: list[dict[str, Any]], appeara
         material["texture"] = texture_record(family, variant, scale)
 
 
-def box_uv(vertices_m: np.ndarray, faces: np.ndarray, tile_size_m: float,
-           frame: tuple[np.ndarray, np.ndarray] | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def box_uv(
+    vertices_m: np.ndarray, faces: np.ndarray, tile_size_m: float, frame: tuple[np.ndarray, np.ndarray] | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Box-projected texture coordinates: (vertices (3F, 3), faces (F, 3), uv (3F, 2)).
 
     Vertices are unshared (each triangle gets its own three), since one corner may belong to faces
@@ -158,8 +172,7 @@ def box_uv(vertices_m: np.ndarray, faces: np.ndarray, tile_size_m: float,
     positive = normals[np.arange(len(faces)), axis] > 0
     uv[positive == (axis == 1), :, 0] *= -1.0
     count = len(faces)
-    return (corners.reshape(-1, 3), np.arange(3 * count, dtype=np.int64).reshape(count, 3),
-            uv.reshape(-1, 2))
+    return (corners.reshape(-1, 3), np.arange(3 * count, dtype=np.int64).reshape(count, 3), uv.reshape(-1, 2))
 
 
 def yaw_frame(obj: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
@@ -203,8 +216,13 @@ def texture_normal_rgb(texture: dict[str, Any]) -> np.ndarray | None:
     if str(texture["family"]) not in NORMAL_MAP_FAMILIES:
         return None
     params_json = json.dumps(dict(texture["params"]), sort_keys=True)
-    return _normal_texture(str(texture["family"]), params_json, int(texture["seed"]),
-                           int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)), str(texture_cache_dir()))
+    return _normal_texture(
+        str(texture["family"]),
+        params_json,
+        int(texture["seed"]),
+        int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)),
+        str(texture_cache_dir()),
+    )
 
 
 def texture_linear_rgb(texture: dict[str, Any]) -> np.ndarray:
@@ -214,5 +232,10 @@ def texture_linear_rgb(texture: dict[str, Any]) -> np.ndarray:
     kept in memory per process (read-only).
     """
     params_json = json.dumps(dict(texture["params"]), sort_keys=True)
-    return _linear_texture(str(texture["family"]), params_json, int(texture["seed"]),
-                           int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)), str(texture_cache_dir()))
+    return _linear_texture(
+        str(texture["family"]),
+        params_json,
+        int(texture["seed"]),
+        int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)),
+        str(texture_cache_dir()),
+    )

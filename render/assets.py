@@ -139,8 +139,9 @@ HANDBOOK_RANGES: dict[str, dict[str, DimensionRange]] = {
         "height_m": R(0.80, 2.10, f"{NEUFERT}: top shelf within reach, ≤ 2.1 m (from memory)"),
         "width_m": R(0.60, 1.20, "carcass modules 0.6–1.2 m; shelves sag past ~0.9 m unsupported (common practice)"),
         "depth_m": R(0.25, 0.40, f"{NEUFERT}: book shelves 0.25–0.30 m, large formats 0.35–0.40 m (from memory)"),
-        "shelf_spacing_m": R(0.25, 0.40,
-                             f"{NEUFERT}: clear height 0.25 m for normal books, 0.35–0.40 m folio (from memory)"),
+        "shelf_spacing_m": R(
+            0.25, 0.40, f"{NEUFERT}: clear height 0.25 m for normal books, 0.35–0.40 m folio (from memory)"
+        ),
         "board_thickness_m": R(0.018, 0.03, "18–30 mm boards (common practice)"),
     },
     "potted_plant": {
@@ -152,8 +153,9 @@ HANDBOOK_RANGES: dict[str, dict[str, DimensionRange]] = {
     "bed": {
         "mattress_width_m": R(0.90, 1.80, "European mattress widths 90, 120, 140, 160, 180 cm (common practice)"),
         "mattress_length_m": R(1.90, 2.10, f"{NEUFERT}: bed length 1.9–2.1 m (from memory)"),
-        "mattress_top_height_m": R(0.40, 0.65,
-                                   f"{NEUFERT}: sleeping surface 0.40–0.60 m, boxsprings to 0.65 (from memory)"),
+        "mattress_top_height_m": R(
+            0.40, 0.65, f"{NEUFERT}: sleeping surface 0.40–0.60 m, boxsprings to 0.65 (from memory)"
+        ),
         "mattress_thickness_m": R(0.15, 0.30, "mattresses 15–30 cm (common practice)"),
         "frame_margin_m": R(0.02, 0.08, "frame overhang around the mattress (common practice)"),
         "headboard_height_m": R(0.90, 1.30, "headboards 0.9–1.3 m above the floor (common practice)"),
@@ -183,80 +185,221 @@ class MaterialFamily:
 # Palettes are eyeballed sRGB swatches of real finishes; per-instance jitter
 # keeps two oak chairs from being identical.
 FAMILIES: dict[str, MaterialFamily] = {
-    "wood": MaterialFamily("varnish", (
-        (0.86, 0.74, 0.56), (0.78, 0.62, 0.42), (0.70, 0.50, 0.32), (0.56, 0.38, 0.24),
-        (0.42, 0.28, 0.18), (0.32, 0.20, 0.13), (0.62, 0.32, 0.20), (0.20, 0.15, 0.12),
-    ), (0.15, 0.45)),
-    "painted": MaterialFamily("plastic", (
-        (0.92, 0.92, 0.90), (0.12, 0.12, 0.13), (0.55, 0.60, 0.58), (0.30, 0.40, 0.52),
-        (0.70, 0.30, 0.25), (0.85, 0.72, 0.40), (0.40, 0.50, 0.38), (0.75, 0.70, 0.62),
-    ), (0.25, 0.55)),
-    "fabric": MaterialFamily("diffuse", (
-        (0.60, 0.60, 0.58), (0.35, 0.35, 0.36), (0.78, 0.72, 0.62), (0.20, 0.26, 0.42),
-        (0.18, 0.40, 0.42), (0.78, 0.60, 0.22), (0.62, 0.32, 0.22), (0.40, 0.45, 0.28),
-        (0.75, 0.55, 0.55), (0.16, 0.16, 0.17), (0.88, 0.85, 0.78), (0.48, 0.16, 0.20),
-        (0.20, 0.34, 0.24),
-    ), (1.0, 1.0)),
-    "leather": MaterialFamily("plastic", (
-        (0.36, 0.22, 0.14), (0.62, 0.42, 0.26), (0.10, 0.09, 0.09), (0.52, 0.28, 0.16),
-        (0.80, 0.72, 0.60),
-    ), (0.35, 0.60)),
-    "metal": MaterialFamily("metal", (
-        (0.80, 0.80, 0.80), (0.66, 0.66, 0.68), (0.86, 0.72, 0.45), (0.10, 0.10, 0.10),
-        (0.85, 0.58, 0.45), (0.45, 0.45, 0.47),
-    ), (0.08, 0.40)),
-    "plastic": MaterialFamily("plastic", (
-        (0.94, 0.94, 0.92), (0.10, 0.10, 0.10), (0.80, 0.18, 0.15), (0.95, 0.78, 0.20),
-        (0.20, 0.40, 0.70), (0.35, 0.62, 0.40), (0.60, 0.62, 0.64), (0.95, 0.55, 0.20),
-    ), (0.10, 0.40)),
-    "ceramic": MaterialFamily("plastic", (
-        (0.94, 0.93, 0.90), (0.12, 0.12, 0.12), (0.56, 0.58, 0.60), (0.30, 0.45, 0.55),
-        (0.45, 0.58, 0.45), (0.85, 0.80, 0.70),
-    ), (0.05, 0.30)),
+    "wood": MaterialFamily(
+        "varnish",
+        (
+            (0.86, 0.74, 0.56),
+            (0.78, 0.62, 0.42),
+            (0.70, 0.50, 0.32),
+            (0.56, 0.38, 0.24),
+            (0.42, 0.28, 0.18),
+            (0.32, 0.20, 0.13),
+            (0.62, 0.32, 0.20),
+            (0.20, 0.15, 0.12),
+        ),
+        (0.15, 0.45),
+    ),
+    "painted": MaterialFamily(
+        "plastic",
+        (
+            (0.92, 0.92, 0.90),
+            (0.12, 0.12, 0.13),
+            (0.55, 0.60, 0.58),
+            (0.30, 0.40, 0.52),
+            (0.70, 0.30, 0.25),
+            (0.85, 0.72, 0.40),
+            (0.40, 0.50, 0.38),
+            (0.75, 0.70, 0.62),
+        ),
+        (0.25, 0.55),
+    ),
+    "fabric": MaterialFamily(
+        "diffuse",
+        (
+            (0.60, 0.60, 0.58),
+            (0.35, 0.35, 0.36),
+            (0.78, 0.72, 0.62),
+            (0.20, 0.26, 0.42),
+            (0.18, 0.40, 0.42),
+            (0.78, 0.60, 0.22),
+            (0.62, 0.32, 0.22),
+            (0.40, 0.45, 0.28),
+            (0.75, 0.55, 0.55),
+            (0.16, 0.16, 0.17),
+            (0.88, 0.85, 0.78),
+            (0.48, 0.16, 0.20),
+            (0.20, 0.34, 0.24),
+        ),
+        (1.0, 1.0),
+    ),
+    "leather": MaterialFamily(
+        "plastic",
+        (
+            (0.36, 0.22, 0.14),
+            (0.62, 0.42, 0.26),
+            (0.10, 0.09, 0.09),
+            (0.52, 0.28, 0.16),
+            (0.80, 0.72, 0.60),
+        ),
+        (0.35, 0.60),
+    ),
+    "metal": MaterialFamily(
+        "metal",
+        (
+            (0.80, 0.80, 0.80),
+            (0.66, 0.66, 0.68),
+            (0.86, 0.72, 0.45),
+            (0.10, 0.10, 0.10),
+            (0.85, 0.58, 0.45),
+            (0.45, 0.45, 0.47),
+        ),
+        (0.08, 0.40),
+    ),
+    "plastic": MaterialFamily(
+        "plastic",
+        (
+            (0.94, 0.94, 0.92),
+            (0.10, 0.10, 0.10),
+            (0.80, 0.18, 0.15),
+            (0.95, 0.78, 0.20),
+            (0.20, 0.40, 0.70),
+            (0.35, 0.62, 0.40),
+            (0.60, 0.62, 0.64),
+            (0.95, 0.55, 0.20),
+        ),
+        (0.10, 0.40),
+    ),
+    "ceramic": MaterialFamily(
+        "plastic",
+        (
+            (0.94, 0.93, 0.90),
+            (0.12, 0.12, 0.12),
+            (0.56, 0.58, 0.60),
+            (0.30, 0.45, 0.55),
+            (0.45, 0.58, 0.45),
+            (0.85, 0.80, 0.70),
+        ),
+        (0.05, 0.30),
+    ),
     "terracotta": MaterialFamily("diffuse", ((0.74, 0.42, 0.30), (0.66, 0.36, 0.24), (0.80, 0.52, 0.38)), (1.0, 1.0)),
     "concrete": MaterialFamily("diffuse", ((0.62, 0.62, 0.60), (0.50, 0.50, 0.49), (0.72, 0.70, 0.66)), (1.0, 1.0)),
-    "foliage": MaterialFamily("diffuse", (
-        (0.22, 0.42, 0.18), (0.30, 0.50, 0.22), (0.16, 0.32, 0.16), (0.40, 0.55, 0.25),
-        (0.25, 0.45, 0.35),
-    ), (1.0, 1.0)),
+    "foliage": MaterialFamily(
+        "diffuse",
+        (
+            (0.22, 0.42, 0.18),
+            (0.30, 0.50, 0.22),
+            (0.16, 0.32, 0.16),
+            (0.40, 0.55, 0.25),
+            (0.25, 0.45, 0.35),
+        ),
+        (1.0, 1.0),
+    ),
     "soil": MaterialFamily("diffuse", ((0.30, 0.22, 0.16), (0.22, 0.16, 0.12)), (1.0, 1.0)),
     "bark": MaterialFamily("diffuse", ((0.40, 0.30, 0.22), (0.30, 0.24, 0.18)), (1.0, 1.0)),
     "paper": MaterialFamily("diffuse", ((0.95, 0.94, 0.90), (0.92, 0.88, 0.78), (0.15, 0.15, 0.16)), (1.0, 1.0)),
-    "bedding": MaterialFamily("diffuse", (
-        (0.95, 0.95, 0.94), (0.88, 0.86, 0.80), (0.70, 0.72, 0.74), (0.45, 0.52, 0.62),
-        (0.82, 0.70, 0.64), (0.55, 0.60, 0.50),
-    ), (1.0, 1.0)),
+    "bedding": MaterialFamily(
+        "diffuse",
+        (
+            (0.95, 0.95, 0.94),
+            (0.88, 0.86, 0.80),
+            (0.70, 0.72, 0.74),
+            (0.45, 0.52, 0.62),
+            (0.82, 0.70, 0.64),
+            (0.55, 0.60, 0.50),
+        ),
+        (1.0, 1.0),
+    ),
     "lampshade": MaterialFamily("diffuse", ((0.95, 0.93, 0.86), (0.90, 0.86, 0.76), (0.80, 0.80, 0.80)), (1.0, 1.0)),
-    "book": MaterialFamily("diffuse", (
-        (0.70, 0.12, 0.12), (0.12, 0.22, 0.45), (0.15, 0.35, 0.20), (0.90, 0.85, 0.70),
-        (0.10, 0.10, 0.10), (0.85, 0.60, 0.15), (0.45, 0.25, 0.40), (0.50, 0.50, 0.50),
-    ), (1.0, 1.0)),
+    "book": MaterialFamily(
+        "diffuse",
+        (
+            (0.70, 0.12, 0.12),
+            (0.12, 0.22, 0.45),
+            (0.15, 0.35, 0.20),
+            (0.90, 0.85, 0.70),
+            (0.10, 0.10, 0.10),
+            (0.85, 0.60, 0.15),
+            (0.45, 0.25, 0.40),
+            (0.50, 0.50, 0.50),
+        ),
+        (1.0, 1.0),
+    ),
     # Room finishes (used by layout.sample_room).
-    "floor_wood": MaterialFamily("varnish", (
-        (0.80, 0.66, 0.48), (0.70, 0.52, 0.34), (0.55, 0.38, 0.25), (0.40, 0.27, 0.18), (0.86, 0.80, 0.70),
-    ), (0.20, 0.50)),
-    "floor_tile": MaterialFamily("plastic", (
-        (0.85, 0.84, 0.80), (0.65, 0.64, 0.62), (0.78, 0.70, 0.60), (0.70, 0.45, 0.33), (0.30, 0.31, 0.33),
-    ), (0.05, 0.30)),
-    "carpet": MaterialFamily("diffuse", (
-        (0.55, 0.52, 0.48), (0.35, 0.36, 0.38), (0.70, 0.64, 0.55), (0.30, 0.35, 0.45), (0.50, 0.40, 0.35),
-    ), (1.0, 1.0)),
-    "wall_paint": MaterialFamily("diffuse", (
-        (0.93, 0.92, 0.88), (0.95, 0.93, 0.86), (0.85, 0.85, 0.84), (0.78, 0.82, 0.75), (0.76, 0.83, 0.88),
-        (0.90, 0.84, 0.72), (0.93, 0.88, 0.70), (0.70, 0.62, 0.58),
-    ), (1.0, 1.0)),
+    "floor_wood": MaterialFamily(
+        "varnish",
+        (
+            (0.80, 0.66, 0.48),
+            (0.70, 0.52, 0.34),
+            (0.55, 0.38, 0.25),
+            (0.40, 0.27, 0.18),
+            (0.86, 0.80, 0.70),
+        ),
+        (0.20, 0.50),
+    ),
+    "floor_tile": MaterialFamily(
+        "plastic",
+        (
+            (0.85, 0.84, 0.80),
+            (0.65, 0.64, 0.62),
+            (0.78, 0.70, 0.60),
+            (0.70, 0.45, 0.33),
+            (0.30, 0.31, 0.33),
+        ),
+        (0.05, 0.30),
+    ),
+    "carpet": MaterialFamily(
+        "diffuse",
+        (
+            (0.55, 0.52, 0.48),
+            (0.35, 0.36, 0.38),
+            (0.70, 0.64, 0.55),
+            (0.30, 0.35, 0.45),
+            (0.50, 0.40, 0.35),
+        ),
+        (1.0, 1.0),
+    ),
+    "wall_paint": MaterialFamily(
+        "diffuse",
+        (
+            (0.93, 0.92, 0.88),
+            (0.95, 0.93, 0.86),
+            (0.85, 0.85, 0.84),
+            (0.78, 0.82, 0.75),
+            (0.76, 0.83, 0.88),
+            (0.90, 0.84, 0.72),
+            (0.93, 0.88, 0.70),
+            (0.70, 0.62, 0.58),
+        ),
+        (1.0, 1.0),
+    ),
     "ceiling_paint": MaterialFamily("diffuse", ((0.95, 0.95, 0.94), (0.93, 0.92, 0.90)), (1.0, 1.0)),
     # Unlabelled clutter (render.distractors).
-    "rug": MaterialFamily("diffuse", (
-        (0.55, 0.18, 0.15), (0.20, 0.25, 0.42), (0.85, 0.80, 0.68), (0.45, 0.45, 0.44), (0.70, 0.45, 0.30),
-        (0.62, 0.66, 0.55),
-    ), (1.0, 1.0)),
+    "rug": MaterialFamily(
+        "diffuse",
+        (
+            (0.55, 0.18, 0.15),
+            (0.20, 0.25, 0.42),
+            (0.85, 0.80, 0.68),
+            (0.45, 0.45, 0.44),
+            (0.70, 0.45, 0.30),
+            (0.62, 0.66, 0.55),
+        ),
+        (1.0, 1.0),
+    ),
     "cardboard": MaterialFamily("diffuse", ((0.72, 0.56, 0.38), (0.66, 0.50, 0.34), (0.80, 0.70, 0.55)), (1.0, 1.0)),
     "page_edges": MaterialFamily("diffuse", ((0.95, 0.94, 0.90), (0.92, 0.88, 0.78), (0.88, 0.84, 0.72)), (1.0, 1.0)),
-    "artwork": MaterialFamily("diffuse", (
-        (0.80, 0.35, 0.25), (0.25, 0.40, 0.60), (0.90, 0.80, 0.40), (0.30, 0.50, 0.35), (0.15, 0.15, 0.20),
-        (0.85, 0.85, 0.82),
-    ), (1.0, 1.0)),
+    "artwork": MaterialFamily(
+        "diffuse",
+        (
+            (0.80, 0.35, 0.25),
+            (0.25, 0.40, 0.60),
+            (0.90, 0.80, 0.40),
+            (0.30, 0.50, 0.35),
+            (0.15, 0.15, 0.20),
+            (0.85, 0.85, 0.82),
+        ),
+        (1.0, 1.0),
+    ),
     # Silvered glass: a near-white conductor with almost no roughness.
     "mirror": MaterialFamily("metal", ((0.92, 0.92, 0.92), (0.88, 0.89, 0.90)), (0.0, 0.04)),
 }
@@ -274,8 +417,12 @@ def sample_material(family_name: str, rng: np.random.Generator) -> dict[str, Any
     rgb = np.clip(rgb, _ALBEDO_MIN, _ALBEDO_MAX)
     low, high = family.roughness
     roughness = low if low == high else float(rng.uniform(low, high))
-    return {"kind": family.kind, "rgb": [round(float(v), 6) for v in rgb], "roughness": round(roughness, 6),
-            "family": family_name}
+    return {
+        "kind": family.kind,
+        "rgb": [round(float(v), 6) for v in rgb],
+        "roughness": round(roughness, 6),
+        "family": family_name,
+    }
 
 
 # ---------------------------------------------------------------------------
@@ -316,8 +463,9 @@ def _signed_volume(vertices: np.ndarray, faces: np.ndarray) -> float:
     return float(np.einsum("ij,ij->i", v0, np.cross(v1, v2)).sum() / 6.0)
 
 
-def _lathe(profile_rz: list[tuple[float, float]], cx: float = 0.0, cy: float = 0.0,
-           sections: int = SECTIONS) -> trimesh.Trimesh:
+def _lathe(
+    profile_rz: list[tuple[float, float]], cx: float = 0.0, cy: float = 0.0, sections: int = SECTIONS
+) -> trimesh.Trimesh:
     """Solid of revolution about a vertical axis through (cx, cy); profile points are (radius, z).
 
     A profile that starts and ends on the axis gives a closed solid; a closed
@@ -360,13 +508,13 @@ def _lathe(profile_rz: list[tuple[float, float]], cx: float = 0.0, cy: float = 0
     return _mesh(vertex_array, face_array)
 
 
-def _cylinder_z(cx: float, cy: float, z0: float, z1: float, radius: float,
-                sections: int = SECTIONS) -> trimesh.Trimesh:
+def _cylinder_z(cx: float, cy: float, z0: float, z1: float, radius: float, sections: int = SECTIONS) -> trimesh.Trimesh:
     return _lathe([(0.0, z0), (radius, z0), (radius, z1), (0.0, z1)], cx, cy, sections)
 
 
-def _frustum_z(cx: float, cy: float, z0: float, z1: float, r0: float, r1: float,
-               sections: int = SECTIONS) -> trimesh.Trimesh:
+def _frustum_z(
+    cx: float, cy: float, z0: float, z1: float, r0: float, r1: float, sections: int = SECTIONS
+) -> trimesh.Trimesh:
     return _lathe([(0.0, z0), (r0, z0), (r1, z1), (0.0, z1)], cx, cy, sections)
 
 
@@ -380,8 +528,9 @@ def _along(mesh: trimesh.Trimesh, p0: tuple[float, float, float], p1: tuple[floa
     return mesh
 
 
-def _tube(p0: tuple[float, float, float], p1: tuple[float, float, float], radius: float,
-          sections: int = 10) -> trimesh.Trimesh:
+def _tube(
+    p0: tuple[float, float, float], p1: tuple[float, float, float], radius: float, sections: int = 10
+) -> trimesh.Trimesh:
     length = float(np.linalg.norm(np.subtract(p1, p0)))
     return _along(_cylinder_z(0.0, 0.0, 0.0, length, radius, sections), p0, p1)
 
@@ -405,8 +554,12 @@ def _hull(points: np.ndarray) -> trimesh.Trimesh:
 
 
 def _tapered_box(cx: float, cy: float, z0: float, z1: float, half_bottom: float, half_top: float) -> trimesh.Trimesh:
-    points = [(cx + sx * h, cy + sy * h, z) for z, h in ((z0, half_bottom), (z1, half_top))
-              for sx in (-1, 1) for sy in (-1, 1)]
+    points = [
+        (cx + sx * h, cy + sy * h, z)
+        for z, h in ((z0, half_bottom), (z1, half_top))
+        for sx in (-1, 1)
+        for sy in (-1, 1)
+    ]
     return _hull(np.array(points))
 
 
@@ -420,7 +573,7 @@ frustum_mesh = _frustum_z
 def _rounded_rect_xy(half_w: float, half_d: float, radius: float, arc_segments: int = 3) -> list[tuple[float, float]]:
     radius = max(0.0, min(radius, half_w, half_d))
     points = []
-    for (sx, sy, start) in ((1, 1, 0.0), (-1, 1, 90.0), (-1, -1, 180.0), (1, -1, 270.0)):
+    for sx, sy, start in ((1, 1, 0.0), (-1, 1, 90.0), (-1, -1, 180.0), (1, -1, 270.0)):
         cx, cy = sx * (half_w - radius), sy * (half_d - radius)
         for k in range(arc_segments + 1):
             angle = math.radians(start + 90.0 * k / arc_segments)
@@ -440,16 +593,19 @@ def _loft(rings: list[np.ndarray]) -> trimesh.Trimesh:
         faces += [np.column_stack([a, a[nxt], b[nxt]]), np.column_stack([a, b[nxt], b])]
     bottom, top = len(rings) * n, len(rings) * n + 1
     last = (len(rings) - 1) * n
-    faces += [np.column_stack([np.full(n, bottom), idx[nxt], idx]),
-              np.column_stack([np.full(n, top), last + idx, last + idx[nxt]])]
+    faces += [
+        np.column_stack([np.full(n, bottom), idx[nxt], idx]),
+        np.column_stack([np.full(n, top), last + idx, last + idx[nxt]]),
+    ]
     face_array = np.vstack(faces)
     if _signed_volume(vertices, face_array) < 0:
         face_array = face_array[:, ::-1]
     return _mesh(vertices, face_array)
 
 
-def _cushion(x0: float, x1: float, y0: float, y1: float, z0: float, z1: float,
-             corner_m: float = 0.04, bevel_m: float = 0.015) -> trimesh.Trimesh:
+def _cushion(
+    x0: float, x1: float, y0: float, y1: float, z0: float, z1: float, corner_m: float = 0.04, bevel_m: float = 0.015
+) -> trimesh.Trimesh:
     """Upholstered block: rounded corners in plan and a bevel on the top and bottom edges."""
     half_w, half_d, cx, cy = (x1 - x0) / 2, (y1 - y0) / 2, (x0 + x1) / 2, (y0 + y1) / 2
     bevel = max(0.0, min(bevel_m, (z1 - z0) / 3, half_w / 3, half_d / 3))
@@ -467,8 +623,9 @@ def _ellipsoid(center: tuple[float, float, float], radii: tuple[float, float, fl
     return _mesh(_ICOSPHERE_VERTICES * np.asarray(radii) + np.asarray(center), _ICOSPHERE_FACES)
 
 
-def _disc_y(cx: float, cz: float, y0: float, y1: float, radius: float,
-            sections: int = SECTIONS_FINE) -> trimesh.Trimesh:
+def _disc_y(
+    cx: float, cz: float, y0: float, y1: float, radius: float, sections: int = SECTIONS_FINE
+) -> trimesh.Trimesh:
     """A disc (short cylinder) whose axis is the local y axis: clock faces."""
     return _tube((cx, y0, cz), (cx, y1, cz), radius, sections)
 
@@ -483,8 +640,9 @@ def _rotate_about_y(mesh: trimesh.Trimesh, angle_deg: float, center: tuple[float
     return mesh
 
 
-def _legs(kind: str, xs: tuple[float, ...], ys: tuple[float, ...], z1: float,
-          thickness: float) -> list[trimesh.Trimesh]:
+def _legs(
+    kind: str, xs: tuple[float, ...], ys: tuple[float, ...], z1: float, thickness: float
+) -> list[trimesh.Trimesh]:
     """Legs centred at every (x, y) in xs × ys, from the floor to z1."""
     out = []
     half = thickness / 2
@@ -543,9 +701,9 @@ def _support(cx: float, cy: float, w: float, d: float, z: float) -> dict[str, An
 
 # --- chair -----------------------------------------------------------------
 
+
 def _sample_chair(variant: str, rng: np.random.Generator) -> _Sampled:
-    names = ("seat_height_m", "seat_width_m", "seat_depth_m", "overall_height_m", "seat_thickness_m",
-             "leg_thickness_m")
+    names = ("seat_height_m", "seat_width_m", "seat_depth_m", "overall_height_m", "seat_thickness_m", "leg_thickness_m")
     p = {n: _draw(rng, "chair", n) for n in names}
     slots_by_variant: dict[str, dict[str, tuple[str, ...]]] = {
         "slat_back": {"frame": ("wood", "painted"), "seat": ("wood", "fabric", "leather")},
@@ -582,8 +740,9 @@ def _build_chair(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
         xs, ys = (-hw + lt / 2, hw - lt / 2), (-hd + lt / 2, hd - lt / 2)
         parts += [("legs", m) for m in _legs("tapered_round", xs, ys, sh - st, lt)]
         parts.append(("upholstery", _cushion(-hw, hw, -hd, hd, sh - st, sh, corner_m=0.03, bevel_m=0.008)))
-        parts.append(("upholstery", _cushion(-hw + 0.01, hw - 0.01, -hd, -hd + 0.05, sh - 0.01, h,
-                                             corner_m=0.03, bevel_m=0.01)))
+        parts.append(
+            ("upholstery", _cushion(-hw + 0.01, hw - 0.01, -hd, -hd + 0.05, sh - 0.01, h, corner_m=0.03, bevel_m=0.01))
+        )
     elif variant == "sled_base":
         r = 0.011
         deck = sh - st
@@ -596,20 +755,28 @@ def _build_chair(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
         for y in (-hd + 0.06, hd - 0.06):
             parts.append(("frame", _tube((-hw + 0.02, y, deck - r), (hw - 0.02, y, deck - r), r)))
         parts.append(("shell", _cushion(-hw, hw, -hd, hd, deck, sh, corner_m=0.06, bevel_m=0.005)))
-        parts.append(("shell", _cushion(-hw + 0.02, hw - 0.02, -hd, -hd + 0.02, sh, h, corner_m=0.06,
-                                        bevel_m=0.004)))
+        parts.append(("shell", _cushion(-hw + 0.02, hw - 0.02, -hd, -hd + 0.02, sh, h, corner_m=0.06, bevel_m=0.004)))
     elif variant == "pedestal":
         radius = min(hw, hd)
-        parts.append(("base", _lathe([(0.0, 0.0), (radius, 0.0), (radius, 0.008), (radius * 0.3, 0.03),
-                                      (0.0, 0.03)], sections=SECTIONS_FINE)))
+        parts.append(
+            (
+                "base",
+                _lathe(
+                    [(0.0, 0.0), (radius, 0.0), (radius, 0.008), (radius * 0.3, 0.03), (0.0, 0.03)],
+                    sections=SECTIONS_FINE,
+                ),
+            )
+        )
         parts.append(("base", _cylinder_z(0.0, 0.0, 0.03, sh - st, 0.03)))
         parts.append(("seat", _cushion(-hw, hw, -hd, hd, sh - st, sh, corner_m=min(hw, hd) * 0.8, bevel_m=0.01)))
-        parts.append(("seat", _cushion(-hw + 0.02, hw - 0.02, -hd, -hd + 0.04, sh - 0.01, h,
-                                       corner_m=0.08, bevel_m=0.01)))
+        parts.append(
+            ("seat", _cushion(-hw + 0.02, hw - 0.02, -hd, -hd + 0.04, sh - 0.01, h, corner_m=0.08, bevel_m=0.01))
+        )
     return parts
 
 
 # --- armchair and sofa (shared upholstered body) ---------------------------
+
 
 def _sample_upholstered(class_name: str, variant: str, rng: np.random.Generator) -> _Sampled:
     common = ("width_m", "depth_m", "seat_height_m", "overall_height_m", "leg_height_m", "cushion_thickness_m")
@@ -632,9 +799,11 @@ def _sample_upholstered(class_name: str, variant: str, rng: np.random.Generator)
         # A slipper chair has no arms to widen it; keep it chair-wide.
         p["width_m"] = round(min(p["width_m"], 0.75), 6)
     upholstery = ("fabric", "fabric", "leather")  # fabric twice: most upholstery is cloth
-    slots: dict[str, tuple[str, ...]] = {"body": upholstery,
-                                         "cushions": ("fabric",) if variant != "tuxedo" else upholstery,
-                                         "legs": ("wood", "metal")}
+    slots: dict[str, tuple[str, ...]] = {
+        "body": upholstery,
+        "cushions": ("fabric",) if variant != "tuxedo" else upholstery,
+        "legs": ("wood", "metal"),
+    }
     if variant == "rolled_arm" and class_name == "sofa":
         slots.pop("legs")  # skirted to the floor
     return _Sampled(p, (p["width_m"], p["depth_m"]), p["overall_height_m"], slots)
@@ -674,34 +843,45 @@ def _build_upholstered(class_name: str, variant: str, p: dict[str, float]) -> Pa
     base_z = 0.0 if skirted else lh
     parts: PartList = []
     if not skirted:
-        leg_kind = {"track_arm": "square", "rolled_arm": "tapered_round", "slipper": "tapered_round",
-                    "wingback": "tapered_square", "armless": "round", "tuxedo": "square"}[variant]
+        leg_kind = {
+            "track_arm": "square",
+            "rolled_arm": "tapered_round",
+            "slipper": "tapered_round",
+            "wingback": "tapered_square",
+            "armless": "round",
+            "tuxedo": "square",
+        }[variant]
         leg_t = 0.045
         xs: tuple[float, ...] = (-hw + leg_t / 2 + 0.01, hw - leg_t / 2 - 0.01)
         if class_name == "sofa" and w > 1.8:
             xs = (xs[0], 0.0, xs[1])  # long frames get a middle pair, as real sofas do
-        parts += [("legs", m) for m in _legs(leg_kind, xs, (-hd + leg_t / 2 + 0.01, hd - leg_t / 2 - 0.01),
-                                             lh + 0.005, leg_t)]
+        parts += [
+            ("legs", m) for m in _legs(leg_kind, xs, (-hd + leg_t / 2 + 0.01, hd - leg_t / 2 - 0.01), lh + 0.005, leg_t)
+        ]
     deck_top = sh - ct
-    parts.append(("body", _cushion(-hw + aw * 0.5, hw - aw * 0.5, -hd, hd, base_z, deck_top, corner_m=0.02,
-                                   bevel_m=0.01)))
-    parts.append(("body", _cushion(-hw + aw * 0.5, hw - aw * 0.5, -hd, -hd + bt, base_z, h, corner_m=0.03,
-                                   bevel_m=0.02)))
+    parts.append(
+        ("body", _cushion(-hw + aw * 0.5, hw - aw * 0.5, -hd, hd, base_z, deck_top, corner_m=0.02, bevel_m=0.01))
+    )
+    parts.append(
+        ("body", _cushion(-hw + aw * 0.5, hw - aw * 0.5, -hd, -hd + bt, base_z, h, corner_m=0.03, bevel_m=0.02))
+    )
     if aw > 0:
         for sx in (-1, 1):
             x0, x1 = sorted((sx * hw, sx * (hw - aw)))
             if variant == "rolled_arm":
                 radius = aw / 2
-                parts.append(("body", _cushion(x0, x1, -hd, hd - 0.02, base_z, ah - radius, corner_m=0.02,
-                                               bevel_m=0.01)))
+                parts.append(
+                    ("body", _cushion(x0, x1, -hd, hd - 0.02, base_z, ah - radius, corner_m=0.02, bevel_m=0.01))
+                )
                 xc = (x0 + x1) / 2
                 parts.append(("body", _tube((xc, -hd, ah - radius), (xc, hd, ah - radius), radius, sections=16)))
             else:
                 parts.append(("body", _cushion(x0, x1, -hd, hd, base_z, ah, corner_m=0.03, bevel_m=0.02)))
             if variant == "wingback":
                 xw0, xw1 = sorted((sx * hw, sx * (hw - aw * 0.7)))
-                parts.append(("body", _cushion(xw0, xw1, -hd, -hd + 0.3 * d, ah - 0.05, h - 0.06, corner_m=0.05,
-                                               bevel_m=0.02)))
+                parts.append(
+                    ("body", _cushion(xw0, xw1, -hd, -hd + 0.3 * d, ah - 0.05, h - 0.06, corner_m=0.05, bevel_m=0.02))
+                )
     inner0, inner1 = -hw + aw, hw - aw
     count = int(p.get("cushion_count", 1.0))
     step = (inner1 - inner0) / count
@@ -710,8 +890,12 @@ def _build_upholstered(class_name: str, variant: str, p: dict[str, float]) -> Pa
         x0, x1 = inner0 + k * step, inner0 + (k + 1) * step
         parts.append(("cushions", _cushion(x0, x1, -hd + bt, hd, deck_top, sh, corner_m=0.05, bevel_m=0.025)))
         if back_cushion_t > 0:
-            parts.append(("cushions", _cushion(x0, x1, -hd + bt, -hd + bt + back_cushion_t, sh, top,
-                                               corner_m=0.05, bevel_m=0.03)))
+            parts.append(
+                (
+                    "cushions",
+                    _cushion(x0, x1, -hd + bt, -hd + bt + back_cushion_t, sh, top, corner_m=0.05, bevel_m=0.03),
+                )
+            )
     return parts
 
 
@@ -721,9 +905,11 @@ _ROUND_TABLE_VARIANTS = frozenset({"round_pedestal", "round_four_leg", "round_th
 
 
 def _sample_table(class_name: str, variant: str, rng: np.random.Generator) -> _Sampled:
-    p = {"top_height_m": _draw(rng, class_name, "top_height_m"),
-         "top_thickness_m": _draw(rng, class_name, "top_thickness_m"),
-         "leg_thickness_m": _draw(rng, class_name, "leg_thickness_m")}
+    p = {
+        "top_height_m": _draw(rng, class_name, "top_height_m"),
+        "top_thickness_m": _draw(rng, class_name, "top_thickness_m"),
+        "leg_thickness_m": _draw(rng, class_name, "leg_thickness_m"),
+    }
     round_top = variant in _ROUND_TABLE_VARIANTS
     if class_name == "side_table":
         p["top_width_m"] = _draw(rng, class_name, "top_width_m")
@@ -764,20 +950,40 @@ def _build_table(class_name: str, variant: str, p: dict[str, float]) -> PartList
         parts.append(("top", _box(-hw, hw, -hd, hd, under, th)))
     inset = lt / 2 + 0.03
     if variant in ("rect_four_leg", "square_four_leg"):
-        kind = "tapered_square" if class_name == "dining_table" else ("round" if class_name == "coffee_table"
-                                                                       else "tapered_round")
+        kind = (
+            "tapered_square"
+            if class_name == "dining_table"
+            else ("round" if class_name == "coffee_table" else "tapered_round")
+        )
         xs, ys = (-hw + inset, hw - inset), (-hd + inset, hd - inset)
         parts += [("base", m) for m in _legs(kind, xs, ys, under, lt)]
         apron = min(0.08, under * 0.2)
-        parts.append(("base", _box(-hw + inset, hw - inset, -hd + inset - lt / 4, -hd + inset + lt / 4,
-                                   under - apron, under)))
-        parts.append(("base", _box(-hw + inset, hw - inset, hd - inset - lt / 4, hd - inset + lt / 4,
-                                   under - apron, under)))
+        parts.append(
+            ("base", _box(-hw + inset, hw - inset, -hd + inset - lt / 4, -hd + inset + lt / 4, under - apron, under))
+        )
+        parts.append(
+            ("base", _box(-hw + inset, hw - inset, hd - inset - lt / 4, hd - inset + lt / 4, under - apron, under))
+        )
     elif variant == "round_pedestal":
         column_r = max(lt, 0.04)
-        parts.append(("base", _lathe([(0.0, 0.0), (hw * 0.55, 0.0), (hw * 0.55, 0.02), (column_r * 1.4, 0.06),
-                                      (column_r, 0.12), (column_r * 0.8, under * 0.6), (column_r * 1.2, under),
-                                      (0.0, under)], sections=SECTIONS)))
+        parts.append(
+            (
+                "base",
+                _lathe(
+                    [
+                        (0.0, 0.0),
+                        (hw * 0.55, 0.0),
+                        (hw * 0.55, 0.02),
+                        (column_r * 1.4, 0.06),
+                        (column_r, 0.12),
+                        (column_r * 0.8, under * 0.6),
+                        (column_r * 1.2, under),
+                        (0.0, under),
+                    ],
+                    sections=SECTIONS,
+                ),
+            )
+        )
     elif variant == "round_four_leg":
         offset = hw * 0.5
         parts += [("base", m) for m in _legs("tapered_round", (-offset, offset), (-offset, offset), under, lt)]
@@ -786,8 +992,14 @@ def _build_table(class_name: str, variant: str, p: dict[str, float]) -> PartList
         spread = hw * 0.6
         for k in range(3):
             angle = math.radians(90 + 120 * k)
-            parts.append(("base", _frustum_z(spread * math.cos(angle), spread * math.sin(angle), 0.0, under,
-                                             lt * 0.3, lt / 2, sections=12)))
+            parts.append(
+                (
+                    "base",
+                    _frustum_z(
+                        spread * math.cos(angle), spread * math.sin(angle), 0.0, under, lt * 0.3, lt / 2, sections=12
+                    ),
+                )
+            )
         parts.append(("base", _cylinder_z(0.0, 0.0, under - 0.04, under, spread + lt / 2, sections=SECTIONS)))
     elif variant == "trestle":
         for sx in (-1, 1):
@@ -811,16 +1023,20 @@ def _build_table(class_name: str, variant: str, p: dict[str, float]) -> PartList
         parts.append(("base", _box(-hw * 0.3, hw * 0.3, -hd + 0.005, -hd + 0.035, under - 0.03, under)))
     elif variant == "drawer_cube":
         parts.append(("base", _box(-hw + 0.01, hw - 0.01, -hd + 0.01, hd - 0.02, 0.04, under)))
-        parts += [("base", m) for m in _legs("square", (-hw + 0.03, hw - 0.03), (-hd + 0.03, hd - 0.04), 0.04,
-                                             0.03)]
+        parts += [("base", m) for m in _legs("square", (-hw + 0.03, hw - 0.03), (-hd + 0.03, hd - 0.04), 0.04, 0.03)]
         drawer_z0 = under - min(0.18, (under - 0.04) * 0.45)
         parts.append(("top", _box(-hw + 0.025, hw - 0.025, hd - 0.02, hd - 0.005, drawer_z0, under - 0.015)))
-        parts.append(("handle", _box(-0.04, 0.04, hd - 0.005, hd, (drawer_z0 + under) / 2 - 0.008,
-                                     (drawer_z0 + under) / 2 + 0.008)))
+        parts.append(
+            (
+                "handle",
+                _box(-0.04, 0.04, hd - 0.005, hd, (drawer_z0 + under) / 2 - 0.008, (drawer_z0 + under) / 2 + 0.008),
+            )
+        )
     return parts
 
 
 # --- ottoman ---------------------------------------------------------------
+
 
 def _sample_ottoman(variant: str, rng: np.random.Generator) -> _Sampled:
     p = {"height_m": _draw(rng, "ottoman", "height_m")}
@@ -858,12 +1074,13 @@ def _build_ottoman(variant: str, p: dict[str, float], spec: dict[str, Any]) -> P
         return parts
     hw, hd = p["width_m"] / 2, p["depth_m"] / 2
     if variant == "box":
-        parts += [("legs", m) for m in _legs("square", (-hw + 0.04, hw - 0.04), (-hd + 0.04, hd - 0.04), 0.05,
-                                             0.04)]
+        parts += [("legs", m) for m in _legs("square", (-hw + 0.04, hw - 0.04), (-hd + 0.04, hd - 0.04), 0.05, 0.04)]
         parts.append(("upholstery", _cushion(-hw, hw, -hd, hd, 0.05, h, corner_m=0.04, bevel_m=0.025)))
     elif variant == "bench":
-        parts += [("legs", m) for m in _legs("tapered_round", (-hw + 0.05, hw - 0.05), (-hd + 0.05, hd - 0.05),
-                                             h - 0.07, 0.045)]
+        parts += [
+            ("legs", m)
+            for m in _legs("tapered_round", (-hw + 0.05, hw - 0.05), (-hd + 0.05, hd - 0.05), h - 0.07, 0.045)
+        ]
         parts.append(("legs", _box(-hw + 0.03, hw - 0.03, -hd + 0.03, hd - 0.03, h - 0.1, h - 0.07)))
         parts.append(("upholstery", _cushion(-hw, hw, -hd, hd, h - 0.07, h, corner_m=0.03, bevel_m=0.02)))
     elif variant == "tray_top":
@@ -879,6 +1096,7 @@ def _build_ottoman(variant: str, p: dict[str, float], spec: dict[str, Any]) -> P
 
 
 # --- wall clock ------------------------------------------------------------
+
 
 def _sample_clock(variant: str, rng: np.random.Generator) -> _Sampled:
     p = {n: _draw(rng, "wall_clock", n) for n in ("diameter_m", "depth_m", "centre_height_m")}
@@ -900,8 +1118,12 @@ def _build_clock(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
     if variant == "square_frame":
         frame = size * 0.08
         parts.append(("case", _box(-r, r, 0.0, depth * 0.5, 0.0, size)))
-        for x0, x1, z0, z1 in ((-r, r, 0.0, frame), (-r, r, size - frame, size), (-r, -r + frame, 0.0, size),
-                               (r - frame, r, 0.0, size)):
+        for x0, x1, z0, z1 in (
+            (-r, r, 0.0, frame),
+            (-r, r, size - frame, size),
+            (-r, -r + frame, 0.0, size),
+            (r - frame, r, 0.0, size),
+        ):
             parts.append(("case", _box(x0, x1, 0.0, depth, z0, z1)))
         parts.append(("face", _box(-r + frame, r - frame, depth * 0.5, face_y, frame, size - frame)))
         dial_r = r - frame
@@ -923,8 +1145,10 @@ def _build_clock(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
         parts.append(("face", _disc_y(0.0, cz, 0.0, face_y, r - rim + 0.001)))
         dial_r = r - rim
     hand_y0 = min(face_y, depth - 0.008)
-    for name, length, width, y0, y1 in (("hour_hand_deg", 0.5, 0.03, hand_y0, hand_y0 + 0.003),
-                                        ("minute_hand_deg", 0.8, 0.018, hand_y0 + 0.003, hand_y0 + 0.006)):
+    for name, length, width, y0, y1 in (
+        ("hour_hand_deg", 0.5, 0.03, hand_y0, hand_y0 + 0.003),
+        ("minute_hand_deg", 0.8, 0.018, hand_y0 + 0.003, hand_y0 + 0.006),
+    ):
         hand = _box(-width * dial_r, width * dial_r, y0, y1, cz - 0.1 * dial_r, cz + length * dial_r)
         # Clockwise as seen from the front (+y): a negative turn about +y.
         parts.append(("hands", _rotate_about_y(hand, -p[name], (0.0, 0.0, cz))))
@@ -934,16 +1158,15 @@ def _build_clock(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
 
 def _lathe_y_ring(cz: float, y0: float, y1: float, r_out: float, r_in: float) -> trimesh.Trimesh:
     """An annulus (bezel) with its axis along y, centred at (0, cz)."""
-    ring = _lathe([(r_in, 0.0), (r_out, 0.0), (r_out, y1 - y0), (r_in, y1 - y0), (r_in, 0.0)],
-                  sections=SECTIONS_FINE)
+    ring = _lathe([(r_in, 0.0), (r_out, 0.0), (r_out, y1 - y0), (r_in, y1 - y0), (r_in, 0.0)], sections=SECTIONS_FINE)
     return _along(ring, (0.0, y0, cz), (0.0, y1, cz))
 
 
 # --- floor lamp ------------------------------------------------------------
 
+
 def _sample_lamp(variant: str, rng: np.random.Generator) -> _Sampled:
-    p = {n: _draw(rng, "floor_lamp", n) for n in ("height_m", "shade_diameter_m", "shade_height_m",
-                                                    "base_diameter_m")}
+    p = {n: _draw(rng, "floor_lamp", n) for n in ("height_m", "shade_diameter_m", "shade_height_m", "base_diameter_m")}
     if variant == "tripod":
         p["tripod_spread_m"] = _draw(rng, "floor_lamp", "tripod_spread_m")
         p.pop("base_diameter_m")
@@ -953,9 +1176,10 @@ def _sample_lamp(variant: str, rng: np.random.Generator) -> _Sampled:
     if variant == "uplighter":
         p["shade_height_m"] = round(min(p["shade_height_m"], 0.2), 6)
     width = max(ground, p["shade_diameter_m"])
-    slots: dict[str, tuple[str, ...]] = {"base": ("metal", "wood", "painted"),
-                                         "shade": ("lampshade",) if variant != "uplighter"
-                                         else ("metal", "painted", "lampshade")}
+    slots: dict[str, tuple[str, ...]] = {
+        "base": ("metal", "wood", "painted"),
+        "shade": ("lampshade",) if variant != "uplighter" else ("metal", "painted", "lampshade"),
+    }
     anchor_z = p["height_m"] - p["shade_height_m"] * (0.3 if variant == "uplighter" else 0.5)
     # Where the lights module may put a bulb: inside the shade, which is an open tube.
     extra = {"light_anchor_m": [0.0, 0.0, round(anchor_z, 6)]}
@@ -990,15 +1214,33 @@ def _build_lamp(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Part
         parts.append(("base", _cylinder_z(0.0, 0.0, apex - 0.03, h - sh * 0.5, pole_r)))
     else:
         br = p["base_diameter_m"] / 2
-        parts.append(("base", _lathe([(0.0, 0.0), (br, 0.0), (br, 0.015), (br * 0.6, 0.03), (0.0, 0.03)],
-                                     sections=SECTIONS_FINE)))
+        parts.append(
+            (
+                "base",
+                _lathe([(0.0, 0.0), (br, 0.0), (br, 0.015), (br * 0.6, 0.03), (0.0, 0.03)], sections=SECTIONS_FINE),
+            )
+        )
         pole_top = h - sh if variant == "uplighter" else h - sh * 0.5
         parts.append(("base", _cylinder_z(0.0, 0.0, 0.03, pole_top, pole_r)))
     if variant == "cone_shade":
         parts.append(("shade", _shade_tube(h - sh, h, sr, sr * 0.6)))
     elif variant == "uplighter":
-        parts.append(("shade", _lathe([(0.0, h - sh), (0.05, h - sh), (sr, h), (sr - 0.006, h), (0.045, h - sh + 0.006),
-                                       (0.0, h - sh + 0.006)], sections=SECTIONS_FINE)))
+        parts.append(
+            (
+                "shade",
+                _lathe(
+                    [
+                        (0.0, h - sh),
+                        (0.05, h - sh),
+                        (sr, h),
+                        (sr - 0.006, h),
+                        (0.045, h - sh + 0.006),
+                        (0.0, h - sh + 0.006),
+                    ],
+                    sections=SECTIONS_FINE,
+                ),
+            )
+        )
     else:  # drum_shade, tripod
         parts.append(("shade", _shade_tube(h - sh, h, sr, sr)))
     return parts
@@ -1023,8 +1265,10 @@ def _ladder_shelves(p: dict[str, float]) -> list[tuple[float, float]]:
 
 
 def _sample_bookshelf(variant: str, rng: np.random.Generator) -> _Sampled:
-    p = {n: _draw(rng, "bookshelf", n) for n in ("height_m", "width_m", "depth_m", "shelf_spacing_m",
-                                                   "board_thickness_m")}
+    p = {
+        n: _draw(rng, "bookshelf", n)
+        for n in ("height_m", "width_m", "depth_m", "shelf_spacing_m", "board_thickness_m")
+    }
     t = p["board_thickness_m"]
     # Compartments between the bottom board and the top board at the chosen clear spacing.
     usable = p["height_m"] - _PLINTH_M - 2 * t
@@ -1052,8 +1296,7 @@ def _build_bookshelf(variant: str, p: dict[str, float], spec: dict[str, Any]) ->
         rail = _LADDER_RAIL_M
         for sx in (-1, 1):
             x0, x1 = sorted((sx * hw, sx * (hw - rail)))
-            points = [[x, y, z] for x in (x0, x1) for y, z in ((hd - rail, 0.0), (hd, 0.0), (-hd, h),
-                                                               (-hd + rail, h))]
+            points = [[x, y, z] for x in (x0, x1) for y, z in ((hd - rail, 0.0), (hd, 0.0), (-hd, h), (-hd + rail, h))]
             parts.append(("carcass", _hull(np.array(points))))
         for z, front in _ladder_shelves(p):
             parts.append(("carcass", _box(-hw + rail, hw - rail, -hd + 0.01, front, z - t, z)))
@@ -1087,13 +1330,18 @@ def _build_bookshelf(variant: str, p: dict[str, float], spec: dict[str, Any]) ->
                     break
                 book_h = clear * rng.uniform(0.6, 0.92)
                 book_d = (d - 0.03) * rng.uniform(0.65, 0.95)
-                parts.append((slot_names[int(rng.integers(3))],
-                              _box(x, x + thickness, -hd + 0.01, -hd + 0.01 + book_d, z, z + book_h)))
+                parts.append(
+                    (
+                        slot_names[int(rng.integers(3))],
+                        _box(x, x + thickness, -hd + 0.01, -hd + 0.01 + book_d, z, z + book_h),
+                    )
+                )
                 x += thickness + 0.001
     return parts
 
 
 # --- potted plant ----------------------------------------------------------
+
 
 def _sample_plant(variant: str, rng: np.random.Generator) -> _Sampled:
     p = {n: _draw(rng, "potted_plant", n) for n in ("height_m", "pot_diameter_m", "pot_height_m", "spread_m")}
@@ -1120,8 +1368,13 @@ def _build_plant(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
     rim, soil_depth = min(0.012, rt * 0.15), 0.025
     rng = np.random.default_rng(int(spec.get("detail_seed", 0)))
     parts: PartList = [
-        ("pot", _lathe([(0.0, 0.0), (rb, 0.0), (rt, ph), (rt - rim, ph), (rt - rim, ph - soil_depth),
-                        (0.0, ph - soil_depth)], sections=SECTIONS)),
+        (
+            "pot",
+            _lathe(
+                [(0.0, 0.0), (rb, 0.0), (rt, ph), (rt - rim, ph), (rt - rim, ph - soil_depth), (0.0, ph - soil_depth)],
+                sections=SECTIONS,
+            ),
+        ),
         ("soil", _cylinder_z(0.0, 0.0, ph - soil_depth, ph - soil_depth + 0.005, rt - rim, sections=SECTIONS)),
     ]
     half = spread / 2
@@ -1133,8 +1386,9 @@ def _build_plant(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
             radius = rng.uniform(0.0, max(half - rr, 0.0))
             angle = rng.uniform(0.0, 2 * math.pi)
             z = rng.uniform(ph + rr * 0.85, max(h - rr, ph + rr * 0.85))
-            parts.append(("foliage", _ellipsoid((radius * math.cos(angle), radius * math.sin(angle), z),
-                                                (rr, rr, rr * 0.85))))
+            parts.append(
+                ("foliage", _ellipsoid((radius * math.cos(angle), radius * math.sin(angle), z), (rr, rr, rr * 0.85)))
+            )
     elif variant == "spiky":
         for k in range(int(rng.integers(8, 14))):
             angle = rng.uniform(0.0, 2 * math.pi)
@@ -1148,8 +1402,7 @@ def _build_plant(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
             for (bx, by), z, half_w in ((base, ph - soil_depth, 0.012), (mid, ph + (tip_z - ph) * 0.5, 0.025)):
                 for s in (-1, 1):
                     points.append((bx + s * nx * half_w, by + s * ny * half_w, z))
-                    points.append((bx + s * nx * half_w * 0.5 - ca * 0.003, by + s * ny * half_w * 0.5 - sa * 0.003,
-                                   z))
+                    points.append((bx + s * nx * half_w * 0.5 - ca * 0.003, by + s * ny * half_w * 0.5 - sa * 0.003, z))
             points.append((ca * lean, sa * lean, tip_z))
             parts.append(("foliage", _hull(np.array(points))))
     elif variant == "cactus":
@@ -1164,8 +1417,9 @@ def _build_plant(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
             z0 = ph + (h - ph) * rng.uniform(0.3, 0.5)
             z1 = min(h - 0.02, z0 + (h - z0) * rng.uniform(0.4, 0.8))
             parts.append(("foliage", _tube((0.0, 0.0, z0), (arm_x, 0.0, z0), ar, sections=10)))
-            arm = [(0.0, z0 - ar), (ar, z0 - ar)] + [(ar * math.cos(a), z1 - ar + ar * math.sin(a))
-                                                       for a in np.linspace(0.0, math.pi / 2, 4)[1:]]
+            arm = [(0.0, z0 - ar), (ar, z0 - ar)] + [
+                (ar * math.cos(a), z1 - ar + ar * math.sin(a)) for a in np.linspace(0.0, math.pi / 2, 4)[1:]
+            ]
             parts.append(("foliage", _lathe(arm, cx=arm_x, sections=10)))
     else:  # tree
         crown_r = min(half, (h - ph) * 0.3)
@@ -1177,8 +1431,7 @@ def _build_plant(variant: str, p: dict[str, float], spec: dict[str, Any]) -> Par
             radius = rng.uniform(0.0, max(half - rr, 0.0))
             angle = rng.uniform(0.0, 2 * math.pi)
             z = rng.uniform(max(ph + rr, trunk_top - crown_r * 0.8), h - rr)
-            parts.append(("foliage", _ellipsoid((radius * math.cos(angle), radius * math.sin(angle), z),
-                                                (rr, rr, rr))))
+            parts.append(("foliage", _ellipsoid((radius * math.cos(angle), radius * math.sin(angle), z), (rr, rr, rr))))
     return parts
 
 
@@ -1188,8 +1441,16 @@ _MATTRESS_WIDTHS_M = (0.90, 1.20, 1.40, 1.60, 1.80)
 
 
 def _sample_bed(variant: str, rng: np.random.Generator) -> _Sampled:
-    p = {n: _draw(rng, "bed", n) for n in ("mattress_length_m", "mattress_top_height_m", "mattress_thickness_m",
-                                           "frame_margin_m", "leg_height_m")}
+    p = {
+        n: _draw(rng, "bed", n)
+        for n in (
+            "mattress_length_m",
+            "mattress_top_height_m",
+            "mattress_thickness_m",
+            "frame_margin_m",
+            "leg_height_m",
+        )
+    }
     p["mattress_width_m"] = float(rng.choice(_MATTRESS_WIDTHS_M))
     # The frame below the mattress needs a few cm, so the mattress cannot sit higher than its legs allow.
     p["mattress_thickness_m"] = round(min(p["mattress_thickness_m"], p["mattress_top_height_m"] - 0.15), 6)
@@ -1205,8 +1466,12 @@ def _sample_bed(variant: str, rng: np.random.Generator) -> _Sampled:
     d = ml + 2 * m + p.get("headboard_thickness_m", 0.0) + (0.04 if variant == "footboard" else 0.0)
     pillow_top = p["mattress_top_height_m"] + 0.13
     h = max(pillow_top, p.get("headboard_height_m", 0.0), p.get("poster_height_m", 0.0))
-    slots = {"frame": ("wood", "painted", "fabric"), "mattress": ("bedding",), "bedding": ("bedding", "fabric"),
-             "pillows": ("bedding",)}
+    slots = {
+        "frame": ("wood", "painted", "fabric"),
+        "mattress": ("bedding",),
+        "bedding": ("bedding", "fabric"),
+        "pillows": ("bedding",),
+    }
     return _Sampled(p, (round(w, 6), round(d, 6)), round(h, 6), slots)
 
 
@@ -1228,12 +1493,20 @@ def _build_bed(variant: str, p: dict[str, float], spec: dict[str, Any]) -> PartL
         parts.append(("frame", _box(-hw + 0.06, hw - 0.06, head + 0.06, foot - 0.06, 0.0, 0.08)))
         parts.append(("frame", _box(-hw, hw, head, foot, 0.08, deck)))
     else:
-        parts += [("frame", m_) for m_ in _legs("square", (-hw + 0.03, hw - 0.03), (head + 0.03, foot - 0.03),
-                                                lh + 0.01, 0.06)]
+        parts += [
+            ("frame", m_)
+            for m_ in _legs("square", (-hw + 0.03, hw - 0.03), (head + 0.03, foot - 0.03), lh + 0.01, 0.06)
+        ]
         parts.append(("frame", _box(-hw, hw, head, foot, lh, deck)))
         hb_top = p["headboard_height_m"]
-        parts.append(("frame", _cushion(-hw, hw, -hd, head, 0.0 if variant != "four_poster" else lh, hb_top,
-                                        corner_m=0.02, bevel_m=0.01)))
+        parts.append(
+            (
+                "frame",
+                _cushion(
+                    -hw, hw, -hd, head, 0.0 if variant != "four_poster" else lh, hb_top, corner_m=0.02, bevel_m=0.01
+                ),
+            )
+        )
     if variant == "footboard":
         parts.append(("frame", _box(-hw, hw, foot, hd, 0.0, min(mt + 0.2, p["headboard_height_m"]))))
     if variant == "four_poster":
@@ -1245,18 +1518,45 @@ def _build_bed(variant: str, p: dict[str, float], spec: dict[str, Any]) -> PartL
             parts.append(("frame", _box(x, x + post, -hd, hd, top - 0.05, top)))
         for y in (-hd, hd - post):
             parts.append(("frame", _box(-hw, hw, y, y + post, top - 0.05, top)))
-    parts.append(("mattress", _cushion(-mw / 2, mw / 2, mattress_y0, mattress_y1, deck, mt, corner_m=0.05,
-                                       bevel_m=0.03)))
+    parts.append(
+        ("mattress", _cushion(-mw / 2, mw / 2, mattress_y0, mattress_y1, deck, mt, corner_m=0.05, bevel_m=0.03))
+    )
     # The duvet covers the foot two thirds and hangs a little over the sides.
     overhang = min(0.015, m)
-    parts.append(("bedding", _cushion(-mw / 2 - overhang, mw / 2 + overhang, mattress_y0 + ml * 0.33,
-                                      mattress_y1 + overhang, mt - 0.1, mt + 0.04, corner_m=0.04, bevel_m=0.02)))
+    parts.append(
+        (
+            "bedding",
+            _cushion(
+                -mw / 2 - overhang,
+                mw / 2 + overhang,
+                mattress_y0 + ml * 0.33,
+                mattress_y1 + overhang,
+                mt - 0.1,
+                mt + 0.04,
+                corner_m=0.04,
+                bevel_m=0.02,
+            ),
+        )
+    )
     pillows = 2 if mw >= 1.2 else 1
     pillow_w = min(0.65, mw / pillows - 0.06)
     for k in range(pillows):
         cx = -mw / 2 + (k + 0.5) * mw / pillows
-        parts.append(("pillows", _cushion(cx - pillow_w / 2, cx + pillow_w / 2, mattress_y0 + 0.05,
-                                          mattress_y0 + 0.45, mt, mt + 0.13, corner_m=0.06, bevel_m=0.04)))
+        parts.append(
+            (
+                "pillows",
+                _cushion(
+                    cx - pillow_w / 2,
+                    cx + pillow_w / 2,
+                    mattress_y0 + 0.05,
+                    mattress_y0 + 0.45,
+                    mt,
+                    mt + 0.13,
+                    corner_m=0.06,
+                    bevel_m=0.04,
+                ),
+            )
+        )
     return parts
 
 
@@ -1264,40 +1564,91 @@ def _build_bed(variant: str, p: dict[str, float], spec: dict[str, Any]) -> PartL
 # Registry
 # ---------------------------------------------------------------------------
 
+
 def _table_class(name: str, variants: tuple[str, ...]) -> AssetClass:
     return AssetClass(
-        name, "floor", variants, HANDBOOK_RANGES[name],
-        lambda v, rng: _sample_table(name, v, rng), lambda v, p, spec: _build_table(name, v, p),
+        name,
+        "floor",
+        variants,
+        HANDBOOK_RANGES[name],
+        lambda v, rng: _sample_table(name, v, rng),
+        lambda v, p, spec: _build_table(name, v, p),
     )
 
 
 def _upholstered_class(name: str, variants: tuple[str, ...]) -> AssetClass:
     return AssetClass(
-        name, "floor", variants, HANDBOOK_RANGES[name],
-        lambda v, rng: _sample_upholstered(name, v, rng), lambda v, p, spec: _build_upholstered(name, v, p),
+        name,
+        "floor",
+        variants,
+        HANDBOOK_RANGES[name],
+        lambda v, rng: _sample_upholstered(name, v, rng),
+        lambda v, p, spec: _build_upholstered(name, v, p),
     )
 
 
 CLASSES: dict[str, AssetClass] = {
-    "chair": AssetClass("chair", "floor", ("slat_back", "panel_back", "sled_base", "pedestal"),
-                        HANDBOOK_RANGES["chair"], _sample_chair, _build_chair),
+    "chair": AssetClass(
+        "chair",
+        "floor",
+        ("slat_back", "panel_back", "sled_base", "pedestal"),
+        HANDBOOK_RANGES["chair"],
+        _sample_chair,
+        _build_chair,
+    ),
     "armchair": _upholstered_class("armchair", ("track_arm", "rolled_arm", "slipper", "wingback")),
     "sofa": _upholstered_class("sofa", ("track_arm", "rolled_arm", "armless", "tuxedo")),
     "dining_table": _table_class("dining_table", ("rect_four_leg", "round_pedestal", "trestle", "round_four_leg")),
     "coffee_table": _table_class("coffee_table", ("rect_four_leg", "round_three_leg", "lower_shelf", "drum")),
     "side_table": _table_class("side_table", ("square_four_leg", "round_pedestal", "c_frame", "drawer_cube")),
-    "ottoman": AssetClass("ottoman", "floor", ("box", "round_pouf", "bench", "tray_top"),
-                          HANDBOOK_RANGES["ottoman"], _sample_ottoman, _build_ottoman),
-    "wall_clock": AssetClass("wall_clock", "wall", ("round_rim", "square_frame", "minimal_ticks", "octagon"),
-                             HANDBOOK_RANGES["wall_clock"], _sample_clock, _build_clock),
-    "floor_lamp": AssetClass("floor_lamp", "floor", ("drum_shade", "cone_shade", "tripod", "uplighter"),
-                             HANDBOOK_RANGES["floor_lamp"], _sample_lamp, _build_lamp),
-    "bookshelf": AssetClass("bookshelf", "floor", ("open_frame", "back_panel_books", "cube_grid", "ladder"),
-                            HANDBOOK_RANGES["bookshelf"], _sample_bookshelf, _build_bookshelf),
-    "potted_plant": AssetClass("potted_plant", "surface_or_floor", ("bush", "spiky", "cactus", "tree"),
-                               HANDBOOK_RANGES["potted_plant"], _sample_plant, _build_plant),
-    "bed": AssetClass("bed", "floor", ("headboard_panel", "platform", "four_poster", "footboard"),
-                      HANDBOOK_RANGES["bed"], _sample_bed, _build_bed),
+    "ottoman": AssetClass(
+        "ottoman",
+        "floor",
+        ("box", "round_pouf", "bench", "tray_top"),
+        HANDBOOK_RANGES["ottoman"],
+        _sample_ottoman,
+        _build_ottoman,
+    ),
+    "wall_clock": AssetClass(
+        "wall_clock",
+        "wall",
+        ("round_rim", "square_frame", "minimal_ticks", "octagon"),
+        HANDBOOK_RANGES["wall_clock"],
+        _sample_clock,
+        _build_clock,
+    ),
+    "floor_lamp": AssetClass(
+        "floor_lamp",
+        "floor",
+        ("drum_shade", "cone_shade", "tripod", "uplighter"),
+        HANDBOOK_RANGES["floor_lamp"],
+        _sample_lamp,
+        _build_lamp,
+    ),
+    "bookshelf": AssetClass(
+        "bookshelf",
+        "floor",
+        ("open_frame", "back_panel_books", "cube_grid", "ladder"),
+        HANDBOOK_RANGES["bookshelf"],
+        _sample_bookshelf,
+        _build_bookshelf,
+    ),
+    "potted_plant": AssetClass(
+        "potted_plant",
+        "surface_or_floor",
+        ("bush", "spiky", "cactus", "tree"),
+        HANDBOOK_RANGES["potted_plant"],
+        _sample_plant,
+        _build_plant,
+    ),
+    "bed": AssetClass(
+        "bed",
+        "floor",
+        ("headboard_panel", "platform", "four_poster", "footboard"),
+        HANDBOOK_RANGES["bed"],
+        _sample_bed,
+        _build_bed,
+    ),
 }
 
 # Plants taller than this go on the floor: a 1.2 m tree on a table reads as a mistake.
@@ -1314,8 +1665,10 @@ def sample_asset(class_name: str, rng: np.random.Generator) -> dict[str, Any]:
         raise ValueError(f"unknown asset class {class_name!r} (known: {', '.join(sorted(CLASSES))})")
     variant = asset_class.variants[int(rng.integers(len(asset_class.variants)))]
     sampled = asset_class.sampler(variant, rng)
-    materials = {slot: sample_material(families[int(rng.integers(len(families)))], rng)
-                 for slot, families in sampled.slots.items()}
+    materials = {
+        slot: sample_material(families[int(rng.integers(len(families)))], rng)
+        for slot, families in sampled.slots.items()
+    }
     if asset_class.placement == "wall":
         placement = "wall"
     elif asset_class.placement == "surface_or_floor":
@@ -1388,9 +1741,17 @@ def _load_user_model(path: str, unit: str, up_axis: str, front: str | None) -> m
     return load_model_cached(path, unit=unit, up_axis=up_axis, front=front)
 
 
-def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placement: str, rng: np.random.Generator,
-                    *, unit: str = "auto", up_axis: str = "z", front: str | None = None,
-                    look: str = "randomize") -> dict[str, Any]:
+def user_asset_spec(
+    mesh_path: str | os.PathLike[str],
+    class_name: str,
+    placement: str,
+    rng: np.random.Generator,
+    *,
+    unit: str = "auto",
+    up_axis: str = "z",
+    front: str | None = None,
+    look: str = "randomize",
+) -> dict[str, Any]:
     """Wrap a user model (see :func:`render.meshes.load_user_model`) as an asset spec.
 
     ``placement`` is "floor", "wall" (the model's back, its local -y side, goes on the wall and its front, the
@@ -1413,18 +1774,28 @@ def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placemen
     mesh = model.mesh()
     extent = mesh.bounds[1] - mesh.bounds[0]
     if look == "keep":
-        materials = {f"part{k}": look_material(part.look, texture_record=texture_record(
-            mesh_path=path, unit=unit, up_axis=up_axis, front=front, part=k) if part.uv is not None else None)
-            for k, part in enumerate(model.parts)}
+        materials = {
+            f"part{k}": look_material(
+                part.look,
+                texture_record=texture_record(mesh_path=path, unit=unit, up_axis=up_axis, front=front, part=k)
+                if part.uv is not None
+                else None,
+            )
+            for k, part in enumerate(model.parts)
+        }
     else:
-        materials = {"body": sample_material(("plastic", "painted", "wood", "metal", "fabric")[int(rng.integers(5))],
-                                             rng)}
+        materials = {
+            "body": sample_material(("plastic", "painted", "wood", "metal", "fabric")[int(rng.integers(5))], rng)
+        }
     spec: dict[str, Any] = {
         "class_name": class_name,
         "asset_id": f"user/{Path(path).stem}",
         "variant": "user",
-        "params": {"width_m": round(float(extent[0]), 6), "depth_m": round(float(extent[1]), 6),
-                   "height_m": round(float(extent[2]), 6)},
+        "params": {
+            "width_m": round(float(extent[0]), 6),
+            "depth_m": round(float(extent[1]), 6),
+            "height_m": round(float(extent[2]), 6),
+        },
         "materials": materials,
         "placement": placement,
         "footprint_m": [round(float(extent[0]), 6), round(float(extent[1]), 6)],
@@ -1447,8 +1818,9 @@ def user_asset_spec(mesh_path: str | os.PathLike[str], class_name: str, placemen
 def _build_user_parts(spec: dict[str, Any]) -> list[Part]:
     from render.user_materials import mitsuba_uv
 
-    model = _load_user_model(spec["mesh_path"], spec.get("unit", "auto"), spec.get("up_axis", "z"),
-                             spec.get("front") or None)
+    model = _load_user_model(
+        spec["mesh_path"], spec.get("unit", "auto"), spec.get("up_axis", "z"), spec.get("front") or None
+    )
     # Back onto the plane y = 0 for wall items (their front, +y, faces the room).
     shift = [0.0, -float(model.mesh().bounds[0][1]), 0.0] if spec["placement"] == "wall" else None
     if spec.get("look", "randomize") != "keep":

@@ -43,21 +43,31 @@ def main(argv: list[str] | None = None) -> int:
     choice = init_renderer(variant=args.variant, threads=args.threads)
     budget = {"render": {"width_px": args.width, "height_px": args.height, "spp": args.spp}}
     composition = default_composition()
-    print(f"bench: {args.width}x{args.height}, {args.spp} spp, variant {choice.variant}, "
-          f"classes {','.join(f'{k}={v}' for k, v in composition.items())}, {args.frames} frames + 1 warm-up")
+    print(
+        f"bench: {args.width}x{args.height}, {args.spp} spp, variant {choice.variant}, "
+        f"classes {','.join(f'{k}={v}' for k, v in composition.items())}, {args.frames} frames + 1 warm-up"
+    )
 
     rows: list[tuple[dict[str, float], float]] = []
     with tempfile.TemporaryDirectory(prefix="evenframe-bench-") as tmp:
         for index in range(args.frames + 1):
             seed = args.seed + index - 1 if index else 0
             start = time.perf_counter()
-            result = render_frame_from_inputs(budget, composition, seed, out_dir=Path(tmp) / f"frame{index}",
-                                              variant=choice.variant, threads=args.threads)
+            result = render_frame_from_inputs(
+                budget,
+                composition,
+                seed,
+                out_dir=Path(tmp) / f"frame{index}",
+                variant=choice.variant,
+                threads=args.threads,
+            )
             end_to_end_s = time.perf_counter() - start
             label = "warm-up" if index == 0 else f"frame {index}"
             stages = " ".join(f"{k}={v:.3f}" for k, v in result.timings_s.items())
-            print(f"  {label:<8} seed {seed:<4} e2e {end_to_end_s:6.3f} s  ratio "
-                  f"{end_to_end_s / result.timings_s['render']:5.3f}  ({stages})")
+            print(
+                f"  {label:<8} seed {seed:<4} e2e {end_to_end_s:6.3f} s  ratio "
+                f"{end_to_end_s / result.timings_s['render']:5.3f}  ({stages})"
+            )
             if index:
                 rows.append((result.timings_s, end_to_end_s))
 
@@ -69,8 +79,10 @@ def main(argv: list[str] | None = None) -> int:
     print(f"{'end-to-end':<12} {end_to_end:>9.3f}")
     ratio = statistics.median(e / t["render"] for t, e in rows)
     verdict = "meets" if ratio <= TARGET_RATIO else "MISSES"
-    print(f"\nend-to-end / render ratio (median of per-frame ratios): {ratio:.3f}  "
-          f"({verdict} the target {TARGET_RATIO:.2f})")
+    print(
+        f"\nend-to-end / render ratio (median of per-frame ratios): {ratio:.3f}  "
+        f"({verdict} the target {TARGET_RATIO:.2f})"
+    )
     return 0
 
 

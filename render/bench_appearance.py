@@ -53,8 +53,7 @@ def _budget(width_px: int, height_px: int, texture_probability: float | None = N
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m render.bench_appearance",
-                                     description=__doc__.split("\n\n")[0])
+    parser = argparse.ArgumentParser(prog="python -m render.bench_appearance", description=__doc__.split("\n\n")[0])
     parser.add_argument("--frames", type=int, default=50)
     parser.add_argument("--width", type=int, default=320)
     parser.add_argument("--height", type=int, default=240)
@@ -85,13 +84,16 @@ def main(argv: list[str] | None = None) -> int:
                 continue
             aux = render_label_and_aux(build_scene(spec))
             shares[label].append(flat_share(aux.albedo_rgb, aux.depth_m > 0))
-    print(f"\nshare of visible pixels on flat-coloured surfaces (albedo constant over 5x5), {len(shares['textures off'])} frames:")
+    print(
+        f"\nshare of visible pixels on flat-coloured surfaces (albedo constant over 5x5), {len(shares['textures off'])} frames:"
+    )
     for label, values in shares.items():
-        print(f"  {label:<15} mean {np.mean(values):.3f}  median {np.median(values):.3f}  "
-              f"max {np.max(values):.3f}")
+        print(f"  {label:<15} mean {np.mean(values):.3f}  median {np.median(values):.3f}  max {np.max(values):.3f}")
     mean_share = float(np.mean(shares["default budget"]))
-    print(f"goal < {GOAL_FLAT_SHARE:.2f} at the defaults: {mean_share:.3f} "
-          f"({'meets' if mean_share < GOAL_FLAT_SHARE else 'MISSES'})")
+    print(
+        f"goal < {GOAL_FLAT_SHARE:.2f} at the defaults: {mean_share:.3f} "
+        f"({'meets' if mean_share < GOAL_FLAT_SHARE else 'MISSES'})"
+    )
 
     if args.cpu_frames:
         budget = _budget(args.cpu_width, args.cpu_height)
@@ -104,10 +106,12 @@ def main(argv: list[str] | None = None) -> int:
             result = render_frame(spec)
             rows.append((result.timings_s["scene_build"], time.perf_counter() - start))
         share = statistics.median(build / total for build, total in rows)
-        print(f"\nscene build (geometry, textures, texture coordinates) at {args.cpu_width}x{args.cpu_height}, "
-              f"warm texture cache, {len(rows)} frames: median {statistics.median(b for b, _ in rows):.3f} s of "
-              f"{statistics.median(t for _, t in rows):.3f} s per frame, share {share:.3f} "
-              f"(goal <= {GOAL_BUILD_SHARE:.2f}: {'meets' if share <= GOAL_BUILD_SHARE else 'MISSES'})")
+        print(
+            f"\nscene build (geometry, textures, texture coordinates) at {args.cpu_width}x{args.cpu_height}, "
+            f"warm texture cache, {len(rows)} frames: median {statistics.median(b for b, _ in rows):.3f} s of "
+            f"{statistics.median(t for _, t in rows):.3f} s per frame, share {share:.3f} "
+            f"(goal <= {GOAL_BUILD_SHARE:.2f}: {'meets' if share <= GOAL_BUILD_SHARE else 'MISSES'})"
+        )
     return 0
 
 

@@ -79,7 +79,9 @@ def lighting_kind(spec: dict[str, Any]) -> str | None:
     return "window" if sky_lm > lamp_lm else None
 
 
-def pick_seeds(budget: dict[str, Any], composition: dict[str, int], per_kind: int, *, limit: int = 500) -> list[tuple[int, str]]:
+def pick_seeds(
+    budget: dict[str, Any], composition: dict[str, int], per_kind: int, *, limit: int = 500
+) -> list[tuple[int, str]]:
     from .spec import make_spec
 
     chosen: dict[str, list[int]] = {kind: [] for kind in KINDS}
@@ -111,8 +113,9 @@ def _render(spec: dict[str, Any], *, window_light: str = "portal", threads: int 
     return result, time.process_time() - start
 
 
-def _with(spec: dict[str, Any], *, spp: int | None = None, denoise: bool | None = None,
-          sensor_noise: bool | None = None) -> dict[str, Any]:
+def _with(
+    spec: dict[str, Any], *, spp: int | None = None, denoise: bool | None = None, sensor_noise: bool | None = None
+) -> dict[str, Any]:
     spec = copy.deepcopy(spec)
     if spp is not None:
         spec["render"]["spp"] = int(spp)
@@ -161,7 +164,9 @@ def _verdict(ok: bool) -> str:
     return "meets" if ok else "MISSES"
 
 
-def _pipeline_cpu(pipeline: str, seeds: list[int], width_px: int, height_px: int, threads: int | None) -> dict[str, list[float]]:
+def _pipeline_cpu(
+    pipeline: str, seeds: list[int], width_px: int, height_px: int, threads: int | None
+) -> dict[str, list[float]]:
     """CPU seconds per frame of one pipeline over ``seeds``: a first-sight pass, then a repeat pass.
 
     Runs in a process of its own (see :func:`cpu_per_frame`), so nothing compiled before counts.
@@ -174,8 +179,10 @@ def _pipeline_cpu(pipeline: str, seeds: list[int], width_px: int, height_px: int
     if pipeline == "previous":
         specs = [_with(spec, spp=PREVIOUS_DEFAULT["spp"], denoise=PREVIOUS_DEFAULT["denoise"]) for spec in specs]
     window_light = PREVIOUS_DEFAULT["window_light"] if pipeline == "previous" else "portal"
-    return {sight: [_render(spec, window_light=window_light, threads=threads)[1] for spec in specs]
-            for sight in ("first sight", "repeat")}
+    return {
+        sight: [_render(spec, window_light=window_light, threads=threads)[1] for spec in specs]
+        for sight in ("first sight", "repeat")
+    }
 
 
 def cpu_per_frame(args: argparse.Namespace, seeds: list[int], default_render: dict[str, Any]) -> None:
@@ -189,28 +196,48 @@ def cpu_per_frame(args: argparse.Namespace, seeds: list[int], default_render: di
 
     cpu: dict[str, dict[str, list[float]]] = {}
     for pipeline in ("previous", "new"):
-        command = [sys.executable, "-m", "render.bench_quality", "--cpu-pipeline", pipeline,
-                   "--cpu-seeds", ",".join(map(str, seeds)), "--cpu-width", str(args.cpu_width),
-                   "--cpu-height", str(args.cpu_height), "--variant", args.variant]
+        command = [
+            sys.executable,
+            "-m",
+            "render.bench_quality",
+            "--cpu-pipeline",
+            pipeline,
+            "--cpu-seeds",
+            ",".join(map(str, seeds)),
+            "--cpu-width",
+            str(args.cpu_width),
+            "--cpu-height",
+            str(args.cpu_height),
+            "--variant",
+            args.variant,
+        ]
         if args.threads:
             command += ["--threads", str(args.threads)]
         done = subprocess.run(command, capture_output=True, text=True, check=False)
         if done.returncode != 0:
             raise RuntimeError(f"CPU run of the {pipeline} pipeline failed:\n{done.stderr[-2000:]}")
         cpu[pipeline] = json.loads(done.stdout.strip().splitlines()[-1])
-    print(f"\nCPU per frame at {args.cpu_width}x{args.cpu_height}, end to end (process CPU s of all threads; "
-          f"median of seeds {', '.join(map(str, seeds))}):")
+    print(
+        f"\nCPU per frame at {args.cpu_width}x{args.cpu_height}, end to end (process CPU s of all threads; "
+        f"median of seeds {', '.join(map(str, seeds))}):"
+    )
     new_label = f"new ({default_render['spp']} spp, denoiser, portals)"
     print(f"{'':<11} {'previous (32 spp, no denoiser, brute-force sky)':>48} {new_label:>34} {'ratio':>7}")
     for sight in ("first sight", "repeat"):
         old_s, new_s = statistics.median(cpu["previous"][sight]), statistics.median(cpu["new"][sight])
         print(f"{sight:<11} {old_s:>48.2f} {new_s:>34.2f} {new_s / old_s:>7.3f}")
     for sight in ("first sight", "repeat"):
-        print(f"  {sight}, per seed: new " + ", ".join(f"{v:.2f}" for v in cpu["new"][sight])
-              + "; previous " + ", ".join(f"{v:.2f}" for v in cpu["previous"][sight]))
+        print(
+            f"  {sight}, per seed: new "
+            + ", ".join(f"{v:.2f}" for v in cpu["new"][sight])
+            + "; previous "
+            + ", ".join(f"{v:.2f}" for v in cpu["previous"][sight])
+        )
     ratio = statistics.median(cpu["new"]["first sight"]) / statistics.median(cpu["previous"]["first sight"])
-    print(f"goal new <= {GOAL_CPU_RATIO:.3f} x previous (first sight, the stricter case): {ratio:.3f} "
-          f"({_verdict(ratio <= GOAL_CPU_RATIO)})")
+    print(
+        f"goal new <= {GOAL_CPU_RATIO:.3f} x previous (first sight, the stricter case): {ratio:.3f} "
+        f"({_verdict(ratio <= GOAL_CPU_RATIO)})"
+    )
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -255,16 +282,20 @@ def main(argv: list[str] | None = None) -> int:
     default_render = DEFAULT_BUDGET["render"]
     budget = _budget(args.width, args.height)
     seeds = pick_seeds(budget, composition, args.per_kind)
-    print(f"bench_quality: {args.width}x{args.height}, variant {choice.variant}, default {default_render['spp']} spp, "
-          f"denoise {default_render['denoise']}, reference {args.reference_spp} spp; denoiser: {status or 'loaded'}")
+    print(
+        f"bench_quality: {args.width}x{args.height}, variant {choice.variant}, default {default_render['spp']} spp, "
+        f"denoise {default_render['denoise']}, reference {args.reference_spp} spp; denoiser: {status or 'loaded'}"
+    )
     print(f"seeds: {', '.join(f'{s} ({k})' for s, k in seeds)}")
     # Warm-up: JIT compilation of the kernels each configuration uses (excluded from the timings).
     warm = make_spec(_budget(48, 36), composition, seeds[0][0])
     for window_light in ("portal", "dome"):
         _render(warm, window_light=window_light, threads=args.threads)
 
-    header = (f"{'seed':>5} {'kind':<7} {'PSNR dB':>8} {'SSIM':>6} {'PSNR no-SN':>10} {'SSIM no-SN':>10} "
-              f"{'CPU s':>6} {'raw spp':>7} {'raw CPU s':>9} {'raw PSNR':>8} {'gain dB':>7}")
+    header = (
+        f"{'seed':>5} {'kind':<7} {'PSNR dB':>8} {'SSIM':>6} {'PSNR no-SN':>10} {'SSIM no-SN':>10} "
+        f"{'CPU s':>6} {'raw spp':>7} {'raw CPU s':>9} {'raw PSNR':>8} {'gain dB':>7}"
+    )
     print(header)
     rows = []
     for seed, kind in seeds:
@@ -279,38 +310,63 @@ def main(argv: list[str] | None = None) -> int:
         psnr_clean, ssim_clean = scores(reference, clean.rgb)
         # Raw (previous pipeline) at the CPU time of the default frame: CPU per sample from a probe render.
         probe_spp = 8
-        _, probe_cpu_s = _render(_with(spec, spp=probe_spp, denoise=False, sensor_noise=False), window_light="dome",
-                                 threads=args.threads)
+        _, probe_cpu_s = _render(
+            _with(spec, spp=probe_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
+        )
         raw_spp = max(1, round(probe_spp * cpu_s / probe_cpu_s))
-        raw, raw_cpu_s = _render(_with(spec, spp=raw_spp, denoise=False, sensor_noise=False), window_light="dome",
-                                 threads=args.threads)
+        raw, raw_cpu_s = _render(
+            _with(spec, spp=raw_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
+        )
         psnr_raw, _ = scores(reference, raw.rgb)
-        rows.append({"psnr": psnr, "ssim": ssim, "psnr_clean": psnr_clean, "ssim_clean": ssim_clean, "cpu_s": cpu_s,
-                     "raw_cpu_s": raw_cpu_s, "psnr_raw": psnr_raw, "gain": psnr_clean - psnr_raw})
-        print(f"{seed:>5} {kind:<7} {psnr:>8.2f} {ssim:>6.3f} {psnr_clean:>10.2f} {ssim_clean:>10.3f} {cpu_s:>6.2f} "
-              f"{raw_spp:>7} {raw_cpu_s:>9.2f} {psnr_raw:>8.2f} {psnr_clean - psnr_raw:>7.2f}", flush=True)
+        rows.append(
+            {
+                "psnr": psnr,
+                "ssim": ssim,
+                "psnr_clean": psnr_clean,
+                "ssim_clean": ssim_clean,
+                "cpu_s": cpu_s,
+                "raw_cpu_s": raw_cpu_s,
+                "psnr_raw": psnr_raw,
+                "gain": psnr_clean - psnr_raw,
+            }
+        )
+        print(
+            f"{seed:>5} {kind:<7} {psnr:>8.2f} {ssim:>6.3f} {psnr_clean:>10.2f} {ssim_clean:>10.3f} {cpu_s:>6.2f} "
+            f"{raw_spp:>7} {raw_cpu_s:>9.2f} {psnr_raw:>8.2f} {psnr_clean - psnr_raw:>7.2f}",
+            flush=True,
+        )
 
     def median(key: str) -> float:
         return statistics.median(r[key] for r in rows)
 
-    print(f"{'median':>13} {median('psnr'):>8.2f} {median('ssim'):>6.3f} {median('psnr_clean'):>10.2f} "
-          f"{median('ssim_clean'):>10.3f} {median('cpu_s'):>6.2f} {'':>7} {median('raw_cpu_s'):>9.2f} "
-          f"{median('psnr_raw'):>8.2f} {median('gain'):>7.2f}")
+    print(
+        f"{'median':>13} {median('psnr'):>8.2f} {median('ssim'):>6.3f} {median('psnr_clean'):>10.2f} "
+        f"{median('ssim_clean'):>10.3f} {median('cpu_s'):>6.2f} {'':>7} {median('raw_cpu_s'):>9.2f} "
+        f"{median('psnr_raw'):>8.2f} {median('gain'):>7.2f}"
+    )
     worst = min(r["psnr"] for r in rows)
     worst_clean = min(r["psnr_clean"] for r in rows)
     print("\nPSNR / SSIM: scikit-image metrics on the 8-bit images; 'no-SN' = the same frame with sensor noise off.")
-    print(f"goal median PSNR >= {GOAL_MEDIAN_PSNR_DB:g} dB: {median('psnr'):.2f} dB with sensor noise "
-          f"({_verdict(median('psnr') >= GOAL_MEDIAN_PSNR_DB)}), {median('psnr_clean'):.2f} dB without "
-          f"({_verdict(median('psnr_clean') >= GOAL_MEDIAN_PSNR_DB)})")
-    print(f"goal worst seed >= {GOAL_WORST_PSNR_DB:g} dB: {worst:.2f} dB with sensor noise "
-          f"({_verdict(worst >= GOAL_WORST_PSNR_DB)}), {worst_clean:.2f} dB without "
-          f"({_verdict(worst_clean >= GOAL_WORST_PSNR_DB)})")
-    print(f"goal median SSIM >= {GOAL_MEDIAN_SSIM:g}: {median('ssim'):.3f} with sensor noise "
-          f"({_verdict(median('ssim') >= GOAL_MEDIAN_SSIM)}), {median('ssim_clean'):.3f} without "
-          f"({_verdict(median('ssim_clean') >= GOAL_MEDIAN_SSIM)})")
-    print(f"goal >= {GOAL_EQUAL_CPU_GAIN_DB:g} dB above the raw render at equal CPU time: median gain "
-          f"{median('gain'):.2f} dB, smallest {min(r['gain'] for r in rows):.2f} dB "
-          f"({_verdict(median('gain') >= GOAL_EQUAL_CPU_GAIN_DB)})")
+    print(
+        f"goal median PSNR >= {GOAL_MEDIAN_PSNR_DB:g} dB: {median('psnr'):.2f} dB with sensor noise "
+        f"({_verdict(median('psnr') >= GOAL_MEDIAN_PSNR_DB)}), {median('psnr_clean'):.2f} dB without "
+        f"({_verdict(median('psnr_clean') >= GOAL_MEDIAN_PSNR_DB)})"
+    )
+    print(
+        f"goal worst seed >= {GOAL_WORST_PSNR_DB:g} dB: {worst:.2f} dB with sensor noise "
+        f"({_verdict(worst >= GOAL_WORST_PSNR_DB)}), {worst_clean:.2f} dB without "
+        f"({_verdict(worst_clean >= GOAL_WORST_PSNR_DB)})"
+    )
+    print(
+        f"goal median SSIM >= {GOAL_MEDIAN_SSIM:g}: {median('ssim'):.3f} with sensor noise "
+        f"({_verdict(median('ssim') >= GOAL_MEDIAN_SSIM)}), {median('ssim_clean'):.3f} without "
+        f"({_verdict(median('ssim_clean') >= GOAL_MEDIAN_SSIM)})"
+    )
+    print(
+        f"goal >= {GOAL_EQUAL_CPU_GAIN_DB:g} dB above the raw render at equal CPU time: median gain "
+        f"{median('gain'):.2f} dB, smallest {min(r['gain'] for r in rows):.2f} dB "
+        f"({_verdict(median('gain') >= GOAL_EQUAL_CPU_GAIN_DB)})"
+    )
 
     if not args.skip_cpu:
         cpu_per_frame(args, [seed for seed, _ in seeds], default_render)

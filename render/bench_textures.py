@@ -47,16 +47,21 @@ def cells(maps: TextureMaps, cell_px: int) -> list[np.ndarray]:
 
     def fit(image: np.ndarray) -> np.ndarray:
         mode = "L" if image.ndim == 2 else "RGB"
-        return np.asarray(Image.fromarray(image, mode).convert("RGB").resize((cell_px, cell_px), Image.Resampling.LANCZOS))
+        return np.asarray(
+            Image.fromarray(image, mode).convert("RGB").resize((cell_px, cell_px), Image.Resampling.LANCZOS)
+        )
 
     rough = np.round(maps.roughness * 255).astype(np.uint8)
-    return [fit(maps.base_color_srgb8), fit(maps.base_color_srgb8[crop, crop]), fit(raking_light(maps, crop)),
-            fit(rough)]
+    return [
+        fit(maps.base_color_srgb8),
+        fit(maps.base_color_srgb8[crop, crop]),
+        fit(raking_light(maps, crop)),
+        fit(rough),
+    ]
 
 
 def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(prog="python -m render.bench_textures",
-                                     description=__doc__.split("\n\n")[0])
+    parser = argparse.ArgumentParser(prog="python -m render.bench_textures", description=__doc__.split("\n\n")[0])
     parser.add_argument("--sheet", type=Path, help="write the contact sheet PNG here")
     parser.add_argument("--resolution", type=int, default=512)
     parser.add_argument("--seeds", type=int, default=2)
@@ -84,8 +89,12 @@ def main(argv: list[str] | None = None) -> int:
         if args.sheet:
             row = np.concatenate(row_cells, axis=1)
             label = Image.new("RGB", (row.shape[1], LABEL_PX + 4), (255, 255, 255))
-            ImageDraw.Draw(label).text((4, 2), f"{name}  (seeds {args.first_seed}.."
-                                               f"{args.first_seed + args.seeds - 1}: full | 1:1 crop | lit | roughness)", fill=(0, 0, 0))
+            ImageDraw.Draw(label).text(
+                (4, 2),
+                f"{name}  (seeds {args.first_seed}.."
+                f"{args.first_seed + args.seeds - 1}: full | 1:1 crop | lit | roughness)",
+                fill=(0, 0, 0),
+            )
             rows.append(np.concatenate([np.asarray(label), row], axis=0))
     if args.sheet:
         Image.fromarray(np.concatenate(rows, axis=0)).save(args.sheet)

@@ -520,7 +520,7 @@ def nominal_iso_values(lo: float, hi: float) -> list[float]:
     values = []
     for exponent in range(-2, 5):
         for base in NOMINAL_ISO_DECADE:
-            value = base * 10.0 ** exponent
+            value = base * 10.0**exponent
             if lo - 1e-9 <= value <= hi + 1e-9:
                 values.append(round(value, 6))
     return values
@@ -752,19 +752,30 @@ class _Framing:
 
     def clear_of_furniture(self, xy: np.ndarray) -> np.ndarray:
         """(C,) bool: inside the wall margins and outside every footprint grown by ``OBJECT_MARGIN_M``."""
-        ok = ((xy[:, 0] >= self.margin_x) & (xy[:, 0] <= self.room_w - self.margin_x)
-              & (xy[:, 1] >= self.margin_y) & (xy[:, 1] <= self.room_d - self.margin_y))
+        ok = (
+            (xy[:, 0] >= self.margin_x)
+            & (xy[:, 0] <= self.room_w - self.margin_x)
+            & (xy[:, 1] >= self.margin_y)
+            & (xy[:, 1] <= self.room_d - self.margin_y)
+        )
         if len(self.footprints):
             f = self.footprints
-            inside = ((xy[:, None, 0] > f[None, :, 0] - OBJECT_MARGIN_M) & (xy[:, None, 0] < f[None, :, 2] + OBJECT_MARGIN_M)
-                      & (xy[:, None, 1] > f[None, :, 1] - OBJECT_MARGIN_M)
-                      & (xy[:, None, 1] < f[None, :, 3] + OBJECT_MARGIN_M)).any(axis=1)
+            inside = (
+                (xy[:, None, 0] > f[None, :, 0] - OBJECT_MARGIN_M)
+                & (xy[:, None, 0] < f[None, :, 2] + OBJECT_MARGIN_M)
+                & (xy[:, None, 1] > f[None, :, 1] - OBJECT_MARGIN_M)
+                & (xy[:, None, 1] < f[None, :, 3] + OBJECT_MARGIN_M)
+            ).any(axis=1)
             ok &= ~inside
         return ok
 
     def draw_settings(self, rng: np.random.Generator) -> tuple[float, float, float]:
         """(focal_length_mm, eye_height_m, distance_m), each uniform over its budget range (three draws)."""
-        return _uniform(rng, self.focal_range_mm), _uniform(rng, self.height_range_m), _uniform(rng, self.distance_range_m)
+        return (
+            _uniform(rng, self.focal_range_mm),
+            _uniform(rng, self.height_range_m),
+            _uniform(rng, self.distance_range_m),
+        )
 
     def candidate_views(
         self, focal_length_mm: float, height_m: float, distance_m: float, rng: np.random.Generator
@@ -783,8 +794,10 @@ class _Framing:
         steps = np.arange(_AZIMUTHS_PER_SUBJECT) * (2.0 * np.pi / _AZIMUTHS_PER_SUBJECT)
         azimuth = phase[:, None] + steps[None, :]  # (n, A)
         radius = np.sqrt(np.maximum(radius_sq, 0.0))[:, None]
-        xy = np.stack([self.centres[:, None, 0] + radius * np.cos(azimuth),
-                       self.centres[:, None, 1] + radius * np.sin(azimuth)], axis=-1).reshape(-1, 2)
+        xy = np.stack(
+            [self.centres[:, None, 0] + radius * np.cos(azimuth), self.centres[:, None, 1] + radius * np.sin(azimuth)],
+            axis=-1,
+        ).reshape(-1, 2)
         subject = np.repeat(np.arange(n), _AZIMUTHS_PER_SUBJECT)
         keep = self.clear_of_furniture(xy) & (radius_sq[subject] > 0.0)
         xy, subject = xy[keep], subject[keep]
@@ -839,8 +852,9 @@ class _Framing:
         useful = ((share >= max(self.min_visible_fraction, 1e-6)) & (side_px >= self.min_box_px) & ~hidden).any(axis=1)
         return score, useful, np.all(centre_in, axis=1)
 
-    def apart_from(self, positions: np.ndarray, directions: np.ndarray,
-                   others: Sequence[tuple[np.ndarray, np.ndarray]]) -> tuple[np.ndarray, np.ndarray]:
+    def apart_from(
+        self, positions: np.ndarray, directions: np.ndarray, others: Sequence[tuple[np.ndarray, np.ndarray]]
+    ) -> tuple[np.ndarray, np.ndarray]:
         """``(apart, spread)`` per view, each (C,), against every earlier pose.
 
         ``apart``: :func:`views_apart` (vectorized). ``spread`` in [0, 1]: how far beyond the minimums the
@@ -912,22 +926,30 @@ class _Framing:
             if useful[best] and apart[best]:
                 return self._finish(focal_length_mm, positions[best], directions[best], distance_m, shortest_mm)
             if fallback is None or rank[best] > fallback[0]:
-                fallback = (float(rank[best]), focal_length_mm, positions[best], directions[best], distance_m,
-                            shortest_mm)
+                fallback = (
+                    float(rank[best]),
+                    focal_length_mm,
+                    positions[best],
+                    directions[best],
+                    distance_m,
+                    shortest_mm,
+                )
         if fallback is None:
             raise ValueError("sample_camera: no camera position fits in the room clear of the furniture")
         return self._finish(*fallback[1:])
 
-    def _finish(self, focal_length_mm: float, position: np.ndarray, direction: np.ndarray, distance_m: float,
-                shortest_mm: float) -> tuple[float, np.ndarray, np.ndarray, float]:
+    def _finish(
+        self, focal_length_mm: float, position: np.ndarray, direction: np.ndarray, distance_m: float, shortest_mm: float
+    ) -> tuple[float, np.ndarray, np.ndarray, float]:
         if self.max_zoom_out > 1.0:
             fit_mm = self.fitting_focal_mm(position, direction)
             focal_length_mm = min(focal_length_mm, max(shortest_mm, fit_mm))
         return focal_length_mm, position, direction, distance_m
 
 
-def _slot_poses(framing: _Framing, room: dict[str, Any], objects: list[dict[str, Any]],
-                view_slot: int) -> tuple[float, np.ndarray, np.ndarray, float]:
+def _slot_poses(
+    framing: _Framing, room: dict[str, Any], objects: list[dict[str, Any]], view_slot: int
+) -> tuple[float, np.ndarray, np.ndarray, float]:
     """The pose of ``view_slot``, drawn after (and apart from) the earlier slots of its block.
 
     Slot j's pose comes from a stream keyed by the layout and j alone, so every frame of the layout
@@ -1001,8 +1023,9 @@ def sample_camera(
     on them (Devroye, *Non-Uniform Random Variate Generation*, 1986, ch. II.3, from memory). The
     framing heuristic is our own.
     """
-    if view_slot is not None and (isinstance(view_slot, bool) or not isinstance(view_slot, (int, np.integer))
-                                  or view_slot < 0):
+    if view_slot is not None and (
+        isinstance(view_slot, bool) or not isinstance(view_slot, (int, np.integer)) or view_slot < 0
+    ):
         raise ValueError(f"sample_camera: view_slot must be a non-negative integer, got {view_slot!r}")
     cam = budget["camera"]
     sensor_width_mm = float(cam["sensor_width_mm"])
@@ -1020,8 +1043,12 @@ def sample_camera(
     else:
         focal_length_mm, height_m, distance_m = framing.draw_settings(rng)
         height_m = min(height_m, framing.room_h - CEILING_CLEARANCE_M)
-        xy = np.column_stack([rng.uniform(framing.margin_x, framing.room_w - framing.margin_x, 1),
-                              rng.uniform(framing.margin_y, framing.room_d - framing.margin_y, 1)])
+        xy = np.column_stack(
+            [
+                rng.uniform(framing.margin_x, framing.room_w - framing.margin_x, 1),
+                rng.uniform(framing.margin_y, framing.room_d - framing.margin_y, 1),
+            ]
+        )
         position = np.array([xy[0, 0], xy[0, 1], height_m])
         towards = np.array([framing.room_w / 2, framing.room_d / 2, height_m * 0.8]) - position
         if np.hypot(*towards[:2]) < 0.3:

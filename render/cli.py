@@ -94,18 +94,26 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--layout-seed", type=int, help="fix the layout sub-seed")
     parser.add_argument("--lighting-seed", type=int, help="fix the lighting sub-seed")
     parser.add_argument("--camera-seed", type=int, help="fix the camera sub-seed")
-    parser.add_argument("--view-slot", type=int,
-                        help="this view's index among its layout's views: the pose is drawn apart from the "
-                             "layout's earlier slots (with --layout-seed, one layout from several sides)")
+    parser.add_argument(
+        "--view-slot",
+        type=int,
+        help="this view's index among its layout's views: the pose is drawn apart from the "
+        "layout's earlier slots (with --layout-seed, one layout from several sides)",
+    )
     parser.add_argument("--variant", choices=("scalar_rgb", "llvm_ad_rgb"), help="Mitsuba variant")
     parser.add_argument("--threads", type=int, help="render threads")
     parser.add_argument("--preview", action="store_true", help="also write preview.png with the boxes drawn")
-    parser.add_argument("--contact-sheet", type=int, metavar="COUNT",
-                        help=f"render COUNT frames (seeds --seed, --seed+1, ...; 1-{MAX_CONTACT_SHEET_FRAMES}) "
-                             "into one PNG grid; --out is then a .png path or a folder for contact_sheet.png")
+    parser.add_argument(
+        "--contact-sheet",
+        type=int,
+        metavar="COUNT",
+        help=f"render COUNT frames (seeds --seed, --seed+1, ...; 1-{MAX_CONTACT_SHEET_FRAMES}) "
+        "into one PNG grid; --out is then a .png path or a folder for contact_sheet.png",
+    )
     parser.add_argument("--columns", type=int, help="contact-sheet columns (default: ceil(sqrt(COUNT)))")
-    parser.add_argument("--boxes", action="store_true",
-                        help="contact sheet: draw accepted boxes (green) and rejected ones (red)")
+    parser.add_argument(
+        "--boxes", action="store_true", help="contact sheet: draw accepted boxes (green) and rejected ones (red)"
+    )
     return parser
 
 
@@ -156,9 +164,15 @@ def run(argv: list[str] | None = None) -> int:
     try:
         budget = _budget(args)
         composition = parse_classes(args.classes) if args.classes else default_composition()
-        spec = make_spec(budget, composition, args.seed, layout_seed=args.layout_seed,
-                         lighting_seed=args.lighting_seed, camera_seed=args.camera_seed,
-                         view_slot=args.view_slot)
+        spec = make_spec(
+            budget,
+            composition,
+            args.seed,
+            layout_seed=args.layout_seed,
+            lighting_seed=args.lighting_seed,
+            camera_seed=args.camera_seed,
+            view_slot=args.view_slot,
+        )
     except ValueError as exc:  # BudgetError, LayoutError and composition errors are ValueErrors
         raise CliError(" ".join(str(exc).split()) or type(exc).__name__) from None
     spec_s = time.perf_counter() - start
@@ -168,9 +182,11 @@ def run(argv: list[str] | None = None) -> int:
     instances = result.labels.get("instances", [])
     accepted = sum(1 for instance in instances if instance.get("accepted"))
     exposure = result.labels.get("exposure", {})
-    print(f"frame seed {args.seed}: {result.rgb.shape[1]}x{result.rgb.shape[0]}, {len(instances)} instances "
-          f"({accepted} accepted), shutter {exposure.get('shutter_s')} s, ISO {exposure.get('iso')}, "
-          f"variant {result.labels.get('variant')} -> {args.out}")
+    print(
+        f"frame seed {args.seed}: {result.rgb.shape[1]}x{result.rgb.shape[0]}, {len(instances)} instances "
+        f"({accepted} accepted), shutter {exposure.get('shutter_s')} s, ISO {exposure.get('iso')}, "
+        f"variant {result.labels.get('variant')} -> {args.out}"
+    )
     print(format_timings(result.timings_s))
     return 0
 
@@ -259,8 +275,16 @@ def tile_caption(spec: Mapping[str, Any], labels: Mapping[str, Any]) -> tuple[st
     return f"seed {spec['seed']}", light_kinds_text(spec.get("lights", [])), counts
 
 
-def draw_tile(sheet: Any, position: int, columns: int, rgb: np.ndarray, labels: Mapping[str, Any],
-              caption: tuple[str, str, str], *, boxes: bool = False) -> None:
+def draw_tile(
+    sheet: Any,
+    position: int,
+    columns: int,
+    rgb: np.ndarray,
+    labels: Mapping[str, Any],
+    caption: tuple[str, str, str],
+    *,
+    boxes: bool = False,
+) -> None:
     """Paste one frame (and its label strip) into ``sheet`` (a PIL RGB image), boxes drawn on the tile if asked.
 
     Boxes are 1-pixel outlines of the visible box, drawn without anti-aliasing so their colour is exact:
@@ -331,13 +355,23 @@ def run_contact_sheet(args: argparse.Namespace) -> int:
         width_px, height_px = int(budget["render"]["width_px"]), int(budget["render"]["height_px"])
         sheet_w, sheet_h = sheet_size_px(count, width_px, height_px, args.columns)
         if sheet_w * sheet_h > MAX_CONTACT_SHEET_MEGAPIXELS * 1_000_000:
-            raise CliError(f"the sheet would be {sheet_w}×{sheet_h} px, over {MAX_CONTACT_SHEET_MEGAPIXELS} "
-                           "megapixels; lower --contact-sheet or --width/--height")
+            raise CliError(
+                f"the sheet would be {sheet_w}×{sheet_h} px, over {MAX_CONTACT_SHEET_MEGAPIXELS} "
+                "megapixels; lower --contact-sheet or --width/--height"
+            )
         composition = parse_classes(args.classes) if args.classes else default_composition()
-        specs = [make_spec(budget, composition, args.seed + offset, layout_seed=args.layout_seed,
-                           lighting_seed=args.lighting_seed, camera_seed=args.camera_seed,
-                           view_slot=None if args.view_slot is None else args.view_slot + offset)
-                 for offset in range(count)]
+        specs = [
+            make_spec(
+                budget,
+                composition,
+                args.seed + offset,
+                layout_seed=args.layout_seed,
+                lighting_seed=args.lighting_seed,
+                camera_seed=args.camera_seed,
+                view_slot=None if args.view_slot is None else args.view_slot + offset,
+            )
+            for offset in range(count)
+        ]
     except CliError:
         raise
     except ValueError as exc:  # BudgetError, LayoutError and composition errors are ValueErrors
@@ -355,15 +389,20 @@ def run_contact_sheet(args: argparse.Namespace) -> int:
         instances = result.labels.get("instances", [])
         accepted_total += sum(1 for item in instances if item.get("accepted"))
         instances_total += len(instances)
-        print(f"frame {position + 1}/{count} seed {spec['seed']}: {caption[2]}, lights {caption[1]}, "
-              f"{time.perf_counter() - frame_start:.2f} s", flush=True)
+        print(
+            f"frame {position + 1}/{count} seed {spec['seed']}: {caption[2]}, lights {caption[1]}, "
+            f"{time.perf_counter() - frame_start:.2f} s",
+            flush=True,
+        )
     try:
         _write_sheet(sheet, target)
     except OSError as exc:
         print(f"error: could not write {target}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_WRITE_FAILED
-    print(f"contact sheet: {count} frames ({columns}×{rows}, {width_px}×{height_px} px each), "
-          f"{accepted_total}/{instances_total} instances accepted, {time.perf_counter() - start:.1f} s -> {target}")
+    print(
+        f"contact sheet: {count} frames ({columns}×{rows}, {width_px}×{height_px} px each), "
+        f"{accepted_total}/{instances_total} instances accepted, {time.perf_counter() - start:.1f} s -> {target}"
+    )
     return 0
 
 

@@ -73,8 +73,10 @@ def _declare(lib: ctypes.CDLL) -> None:
         "oidnGetDeviceError": ([c_void_p, ctypes.POINTER(c_char_p)], ctypes.c_int),
         "oidnReleaseDevice": ([c_void_p], None),
         "oidnNewFilter": ([c_void_p, c_char_p], c_void_p),
-        "oidnSetSharedFilterImage": ([c_void_p, c_char_p, c_void_p, ctypes.c_int, c_size_t, c_size_t,
-                                      c_size_t, c_size_t, c_size_t], None),
+        "oidnSetSharedFilterImage": (
+            [c_void_p, c_char_p, c_void_p, ctypes.c_int, c_size_t, c_size_t, c_size_t, c_size_t, c_size_t],
+            None,
+        ),
         "oidnSetFilter1b": ([c_void_p, c_char_p, ctypes.c_bool], None),
         "oidnCommitFilter": ([c_void_p], None),
         "oidnExecuteFilter": ([c_void_p], None),
@@ -157,8 +159,14 @@ def _image(array: np.ndarray | None, shape: tuple[int, ...], name: str) -> np.nd
     return image
 
 
-def denoise(color_rgb: np.ndarray, *, albedo_rgb: np.ndarray | None = None, normal_xyz: np.ndarray | None = None,
-            hdr: bool = True, threads: int | None = None) -> np.ndarray:
+def denoise(
+    color_rgb: np.ndarray,
+    *,
+    albedo_rgb: np.ndarray | None = None,
+    normal_xyz: np.ndarray | None = None,
+    hdr: bool = True,
+    threads: int | None = None,
+) -> np.ndarray:
     """Denoise a linear (H, W, 3) image; returns a new float32 array of the same shape.
 
     Parameters
@@ -192,8 +200,9 @@ def denoise(color_rgb: np.ndarray, *, albedo_rgb: np.ndarray | None = None, norm
         try:
             for name, image in (("color", color), ("albedo", albedo), ("normal", normal), ("output", output)):
                 if image is not None:
-                    lib.oidnSetSharedFilterImage(handle, name.encode(), image.ctypes.data, _FORMAT_FLOAT3,
-                                                 width, height, 0, 0, 0)
+                    lib.oidnSetSharedFilterImage(
+                        handle, name.encode(), image.ctypes.data, _FORMAT_FLOAT3, width, height, 0, 0, 0
+                    )
             lib.oidnSetFilter1b(handle, b"hdr", bool(hdr))
             lib.oidnCommitFilter(handle)
             _check(lib, device, "filter set-up")

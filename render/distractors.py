@@ -76,65 +76,144 @@ _LAMP = {
 }
 
 KINDS: dict[str, DistractorKind] = {
-    "rug": DistractorKind("rug", "rug", 1.2, {
-        "length_m": R(1.20, 3.00, "rugs 120 × 170 cm to 200 × 300 cm (from memory)"),
-        "width_m": R(0.80, 2.00, "rugs 80 cm to 2 m wide (from memory)"),
-        "thickness_m": R(0.006, 0.02, "flat weaves 6 mm to deep pile 20 mm (from memory)"),
-    }, {"pile": ("rug",)}, max_per_room=1),
-    "box": DistractorKind("box", "floor", 1.5, {
-        "width_m": R(0.30, 0.60, "storage boxes and crates 30–60 cm (from memory)"),
-        "depth_m": R(0.25, 0.45, "storage boxes 25–45 cm deep (from memory)"),
-        "height_m": R(0.15, 0.45, "storage boxes 15–45 cm tall (from memory)"),
-        "lid_height_m": R(0.02, 0.06, "lids 2–6 cm (common practice)"),
-    }, {"body": ("cardboard", "cardboard", "painted", "wood", "plastic")}),
-    "floor_vase": DistractorKind("floor_vase", "floor", 0.8, {
-        "height_m": R(0.40, 0.80, "floor vases 40–80 cm tall (from memory)"),
-        "diameter_m": R(0.18, 0.35, "floor vases 18–35 cm across (from memory)"),
-    }, {"body": ("ceramic", "terracotta", "concrete", "ceramic")}),
-    "floor_cushion": DistractorKind("floor_cushion", "floor", 0.6, {
-        "side_m": R(0.45, 0.70, "floor cushions 45–70 cm square (from memory)"),
-        "thickness_m": R(0.08, 0.18, "floor cushions 8–18 cm thick (from memory)"),
-    }, {"cover": ("fabric", "fabric", "leather")}),
-    "book_stack": DistractorKind("book_stack", "surface", 3.0, _BOOK,
-                                 {"cover_0": ("book",), "cover_1": ("book",), "cover_2": ("book",),
-                                  "cover_3": ("book",), "pages": ("page_edges",)}),
-    "vase": DistractorKind("vase", "surface", 2.0, {
-        "height_m": R(0.15, 0.45, "table vases 15–45 cm tall (from memory)"),
-        "diameter_m": R(0.08, 0.22, "table vases 8–22 cm across (from memory)"),
-    }, {"body": ("ceramic", "ceramic", "terracotta", "metal")}),
-    "bowl": DistractorKind("bowl", "surface", 1.5, {
-        "diameter_m": R(0.14, 0.34, "cereal bowls 14 cm to fruit bowls 34 cm (from memory)"),
-        "height_m": R(0.05, 0.12, "bowls 5–12 cm deep (from memory)"),
-    }, {"body": ("ceramic", "ceramic", "wood", "metal")}),
-    "small_box": DistractorKind("small_box", "surface", 1.0, {
-        "width_m": R(0.08, 0.30, "trinket, tissue and shoe boxes 8–30 cm (from memory)"),
-        "depth_m": R(0.06, 0.22, "8–22 cm deep (from memory)"),
-        "height_m": R(0.04, 0.15, "4–15 cm tall (from memory)"),
-        "lid_height_m": R(0.01, 0.03, "lids 1–3 cm (common practice)"),
-    }, {"body": ("wood", "painted", "leather", "cardboard")}),
-    "table_lamp": DistractorKind("table_lamp", "surface", 1.5, _LAMP,
-                                 {"base": ("ceramic", "metal", "wood", "painted"), "shade": ("lampshade",)},
-                                 max_per_room=2),
-    "cushion": DistractorKind("cushion", "seat", 2.5, {
-        "side_m": R(0.30, 0.50, "throw pillows 30 × 30 to 50 × 50 cm (from memory)"),
-        "thickness_m": R(0.10, 0.18, "filled throw pillows 10–18 cm thick (from memory)"),
-        "lean_deg": R(8.0, 20.0, "leaning back against the sofa back (common practice)"),
-    }, {"cover": ("fabric", "fabric", "leather")}),
-    "picture_frame": DistractorKind("picture_frame", "wall", 3.0, {
-        "width_m": R(0.20, 1.00, "prints and photos 20 cm to 1 m wide (from memory)"),
-        "height_m": R(0.20, 0.80, "20–80 cm tall (from memory)"),
-        "depth_m": R(0.015, 0.04, "frame mouldings 1.5–4 cm deep (from memory)"),
-        "border_m": R(0.015, 0.06, "mouldings 1.5–6 cm wide (from memory)"),
-        "mat_m": R(0.02, 0.08, "mat (passe-partout) borders 2–8 cm (from memory)"),
-        "centre_height_m": R(1.40, 1.65, "hung with the centre near eye level, about 1.45–1.55 m (common practice)"),
-    }, {"frame": ("wood", "painted", "metal"), "mat": ("page_edges",), "picture": ("artwork",)}),
-    "mirror": DistractorKind("mirror", "wall", 0.8, {
-        "width_m": R(0.40, 0.90, "wall mirrors 40–90 cm wide (from memory)"),
-        "height_m": R(0.50, 1.20, "50 cm to 1.2 m tall (from memory)"),
-        "depth_m": R(0.02, 0.04, "2–4 cm deep with the frame (from memory)"),
-        "border_m": R(0.02, 0.07, "frames 2–7 cm wide (from memory)"),
-        "centre_height_m": R(1.35, 1.60, "centre near eye level (common practice)"),
-    }, {"frame": ("wood", "painted", "metal"), "glass": ("mirror",)}, max_per_room=1),
+    "rug": DistractorKind(
+        "rug",
+        "rug",
+        1.2,
+        {
+            "length_m": R(1.20, 3.00, "rugs 120 × 170 cm to 200 × 300 cm (from memory)"),
+            "width_m": R(0.80, 2.00, "rugs 80 cm to 2 m wide (from memory)"),
+            "thickness_m": R(0.006, 0.02, "flat weaves 6 mm to deep pile 20 mm (from memory)"),
+        },
+        {"pile": ("rug",)},
+        max_per_room=1,
+    ),
+    "box": DistractorKind(
+        "box",
+        "floor",
+        1.5,
+        {
+            "width_m": R(0.30, 0.60, "storage boxes and crates 30–60 cm (from memory)"),
+            "depth_m": R(0.25, 0.45, "storage boxes 25–45 cm deep (from memory)"),
+            "height_m": R(0.15, 0.45, "storage boxes 15–45 cm tall (from memory)"),
+            "lid_height_m": R(0.02, 0.06, "lids 2–6 cm (common practice)"),
+        },
+        {"body": ("cardboard", "cardboard", "painted", "wood", "plastic")},
+    ),
+    "floor_vase": DistractorKind(
+        "floor_vase",
+        "floor",
+        0.8,
+        {
+            "height_m": R(0.40, 0.80, "floor vases 40–80 cm tall (from memory)"),
+            "diameter_m": R(0.18, 0.35, "floor vases 18–35 cm across (from memory)"),
+        },
+        {"body": ("ceramic", "terracotta", "concrete", "ceramic")},
+    ),
+    "floor_cushion": DistractorKind(
+        "floor_cushion",
+        "floor",
+        0.6,
+        {
+            "side_m": R(0.45, 0.70, "floor cushions 45–70 cm square (from memory)"),
+            "thickness_m": R(0.08, 0.18, "floor cushions 8–18 cm thick (from memory)"),
+        },
+        {"cover": ("fabric", "fabric", "leather")},
+    ),
+    "book_stack": DistractorKind(
+        "book_stack",
+        "surface",
+        3.0,
+        _BOOK,
+        {
+            "cover_0": ("book",),
+            "cover_1": ("book",),
+            "cover_2": ("book",),
+            "cover_3": ("book",),
+            "pages": ("page_edges",),
+        },
+    ),
+    "vase": DistractorKind(
+        "vase",
+        "surface",
+        2.0,
+        {
+            "height_m": R(0.15, 0.45, "table vases 15–45 cm tall (from memory)"),
+            "diameter_m": R(0.08, 0.22, "table vases 8–22 cm across (from memory)"),
+        },
+        {"body": ("ceramic", "ceramic", "terracotta", "metal")},
+    ),
+    "bowl": DistractorKind(
+        "bowl",
+        "surface",
+        1.5,
+        {
+            "diameter_m": R(0.14, 0.34, "cereal bowls 14 cm to fruit bowls 34 cm (from memory)"),
+            "height_m": R(0.05, 0.12, "bowls 5–12 cm deep (from memory)"),
+        },
+        {"body": ("ceramic", "ceramic", "wood", "metal")},
+    ),
+    "small_box": DistractorKind(
+        "small_box",
+        "surface",
+        1.0,
+        {
+            "width_m": R(0.08, 0.30, "trinket, tissue and shoe boxes 8–30 cm (from memory)"),
+            "depth_m": R(0.06, 0.22, "8–22 cm deep (from memory)"),
+            "height_m": R(0.04, 0.15, "4–15 cm tall (from memory)"),
+            "lid_height_m": R(0.01, 0.03, "lids 1–3 cm (common practice)"),
+        },
+        {"body": ("wood", "painted", "leather", "cardboard")},
+    ),
+    "table_lamp": DistractorKind(
+        "table_lamp",
+        "surface",
+        1.5,
+        _LAMP,
+        {"base": ("ceramic", "metal", "wood", "painted"), "shade": ("lampshade",)},
+        max_per_room=2,
+    ),
+    "cushion": DistractorKind(
+        "cushion",
+        "seat",
+        2.5,
+        {
+            "side_m": R(0.30, 0.50, "throw pillows 30 × 30 to 50 × 50 cm (from memory)"),
+            "thickness_m": R(0.10, 0.18, "filled throw pillows 10–18 cm thick (from memory)"),
+            "lean_deg": R(8.0, 20.0, "leaning back against the sofa back (common practice)"),
+        },
+        {"cover": ("fabric", "fabric", "leather")},
+    ),
+    "picture_frame": DistractorKind(
+        "picture_frame",
+        "wall",
+        3.0,
+        {
+            "width_m": R(0.20, 1.00, "prints and photos 20 cm to 1 m wide (from memory)"),
+            "height_m": R(0.20, 0.80, "20–80 cm tall (from memory)"),
+            "depth_m": R(0.015, 0.04, "frame mouldings 1.5–4 cm deep (from memory)"),
+            "border_m": R(0.015, 0.06, "mouldings 1.5–6 cm wide (from memory)"),
+            "mat_m": R(0.02, 0.08, "mat (passe-partout) borders 2–8 cm (from memory)"),
+            "centre_height_m": R(
+                1.40, 1.65, "hung with the centre near eye level, about 1.45–1.55 m (common practice)"
+            ),
+        },
+        {"frame": ("wood", "painted", "metal"), "mat": ("page_edges",), "picture": ("artwork",)},
+    ),
+    "mirror": DistractorKind(
+        "mirror",
+        "wall",
+        0.8,
+        {
+            "width_m": R(0.40, 0.90, "wall mirrors 40–90 cm wide (from memory)"),
+            "height_m": R(0.50, 1.20, "50 cm to 1.2 m tall (from memory)"),
+            "depth_m": R(0.02, 0.04, "2–4 cm deep with the frame (from memory)"),
+            "border_m": R(0.02, 0.07, "frames 2–7 cm wide (from memory)"),
+            "centre_height_m": R(1.35, 1.60, "centre near eye level (common practice)"),
+        },
+        {"frame": ("wood", "painted", "metal"), "glass": ("mirror",)},
+        max_per_room=1,
+    ),
 }
 
 # Probabilities (common practice in furnished rooms): half the storage boxes and floor vases stand
@@ -165,6 +244,7 @@ def _draw(rng: np.random.Generator, kind: str, name: str) -> float:
 # Sampling: kind, size, materials
 # ---------------------------------------------------------------------------
 
+
 def _rotated_extent(w: float, d: float, yaw_deg: float) -> tuple[float, float]:
     c, s = abs(math.cos(math.radians(yaw_deg))), abs(math.sin(math.radians(yaw_deg)))
     return c * w + s * d, s * w + c * d
@@ -175,7 +255,11 @@ def _sample_params(kind: str, rng: np.random.Generator) -> tuple[dict[str, Any],
     p: dict[str, Any] = {}
     if kind == "rug":
         length, width = _draw(rng, kind, "length_m"), _draw(rng, kind, "width_m")
-        p = {"length_m": max(length, width), "width_m": min(length, width), "thickness_m": _draw(rng, kind, "thickness_m")}
+        p = {
+            "length_m": max(length, width),
+            "width_m": min(length, width),
+            "thickness_m": _draw(rng, kind, "thickness_m"),
+        }
         return p, [p["length_m"], p["width_m"], p["thickness_m"]]
     if kind in ("box", "small_box"):
         p = {n: _draw(rng, kind, n) for n in ("width_m", "depth_m", "height_m", "lid_height_m")}
@@ -183,8 +267,11 @@ def _sample_params(kind: str, rng: np.random.Generator) -> tuple[dict[str, Any],
             p["lid_height_m"] = 0.0
         return p, [p["width_m"], p["depth_m"], p["height_m"]]
     if kind in ("vase", "floor_vase"):
-        p = {"height_m": _draw(rng, kind, "height_m"), "diameter_m": _draw(rng, kind, "diameter_m"),
-             "shape": float(rng.integers(4))}  # cylinder, bulb, bottle, flared
+        p = {
+            "height_m": _draw(rng, kind, "height_m"),
+            "diameter_m": _draw(rng, kind, "diameter_m"),
+            "shape": float(rng.integers(4)),
+        }  # cylinder, bulb, bottle, flared
         return p, [p["diameter_m"], p["diameter_m"], p["height_m"]]
     if kind == "bowl":
         p = {"diameter_m": _draw(rng, kind, "diameter_m"), "height_m": _draw(rng, kind, "height_m")}
@@ -200,8 +287,14 @@ def _sample_params(kind: str, rng: np.random.Generator) -> tuple[dict[str, Any],
         count = int(rng.integers(int(_BOOK["count"].low), int(_BOOK["count"].high) + 1))
         books = []
         for _ in range(count):
-            books.append([_draw(rng, kind, "width_m"), _draw(rng, kind, "length_m"), _draw(rng, kind, "thickness_m"),
-                          round(float(rng.uniform(-BOOK_YAW_JITTER_DEG, BOOK_YAW_JITTER_DEG)), 6)])
+            books.append(
+                [
+                    _draw(rng, kind, "width_m"),
+                    _draw(rng, kind, "length_m"),
+                    _draw(rng, kind, "thickness_m"),
+                    round(float(rng.uniform(-BOOK_YAW_JITTER_DEG, BOOK_YAW_JITTER_DEG)), 6),
+                ]
+            )
         books.sort(key=lambda b: -b[0] * b[1])  # the largest book at the bottom, as stacks are made
         books[0][3] = 0.0
         extents = [_rotated_extent(b[0], b[1], b[3]) for b in books]
@@ -220,8 +313,9 @@ def _sample_params(kind: str, rng: np.random.Generator) -> tuple[dict[str, Any],
         p["border_m"] = round(min(p["border_m"], 0.15 * min(p["width_m"], p["height_m"])), 6)
         if kind == "picture_frame":
             mat = _draw(rng, kind, "mat_m")
-            p["mat_m"] = round(min(mat, 0.15 * min(p["width_m"], p["height_m"])), 6) \
-                if rng.random() < MAT_PROBABILITY else 0.0
+            p["mat_m"] = (
+                round(min(mat, 0.15 * min(p["width_m"], p["height_m"])), 6) if rng.random() < MAT_PROBABILITY else 0.0
+            )
         return p, [p["width_m"], p["depth_m"], p["height_m"]]
     raise ValueError(f"unknown distractor kind {kind!r} (known: {', '.join(KINDS)})")
 
@@ -236,15 +330,23 @@ def sample_distractor(kind: str, rng: np.random.Generator) -> dict[str, Any]:
         slots["pages"] = ("page_edges",)
     if kind == "picture_frame" and not params["mat_m"]:
         slots.pop("mat")
-    materials = {slot: assets.sample_material(families[int(rng.integers(len(families)))], rng)
-                 for slot, families in slots.items()}
-    return {"kind": kind, "anchor": spec.anchor, "size_m": [round(float(v), 6) for v in size], "params": params,
-            "materials": materials}
+    materials = {
+        slot: assets.sample_material(families[int(rng.integers(len(families)))], rng)
+        for slot, families in slots.items()
+    }
+    return {
+        "kind": kind,
+        "anchor": spec.anchor,
+        "size_m": [round(float(v), 6) for v in size],
+        "params": params,
+        "materials": materials,
+    }
 
 
 # ---------------------------------------------------------------------------
 # Placement
 # ---------------------------------------------------------------------------
+
 
 def _yaw_matrix(yaw_deg: float) -> np.ndarray:
     c, s = math.cos(math.radians(yaw_deg)), math.sin(math.radians(yaw_deg))
@@ -256,20 +358,28 @@ def _rect(cx: float, cy: float, w: float, d: float, yaw_deg: float) -> Polygon:
     return Polygon(local @ _yaw_matrix(yaw_deg).T + [cx, cy])
 
 
-def _place_rug(item: dict[str, Any], room: dict[str, Any], objects: list[dict[str, Any]],
-               rng: np.random.Generator) -> dict[str, Any] | None:
+def _place_rug(
+    item: dict[str, Any], room: dict[str, Any], objects: list[dict[str, Any]], rng: np.random.Generator
+) -> dict[str, Any] | None:
     """Centre a rug under or in front of a sofa, table, bed or armchair (aligned with it), else anywhere."""
     length, width = item["size_m"][0], item["size_m"][1]
     ranges = KINDS["rug"].ranges
-    inner = Polygon([(RUG_WALL_GAP_M, RUG_WALL_GAP_M), (room["width_m"] - RUG_WALL_GAP_M, RUG_WALL_GAP_M),
-                     (room["width_m"] - RUG_WALL_GAP_M, room["depth_m"] - RUG_WALL_GAP_M),
-                     (RUG_WALL_GAP_M, room["depth_m"] - RUG_WALL_GAP_M)])
+    inner = Polygon(
+        [
+            (RUG_WALL_GAP_M, RUG_WALL_GAP_M),
+            (room["width_m"] - RUG_WALL_GAP_M, RUG_WALL_GAP_M),
+            (room["width_m"] - RUG_WALL_GAP_M, room["depth_m"] - RUG_WALL_GAP_M),
+            (RUG_WALL_GAP_M, room["depth_m"] - RUG_WALL_GAP_M),
+        ]
+    )
     hosts = [obj for obj in objects if obj["class_name"] in RUG_HOST_CLASSES and obj.get("anchor") != "surface"]
     # A living room's rug lies under the coffee table or in front of the sofa (common practice); the other
     # hosts only when there is neither.
     hosts = [obj for obj in hosts if obj["class_name"] in RUG_PREFERRED_HOSTS] or hosts
     for attempt in range(RUG_TRIES):
-        scale = 0.93 ** (attempt // 4)  # a rug too large for its spot shrinks (to the smallest size) rather than vanishes
+        scale = 0.93 ** (
+            attempt // 4
+        )  # a rug too large for its spot shrinks (to the smallest size) rather than vanishes
         w, d = max(length * scale, ranges["length_m"].low), max(width * scale, ranges["width_m"].low)
         if hosts and attempt < RUG_TRIES - 4:
             host = hosts[int(rng.integers(len(hosts)))]
@@ -287,9 +397,13 @@ def _place_rug(item: dict[str, Any], room: dict[str, Any], objects: list[dict[st
             yaw = 90.0 * int(rng.integers(2))
         polygon = _rect(cx, cy, w, d, yaw)
         if inner.contains(polygon):
-            return {"position_m": [round(float(cx), 6), round(float(cy), 6), 0.0], "yaw_deg": round(yaw % 360.0, 6),
-                    "anchor": "rug", "size_m": [round(w, 6), round(d, 6), item["size_m"][2]],
-                    "params": {**item["params"], "length_m": round(w, 6), "width_m": round(d, 6)}}
+            return {
+                "position_m": [round(float(cx), 6), round(float(cy), 6), 0.0],
+                "yaw_deg": round(yaw % 360.0, 6),
+                "anchor": "rug",
+                "size_m": [round(w, 6), round(d, 6), item["size_m"][2]],
+                "params": {**item["params"], "length_m": round(w, 6), "width_m": round(d, 6)},
+            }
     return None
 
 
@@ -299,8 +413,12 @@ def _cushion_size(p: dict[str, Any]) -> list[float]:
     return [round(s, 6), round(t * math.cos(lean) + s * math.sin(lean), 6), round(s * math.cos(lean), 6)]
 
 
-def _place_on_seat(item: dict[str, Any], objects: list[dict[str, Any]], taken: dict[int, list[tuple[float, float]]],
-                   rng: np.random.Generator) -> dict[str, Any] | None:
+def _place_on_seat(
+    item: dict[str, Any],
+    objects: list[dict[str, Any]],
+    taken: dict[int, list[tuple[float, float]]],
+    rng: np.random.Generator,
+) -> dict[str, Any] | None:
     """Stand a cushion on a sofa or armchair seat, its back against the back cushions, beside the others.
 
     A pillow taller than the back of its seat is made smaller (down to the smallest size of its
@@ -333,24 +451,32 @@ def _place_on_seat(item: dict[str, Any], objects: list[dict[str, Any]], taken: d
         local = np.array([x, back + d / 2 + 0.005])
         cx, cy = np.asarray(host["position_m"][:2], dtype=float) + _yaw_matrix(host["yaw_deg"]) @ local
         z = float(host["position_m"][2]) + area["height_m"]
-        return {"position_m": [round(float(cx), 6), round(float(cy), 6), round(z, 6)],
-                "yaw_deg": round(float(host["yaw_deg"]), 6), "anchor": "seat",
-                "support_instance_id": int(host["instance_id"]), "size_m": _cushion_size(params), "params": params}
+        return {
+            "position_m": [round(float(cx), 6), round(float(cy), 6), round(z, 6)],
+            "yaw_deg": round(float(host["yaw_deg"]), 6),
+            "anchor": "seat",
+            "support_instance_id": int(host["instance_id"]),
+            "size_m": _cushion_size(params),
+            "params": params,
+        }
     return None
 
 
 def _feasible_anchors(objects: list[dict[str, Any]]) -> set[str]:
     anchors = {"rug", "floor", "wall"}
-    if any(obj.get("support_surfaces") and obj.get("anchor") != "surface" and obj.get("placement") != "wall"
-           for obj in objects):
+    if any(
+        obj.get("support_surfaces") and obj.get("anchor") != "surface" and obj.get("placement") != "wall"
+        for obj in objects
+    ):
         anchors.add("surface")
     if any(assets.seat_area(obj) for obj in objects):
         anchors.add("seat")
     return anchors
 
 
-def sample_distractors(room: dict[str, Any], objects: list[dict[str, Any]], appearance: dict[str, Any],
-                       rng: np.random.Generator) -> list[dict[str, Any]]:
+def sample_distractors(
+    room: dict[str, Any], objects: list[dict[str, Any]], appearance: dict[str, Any], rng: np.random.Generator
+) -> list[dict[str, Any]]:
     """Draw and place the frame's distractors among the placed ``objects`` (which do not move).
 
     Parameters
@@ -381,8 +507,11 @@ def sample_distractors(room: dict[str, Any], objects: list[dict[str, Any]], appe
     drawn_counts: Counter[str] = Counter()
     drawn: list[dict[str, Any]] = []
     for _ in range(count):
-        kinds = [k for k in KINDS.values() if k.anchor in anchors
-                 and (k.max_per_room is None or drawn_counts[k.name] < k.max_per_room)]
+        kinds = [
+            k
+            for k in KINDS.values()
+            if k.anchor in anchors and (k.max_per_room is None or drawn_counts[k.name] < k.max_per_room)
+        ]
         weights = np.array([k.weight for k in kinds])
         kind = kinds[int(rng.choice(len(kinds), p=weights / weights.sum()))].name
         drawn_counts[kind] += 1
@@ -411,12 +540,24 @@ def sample_distractors(room: dict[str, Any], objects: list[dict[str, Any]], appe
             where = _place_rug(item, room, objects, rng)
             if where is not None:
                 item = {**item, "size_m": where.pop("size_m"), "params": where.pop("params")}
-                rugs.append((_rect(where["position_m"][0], where["position_m"][1], item["size_m"][0],
-                                   item["size_m"][1], where["yaw_deg"]), item["size_m"][2]))
+                rugs.append(
+                    (
+                        _rect(
+                            where["position_m"][0],
+                            where["position_m"][1],
+                            item["size_m"][0],
+                            item["size_m"][1],
+                            where["yaw_deg"],
+                        ),
+                        item["size_m"][2],
+                    )
+                )
         elif anchor == "floor":
-            where = placer.floor({"footprint_m": [w, d], "height_m": h},
-                                 against_wall_probability=AGAINST_WALL_PROBABILITY.get(item["kind"], 0.0),
-                                 accept=on_the_floor_or_a_rug)
+            where = placer.floor(
+                {"footprint_m": [w, d], "height_m": h},
+                against_wall_probability=AGAINST_WALL_PROBABILITY.get(item["kind"], 0.0),
+                accept=on_the_floor_or_a_rug,
+            )
         elif anchor == "surface":
             where = placer.surface({"footprint_m": [w, d], "height_m": h})
         elif anchor == "seat":
@@ -452,11 +593,14 @@ def footprint_polygon(distractor: dict[str, Any]) -> Polygon:
     w, d, _ = (float(v) for v in distractor["size_m"])
     y0, y1 = (0.0, d) if distractor["anchor"] == "wall" else (-d / 2, d / 2)
     local = np.array([[-w / 2, y0], [w / 2, y0], [w / 2, y1], [-w / 2, y1]])
-    return Polygon(local @ _yaw_matrix(float(distractor["yaw_deg"])).T + np.asarray(distractor["position_m"][:2], float))
+    return Polygon(
+        local @ _yaw_matrix(float(distractor["yaw_deg"])).T + np.asarray(distractor["position_m"][:2], float)
+    )
 
 
-def clear_of_camera_and_lights(distractors: list[dict[str, Any]], camera: dict[str, Any],
-                               lights: list[dict[str, Any]]) -> list[dict[str, Any]]:
+def clear_of_camera_and_lights(
+    distractors: list[dict[str, Any]], camera: dict[str, Any], lights: list[dict[str, Any]]
+) -> list[dict[str, Any]]:
     """The distractors that stand at least :data:`CAMERA_CLEARANCE_M` from the camera and hold no lamp bulb.
 
     The camera and the lights are sampled from the labelled objects alone, so a distractor may stand
@@ -469,8 +613,10 @@ def clear_of_camera_and_lights(distractors: list[dict[str, Any]], camera: dict[s
     kept = []
     for distractor in distractors:
         lo, hi = distractor_bounds_m(distractor)
-        if distractor["anchor"] != "wall" and \
-                np.linalg.norm(np.maximum(np.maximum(lo - eye, eye - hi), 0.0)) < CAMERA_CLEARANCE_M:
+        if (
+            distractor["anchor"] != "wall"
+            and np.linalg.norm(np.maximum(np.maximum(lo - eye, eye - hi), 0.0)) < CAMERA_CLEARANCE_M
+        ):
             continue
         if any(np.all(bulb > lo - LIGHT_CLEARANCE_M) and np.all(bulb < hi + LIGHT_CLEARANCE_M) for bulb in bulbs):
             continue
@@ -520,8 +666,7 @@ def _vase_profile(p: dict[str, Any]) -> list[tuple[float, float]]:
     elif shape == 1:  # bulb
         outer = [(0.6 * r, 0.0), (r, 0.35 * h), (0.9 * r, 0.6 * h), (0.45 * r, 0.85 * h), (0.5 * r, h)]
     elif shape == 2:  # bottle
-        outer = [(0.85 * r, 0.0), (r, 0.1 * h), (r, 0.55 * h), (0.35 * r, 0.75 * h), (0.25 * r, 0.9 * h),
-                 (0.3 * r, h)]
+        outer = [(0.85 * r, 0.0), (r, 0.1 * h), (r, 0.55 * h), (0.35 * r, 0.75 * h), (0.25 * r, 0.9 * h), (0.3 * r, h)]
     else:  # flared
         outer = [(0.5 * r, 0.0), (0.45 * r, 0.2 * h), (0.55 * r, 0.6 * h), (r, h)]
     rim = outer[-1][0]
@@ -540,9 +685,12 @@ def _bowl_profile(p: dict[str, Any]) -> list[tuple[float, float]]:
 
 def _frame_ring(w: float, h: float, depth: float, border: float) -> list[trimesh.Trimesh]:
     hw = w / 2
-    return [assets.box_mesh(-hw, hw, 0.0, depth, 0.0, border), assets.box_mesh(-hw, hw, 0.0, depth, h - border, h),
-            assets.box_mesh(-hw, -hw + border, 0.0, depth, border, h - border),
-            assets.box_mesh(hw - border, hw, 0.0, depth, border, h - border)]
+    return [
+        assets.box_mesh(-hw, hw, 0.0, depth, 0.0, border),
+        assets.box_mesh(-hw, hw, 0.0, depth, h - border, h),
+        assets.box_mesh(-hw, -hw + border, 0.0, depth, border, h - border),
+        assets.box_mesh(hw - border, hw, 0.0, depth, border, h - border),
+    ]
 
 
 def picture_rect_m(p: dict[str, Any]) -> tuple[float, float, float, float]:
@@ -560,16 +708,22 @@ def _build(kind: str, p: dict[str, Any]) -> PartList:
         if lid <= 0:
             return [("body", assets.box_mesh(-hw, hw, -hd, hd, 0.0, h))]
         inset = 0.003  # the lid overhangs the box by a few millimetres
-        return [("body", assets.box_mesh(-hw + inset, hw - inset, -hd + inset, hd - inset, 0.0, h - lid)),
-                ("body", assets.box_mesh(-hw, hw, -hd, hd, h - lid, h))]
+        return [
+            ("body", assets.box_mesh(-hw + inset, hw - inset, -hd + inset, hd - inset, 0.0, h - lid)),
+            ("body", assets.box_mesh(-hw, hw, -hd, hd, h - lid, h)),
+        ]
     if kind in ("vase", "floor_vase"):
         return [("body", assets.lathe_mesh(_vase_profile(p)))]
     if kind == "bowl":
         return [("body", assets.lathe_mesh(_bowl_profile(p), sections=assets.SECTIONS_FINE))]
     if kind == "floor_cushion":
         s, t = p["side_m"], p["thickness_m"]
-        return [("cover", assets.cushion_mesh(-s / 2, s / 2, -s / 2, s / 2, 0.0, t, corner_m=0.08,
-                                              bevel_m=min(0.04, t / 3)))]
+        return [
+            (
+                "cover",
+                assets.cushion_mesh(-s / 2, s / 2, -s / 2, s / 2, 0.0, t, corner_m=0.08, bevel_m=min(0.04, t / 3)),
+            )
+        ]
     if kind == "cushion":
         s, t, lean = p["side_m"], p["thickness_m"], math.radians(p["lean_deg"])
         depth = t * math.cos(lean) + s * math.sin(lean)
@@ -587,13 +741,33 @@ def _build(kind: str, p: dict[str, Any]) -> PartList:
         shade_bottom = h - sh
         parts: PartList = []
         if int(p["body"]) == 0:
-            parts.append(("base", assets.lathe_mesh([(0.0, 0.0), (br, 0.0), (br, 0.015), (br * 0.7, 0.025),
-                                                     (0.0, 0.025)], sections=assets.SECTIONS_FINE)))
+            parts.append(
+                (
+                    "base",
+                    assets.lathe_mesh(
+                        [(0.0, 0.0), (br, 0.0), (br, 0.015), (br * 0.7, 0.025), (0.0, 0.025)],
+                        sections=assets.SECTIONS_FINE,
+                    ),
+                )
+            )
             parts.append(("base", assets.cylinder_mesh(0.0, 0.0, 0.025, h - 0.4 * sh, 0.01)))
         else:
             jar = max(0.05, 0.8 * shade_bottom)
-            parts.append(("base", assets.lathe_mesh([(0.0, 0.0), (0.7 * br, 0.0), (br, 0.35 * jar), (0.85 * br, 0.8 * jar),
-                                                     (0.35 * br, jar), (0.0, jar)])))
+            parts.append(
+                (
+                    "base",
+                    assets.lathe_mesh(
+                        [
+                            (0.0, 0.0),
+                            (0.7 * br, 0.0),
+                            (br, 0.35 * jar),
+                            (0.85 * br, 0.8 * jar),
+                            (0.35 * br, jar),
+                            (0.0, jar),
+                        ]
+                    ),
+                )
+            )
             parts.append(("base", assets.cylinder_mesh(0.0, 0.0, jar - 0.005, h - 0.4 * sh, 0.009)))
         parts.append(("shade", assets.shade_tube_mesh(shade_bottom, h, sd / 2, sd / 2 * p["shade_top_ratio"])))
         return parts
@@ -620,8 +794,12 @@ def build_distractor_parts(distractor: dict[str, Any]) -> list[assets.Part]:
     grouped: dict[str, list[trimesh.Trimesh]] = {}
     for slot, mesh in _build(distractor["kind"], distractor["params"]):
         grouped.setdefault(slot, []).append(mesh)
-    return [assets.Part(slot, group[0] if len(group) == 1 else assets.concatenate_meshes(group),
-                        dict(distractor["materials"][slot])) for slot, group in grouped.items()]
+    return [
+        assets.Part(
+            slot, group[0] if len(group) == 1 else assets.concatenate_meshes(group), dict(distractor["materials"][slot])
+        )
+        for slot, group in grouped.items()
+    ]
 
 
 def distractor_world_parts(distractor: dict[str, Any]) -> list[assets.Part]:

@@ -56,8 +56,12 @@ ROOM_TYPES: dict[str, RoomType] = {
 }
 
 #: Floor finish → material family (``render.assets.FAMILIES``).
-FLOOR_FINISHES: dict[str, str] = {"wood": "floor_wood", "tile": "floor_tile", "carpet": "carpet",
-                                  "concrete": "concrete"}
+FLOOR_FINISHES: dict[str, str] = {
+    "wood": "floor_wood",
+    "tile": "floor_tile",
+    "carpet": "carpet",
+    "concrete": "concrete",
+}
 
 DOOR_WIDTH_M = (0.76, 0.90)  # leaf width, Neufert (from memory)
 DOOR_HEIGHT_M = (1.98, 2.10)  # leaf height, Neufert (from memory)
@@ -89,7 +93,9 @@ def wall_length_m(room: dict[str, Any], wall: str) -> float:
     return float(room["width_m"] if wall in ("south", "north") else room["depth_m"])
 
 
-def _free_spans(room: dict[str, Any], wall: str, taken: list[tuple[float, float]], gap_m: float) -> list[tuple[float, float]]:
+def _free_spans(
+    room: dict[str, Any], wall: str, taken: list[tuple[float, float]], gap_m: float
+) -> list[tuple[float, float]]:
     """Stretches of ``wall`` (u intervals) at least ``gap_m`` from its ends and from every taken interval."""
     spans = [(gap_m, wall_length_m(room, wall) - gap_m)]
     for a, b in sorted(taken):
@@ -107,8 +113,11 @@ def _free_spans(room: dict[str, Any], wall: str, taken: list[tuple[float, float]
 
 
 def _opening_spans(room: dict[str, Any], wall: str) -> list[tuple[float, float]]:
-    spans = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2)
-             for w in room.get("windows", []) if w["wall"] == wall]
+    spans = [
+        (w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2)
+        for w in room.get("windows", [])
+        if w["wall"] == wall
+    ]
     spans += [_door_span(d) for d in room.get("doors", []) if d["wall"] == wall]
     return spans
 
@@ -135,26 +144,38 @@ def _sample_door(room: dict[str, Any], rng: np.random.Generator) -> dict[str, An
     total = width + 2 * architrave
     for k in range(len(walls)):
         wall = walls[(start + k) % len(walls)]
-        spans = [(s0, s1 - total) for s0, s1 in _free_spans(room, wall, _opening_spans(room, wall), DOOR_OPENING_GAP_M)
-                 if s1 - s0 >= total]
+        spans = [
+            (s0, s1 - total)
+            for s0, s1 in _free_spans(room, wall, _opening_spans(room, wall), DOOR_OPENING_GAP_M)
+            if s1 - s0 >= total
+        ]
         if not spans:
             continue
         lengths = np.array([s1 - s0 for s0, s1 in spans])
         position = draw_along * lengths.sum()
         index = min(int(np.searchsorted(np.cumsum(lengths), position, side="right")), len(spans) - 1)
         start_u = spans[index][0] + min(position - (np.cumsum(lengths)[index] - lengths[index]), lengths[index])
-        return {"wall": wall, "center_m": round(float(start_u + total / 2), 6), "width_m": round(width, 6),
-                "height_m": round(height, 6), "architrave_m": round(architrave, 6),
-                "handle_height_m": round(handle_height, 6), "panelled": panelled, "hinge_left": hinge_left}
+        return {
+            "wall": wall,
+            "center_m": round(float(start_u + total / 2), 6),
+            "width_m": round(width, 6),
+            "height_m": round(height, 6),
+            "architrave_m": round(architrave, 6),
+            "handle_height_m": round(handle_height, 6),
+            "panelled": panelled,
+            "hinge_left": hinge_left,
+        }
     return None
 
 
 def _sample_window_frame(window: dict[str, Any], rng: np.random.Generator) -> dict[str, Any]:
     profile = float(rng.uniform(*WINDOW_FRAME_PROFILE_M))
     draw_mullion, draw_transom = rng.random(2)
-    return {"profile_m": round(profile, 6),
-            "mullion": bool(window["width_m"] >= MULLION_MIN_WIDTH_M and draw_mullion < 0.6),
-            "transom": bool(window["height_m"] >= 1.2 and draw_transom < 0.3)}
+    return {
+        "profile_m": round(profile, 6),
+        "mullion": bool(window["width_m"] >= MULLION_MIN_WIDTH_M and draw_mullion < 0.6),
+        "transom": bool(window["height_m"] >= 1.2 and draw_transom < 0.3),
+    }
 
 
 def _sample_curtains(room: dict[str, Any], window: dict[str, Any], rng: np.random.Generator) -> dict[str, Any]:
@@ -162,19 +183,27 @@ def _sample_curtains(room: dict[str, Any], window: dict[str, Any], rng: np.rando
     above = CURTAIN_ROD_ABOVE_M[0] + draws[0] * (CURTAIN_ROD_ABOVE_M[1] - CURTAIN_ROD_ABOVE_M[0])
     rod_z = min(window["sill_m"] + window["height_m"] + above, float(room["height_m"]) - 0.04)
     past = CURTAIN_ROD_PAST_M[0] + draws[1] * (CURTAIN_ROD_PAST_M[1] - CURTAIN_ROD_PAST_M[0])
-    past = min(past, window["center_m"] - window["width_m"] / 2 - 0.02,
-               wall_length_m(room, window["wall"]) - window["center_m"] - window["width_m"] / 2 - 0.02)
+    past = min(
+        past,
+        window["center_m"] - window["width_m"] / 2 - 0.02,
+        wall_length_m(room, window["wall"]) - window["center_m"] - window["width_m"] / 2 - 0.02,
+    )
     panel = CURTAIN_PANEL_M[0] + draws[2] * (CURTAIN_PANEL_M[1] - CURTAIN_PANEL_M[0])
     panel = min(panel, past + window["width_m"] / 2)
     floor_length = bool(draws[3] < 0.6)
     bottom = 0.01 if floor_length else max(0.05, window["sill_m"] - 0.08)
-    return {"wall": window["wall"], "window_center_m": window["center_m"], "rod_z_m": round(rod_z, 6),
-            "rod_start_m": round(window["center_m"] - window["width_m"] / 2 - past, 6),
-            "rod_end_m": round(window["center_m"] + window["width_m"] / 2 + past, 6),
-            "panel_m": round(panel, 6), "bottom_m": round(bottom, 6),
-            "sides": ["left", "right"] if draws[4] < 0.75 else (["left"] if draws[5] < 0.5 else ["right"]),
-            "pleat_m": round(CURTAIN_PLEAT_M[0] + draws[5] * (CURTAIN_PLEAT_M[1] - CURTAIN_PLEAT_M[0]), 6),
-            "fold_depth_m": round(CURTAIN_DEPTH_M[0] + draws[0] * (CURTAIN_DEPTH_M[1] - CURTAIN_DEPTH_M[0]), 6)}
+    return {
+        "wall": window["wall"],
+        "window_center_m": window["center_m"],
+        "rod_z_m": round(rod_z, 6),
+        "rod_start_m": round(window["center_m"] - window["width_m"] / 2 - past, 6),
+        "rod_end_m": round(window["center_m"] + window["width_m"] / 2 + past, 6),
+        "panel_m": round(panel, 6),
+        "bottom_m": round(bottom, 6),
+        "sides": ["left", "right"] if draws[4] < 0.75 else (["left"] if draws[5] < 0.5 else ["right"]),
+        "pleat_m": round(CURTAIN_PLEAT_M[0] + draws[5] * (CURTAIN_PLEAT_M[1] - CURTAIN_PLEAT_M[0]), 6),
+        "fold_depth_m": round(CURTAIN_DEPTH_M[0] + draws[0] * (CURTAIN_DEPTH_M[1] - CURTAIN_DEPTH_M[0]), 6),
+    }
 
 
 def curtain_panels(curtain: dict[str, Any]) -> list[tuple[float, float]]:
@@ -237,8 +266,10 @@ def sample_dressing(room: dict[str, Any], budget: dict[str, Any], rng: np.random
         door_spec = _sample_door(room, rng)
         if door_spec is not None:
             doors.append(door_spec)
-    room["skirting"] = {"height_m": round(float(rng.uniform(*SKIRTING_HEIGHT_M)), 6),
-                        "depth_m": round(float(rng.uniform(*SKIRTING_DEPTH_M)), 6)}
+    room["skirting"] = {
+        "height_m": round(float(rng.uniform(*SKIRTING_HEIGHT_M)), 6),
+        "depth_m": round(float(rng.uniform(*SKIRTING_DEPTH_M)), 6),
+    }
     room["window_frames"] = [_sample_window_frame(w, rng) for w in room.get("windows", [])]
     curtains = []
     probability = recipe.curtain_probability * float(section["curtain_probability"])
@@ -254,8 +285,10 @@ def sample_dressing(room: dict[str, Any], budget: dict[str, Any], rng: np.random
 # Geometry
 # ---------------------------------------------------------------------------
 
-def _wall_box(room: dict[str, Any], wall: str, u0: float, u1: float, o0: float, o1: float,
-              z0: float, z1: float) -> trimesh.Trimesh:
+
+def _wall_box(
+    room: dict[str, Any], wall: str, u0: float, u1: float, o0: float, o1: float, z0: float, z1: float
+) -> trimesh.Trimesh:
     """An axis-aligned box given in wall coordinates (u along, o into the room, z up), in world metres."""
     width, depth = float(room["width_m"]), float(room["depth_m"])
     if wall == "south":
@@ -301,7 +334,12 @@ def _skirting(room: dict[str, Any]) -> list[trimesh.Trimesh]:
         doors = [_door_span(d) for d in room.get("doors", []) if d["wall"] == wall]
         spans = [(start, end)]
         for a, b in doors:
-            spans = [piece for s0, s1 in spans for piece in ((s0, min(s1, a)), (max(s0, b), s1)) if piece[1] - piece[0] > 1e-4]
+            spans = [
+                piece
+                for s0, s1 in spans
+                for piece in ((s0, min(s1, a)), (max(s0, b), s1))
+                if piece[1] - piece[0] > 1e-4
+            ]
         boxes += [_wall_box(room, wall, s0, s1, 0.0, depth, 0.0, height) for s0, s1 in spans]
     return boxes
 
@@ -314,8 +352,9 @@ def _door(room: dict[str, Any], door: dict[str, Any]) -> dict[str, list[trimesh.
         inset, rail = 0.11, 0.012
         mid = h * 0.52
         for z0, z1 in ((0.16, mid - 0.06), (mid + 0.06, h - 0.14)):
-            leaf.append(_wall_box(room, wall, c - w / 2 + inset, c + w / 2 - inset, DOOR_PROUD_M, DOOR_PROUD_M + rail,
-                                  z0, z1))
+            leaf.append(
+                _wall_box(room, wall, c - w / 2 + inset, c + w / 2 - inset, DOOR_PROUD_M, DOOR_PROUD_M + rail, z0, z1)
+            )
     architrave = [
         _wall_box(room, wall, c - w / 2 - a, c - w / 2, 0.0, ARCHITRAVE_PROUD_M, 0.0, h + a),
         _wall_box(room, wall, c + w / 2, c + w / 2 + a, 0.0, ARCHITRAVE_PROUD_M, 0.0, h + a),
@@ -327,8 +366,16 @@ def _door(room: dict[str, Any], door: dict[str, Any]) -> dict[str, list[trimesh.
     handle = [
         _wall_box(room, wall, hu - 0.025, hu + 0.025, DOOR_PROUD_M, DOOR_PROUD_M + 0.01, hz - 0.025, hz + 0.025),
         _wall_box(room, wall, hu - 0.008, hu + 0.008, DOOR_PROUD_M + 0.01, DOOR_PROUD_M + 0.06, hz - 0.008, hz + 0.008),
-        _wall_box(room, wall, min(hu, hu - side * 0.12), max(hu, hu - side * 0.12), DOOR_PROUD_M + 0.05,
-                  DOOR_PROUD_M + 0.066, hz - 0.009, hz + 0.009),
+        _wall_box(
+            room,
+            wall,
+            min(hu, hu - side * 0.12),
+            max(hu, hu - side * 0.12),
+            DOOR_PROUD_M + 0.05,
+            DOOR_PROUD_M + 0.066,
+            hz - 0.009,
+            hz + 0.009,
+        ),
     ]
     return {"door": leaf, "architrave": architrave, "handle": handle}
 
@@ -355,8 +402,9 @@ def _window_frame(room: dict[str, Any], window: dict[str, Any], frame: dict[str,
     return boxes
 
 
-def _pleated_panel(room: dict[str, Any], wall: str, u0: float, u1: float, z0: float, z1: float,
-                   pleat_m: float, fold_m: float) -> trimesh.Trimesh:
+def _pleated_panel(
+    room: dict[str, Any], wall: str, u0: float, u1: float, z0: float, z1: float, pleat_m: float, fold_m: float
+) -> trimesh.Trimesh:
     """A hanging curtain panel: a vertical sheet folded along u, o = CURTAIN_OFFSET_M + fold·sin(2πu/pleat)."""
     columns = max(8, int(np.ceil((u1 - u0) / pleat_m * 8)))
     u = np.linspace(u0, u1, columns + 1)
@@ -372,12 +420,33 @@ def _pleated_panel(room: dict[str, Any], wall: str, u0: float, u1: float, z0: fl
 
 def _curtain(room: dict[str, Any], curtain: dict[str, Any]) -> dict[str, list[trimesh.Trimesh]]:
     wall, rod_z = curtain["wall"], float(curtain["rod_z_m"])
-    panels = [_pleated_panel(room, wall, a, b, float(curtain["bottom_m"]), rod_z - 0.02, float(curtain["pleat_m"]),
-                             float(curtain["fold_depth_m"])) for a, b in curtain_panels(curtain)]
-    rod = _wall_box(room, wall, float(curtain["rod_start_m"]) - 0.02, float(curtain["rod_end_m"]) + 0.02,
-                    CURTAIN_OFFSET_M - 0.01, CURTAIN_OFFSET_M + 0.01, rod_z - 0.01, rod_z + 0.01)
-    brackets = [_wall_box(room, wall, u - 0.01, u + 0.01, 0.0, CURTAIN_OFFSET_M, rod_z - 0.01, rod_z + 0.01)
-                for u in (float(curtain["rod_start_m"]) + 0.03, float(curtain["rod_end_m"]) - 0.03)]
+    panels = [
+        _pleated_panel(
+            room,
+            wall,
+            a,
+            b,
+            float(curtain["bottom_m"]),
+            rod_z - 0.02,
+            float(curtain["pleat_m"]),
+            float(curtain["fold_depth_m"]),
+        )
+        for a, b in curtain_panels(curtain)
+    ]
+    rod = _wall_box(
+        room,
+        wall,
+        float(curtain["rod_start_m"]) - 0.02,
+        float(curtain["rod_end_m"]) + 0.02,
+        CURTAIN_OFFSET_M - 0.01,
+        CURTAIN_OFFSET_M + 0.01,
+        rod_z - 0.01,
+        rod_z + 0.01,
+    )
+    brackets = [
+        _wall_box(room, wall, u - 0.01, u + 0.01, 0.0, CURTAIN_OFFSET_M, rod_z - 0.01, rod_z + 0.01)
+        for u in (float(curtain["rod_start_m"]) + 0.03, float(curtain["rod_end_m"]) - 0.03)
+    ]
     return {"curtain": panels, "handle": [rod, *brackets]}
 
 
@@ -411,14 +480,21 @@ def wall_fixtures(room: dict[str, Any], wall: str) -> list[tuple[float, float, f
             out.append((u0, u1, 0.0, float(door["height_m"]) + float(door.get("architrave_m", 0.0))))
     for curtain in room.get("curtains", []):
         if curtain["wall"] == wall:
-            out.append((curtain["rod_start_m"] - 0.02, curtain["rod_end_m"] + 0.02, curtain["bottom_m"],
-                        curtain["rod_z_m"] + 0.02))
+            out.append(
+                (
+                    curtain["rod_start_m"] - 0.02,
+                    curtain["rod_end_m"] + 0.02,
+                    curtain["bottom_m"],
+                    curtain["rod_z_m"] + 0.02,
+                )
+            )
     return out
 
 
 # ---------------------------------------------------------------------------
 # Room shell: floor, ceiling and walls with their window openings
 # ---------------------------------------------------------------------------
+
 
 def _wall_boxes(room: dict[str, Any], wall: str) -> list[trimesh.Trimesh]:
     """Boxes making up one wall with its window openings cut out, in world coordinates.
@@ -427,8 +503,11 @@ def _wall_boxes(room: dict[str, Any], wall: str) -> list[trimesh.Trimesh]:
     into as few boxes as its openings allow: rectangles around each hole.
     """
     length, height, t = wall_length_m(room, wall), room["height_m"], WALL_THICKNESS_M
-    openings = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"],
-                 w["sill_m"] + w["height_m"]) for w in room.get("windows", []) if w["wall"] == wall]
+    openings = [
+        (w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"], w["sill_m"] + w["height_m"])
+        for w in room.get("windows", [])
+        if w["wall"] == wall
+    ]
     # The wall runs past both corners by its thickness so the corners are closed.
     us = sorted({-t, length + t, *(v for o in openings for v in o[:2])})
     zs = sorted({0.0, height, *(v for o in openings for v in o[2:])})
@@ -469,7 +548,9 @@ def room_parts(room: dict[str, Any]) -> list[assets.Part]:
     materials = room["materials"]
     parts = [
         assets.Part("floor", assets.box_mesh(-t, width + t, -t, depth + t, -t, 0.0), dict(materials["floor"])),
-        assets.Part("ceiling", assets.box_mesh(-t, width + t, -t, depth + t, height, height + t), dict(materials["ceiling"])),
+        assets.Part(
+            "ceiling", assets.box_mesh(-t, width + t, -t, depth + t, height, height + t), dict(materials["ceiling"])
+        ),
     ]
     for wall in WALLS:
         boxes = _wall_boxes(room, wall)

@@ -52,8 +52,7 @@ STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "denoi
 PNG_COMPRESSION_LEVEL = 1
 # Shutter dials step in thirds of a stop (1/125, 1/100, 1/80 s ...); common practice.
 SHUTTER_STOPS_PER_EV = 3
-OUTPUT_FILES: tuple[str, ...] = ("rgb.png", "instances.png", "depth.npy", "labels.json", "scene.json",
-                                 "timings.json")
+OUTPUT_FILES: tuple[str, ...] = ("rgb.png", "instances.png", "depth.npy", "labels.json", "scene.json", "timings.json")
 
 
 @dataclass
@@ -114,12 +113,20 @@ def auto_exposure(mean_luminance_cd_m2: float, camera: dict[str, Any]) -> dict[s
     iso_lo, iso_hi = (float(v) for v in camera.get("iso_limits", (iso, iso)))
 
     def meter(speed: float) -> float:
-        return snap_shutter_s(cam.metered_shutter_s(mean_luminance_cd_m2, f_number, speed,
-                                                    compensation_ev=compensation_ev, shutter_limits_s=(1e-300, 1e300)))
+        return snap_shutter_s(
+            cam.metered_shutter_s(
+                mean_luminance_cd_m2, f_number, speed, compensation_ev=compensation_ev, shutter_limits_s=(1e-300, 1e300)
+            )
+        )
 
     if not mean_luminance_cd_m2 > 0:
-        return {"shutter_s": hi_s, "metered_shutter_s": hi_s, "iso": iso, "exposure_error_ev": 0.0,
-                "limited_by": "longest shutter"}
+        return {
+            "shutter_s": hi_s,
+            "metered_shutter_s": hi_s,
+            "iso": iso,
+            "exposure_error_ev": 0.0,
+            "limited_by": "longest shutter",
+        }
     metered = meter(iso)
     # Step along the 1/3-stop series away from the sampled ISO (up when the longest shutter is too
     # short, down when the shortest is too long) and stop at the first speed whose snapped time fits.
@@ -135,12 +142,18 @@ def auto_exposure(mean_luminance_cd_m2: float, camera: dict[str, Any]) -> dict[s
             break
     shutter_s = min(max(metered, lo_s), hi_s)
     limited_by = "shortest shutter" if metered < lo_s else "longest shutter" if metered > hi_s else None
-    return {"shutter_s": shutter_s, "metered_shutter_s": metered, "iso": iso,
-            "exposure_error_ev": math.log2(shutter_s / metered), "limited_by": limited_by}
+    return {
+        "shutter_s": shutter_s,
+        "metered_shutter_s": metered,
+        "iso": iso,
+        "exposure_error_ev": math.log2(shutter_s / metered),
+        "limited_by": limited_by,
+    }
 
 
-def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.Generator,
-           noise: bool = True) -> tuple[np.ndarray, dict[str, Any]]:
+def expose(
+    radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.Generator, noise: bool = True
+) -> tuple[np.ndarray, dict[str, Any]]:
     """Meter, expose, add sensor noise, clip and sRGB-encode a linear render (Y in cd/m²).
 
     The meter reads the log-average luminance (:func:`render.camera.metered_luminance_cd_m2`:
@@ -166,8 +179,13 @@ def expose(radiance_rgb: np.ndarray, camera: dict[str, Any], *, rng: np.random.G
     signal = np.asarray(radiance_rgb, dtype=np.float32)[..., :3] * np.float32(scale)
     with_noise = bool(noise) and bool(camera.get("sensor_noise", True))
     if with_noise:
-        signal = cam.apply_sensor_noise(signal, iso, full_well_electrons=float(camera["full_well_electrons"]),
-                                        read_noise_electrons=float(camera["read_noise_electrons"]), rng=rng)
+        signal = cam.apply_sensor_noise(
+            signal,
+            iso,
+            full_well_electrons=float(camera["full_well_electrons"]),
+            read_noise_electrons=float(camera["read_noise_electrons"]),
+            rng=rng,
+        )
     rgb = cam.encode_srgb_8bit(signal)
     exposure = {
         "shutter_s": round(shutter_s, 9),
@@ -273,35 +291,64 @@ def render_frame(
 
     start = time.perf_counter()
     radiance_out, render_info = denoise_radiance(radiance_pass, wanted=wants_denoise, threads=threads)
-    render_info.update({"spp": int(render["spp"]), "window_light": built.window_light,
-                        "sun_pass": built.sun_scene is not None, "reconstruction_filter": "box"})
+    render_info.update(
+        {
+            "spp": int(render["spp"]),
+            "window_light": built.window_light,
+            "sun_pass": built.sun_scene is not None,
+            "reconstruction_filter": "box",
+        }
+    )
     if built.sun_scene is not None:
         render_info["sun_pass_spp"] = int(render["spp"]) * SUN_PASS_SPP_FACTOR
     timings["denoise"] = time.perf_counter() - start
 
     start = time.perf_counter()
-    triangles_world = {instance_id: np.concatenate([vertices[faces] for vertices, faces in parts])
-                       for instance_id, parts in built.instance_triangles.items() if parts}
-    instances = labels_module.instance_labels(instance_ids, spec["objects"], triangles_world, built.rotation,
-                                              built.translation, built.k_matrix, spec["thresholds"])
+    triangles_world = {
+        instance_id: np.concatenate([vertices[faces] for vertices, faces in parts])
+        for instance_id, parts in built.instance_triangles.items()
+        if parts
+    }
+    instances = labels_module.instance_labels(
+        instance_ids,
+        spec["objects"],
+        triangles_world,
+        built.rotation,
+        built.translation,
+        built.k_matrix,
+        spec["thresholds"],
+    )
     timings["labels"] = time.perf_counter() - start
 
     start = time.perf_counter()
     rgb, exposure = expose(radiance_out, spec["camera"], rng=axis_rng(spec["sub_seeds"], "noise"))
     instances = judge_visibility(rgb, instance_ids, instances, spec["thresholds"])
-    labels = round_floats({
-        "image": {"width_px": built.width_px, "height_px": built.height_px},
-        "camera": {"K": built.k_matrix, "R": built.rotation, "t": built.translation,
-                   "convention": "OpenCV: X_cam = R X_world + t; pixel centres at integer + 0.5"},
-        "exposure": exposure,
-        "render": render_info,
-        "instances": instances,
-        "seed": spec["seed"],
-        "sub_seeds": spec["sub_seeds"],
-        "variant": choice.variant,
-    })
-    result = FrameResult(rgb=rgb, instance_ids=instance_ids, depth_m=depth_m, labels=labels, timings_s=timings,
-                         spec=spec, radiance_rgb=radiance_out)
+    labels = round_floats(
+        {
+            "image": {"width_px": built.width_px, "height_px": built.height_px},
+            "camera": {
+                "K": built.k_matrix,
+                "R": built.rotation,
+                "t": built.translation,
+                "convention": "OpenCV: X_cam = R X_world + t; pixel centres at integer + 0.5",
+            },
+            "exposure": exposure,
+            "render": render_info,
+            "instances": instances,
+            "seed": spec["seed"],
+            "sub_seeds": spec["sub_seeds"],
+            "variant": choice.variant,
+        }
+    )
+    result = FrameResult(
+        rgb=rgb,
+        instance_ids=instance_ids,
+        depth_m=depth_m,
+        labels=labels,
+        timings_s=timings,
+        spec=spec,
+        radiance_rgb=radiance_out,
+    )
     if out_dir is not None:
         result.files = write_frame_files(result, Path(out_dir))
     timings["encode"] = time.perf_counter() - start
@@ -312,8 +359,9 @@ def render_frame(
     return result
 
 
-def denoise_radiance(radiance_pass: Any, *, wanted: bool,
-                     threads: int | None = None) -> tuple[np.ndarray, dict[str, Any]]:
+def denoise_radiance(
+    radiance_pass: Any, *, wanted: bool, threads: int | None = None
+) -> tuple[np.ndarray, dict[str, Any]]:
     """(radiance to expose, the labels' ``render`` record): denoised when ``wanted`` and the library loads.
 
     The record says ``denoised`` (bool) and ``denoiser`` (what ran, or why nothing did). A denoiser that
@@ -324,8 +372,13 @@ def denoise_radiance(radiance_pass: Any, *, wanted: bool,
     if not wanted:
         return radiance_pass.radiance_rgb, {"denoised": False, "denoiser": "off (budget render.denoise is false)"}
     try:
-        radiance = denoise(radiance_pass.radiance_rgb, albedo_rgb=radiance_pass.albedo_rgb,
-                           normal_xyz=radiance_pass.normal_xyz, hdr=True, threads=threads)
+        radiance = denoise(
+            radiance_pass.radiance_rgb,
+            albedo_rgb=radiance_pass.albedo_rgb,
+            normal_xyz=radiance_pass.normal_xyz,
+            hdr=True,
+            threads=threads,
+        )
     except DenoiserUnavailable as exc:
         return radiance_pass.radiance_rgb, {"denoised": False, "denoiser": f"unavailable, frame left raw: {exc}"}
     return radiance, {"denoised": True, "denoiser": DENOISER_NAME}
@@ -334,8 +387,9 @@ def denoise_radiance(radiance_pass: Any, *, wanted: bool,
 DENOISER_NAME = "Intel Open Image Denoise 1.4.3, RT filter, HDR, albedo + normal"
 
 
-def judge_visibility(rgb: np.ndarray, instance_ids: np.ndarray, instances: list[dict[str, Any]],
-                     thresholds: Mapping[str, Any]) -> list[dict[str, Any]]:
+def judge_visibility(
+    rgb: np.ndarray, instance_ids: np.ndarray, instances: list[dict[str, Any]], thresholds: Mapping[str, Any]
+) -> list[dict[str, Any]]:
     """Add each instance's photometric ``contrast`` (and ``delta_e``, ``lightness``) and apply ``min_contrast``.
 
     Measured on the final 8-bit image (after exposure and sensor noise): what the detector will
@@ -409,8 +463,16 @@ def render_frame_from_inputs(
     from .spec import make_spec
 
     start = time.perf_counter()
-    spec = make_spec(budget, composition, seed, layout_seed=layout_seed, lighting_seed=lighting_seed,
-                     camera_seed=camera_seed, view_slot=view_slot, user_assets=user_assets)
+    spec = make_spec(
+        budget,
+        composition,
+        seed,
+        layout_seed=layout_seed,
+        lighting_seed=lighting_seed,
+        camera_seed=camera_seed,
+        view_slot=view_slot,
+        user_assets=user_assets,
+    )
     spec_s = time.perf_counter() - start
     return render_frame(spec, out_dir=out_dir, variant=variant, threads=threads, spec_s=spec_s)
 

@@ -249,7 +249,7 @@ def coverage_px(triangles_px: np.ndarray, width_px: int, height_px: int) -> tupl
     pairs = float(np.maximum(halves[1] - halves[0], 0).sum())
     if cells <= MAX_CANVAS_PX and pairs <= MAX_SPAN_PAIRS:
         mask = _coverage(halves, row_lo, row_hi, col_lo, col_hi)
-        window = mask[max(0, -row_lo):max(0, height_px - row_lo), max(0, -col_lo):max(0, width_px - col_lo)]
+        window = mask[max(0, -row_lo) : max(0, height_px - row_lo), max(0, -col_lo) : max(0, width_px - col_lo)]
         return int(window.sum()), float(mask.sum())
     in_frame = int(_coverage(halves, 0, height_px, 0, width_px).sum())
     step = math.ceil(max(math.sqrt(cells / MAX_CANVAS_PX), pairs / MAX_SPAN_PAIRS, 1.0))
@@ -345,7 +345,12 @@ def instance_labels(
         projected = project_triangles(tris, R, t, K, near_m=near_m) if tris is not None else np.zeros((0, 3, 2))
         if len(projected):
             lo, hi = projected.reshape(-1, 2).min(axis=0), projected.reshape(-1, 2).max(axis=0)
-            amodal = [round_floats(lo[0]), round_floats(lo[1]), round_floats(hi[0] - lo[0]), round_floats(hi[1] - lo[1])]
+            amodal = [
+                round_floats(lo[0]),
+                round_floats(lo[1]),
+                round_floats(hi[0] - lo[0]),
+                round_floats(hi[1] - lo[1]),
+            ]
         else:
             amodal = None
         in_frame_px, alone_px = coverage_px(projected, width_px, height_px)
@@ -369,20 +374,22 @@ def instance_labels(
             side = min(bbox[2], bbox[3])
             if side < min_box:
                 reasons.append(f"box {side:g} px < {min_box:g} px")
-        results.append({
-            "instance_id": instance_id,
-            "class_name": obj.get("class_name"),
-            "asset_id": obj.get("asset_id"),
-            "bbox": bbox,
-            "amodal_bbox": amodal,
-            "mask_area_px": area,
-            "alone_in_frame_px": int(in_frame_px),
-            "alone_px": round_floats(alone_px),
-            "visible_fraction": round_floats(min(max(visible_fraction, 0.0), 1.0)),
-            "occlusion_fraction": round_floats(min(max(occlusion, 0.0), 1.0)),
-            "truncation_fraction": round_floats(min(max(truncation, 0.0), 1.0)),
-            "segmentation": mask_to_rle(mask),
-            "accepted": not reasons,
-            "reject_reasons": reasons,
-        })
+        results.append(
+            {
+                "instance_id": instance_id,
+                "class_name": obj.get("class_name"),
+                "asset_id": obj.get("asset_id"),
+                "bbox": bbox,
+                "amodal_bbox": amodal,
+                "mask_area_px": area,
+                "alone_in_frame_px": int(in_frame_px),
+                "alone_px": round_floats(alone_px),
+                "visible_fraction": round_floats(min(max(visible_fraction, 0.0), 1.0)),
+                "occlusion_fraction": round_floats(min(max(occlusion, 0.0), 1.0)),
+                "truncation_fraction": round_floats(min(max(truncation, 0.0), 1.0)),
+                "segmentation": mask_to_rle(mask),
+                "accepted": not reasons,
+                "reject_reasons": reasons,
+            }
+        )
     return results

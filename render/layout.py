@@ -125,13 +125,28 @@ WINDOW_NEAR_WALL_M = 0.3
 
 # Roles in a home arrangement, in placement order (hosts before the things arranged round them).
 HOME_ROLES: dict[str, str] = {
-    "bed": "against_wall", "sofa": "against_wall", "bookshelf": "against_wall",
-    "dining_table": "dining_table", "coffee_table": "coffee_table", "armchair": "lounge_seat",
-    "chair": "chair", "ottoman": "footstool", "side_table": "beside_seat", "floor_lamp": "beside_seat",
+    "bed": "against_wall",
+    "sofa": "against_wall",
+    "bookshelf": "against_wall",
+    "dining_table": "dining_table",
+    "coffee_table": "coffee_table",
+    "armchair": "lounge_seat",
+    "chair": "chair",
+    "ottoman": "footstool",
+    "side_table": "beside_seat",
+    "floor_lamp": "beside_seat",
     "potted_plant": "against_wall",
 }
-_ROLE_ORDER: tuple[str, ...] = ("against_wall", "dining_table", "coffee_table", "lounge_seat", "chair",
-                                "footstool", "beside_seat", "other")
+_ROLE_ORDER: tuple[str, ...] = (
+    "against_wall",
+    "dining_table",
+    "coffee_table",
+    "lounge_seat",
+    "chair",
+    "footstool",
+    "beside_seat",
+    "other",
+)
 # Classes that count as seats for side tables and floor lamps, in order of preference.
 SEAT_CLASSES: tuple[str, ...] = ("sofa", "armchair", "bed")
 
@@ -160,6 +175,7 @@ class LayoutError(ValueError):
 # Rooms
 # ---------------------------------------------------------------------------
 
+
 def _sample_window(room: dict[str, Any], wall: str, rng: np.random.Generator) -> dict[str, Any] | None:
     length, height = wall_length_m(room, wall), room["height_m"]
     max_width = min(WINDOW_WIDTH_M[1], length - 2 * WINDOW_CORNER_GAP_M)
@@ -176,8 +192,13 @@ def _sample_window(room: dict[str, Any], wall: str, rng: np.random.Generator) ->
             return None
     window_height = float(rng.uniform(WINDOW_HEIGHT_M[0], max_height))
     center = float(rng.uniform(WINDOW_CORNER_GAP_M + width / 2, length - WINDOW_CORNER_GAP_M - width / 2))
-    return {"wall": wall, "center_m": round(center, 6), "sill_m": round(sill, 6), "width_m": round(width, 6),
-            "height_m": round(window_height, 6)}
+    return {
+        "wall": wall,
+        "center_m": round(center, 6),
+        "sill_m": round(sill, 6),
+        "width_m": round(width, 6),
+        "height_m": round(window_height, 6),
+    }
 
 
 def sample_room(budget: dict[str, Any], rng: np.random.Generator) -> dict[str, Any]:
@@ -213,6 +234,7 @@ def sample_room(budget: dict[str, Any], rng: np.random.Generator) -> dict[str, A
 # ---------------------------------------------------------------------------
 # Geometry of placed objects
 # ---------------------------------------------------------------------------
+
 
 def _local_rect(spec: dict[str, Any]) -> tuple[float, float, float, float]:
     """(centre x, centre y, half width, half depth) of the footprint in the asset's local frame."""
@@ -266,6 +288,7 @@ def object_world_parts(obj: dict[str, Any]) -> list[assets.Part]:
 # ---------------------------------------------------------------------------
 # Placement
 # ---------------------------------------------------------------------------
+
 
 @dataclass
 class _Placed:
@@ -348,11 +371,15 @@ def _wall_point(room: dict[str, Any], wall: str, along_m: float, offset_m: float
     return room["width_m"] - offset_m, along_m
 
 
-def _blocks_window(room: dict[str, Any], wall: str, u0: float, u1: float, z0: float, z1: float,
-                   margin_m: float = 0.05) -> bool:
+def _blocks_window(
+    room: dict[str, Any], wall: str, u0: float, u1: float, z0: float, z1: float, margin_m: float = 0.05
+) -> bool:
     """Whether the wall rectangle u0..u1 × z0..z1 meets a window, a door or a curtain (with ``margin_m``)."""
-    taken = [(w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"],
-              w["sill_m"] + w["height_m"]) for w in room.get("windows", []) if w["wall"] == wall]
+    taken = [
+        (w["center_m"] - w["width_m"] / 2, w["center_m"] + w["width_m"] / 2, w["sill_m"], w["sill_m"] + w["height_m"])
+        for w in room.get("windows", [])
+        if w["wall"] == wall
+    ]
     for a0, a1, b0, b1 in [*taken, *wall_fixtures(room, wall)]:
         if u0 < a1 + margin_m and a0 - margin_m < u1 and z0 < b1 + margin_m and b0 - margin_m < z1:
             return True
@@ -374,18 +401,19 @@ def door_clearance_zones(room: dict[str, Any]) -> list[_Placed]:
             center, width, height = (float(door[key]) for key in ("center_m", "width_m", "height_m"))
         except (KeyError, TypeError, ValueError) as exc:
             raise LayoutError(f"door {k + 1}: expected {{wall, center_m, width_m, height_m}}, got {door!r}") from exc
-        if wall not in WALLS or not all(math.isfinite(v) for v in (center, width, height)) or width <= 0 \
-                or height <= 0:
-            raise LayoutError(f"door {k + 1}: wall must be one of {', '.join(WALLS)} and its sizes positive, "
-                              f"got {door!r}")
+        if wall not in WALLS or not all(math.isfinite(v) for v in (center, width, height)) or width <= 0 or height <= 0:
+            raise LayoutError(
+                f"door {k + 1}: wall must be one of {', '.join(WALLS)} and its sizes positive, got {door!r}"
+            )
         across = wall_length_m(room, "south" if wall in ("west", "east") else "west")
         depth = min(DOOR_CLEARANCE_DEPTH_M, across)
         # The architrave (door casing), when the door has one, is part of the door: nothing covers it either.
         margin = max(DOOR_SIDE_MARGIN_M, float(door.get("architrave_m") or 0.0))
         spec = {"footprint_m": [width + 2 * margin, depth], "height_m": height + margin, "placement": "floor"}
         x, y = _wall_point(room, wall, center, depth / 2)
-        zones.append(_Placed(-1 - k, spec, x, y, 0.0, WALL_FACING_YAW_DEG[wall], "door_zone", None,
-                             wall=wall).prepare(0.0))
+        zones.append(
+            _Placed(-1 - k, spec, x, y, 0.0, WALL_FACING_YAW_DEG[wall], "door_zone", None, wall=wall).prepare(0.0)
+        )
     # Curtains that hang below a metre: their folds, from the wall to the front of the pleats, up to the rod.
     for curtain in room.get("curtains") or []:
         if float(curtain["bottom_m"]) >= 1.0:
@@ -394,14 +422,26 @@ def door_clearance_zones(room: dict[str, Any]) -> list[_Placed]:
         for a, b in curtain_panels(curtain):
             spec = {"footprint_m": [b - a, depth], "height_m": float(curtain["rod_z_m"]), "placement": "floor"}
             x, y = _wall_point(room, curtain["wall"], (a + b) / 2, depth / 2)
-            zones.append(_Placed(-1000 - len(zones), spec, x, y, 0.0, WALL_FACING_YAW_DEG[curtain["wall"]],
-                                 "curtain_zone", None, wall=curtain["wall"]).prepare(0.0))
+            zones.append(
+                _Placed(
+                    -1000 - len(zones),
+                    spec,
+                    x,
+                    y,
+                    0.0,
+                    WALL_FACING_YAW_DEG[curtain["wall"]],
+                    "curtain_zone",
+                    None,
+                    wall=curtain["wall"],
+                ).prepare(0.0)
+            )
     return zones
 
 
 class _Placer:
-    def __init__(self, room: dict[str, Any], rng: np.random.Generator, clearance_m: float, max_tries: int,
-                 mode: str = "free") -> None:
+    def __init__(
+        self, room: dict[str, Any], rng: np.random.Generator, clearance_m: float, max_tries: int, mode: str = "free"
+    ) -> None:
         self.room = room
         self.mode = mode
         self.rng = rng
@@ -414,8 +454,11 @@ class _Placer:
         self.keep_clear = door_clearance_zones(room)
 
     def floor_cover_fraction(self) -> float:
-        area = sum(p.spec["footprint_m"][0] * p.spec["footprint_m"][1] for p in self.placed
-                   if p.anchor in ("floor", "against_wall"))
+        area = sum(
+            p.spec["footprint_m"][0] * p.spec["footprint_m"][1]
+            for p in self.placed
+            if p.anchor in ("floor", "against_wall")
+        )
         return area / (self.width * self.depth)
 
     def free(self, candidate: _Placed, ignore: int | None = None) -> bool:
@@ -424,8 +467,9 @@ class _Placer:
             return False
         return not any(_overlap(candidate, other) for other in self.placed if other.index != ignore)
 
-    def try_floor(self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None, *,
-                  aligned: bool = False) -> _Placed | None:
+    def try_floor(
+        self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None, *, aligned: bool = False
+    ) -> _Placed | None:
         """A free floor spot at a uniform yaw, or (``aligned``) a yaw square to the walls (0, 90, 180, 270°)."""
         hw, hd = spec["footprint_m"][0] / 2, spec["footprint_m"][1] / 2
         yaw = 0.0
@@ -448,11 +492,16 @@ class _Placer:
                 return candidate
         return None
 
-    def try_against_wall(self, index: int, spec: dict[str, Any], tries: int,
-                         accept: _Accept | None = None) -> _Placed | None:
+    def try_against_wall(
+        self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None
+    ) -> _Placed | None:
         w, d, h = spec["footprint_m"][0], spec["footprint_m"][1], spec["height_m"]
-        walls = [wall for wall in WALLS if wall_length_m(self.room, wall) >= w + 2 * WALL_GAP_M
-                 and (wall_length_m(self.room, "south" if wall in ("west", "east") else "west") >= d + 2 * WALL_GAP_M)]
+        walls = [
+            wall
+            for wall in WALLS
+            if wall_length_m(self.room, wall) >= w + 2 * WALL_GAP_M
+            and (wall_length_m(self.room, "south" if wall in ("west", "east") else "west") >= d + 2 * WALL_GAP_M)
+        ]
         if not walls:
             return None
         for _ in range(tries):
@@ -462,17 +511,22 @@ class _Placer:
             if _blocks_window(self.room, wall, along - w / 2, along + w / 2, 0.0, h):
                 continue
             x, y = _wall_point(self.room, wall, along, d / 2 + WALL_GAP_M)
-            candidate = _Placed(index, spec, round(x, 6), round(y, 6), 0.0, WALL_FACING_YAW_DEG[wall],
-                                "against_wall", None, wall=wall)
+            candidate = _Placed(
+                index, spec, round(x, 6), round(y, 6), 0.0, WALL_FACING_YAW_DEG[wall], "against_wall", None, wall=wall
+            )
             if self.free(candidate) and (accept is None or accept(candidate)):
                 return candidate
         return None
 
     def try_surface(self, index: int, spec: dict[str, Any], accept: _Accept | None = None) -> _Placed | None:
         w, d, h = spec["footprint_m"][0], spec["footprint_m"][1], spec["height_m"]
-        supports = [(p, s) for p in self.placed if p.anchor != "surface" and p.spec["placement"] != "wall"
-                    for s in p.spec.get("support_surfaces", [])
-                    if min(s["size_m"]) >= min(w, d) and p.z + s["height_m"] + h <= self.height - CEILING_GAP_M]
+        supports = [
+            (p, s)
+            for p in self.placed
+            if p.anchor != "surface" and p.spec["placement"] != "wall"
+            for s in p.spec.get("support_surfaces", [])
+            if min(s["size_m"]) >= min(w, d) and p.z + s["height_m"] + h <= self.height - CEILING_GAP_M
+        ]
         if not supports:
             return None
         for _ in range(SURFACE_TRIES):
@@ -492,8 +546,11 @@ class _Placer:
             z = round(host.z + surface["height_m"], 6)
             candidate = _Placed(index, spec, x, y, z, yaw, "surface", host.index)
             # The host is excluded: the item stands on it (a tray top is slightly recessed).
-            if self.free(candidate, ignore=host.index) and self._inside_support(candidate, host, surface) and (
-                    accept is None or accept(candidate)):
+            if (
+                self.free(candidate, ignore=host.index)
+                and self._inside_support(candidate, host, surface)
+                and (accept is None or accept(candidate))
+            ):
                 return candidate
         return None
 
@@ -504,8 +561,10 @@ class _Placer:
         hc, hs = math.cos(math.radians(host.yaw_deg)), math.sin(math.radians(host.yaw_deg))
         dx, dy = corners[:, 0] - host.x, corners[:, 1] - host.y
         lx, ly = hc * dx + hs * dy - surface["center_m"][0], -hs * dx + hc * dy - surface["center_m"][1]
-        return bool(np.all(np.abs(lx) <= surface["size_m"][0] / 2 + 1e-6)
-                    and np.all(np.abs(ly) <= surface["size_m"][1] / 2 + 1e-6))
+        return bool(
+            np.all(np.abs(lx) <= surface["size_m"][0] / 2 + 1e-6)
+            and np.all(np.abs(ly) <= surface["size_m"][1] / 2 + 1e-6)
+        )
 
     def try_wall(self, index: int, spec: dict[str, Any], tries: int, accept: _Accept | None = None) -> _Placed | None:
         w, h = spec["footprint_m"][0], spec["height_m"]
@@ -521,8 +580,9 @@ class _Placer:
             if _blocks_window(self.room, wall, along - w / 2, along + w / 2, mount, mount + h):
                 continue
             x, y = _wall_point(self.room, wall, along, 0.0)
-            candidate = _Placed(index, spec, round(x, 6), round(y, 6), mount, WALL_FACING_YAW_DEG[wall], "wall",
-                                None, wall=wall)
+            candidate = _Placed(
+                index, spec, round(x, 6), round(y, 6), mount, WALL_FACING_YAW_DEG[wall], "wall", None, wall=wall
+            )
             if self.free(candidate) and (accept is None or accept(candidate)):
                 return candidate
         return None
@@ -543,8 +603,9 @@ class _Placer:
                 result = self.try_floor(index, spec, self.max_tries)
         if result is None:
             where = "on any wall" if placement == "wall" else "collision-free"
-            doors = (f", {len(self.keep_clear)} zone(s) in front of doors and curtains kept free"
-                     if self.keep_clear else "")
+            doors = (
+                f", {len(self.keep_clear)} zone(s) in front of doors and curtains kept free" if self.keep_clear else ""
+            )
             raise _Failure(
                 f"cannot place {label} in a {self.width:.1f} × {self.depth:.1f} m room: no {where} spot after "
                 f"{self.max_tries} tries (floor {100 * self.floor_cover_fraction():.0f}% covered{doors})"
@@ -582,8 +643,13 @@ class _Placer:
             return self.try_against_wall(index, spec, self.max_tries // 2, self._clear_of_windows)
         if role == "dining_table":
             # First a spot with the chair zone free all round, then any aligned spot.
-            return self.try_floor(index, spec, self.max_tries // 2, aligned=True,
-                                  accept=lambda c: self._clear_of_windows(c) and self._zone_free(c, DINING_ZONE_M))
+            return self.try_floor(
+                index,
+                spec,
+                self.max_tries // 2,
+                aligned=True,
+                accept=lambda c: self._clear_of_windows(c) and self._zone_free(c, DINING_ZONE_M),
+            )
         if role == "coffee_table":
             for host in of.get("sofa", []) + of.get("armchair", []):
                 found = self._in_front_of(index, spec, host, COFFEE_TABLE_GAP_M)
@@ -593,20 +659,27 @@ class _Placer:
         if role in ("lounge_seat", "chair"):
             if role == "chair":
                 for table in of.get("dining_table", []):
-                    found = self._round_table(index, spec, table, _dining_slots(table.spec), DINING_CHAIR_GAP_M,
-                                              CHAIR_YAW_JITTER_DEG, "around_table")
+                    found = self._round_table(
+                        index,
+                        spec,
+                        table,
+                        _dining_slots(table.spec),
+                        DINING_CHAIR_GAP_M,
+                        CHAIR_YAW_JITTER_DEG,
+                        "around_table",
+                    )
                     if found:
                         return found
             jitter = ARMCHAIR_YAW_JITTER_DEG if role == "lounge_seat" else CHAIR_YAW_JITTER_DEG
             for table in of.get("coffee_table", []):
-                found = self._round_table(index, spec, table, self._lounge_slots(table), LOUNGE_GAP_M, jitter,
-                                          "facing")
+                found = self._round_table(index, spec, table, self._lounge_slots(table), LOUNGE_GAP_M, jitter, "facing")
                 if found:
                     return found
             if role == "lounge_seat":
                 for sofa in of.get("sofa", []):
-                    found = self._in_front_of(index, spec, sofa, FACING_SOFA_GAP_M, turn_deg=180.0,
-                                              jitter_deg=jitter, relation="facing")
+                    found = self._in_front_of(
+                        index, spec, sofa, FACING_SOFA_GAP_M, turn_deg=180.0, jitter_deg=jitter, relation="facing"
+                    )
                     if found:
                         return found
             return self.try_against_wall(index, spec, self.max_tries // 4, self._clear_of_windows)
@@ -616,8 +689,7 @@ class _Placer:
                 if found:
                     return found
             for table in of.get("coffee_table", []):
-                found = self._round_table(index, spec, table, self._lounge_slots(table), FOOTSTOOL_GAP_M, 0.0,
-                                          "facing")
+                found = self._round_table(index, spec, table, self._lounge_slots(table), FOOTSTOOL_GAP_M, 0.0, "facing")
                 if found:
                     return found
             return None
@@ -633,8 +705,12 @@ class _Placer:
     def _inside_room(self, candidate: _Placed, grow_m: float = 0.0) -> bool:
         corners = _corners(candidate.spec, candidate.x, candidate.y, candidate.yaw_deg, grow_m)
         gap = WALL_GAP_M - 1e-9 if grow_m == 0.0 else -1e-9
-        return bool(np.all(corners[:, 0] >= gap) and np.all(corners[:, 0] <= self.width - gap)
-                    and np.all(corners[:, 1] >= gap) and np.all(corners[:, 1] <= self.depth - gap))
+        return bool(
+            np.all(corners[:, 0] >= gap)
+            and np.all(corners[:, 0] <= self.width - gap)
+            and np.all(corners[:, 1] >= gap)
+            and np.all(corners[:, 1] <= self.depth - gap)
+        )
 
     def _clear_of_windows(self, candidate: _Placed) -> bool:
         # try_floor keeps free items off the walls; arranged items can end up against one (a lamp beside a
@@ -651,15 +727,24 @@ class _Placer:
 
     def _zone_free(self, candidate: _Placed, zone_m: float) -> bool:
         """The candidate grown by ``zone_m`` (m) on every side stays inside the room and clear of everything."""
-        grown = _Placed(candidate.index, candidate.spec, candidate.x, candidate.y, 0.0, candidate.yaw_deg,
-                        "floor", None)
+        grown = _Placed(
+            candidate.index, candidate.spec, candidate.x, candidate.y, 0.0, candidate.yaw_deg, "floor", None
+        )
         if not self._inside_room(grown, zone_m):
             return False
         grown.prepare(self.grow + zone_m)
         return not any(_overlap(grown, other) for other in [*self.keep_clear, *self.placed])
 
-    def _relative(self, index: int, spec: dict[str, Any], host: _Placed, local_x_m: float, local_y_m: float,
-                  relative_yaw_deg: float, relation: str) -> _Placed | None:
+    def _relative(
+        self,
+        index: int,
+        spec: dict[str, Any],
+        host: _Placed,
+        local_x_m: float,
+        local_y_m: float,
+        relative_yaw_deg: float,
+        relation: str,
+    ) -> _Placed | None:
         """The item at (local_x_m, local_y_m) in the host's frame, turned relative_yaw_deg from the host, if free."""
         c, s = math.cos(math.radians(host.yaw_deg)), math.sin(math.radians(host.yaw_deg))
         x = round(host.x + c * local_x_m - s * local_y_m, 6)
@@ -670,8 +755,17 @@ class _Placer:
             return candidate
         return None
 
-    def _in_front_of(self, index: int, spec: dict[str, Any], host: _Placed, gap_m: tuple[float, float], *,
-                     turn_deg: float = 0.0, jitter_deg: float = 0.0, relation: str = "in_front_of") -> _Placed | None:
+    def _in_front_of(
+        self,
+        index: int,
+        spec: dict[str, Any],
+        host: _Placed,
+        gap_m: tuple[float, float],
+        *,
+        turn_deg: float = 0.0,
+        jitter_deg: float = 0.0,
+        relation: str = "in_front_of",
+    ) -> _Placed | None:
         """Centred in front of the host (its local +y), ``gap_m`` from its front edge; facing the host's way
         turned by ``turn_deg`` (180: facing the host)."""
         host_hd = host.spec["footprint_m"][1] / 2
@@ -710,8 +804,16 @@ class _Placer:
             sides.append("-y")
         return [(side, 0.0) for side in sides]
 
-    def _round_table(self, index: int, spec: dict[str, Any], table: _Placed, slots: list[tuple[str, float]],
-                     gap_m: tuple[float, float], jitter_deg: float, relation: str) -> _Placed | None:
+    def _round_table(
+        self,
+        index: int,
+        spec: dict[str, Any],
+        table: _Placed,
+        slots: list[tuple[str, float]],
+        gap_m: tuple[float, float],
+        jitter_deg: float,
+        relation: str,
+    ) -> _Placed | None:
         """A seat at one of the table's places (side, offset along it), its front ``gap_m`` from the edge,
         facing the table."""
         t_hw, t_hd = table.spec["footprint_m"][0] / 2, table.spec["footprint_m"][1] / 2
@@ -724,8 +826,12 @@ class _Placer:
                 distance = float(self.rng.uniform(*gap_m)) + item_hd
                 jitter = float(self.rng.uniform(-jitter_deg, jitter_deg)) if jitter_deg else 0.0
                 # The seat's front (local +y) turned to the table: yaw relative to the table per side.
-                lx, ly, yaw = {"-y": (along, -(t_hd + distance), 0.0), "+y": (along, t_hd + distance, 180.0),
-                               "+x": (t_hw + distance, along, 90.0), "-x": (-(t_hw + distance), along, 270.0)}[side]
+                lx, ly, yaw = {
+                    "-y": (along, -(t_hd + distance), 0.0),
+                    "+y": (along, t_hd + distance, 180.0),
+                    "+x": (t_hw + distance, along, 90.0),
+                    "-x": (-(t_hw + distance), along, 270.0),
+                }[side]
                 found = self._relative(index, spec, table, lx, ly, yaw + jitter, relation)
                 if found:
                     return found
@@ -752,21 +858,25 @@ def _order(asset_specs: list[dict[str, Any]]) -> list[int]:
     Large items first is the classic greedy heuristic for packing; surface
     items need their tables placed, wall items must see what stands below.
     """
+
     def key(i: int) -> tuple[int, float, int]:
         spec = asset_specs[i]
         rank = {"floor": 0, "surface": 1, "wall": 2}[spec["placement"]]
         return rank, -spec["footprint_m"][0] * spec["footprint_m"][1], i
+
     return sorted(range(len(asset_specs)), key=key)
 
 
 def _order_home(asset_specs: list[dict[str, Any]]) -> list[int]:
     """Placement order of a home arrangement: floor items by role (:data:`HOME_ROLES`: what others are arranged
     round comes first), largest first within a role; then surface items, then wall items."""
+
     def key(i: int) -> tuple[int, int, float, int]:
         spec = asset_specs[i]
         rank = {"floor": 0, "surface": 1, "wall": 2}[spec["placement"]]
         role = _ROLE_ORDER.index(HOME_ROLES.get(spec["class_name"], "other")) if rank == 0 else 0
         return rank, role, -spec["footprint_m"][0] * spec["footprint_m"][1], i
+
     return sorted(range(len(asset_specs)), key=key)
 
 
@@ -788,8 +898,9 @@ def arrangement_of(obj: dict[str, Any]) -> tuple[str, int | None]:
     return relation, int(related) if related else None
 
 
-def _check_composition(room: dict[str, Any], asset_specs: list[dict[str, Any]],
-                       max_objects_per_m2: float | None) -> None:
+def _check_composition(
+    room: dict[str, Any], asset_specs: list[dict[str, Any]], max_objects_per_m2: float | None
+) -> None:
     width, depth = float(room["width_m"]), float(room["depth_m"])
     area = width * depth
     size = f"{width:.1f} × {depth:.1f} m room"
@@ -805,13 +916,16 @@ def _check_composition(room: dict[str, Any], asset_specs: list[dict[str, Any]],
         w, d = spec["footprint_m"]
         if spec["placement"] == "wall":
             if w + 0.1 > max(width, depth) or spec["height_m"] > float(room["height_m"]) - CEILING_GAP_M:
-                raise LayoutError(f"cannot place {spec['class_name']} ({w:.2f} m wide): larger than any wall "
-                                  f"of the {size}")
+                raise LayoutError(
+                    f"cannot place {spec['class_name']} ({w:.2f} m wide): larger than any wall of the {size}"
+                )
             continue
         fits = any(a + 2 * WALL_GAP_M <= width and b + 2 * WALL_GAP_M <= depth for a, b in ((w, d), (d, w)))
         if not fits or spec["height_m"] > float(room["height_m"]) - CEILING_GAP_M:
-            raise LayoutError(f"cannot place {spec['class_name']} ({w:.2f} × {d:.2f} × {spec['height_m']:.2f} m): "
-                              f"larger than the {size} × {float(room['height_m']):.1f} m")
+            raise LayoutError(
+                f"cannot place {spec['class_name']} ({w:.2f} × {d:.2f} × {spec['height_m']:.2f} m): "
+                f"larger than the {size} × {float(room['height_m']):.1f} m"
+            )
     floor_specs = [s for s in asset_specs if s["placement"] == "floor"]
     need = sum(s["footprint_m"][0] * s["footprint_m"][1] for s in floor_specs)
     if need > area:
@@ -821,9 +935,17 @@ def _check_composition(room: dict[str, Any], asset_specs: list[dict[str, Any]],
         )
 
 
-def place_objects(room: dict[str, Any], asset_specs: list[dict[str, Any]], rng: np.random.Generator, *,
-                  max_objects_per_m2: float | None = None, clearance_m: float = DEFAULT_CLEARANCE_M,
-                  max_tries: int = DEFAULT_MAX_TRIES, restarts: int = 3, mode: str = "free") -> list[dict[str, Any]]:
+def place_objects(
+    room: dict[str, Any],
+    asset_specs: list[dict[str, Any]],
+    rng: np.random.Generator,
+    *,
+    max_objects_per_m2: float | None = None,
+    clearance_m: float = DEFAULT_CLEARANCE_M,
+    max_tries: int = DEFAULT_MAX_TRIES,
+    restarts: int = 3,
+    mode: str = "free",
+) -> list[dict[str, Any]]:
     """Place every asset spec in the room without collisions; return the objects in input order.
 
     Each object is its asset spec plus ``instance_id`` (1-based, input order),
@@ -916,23 +1038,42 @@ class ClutterPlacer:
     base height (m); it returns the base height to use, or None to refuse the spot.
     """
 
-    def __init__(self, room: dict[str, Any], objects: list[dict[str, Any]], rng: np.random.Generator, *,
-                 clearance_m: float = DEFAULT_CLEARANCE_M) -> None:
+    def __init__(
+        self,
+        room: dict[str, Any],
+        objects: list[dict[str, Any]],
+        rng: np.random.Generator,
+        *,
+        clearance_m: float = DEFAULT_CLEARANCE_M,
+    ) -> None:
         self._placer = _Placer(room, rng, clearance_m, DEFAULT_MAX_TRIES)
         self._instance_ids: list[int | None] = []
         by_instance = {int(obj["instance_id"]): i for i, obj in enumerate(objects)}
         for i, obj in enumerate(objects):
             x, y, z = (float(v) for v in obj["position_m"])
             support = obj.get("support_instance_id")
-            placed = _Placed(i, obj, x, y, z, float(obj["yaw_deg"]), str(obj.get("anchor", "floor")),
-                             None if support is None else by_instance.get(int(support)), wall=obj.get("wall"))
+            placed = _Placed(
+                i,
+                obj,
+                x,
+                y,
+                z,
+                float(obj["yaw_deg"]),
+                str(obj.get("anchor", "floor")),
+                None if support is None else by_instance.get(int(support)),
+                wall=obj.get("wall"),
+            )
             self._placer.placed.append(placed.prepare(self._placer.grow))
             self._instance_ids.append(int(obj["instance_id"]))
 
     def _item(self, item: dict[str, Any], placement: str) -> dict[str, Any]:
-        return {"footprint_m": [float(v) for v in item["footprint_m"]], "height_m": float(item["height_m"]),
-                "placement": placement, "support_surfaces": [],
-                **({"mount_height_m": float(item["mount_height_m"])} if "mount_height_m" in item else {})}
+        return {
+            "footprint_m": [float(v) for v in item["footprint_m"]],
+            "height_m": float(item["height_m"]),
+            "placement": placement,
+            "support_surfaces": [],
+            **({"mount_height_m": float(item["mount_height_m"])} if "mount_height_m" in item else {}),
+        }
 
     def _wrap(self, accept: Callable[[Polygon, float], float | None] | None) -> tuple[_Accept | None, dict]:
         chosen: dict[str, float] = {}
@@ -945,6 +1086,7 @@ class ClutterPlacer:
                 return False
             chosen["z"] = float(z)
             return True
+
         return check, chosen
 
     def _commit(self, placed: _Placed | None, chosen: dict[str, float]) -> dict[str, Any] | None:
@@ -956,16 +1098,24 @@ class ClutterPlacer:
         self._placer.placed.append(placed)
         self._instance_ids.append(None)
         host = None if placed.support_index is None else self._instance_ids[placed.support_index]
-        out: dict[str, Any] = {"position_m": [round(placed.x, 6), round(placed.y, 6), round(placed.z, 6)],
-                               "yaw_deg": round(placed.yaw_deg, 6), "anchor": placed.anchor,
-                               "support_instance_id": host}
+        out: dict[str, Any] = {
+            "position_m": [round(placed.x, 6), round(placed.y, 6), round(placed.z, 6)],
+            "yaw_deg": round(placed.yaw_deg, 6),
+            "anchor": placed.anchor,
+            "support_instance_id": host,
+        }
         if placed.wall is not None:
             out["wall"] = placed.wall
         return out
 
-    def floor(self, item: dict[str, Any], *, against_wall_probability: float = 0.0,
-              tries: int = CLUTTER_FLOOR_TRIES,
-              accept: Callable[[Polygon, float], float | None] | None = None) -> dict[str, Any] | None:
+    def floor(
+        self,
+        item: dict[str, Any],
+        *,
+        against_wall_probability: float = 0.0,
+        tries: int = CLUTTER_FLOOR_TRIES,
+        accept: Callable[[Polygon, float], float | None] | None = None,
+    ) -> dict[str, Any] | None:
         """Stand the item on the floor: back to a wall with ``against_wall_probability``, else anywhere free."""
         spec = self._item(item, "floor")
         index = len(self._placer.placed)
@@ -977,15 +1127,21 @@ class ClutterPlacer:
             placed = self._placer.try_floor(index, spec, tries, check)
         return self._commit(placed, chosen)
 
-    def surface(self, item: dict[str, Any], *,
-                accept: Callable[[Polygon, float], float | None] | None = None) -> dict[str, Any] | None:
+    def surface(
+        self, item: dict[str, Any], *, accept: Callable[[Polygon, float], float | None] | None = None
+    ) -> dict[str, Any] | None:
         """Stand the item on a support surface (table top, shelf top, tray) of an object, inside its rectangle."""
         spec = self._item(item, "surface")
         check, chosen = self._wrap(accept)
         return self._commit(self._placer.try_surface(len(self._placer.placed), spec, check), chosen)
 
-    def wall(self, item: dict[str, Any], *, tries: int = CLUTTER_WALL_TRIES,
-             accept: Callable[[Polygon, float], float | None] | None = None) -> dict[str, Any] | None:
+    def wall(
+        self,
+        item: dict[str, Any],
+        *,
+        tries: int = CLUTTER_WALL_TRIES,
+        accept: Callable[[Polygon, float], float | None] | None = None,
+    ) -> dict[str, Any] | None:
         """Hang the item on a wall at its ``mount_height_m``, clear of windows and of whatever stands there."""
         spec = self._item(item, "wall")
         check, chosen = self._wrap(accept)

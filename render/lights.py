@@ -32,11 +32,13 @@ import numpy as np
 from .rounding import round_floats
 
 #: CIE XYZ → linear sRGB (IEC 61966-2-1:1999, D65 white, BT.709 primaries).
-XYZ_TO_LINEAR_SRGB = np.array([
-    [3.2406, -1.5372, -0.4986],
-    [-0.9689, 1.8758, 0.0415],
-    [0.0557, -0.2040, 1.0570],
-])
+XYZ_TO_LINEAR_SRGB = np.array(
+    [
+        [3.2406, -1.5372, -0.4986],
+        [-0.9689, 1.8758, 0.0415],
+        [0.0557, -0.2040, 1.0570],
+    ]
+)
 LUMINANCE_WEIGHTS = np.array([0.2126, 0.7152, 0.0722])
 
 #: Daylight colour temperatures (K): direct sun 5000–6500 K, sky 6500–10 000 K (CIE daylight, from memory).
@@ -428,13 +430,15 @@ def sample_lights(budget: dict[str, Any], room: dict[str, Any], objects: list[di
         dome_lux = _uniform(rng, lighting["dome_illuminance_lux"])
         if rng.random() < float(lighting["sun_probability"]):
             window = windows[int(rng.integers(len(windows)))]
-            daylight.append({
-                "kind": "sun",
-                "elevation_deg": _uniform(rng, lighting["sun_elevation_deg"]),
-                "azimuth_deg": _sample_sun_azimuth(rng, lighting["sun_azimuth_deg"], window["wall"]),
-                "illuminance_lux": _uniform(rng, lighting["sun_illuminance_lux"]),
-                "cct_k": _uniform(rng, SUN_CCT_K),
-            })
+            daylight.append(
+                {
+                    "kind": "sun",
+                    "elevation_deg": _uniform(rng, lighting["sun_elevation_deg"]),
+                    "azimuth_deg": _sample_sun_azimuth(rng, lighting["sun_azimuth_deg"], window["wall"]),
+                    "illuminance_lux": _uniform(rng, lighting["sun_illuminance_lux"]),
+                    "cct_k": _uniform(rng, SUN_CCT_K),
+                }
+            )
         daylight.append({"kind": "dome", "illuminance_lux": dome_lux, "cct_k": _uniform(rng, SKY_CCT_K)})
         has_sun = daylight[0]["kind"] == "sun" and daylight[0]["illuminance_lux"] > 0
         needs_lamp = not has_sun and dome_lux < DOME_ONLY_MIN_LUX

@@ -51,7 +51,6 @@ MAX_VERTICES = 1_000_000
 MAX_FILE_BYTES = 256 * 1024 * 1024
 
 
-
 class MeshError(ValueError):
     """A user mesh cannot be used: unreadable, unsupported, empty, non-finite, absurd scale or too heavy."""
 
@@ -69,8 +68,6 @@ def guess_unit(largest_extent: float) -> str:
     if largest_extent <= 500.0:
         return "cm"
     return "mm"
-
-
 
 
 def _signed_axis(value: str) -> np.ndarray:
@@ -161,8 +158,9 @@ def _read(file_path: Path, name: str, extension: str) -> object:
         raise MeshError(f"mesh {name}: unreadable or corrupt {extension[1:].upper()} file ({reason[:120]})") from exc
 
 
-def load_user_model(path: str | os.PathLike[str], *, unit: str = "auto", up_axis: str = "z",
-                    front: str | None = None) -> UserModel:
+def load_user_model(
+    path: str | os.PathLike[str], *, unit: str = "auto", up_axis: str = "z", front: str | None = None
+) -> UserModel:
     """Load a user model, one :class:`UserPart` per material, normalized to metres, z up, front +y,
     footprint centred, base on z = 0.
 
@@ -203,7 +201,9 @@ def load_user_model(path: str | os.PathLike[str], *, unit: str = "auto", up_axis
     if size_bytes == 0:
         raise MeshError(f"mesh {name}: the file is empty (0 bytes)")
     if size_bytes > MAX_FILE_BYTES:
-        raise MeshError(f"mesh {name}: file is {size_bytes / 2**20:.0f} MiB, over the {MAX_FILE_BYTES // 2**20} MiB limit")
+        raise MeshError(
+            f"mesh {name}: file is {size_bytes / 2**20:.0f} MiB, over the {MAX_FILE_BYTES // 2**20} MiB limit"
+        )
     try:
         check_textures_present(file_path)
     except ValueError as exc:
@@ -258,8 +258,9 @@ def load_user_model(path: str | os.PathLike[str], *, unit: str = "auto", up_axis
     return UserModel(parts=parts, unit=chosen_unit)
 
 
-def load_user_mesh(path: str | os.PathLike[str], *, unit: str = "auto", up_axis: str = "z",
-                   front: str | None = None) -> trimesh.Trimesh:
+def load_user_mesh(
+    path: str | os.PathLike[str], *, unit: str = "auto", up_axis: str = "z", front: str | None = None
+) -> trimesh.Trimesh:
     """:func:`load_user_model` as one mesh (geometry only): metres, z up, front +y, footprint centred, base on z = 0.
 
     Raises
@@ -305,8 +306,10 @@ def extract_model_zip(zip_path: str | os.PathLike[str], dest_dir: str | os.PathL
             raise MeshError(f"zip {name}: {len(members)} files, over the {MAX_ZIP_MEMBERS} limit")
         total = sum(m.file_size for m in members)
         if total > MAX_ZIP_UNCOMPRESSED_BYTES:
-            raise MeshError(f"zip {name}: unpacks to {total / 2**20:.0f} MiB, over the "
-                            f"{MAX_ZIP_UNCOMPRESSED_BYTES // 2**20} MiB limit")
+            raise MeshError(
+                f"zip {name}: unpacks to {total / 2**20:.0f} MiB, over the "
+                f"{MAX_ZIP_UNCOMPRESSED_BYTES // 2**20} MiB limit"
+            )
         plan = []
         for member in members:
             relative = _safe_member_name(member.filename)
@@ -315,8 +318,10 @@ def extract_model_zip(zip_path: str | os.PathLike[str], dest_dir: str | os.PathL
             if stat.S_ISLNK(member.external_attr >> 16):
                 raise MeshError(f"zip {name}: the entry {relative[:80]!r} is a symbolic link")
             if member.file_size > MAX_ZIP_RATIO * max(member.compress_size, 1) and member.file_size > 1024 * 1024:
-                raise MeshError(f"zip {name}: the entry {relative[:80]!r} expands {member.file_size / max(member.compress_size, 1):.0f}:1, "
-                                "which looks like a zip bomb")
+                raise MeshError(
+                    f"zip {name}: the entry {relative[:80]!r} expands {member.file_size / max(member.compress_size, 1):.0f}:1, "
+                    "which looks like a zip bomb"
+                )
             if member.flag_bits & 0x1:
                 raise MeshError(f"zip {name}: the entry {relative[:80]!r} is encrypted")
             plan.append((member, relative))

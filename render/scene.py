@@ -68,8 +68,9 @@ def _mi() -> Any:
 # ---------------------------------------------------------------------------
 
 
-def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf: Any | None = None,
-                     uv: np.ndarray | None = None) -> Any:
+def mesh_from_arrays(
+    name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf: Any | None = None, uv: np.ndarray | None = None
+) -> Any:
     """An in-memory ``mi.Mesh`` from (V, 3) vertices in metres, (F, 3) vertex indices and optional (V, 2)
     texture coordinates.
 
@@ -85,8 +86,13 @@ def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf:
     props.set_id(name)
     if bsdf is not None:
         props["bsdf"] = bsdf
-    mesh = mi.Mesh(name, vertex_count=vertices.size // 3, face_count=indices.size // 3, props=props,
-                   has_vertex_texcoords=uv is not None)
+    mesh = mi.Mesh(
+        name,
+        vertex_count=vertices.size // 3,
+        face_count=indices.size // 3,
+        props=props,
+        has_vertex_texcoords=uv is not None,
+    )
     params = mi.traverse(mesh)
     # The buffer types differ per variant (scalar: dr.scalar.ArrayXf; llvm: dr.llvm.ad.Float).
     params["vertex_positions"] = type(params["vertex_positions"])(vertices)
@@ -94,14 +100,24 @@ def mesh_from_arrays(name: str, vertices_m: np.ndarray, faces: np.ndarray, bsdf:
     if uv is not None:
         texcoords = np.ascontiguousarray(uv, dtype=np.float32).reshape(-1)
         if texcoords.size != 2 * (vertices.size // 3):
-            raise ValueError(f"mesh {name!r}: {texcoords.size // 2} texture coordinates for {vertices.size // 3} vertices")
+            raise ValueError(
+                f"mesh {name!r}: {texcoords.size // 2} texture coordinates for {vertices.size // 3} vertices"
+            )
         params["vertex_texcoords"] = type(params["vertex_texcoords"])(texcoords)
     params.update()
     return mesh
 
 
-def emitting_quad(name: str, centre_m: Any, half_u_m: Any, half_v_m: Any, normal: Any, *,
-                  bsdf: dict[str, Any], emitter: dict[str, Any] | None) -> Any:
+def emitting_quad(
+    name: str,
+    centre_m: Any,
+    half_u_m: Any,
+    half_v_m: Any,
+    normal: Any,
+    *,
+    bsdf: dict[str, Any],
+    emitter: dict[str, Any] | None,
+) -> Any:
     """A one-sided area emitter on the rectangle ``centre ± half_u ± half_v`` facing ``normal``
     (``emitter=None``: the same quad, not emitting).
 
@@ -113,8 +129,9 @@ def emitting_quad(name: str, centre_m: Any, half_u_m: Any, half_v_m: Any, normal
     """
     mi = _mi()
     centre, half_u, half_v = (np.asarray(v, float).reshape(3) for v in (centre_m, half_u_m, half_v_m))
-    corners = np.array([centre - half_u - half_v, centre + half_u - half_v,
-                        centre + half_u + half_v, centre - half_u + half_v])
+    corners = np.array(
+        [centre - half_u - half_v, centre + half_u - half_v, centre + half_u + half_v, centre - half_u + half_v]
+    )
     faces = np.array([[0, 1, 2], [0, 2, 3]])
     if float(np.dot(np.cross(half_u, half_v), np.asarray(normal, float))) < 0:
         faces = faces[:, ::-1]
@@ -163,8 +180,13 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     colour: dict[str, Any] = {"type": "rgb", "value": rgb}
     if material.get("texture") or material.get("user_texture"):
         # Linear RGB already (raw); bilinear lookup, repeated: the box projection's uv run past 1.
-        colour = {"type": "bitmap", "bitmap": _mi().Bitmap(_base_colour_image(material).copy()), "raw": True,
-                  "filter_type": "bilinear", "wrap_mode": "repeat"}
+        colour = {
+            "type": "bitmap",
+            "bitmap": _mi().Bitmap(_base_colour_image(material).copy()),
+            "raw": True,
+            "filter_type": "bilinear",
+            "wrap_mode": "repeat",
+        }
     alpha = roughness_to_alpha(float(material.get("roughness", 0.5)))
     bsdf_type = _bsdf_type(kind, alpha)
     if bsdf_type == "diffuse":
@@ -172,17 +194,35 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     elif bsdf_type == "plastic":
         inner = {"type": "plastic", "diffuse_reflectance": colour, "int_ior": _IOR[kind]}
     elif bsdf_type == "roughplastic":
-        inner = {"type": "roughplastic", "distribution": "ggx", "alpha": alpha, "diffuse_reflectance": colour,
-                 "int_ior": _IOR[kind]}
+        inner = {
+            "type": "roughplastic",
+            "distribution": "ggx",
+            "alpha": alpha,
+            "diffuse_reflectance": colour,
+            "int_ior": _IOR[kind],
+        }
     else:
-        inner = {"type": "roughconductor", "material": "none", "distribution": "ggx",
-                 "alpha": max(alpha, SMOOTH_ALPHA), "specular_reflectance": colour}
+        inner = {
+            "type": "roughconductor",
+            "material": "none",
+            "distribution": "ggx",
+            "alpha": max(alpha, SMOOTH_ALPHA),
+            "specular_reflectance": colour,
+        }
     normal = _normal_image(material)
     if normal is not None:
         # The relief of tiles and parquet (appearance.NORMAL_MAP_FAMILIES) bends the shading normal.
-        inner = {"type": "normalmap", "bsdf": inner,
-                 "normalmap": {"type": "bitmap", "bitmap": _mi().Bitmap(normal.copy()), "raw": True,
-                               "filter_type": "bilinear", "wrap_mode": "repeat"}}
+        inner = {
+            "type": "normalmap",
+            "bsdf": inner,
+            "normalmap": {
+                "type": "bitmap",
+                "bitmap": _mi().Bitmap(normal.copy()),
+                "raw": True,
+                "filter_type": "bilinear",
+                "wrap_mode": "repeat",
+            },
+        }
     return {"type": "twosided", "material": inner}
 
 
@@ -253,8 +293,13 @@ class BsdfPool:
         # Textured instances are pooled apart, per texture size: their colour is an image, set the same way.
         image = _base_colour_image(snapped) if snapped.get("texture") or snapped.get("user_texture") else None
         normal = _normal_image(snapped)
-        key = (mi.variant(), snapped["kind"], snapped["roughness"], None if image is None else image.shape,
-               None if normal is None else normal.shape)
+        key = (
+            mi.variant(),
+            snapped["kind"],
+            snapped["roughness"],
+            None if image is None else image.shape,
+            None if normal is None else normal.shape,
+        )
         free = self._free.setdefault(key, [])
         if not free:
             return key, mi.load_dict(bsdf_dict(snapped))
@@ -343,20 +388,39 @@ def sensor_dicts(
     # Box filter: each sample lands in one pixel only. A wider filter (Mitsuba's default gaussian)
     # correlates the noise of neighbouring pixels (lag-1 correlation 0.39, measured), which the
     # denoiser then keeps as if it were texture.
-    rgb_film = {"type": "hdrfilm", "width": width_px, "height": height_px, "pixel_format": "rgb",
-                "rfilter": {"type": "box"}}
-    label_film = {"type": "hdrfilm", "width": width_px, "height": height_px, "pixel_format": "rgb",
-                  "rfilter": {"type": "box"}, "sample_border": False}
+    rgb_film = {
+        "type": "hdrfilm",
+        "width": width_px,
+        "height": height_px,
+        "pixel_format": "rgb",
+        "rfilter": {"type": "box"},
+    }
+    label_film = {
+        "type": "hdrfilm",
+        "width": width_px,
+        "height": height_px,
+        "pixel_format": "rgb",
+        "rfilter": {"type": "box"},
+        "sample_border": False,
+    }
     if aperture_radius_m > 0:
-        rgb_sensor: dict[str, Any] = {"type": "thinlens", "aperture_radius": float(aperture_radius_m),
-                                      "focus_distance": float(focus_distance_m), **common}
+        rgb_sensor: dict[str, Any] = {
+            "type": "thinlens",
+            "aperture_radius": float(aperture_radius_m),
+            "focus_distance": float(focus_distance_m),
+            **common,
+        }
     else:
         rgb_sensor = {"type": "perspective", **common}
     rgb_sensor["film"] = rgb_film
     rgb_sensor["sampler"] = {"type": "independent", "sample_count": int(spp)}
-    label_sensor = {"type": "perspective", **common, "film": label_film,
-                    # One un-jittered stratified sample sits at the pixel centre (integer + 0.5).
-                    "sampler": {"type": "stratified", "sample_count": 1, "jitter": False}}
+    label_sensor = {
+        "type": "perspective",
+        **common,
+        "film": label_film,
+        # One un-jittered stratified sample sits at the pixel centre (integer + 0.5).
+        "sampler": {"type": "stratified", "sample_count": 1, "jitter": False},
+    }
     return rgb_sensor, label_sensor
 
 
@@ -378,8 +442,9 @@ def aov_integrator() -> Any:
     mi = _mi()
     key = (mi.variant(), "aov", 0)
     if key not in _INTEGRATORS:
-        _INTEGRATORS[key] = mi.load_dict({"type": "aov",
-                                          "aovs": "shape:shape_index,dist:depth,albedo:albedo,nn:sh_normal"})
+        _INTEGRATORS[key] = mi.load_dict(
+            {"type": "aov", "aovs": "shape:shape_index,dist:depth,albedo:albedo,nn:sh_normal"}
+        )
     return _INTEGRATORS[key]
 
 
@@ -486,8 +551,17 @@ def opaque_lens_constants(scene: Any) -> None:
         params.update()
 
 
-def load_scene(scene_dict: dict[str, Any], *, width_px: int, height_px: int, k_matrix: np.ndarray,
-               rotation: np.ndarray, translation: np.ndarray, spp: int, max_depth: int) -> BuiltScene:
+def load_scene(
+    scene_dict: dict[str, Any],
+    *,
+    width_px: int,
+    height_px: int,
+    k_matrix: np.ndarray,
+    rotation: np.ndarray,
+    translation: np.ndarray,
+    spp: int,
+    max_depth: int,
+) -> BuiltScene:
     """``mi.load_dict`` the scene, find both sensors and build the shape → instance lookup table."""
     mi = _mi()
     scene = mi.load_dict(scene_dict)
@@ -503,10 +577,18 @@ def load_scene(scene_dict: dict[str, Any], *, width_px: int, height_px: int, k_m
     for registry_id, instance_id in registry_to_instance.items():
         lut[registry_id] = instance_id
     return BuiltScene(
-        scene=scene, rgb_sensor=sensors[RGB_SENSOR_ID], label_sensor=sensors[LABEL_SENSOR_ID],
-        width_px=width_px, height_px=height_px, k_matrix=np.asarray(k_matrix, float),
-        rotation=np.asarray(rotation, float), translation=np.asarray(translation, float).reshape(3),
-        spp=spp, max_depth=max_depth, instance_lut=lut, shape_instance=shape_instance,
+        scene=scene,
+        rgb_sensor=sensors[RGB_SENSOR_ID],
+        label_sensor=sensors[LABEL_SENSOR_ID],
+        width_px=width_px,
+        height_px=height_px,
+        k_matrix=np.asarray(k_matrix, float),
+        rotation=np.asarray(rotation, float),
+        translation=np.asarray(translation, float).reshape(3),
+        spp=spp,
+        max_depth=max_depth,
+        instance_lut=lut,
+        shape_instance=shape_instance,
     )
 
 
@@ -533,12 +615,18 @@ def render_radiance(built: BuiltScene, *, seed: int = 0, aux: bool = False) -> R
     """
     mi = _mi()
     seed = int(seed) & 0x7FFFFFFF
-    image = mi.render(built.scene, sensor=built.rgb_sensor, integrator=path_integrator(built.max_depth),
-                      spp=built.spp, seed=seed)
+    image = mi.render(
+        built.scene, sensor=built.rgb_sensor, integrator=path_integrator(built.max_depth), spp=built.spp, seed=seed
+    )
     result = RadiancePass(radiance_rgb=np.array(image, dtype=np.float32)[..., :3])
     if built.sun_scene is not None:
-        sun = mi.render(built.sun_scene, sensor=built.sun_sensor, integrator=path_integrator(built.max_depth),
-                        spp=built.spp * SUN_PASS_SPP_FACTOR, seed=seed)
+        sun = mi.render(
+            built.sun_scene,
+            sensor=built.sun_sensor,
+            integrator=path_integrator(built.max_depth),
+            spp=built.spp * SUN_PASS_SPP_FACTOR,
+            seed=seed,
+        )
         result.radiance_rgb = result.radiance_rgb + np.array(sun, dtype=np.float32)[..., :3]
     if aux:
         labels = render_label_and_aux(built)
@@ -587,9 +675,12 @@ def render_label_and_aux(built: BuiltScene) -> LabelPass:
         cosines = _COSINE_CACHE.setdefault(key, _ray_cosines(built.k_matrix, built.width_px, built.height_px))
     # The ray starts on the near plane: z = (t + near/cos)·cos = t·cos + near.
     depth_m = np.where(distance > 0, distance * cosines + NEAR_CLIP_M, 0.0).astype(np.float32)
-    return LabelPass(instance_ids=instance_ids, depth_m=depth_m,
-                     albedo_rgb=np.ascontiguousarray(image[..., 2:5], dtype=np.float32),
-                     normal_xyz=np.ascontiguousarray(image[..., 5:8], dtype=np.float32))
+    return LabelPass(
+        instance_ids=instance_ids,
+        depth_m=depth_m,
+        albedo_rgb=np.ascontiguousarray(image[..., 2:5], dtype=np.float32),
+        normal_xyz=np.ascontiguousarray(image[..., 5:8], dtype=np.float32),
+    )
 
 
 # ---------------------------------------------------------------------------
@@ -605,8 +696,15 @@ _PART_CACHE_SIZE = 256
 def _cached_parts(key: str, build: Any) -> list[tuple[str, np.ndarray, np.ndarray, dict[str, Any]]]:
     parts = _PART_CACHE.get(key)
     if parts is None:
-        parts = [(part.name, np.asarray(part.mesh.vertices, dtype=np.float32),
-                  np.asarray(part.mesh.faces, dtype=np.uint32), dict(part.material)) for part in build()]
+        parts = [
+            (
+                part.name,
+                np.asarray(part.mesh.vertices, dtype=np.float32),
+                np.asarray(part.mesh.faces, dtype=np.uint32),
+                dict(part.material),
+            )
+            for part in build()
+        ]
         if len(_PART_CACHE) >= _PART_CACHE_SIZE:
             _PART_CACHE.pop(next(iter(_PART_CACHE)))
         _PART_CACHE[key] = parts
@@ -631,8 +729,7 @@ def _look_at(origin: Any, target: Any, up: Any = (0.0, 0.0, 1.0)) -> Any:
     up = np.asarray(up, dtype=float)
     if abs(float(direction @ _normalized(up))) > 0.999:
         up = np.array([0.0, 1.0, 0.0])
-    return mi.ScalarTransform4f().look_at(origin=origin.tolist(), target=(origin + direction).tolist(),
-                                          up=up.tolist())
+    return mi.ScalarTransform4f().look_at(origin=origin.tolist(), target=(origin + direction).tolist(), up=up.tolist())
 
 
 def emitter_sampling_weights(lights: list[dict[str, Any]], room: dict[str, Any]) -> list[float]:
@@ -707,16 +804,28 @@ def glass_bsdf() -> dict[str, Any]:
     portal (which can only emit the same radiance in every direction) and the brute-force pane are the
     same optical model; what differs is only how the light is found, which the portal test checks.
     """
-    return {"type": "mask", "opacity": {"type": "uniform", "value": 1.0 - diffuse_glass_transmittance()},
-            "bsdf": {"type": "conductor", "material": "none"}}
+    return {
+        "type": "mask",
+        "opacity": {"type": "uniform", "value": 1.0 - diffuse_glass_transmittance()},
+        "bsdf": {"type": "conductor", "material": "none"},
+    }
 
 
 def window_glass_entries(room: dict[str, Any]) -> dict[str, Any]:
     """Plain panes (thin dielectric, no emission) in the window openings' outer faces: the glass of
     ``window_light="dome"``, where the sky is found by paths that leave through it."""
-    return {f"window_glass_{index}": emitting_quad(f"window_glass_{index}", frame["centre_m"], frame["u"], frame["v"],
-                                                   frame["normal"], bsdf=glass_bsdf(), emitter=None)
-            for index, frame in enumerate(window_portal_frames(room))}
+    return {
+        f"window_glass_{index}": emitting_quad(
+            f"window_glass_{index}",
+            frame["centre_m"],
+            frame["u"],
+            frame["v"],
+            frame["normal"],
+            bsdf=glass_bsdf(),
+            emitter=None,
+        )
+        for index, frame in enumerate(window_portal_frames(room))
+    }
 
 
 def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
@@ -745,9 +854,16 @@ def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
             centre, u, v, n = (width + t, along, z), (0, 1, 0), (0, 0, -1), (-1, 0, 0)
         else:
             raise ValueError(f"unknown wall {wall!r}")
-        frames.append({"wall": wall, "centre_m": np.array(centre, float), "u": np.array(u, float) * half_w,
-                       "v": np.array(v, float) * half_h, "normal": np.array(n, float),
-                       "area_m2": 4.0 * half_w * half_h})
+        frames.append(
+            {
+                "wall": wall,
+                "centre_m": np.array(centre, float),
+                "u": np.array(u, float) * half_w,
+                "v": np.array(v, float) * half_h,
+                "normal": np.array(n, float),
+                "area_m2": 4.0 * half_w * half_h,
+            }
+        )
     return frames
 
 
@@ -785,10 +901,18 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
             weight = max(1.0, weight)
         name = f"window_portal_{index}"
         entries[name] = emitting_quad(
-            name, frame["centre_m"], frame["u"], frame["v"], frame["normal"],
+            name,
+            frame["centre_m"],
+            frame["u"],
+            frame["v"],
+            frame["normal"],
             bsdf=glass_bsdf(),
-            emitter={"type": "area", "radiance": {"type": "rgb", "value": list(radiance_rgb)},
-                     "sampling_weight": round(float(weight), 6)})
+            emitter={
+                "type": "area",
+                "radiance": {"type": "rgb", "value": list(radiance_rgb)},
+                "sampling_weight": round(float(weight), 6),
+            },
+        )
     return entries
 
 
@@ -816,31 +940,52 @@ def _emitter_entries(light: dict[str, Any], index: int) -> dict[str, dict[str, A
     if kind == "panel":
         size_x, size_y = (float(v) for v in light["size_m"])
         # A ceiling panel emits downwards.
-        return {f"light_{index}_panel": {
-            "quad": (light["center_m"], (size_x / 2.0, 0.0, 0.0), (0.0, size_y / 2.0, 0.0), (0.0, 0.0, -1.0)),
-            "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.8, 0.8, 0.8]}},
-            "emitter": {"type": "area", "radiance": {"type": "rgb", "value": quantities["radiance_rgb"]}},
-        }}
+        return {
+            f"light_{index}_panel": {
+                "quad": (light["center_m"], (size_x / 2.0, 0.0, 0.0), (0.0, size_y / 2.0, 0.0), (0.0, 0.0, -1.0)),
+                "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.8, 0.8, 0.8]}},
+                "emitter": {"type": "area", "radiance": {"type": "rgb", "value": quantities["radiance_rgb"]}},
+            }
+        }
     if kind == "point":
-        return {f"light_{index}_point": {"type": "point", "position": [float(v) for v in light["position_m"]],
-                                         "intensity": {"type": "rgb", "value": quantities["intensity_rgb"]}}}
+        return {
+            f"light_{index}_point": {
+                "type": "point",
+                "position": [float(v) for v in light["position_m"]],
+                "intensity": {"type": "rgb", "value": quantities["intensity_rgb"]},
+            }
+        }
     if kind == "spot":
-        return {f"light_{index}_spot": {
-            "type": "spot", "to_world": _look_at(light["position_m"], light["target_m"]),
-            "intensity": {"type": "rgb", "value": quantities["intensity_rgb"]},
-            "cutoff_angle": float(quantities["cutoff_angle_deg"]), "beam_width": float(quantities["beam_width_deg"]),
-        }}
+        return {
+            f"light_{index}_spot": {
+                "type": "spot",
+                "to_world": _look_at(light["position_m"], light["target_m"]),
+                "intensity": {"type": "rgb", "value": quantities["intensity_rgb"]},
+                "cutoff_angle": float(quantities["cutoff_angle_deg"]),
+                "beam_width": float(quantities["beam_width_deg"]),
+            }
+        }
     if kind == "sun":
-        return {f"light_{index}_sun": {"type": "directional", "direction": quantities["direction"],
-                                       "irradiance": {"type": "rgb", "value": quantities["irradiance_rgb"]}}}
+        return {
+            f"light_{index}_sun": {
+                "type": "directional",
+                "direction": quantities["direction"],
+                "irradiance": {"type": "rgb", "value": quantities["irradiance_rgb"]},
+            }
+        }
     if kind == "dome":
-        return {f"light_{index}_dome": {"type": "constant",
-                                        "radiance": {"type": "rgb", "value": quantities["radiance_rgb"]}}}
+        return {
+            f"light_{index}_dome": {
+                "type": "constant",
+                "radiance": {"type": "rgb", "value": quantities["radiance_rgb"]},
+            }
+        }
     raise ValueError(f"unknown light kind {kind!r}")
 
 
-def scene_parts(spec: dict[str, Any]) -> tuple[list[tuple[str, np.ndarray, np.ndarray, dict[str, Any]]],
-                                              dict[int, list[tuple[np.ndarray, np.ndarray]]]]:
+def scene_parts(
+    spec: dict[str, Any],
+) -> tuple[list[tuple[str, np.ndarray, np.ndarray, dict[str, Any]]], dict[int, list[tuple[np.ndarray, np.ndarray]]]]:
     """World-space parts ``(shape_id, vertices, faces, material)`` of the room, objects and distractors, and per
     instance id its ``(vertices, faces)`` list (the labels' amodal geometry).
 
@@ -854,7 +999,8 @@ def scene_parts(spec: dict[str, Any]) -> tuple[list[tuple[str, np.ndarray, np.nd
     parts: list[tuple[str, np.ndarray, np.ndarray, dict[str, Any]]] = []
     room = spec["room"]
     for k, (name, vertices, faces, material) in enumerate(
-            _cached_parts("room:" + _json_key(room), lambda: room_parts(room))):
+        _cached_parts("room:" + _json_key(room), lambda: room_parts(room))
+    ):
         safe = re.sub(r"[^A-Za-z0-9_]", "_", name)
         parts.append((f"room_{k}_{safe}", vertices, faces, material))
     triangles: dict[int, list[tuple[np.ndarray, np.ndarray]]] = {}
@@ -867,8 +1013,9 @@ def scene_parts(spec: dict[str, Any]) -> tuple[list[tuple[str, np.ndarray, np.nd
         for k, (_, vertices, faces, material) in enumerate(object_parts):
             parts.append((f"i{instance_id}_p{k}", vertices, faces, material))
     for k, distractor in enumerate(spec.get("distractors") or []):
-        distractor_parts = _cached_parts("distractor:" + _json_key(distractor),
-                                         lambda d=distractor: distractor_world_parts(d))
+        distractor_parts = _cached_parts(
+            "distractor:" + _json_key(distractor), lambda d=distractor: distractor_world_parts(d)
+        )
         for j, (_, vertices, faces, material) in enumerate(distractor_parts):
             parts.append((f"d{k}_p{j}", vertices, faces, material))
     return parts, triangles
@@ -900,7 +1047,12 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
     camera = spec["camera"]
     rotation, translation, k_matrix = camera_matrices(camera, width_px, height_px)
     rgb_sensor, label_sensor = sensor_dicts(
-        k_matrix, rotation, translation, width_px, height_px, spp=int(render["spp"]),
+        k_matrix,
+        rotation,
+        translation,
+        width_px,
+        height_px,
+        spp=int(render["spp"]),
         aperture_radius_m=aperture_radius_m(camera["focal_length_mm"], camera["f_number"]),
         focus_distance_m=float(camera["focus_distance_m"]),
     )
@@ -932,8 +1084,12 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
                     frame = texture_frame(spec["distractors"][int(distractor.group(1))], material)
                 vertices, faces, uv = box_uv(vertices, faces, float(material["texture"]["tile_size_m"]), frame)
             shapes[shape_id] = mesh_from_arrays(shape_id, vertices, faces, bsdfs[key], uv=uv)
-        scene_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: rgb_sensor, LABEL_SENSOR_ID: label_sensor,
-                                      **shapes}
+        scene_dict: dict[str, Any] = {
+            "type": "scene",
+            RGB_SENSOR_ID: rgb_sensor,
+            LABEL_SENSOR_ID: label_sensor,
+            **shapes,
+        }
         if use_portals:
             reference_lm = _mean_lamp_flux_lm(lights)
             for index, light in enumerate(lights):
@@ -948,16 +1104,25 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
             for index, (light, weight) in enumerate(zip(lights, weights, strict=True)):
                 if light["kind"] != "sun" or not sun_lights:
                     scene_dict.update(emitter_entries(light, index, sampling_weight=weight))
-        built = load_scene(scene_dict, width_px=width_px, height_px=height_px, k_matrix=k_matrix,
-                           rotation=rotation, translation=translation, spp=int(render["spp"]),
-                           max_depth=int(render["max_depth"]))
+        built = load_scene(
+            scene_dict,
+            width_px=width_px,
+            height_px=height_px,
+            k_matrix=k_matrix,
+            rotation=rotation,
+            translation=translation,
+            spp=int(render["spp"]),
+            max_depth=int(render["max_depth"]),
+        )
         built.window_light = window_light
         if sun_lights:
             sun_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: dict(rgb_sensor), **shapes}
             for index, light in enumerate(lights):
                 if light["kind"] == "sun":
-                    through_glass = {**light, "illuminance_lux": float(light["illuminance_lux"])
-                                     * diffuse_glass_transmittance()}
+                    through_glass = {
+                        **light,
+                        "illuminance_lux": float(light["illuminance_lux"]) * diffuse_glass_transmittance(),
+                    }
                     sun_dict.update(emitter_entries(through_glass, index))
             built.sun_scene = _mi().load_dict(sun_dict)
             opaque_lens_constants(built.sun_scene)

@@ -43,8 +43,7 @@ class SpecError(ValueError):
 
 def spec_to_json(spec: dict[str, Any]) -> str:
     """Canonical JSON text: sorted keys, compact separators, floats rounded. Same spec → same bytes."""
-    return json.dumps(round_floats(spec), sort_keys=True, separators=(",", ":"), ensure_ascii=False,
-                      allow_nan=False)
+    return json.dumps(round_floats(spec), sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
 
 
 def spec_from_json(text: str) -> dict[str, Any]:
@@ -62,11 +61,14 @@ def _check_seed(name: str, value: Any) -> int:
     return int(value)
 
 
-def derive_sub_seeds(seed: int, *, layout_seed: int | None = None, lighting_seed: int | None = None,
-                     camera_seed: int | None = None) -> dict[str, int]:
+def derive_sub_seeds(
+    seed: int, *, layout_seed: int | None = None, lighting_seed: int | None = None, camera_seed: int | None = None
+) -> dict[str, int]:
     """One 32-bit sub-seed per axis, from ``numpy.random.SeedSequence(seed).spawn``; overrides win."""
     children = np.random.SeedSequence(_check_seed("seed", seed)).spawn(len(AXES))
-    derived = {axis: int(child.generate_state(1, dtype=np.uint32)[0]) for axis, child in zip(AXES, children, strict=True)}
+    derived = {
+        axis: int(child.generate_state(1, dtype=np.uint32)[0]) for axis, child in zip(AXES, children, strict=True)
+    }
     overrides = {"layout": layout_seed, "lighting": lighting_seed, "camera": camera_seed}
     for axis, value in overrides.items():
         if value is not None:
@@ -163,20 +165,23 @@ def make_spec(
 
     normalized = normalize_budget(budget)
     clean_composition = validate_composition(composition)
-    sub_seeds = derive_sub_seeds(seed, layout_seed=layout_seed, lighting_seed=lighting_seed,
-                                 camera_seed=camera_seed)
+    sub_seeds = derive_sub_seeds(seed, layout_seed=layout_seed, lighting_seed=lighting_seed, camera_seed=camera_seed)
     if view_slot is not None:
         _check_seed("view_slot", view_slot)
 
     layout_rng = axis_rng(sub_seeds, "layout")
     room = round_floats(sample_room(normalized, layout_rng))
     clean_user_assets = _clean_user_assets(user_assets, clean_composition)
-    asset_specs = [_sample_object(name, layout_rng, clean_user_assets.get(name, ()))
-                   for name, count in clean_composition.items() for _ in range(count)]
+    asset_specs = [
+        _sample_object(name, layout_rng, clean_user_assets.get(name, ()))
+        for name, count in clean_composition.items()
+        for _ in range(count)
+    ]
     # One draw on the layout stream picks free placement or a home arrangement (layout.choose_layout_mode).
     layout_mode = choose_layout_mode(normalized["room"]["free_placement_probability"], layout_rng)
-    objects = place_objects(room, asset_specs, layout_rng,
-                            max_objects_per_m2=normalized["room"]["max_objects_per_m2"], mode=layout_mode)
+    objects = place_objects(
+        room, asset_specs, layout_rng, max_objects_per_m2=normalized["room"]["max_objects_per_m2"], mode=layout_mode
+    )
     objects = round_floats(objects)
     # Distractors (unlabelled clutter) go in after the labelled objects, on a stream of their own keyed by the
     # layout; with distractor_count [0, 0] nothing is drawn and the spec is what it was without them.
@@ -216,13 +221,13 @@ def make_spec(
     return spec_from_json(spec_to_json(spec))
 
 
-
 _USER_ENTRY_KEYS = ("asset_id", "mesh_path", "unit", "up_axis", "placement", "front", "look")
 _USER_LOOKS = ("keep", "randomize")
 
 
-def _clean_user_assets(user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None,
-                       composition: dict[str, int]) -> dict[str, list[dict[str, str]]]:
+def _clean_user_assets(
+    user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None, composition: dict[str, int]
+) -> dict[str, list[dict[str, str]]]:
     """The entries of the classes in the composition (with at least one instance), in a fixed order.
 
     ``front`` and ``look`` are kept only when they differ from the defaults (no front: the up axis's default;
@@ -240,14 +245,20 @@ def _clean_user_assets(user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | 
                 raise SpecError(f"user_assets: an entry of {name!r} needs an asset_id and a mesh_path")
             unknown = set(entry) - set(_USER_ENTRY_KEYS)
             if unknown:
-                raise SpecError(f"user_assets: unknown key(s) {', '.join(sorted(map(str, unknown)))} in an entry of "
-                                f"{name!r} (known: {', '.join(_USER_ENTRY_KEYS)})")
+                raise SpecError(
+                    f"user_assets: unknown key(s) {', '.join(sorted(map(str, unknown)))} in an entry of "
+                    f"{name!r} (known: {', '.join(_USER_ENTRY_KEYS)})"
+                )
             look = str(entry.get("look") or "randomize")
             if look not in _USER_LOOKS:
                 raise SpecError(f"user_assets: look {look!r} of {name!r} is not one of {', '.join(_USER_LOOKS)}")
-            row = {"asset_id": str(entry["asset_id"]), "mesh_path": str(entry["mesh_path"]),
-                   "unit": str(entry.get("unit") or "auto"), "up_axis": str(entry.get("up_axis") or "z"),
-                   "placement": str(entry.get("placement") or "floor")}
+            row = {
+                "asset_id": str(entry["asset_id"]),
+                "mesh_path": str(entry["mesh_path"]),
+                "unit": str(entry.get("unit") or "auto"),
+                "up_axis": str(entry.get("up_axis") or "z"),
+                "placement": str(entry.get("placement") or "floor"),
+            }
             if entry.get("front"):
                 row["front"] = str(entry["front"])
             if look != "randomize":
@@ -267,8 +278,15 @@ def _sample_object(class_name: str, rng: np.random.Generator, entries: Sequence[
     if pick == 0:
         return sample_asset(class_name, rng)
     entry = entries[pick - 1]
-    spec = user_asset_spec(entry["mesh_path"], class_name, entry["placement"], rng, unit=entry["unit"],
-                           up_axis=entry["up_axis"], front=entry.get("front") or None,
-                           look=entry.get("look", "randomize"))
+    spec = user_asset_spec(
+        entry["mesh_path"],
+        class_name,
+        entry["placement"],
+        rng,
+        unit=entry["unit"],
+        up_axis=entry["up_axis"],
+        front=entry.get("front") or None,
+        look=entry.get("look", "randomize"),
+    )
     spec["asset_id"] = entry["asset_id"]
     return spec

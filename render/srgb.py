@@ -44,8 +44,7 @@ def decode(encoded: np.ndarray | Sequence[float] | float) -> np.ndarray:
     IEC 61966-2-1:1999, clause 5.3: ``C / 12.92`` for ``C ≤ 0.04045``, else ``((C + 0.055) / 1.055) ** 2.4``.
     """
     c = _as_float(encoded)
-    return np.where(c <= ENCODED_BREAK, c / LINEAR_SLOPE, ((c + OFFSET) / SCALE) ** GAMMA).astype(
-        c.dtype, copy=False)
+    return np.where(c <= ENCODED_BREAK, c / LINEAR_SLOPE, ((c + OFFSET) / SCALE) ** GAMMA).astype(c.dtype, copy=False)
 
 
 def encode(linear: np.ndarray | Sequence[float] | float) -> np.ndarray:
@@ -57,4 +56,5 @@ def encode(linear: np.ndarray | Sequence[float] | float) -> np.ndarray:
     """
     c = _as_float(linear)
     return np.where(c <= LINEAR_BREAK, LINEAR_SLOPE * c, SCALE * np.power(c, 1.0 / GAMMA) - OFFSET).astype(
-        c.dtype, copy=False)
+        c.dtype, copy=False
+    )

@@ -118,8 +118,13 @@ def visual_look(visual: Any, *, has_uv: bool) -> Look:
         # Kd is read as linear, like glTF's factor: it multiplies the map (MTL), and Blender's exporter writes the
         # linear base colour there.
         rgb = base if base is not None else np.asarray(DEFAULT_RGB_LINEAR)
-        return Look(rgb=_rgb_tuple(rgb), roughness=_factor(pbr.roughnessFactor, 0.6), metallic=0.0,
-                    texture=texture, name=str(getattr(material, "name", "") or ""))
+        return Look(
+            rgb=_rgb_tuple(rgb),
+            roughness=_factor(pbr.roughnessFactor, 0.6),
+            metallic=0.0,
+            texture=texture,
+            name=str(getattr(material, "name", "") or ""),
+        )
     if isinstance(material, PBRMaterial):
         # glTF: baseColorFactor is linear already (§3.9.2); trimesh stores it as 8-bit.
         base = _unit_colour(material.baseColorFactor)
@@ -127,9 +132,13 @@ def visual_look(visual: Any, *, has_uv: bool) -> Look:
         texture = _texture_pixels(material.baseColorTexture) if has_uv else None
         if texture is None and material.baseColorTexture is None and base is None:
             rgb = np.asarray(DEFAULT_RGB_LINEAR)
-        return Look(rgb=_rgb_tuple(rgb), roughness=_factor(material.roughnessFactor, 1.0),
-                    metallic=_factor(material.metallicFactor, 1.0), texture=texture,
-                    name=str(getattr(material, "name", "") or ""))
+        return Look(
+            rgb=_rgb_tuple(rgb),
+            roughness=_factor(material.roughnessFactor, 1.0),
+            metallic=_factor(material.metallicFactor, 1.0),
+            texture=texture,
+            name=str(getattr(material, "name", "") or ""),
+        )
     if getattr(visual, "kind", None) in ("vertex", "face"):
         colour = _unit_colour(getattr(visual, "main_color", None))
         if colour is not None:
@@ -164,8 +173,11 @@ def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -
         kind = "diffuse"
     else:
         kind = "plastic"
-    material: dict[str, Any] = {"kind": kind, "rgb": [round(float(v), 6) for v in look_rgb_linear(look)],
-                                "roughness": round(float(look.roughness), 6)}
+    material: dict[str, Any] = {
+        "kind": kind,
+        "rgb": [round(float(v), 6) for v in look_rgb_linear(look)],
+        "roughness": round(float(look.roughness), 6),
+    }
     if look.texture is not None and texture_record is not None:
         material["user_texture"] = dict(texture_record)
     return material
@@ -176,8 +188,13 @@ def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -
 
 def texture_record(*, mesh_path: str, unit: str, up_axis: str, front: str | None, part: int) -> dict[str, Any]:
     """The spec's ``user_texture`` record: enough to find the part's texture again from the JSON alone."""
-    return {"mesh_path": str(mesh_path), "unit": str(unit), "up_axis": str(up_axis), "front": str(front or ""),
-            "part": int(part)}
+    return {
+        "mesh_path": str(mesh_path),
+        "unit": str(unit),
+        "up_axis": str(up_axis),
+        "front": str(front or ""),
+        "part": int(part),
+    }
 
 
 def mitsuba_uv(uv: np.ndarray) -> np.ndarray:

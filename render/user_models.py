@@ -38,8 +38,9 @@ def load_model_cached(path: str, *, unit: str = "auto", up_axis: str = "z", fron
 @functools.lru_cache(maxsize=64)
 def _linear_texture(record_json: str) -> np.ndarray:
     record = json.loads(record_json)
-    model = load_model_cached(record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"],
-                              front=record.get("front") or None)
+    model = load_model_cached(
+        record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"], front=record.get("front") or None
+    )
     index = int(record["part"])
     if not 0 <= index < len(model.parts) or model.parts[index].look.texture is None:
         raise ValueError(f"user texture: part {index} of {Path(record['mesh_path']).name} has no texture")

@@ -74,9 +74,7 @@ RING_MIN_PX = 2
 
 # IEC 61966-2-1 linear sRGB → CIE XYZ (D65), rows X, Y, Z.
 _SRGB_TO_XYZ = np.array(
-    [[0.4124, 0.3576, 0.1805],
-     [0.2126, 0.7152, 0.0722],
-     [0.0193, 0.1192, 0.9505]],
+    [[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]],
     dtype=np.float64,
 )
 # Reference white = XYZ of linear RGB (1, 1, 1) = the matrix row sums (0.9505, 1.0000, 1.0890), as in IEC 61966-2-1.
@@ -177,14 +175,17 @@ def _bounding_slices(instance_ids: np.ndarray, wanted: list[int]) -> dict[int, t
         if rows.size == 0:
             boxes[i] = None
             continue
-        cols = np.flatnonzero((instance_ids[rows[0]:rows[-1] + 1] == i).any(axis=0))
+        cols = np.flatnonzero((instance_ids[rows[0] : rows[-1] + 1] == i).any(axis=0))
         boxes[i] = (slice(int(rows[0]), int(rows[-1]) + 1), slice(int(cols[0]), int(cols[-1]) + 1))
     return boxes
 
 
 def _result(contrast: float, delta_e: float, lightness: float) -> dict[str, float]:
-    return {"contrast": round(float(contrast), 4), "delta_e": round(float(delta_e), 4),
-            "lightness": round(float(lightness), 4)}
+    return {
+        "contrast": round(float(contrast), 4),
+        "delta_e": round(float(delta_e), 4),
+        "lightness": round(float(lightness), 4),
+    }
 
 
 def instance_contrasts(

@@ -49,8 +49,12 @@ def findings(path: Path, root: Path) -> list[str]:
                 if _ours(alias.name):
                     module_aliases[alias.asname or alias.name.split(".")[0]] = alias.name
     for node in ast.walk(tree):
-        if (isinstance(node, ast.Attribute) and _private(node.attr) and isinstance(node.value, ast.Name)
-                and node.value.id in module_aliases):
+        if (
+            isinstance(node, ast.Attribute)
+            and _private(node.attr)
+            and isinstance(node.value, ast.Name)
+            and node.value.id in module_aliases
+        ):
             out.append(f"{path}:{node.lineno}: uses {module_aliases[node.value.id]}.{node.attr}")
     return out
 

@@ -1,6 +1,6 @@
 """Developer tool: sign in and take full-page screenshots of dashboard pages with headless Chromium.
 
-    .venv/bin/python scripts/screenshot.py --user demo --password ... --out /tmp/shots /health/ /campaigns/
+.venv/bin/python scripts/screenshot.py --user demo --password ... --out /tmp/shots /health/ /campaigns/
 """
 
 from __future__ import annotations
@@ -10,8 +10,16 @@ from pathlib import Path
 
 from playwright.sync_api import sync_playwright
 
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                 "--disable-component-update", "--disable-sync", "--no-first-run", "--disable-quic"]
+CHROMIUM_ARGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+    "--disable-quic",
+]
 
 
 def main() -> None:

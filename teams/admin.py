@@ -37,8 +37,11 @@ class RowIdsField(forms.ModelMultipleChoiceField):
     def clean(self, value: Any) -> Any:
         if self.queryset is None:  # the admin's formfield_for_manytomany always passes one
             raise ImproperlyConfigured("RowIdsField needs a queryset")
-        key_field = self.queryset.model._meta.pk if not self.to_field_name else (
-            self.queryset.model._meta.get_field(self.to_field_name))
+        key_field = (
+            self.queryset.model._meta.pk
+            if not self.to_field_name
+            else (self.queryset.model._meta.get_field(self.to_field_name))
+        )
         if isinstance(key_field, IntegerField) and isinstance(value, (list, tuple)):
             for item in value:
                 try:
@@ -46,8 +49,9 @@ class RowIdsField(forms.ModelMultipleChoiceField):
                 except ValueError:
                     continue  # not a number at all: the parent class refuses it with its own message
                 if not -(2**63) <= number < 2**63:
-                    raise ValidationError(self.error_messages["invalid_choice"], code="invalid_choice",
-                                          params={"value": item})
+                    raise ValidationError(
+                        self.error_messages["invalid_choice"], code="invalid_choice", params={"value": item}
+                    )
         return super().clean(value)
 
 
@@ -62,11 +66,22 @@ if TYPE_CHECKING:
 
         def get_form(self, request: HttpRequest, obj: Any = None, change: bool = False, **kwargs: Any) -> Any: ...
 
-        def changeform_view(self, request: HttpRequest, object_id: str | None = None, form_url: str = "",
-                            extra_context: dict[str, Any] | None = None) -> HttpResponse: ...
+        def changeform_view(
+            self,
+            request: HttpRequest,
+            object_id: str | None = None,
+            form_url: str = "",
+            extra_context: dict[str, Any] | None = None,
+        ) -> HttpResponse: ...
 
-        def message_user(self, request: HttpRequest, message: StrOrPromise, level: int | str = messages.INFO,
-                         extra_tags: str = "", fail_silently: bool = False) -> None: ...
+        def message_user(
+            self,
+            request: HttpRequest,
+            message: StrOrPromise,
+            level: int | str = messages.INFO,
+            extra_tags: str = "",
+            fail_silently: bool = False,
+        ) -> None: ...
 
         def get_formset(self, request: HttpRequest, obj: Any = None, **kwargs: Any) -> Any: ...
 else:
@@ -118,8 +133,13 @@ class TeamScopedAdminMixin(_AdminBase):
         form.request_user = request.user  # a class made for this request by modelform_factory
         return form
 
-    def changeform_view(self, request: HttpRequest, object_id: str | None = None, form_url: str = "",
-                        extra_context: dict[str, Any] | None = None) -> HttpResponse:
+    def changeform_view(
+        self,
+        request: HttpRequest,
+        object_id: str | None = None,
+        form_url: str = "",
+        extra_context: dict[str, Any] | None = None,
+    ) -> HttpResponse:
         """The admin's add and change pages, answering a lost race on a unique value with a message, not a 500.
 
         The form checks unique values (a team's name, a campaign's name in its team…) before the save; two saves
@@ -131,9 +151,12 @@ class TeamScopedAdminMixin(_AdminBase):
         except IntegrityError:
             if request.method != "POST":  # only a save can lose that race
                 raise
-            self.message_user(request, "Not saved: another save took the same name (or another value that must be "
-                              "unique) a moment ago. Nothing was changed; check the values and save again.",
-                              level=messages.ERROR)
+            self.message_user(
+                request,
+                "Not saved: another save took the same name (or another value that must be "
+                "unique) a moment ago. Nothing was changed; check the values and save again.",
+                level=messages.ERROR,
+            )
             return HttpResponseRedirect(request.get_full_path())
 
     def get_formset(self, request: HttpRequest, obj: Any = None, **kwargs: Any) -> Any:
@@ -154,15 +177,14 @@ class MemberField(forms.ModelChoiceField):
     def __init__(self, **kwargs: Any) -> None:
         user_model = get_user_model()
         kwargs.setdefault("help_text", "The member's exact user name.")
-        super().__init__(queryset=user_model._default_manager.all(), to_field_name=user_model.USERNAME_FIELD,
-                         **kwargs)
+        super().__init__(queryset=user_model._default_manager.all(), to_field_name=user_model.USERNAME_FIELD, **kwargs)
 
     def prepare_value(self, value: Any) -> Any:
         if isinstance(value, int) and not isinstance(value, bool):  # a saved membership's user id
             queryset, to_field_name = self.queryset, self.to_field_name
             if queryset is None or to_field_name is None:  # both are set in __init__
                 raise ImproperlyConfigured("MemberField needs its queryset and to_field_name")
-            return (queryset.filter(pk=value).values_list(to_field_name, flat=True).first() or "")
+            return queryset.filter(pk=value).values_list(to_field_name, flat=True).first() or ""
         return super().prepare_value(value)
 
 
@@ -177,16 +199,22 @@ class MembershipAdminForm(forms.ModelForm):
 
     def clean(self) -> dict[str, Any]:
         data = super().clean()
-        if data is None:  # ModelForm.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
+        if (
+            data is None
+        ):  # ModelForm.clean() returns cleaned_data; Django keeps cleaned_data when a clean() returns None
             data = self.cleaned_data
         if self.request_user is None or (self.instance.pk is not None and not self.has_changed()):
             return data
         team = data.get("team") if "team" in self.fields else None
         if team is None and "team" not in self.fields and self.instance.team_id is not None:
             team = self.instance.team  # an inline row: the team is the page's team
-        errors = membership_change_errors(user=self.request_user, team=team, member=data.get("user"),
-                                          role=data.get("role", ""),
-                                          current=self.instance if self.instance.pk is not None else None)
+        errors = membership_change_errors(
+            user=self.request_user,
+            team=team,
+            member=data.get("user"),
+            role=data.get("role", ""),
+            current=self.instance if self.instance.pk is not None else None,
+        )
         for field, message in errors.items():
             target = field if field in self.fields else None
             if target is None or target not in self.errors:
@@ -255,7 +283,8 @@ class MembershipAdmin(MembershipFieldsMixin, TeamScopedAdminMixin, admin.ModelAd
 
     def has_add_permission(self, request: HttpRequest) -> bool:
         return super().has_add_permission(request) and (
-            request.user.is_superuser or teams_for(user=request.user, role=ADMIN).exists())
+            request.user.is_superuser or teams_for(user=request.user, role=ADMIN).exists()
+        )
 
     def has_change_permission(self, request: HttpRequest, obj: Membership | None = None) -> bool:
         allowed = super().has_change_permission(request, obj)

@@ -12,8 +12,14 @@ class Team(models.Model):
     # Set only on the team ``teams.permissions.personal_team`` made for this user. A personal team is found by this
     # key, never by its name: names are free text, and a team another user owns may carry "<name> (personal)".
     # Not editable, so no form can hand a team to another user; it outlives its user as an ordinary team.
-    personal_owner = models.OneToOneField(settings.AUTH_USER_MODEL, on_delete=models.SET_NULL, null=True, blank=True,
-                                          editable=False, related_name="personal_team")
+    personal_owner = models.OneToOneField(
+        settings.AUTH_USER_MODEL,
+        on_delete=models.SET_NULL,
+        null=True,
+        blank=True,
+        editable=False,
+        related_name="personal_team",
+    )
 
     class Meta:
         ordering = ["name"]

@@ -18,7 +18,11 @@ from django.http import Http404
 from teams.models import Membership, Team
 
 VIEWER, PLANNER, ADMIN = Membership.Role.VIEWER, Membership.Role.PLANNER, Membership.Role.ADMIN
-ROLE_RANK: dict[str, int] = {VIEWER: 1, PLANNER: 2, ADMIN: 3}  # Role members are str: a role read as text finds its rank
+ROLE_RANK: dict[str, int] = {
+    VIEWER: 1,
+    PLANNER: 2,
+    ADMIN: 3,
+}  # Role members are str: a role read as text finds its rank
 
 
 def _rank(role: str) -> int:
@@ -52,8 +56,9 @@ def teams_for(*, user: Any, role: str = VIEWER) -> QuerySet[Team]:
     return Team.objects.filter(memberships__user=user, memberships__role__in=roles).distinct()
 
 
-def scope_to_user(queryset: QuerySet, *, user: Any, team_field: str = "team", role: str = VIEWER,
-                  include_shared: bool = False) -> QuerySet:
+def scope_to_user(
+    queryset: QuerySet, *, user: Any, team_field: str = "team", role: str = VIEWER, include_shared: bool = False
+) -> QuerySet:
     """Restrict any queryset of team-owned rows to the user's teams.
 
     ``include_shared`` also keeps rows that belong to no team (the shared procedural asset library).
@@ -66,8 +71,9 @@ def scope_to_user(queryset: QuerySet, *, user: Any, team_field: str = "team", ro
     return queryset.filter(mine)
 
 
-def get_for_user_or_404(queryset: QuerySet, *, user: Any, role: str = VIEWER, team_field: str = "team",
-                        **lookup: Any) -> Any:
+def get_for_user_or_404(
+    queryset: QuerySet, *, user: Any, role: str = VIEWER, team_field: str = "team", **lookup: Any
+) -> Any:
     """Fetch one team-owned row: 404 if it is not in the user's teams, 403 if the role is too low."""
     try:
         obj = scope_to_user(queryset, user=user, team_field=team_field).get(**lookup)
@@ -117,8 +123,9 @@ def _create_personal_team(user: Any) -> Team:
             # the name in between (try the next one).
             if (team := Team.objects.filter(personal_owner=user).first()) is not None:
                 return team
-    raise RuntimeError(f"no free name for a personal team of {user.get_username()!r} after "
-                       f"{_PERSONAL_NAME_ATTEMPTS} tries")
+    raise RuntimeError(
+        f"no free name for a personal team of {user.get_username()!r} after {_PERSONAL_NAME_ATTEMPTS} tries"
+    )
 
 
 @functools.cache
@@ -198,8 +205,9 @@ def may_change_membership(*, user: Any, membership: Membership) -> bool:
     return membership.user_id != user.pk and has_role(user=user, team=membership.team_id, role=ADMIN)
 
 
-def membership_change_errors(*, user: Any, team: Team | None, member: Any, role: str,
-                             current: Membership | None = None) -> dict[str, str]:
+def membership_change_errors(
+    *, user: Any, team: Team | None, member: Any, role: str, current: Membership | None = None
+) -> dict[str, str]:
     """Why ``user`` may not give ``member`` the ``role`` in ``team`` (field → message); empty when allowed.
 
     ``current`` is the membership being changed (None for a new one). Only a team's admins manage its members;
@@ -212,11 +220,13 @@ def membership_change_errors(*, user: Any, team: Team | None, member: Any, role:
     own_role = role_in_team(user=user, team=team) if team is not None else None
     if team is None or own_role != ADMIN:
         errors["team"] = "Only the team's admins manage its members."
-    elif current is not None and current.team_id != team.pk and not has_role(user=user, team=current.team_id,
-                                                                            role=ADMIN):
+    elif (
+        current is not None and current.team_id != team.pk and not has_role(user=user, team=current.team_id, role=ADMIN)
+    ):
         errors["team"] = "Only admins of both teams may move a membership between them."
     if (member is not None and getattr(member, "pk", member) == user.pk) or (
-            current is not None and current.user_id == user.pk):
+        current is not None and current.user_id == user.pk
+    ):
         errors["user"] = "You cannot add or change your own membership; another admin of the team can."
     if own_role is not None and role in ROLE_RANK and ROLE_RANK[role] > ROLE_RANK[own_role]:
         errors["role"] = f"You cannot grant a role above your own ({own_role})."

@@ -16,8 +16,15 @@ import pytest
 
 ROOT = Path(__file__).resolve().parent.parent
 CHROMIUM_PATH = "/usr/bin/chromium"  # Debian's package: Playwright's own browser downloads are not used
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
-                 "--disable-component-update", "--disable-sync", "--no-first-run"]
+CHROMIUM_ARGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--no-first-run",
+]
 
 
 def _database_url_for_tests() -> str:
@@ -95,8 +102,9 @@ def render_worker_factory(transactional_db, tmp_path):
     started: list[WorkerProcess] = []
     database_url = _database_url_for_tests()
 
-    def start(*, concurrency: int = 1, threads: int = 1, extra_env: dict | None = None,
-              ready_timeout_s: float = 90) -> WorkerProcess:
+    def start(
+        *, concurrency: int = 1, threads: int = 1, extra_env: dict | None = None, ready_timeout_s: float = 90
+    ) -> WorkerProcess:
         name = f"test-{uuid.uuid4().hex[:8]}@{os.uname().nodename}"
         env = {
             **os.environ,
@@ -113,9 +121,20 @@ def render_worker_factory(transactional_db, tmp_path):
         log_path = tmp_path / f"worker-{name.split('@')[0]}.log"
         handle = open(log_path, "wb")
         proc = subprocess.Popen(
-            [sys.executable, str(ROOT / "manage.py"), "render_worker", f"--concurrency={concurrency}",
-             f"--threads={threads}", f"--name={name}", "--loglevel=INFO"],
-            cwd=ROOT, env=env, stdout=handle, stderr=subprocess.STDOUT, start_new_session=True,
+            [
+                sys.executable,
+                str(ROOT / "manage.py"),
+                "render_worker",
+                f"--concurrency={concurrency}",
+                f"--threads={threads}",
+                f"--name={name}",
+                "--loglevel=INFO",
+            ],
+            cwd=ROOT,
+            env=env,
+            stdout=handle,
+            stderr=subprocess.STDOUT,
+            start_new_session=True,
         )
         worker = WorkerProcess(proc, name, log_path)
         started.append(worker)

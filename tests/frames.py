@@ -21,18 +21,33 @@ def render_frame_plan(plan: FramePlan, *, budget: Mapping[str, Any], campaign_se
     normalized = normalize_campaign_budget(budget)
     out = {}
     for index, layout, view, composition in plan:
-        seeds = planner.frame_seeds(campaign_seed=campaign_seed, index=index, layout_index=layout, lighting_index=0,
-                                    view_index=view)
+        seeds = planner.frame_seeds(
+            campaign_seed=campaign_seed, index=index, layout_index=layout, lighting_index=0, view_index=view
+        )
         folder = root / str(index)
-        render_frame_from_inputs(normalized, composition, seeds.seed, layout_seed=seeds.layout_seed,
-                                 lighting_seed=seeds.lighting_seed, camera_seed=seeds.camera_seed, out_dir=folder,
-                                 threads=2)
+        render_frame_from_inputs(
+            normalized,
+            composition,
+            seeds.seed,
+            layout_seed=seeds.layout_seed,
+            lighting_seed=seeds.lighting_seed,
+            camera_seed=seeds.camera_seed,
+            out_dir=folder,
+            threads=2,
+        )
         out[index] = folder
     return out
 
 
-def record_frames(campaign: Any, rendered: Mapping[int, Path], plan: FramePlan, media_root: Path, *,
-                  worker_host: str, task_id_prefix: str) -> list:
+def record_frames(
+    campaign: Any,
+    rendered: Mapping[int, Path],
+    plan: FramePlan,
+    media_root: Path,
+    *,
+    worker_host: str,
+    task_id_prefix: str,
+) -> list:
     """Create, claim and record frames through the services, with the render core's files in MEDIA_ROOT."""
     from django.db import transaction
 
@@ -42,16 +57,28 @@ def record_frames(campaign: Any, rendered: Mapping[int, Path], plan: FramePlan, 
     frames = []
     for index, layout, view, composition in plan:
         with transaction.atomic():
-            frame = services.create_frame(campaign=campaign, index=index, coordinates=(layout, 0, view),
-                                          composition=composition, expected_cpu_s=0.5, task_id_prefix=task_id_prefix)
+            frame = services.create_frame(
+                campaign=campaign,
+                index=index,
+                coordinates=(layout, 0, view),
+                composition=composition,
+                expected_cpu_s=0.5,
+                task_id_prefix=task_id_prefix,
+            )
         claim = services.claim_frame(frame_id=frame.pk, dispatch_no=frame.dispatch_count, worker_host=worker_host)
         assert claim.ok, claim.reason
         absolute, relative = frame_output_dir(campaign_id=campaign.pk, index=index)
         assert Path(absolute).is_relative_to(media_root)
         shutil.copytree(rendered[index], absolute)
         labels = json.loads((Path(absolute) / "labels.json").read_text())
-        assert services.record_result(frame_id=frame.pk, dispatch_no=frame.dispatch_count,
-                                      labels=labels["instances"], cpu_s=0.4, wall_s=0.5, output_dir=relative,
-                                      worker_host=worker_host)
+        assert services.record_result(
+            frame_id=frame.pk,
+            dispatch_no=frame.dispatch_count,
+            labels=labels["instances"],
+            cpu_s=0.4,
+            wall_s=0.5,
+            output_dir=relative,
+            worker_host=worker_host,
+        )
         frames.append(frame)
     return frames

@@ -18,54 +18,86 @@ ROOT = Path(__file__).resolve().parent.parent
 
 def _settings_in_subprocess(env: dict, expr: str) -> str:
     """Evaluate an expression on a fresh settings import with exactly this environment."""
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
+    clean = {
+        k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))
+    }
     clean.update(env)
-    code = f"import django, os; os.environ['DJANGO_SETTINGS_MODULE']='evenframe.settings'; django.setup(); " \
-           f"from django.conf import settings as s; print({expr})"
+    code = (
+        f"import django, os; os.environ['DJANGO_SETTINGS_MODULE']='evenframe.settings'; django.setup(); "
+        f"from django.conf import settings as s; print({expr})"
+    )
     out = subprocess.run([sys.executable, "-c", code], cwd=ROOT, env=clean, capture_output=True, text=True, timeout=60)
     assert out.returncode == 0, out.stderr
     return out.stdout.strip()
 
 
 def test_embedded_default_uses_sqlite_wal_and_filesystem_broker():
-    out = _settings_in_subprocess({}, "s.DATABASES['default']['ENGINE'], s.CELERY_BROKER_URL, s.DEBUG, "
-                                      "'WAL' in s.DATABASES['default']['OPTIONS']['init_command']")
+    out = _settings_in_subprocess(
+        {},
+        "s.DATABASES['default']['ENGINE'], s.CELERY_BROKER_URL, s.DEBUG, "
+        "'WAL' in s.DATABASES['default']['OPTIONS']['init_command']",
+    )
     assert out == "django.db.backends.sqlite3 filesystem:// False True"
 
 
 def test_service_mode_uses_postgres_and_redis():
-    env = {"DATABASE_URL": "postgres://u:p@db.example:5432/ev", "CELERY_BROKER_URL": "redis://cache:6379/0",
-           "EVENFRAME_SECRET_KEY": "x" * 60}
-    out = _settings_in_subprocess(env, "s.DATABASES['default']['ENGINE'], s.DATABASES['default']['HOST'], "
-                                       "s.CELERY_BROKER_URL, s.CELERY_RESULT_BACKEND, s.DEBUG")
+    env = {
+        "DATABASE_URL": "postgres://u:p@db.example:5432/ev",
+        "CELERY_BROKER_URL": "redis://cache:6379/0",
+        "EVENFRAME_SECRET_KEY": "x" * 60,
+    }
+    out = _settings_in_subprocess(
+        env,
+        "s.DATABASES['default']['ENGINE'], s.DATABASES['default']['HOST'], "
+        "s.CELERY_BROKER_URL, s.CELERY_RESULT_BACKEND, s.DEBUG",
+    )
     assert out == "django.db.backends.postgresql db.example redis://cache:6379/0 redis://cache:6379/0 False"
 
 
 def test_service_mode_refuses_missing_secret():
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
+    clean = {
+        k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))
+    }
     clean["DATABASE_URL"] = "postgres://u:p@db.example:5432/ev"
-    out = subprocess.run([sys.executable, "manage.py", "check"], cwd=ROOT, env=clean, capture_output=True, text=True,
-                         timeout=60)
+    out = subprocess.run(
+        [sys.executable, "manage.py", "check"], cwd=ROOT, env=clean, capture_output=True, text=True, timeout=60
+    )
     assert out.returncode != 0
     assert "EVENFRAME_SECRET_KEY must be set" in out.stderr
 
 
 def test_check_deploy_clean_in_service_mode():
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
-    clean.update({"DATABASE_URL": "postgres://u:p@127.0.0.1:1/ev", "CELERY_BROKER_URL": "redis://127.0.0.1:1/0",
-                  "EVENFRAME_SECRET_KEY": "k9$" + uuid.uuid4().hex + uuid.uuid4().hex,
-                  "EVENFRAME_ALLOWED_HOSTS": "evenframe.example"})
-    out = subprocess.run([sys.executable, "manage.py", "check", "--deploy", "--fail-level", "WARNING"], cwd=ROOT,
-                         env=clean, capture_output=True, text=True, timeout=60)
+    clean = {
+        k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))
+    }
+    clean.update(
+        {
+            "DATABASE_URL": "postgres://u:p@127.0.0.1:1/ev",
+            "CELERY_BROKER_URL": "redis://127.0.0.1:1/0",
+            "EVENFRAME_SECRET_KEY": "k9$" + uuid.uuid4().hex + uuid.uuid4().hex,
+            "EVENFRAME_ALLOWED_HOSTS": "evenframe.example",
+        }
+    )
+    out = subprocess.run(
+        [sys.executable, "manage.py", "check", "--deploy", "--fail-level", "WARNING"],
+        cwd=ROOT,
+        env=clean,
+        capture_output=True,
+        text=True,
+        timeout=60,
+    )
     assert out.returncode == 0, out.stdout + out.stderr
     assert "no issues" in out.stdout
 
 
 def test_bad_boolean_environment_is_a_clear_error():
-    clean = {k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))}
+    clean = {
+        k: v for k, v in os.environ.items() if not k.startswith(("EVENFRAME_", "DATABASE_URL", "CELERY_", "DJANGO_"))
+    }
     clean["EVENFRAME_DEBUG"] = "maybe"
-    out = subprocess.run([sys.executable, "manage.py", "check"], cwd=ROOT, env=clean, capture_output=True, text=True,
-                         timeout=60)
+    out = subprocess.run(
+        [sys.executable, "manage.py", "check"], cwd=ROOT, env=clean, capture_output=True, text=True, timeout=60
+    )
     assert out.returncode != 0 and "EVENFRAME_DEBUG must be true or false" in out.stderr
 
 
@@ -109,8 +141,14 @@ def test_media_is_behind_login_team_scoped_and_refuses_traversal(client, django_
     Membership.objects.create(team=other, user=outsider, role="admin")
     planner = django_user_model.objects.create_user("pia", password="pw-123-long")
     Membership.objects.create(team=team, user=planner, role="planner")
-    campaign = services.create_campaign(owner=planner, team=team, name="c", cost_budget=10, price_per_cpu_hour=1,
-                                        quotas=[services.QuotaInput(class_name="chair", target_accepted=1)])
+    campaign = services.create_campaign(
+        owner=planner,
+        team=team,
+        name="c",
+        cost_budget=10,
+        price_per_cpu_hour=1,
+        quotas=[services.QuotaInput(class_name="chair", target_accepted=1)],
+    )
     frame_dir = tmp_path / "media" / "campaigns" / str(campaign.pk) / "frames" / "0"
     frame_dir.mkdir(parents=True)
     (frame_dir / "rgb.png").write_bytes(b"frame")

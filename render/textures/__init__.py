@@ -44,8 +44,23 @@ from .registry import (
 )
 
 __all__ = [
-    "DEFAULT_RESOLUTION_PX", "FAMILIES", "SLOT_KINDS", "Choice", "ParamRange", "TextureFamily", "TextureMaps",
-    "TextureParamError", "TextureSetPaths", "canonical_params", "decode_normal8", "encode_normal8",
-    "encode_roughness8", "families_for_slot", "generate_texture", "sample_texture_params", "srgb8_to_linear",
-    "texture_key", "texture_set",
+    "DEFAULT_RESOLUTION_PX",
+    "FAMILIES",
+    "SLOT_KINDS",
+    "Choice",
+    "ParamRange",
+    "TextureFamily",
+    "TextureMaps",
+    "TextureParamError",
+    "TextureSetPaths",
+    "canonical_params",
+    "decode_normal8",
+    "encode_normal8",
+    "encode_roughness8",
+    "families_for_slot",
+    "generate_texture",
+    "sample_texture_params",
+    "srgb8_to_linear",
+    "texture_key",
+    "texture_set",
 ]

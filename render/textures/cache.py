@@ -61,8 +61,13 @@ def texture_key(
     """Hex SHA-256 (first 32 digits) of family, canonical parameters, seed, resolution and generator version."""
     canonical = canonical_params(family, params)
     check_request(seed, resolution_px)
-    record = {"family": family, "params": canonical, "seed": int(seed), "resolution_px": int(resolution_px),
-              "version": FAMILIES[family].version}
+    record = {
+        "family": family,
+        "params": canonical,
+        "seed": int(seed),
+        "resolution_px": int(resolution_px),
+        "version": FAMILIES[family].version,
+    }
     text = json.dumps(record, sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()[:32]
 
@@ -70,8 +75,13 @@ def texture_key(
 def paths_for(cache_dir: str | os.PathLike[str], family: str, key: str) -> TextureSetPaths:
     """Where the set with ``key`` lives (whether or not it exists yet)."""
     folder = Path(cache_dir) / family / key[:2]
-    return TextureSetPaths(key, folder / f"{key}_base_color.png", folder / f"{key}_roughness.png",
-                           folder / f"{key}_normal.png", folder / f"{key}_info.json")
+    return TextureSetPaths(
+        key,
+        folder / f"{key}_base_color.png",
+        folder / f"{key}_roughness.png",
+        folder / f"{key}_normal.png",
+        folder / f"{key}_info.json",
+    )
 
 
 def png_bytes(image: np.ndarray) -> bytes:
@@ -103,7 +113,11 @@ def write_texture_set(maps: TextureMaps, paths: TextureSetPaths) -> None:
 
 
 def texture_set(
-    family: str, params: Mapping[str, Any] | None, seed: int, cache_dir: str | os.PathLike[str], *,
+    family: str,
+    params: Mapping[str, Any] | None,
+    seed: int,
+    cache_dir: str | os.PathLike[str],
+    *,
     resolution_px: int = DEFAULT_RESOLUTION_PX,
 ) -> TextureSetPaths:
     """Paths of the cached PNG set for (family, params, seed, resolution), generating it on a miss.

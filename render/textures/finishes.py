@@ -87,16 +87,23 @@ def plaster(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -
         bumps = periodic_noise(rng, size_px, tile_size_m, largest_m=0.008, smallest_m=max(0.0015, pixel_m), beta=1.5)
         height = relief_m * (bumps + 0.2 * stipple)
     elif finish_kind == "knockdown":
-        splats = periodic_noise(rng, size_px, tile_size_m, largest_m=0.06, smallest_m=max(0.006, 2 * pixel_m),
-                                beta=2.0)
+        splats = periodic_noise(rng, size_px, tile_size_m, largest_m=0.06, smallest_m=max(0.006, 2 * pixel_m), beta=2.0)
         plateau = smoothstep(0.4, 0.7, splats)
         height = relief_m * (plateau + 0.15 * stipple)
         tone = tone - 0.3 * variation * plateau
     else:
         strokes = np.zeros((size_px, size_px), np.float32)
         for angle in rng.uniform(0.0, 180.0, size=3):
-            stroke = periodic_noise(rng, size_px, tile_size_m, largest_m=0.25, smallest_m=max(0.004, 2 * pixel_m),
-                                    beta=2.0, stretch=6.0, angle_deg=float(angle))
+            stroke = periodic_noise(
+                rng,
+                size_px,
+                tile_size_m,
+                largest_m=0.25,
+                smallest_m=max(0.004, 2 * pixel_m),
+                beta=2.0,
+                stretch=6.0,
+                angle_deg=float(angle),
+            )
             mask = smoothstep(-0.2, 0.8, periodic_noise(rng, size_px, tile_size_m, largest_m=0.5, smallest_m=0.05))
             strokes += stroke * mask
         burnish = smoothstep(0.5, 1.5, strokes)
@@ -105,8 +112,9 @@ def plaster(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -
         roughness = roughness - 0.25 * burnish
     albedo = paint * (1.0 + tone + 0.004 * stipple)[..., None]
     roughness = roughness + 0.02 * stipple
-    return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32),
-                   {"finish": finish_kind})
+    return Surface(
+        albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32), {"finish": finish_kind}
+    )
 
 
 def _damask_motif(rng: np.random.Generator, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -156,8 +164,9 @@ def wallpaper(params: Mapping[str, Any], rng: np.random.Generator, size_px: int)
         ink_mask = band_coverage(distance_to_lines(x_px, cell_w, 0.5 * cell_w), coverage * cell_w)
         for _ in range(int(rng.integers(0, 3))):
             offset = rng.uniform(0.0, cell_w)
-            accent_mask = np.maximum(accent_mask, band_coverage(distance_to_lines(x_px, cell_w, offset),
-                                                                max(1.0, 0.03 * cell_w)))
+            accent_mask = np.maximum(
+                accent_mask, band_coverage(distance_to_lines(x_px, cell_w, offset), max(1.0, 0.03 * cell_w))
+            )
         accent_mask = accent_mask * (1.0 - ink_mask)
         info: dict[str, Any] = {"repeat_m": tile_size_m / columns}
     else:
@@ -175,8 +184,9 @@ def wallpaper(params: Mapping[str, Any], rng: np.random.Generator, size_px: int)
         else:
             ink_mask, accent_mask = _damask_motif(rng, a, b)
         info = {"repeat_m": tile_size_m / columns, "repeat_height_m": tile_size_m / rows}
-    fibres = periodic_noise(rng, size_px, tile_size_m, largest_m=0.004, smallest_m=pixel_m, beta=0.5, stretch=3.0,
-                            angle_deg=90.0)
+    fibres = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=0.004, smallest_m=pixel_m, beta=0.5, stretch=3.0, angle_deg=90.0
+    )
     mottle = periodic_noise(rng, size_px, tile_size_m, largest_m=0.3, smallest_m=0.02, beta=2.0)
     paper = 1.0 + float(params["paper_texture"]) * (0.03 * fibres + 0.015 * mottle)
     albedo = mix(mix(ground, accent, 0.8 * accent_mask), ink, ink_mask) * paper[..., None]
@@ -198,10 +208,12 @@ def brushed_metal(params: Mapping[str, Any], rng: np.random.Generator, size_px: 
     tile_size_m = float(params["tile_size_m"])
     pixel_m = tile_size_m / size_px
     (metal,) = jittered_palette(METAL_PALETTES[params["palette"]], params)
-    fine = periodic_noise(rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.7 * pixel_m, beta=0.8,
-                          stretch=60.0)
-    coarse = periodic_noise(rng, size_px, tile_size_m, largest_m=0.3 * tile_size_m, smallest_m=3 * pixel_m, beta=1.5,
-                            stretch=12.0)
+    fine = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.7 * pixel_m, beta=0.8, stretch=60.0
+    )
+    coarse = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=0.3 * tile_size_m, smallest_m=3 * pixel_m, beta=1.5, stretch=12.0
+    )
     streak = 0.7 * fine + 0.5 * coarse
     scratches = np.zeros((size_px, size_px), np.float32)
     count = int(rng.poisson(float(params["scratches_per_m2"]) * tile_size_m**2))
@@ -220,5 +232,6 @@ def brushed_metal(params: Mapping[str, Any], rng: np.random.Generator, size_px: 
     albedo = metal * (1.0 + contrast * streak + 0.08 * scratches)[..., None]
     roughness = float(params["roughness"]) * (1.0 + 0.12 * streak) + 0.08 * scratches
     height = float(params["relief_m"]) * (0.6 * fine + 0.3 * coarse) - 4.0 * float(params["relief_m"]) * scratches
-    return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32),
-                   {"scratches": count})
+    return Surface(
+        albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32), {"scratches": count}
+    )

@@ -106,9 +106,15 @@ def jitter_colour(
 def jittered_palette(colours_srgb: Sequence[Sequence[float]], params: Mapping[str, Any]) -> list[np.ndarray]:
     """A family palette's sRGB colours shifted by the texture's ``hue_jitter_deg``, ``saturation_jitter``
     and ``value_jitter`` parameters (the same shift for every colour), as linear RGB."""
-    return [jitter_colour(c, hue_jitter_deg=float(params["hue_jitter_deg"]),
-                          saturation_jitter=float(params["saturation_jitter"]),
-                          value_jitter=float(params["value_jitter"])) for c in colours_srgb]
+    return [
+        jitter_colour(
+            c,
+            hue_jitter_deg=float(params["hue_jitter_deg"]),
+            saturation_jitter=float(params["saturation_jitter"]),
+            value_jitter=float(params["value_jitter"]),
+        )
+        for c in colours_srgb
+    ]
 
 
 def mix(a: np.ndarray, b: np.ndarray, t: np.ndarray) -> np.ndarray:

@@ -198,8 +198,9 @@ class RowLattice:
 
     def joint_coverage(self, width_px: float) -> np.ndarray:
         """Box-filtered coverage of joints ``width_px`` wide centred on the joint lines."""
-        return np.maximum(band_coverage(self.long_joint_distance_px, width_px),
-                          band_coverage(self.butt_joint_distance_px, width_px))
+        return np.maximum(
+            band_coverage(self.long_joint_distance_px, width_px), band_coverage(self.butt_joint_distance_px, width_px)
+        )
 
 
 def row_lattice(size_px: int, rows: int, per_row: int, row_offsets_px: np.ndarray) -> RowLattice:

@@ -40,7 +40,14 @@ from . import finishes, stone, textiles, wood
 from .maps import Surface, TextureMaps, finish
 
 SLOT_KINDS: tuple[str, ...] = (
-    "floor", "wall", "ceiling", "wood_furniture", "upholstery", "metal", "stone_counter", "rug",
+    "floor",
+    "wall",
+    "ceiling",
+    "wood_furniture",
+    "upholstery",
+    "metal",
+    "stone_counter",
+    "rug",
 )
 MATERIAL_KINDS: tuple[str, ...] = ("diffuse", "plastic", "varnish", "metal")
 RESOLUTION_RANGE_PX = (16, 4096)
@@ -149,39 +156,53 @@ R, C = ParamRange, Choice
 
 FAMILIES: dict[str, TextureFamily] = {
     "wood": TextureFamily(
-        "wood", wood.wood,
+        "wood",
+        wood.wood,
         {
             "tile_size_m": R(0.4, 1.2, "m", "a table top or cabinet side per repeat"),  # common practice
-            "grain_spacing_m": R(0.004, 0.03, "m", "grain lines on a sawn face 4–30 mm apart",
-                                 log=True),  # common practice
+            "grain_spacing_m": R(
+                0.004, 0.03, "m", "grain lines on a sawn face 4–30 mm apart", log=True
+            ),  # common practice
             "grain_waviness": R(0.0, 1.0, "1", "0 straight quarter-sawn stripes, 1 strong flat-sawn arches"),
             "pore_strength": R(0.0, 1.0, "1", "0 diffuse-porous (maple), 1 ring-porous (oak, ash)"),
             "grain_contrast": R(0.35, 1.0, "1", "late-wood darkening"),
             "roughness": R(0.15, 0.5, "1", "gloss to matte varnish"),  # common practice
             **_colour(wood.WOOD_PALETTES, 6.0, 0.12, 0.12),
         },
-        ("wood_furniture",), "varnish", 1, "figured solid wood, grain along u"),
+        ("wood_furniture",),
+        "varnish",
+        1,
+        "figured solid wood, grain along u",
+    ),
     "parquet": TextureFamily(
-        "parquet", wood.parquet,
+        "parquet",
+        wood.parquet,
         {
             "tile_size_m": R(0.8, 2.0, "m", "several boards long and a dozen rows wide"),  # common practice
             "board_width_m": R(0.06, 0.20, "m", "strip parquet 60–90 mm, plank floors to 200 mm"),  # common practice
-            "board_length_m": R(0.4, 2.0, "m", "strips 0.4–0.9 m, engineered planks 1.2–2.2 m",
-                                log=True),  # common practice
+            "board_length_m": R(
+                0.4, 2.0, "m", "strips 0.4–0.9 m, engineered planks 1.2–2.2 m", log=True
+            ),  # common practice
             "joint_width_m": R(0.0005, 0.003, "m", "hairline to micro-bevelled joints"),  # common practice
             "joint_depth_m": R(0.0003, 0.0015, "m", "micro-bevel depth"),  # common practice
             "board_tone_variation": R(0.02, 0.15, "relative", "value spread between boards of one floor"),
-            "grain_spacing_m": R(0.004, 0.02, "m", "grain lines on a board face 4–20 mm apart",
-                                 log=True),  # common practice
+            "grain_spacing_m": R(
+                0.004, 0.02, "m", "grain lines on a board face 4–20 mm apart", log=True
+            ),  # common practice
             "grain_waviness": R(0.0, 1.0, "1", "straight to arched grain"),
             "pore_strength": R(0.0, 1.0, "1", "diffuse- to ring-porous"),
             "grain_contrast": R(0.3, 0.9, "1", "late-wood darkening"),
             "roughness": R(0.2, 0.55, "1", "lacquered to oiled floors"),  # common practice
             **_colour(wood.WOOD_PALETTES, 6.0, 0.12, 0.12),
         },
-        ("floor",), "varnish", 1, "strip parquet, boards along u, staggered ends"),
+        ("floor",),
+        "varnish",
+        1,
+        "strip parquet, boards along u, staggered ends",
+    ),
     "ceramic_tile": TextureFamily(
-        "ceramic_tile", stone.ceramic_tile,
+        "ceramic_tile",
+        stone.ceramic_tile,
         {
             "tile_size_m": R(0.4, 2.4, "m", "at least two pieces per repeat for most sizes"),
             "piece_width_m": R(0.1, 0.6, "m", "10 cm wall tiles to 60 cm floor tiles", log=True),  # common practice
@@ -195,9 +216,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "edge_bevel_m": R(0.0005, 0.003, "m", "cushion-edge radius"),  # common practice
             **_colour(stone.CERAMIC_PALETTES, 5.0, 0.1, 0.1),
         },
-        ("floor", "wall", "stone_counter"), "plastic", 1, "glazed ceramic tiles with grout"),
+        ("floor", "wall", "stone_counter"),
+        "plastic",
+        1,
+        "glazed ceramic tiles with grout",
+    ),
     "stone_tile": TextureFamily(
-        "stone_tile", stone.stone_tile,
+        "stone_tile",
+        stone.stone_tile,
         {
             "tile_size_m": R(0.8, 2.0, "m", "several pieces per repeat"),
             "piece_width_m": R(0.2, 0.6, "m", "natural stone floor and wall tiles 20–60 cm"),  # common practice
@@ -210,9 +236,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "edge_bevel_m": R(0.001, 0.004, "m", "eased edge radius"),  # common practice
             **_colour(stone.STONE_PALETTES, 4.0, 0.1, 0.1),
         },
-        ("floor", "wall"), "plastic", 1, "natural stone tiles (limestone, travertine, slate, granite) with grout"),
+        ("floor", "wall"),
+        "plastic",
+        1,
+        "natural stone tiles (limestone, travertine, slate, granite) with grout",
+    ),
     "marble": TextureFamily(
-        "marble", stone.marble,
+        "marble",
+        stone.marble,
         {
             "tile_size_m": R(0.6, 2.0, "m", "a counter top or a slab section"),  # common practice
             "vein_count": R(1, 4, "1", "primary veins across the repeat", integer=True),
@@ -222,9 +253,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "roughness": R(0.03, 0.3, "1", "polished to honed"),  # common practice
             **_colour(stone.MARBLE_PALETTES, 4.0, 0.1, 0.08),
         },
-        ("stone_counter", "floor", "wall"), "plastic", 1, "veined marble slab"),
+        ("stone_counter", "floor", "wall"),
+        "plastic",
+        1,
+        "veined marble slab",
+    ),
     "concrete": TextureFamily(
-        "concrete", stone.concrete,
+        "concrete",
+        stone.concrete,
         {
             "tile_size_m": R(0.6, 2.4, "m", "a wall or floor section"),
             "finish": C(tuple(stone.CONCRETE_ROUGHNESS), "as cast, power-troweled or ground and polished"),
@@ -233,9 +269,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "pores_per_m2": R(0.0, 2000.0, "1/m²", "bug holes, none to dense on cast faces"),  # common practice
             **_colour(stone.CONCRETE_PALETTES, 4.0, 0.15, 0.1),
         },
-        ("floor", "wall", "ceiling", "stone_counter"), "diffuse", 1, "cast, troweled or polished concrete"),
+        ("floor", "wall", "ceiling", "stone_counter"),
+        "diffuse",
+        1,
+        "cast, troweled or polished concrete",
+    ),
     "carpet": TextureFamily(
-        "carpet", textiles.carpet,
+        "carpet",
+        textiles.carpet,
         {
             "tile_size_m": R(0.3, 1.0, "m", "a floor patch"),
             "pile": C(textiles.CARPET_PILES, "cut pile, loop pile, berber loop with flecks"),
@@ -244,9 +285,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "mottle": R(0.01, 0.06, "relative", "pile shading over decimetres"),
             **_colour(textiles.CARPET_PALETTES, 6.0, 0.15, 0.12),
         },
-        ("floor",), "diffuse", 1, "wall-to-wall carpet"),
+        ("floor",),
+        "diffuse",
+        1,
+        "wall-to-wall carpet",
+    ),
     "rug": TextureFamily(
-        "rug", textiles.rug,
+        "rug",
+        textiles.rug,
         {
             "tile_size_m": R(1.2, 3.0, "m", "the whole rug's side: 4×6 ft to 10×10 ft"),  # common practice
             "border_width_m": R(0.08, 0.3, "m", "border band 6–12 % of the rug's side"),  # common practice
@@ -255,9 +301,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "abrash": R(0.0, 0.08, "relative", "row-wise tone variation of the dyed wool"),
             **_colour(textiles.RUG_PALETTES, 8.0, 0.15, 0.12),
         },
-        ("rug",), "diffuse", 1, "a whole square rug: border and patterned field, mapped once"),
+        ("rug",),
+        "diffuse",
+        1,
+        "a whole square rug: border and patterned field, mapped once",
+    ),
     "fabric": TextureFamily(
-        "fabric", textiles.fabric,
+        "fabric",
+        textiles.fabric,
         {
             "tile_size_m": R(0.05, 0.2, "m", "a few centimetres of cloth per repeat"),
             "weave": C(textiles.WEAVES, "weave structures"),
@@ -266,9 +317,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "yarn_variation": R(0.0, 0.12, "relative", "tone spread between yarns"),
             **_colour(textiles.FABRIC_PALETTES, 8.0, 0.15, 0.15),
         },
-        ("upholstery",), "diffuse", 1, "woven upholstery cloth, warp along v"),
+        ("upholstery",),
+        "diffuse",
+        1,
+        "woven upholstery cloth, warp along v",
+    ),
     "leather": TextureFamily(
-        "leather", textiles.leather,
+        "leather",
+        textiles.leather,
         {
             "tile_size_m": R(0.08, 0.3, "m", "a cushion panel"),
             "grain_size_m": R(0.001, 0.004, "m", "pebble grain cells 1–4 mm"),  # from memory
@@ -278,9 +334,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "roughness": R(0.3, 0.65, "1", "semi-aniline sheen to matte pigmented"),  # common practice
             **_colour(textiles.LEATHER_PALETTES, 6.0, 0.15, 0.12),
         },
-        ("upholstery",), "plastic", 1, "pebble-grain upholstery leather"),
+        ("upholstery",),
+        "plastic",
+        1,
+        "pebble-grain upholstery leather",
+    ),
     "plaster": TextureFamily(
-        "plaster", finishes.plaster,
+        "plaster",
+        finishes.plaster,
         {
             "tile_size_m": R(0.5, 2.0, "m", "a wall section"),
             "finish": C(finishes.PLASTER_FINISHES, "wall and ceiling textures"),
@@ -289,9 +350,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "roughness": R(0.6, 0.95, "1", "eggshell to flat paint"),  # common practice
             **_colour(finishes.PAINT_PALETTES, 6.0, 0.15, 0.06),
         },
-        ("wall", "ceiling"), "diffuse", 1, "painted plaster with a textured relief"),
+        ("wall", "ceiling"),
+        "diffuse",
+        1,
+        "painted plaster with a textured relief",
+    ),
     "wallpaper": TextureFamily(
-        "wallpaper", finishes.wallpaper,
+        "wallpaper",
+        finishes.wallpaper,
         {
             "tile_size_m": R(0.5, 1.5, "m", "a wall section, several repeats"),
             "pattern": C(finishes.WALLPAPER_PATTERNS, "original simple motifs"),
@@ -301,9 +367,14 @@ FAMILIES: dict[str, TextureFamily] = {
             "roughness": R(0.5, 0.9, "1", "vinyl satin to matte paper"),  # common practice
             **_colour(finishes.WALLPAPER_PALETTES, 10.0, 0.15, 0.1),
         },
-        ("wall",), "diffuse", 1, "wallpaper: stripes, dots, damask-like ornament"),
+        ("wall",),
+        "diffuse",
+        1,
+        "wallpaper: stripes, dots, damask-like ornament",
+    ),
     "brushed_metal": TextureFamily(
-        "brushed_metal", finishes.brushed_metal,
+        "brushed_metal",
+        finishes.brushed_metal,
         {
             "tile_size_m": R(0.1, 0.6, "m", "a panel or a table frame"),
             "brush_contrast": R(0.02, 0.1, "relative", "streak tone variation"),
@@ -312,7 +383,11 @@ FAMILIES: dict[str, TextureFamily] = {
             "scratches_per_m2": R(0.0, 300.0, "1/m²", "long scratches"),
             **_colour(finishes.METAL_PALETTES, 3.0, 0.1, 0.06),
         },
-        ("metal",), "metal", 1, "brushed metal, brushing along u; base colour is specular reflectance"),
+        ("metal",),
+        "metal",
+        1,
+        "brushed metal, brushing along u; base colour is specular reflectance",
+    ),
 }
 
 
@@ -364,8 +439,11 @@ def check_request(seed: int, resolution_px: int) -> None:
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         errors["seed"] = "must be a non-negative integer"
     low, high = RESOLUTION_RANGE_PX
-    if isinstance(resolution_px, bool) or not isinstance(resolution_px, (int, np.integer)) \
-            or not low <= resolution_px <= high:
+    if (
+        isinstance(resolution_px, bool)
+        or not isinstance(resolution_px, (int, np.integer))
+        or not low <= resolution_px <= high
+    ):
         errors["resolution_px"] = f"must be an integer in [{low}, {high}]"
     if errors:
         raise TextureParamError(errors)
@@ -377,7 +455,10 @@ def texture_rng(family: str, seed: int) -> np.random.Generator:
 
 
 def generate_texture(
-    family: str, params: Mapping[str, Any] | None = None, seed: int = 0, *,
+    family: str,
+    params: Mapping[str, Any] | None = None,
+    seed: int = 0,
+    *,
     resolution_px: int = DEFAULT_RESOLUTION_PX,
 ) -> TextureMaps:
     """Generate one texture set in memory: sRGB 8-bit base colour, roughness, tangent-space normals.
@@ -392,6 +473,13 @@ def generate_texture(
     spec = FAMILIES[family]
     surface = spec.generate(canonical, texture_rng(family, seed), int(resolution_px))
     maps = finish(surface, float(canonical["tile_size_m"]))
-    info = {"family": family, "params": canonical, "seed": int(seed), "resolution_px": int(resolution_px),
-            "version": spec.version, "material_kind": spec.material_kind, "geometry": round_floats(maps.info)}
+    info = {
+        "family": family,
+        "params": canonical,
+        "seed": int(seed),
+        "resolution_px": int(resolution_px),
+        "version": spec.version,
+        "material_kind": spec.material_kind,
+        "geometry": round_floats(maps.info),
+    }
     return TextureMaps(maps.base_color_srgb8, maps.roughness, maps.normal, maps.tile_size_m, info)

@@ -98,8 +98,14 @@ def _tile_lattice(params: Mapping[str, Any], rng: np.random.Generator, size_px: 
 
 
 def _piece_relief(
-    lattice: RowLattice, rng: np.random.Generator, pixel_m: float, *, grout_px: float, bevel_m: float,
-    grout_depth_m: float, tilt_rad: float,
+    lattice: RowLattice,
+    rng: np.random.Generator,
+    pixel_m: float,
+    *,
+    grout_px: float,
+    bevel_m: float,
+    grout_depth_m: float,
+    tilt_rad: float,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Height (m) of tiled pieces and the grout coverage: recessed grout, cushioned edges, tilted pieces."""
     grout = lattice.joint_coverage(grout_px)
@@ -128,24 +134,37 @@ def ceramic_tile(params: Mapping[str, Any], rng: np.random.Generator, size_px: i
     (glaze,) = jittered_palette(CERAMIC_PALETTES[params["palette"]], params)
     grout_colour = srgb_to_linear(GROUT_COLOURS[params["grout"]])
     grout_px = float(params["grout_width_m"]) / pixel_m
-    height, grout = _piece_relief(lattice, rng, pixel_m, grout_px=grout_px, bevel_m=float(params["edge_bevel_m"]),
-                                  grout_depth_m=0.0015, tilt_rad=0.003)
+    height, grout = _piece_relief(
+        lattice,
+        rng,
+        pixel_m,
+        grout_px=grout_px,
+        bevel_m=float(params["edge_bevel_m"]),
+        grout_depth_m=0.0015,
+        tilt_rad=0.003,
+    )
     pieces = lattice.rows * lattice.per_row
     tone = 1.0 + float(params["piece_tone_variation"]) * rng.standard_normal(pieces).astype(np.float32)
     mottle = periodic_noise(rng, size_px, tile_size_m, largest_m=0.1, smallest_m=0.004, beta=2.0)
     speck = periodic_noise(rng, size_px, tile_size_m, largest_m=0.004, smallest_m=pixel_m, beta=0.0)
-    glaze_map = glaze * (tone[lattice.piece_id] * (1.0 + float(params["glaze_mottle"]) * mottle
-                                                    + 0.01 * speck))[..., None]
+    glaze_map = (
+        glaze * (tone[lattice.piece_id] * (1.0 + float(params["glaze_mottle"]) * mottle + 0.01 * speck))[..., None]
+    )
     grout_grain = 1.0 + 0.06 * speck
     albedo = mix(glaze_map, grout_colour * grout_grain[..., None], grout)
     # Edges of the glaze pool a little darker (thicker glaze) where the cushion falls off.
-    rim = 1.0 - smoothstep(0.0, max(float(params["edge_bevel_m"]) / pixel_m, 1.0),
-                           lattice.joint_distance_px - 0.5 * grout_px)
+    rim = 1.0 - smoothstep(
+        0.0, max(float(params["edge_bevel_m"]) / pixel_m, 1.0), lattice.joint_distance_px - 0.5 * grout_px
+    )
     albedo = albedo * (1.0 - 0.06 * rim * (1.0 - grout))[..., None]
     roughness = float(params["glaze_roughness"]) * (1.0 + 0.15 * mottle) * (1.0 - grout) + 0.9 * grout
     height = height + 2e-6 * mottle
-    info = {"rows": lattice.rows, "pieces_per_row": lattice.per_row, "piece_width_m": tile_size_m / lattice.rows,
-            "piece_length_m": tile_size_m / lattice.per_row}
+    info = {
+        "rows": lattice.rows,
+        "pieces_per_row": lattice.per_row,
+        "piece_width_m": tile_size_m / lattice.rows,
+        "piece_length_m": tile_size_m / lattice.per_row,
+    }
     return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height, info)
 
 
@@ -164,15 +183,15 @@ def stone_field(
     fine = periodic_noise(rng, size_px, tile_size_m, largest_m=0.01, smallest_m=pixel_m, beta=1.0)
     zero = np.zeros((size_px, size_px), np.float32)
     if kind == "limestone":
-        specks = smoothstep(2.2, 3.0, periodic_noise(rng, size_px, tile_size_m, largest_m=0.006,
-                                                     smallest_m=pixel_m, beta=0.5))
+        specks = smoothstep(
+            2.2, 3.0, periodic_noise(rng, size_px, tile_size_m, largest_m=0.006, smallest_m=pixel_m, beta=0.5)
+        )
         albedo = mix(ground, second, smoothstep(-2.0, 2.5, clouds) * 0.55 + 0.08 * fine)
         albedo = mix(albedo, accent, 0.7 * specks)
         return albedo, -40e-6 * specks, 0.05 * specks
     if kind == "travertine":
         bands = periodic_noise(rng, size_px, tile_size_m, largest_m=0.2, smallest_m=0.003, beta=2.0, stretch=8.0)
-        pits_field = periodic_noise(rng, size_px, tile_size_m, largest_m=0.02, smallest_m=0.002, beta=1.0,
-                                    stretch=4.0)
+        pits_field = periodic_noise(rng, size_px, tile_size_m, largest_m=0.02, smallest_m=0.002, beta=1.0, stretch=4.0)
         pits = smoothstep(1.9, 2.6, pits_field)
         albedo = mix(ground, second, 0.6 * smoothstep(-0.5, 2.5, bands + 0.5 * clouds) + 0.06 * fine)
         albedo = mix(albedo, accent, 0.8 * pits)
@@ -214,13 +233,25 @@ def stone_tile(params: Mapping[str, Any], rng: np.random.Generator, size_px: int
     stone_albedo = albedo_field[gy, gx] * tone[lattice.piece_id][..., None]
     grout_colour = srgb_to_linear(GROUT_COLOURS[params["grout"]])
     grout_px = float(params["grout_width_m"]) / pixel_m
-    height, grout = _piece_relief(lattice, rng, pixel_m, grout_px=grout_px, bevel_m=float(params["edge_bevel_m"]),
-                                  grout_depth_m=0.002, tilt_rad=0.002)
+    height, grout = _piece_relief(
+        lattice,
+        rng,
+        pixel_m,
+        grout_px=grout_px,
+        bevel_m=float(params["edge_bevel_m"]),
+        grout_depth_m=0.002,
+        tilt_rad=0.002,
+    )
     albedo = mix(stone_albedo, grout_colour, grout)
     height = height + height_field[gy, gx] * (1.0 - grout)
     roughness = (float(params["roughness"]) + rough_field[gy, gx]) * (1.0 - grout) + 0.9 * grout
-    info = {"rows": lattice.rows, "pieces_per_row": lattice.per_row, "piece_width_m": tile_size_m / lattice.rows,
-            "piece_length_m": tile_size_m / lattice.per_row, "stone": kind}
+    info = {
+        "rows": lattice.rows,
+        "pieces_per_row": lattice.per_row,
+        "piece_width_m": tile_size_m / lattice.rows,
+        "piece_length_m": tile_size_m / lattice.per_row,
+        "stone": kind,
+    }
     return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32), info)
 
 
@@ -228,8 +259,14 @@ _VEIN_DIRECTIONS = ((1, 0), (1, 1), (1, -1), (2, 1), (1, 2), (2, -1), (1, -2), (
 
 
 def marble_veins(
-    rng: np.random.Generator, size_px: int, tile_size_m: float, *, count: int, direction: tuple[int, int],
-    turbulence: float, width_m: float,
+    rng: np.random.Generator,
+    size_px: int,
+    tile_size_m: float,
+    *,
+    count: int,
+    direction: tuple[int, int],
+    turbulence: float,
+    width_m: float,
 ) -> np.ndarray:
     """Intensity (0–1) of one family of veins: bands around the level sets of a turbulent phase.
 
@@ -244,19 +281,31 @@ def marble_veins(
     pixel_m = tile_size_m / size_px
     y_px, x_px = pixel_coordinates(size_px)
     # Meanders smooth enough that |∇T| stays near the bands' own gradient: few folds, no contour-map loops.
-    meander = periodic_noise(rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.2 * tile_size_m,
-                             beta=4.0)
+    meander = periodic_noise(rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.2 * tile_size_m, beta=4.0)
     wiggle = periodic_noise(rng, size_px, tile_size_m, largest_m=0.1 * tile_size_m, smallest_m=5 * pixel_m, beta=2.5)
     warped = turbulence * meander + 0.02 * count * wiggle
     phase = count * (direction[0] * x_px + direction[1] * y_px) / size_px + warped
-    gradient = np.hypot(count * direction[0] / size_px + _slope(warped, 1),
-                        count * direction[1] / size_px + _slope(warped, 0))
+    gradient = np.hypot(
+        count * direction[0] / size_px + _slope(warped, 1), count * direction[1] / size_px + _slope(warped, 0)
+    )
     distance_m = np.abs(phase - np.round(phase)) / np.maximum(gradient, 1e-6) * pixel_m
-    width = width_m * (0.5 + 0.8 * smoothstep(-1.5, 1.5, periodic_noise(
-        rng, size_px, tile_size_m, largest_m=0.3 * tile_size_m, smallest_m=0.02 * tile_size_m, beta=2.0)))
+    width = width_m * (
+        0.5
+        + 0.8
+        * smoothstep(
+            -1.5,
+            1.5,
+            periodic_noise(
+                rng, size_px, tile_size_m, largest_m=0.3 * tile_size_m, smallest_m=0.02 * tile_size_m, beta=2.0
+            ),
+        )
+    )
     veins = np.exp(-((distance_m / np.maximum(width, 0.5 * pixel_m)) ** 2))
-    fade = smoothstep(-1.2, 0.8, periodic_noise(rng, size_px, tile_size_m, largest_m=0.5 * tile_size_m,
-                                                smallest_m=0.05 * tile_size_m, beta=2.0))
+    fade = smoothstep(
+        -1.2,
+        0.8,
+        periodic_noise(rng, size_px, tile_size_m, largest_m=0.5 * tile_size_m, smallest_m=0.05 * tile_size_m, beta=2.0),
+    )
     return (veins * (0.3 + 0.7 * fade)).astype(np.float32)
 
 
@@ -277,12 +326,23 @@ def marble(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) ->
     direction = _VEIN_DIRECTIONS[int(first)]
     turbulence = float(params["turbulence"])
     width_m = float(params["vein_width_m"])
-    primary = marble_veins(rng, size_px, tile_size_m, count=count, direction=direction, turbulence=turbulence,
-                           width_m=width_m)
-    secondary = marble_veins(rng, size_px, tile_size_m, count=2 * count, direction=_VEIN_DIRECTIONS[int(second)],
-                             turbulence=1.5 * turbulence, width_m=0.4 * width_m)
-    patches = smoothstep(0.3, 1.2, periodic_noise(rng, size_px, tile_size_m, largest_m=0.4 * tile_size_m,
-                                                  smallest_m=0.05 * tile_size_m, beta=2.0))
+    primary = marble_veins(
+        rng, size_px, tile_size_m, count=count, direction=direction, turbulence=turbulence, width_m=width_m
+    )
+    secondary = marble_veins(
+        rng,
+        size_px,
+        tile_size_m,
+        count=2 * count,
+        direction=_VEIN_DIRECTIONS[int(second)],
+        turbulence=1.5 * turbulence,
+        width_m=0.4 * width_m,
+    )
+    patches = smoothstep(
+        0.3,
+        1.2,
+        periodic_noise(rng, size_px, tile_size_m, largest_m=0.4 * tile_size_m, smallest_m=0.05 * tile_size_m, beta=2.0),
+    )
     clouds = periodic_noise(rng, size_px, tile_size_m, largest_m=0.5 * tile_size_m, smallest_m=8 * pixel_m, beta=2.8)
     halo = blur(primary, max(2.0, 0.01 * tile_size_m / pixel_m))
     base = mix(ground, cloud_colour, smoothstep(-1.0, 2.5, clouds + 6.0 * halo))
@@ -326,8 +386,16 @@ def concrete(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) 
         exposed = smoothstep(0.30, 0.42, 0.6 - f1) * (rng.random(cells * cells) < 0.7)[ids]
         albedo = mix(albedo, light * stone_tone[..., None], 0.7 * exposed)
     elif finish_kind == "troweled":
-        swirl = periodic_noise(rng, size_px, tile_size_m, largest_m=0.3, smallest_m=0.01, beta=2.0, stretch=4.0,
-                               angle_deg=float(rng.uniform(0.0, 180.0)))
+        swirl = periodic_noise(
+            rng,
+            size_px,
+            tile_size_m,
+            largest_m=0.3,
+            smallest_m=0.01,
+            beta=2.0,
+            stretch=4.0,
+            angle_deg=float(rng.uniform(0.0, 180.0)),
+        )
         burnish = smoothstep(0.3, 1.5, swirl)
         albedo = albedo * (1.0 - 0.08 * burnish)[..., None]
         roughness = roughness - 0.2 * burnish
@@ -340,5 +408,6 @@ def concrete(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) 
     albedo = albedo * (1.0 - 0.45 * pore)[..., None]
     height = height - 0.001 * pore * np.sqrt(np.clip(1.0 - (distance_m / radius_m[ids]) ** 2, 0.0, 1.0))
     roughness = roughness + 0.1 * pore
-    return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32),
-                   {"pore_cells": cells})
+    return Surface(
+        albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32), {"pore_cells": cells}
+    )

@@ -76,7 +76,12 @@ LEATHER_PALETTES: dict[str, tuple[tuple[float, float, float], ...]] = {
 
 
 def _pile(
-    rng: np.random.Generator, size_px: int, tile_size_m: float, tuft_pitch_m: float, *, loop: bool,
+    rng: np.random.Generator,
+    size_px: int,
+    tile_size_m: float,
+    tuft_pitch_m: float,
+    *,
+    loop: bool,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
     """Tufted pile: (tuft brightness variation, tuft height profile 0–1, tuft id, tufts per side)."""
     pixel_m = tile_size_m / size_px
@@ -112,8 +117,7 @@ def carpet(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) ->
     tile_size_m = float(params["tile_size_m"])
     pile, fleck = jittered_palette(CARPET_PALETTES[params["palette"]], params)
     kind = params["pile"]
-    variation, profile, ids, tufts = _pile(rng, size_px, tile_size_m, float(params["tuft_pitch_m"]),
-                                           loop=kind != "cut")
+    variation, profile, ids, tufts = _pile(rng, size_px, tile_size_m, float(params["tuft_pitch_m"]), loop=kind != "cut")
     # Berber yarn is flecked by design; cut and loop pile only carry a few stray tufts of the second colour.
     fleck_fraction = float(params["fleck_amount"]) * (1.0 if kind == "berber" else 0.3)
     flecked = (rng.random(tufts * tufts) < fleck_fraction).astype(np.float32)[ids]
@@ -123,12 +127,20 @@ def carpet(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) ->
     # Pile height 4–8 mm, but only the tuft-scale relief shows: tips up, crevices down.
     height = 0.001 * profile
     roughness = 0.9 + 0.05 * variation
-    return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32),
-                   {"tufts_per_side": tufts, "tuft_pitch_m": tile_size_m / tufts})
+    return Surface(
+        albedo.astype(np.float32),
+        roughness.astype(np.float32),
+        height.astype(np.float32),
+        {"tufts_per_side": tufts, "tuft_pitch_m": tile_size_m / tufts},
+    )
 
 
 def _rug_pattern(
-    rng: np.random.Generator, size_px: int, tile_size_m: float, border_m: float, design: str,
+    rng: np.random.Generator,
+    size_px: int,
+    tile_size_m: float,
+    border_m: float,
+    design: str,
 ) -> tuple[np.ndarray, dict[str, Any]]:
     """Colour index per pixel for a rug: 0 field, 1 border, 2 motif, 3 accent."""
     y_px, x_px = pixel_coordinates(size_px)
@@ -200,8 +212,9 @@ def rug(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -> Su
     index, info = _rug_pattern(rng, size_px, tile_size_m, float(params["border_width_m"]), params["design"])
     variation, profile, _, tufts = _pile(rng, size_px, tile_size_m, float(params["tuft_pitch_m"]), loop=False)
     # Abrash: tone bands across the rug (along y), long along x.
-    abrash = periodic_noise(rng, size_px, tile_size_m, largest_m=0.5 * tile_size_m, smallest_m=0.02 * tile_size_m,
-                            beta=1.5, stretch=40.0)
+    abrash = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=0.5 * tile_size_m, smallest_m=0.02 * tile_size_m, beta=1.5, stretch=40.0
+    )
     wear = periodic_noise(rng, size_px, tile_size_m, largest_m=0.5 * tile_size_m, smallest_m=0.05, beta=2.0)
     albedo = colours[index] * (1.0 + 0.06 * variation + float(params["abrash"]) * abrash + 0.03 * wear)[..., None]
     height = 0.0008 * profile
@@ -265,19 +278,39 @@ def fabric(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) ->
     yarn_variation = float(params["yarn_variation"])
     warp_tone = 1.0 + yarn_variation * rng.standard_normal(threads).astype(np.float32)
     weft_tone = 1.0 + yarn_variation * rng.standard_normal(threads).astype(np.float32)
-    fibre_y = periodic_noise(rng, size_px, tile_size_m, largest_m=4 * float(params["thread_pitch_m"]),
-                             smallest_m=0.7 * pixel_m, beta=0.5, stretch=6.0, angle_deg=90.0)
-    fibre_x = periodic_noise(rng, size_px, tile_size_m, largest_m=4 * float(params["thread_pitch_m"]),
-                             smallest_m=0.7 * pixel_m, beta=0.5, stretch=6.0)
-    tone = np.where(warp_up, warp_tone[i % threads] * (1.0 + 0.06 * fibre_y),
-                    weft_tone[j % threads] * (1.0 + 0.06 * fibre_x))
+    fibre_y = periodic_noise(
+        rng,
+        size_px,
+        tile_size_m,
+        largest_m=4 * float(params["thread_pitch_m"]),
+        smallest_m=0.7 * pixel_m,
+        beta=0.5,
+        stretch=6.0,
+        angle_deg=90.0,
+    )
+    fibre_x = periodic_noise(
+        rng,
+        size_px,
+        tile_size_m,
+        largest_m=4 * float(params["thread_pitch_m"]),
+        smallest_m=0.7 * pixel_m,
+        beta=0.5,
+        stretch=6.0,
+    )
+    tone = np.where(
+        warp_up, warp_tone[i % threads] * (1.0 + 0.06 * fibre_y), weft_tone[j % threads] * (1.0 + 0.06 * fibre_x)
+    )
     colour = np.where(warp_up[..., None], warp_colour, weft_colour)
     shade = 0.55 + 0.45 * profile
     albedo = colour * (tone * shade)[..., None]
     height = 0.3 * float(params["thread_pitch_m"]) * profile
     roughness = 0.85 + 0.1 * (1.0 - profile)
-    return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32),
-                   {"threads_per_side": threads, "thread_pitch_m": tile_size_m / threads})
+    return Surface(
+        albedo.astype(np.float32),
+        roughness.astype(np.float32),
+        height.astype(np.float32),
+        {"threads_per_side": threads, "thread_pitch_m": tile_size_m / threads},
+    )
 
 
 def leather(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -> Surface:
@@ -295,16 +328,32 @@ def leather(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -
     border = f2 - f1
     dome = smoothstep(0.0, 0.5, border)
     crease = 1.0 - smoothstep(0.0, 0.12, border)
-    wrinkle_field = periodic_noise(rng, size_px, tile_size_m, largest_m=0.04, smallest_m=max(0.004, 3 * pixel_m),
-                                   beta=2.0, stretch=3.0, angle_deg=float(rng.uniform(0.0, 180.0)))
+    wrinkle_field = periodic_noise(
+        rng,
+        size_px,
+        tile_size_m,
+        largest_m=0.04,
+        smallest_m=max(0.004, 3 * pixel_m),
+        beta=2.0,
+        stretch=3.0,
+        angle_deg=float(rng.uniform(0.0, 180.0)),
+    )
     wrinkle = (1.0 - smoothstep(0.0, 0.35, np.abs(wrinkle_field))) * float(params["wrinkle_strength"])
     clouds = periodic_noise(rng, size_px, tile_size_m, largest_m=0.2, smallest_m=0.01, beta=2.0)
     cell_tone = rng.standard_normal(cells * cells).astype(np.float32)[ids]
     variation = float(params["colour_variation"])
     depth = float(params["crease_depth_m"])
-    albedo = hide * (1.0 + variation * clouds + 0.3 * variation * cell_tone
-                     - 0.25 * crease - 0.15 * wrinkle + 0.08 * dome)[..., None]
+    albedo = (
+        hide
+        * (1.0 + variation * clouds + 0.3 * variation * cell_tone - 0.25 * crease - 0.15 * wrinkle + 0.08 * dome)[
+            ..., None
+        ]
+    )
     height = depth * (dome - 0.6 * wrinkle)
     roughness = float(params["roughness"]) * (1.0 + 0.3 * crease + 0.2 * wrinkle - 0.1 * dome)
-    return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32),
-                   {"grain_cells_per_side": cells, "grain_size_m": tile_size_m / cells})
+    return Surface(
+        albedo.astype(np.float32),
+        roughness.astype(np.float32),
+        height.astype(np.float32),
+        {"grain_cells_per_side": cells, "grain_size_m": tile_size_m / cells},
+    )

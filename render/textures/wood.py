@@ -53,7 +53,12 @@ class Grain:
 
 
 def wood_grain(
-    rng: np.random.Generator, size_px: int, tile_size_m: float, *, grain_spacing_m: float, waviness: float,
+    rng: np.random.Generator,
+    size_px: int,
+    tile_size_m: float,
+    *,
+    grain_spacing_m: float,
+    waviness: float,
     pore_strength: float,
 ) -> Grain:
     """Periodic wood grain along x: ring profile, pores and broad tone.
@@ -69,10 +74,12 @@ def wood_grain(
     rings = whole_count(tile_size_m, grain_spacing_m)
     # Smooth and a little longer along the grain (stretch 1.5) so the arches are few, large and elongated like
     # flat-sawn figure; a small wiggle keeps the lines from looking drawn.
-    displacement = periodic_noise(rng, size_px, tile_size_m, largest_m=tile_size_m,
-                                  smallest_m=0.12 * tile_size_m, beta=4.0, stretch=1.5)
-    wiggle = periodic_noise(rng, size_px, tile_size_m, largest_m=0.1 * tile_size_m,
-                            smallest_m=0.01 * tile_size_m, beta=2.0, stretch=6.0)
+    displacement = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.12 * tile_size_m, beta=4.0, stretch=1.5
+    )
+    wiggle = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=0.1 * tile_size_m, smallest_m=0.01 * tile_size_m, beta=2.0, stretch=6.0
+    )
     shift_m = 0.05 * waviness * tile_size_m * displacement + 0.1 * grain_spacing_m * wiggle
     y_px, _ = pixel_coordinates(size_px)
     phase = (y_px * pixel_m + shift_m) * (rings / tile_size_m)
@@ -82,12 +89,14 @@ def wood_grain(
     # Early wood light, darkening into late wood, a crisp late-wood line, sharp reset at the next ring.
     late = 0.55 * within**3 + 0.7 * smoothstep(0.80, 0.93, within) * (1.0 - smoothstep(0.95, 1.0, within))
     late = np.clip(late, 0.0, 1.0) * ring_strength[ring_index]
-    streaks = periodic_noise(rng, size_px, tile_size_m, largest_m=0.2 * tile_size_m,
-                             smallest_m=0.7 * pixel_m, beta=0.5, stretch=25.0)
+    streaks = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=0.2 * tile_size_m, smallest_m=0.7 * pixel_m, beta=0.5, stretch=25.0
+    )
     streaks = warp(streaks, shift_m / pixel_m, np.zeros_like(shift_m))
     pores = smoothstep(0.8, 2.2, streaks) * pore_strength
-    tone = periodic_noise(rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.05 * tile_size_m,
-                          beta=2.0, stretch=8.0)
+    tone = periodic_noise(
+        rng, size_px, tile_size_m, largest_m=tile_size_m, smallest_m=0.05 * tile_size_m, beta=2.0, stretch=8.0
+    )
     return Grain(late_wood=late.astype(np.float32), pores=pores.astype(np.float32), tone=tone, rings=rings)
 
 
@@ -99,15 +108,25 @@ def wood(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -> S
     """
     tile_size_m = float(params["tile_size_m"])
     early, late_colour = jittered_palette(WOOD_PALETTES[params["palette"]], params)
-    grain = wood_grain(rng, size_px, tile_size_m, grain_spacing_m=float(params["grain_spacing_m"]),
-                       waviness=float(params["grain_waviness"]), pore_strength=float(params["pore_strength"]))
+    grain = wood_grain(
+        rng,
+        size_px,
+        tile_size_m,
+        grain_spacing_m=float(params["grain_spacing_m"]),
+        waviness=float(params["grain_waviness"]),
+        pore_strength=float(params["pore_strength"]),
+    )
     contrast = float(params["grain_contrast"])
     darkness = np.clip(contrast * (0.75 * grain.late_wood + 0.45 * grain.pores), 0.0, 1.0)
     albedo = mix(early, late_colour, darkness) * (1.0 + 0.07 * grain.tone)[..., None]
     roughness = float(params["roughness"]) + 0.12 * grain.pores + 0.03 * grain.tone
     height = -(20e-6 * grain.pores + 5e-6 * grain.late_wood)
-    return Surface(albedo, roughness.astype(np.float32), height.astype(np.float32),
-                   {"grain_spacing_m": tile_size_m / grain.rings, "grain_lines": grain.rings})
+    return Surface(
+        albedo,
+        roughness.astype(np.float32),
+        height.astype(np.float32),
+        {"grain_spacing_m": tile_size_m / grain.rings, "grain_lines": grain.rings},
+    )
 
 
 def parquet(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -> Surface:
@@ -127,8 +146,14 @@ def parquet(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -
     per_row = whole_count(tile_size_m, float(params["board_length_m"]))
     lattice = row_lattice(size_px, rows, per_row, rng.uniform(0.0, size_px, size=rows))
     early, late_colour = jittered_palette(WOOD_PALETTES[params["palette"]], params)
-    grain = wood_grain(rng, size_px, tile_size_m, grain_spacing_m=float(params["grain_spacing_m"]),
-                       waviness=float(params["grain_waviness"]), pore_strength=float(params["pore_strength"]))
+    grain = wood_grain(
+        rng,
+        size_px,
+        tile_size_m,
+        grain_spacing_m=float(params["grain_spacing_m"]),
+        waviness=float(params["grain_waviness"]),
+        pore_strength=float(params["pore_strength"]),
+    )
     boards = rows * per_row
     shift_y = rng.integers(0, size_px, size=boards)
     shift_x = rng.integers(0, size_px, size=boards)
@@ -160,7 +185,11 @@ def parquet(params: Mapping[str, Any], rng: np.random.Generator, size_px: int) -
     albedo = albedo * (1.0 - 0.55 * joint - 0.15 * groove)[..., None]
     height = -(depth_m * groove + 20e-6 * pores + 5e-6 * late)
     roughness = float(params["roughness"]) + board_rough[ids] + 0.1 * pores + 0.3 * joint
-    info = {"rows": rows, "boards_per_row": per_row, "board_width_m": tile_size_m / rows,
-            "board_length_m": tile_size_m / per_row, "grain_spacing_m": tile_size_m / grain.rings}
+    info = {
+        "rows": rows,
+        "boards_per_row": per_row,
+        "board_width_m": tile_size_m / rows,
+        "board_length_m": tile_size_m / per_row,
+        "grain_spacing_m": tile_size_m / grain.rings,
+    }
     return Surface(albedo.astype(np.float32), roughness.astype(np.float32), height.astype(np.float32), info)
-

@@ -39,15 +39,31 @@ def make_campaign(user, classes):
 
     counter = {"n": 0}
 
-    def make(*, quotas: dict[str, int] | None = None, cost_budget: str = "100", price: str = "0.05",
-             setup_cost: str = "0", weight: int = 1, max_attempts: int = 3, budget: dict | None = None,
-             seed: int = 11, start: bool = False, name: str | None = None):
+    def make(
+        *,
+        quotas: dict[str, int] | None = None,
+        cost_budget: str = "100",
+        price: str = "0.05",
+        setup_cost: str = "0",
+        weight: int = 1,
+        max_attempts: int = 3,
+        budget: dict | None = None,
+        seed: int = 11,
+        start: bool = False,
+        name: str | None = None,
+    ):
         counter["n"] += 1
         campaign = services.create_campaign(
-            owner=user, name=name or f"tiny {counter['n']}",
+            owner=user,
+            name=name or f"tiny {counter['n']}",
             quotas=[services.QuotaInput(k, v) for k, v in (quotas or {"chair": 3, "ottoman": 2}).items()],
-            budget=budget or TINY_BUDGET, cost_budget=Decimal(cost_budget), price_per_cpu_hour=Decimal(price),
-            setup_cost=Decimal(setup_cost), weight=weight, max_attempts=max_attempts, seed=seed,
+            budget=budget or TINY_BUDGET,
+            cost_budget=Decimal(cost_budget),
+            price_per_cpu_hour=Decimal(price),
+            setup_cost=Decimal(setup_cost),
+            weight=weight,
+            max_attempts=max_attempts,
+            seed=seed,
         )
         if start:
             services.start_campaign(campaign_id=campaign.pk)
@@ -81,8 +97,15 @@ def outbox(monkeypatch):
     box = Outbox()
 
     def capture(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str, countdown_s: float = 0.0) -> None:
-        box.append({"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid,
-                    "task_id": task_id, "countdown_s": countdown_s})
+        box.append(
+            {
+                "frame_id": frame_id,
+                "dispatch_no": dispatch_no,
+                "campaign_uid": campaign_uid,
+                "task_id": task_id,
+                "countdown_s": countdown_s,
+            }
+        )
 
     monkeypatch.setattr(messaging, "send_frame_task", capture)
     return box
@@ -94,8 +117,10 @@ def live_worker_rows(transactional_db):
     from fleet.models import WorkerHeartbeat
 
     def make(*concurrencies: int):
-        return [WorkerHeartbeat.objects.create(hostname=f"fake-{i}@test", machine="test", pid=1000 + i,
-                                               concurrency=c) for i, c in enumerate(concurrencies)]
+        return [
+            WorkerHeartbeat.objects.create(hostname=f"fake-{i}@test", machine="test", pid=1000 + i, concurrency=c)
+            for i, c in enumerate(concurrencies)
+        ]
 
     return make
 
@@ -107,11 +132,21 @@ class FakeResult:
         next_id = 1
         for name, count in sorted(composition.items()):
             for _ in range(count):
-                instances.append({"instance_id": next_id, "class_name": name, "asset_id": f"{name}-{next_id}",
-                                  "bbox": [1.0, 1.0, 20.0, 20.0] if accept else None,
-                                  "amodal_bbox": [1.0, 1.0, 20.0, 20.0], "mask_area_px": 400 if accept else 0,
-                                  "visible_fraction": 1.0 if accept else 0.0, "truncation_fraction": 0.0,
-                                  "segmentation": None, "accepted": accept, "reject_reasons": []})
+                instances.append(
+                    {
+                        "instance_id": next_id,
+                        "class_name": name,
+                        "asset_id": f"{name}-{next_id}",
+                        "bbox": [1.0, 1.0, 20.0, 20.0] if accept else None,
+                        "amodal_bbox": [1.0, 1.0, 20.0, 20.0],
+                        "mask_area_px": 400 if accept else 0,
+                        "visible_fraction": 1.0 if accept else 0.0,
+                        "truncation_fraction": 0.0,
+                        "segmentation": None,
+                        "accepted": accept,
+                        "reject_reasons": [],
+                    }
+                )
                 next_id += 1
         self.labels = {"instances": instances}
 

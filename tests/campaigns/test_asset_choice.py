@@ -19,7 +19,8 @@ from campaigns.models import Asset, Campaign
 from tests.campaigns.conftest import TINY_BUDGET
 
 CUBE_OBJ = "".join(f"v {x} {y} {z}\n" for x in (-0.2, 0.2) for y in (-0.15, 0.15) for z in (0.0, 0.3)) + (
-    "f 1 2 4 3\nf 5 7 8 6\nf 1 5 6 2\nf 3 4 8 7\nf 1 3 7 5\nf 2 6 8 4\n")
+    "f 1 2 4 3\nf 5 7 8 6\nf 1 5 6 2\nf 3 4 8 7\nf 1 3 7 5\nf 2 6 8 4\n"
+)
 
 
 @pytest.fixture
@@ -36,17 +37,32 @@ def team(user):
     return personal_team(user=user)
 
 
-def _upload(user, team, *, name="cube", object_class="ottoman", content: bytes | None = None, filename="cube.obj",
-            **kwargs):
+def _upload(
+    user, team, *, name="cube", object_class="ottoman", content: bytes | None = None, filename="cube.obj", **kwargs
+):
     data = CUBE_OBJ.encode() if content is None else content
-    return services.upload_mesh_asset(user=user, team=team, object_class_name=object_class, name=name,
-                                      upload=SimpleUploadedFile(filename, data), unit="m", **kwargs)
+    return services.upload_mesh_asset(
+        user=user,
+        team=team,
+        object_class_name=object_class,
+        name=name,
+        upload=SimpleUploadedFile(filename, data),
+        unit="m",
+        **kwargs,
+    )
 
 
 def _create(user, name, quotas, **kwargs) -> Campaign:
-    return services.create_campaign(owner=user, name=name, quotas=[services.QuotaInput(k, v) for k, v in quotas.items()],
-                                    budget=TINY_BUDGET, cost_budget=Decimal("100"),
-                                    price_per_cpu_hour=Decimal("0.05"), seed=3, **kwargs)
+    return services.create_campaign(
+        owner=user,
+        name=name,
+        quotas=[services.QuotaInput(k, v) for k, v in quotas.items()],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("100"),
+        price_per_cpu_hour=Decimal("0.05"),
+        seed=3,
+        **kwargs,
+    )
 
 
 def _asset_ids_in_specs(campaign: Campaign, composition: dict[str, int], seeds: range) -> set[str]:
@@ -94,12 +110,24 @@ def test_an_only_upload_of_a_class_without_generator_is_preselected(user, team, 
 def test_editing_a_draft_keeps_its_choice(user, team, classes, media_root, no_preview):
     upload = _upload(user, team)
     campaign = _create(user, "edit me", {"ottoman": 2}, asset_ids=[upload.pk])
-    services.update_draft_campaign(campaign_id=campaign.pk, name="edited", quotas=[services.QuotaInput("ottoman", 3)],
-                                   budget=TINY_BUDGET, cost_budget=Decimal("100"), price_per_cpu_hour=Decimal("0.05"))
+    services.update_draft_campaign(
+        campaign_id=campaign.pk,
+        name="edited",
+        quotas=[services.QuotaInput("ottoman", 3)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("100"),
+        price_per_cpu_hour=Decimal("0.05"),
+    )
     assert set(campaign.assets.all()) == {upload}
     other = _create(user, "no upload", {"ottoman": 2})
-    services.update_draft_campaign(campaign_id=other.pk, name="no upload", quotas=[services.QuotaInput("ottoman", 3)],
-                                   budget=TINY_BUDGET, cost_budget=Decimal("100"), price_per_cpu_hour=Decimal("0.05"))
+    services.update_draft_campaign(
+        campaign_id=other.pk,
+        name="no upload",
+        quotas=[services.QuotaInput("ottoman", 3)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("100"),
+        price_per_cpu_hour=Decimal("0.05"),
+    )
     assert not other.assets.filter(kind="mesh").exists()
 
 
@@ -129,15 +157,20 @@ def test_planner_form_choice_reaches_the_campaign(client, user, team, classes, m
     assert f'value="{upload.pk}"' in page and 'name="assets_shown"' in page
     procedural_ids = list(Asset.objects.filter(kind="procedural").values_list("pk", flat=True))
     for name, ticked in (("without", procedural_ids), ("with", [*procedural_ids, upload.pk])):
-        response = client.post(reverse("campaigns:create"), _plan_data(user, name=name, team=team.pk, assets=ticked,
-                                                                       assets_shown="on", q_chair_target=2,
-                                                                       q_wall_clock_target=1))
+        response = client.post(
+            reverse("campaigns:create"),
+            _plan_data(
+                user, name=name, team=team.pk, assets=ticked, assets_shown="on", q_chair_target=2, q_wall_clock_target=1
+            ),
+        )
         assert response.status_code == 302, response.context["form"].errors if response.context else response
     assert not Campaign.objects.get(name="without").assets.filter(pk=upload.pk).exists()
     assert Campaign.objects.get(name="with").assets.filter(pk=upload.pk).exists()
     # Only assets of classes with a target go with the campaign (the plan quotes chair and wall_clock).
     assert set(Campaign.objects.get(name="with").assets.values_list("object_class__name", flat=True)) == {
-        "chair", "wall_clock"}
+        "chair",
+        "wall_clock",
+    }
 
 
 def test_orientation_and_look_go_from_upload_to_the_spec_entries(user, team, classes, media_root, no_preview):
@@ -174,9 +207,16 @@ def _png_bytes() -> bytes:
 
 
 # The same cube with one texture square on every face (Wavefront OBJ: f v/vt).
-TEXTURED_OBJ = "mtllib box.mtl\n" + CUBE_OBJ.split("f ")[0] + "vt 0 0\nvt 1 0\nvt 1 1\nvt 0 1\nusemtl wood\n" + "".join(
-    "f " + " ".join(f"{v}/{t}" for v, t in zip(line.split()[1:], (1, 2, 3, 4), strict=True)) + "\n"
-    for line in CUBE_OBJ.splitlines() if line.startswith("f "))
+TEXTURED_OBJ = (
+    "mtllib box.mtl\n"
+    + CUBE_OBJ.split("f ")[0]
+    + "vt 0 0\nvt 1 0\nvt 1 1\nvt 0 1\nusemtl wood\n"
+    + "".join(
+        "f " + " ".join(f"{v}/{t}" for v, t in zip(line.split()[1:], (1, 2, 3, 4), strict=True)) + "\n"
+        for line in CUBE_OBJ.splitlines()
+        if line.startswith("f ")
+    )
+)
 MTL = "newmtl wood\nKd 1 1 1\nmap_Kd tex/wood.png\n"
 
 
@@ -196,15 +236,19 @@ def test_obj_zip_upload_is_unpacked_beside_its_row(user, team, classes, media_ro
     assert not [p for p in (media_root / "assets" / "meshes").iterdir() if p.name.startswith(".")]
 
 
-@pytest.mark.parametrize(("entries", "message"), [
-    ({"../box.obj": CUBE_OBJ.encode()}, "outside"),
-    ({"box.obj": TEXTURED_OBJ.encode(), "box.mtl": MTL.encode()}, "texture 'tex/wood.png' is missing"),
-    ({"box.obj": TEXTURED_OBJ.encode()}, "material library 'box.mtl' is missing"),
-    ({"box.obj": CUBE_OBJ.encode(), "zeros.bin": bytes(8 * 2**20)}, "zip bomb"),
-    ({"notes.txt": b"no model here"}, "exactly one model"),
-])
-def test_bad_zips_are_refused_with_a_reason_and_nothing_is_saved(user, team, classes, media_root, no_preview,
-                                                                 entries, message):
+@pytest.mark.parametrize(
+    ("entries", "message"),
+    [
+        ({"../box.obj": CUBE_OBJ.encode()}, "outside"),
+        ({"box.obj": TEXTURED_OBJ.encode(), "box.mtl": MTL.encode()}, "texture 'tex/wood.png' is missing"),
+        ({"box.obj": TEXTURED_OBJ.encode()}, "material library 'box.mtl' is missing"),
+        ({"box.obj": CUBE_OBJ.encode(), "zeros.bin": bytes(8 * 2**20)}, "zip bomb"),
+        ({"notes.txt": b"no model here"}, "exactly one model"),
+    ],
+)
+def test_bad_zips_are_refused_with_a_reason_and_nothing_is_saved(
+    user, team, classes, media_root, no_preview, entries, message
+):
     with pytest.raises(asset_files.UploadError, match=message):
         _upload(user, team, content=_zip_bytes(entries), filename="model.zip")
     assert not Asset.objects.filter(kind="mesh").exists()
@@ -214,10 +258,21 @@ def test_bad_zips_are_refused_with_a_reason_and_nothing_is_saved(user, team, cla
 
 def test_upload_page_shows_the_size_in_metres(client, user, team, classes, media_root, no_preview):
     client.force_login(user)
-    response = client.post(reverse("campaigns:assets"), {
-        "name": "box", "team": team.pk, "object_class": "ottoman", "unit": "m", "creation_cost": "0",
-        "up_axis": "+z", "front": "", "look": "keep",
-        "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ.encode())}, follow=True)
+    response = client.post(
+        reverse("campaigns:assets"),
+        {
+            "name": "box",
+            "team": team.pk,
+            "object_class": "ottoman",
+            "unit": "m",
+            "creation_cost": "0",
+            "up_axis": "+z",
+            "front": "",
+            "look": "keep",
+            "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ.encode()),
+        },
+        follow=True,
+    )
     assert response.status_code == 200
     text = response.content.decode()
     assert "0.40 × 0.30 × 0.30 m (width × depth × height)" in text
@@ -230,13 +285,30 @@ def test_upload_command_prints_the_size_in_metres(user, team, classes, media_roo
     path = tmp_path / "cube.obj"
     path.write_text(CUBE_OBJ)
     out = io.StringIO()
-    call_command("upload_asset", str(path), team=team.name, object_class="ottoman", name="cli cube", user="ana",
-                 unit="m", up_axis="+z", stdout=out)
+    call_command(
+        "upload_asset",
+        str(path),
+        team=team.name,
+        object_class="ottoman",
+        name="cli cube",
+        user="ana",
+        unit="m",
+        up_axis="+z",
+        stdout=out,
+    )
     assert "0.40 × 0.30 × 0.30 m (width × depth × height)" in out.getvalue()
     # An absurd size is refused as before (read as millimetres the cube is 0.4 mm across).
     with pytest.raises(CommandError, match="is outside 0.02–10"):
-        call_command("upload_asset", str(path), team=team.name, object_class="ottoman", name="tiny", user="ana",
-                     unit="mm", stdout=io.StringIO())
+        call_command(
+            "upload_asset",
+            str(path),
+            team=team.name,
+            object_class="ottoman",
+            name="tiny",
+            user="ana",
+            unit="mm",
+            stdout=io.StringIO(),
+        )
     assert list(Asset.objects.filter(kind="mesh").values_list("name", flat=True)) == ["cli cube"]
 
 
@@ -249,19 +321,32 @@ def test_preview_looks_at_the_models_front(media_root, tmp_path):
 
     face = trimesh.creation.box(extents=(0.3, 0.3, 0.01))
     face.apply_translation((0, 0, 0.055))
-    face.visual = trimesh.visual.TextureVisuals(material=trimesh.visual.material.PBRMaterial(
-        baseColorFactor=[0.8, 0.05, 0.05, 1.0], roughnessFactor=1.0, metallicFactor=0.0))
+    face.visual = trimesh.visual.TextureVisuals(
+        material=trimesh.visual.material.PBRMaterial(
+            baseColorFactor=[0.8, 0.05, 0.05, 1.0], roughnessFactor=1.0, metallicFactor=0.0
+        )
+    )
     body = trimesh.creation.box(extents=(0.3, 0.3, 0.05))
     body.apply_translation((0, 0, 0.025))
-    body.visual = trimesh.visual.TextureVisuals(material=trimesh.visual.material.PBRMaterial(
-        baseColorFactor=[0.05, 0.05, 0.8, 1.0], roughnessFactor=1.0, metallicFactor=0.0))
+    body.visual = trimesh.visual.TextureVisuals(
+        material=trimesh.visual.material.PBRMaterial(
+            baseColorFactor=[0.05, 0.05, 0.8, 1.0], roughnessFactor=1.0, metallicFactor=0.0
+        )
+    )
     path = tmp_path / "plaque.glb"
     trimesh.Scene([face, body]).export(path)
     centres = {}
     for front in ("+z", "-z"):
-        preview = asset_files.render_asset_preview(asset_pk=1, kind="mesh", class_name="wall_clock",
-                                                   mesh_path=str(path), unit="m", up_axis="+y", front=front,
-                                                   look="keep")
+        preview = asset_files.render_asset_preview(
+            asset_pk=1,
+            kind="mesh",
+            class_name="wall_clock",
+            mesh_path=str(path),
+            unit="m",
+            up_axis="+y",
+            front=front,
+            look="keep",
+        )
         image = np.asarray(Image.open(preview).convert("RGB"), dtype=float)
         centres[front] = image[54:74, 54:74].reshape(-1, 3).mean(axis=0)
     assert centres["+z"][0] > 2 * centres["+z"][2]  # the red face towards the camera

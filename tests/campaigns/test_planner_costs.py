@@ -19,20 +19,26 @@ def test_posterior_yield_moves_from_prior_to_observed_rate():
 
 
 def test_often_rejected_class_is_placed_more_often():
-    progress = [ClassProgress("chair", 20, accepted=40, placed=50), ClassProgress("wall_clock", 20, accepted=5,
-                                                                                  placed=50)]
+    progress = [
+        ClassProgress("chair", 20, accepted=40, placed=50),
+        ClassProgress("wall_clock", 20, accepted=5, placed=50),
+    ]
     # Wait: chair's quota is met; only wall_clock is needed, and it is needed in volume.
     plan = planner.plan_composition(progress, max_objects=8)
     assert plan == {"wall_clock": 8}
-    progress = [ClassProgress("chair", 100, accepted=40, placed=50),
-                ClassProgress("ottoman", 100, accepted=10, placed=50)]
+    progress = [
+        ClassProgress("chair", 100, accepted=40, placed=50),
+        ClassProgress("ottoman", 100, accepted=10, placed=50),
+    ]
     plan = planner.plan_composition(progress, max_objects=10)
     assert plan["ottoman"] > plan["chair"] and sum(plan.values()) == 10
 
 
 def test_met_quota_is_not_placed_and_in_flight_counts():
-    progress = [ClassProgress("chair", 10, accepted=10, placed=20), ClassProgress("sofa", 4, accepted=0, placed=0,
-                                                                                  in_flight_placed=8)]
+    progress = [
+        ClassProgress("chair", 10, accepted=10, placed=20),
+        ClassProgress("sofa", 4, accepted=0, placed=0, in_flight_placed=8),
+    ]
     # chair met; sofa's 8 in-flight placements are expected to bring 4 accepted (yield prior 0.5): nothing to add.
     assert planner.plan_composition(progress, max_objects=6) == {}
 
@@ -47,9 +53,16 @@ def test_end_game_places_what_is_needed_not_a_full_room():
 def test_plan_never_exceeds_density_limit():
     rng = np.random.default_rng(0)
     for _ in range(200):
-        progress = [ClassProgress(f"c{i}", int(rng.integers(0, 50)), accepted=int(rng.integers(0, 40)),
-                                  placed=int(rng.integers(40, 80)), in_flight_placed=int(rng.integers(0, 5)))
-                    for i in range(5)]
+        progress = [
+            ClassProgress(
+                f"c{i}",
+                int(rng.integers(0, 50)),
+                accepted=int(rng.integers(0, 40)),
+                placed=int(rng.integers(40, 80)),
+                in_flight_placed=int(rng.integers(0, 5)),
+            )
+            for i in range(5)
+        ]
         limit = int(rng.integers(1, 13))
         plan = planner.plan_composition(progress, max_objects=limit)
         assert sum(plan.values()) <= limit
@@ -70,11 +83,15 @@ def test_uniform_composition_fills_the_room():
 def test_variation_budget_walk():
     walk = [None]
     for _ in range(7):
-        walk.append(planner.next_coordinates(walk[-1], lighting_per_layout=2, views_per_lighting=2, layouts=10,
-                                             continue_layout=True))
+        walk.append(
+            planner.next_coordinates(
+                walk[-1], lighting_per_layout=2, views_per_lighting=2, layouts=10, continue_layout=True
+            )
+        )
     assert walk[1:] == [(0, 0, 0), (0, 0, 1), (0, 1, 0), (0, 1, 1), (1, 0, 0), (1, 0, 1), (1, 1, 0)]
-    assert planner.next_coordinates((3, 0, 0), lighting_per_layout=2, views_per_lighting=2, layouts=10,
-                                    continue_layout=False) == (4, 0, 0)
+    assert planner.next_coordinates(
+        (3, 0, 0), lighting_per_layout=2, views_per_lighting=2, layouts=10, continue_layout=False
+    ) == (4, 0, 0)
 
 
 def test_frame_seeds_share_axes_by_coordinates():
@@ -91,8 +108,9 @@ def test_accept_instance_uses_quota_thresholds():
     assert planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6)[0]
     ok, reasons = planner.accept_instance(label, min_visible_fraction=0.5, min_box_px=10)
     assert not ok and reasons == ["visible_fraction 0.40 < 0.50", "box 8 px < 10 px"]
-    assert planner.accept_instance({**label, "bbox": None, "mask_area_px": 0}, min_visible_fraction=0,
-                                   min_box_px=0) == (False, ["not visible"])
+    assert planner.accept_instance(
+        {**label, "bbox": None, "mask_area_px": 0}, min_visible_fraction=0, min_box_px=0
+    ) == (False, ["not visible"])
 
 
 def test_accept_instance_judges_contrast_by_the_quota_minimum():
@@ -102,14 +120,17 @@ def test_accept_instance_judges_contrast_by_the_quota_minimum():
     ok, reasons = planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0)
     # The wording is the render core's own (render.frame.contrast_reason), never a copy of it.
     assert not ok and reasons == [contrast_reason(label, min_contrast=2.0)] and reasons[0].startswith("contrast 1.42")
-    assert planner.accept_instance({**label, "contrast": 2.0}, min_visible_fraction=0.3, min_box_px=6,
-                                   min_contrast=2.0) == (True, [])  # at the minimum: accepted
-    assert planner.accept_instance({**label, "contrast": 7.5}, min_visible_fraction=0.3, min_box_px=6,
-                                   min_contrast=2.0) == (True, [])
+    assert planner.accept_instance(
+        {**label, "contrast": 2.0}, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0
+    ) == (True, [])  # at the minimum: accepted
+    assert planner.accept_instance(
+        {**label, "contrast": 7.5}, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0
+    ) == (True, [])
     assert planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6, min_contrast=0.0) == (True, [])
     # Every failed rule is listed, contrast after visibility and box.
-    ok, reasons = planner.accept_instance({**label, "visible_fraction": 0.1}, min_visible_fraction=0.3,
-                                          min_box_px=30, min_contrast=2.0)
+    ok, reasons = planner.accept_instance(
+        {**label, "visible_fraction": 0.1}, min_visible_fraction=0.3, min_box_px=30, min_contrast=2.0
+    )
     assert reasons == ["visible_fraction 0.10 < 0.30", "box 20 px < 30 px", "contrast 1.42 < 2"]
 
 
@@ -118,10 +139,16 @@ def test_accept_instance_judges_labels_without_contrast_as_before():
     for kwargs in ({}, {"min_contrast": 2.0}, {"min_contrast": 1000.0}):
         assert planner.accept_instance(old, min_visible_fraction=0.3, min_box_px=6, **kwargs) == (True, [])
         assert planner.accept_instance(old, min_visible_fraction=0.5, min_box_px=10, **kwargs) == (
-            False, ["visible_fraction 0.40 < 0.50", "box 8 px < 10 px"])
+            False,
+            ["visible_fraction 0.40 < 0.50", "box 8 px < 10 px"],
+        )
     # No visible pixels: judged by geometry alone, whatever the contrast says.
-    assert planner.accept_instance({**old, "bbox": None, "mask_area_px": 0, "contrast": 0.0}, min_visible_fraction=0,
-                                   min_box_px=0, min_contrast=2.0) == (False, ["not visible"])
+    assert planner.accept_instance(
+        {**old, "bbox": None, "mask_area_px": 0, "contrast": 0.0},
+        min_visible_fraction=0,
+        min_box_px=0,
+        min_contrast=2.0,
+    ) == (False, ["not visible"])
 
 
 def test_share_slots_by_weight():
@@ -139,15 +166,19 @@ def test_frame_cost_and_amortization():
     assert fixed == Decimal("300")
     a = costs.amortized_cost(fixed=fixed, compute_spent=Decimal("10"), frames_done=10, accepted_instances=31)
     assert a.per_frame == Decimal("31") and a.per_accepted_instance == Decimal("10")
-    assert costs.amortized_cost(fixed=fixed, compute_spent=Decimal(0), frames_done=0,
-                                accepted_instances=0).per_frame is None
+    assert (
+        costs.amortized_cost(fixed=fixed, compute_spent=Decimal(0), frames_done=0, accepted_instances=0).per_frame
+        is None
+    )
 
 
 def test_budget_check_and_expected_cpu():
-    assert costs.can_afford_frame(spent=Decimal("9"), committed=Decimal("0.5"), next_frame_cost=Decimal("0.5"),
-                                  cost_budget=Decimal("10"))
-    assert not costs.can_afford_frame(spent=Decimal("9"), committed=Decimal("0.5"), next_frame_cost=Decimal("0.51"),
-                                      cost_budget=Decimal("10"))
+    assert costs.can_afford_frame(
+        spent=Decimal("9"), committed=Decimal("0.5"), next_frame_cost=Decimal("0.5"), cost_budget=Decimal("10")
+    )
+    assert not costs.can_afford_frame(
+        spent=Decimal("9"), committed=Decimal("0.5"), next_frame_cost=Decimal("0.51"), cost_budget=Decimal("10")
+    )
     assert costs.expected_frame_cpu_s(observed_cpu_s=[1.0, 9.0, 2.0], width_px=64, height_px=48, spp=4) == 2.0
     assert costs.expected_frame_cpu_s(observed_cpu_s=[], width_px=64, height_px=48, spp=4) > 0
 
@@ -159,15 +190,38 @@ def test_manual_labelling_and_break_even():
     assert m.cost_per_instance == Decimal("1.21") and m.cost_for_instances == Decimal("121")
     assert all(r.note == "from memory" for r in m.references)
     # fixed 100, frame costs 0.1 and yields 3 instances worth 1.21 each: n = 100 / (3.63 - 0.1) → 29 frames.
-    assert costs.break_even_frames(fixed=Decimal(100), compute_cost_per_frame=Decimal("0.1"), accepted_per_frame=3,
-                                   manual_cost_per_instance=Decimal("1.21")) == 29
-    assert costs.break_even_frames(fixed=Decimal(100), compute_cost_per_frame=Decimal("5"), accepted_per_frame=1,
-                                   manual_cost_per_instance=Decimal("1")) is None
+    assert (
+        costs.break_even_frames(
+            fixed=Decimal(100),
+            compute_cost_per_frame=Decimal("0.1"),
+            accepted_per_frame=3,
+            manual_cost_per_instance=Decimal("1.21"),
+        )
+        == 29
+    )
+    assert (
+        costs.break_even_frames(
+            fixed=Decimal(100),
+            compute_cost_per_frame=Decimal("5"),
+            accepted_per_frame=1,
+            manual_cost_per_instance=Decimal("1"),
+        )
+        is None
+    )
 
 
 def test_projection_uses_rates_and_fleet():
-    p = costs.project_remaining(placements_needed=40, instances_per_frame=8, cost_per_frame=Decimal("0.01"),
-                                wall_s_per_frame=2.0, parallel_slots=2)
+    p = costs.project_remaining(
+        placements_needed=40,
+        instances_per_frame=8,
+        cost_per_frame=Decimal("0.01"),
+        wall_s_per_frame=2.0,
+        parallel_slots=2,
+    )
     assert p.frames_remaining == 5 and p.cost_remaining == Decimal("0.05") and p.seconds_remaining == 6.0
-    assert costs.project_remaining(placements_needed=0, instances_per_frame=0, cost_per_frame=None,
-                                   wall_s_per_frame=None, parallel_slots=0).frames_remaining == 0
+    assert (
+        costs.project_remaining(
+            placements_needed=0, instances_per_frame=0, cost_per_frame=None, wall_s_per_frame=None, parallel_slots=0
+        ).frames_remaining
+        == 0
+    )

@@ -13,11 +13,23 @@ from campaigns.services import normalize_campaign_budget
 
 def test_planner_beats_uniform_on_real_sampling():
     budget = normalize_campaign_budget(DEMO_BUDGET)
-    quotas = {"chair": sampling.QuotaRule(20, 0.3, 6.0), "ottoman": sampling.QuotaRule(4, 0.3, 6.0),
-              "wall_clock": sampling.QuotaRule(2, 0.3, 6.0)}
-    results = {strategy: sampling.simulate(strategy=strategy, quotas=quotas, budget=budget, campaign_seed=5,
-                                           label_width_px=64, label_height_px=48, max_frames=200)
-               for strategy in ("planner", "uniform")}
+    quotas = {
+        "chair": sampling.QuotaRule(20, 0.3, 6.0),
+        "ottoman": sampling.QuotaRule(4, 0.3, 6.0),
+        "wall_clock": sampling.QuotaRule(2, 0.3, 6.0),
+    }
+    results = {
+        strategy: sampling.simulate(
+            strategy=strategy,
+            quotas=quotas,
+            budget=budget,
+            campaign_seed=5,
+            label_width_px=64,
+            label_height_px=48,
+            max_frames=200,
+        )
+        for strategy in ("planner", "uniform")
+    }
     planner, uniform = results["planner"], results["uniform"]
     assert planner.filled and uniform.filled
     assert planner.frames < uniform.frames
@@ -33,8 +45,7 @@ def test_room_density_limit_comes_from_the_layout_seed():
     budget = normalize_campaign_budget(DEMO_BUDGET)
     limits = set()
     for layout in range(12):
-        seeds = planner.frame_seeds(campaign_seed=1, index=layout, layout_index=layout, lighting_index=0,
-                                    view_index=0)
+        seeds = planner.frame_seeds(campaign_seed=1, index=layout, layout_index=layout, lighting_index=0, view_index=0)
         area = sampling.room_floor_area_m2(budget=budget, seeds=seeds)
         assert 9.0 <= area <= 25.0  # rooms of 3–5 m × 3–5 m
         limit = sampling.max_objects_for_frame(budget=budget, seeds=seeds)

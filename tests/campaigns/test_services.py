@@ -28,8 +28,10 @@ pytestmark = pytest.mark.django_db(transaction=True)
         ({"quotas": [services.QuotaInput("chair", -1)]}, "target must be between 0 and"),
         ({"quotas": [services.QuotaInput("unicorn", 3)]}, "quota 'unicorn': unknown object class"),
         ({"quotas": [services.QuotaInput("chair", 3, min_visible_fraction=1.5)]}, "min visible fraction"),
-        ({"quotas": [services.QuotaInput("chair", 3, min_contrast=-0.5)]},
-         "quota 'chair': min contrast must be between 0 and 1000, got -0.5"),
+        (
+            {"quotas": [services.QuotaInput("chair", 3, min_contrast=-0.5)]},
+            "quota 'chair': min contrast must be between 0 and 1000, got -0.5",
+        ),
         ({"quotas": [services.QuotaInput("chair", 3, min_contrast=float("nan"))]}, "min contrast: must be finite"),
         ({"quotas": [services.QuotaInput("chair", 3, min_contrast="high")]}, "min contrast: expected a number"),
         ({"quotas": [services.QuotaInput("chair", 0)]}, "every target is 0"),
@@ -42,8 +44,14 @@ pytestmark = pytest.mark.django_db(transaction=True)
     ],
 )
 def test_bad_input_is_refused_with_a_clear_message_and_changes_nothing(user, classes, changes, message):
-    kwargs = dict(owner=user, name="bad", quotas=[services.QuotaInput("chair", 3)], budget=TINY_BUDGET,
-                  cost_budget="100", price_per_cpu_hour="0.05")
+    kwargs = dict(
+        owner=user,
+        name="bad",
+        quotas=[services.QuotaInput("chair", 3)],
+        budget=TINY_BUDGET,
+        cost_budget="100",
+        price_per_cpu_hour="0.05",
+    )
     kwargs.update(changes)
     if "budget" in changes:
         kwargs["budget"] = {**TINY_BUDGET, **changes["budget"]}
@@ -84,8 +92,7 @@ def test_start_dispatches_a_bounded_number_of_frames_and_records_events(make_cam
     assert len(set(ids)) == 6 and all(t.startswith(f"ef-c{campaign.pk}-f") for t in ids)
 
 
-def test_running_campaigns_share_the_fleet_by_weight(make_campaign, outbox, live_worker_rows, fake_render,
-                                                    media_root):
+def test_running_campaigns_share_the_fleet_by_weight(make_campaign, outbox, live_worker_rows, fake_render, media_root):
     live_worker_rows(3)  # 6 slots
     heavy = make_campaign(quotas={"chair": 200}, weight=2, start=True)
     assert len(outbox) == 6  # alone on the fleet, it may use all of it
@@ -109,8 +116,10 @@ def test_result_counts_once_under_redelivery(make_campaign, outbox, fake_render,
     again = outbox.deliver(message)  # the broker delivers the same message again (acks late)
     assert again["skipped"] == "frame is done"
     frame = Frame.objects.get(pk=message["frame_id"])
-    assert services.record_result(frame_id=frame.pk, dispatch_no=message["dispatch_no"], labels=[], cpu_s=1.0,
-                                  wall_s=1.0) is False
+    assert (
+        services.record_result(frame_id=frame.pk, dispatch_no=message["dispatch_no"], labels=[], cpu_s=1.0, wall_s=1.0)
+        is False
+    )
     campaign.refresh_from_db()
     placed = sum(frame.composition.values())
     assert campaign.frames_done == 1 and campaign.instances_accepted == placed == Instance.objects.count()
@@ -173,8 +182,9 @@ def test_budget_cap_pauses_before_a_frame_would_exceed_it(make_campaign, outbox,
     while outbox:
         for m in outbox.take():
             assert services.claim_frame(frame_id=m["frame_id"], dispatch_no=m["dispatch_no"], worker_host="w").ok
-            services.record_result(frame_id=m["frame_id"], dispatch_no=m["dispatch_no"], labels=[], cpu_s=3600.0,
-                                   wall_s=1.0)
+            services.record_result(
+                frame_id=m["frame_id"], dispatch_no=m["dispatch_no"], labels=[], cpu_s=3600.0, wall_s=1.0
+            )
             scheduler.dispatch(campaign_id=campaign.pk)
     campaign.refresh_from_db()
     # 2.00 fixed + 2 frames × 1.00 = 4.00 ≤ 4.50; a third frame would take spend to 5.00.
@@ -242,8 +252,9 @@ def test_task_releases_a_frame_when_the_campaign_stopped_meanwhile(make_campaign
     assert Frame.objects.get(pk=message["frame_id"]).state == "revoked" and fake_render.calls == 0
 
 
-def test_quota_met_exactly_once_and_campaign_completes_once(make_campaign, outbox, fake_render, media_root,
-                                                           live_worker_rows):
+def test_quota_met_exactly_once_and_campaign_completes_once(
+    make_campaign, outbox, fake_render, media_root, live_worker_rows
+):
     live_worker_rows(2)
     campaign = make_campaign(quotas={"chair": 6, "ottoman": 1}, start=True)
     messages = outbox.take()
@@ -252,12 +263,25 @@ def test_quota_met_exactly_once_and_campaign_completes_once(make_campaign, outbo
         services.claim_frame(frame_id=m["frame_id"], dispatch_no=m["dispatch_no"], worker_host="w@test")
     for m in messages:
         frame = Frame.objects.get(pk=m["frame_id"])
-        labels = [{"instance_id": i + 1, "class_name": "chair", "bbox": [0, 0, 9, 9], "mask_area_px": 81,
-                   "visible_fraction": 1.0} for i in range(3)] + [
-            {"instance_id": 4, "class_name": "ottoman", "bbox": [0, 0, 9, 9], "mask_area_px": 81,
-             "visible_fraction": 1.0}]
-        services.record_result(frame_id=frame.pk, dispatch_no=m["dispatch_no"], labels=labels, cpu_s=0.5,
-                               wall_s=0.5)
+        labels = [
+            {
+                "instance_id": i + 1,
+                "class_name": "chair",
+                "bbox": [0, 0, 9, 9],
+                "mask_area_px": 81,
+                "visible_fraction": 1.0,
+            }
+            for i in range(3)
+        ] + [
+            {
+                "instance_id": 4,
+                "class_name": "ottoman",
+                "bbox": [0, 0, 9, 9],
+                "mask_area_px": 81,
+                "visible_fraction": 1.0,
+            }
+        ]
+        services.record_result(frame_id=frame.pk, dispatch_no=m["dispatch_no"], labels=labels, cpu_s=0.5, wall_s=0.5)
     campaign.refresh_from_db()
     assert campaign.status == "completed"
     met = FrameEvent.objects.filter(campaign=campaign, to_state="quota_met")
@@ -270,10 +294,13 @@ def test_quota_met_exactly_once_and_campaign_completes_once(make_campaign, outbo
 
 def test_quota_min_contrast_defaults_to_the_budget_and_is_stored(user, classes):
     campaign = services.create_campaign(
-        owner=user, name="contrast", budget={**TINY_BUDGET, "thresholds": {**TINY_BUDGET["thresholds"],
-                                                                            "min_contrast": 1.5}},
+        owner=user,
+        name="contrast",
+        budget={**TINY_BUDGET, "thresholds": {**TINY_BUDGET["thresholds"], "min_contrast": 1.5}},
         quotas=[services.QuotaInput("chair", 3, min_contrast=4.0), services.QuotaInput("ottoman", 2)],
-        cost_budget="100", price_per_cpu_hour="0.05")
+        cost_budget="100",
+        price_per_cpu_hour="0.05",
+    )
     assert dict(campaign.quotas.values_list("object_class__name", "min_contrast")) == {"chair": 4.0, "ottoman": 1.5}
 
 
@@ -281,12 +308,18 @@ def test_result_judges_contrast_by_the_quota_and_stores_it(user, classes, outbox
     from render.frame import contrast_reason
 
     campaign = services.create_campaign(
-        owner=user, name="contrast", budget=TINY_BUDGET, cost_budget="100", price_per_cpu_hour="0.05",
-        quotas=[services.QuotaInput("chair", 30, min_contrast=3.0), services.QuotaInput("ottoman", 20)])
+        owner=user,
+        name="contrast",
+        budget=TINY_BUDGET,
+        cost_budget="100",
+        price_per_cpu_hour="0.05",
+        quotas=[services.QuotaInput("chair", 30, min_contrast=3.0), services.QuotaInput("ottoman", 20)],
+    )
     services.start_campaign(campaign_id=campaign.pk)
     message = outbox.take()[0]
-    assert services.claim_frame(frame_id=message["frame_id"], dispatch_no=message["dispatch_no"],
-                                worker_host="w@test").ok
+    assert services.claim_frame(
+        frame_id=message["frame_id"], dispatch_no=message["dispatch_no"], worker_host="w@test"
+    ).ok
     seen = {"bbox": [0, 0, 9, 9], "mask_area_px": 81, "visible_fraction": 1.0}
     labels = [
         {"instance_id": 1, "class_name": "chair", **seen, "contrast": 2.5},  # below the chair's 3
@@ -295,15 +328,22 @@ def test_result_judges_contrast_by_the_quota_and_stores_it(user, classes, outbox
         {"instance_id": 4, "class_name": "ottoman", **seen, "contrast": 1.9},  # below the budget default 2
         {"instance_id": 5, "class_name": "ottoman", **seen, "contrast": 2.5},
     ]
-    assert services.record_result(frame_id=message["frame_id"], dispatch_no=message["dispatch_no"], labels=labels,
-                                  cpu_s=0.5, wall_s=0.5)
+    assert services.record_result(
+        frame_id=message["frame_id"], dispatch_no=message["dispatch_no"], labels=labels, cpu_s=0.5, wall_s=0.5
+    )
     rows = {i.instance_id: i for i in Instance.objects.filter(frame_id=message["frame_id"])}
     assert {k: (r.contrast, r.accepted) for k, r in rows.items()} == {
-        1: (2.5, False), 2: (3.0, True), 3: (None, True), 4: (1.9, False), 5: (2.5, True)}
+        1: (2.5, False),
+        2: (3.0, True),
+        3: (None, True),
+        4: (1.9, False),
+        5: (2.5, True),
+    }
     assert rows[1].reject_reasons == [contrast_reason(labels[0], min_contrast=3.0)] == ["contrast 2.50 < 3"]
     assert rows[4].reject_reasons == [contrast_reason(labels[3], min_contrast=2.0)]
-    quotas = {q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related(
-        "object_class")}
+    quotas = {
+        q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related("object_class")
+    }
     assert (quotas["chair"].accepted_count, quotas["chair"].rejected_count) == (2, 1)
     assert (quotas["ottoman"].accepted_count, quotas["ottoman"].rejected_count) == (1, 1)
     campaign.refresh_from_db()
@@ -338,8 +378,9 @@ def test_message_from_another_database_is_refused(make_campaign, outbox, fake_re
     assert Frame.objects.get(pk=message["frame_id"]).state == "queued" and fake_render.calls == 0
 
 
-def test_lost_message_is_sent_again_and_the_old_one_is_stale(make_campaign, outbox, fake_render, media_root,
-                                                              live_worker_rows):
+def test_lost_message_is_sent_again_and_the_old_one_is_stale(
+    make_campaign, outbox, fake_render, media_root, live_worker_rows
+):
     from datetime import timedelta
 
     from django.utils import timezone
@@ -348,7 +389,8 @@ def test_lost_message_is_sent_again_and_the_old_one_is_stale(make_campaign, outb
     campaign = make_campaign(quotas={"chair": 30}, start=True)
     lost = outbox.take()[0]
     Frame.objects.filter(pk=lost["frame_id"]).update(
-        queued_at=timezone.now() - timedelta(seconds=scheduler.STALE_QUEUED_S + 1))
+        queued_at=timezone.now() - timedelta(seconds=scheduler.STALE_QUEUED_S + 1)
+    )
     scheduler.dispatch(campaign_id=campaign.pk)
     again = [m for m in outbox.take() if m["frame_id"] == lost["frame_id"]]
     assert len(again) == 1 and again[0]["dispatch_no"] == 2
@@ -356,8 +398,7 @@ def test_lost_message_is_sent_again_and_the_old_one_is_stale(make_campaign, outb
     assert outbox.deliver(again[0])["recorded"] is True
 
 
-def test_permanent_error_is_dead_at_once_and_dead_frames_in_a_row_pause(make_campaign, outbox, fake_render,
-                                                                        media_root):
+def test_permanent_error_is_dead_at_once_and_dead_frames_in_a_row_pause(make_campaign, outbox, fake_render, media_root):
     from render.layout import LayoutError
 
     campaign = make_campaign(quotas={"chair": 30}, start=True)
@@ -397,10 +438,24 @@ def uploads(user, classes, media_root, django_user_model):
     Membership.objects.create(team=other_team, user=otto, role="admin")
     ours_rel, ours_path = _write_box(media_root, "footstool")
     theirs_rel, _ = _write_box(media_root, "pouf")
-    ours = services.upload_asset(user=user, team=ours_team, object_class_name="ottoman", name="footstool",
-                                 mesh_path=ours_rel, original_name="footstool.obj", unit="m")
-    theirs = services.upload_asset(user=otto, team=other_team, object_class_name="ottoman", name="pouf",
-                                   mesh_path=theirs_rel, original_name="pouf.obj", unit="m")
+    ours = services.upload_asset(
+        user=user,
+        team=ours_team,
+        object_class_name="ottoman",
+        name="footstool",
+        mesh_path=ours_rel,
+        original_name="footstool.obj",
+        unit="m",
+    )
+    theirs = services.upload_asset(
+        user=otto,
+        team=other_team,
+        object_class_name="ottoman",
+        name="pouf",
+        mesh_path=theirs_rel,
+        original_name="pouf.obj",
+        unit="m",
+    )
     return {"ours": ours, "ours_path": ours_path, "theirs": theirs, "team": ours_team}
 
 
@@ -408,23 +463,46 @@ def test_campaign_attaches_its_team_uploads_but_never_another_teams(make_campaig
     # Uploads are opt-in per campaign (tests/campaigns/test_asset_choice.py): a default campaign has neither.
     default = make_campaign(quotas={"chair": 3, "ottoman": 2})
     assert not default.assets.filter(kind="mesh").exists()
-    campaign = services.create_campaign(owner=default.owner, name="chooses", quotas=[services.QuotaInput("ottoman", 2)],
-                                        budget=TINY_BUDGET, cost_budget=Decimal("100"),
-                                        price_per_cpu_hour=Decimal("0.05"), asset_ids=[uploads["ours"].pk])
+    campaign = services.create_campaign(
+        owner=default.owner,
+        name="chooses",
+        quotas=[services.QuotaInput("ottoman", 2)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("100"),
+        price_per_cpu_hour=Decimal("0.05"),
+        asset_ids=[uploads["ours"].pk],
+    )
     attached = set(campaign.assets.values_list("pk", flat=True))
     assert uploads["ours"].pk in attached and uploads["theirs"].pk not in attached
-    assert selectors.campaign_user_mesh_entries(campaign=campaign) == {"ottoman": [{
-        "asset_id": f"user/{uploads['ours'].pk}", "mesh_path": str(uploads["ours_path"].resolve()), "unit": "m",
-        "up_axis": "+z", "placement": "floor", "front": "", "look": "randomize"}]}
+    assert selectors.campaign_user_mesh_entries(campaign=campaign) == {
+        "ottoman": [
+            {
+                "asset_id": f"user/{uploads['ours'].pk}",
+                "mesh_path": str(uploads["ours_path"].resolve()),
+                "unit": "m",
+                "up_axis": "+z",
+                "placement": "floor",
+                "front": "",
+                "look": "randomize",
+            }
+        ]
+    }
     uploads["ours_path"].unlink()  # a missing file is left out rather than failing every frame
     assert selectors.campaign_user_mesh_entries(campaign=campaign) == {}
 
 
 def test_explicit_asset_ids_of_another_team_are_refused(user, uploads):
     with pytest.raises(services.CampaignError, match="another team"):
-        services.create_campaign(owner=user, name="theirs", quotas=[services.QuotaInput("ottoman", 2)],
-                                 budget=TINY_BUDGET, cost_budget=Decimal("100"), price_per_cpu_hour=Decimal("0.05"),
-                                 seed=3, asset_ids=[uploads["theirs"].pk])
+        services.create_campaign(
+            owner=user,
+            name="theirs",
+            quotas=[services.QuotaInput("ottoman", 2)],
+            budget=TINY_BUDGET,
+            cost_budget=Decimal("100"),
+            price_per_cpu_hour=Decimal("0.05"),
+            seed=3,
+            asset_ids=[uploads["theirs"].pk],
+        )
     assert not Campaign.objects.filter(name="theirs").exists()
 
 
@@ -440,10 +518,16 @@ def test_task_places_uploads_and_the_library_counts_their_frames(make_campaign, 
         seen.append(user_assets)
         spec = make_spec(budget, composition, seeds.seed, layout_seed=seeds.layout_seed, user_assets=user_assets)
         result = FakeResult(composition)
-        result.labels = {"instances": [dict(row, class_name=o["class_name"], asset_id=o["asset_id"])
-                                       for row, o in zip(FakeResult(composition).labels["instances"],
-                                                         sorted(spec["objects"], key=lambda o: o["class_name"]),
-                                                         strict=True)]}
+        result.labels = {
+            "instances": [
+                dict(row, class_name=o["class_name"], asset_id=o["asset_id"])
+                for row, o in zip(
+                    FakeResult(composition).labels["instances"],
+                    sorted(spec["objects"], key=lambda o: o["class_name"]),
+                    strict=True,
+                )
+            ]
+        }
         return result
 
     monkeypatch.setattr(campaigns.tasks, "render_frame_files", fake)

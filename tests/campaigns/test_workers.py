@@ -26,11 +26,19 @@ def wait_for(predicate, *, timeout_s: float, what: str, workers=()):
 def test_two_workers_render_one_campaign_with_exact_counters(render_worker_factory, make_campaign, media_root):
     workers = [render_worker_factory(concurrency=1, threads=1), render_worker_factory(concurrency=1, threads=1)]
     campaign = make_campaign(quotas={"chair": 10, "ottoman": 4, "wall_clock": 2}, start=True)
-    wait_for(lambda: Campaign.objects.get(pk=campaign.pk).status == "completed", timeout_s=240,
-             what="the campaign to complete", workers=workers)
+    wait_for(
+        lambda: Campaign.objects.get(pk=campaign.pk).status == "completed",
+        timeout_s=240,
+        what="the campaign to complete",
+        workers=workers,
+    )
     # Frames still running when the last quota was met finish and are recorded too.
-    wait_for(lambda: not Frame.objects.filter(campaign=campaign, state="running").exists(), timeout_s=60,
-             what="running frames to finish", workers=workers)
+    wait_for(
+        lambda: not Frame.objects.filter(campaign=campaign, state="running").exists(),
+        timeout_s=60,
+        what="running frames to finish",
+        workers=workers,
+    )
     campaign.refresh_from_db()
     done = Frame.objects.filter(campaign=campaign, state="done")
     assert campaign.frames_done == done.count() >= 2
@@ -50,8 +58,9 @@ def test_two_workers_render_one_campaign_with_exact_counters(render_worker_facto
     # Exactly one result per frame, and spend equals the sum over frames.
     assert FrameEvent.objects.filter(campaign=campaign, to_state="done").count() == done.count()
     assert FrameEvent.objects.filter(campaign=campaign, to_state="quota_met").count() == 3
-    assert campaign.cpu_s_spent == pytest.approx(Frame.objects.filter(campaign=campaign).aggregate(
-        s=Sum("cpu_s"))["s"], rel=1e-9)
+    assert campaign.cpu_s_spent == pytest.approx(
+        Frame.objects.filter(campaign=campaign).aggregate(s=Sum("cpu_s"))["s"], rel=1e-9
+    )
     assert campaign.compute_cost_spent == done.aggregate(s=Sum("compute_cost"))["s"]
     assert all(f.cpu_s > 0 for f in done)
     assert (media_root / f"campaigns/{campaign.pk}/frames/0/rgb.png").is_file()
@@ -60,18 +69,30 @@ def test_two_workers_render_one_campaign_with_exact_counters(render_worker_facto
 def test_paused_campaign_stops_and_resumes_on_a_real_worker(render_worker_factory, make_campaign, media_root):
     worker = render_worker_factory(concurrency=1, threads=1)
     campaign = make_campaign(quotas={"chair": 30, "ottoman": 10}, start=True)
-    wait_for(lambda: Frame.objects.filter(campaign=campaign, state="done").exists(), timeout_s=120,
-             what="a first frame", workers=[worker])
+    wait_for(
+        lambda: Frame.objects.filter(campaign=campaign, state="done").exists(),
+        timeout_s=120,
+        what="a first frame",
+        workers=[worker],
+    )
     services.pause_campaign(campaign_id=campaign.pk)
-    wait_for(lambda: not Frame.objects.filter(campaign=campaign, state__in=("queued", "running")).exists(),
-             timeout_s=60, what="work to stop", workers=[worker])
+    wait_for(
+        lambda: not Frame.objects.filter(campaign=campaign, state__in=("queued", "running")).exists(),
+        timeout_s=60,
+        what="work to stop",
+        workers=[worker],
+    )
     campaign.refresh_from_db()
     assert campaign.status == "paused", "quotas filled before the pause: make them larger"
     done_at_pause = Frame.objects.filter(campaign=campaign, state="done").count()
     time.sleep(3)
     assert Frame.objects.filter(campaign=campaign, state="done").count() == done_at_pause
     services.resume_campaign(campaign_id=campaign.pk)
-    wait_for(lambda: Campaign.objects.get(pk=campaign.pk).status == "completed", timeout_s=240,
-             what="the campaign to complete after resume", workers=[worker])
+    wait_for(
+        lambda: Campaign.objects.get(pk=campaign.pk).status == "completed",
+        timeout_s=240,
+        what="the campaign to complete after resume",
+        workers=[worker],
+    )
     indices = sorted(Frame.objects.filter(campaign=campaign).values_list("index", flat=True))
     assert indices == list(range(len(indices)))

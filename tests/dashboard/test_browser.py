@@ -24,8 +24,9 @@ def _login(page, base: str, username: str) -> None:
     page.wait_for_url(base + "/campaigns/")
 
 
-def test_plan_start_watch_retry_and_browse(page, live_server, people, object_classes, media_root,
-                                          render_worker_factory, wait_until):
+def test_plan_start_watch_retry_and_browse(
+    page, live_server, people, object_classes, media_root, render_worker_factory, wait_until
+):
     from campaigns.models import Campaign, Frame
 
     base = live_server.url
@@ -36,11 +37,21 @@ def test_plan_start_watch_retry_and_browse(page, live_server, people, object_cla
     page.fill("#id_q_chair_target", "150")
     page.fill("#id_q_ottoman_target", "40")
     page.fill("#id_q_ottoman_visible", "0.3")
-    for name, value in (("b_render_width_px", "64"), ("b_render_height_px", "48"), ("b_render_spp", "4"),
-                        ("b_render_max_depth", "3"), ("b_room_width_m_min", "3"), ("b_room_width_m_max", "3.5"),
-                        ("b_room_depth_m_min", "3"), ("b_room_depth_m_max", "3.5"), ("b_thresholds_min_box_px", "3"),
-                        ("b_thresholds_min_visible_fraction", "0.2"), ("b_camera_focal_length_mm_min", "24"),
-                        ("b_camera_focal_length_mm_max", "35"), ("b_variation_views_per_lighting", "1")):
+    for name, value in (
+        ("b_render_width_px", "64"),
+        ("b_render_height_px", "48"),
+        ("b_render_spp", "4"),
+        ("b_render_max_depth", "3"),
+        ("b_room_width_m_min", "3"),
+        ("b_room_width_m_max", "3.5"),
+        ("b_room_depth_m_min", "3"),
+        ("b_room_depth_m_max", "3.5"),
+        ("b_thresholds_min_box_px", "3"),
+        ("b_thresholds_min_visible_fraction", "0.2"),
+        ("b_camera_focal_length_mm_min", "24"),
+        ("b_camera_focal_length_mm_max", "35"),
+        ("b_variation_views_per_lighting", "1"),
+    ):
         page.fill(f"#id_{name}", value)
     # The estimate follows the form without a reload.
     page.wait_for_selector("#estimate .estimate-body:not([hidden])")
@@ -66,8 +77,9 @@ def test_plan_start_watch_retry_and_browse(page, live_server, people, object_cla
     page.wait_for_selector(".pill.status-running")
     page.evaluate("window.__noReload = 1")
     # Progress moves as the worker renders, without reloading the page.
-    page.wait_for_function("Number(document.querySelector('[data-live=frames_done]').textContent) >= 2",
-                           timeout=120_000)
+    page.wait_for_function(
+        "Number(document.querySelector('[data-live=frames_done]').textContent) >= 2", timeout=120_000
+    )
     assert page.evaluate("window.__noReload") == 1
     assert float(page.text_content("[data-live=progress_pct]")) > 0
     page.wait_for_selector("#chart-balance .main-svg")
@@ -92,8 +104,11 @@ def test_plan_start_watch_retry_and_browse(page, live_server, people, object_cla
     if boxes:
         assert page.locator("svg.boxes rect").first.bounding_box()["width"] > 0
     # The image loads after the page does: wait for it before reading its size.
-    page.wait_for_function("() => { const img = document.querySelector('img.layer.rgb');"
-                           " return img && img.complete && img.naturalWidth > 0; }", timeout=15000)
+    page.wait_for_function(
+        "() => { const img = document.querySelector('img.layer.rgb');"
+        " return img && img.complete && img.naturalWidth > 0; }",
+        timeout=15000,
+    )
     assert page.evaluate("document.querySelector('img.layer.rgb').naturalWidth") == 64
     page.click("label[for=view-depth]")
     assert page.locator("img.layer.depth").is_visible()
@@ -105,8 +120,9 @@ def test_plan_start_watch_retry_and_browse(page, live_server, people, object_cla
     page.wait_for_selector(".pill.status-cancelled")
 
 
-def test_upload_refuses_a_bad_file_and_takes_a_good_one(page, live_server, people, object_classes, media_root,
-                                                       tmp_path, monkeypatch):
+def test_upload_refuses_a_bad_file_and_takes_a_good_one(
+    page, live_server, people, object_classes, media_root, tmp_path, monkeypatch
+):
     from campaigns.models import Asset
 
     monkeypatch.setattr("campaigns.asset_files.request_preview", lambda **kw: None)

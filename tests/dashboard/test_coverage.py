@@ -25,33 +25,54 @@ def _material(family: str | None) -> dict:
     return material
 
 
-def _spec(room: dict[str, str | None], objects: list[dict[str, str | None]],
-          distractors: list[dict[str, str | None]] | None) -> dict:
+def _spec(
+    room: dict[str, str | None], objects: list[dict[str, str | None]], distractors: list[dict[str, str | None]] | None
+) -> dict:
     """A scene file as the render core writes it: ``distractors`` listed only when there are some; a spec made
     before distractors existed (``distractors=None``) has no ``distractor_count`` in its budget either."""
-    spec = {"room": {"materials": {slot: _material(family) for slot, family in room.items()}},
-            "objects": [{"class_name": "chair", "materials": {slot: _material(f) for slot, f in parts.items()}}
-                        for parts in objects],
-            "lights": [], "camera": {}, "budget": {"appearance": {"texture_probability": 0.8}}}
+    spec = {
+        "room": {"materials": {slot: _material(family) for slot, family in room.items()}},
+        "objects": [
+            {"class_name": "chair", "materials": {slot: _material(f) for slot, f in parts.items()}} for parts in objects
+        ],
+        "lights": [],
+        "camera": {},
+        "budget": {"appearance": {"texture_probability": 0.8}},
+    }
     if distractors is not None:
         spec["budget"]["appearance"]["distractor_count"] = [0, 6]
     if distractors:
-        spec["distractors"] = [{"kind": "box", "materials": {slot: _material(f) for slot, f in parts.items()}}
-                               for parts in distractors]
+        spec["distractors"] = [
+            {"kind": "box", "materials": {slot: _material(f) for slot, f in parts.items()}} for parts in distractors
+        ]
     return spec
 
 
 # Four frames: 18 material slots, 7 of them plain; distractors 3, 0, 5 and one older spec that cannot have any.
 SPECS = [
-    _spec({"floor": "parquet", "wall": "plaster", "ceiling": None}, [{"frame": "wood", "seat": None}],
-          [{"body": "rug"}, {"body": None}, {"body": None}]),
-    _spec({"floor": "ceramic_tile", "wall": "plaster", "ceiling": "plaster"},
-          [{"frame": None, "seat": "fabric"}, {"upholstery": "fabric"}], []),
+    _spec(
+        {"floor": "parquet", "wall": "plaster", "ceiling": None},
+        [{"frame": "wood", "seat": None}],
+        [{"body": "rug"}, {"body": None}, {"body": None}],
+    ),
+    _spec(
+        {"floor": "ceramic_tile", "wall": "plaster", "ceiling": "plaster"},
+        [{"frame": None, "seat": "fabric"}, {"upholstery": "fabric"}],
+        [],
+    ),
     _spec({"floor": "parquet", "wall": "wallpaper", "ceiling": None}, [], [{}] * 5),
     _spec({"floor": None}, [], None),
 ]
-EXPECTED_FAMILIES = {"plaster": 3, "parquet": 2, "fabric": 2, "ceramic_tile": 1, "wood": 1, "wallpaper": 1,
-                     "rug": 1, "plain": 7}
+EXPECTED_FAMILIES = {
+    "plaster": 3,
+    "parquet": 2,
+    "fabric": 2,
+    "ceramic_tile": 1,
+    "wood": 1,
+    "wallpaper": 1,
+    "rug": 1,
+    "plain": 7,
+}
 
 
 def _record(campaign, media_root, specs, *, first_index: int = 0, write_files: bool = True) -> None:
@@ -63,15 +84,28 @@ def _record(campaign, media_root, specs, *, first_index: int = 0, write_files: b
     for offset, spec in enumerate(specs):
         index = first_index + offset
         with transaction.atomic():
-            frame = services.create_frame(campaign=campaign, index=index, coordinates=(index, 0, 0),
-                                          composition={"chair": 1}, expected_cpu_s=0.5, task_id_prefix="cov")
+            frame = services.create_frame(
+                campaign=campaign,
+                index=index,
+                coordinates=(index, 0, 0),
+                composition={"chair": 1},
+                expected_cpu_s=0.5,
+                task_id_prefix="cov",
+            )
         assert services.claim_frame(frame_id=frame.pk, dispatch_no=1, worker_host="w1@test").ok
         absolute, relative = frame_output_dir(campaign_id=campaign.pk, index=index)
         if write_files:
             absolute.mkdir(parents=True)
             (absolute / "scene.json").write_text(json.dumps(spec), encoding="utf-8")
-        assert services.record_result(frame_id=frame.pk, dispatch_no=1, labels=[], cpu_s=0.4, wall_s=0.5,
-                                      output_dir=relative, worker_host="w1@test")
+        assert services.record_result(
+            frame_id=frame.pk,
+            dispatch_no=1,
+            labels=[],
+            cpu_s=0.4,
+            wall_s=0.5,
+            output_dir=relative,
+            worker_host="w1@test",
+        )
 
 
 @pytest.fixture
@@ -105,14 +139,19 @@ def test_overview_shows_texture_families_and_distractors(client, textured_campai
     from render.textures import FAMILIES
 
     not_drawn = sorted(set(FAMILIES) - set(EXPECTED_FAMILIES))
-    assert (f"Not drawn in these frames ({len(not_drawn)} of {len(FAMILIES)} families): "
-            f"{', '.join(name.replace('_', ' ') for name in not_drawn)}.") in page
+    assert (
+        f"Not drawn in these frames ({len(not_drawn)} of {len(FAMILIES)} families): "
+        f"{', '.join(name.replace('_', ' ') for name in not_drawn)}."
+    ) in page
     summary = re.sub(r"<[^>]+>", "", re.search(r'id="distractor-summary">(.*?)</p>', page, re.S).group(1))
     drawn = textured_campaign.budget.get("appearance", {}).get("distractor_count")
     note = f" (the budget draws {drawn[0]}–{drawn[1]}; items that find no free spot are left out)" if drawn else ""
     assert " ".join(summary.split()) == f"Min 0 · median 3 · max 5 unlabelled objects, over 3 frames{note}."
-    bars = re.findall(r'<span class="bar" style="height: [\d.]+%"><span class="bar-count">(\d+)</span></span>'
-                      r'<span class="bar-label">([^<]+)</span>', page)
+    bars = re.findall(
+        r'<span class="bar" style="height: [\d.]+%"><span class="bar-count">(\d+)</span></span>'
+        r'<span class="bar-label">([^<]+)</span>',
+        page,
+    )
     assert bars == [("1", "0"), ("0", "1"), ("0", "2"), ("1", "3"), ("0", "4"), ("1", "5")]
 
 
@@ -123,7 +162,11 @@ def test_live_json_carries_the_same_appearance(client, textured_campaign, people
     assert {row["family"]: row["slots"] for row in appearance["textures"]} == EXPECTED_FAMILIES
     assert appearance["frames"] == 4 and appearance["slots"] == 18
     assert {k: appearance["distractors"][k] for k in ("frames", "min", "median", "max")} == {
-        "frames": 3, "min": 0, "median": 3, "max": 5}
+        "frames": 3,
+        "min": 0,
+        "median": 3,
+        "max": 5,
+    }
 
 
 def test_sample_is_the_latest_frames_and_says_of_how_many(textured_campaign, media_root):
@@ -131,8 +174,7 @@ def test_sample_is_the_latest_frames_and_says_of_how_many(textured_campaign, med
     appearance = coverage["appearance"]
     # The latest two by finish time are the last two recorded: frames 2 and 3.
     assert coverage["frames_read"] == 2 and coverage["frames_done"] == 4
-    assert {row["family"]: row["slots"] for row in appearance["textures"]} == {"parquet": 1, "wallpaper": 1,
-                                                                                 "plain": 2}
+    assert {row["family"]: row["slots"] for row in appearance["textures"]} == {"parquet": 1, "wallpaper": 1, "plain": 2}
     assert appearance["distractors"]["frames"] == 1  # the older spec (frame 3) cannot say
     assert appearance["distractors"]["max"] == 5
 

@@ -38,8 +38,12 @@ def _body(response) -> bytes:
 
 
 def test_anonymous_is_sent_to_login(client, done_campaign):
-    pages = _get_pages(done_campaign, 0) + [reverse("campaigns:list"), reverse("campaigns:create"),
-                                            reverse("campaigns:assets"), reverse("campaigns:estimate")]
+    pages = _get_pages(done_campaign, 0) + [
+        reverse("campaigns:list"),
+        reverse("campaigns:create"),
+        reverse("campaigns:assets"),
+        reverse("campaigns:estimate"),
+    ]
     for url in pages:
         response = client.get(url)
         assert response.status_code == 302 and "/login/" in response["Location"], url
@@ -51,15 +55,18 @@ def test_outsider_gets_404_everywhere(client, done_campaign, people):
     client.force_login(people["otto"])
     for url in _get_pages(done_campaign, 0) + [reverse("campaigns:edit", args=[done_campaign.pk])]:
         assert client.get(url).status_code == 404, url
-    for url in (reverse("campaigns:action", args=[done_campaign.pk, "pause"]),
-                reverse("campaigns:failed-action", args=[done_campaign.pk, "retry"]),
-                reverse("campaigns:rerender", args=[done_campaign.pk, 0]),
-                reverse("campaigns:delete", args=[done_campaign.pk])):
+    for url in (
+        reverse("campaigns:action", args=[done_campaign.pk, "pause"]),
+        reverse("campaigns:failed-action", args=[done_campaign.pk, "retry"]),
+        reverse("campaigns:rerender", args=[done_campaign.pk, 0]),
+        reverse("campaigns:delete", args=[done_campaign.pk]),
+    ):
         assert client.post(url, {"frame_id": 1}).status_code == 404, url
     listing = client.get(reverse("campaigns:list"))
     assert listing.status_code == 200 and done_campaign.name not in listing.content.decode()
-    assert str(done_campaign.pk) not in [str(c["id"]) for c in client.get(reverse("campaigns:list-live")).json()[
-        "campaigns"]]
+    assert str(done_campaign.pk) not in [
+        str(c["id"]) for c in client.get(reverse("campaigns:list-live")).json()["campaigns"]
+    ]
 
 
 def test_viewer_reads_every_page_but_cannot_act(client, done_campaign, people):
@@ -72,10 +79,12 @@ def test_viewer_reads_every_page_but_cannot_act(client, done_campaign, people):
     assert "Pause" not in page and "Delete this campaign" not in page
     assert client.get(reverse("campaigns:list")).status_code == 200
     assert client.get(reverse("campaigns:edit", args=[done_campaign.pk])).status_code == 403
-    for url in (reverse("campaigns:action", args=[done_campaign.pk, "pause"]),
-                reverse("campaigns:failed-action", args=[done_campaign.pk, "retry"]),
-                reverse("campaigns:rerender", args=[done_campaign.pk, 0]),
-                reverse("campaigns:delete", args=[done_campaign.pk])):
+    for url in (
+        reverse("campaigns:action", args=[done_campaign.pk, "pause"]),
+        reverse("campaigns:failed-action", args=[done_campaign.pk, "retry"]),
+        reverse("campaigns:rerender", args=[done_campaign.pk, 0]),
+        reverse("campaigns:delete", args=[done_campaign.pk]),
+    ):
         assert client.post(url, {"frame_id": 1}).status_code == 403, url
     # The viewer plans in no team: no planner page, no upload.
     assert client.get(reverse("campaigns:create")).status_code == 403
@@ -144,10 +153,22 @@ def test_live_json_has_counters_and_series(client, done_campaign, people):
 def _plan_data(team_obj, **overrides):
     from render.budget import DEFAULT_BUDGET, FIELDS
 
-    data = {"name": "Lamps and clocks", "team": team_obj.pk, "description": "", "seed": 5, "cost_budget": "50",
-            "price_per_cpu_hour": "0.05", "setup_cost": "1", "manual_labelling_rate_per_hour": "12", "weight": 1,
-            "max_attempts": 3, "q_chair_target": 6, "q_wall_clock_target": 2, "q_ottoman_target": 0,
-            "q_armchair_target": ""}
+    data = {
+        "name": "Lamps and clocks",
+        "team": team_obj.pk,
+        "description": "",
+        "seed": 5,
+        "cost_budget": "50",
+        "price_per_cpu_hour": "0.05",
+        "setup_cost": "1",
+        "manual_labelling_rate_per_hour": "12",
+        "weight": 1,
+        "max_attempts": 3,
+        "q_chair_target": 6,
+        "q_wall_clock_target": 2,
+        "q_ottoman_target": 0,
+        "q_armchair_target": "",
+    }
     for f in FIELDS:
         value = {**DEFAULT_BUDGET, **{k: {**DEFAULT_BUDGET[k], **v} for k, v in TINY_BUDGET.items()}}[f.section][f.name]
         if f.kind == "choices":
@@ -192,8 +213,7 @@ def test_create_campaign_with_a_per_class_min_contrast(client, people, object_cl
     assert response.status_code == 302, response.context["form"].errors
     campaign = Campaign.objects.get(name="Lamps and clocks")
     # An empty per-class minimum takes the budget's acceptance default.
-    assert dict(campaign.quotas.values_list("object_class__name", "min_contrast")) == {"chair": 3.5,
-                                                                                        "wall_clock": 1.25}
+    assert dict(campaign.quotas.values_list("object_class__name", "min_contrast")) == {"chair": 3.5, "wall_clock": 1.25}
     assert campaign.budget["thresholds"]["min_contrast"] == 1.25
     edit = client.get(reverse("campaigns:edit", args=[campaign.pk]))
     assert edit.context["form"]["q_chair_contrast"].value() == 3.5
@@ -205,10 +225,22 @@ def test_a_service_error_on_a_quota_threshold_lands_on_its_column(client, people
 
     form = CampaignForm(_plan_data(people["team"]), user=people["pia"])
     assert form.is_valid(), form.errors
-    form.add_service_error(CampaignError("min contrast must be between 0 and 1000, got 2000", field="quota",
-                                         class_name="chair", column="min_contrast"))
-    form.add_service_error(CampaignError("min box size must be between 0 and 64 px, got 99", field="quota",
-                                         class_name="wall_clock", column="min_box_px"))
+    form.add_service_error(
+        CampaignError(
+            "min contrast must be between 0 and 1000, got 2000",
+            field="quota",
+            class_name="chair",
+            column="min_contrast",
+        )
+    )
+    form.add_service_error(
+        CampaignError(
+            "min box size must be between 0 and 64 px, got 99",
+            field="quota",
+            class_name="wall_clock",
+            column="min_box_px",
+        )
+    )
     # An error with no field is the whole form's, whatever its text looks like (no message parsing).
     form.add_service_error(CampaignError("quota 'chair': min box size must be between 0 and 64 px, got 99"))
     assert "q_chair_box" not in form.errors and form.non_field_errors()
@@ -238,7 +270,9 @@ def test_budget_switches_are_checkboxes_and_unchecked_saves_false(client, people
     assert campaign.budget["render"]["denoise"] is False and campaign.budget["camera"]["sensor_noise"] is True
     # The edit form shows what was saved ...
     page = client.get(reverse("campaigns:edit", args=[campaign.pk])).content.decode()
-    assert "checked" not in _checkbox(page, "b_render_denoise") and "checked" in _checkbox(page, "b_camera_sensor_noise")
+    assert "checked" not in _checkbox(page, "b_render_denoise") and "checked" in _checkbox(
+        page, "b_camera_sensor_noise"
+    )
     # ... and saving it the other way round stores that.
     data = _plan_data(people["team"], b_render_denoise="on")
     del data["team"], data["b_camera_sensor_noise"]
@@ -275,28 +309,45 @@ def test_preview_button_estimates_without_saving(client, people, object_classes)
     assert "Where this comes from" in page and "constant measured on this machine" in page
 
 
-@pytest.mark.parametrize("overrides, field, message", [
-    ({"b_camera_focal_length_mm_min": 60, "b_camera_focal_length_mm_max": 30}, "b_camera_focal_length_mm_min",
-     "greater than max"),
-    ({"b_render_spp": 99999}, "b_render_spp", "less than or equal to 4096"),
-    ({"b_render_width_px": 4000, "b_render_height_px": 3000}, "b_render_width_px", "campaign cap"),
-    ({"q_chair_target": 0, "q_wall_clock_target": 0}, None, "at least one class"),
-    ({"q_chair_target": -3}, "q_chair_target", "greater than or equal to 0"),
-    ({"cost_budget": "0.5", "setup_cost": "10"}, "cost_budget", "less than the fixed costs"),
-    ({"name": ""}, "name", "required"),
-    ({"b_room_height_m_min": "abc"}, "b_room_height_m_min", "Enter a number"),
-    ({"b_lighting_panel_count_min": 0, "b_lighting_panel_count_max": 0, "b_lighting_point_count_max": 0,
-      "b_lighting_point_count_min": 0, "b_lighting_spot_count_max": 0, "b_lighting_dome_illuminance_lux_min": 0,
-      "b_lighting_dome_illuminance_lux_max": 0, "b_lighting_sun_probability": 0}, None, "frames would be black"),
-    ({"team": 999999}, "team", "Select a valid choice"),
-    ({"seed": "1e400"}, "seed", "whole number"),
-    ({"q_chair_contrast": -1}, "q_chair_contrast", "greater than or equal to 0"),
-    ({"q_chair_contrast": "lots"}, "q_chair_contrast", "Enter a number"),
-    ({"q_chair_contrast": "nan"}, "q_chair_contrast", "Enter a number"),
-    ({"q_wall_clock_contrast": "inf"}, "q_wall_clock_contrast", "Enter a number"),
-    ({"q_chair_contrast": 5000}, "q_chair_contrast", "less than or equal to 1000"),
-    ({"b_thresholds_min_contrast": -2}, "b_thresholds_min_contrast", "greater than or equal to 0"),
-])
+@pytest.mark.parametrize(
+    "overrides, field, message",
+    [
+        (
+            {"b_camera_focal_length_mm_min": 60, "b_camera_focal_length_mm_max": 30},
+            "b_camera_focal_length_mm_min",
+            "greater than max",
+        ),
+        ({"b_render_spp": 99999}, "b_render_spp", "less than or equal to 4096"),
+        ({"b_render_width_px": 4000, "b_render_height_px": 3000}, "b_render_width_px", "campaign cap"),
+        ({"q_chair_target": 0, "q_wall_clock_target": 0}, None, "at least one class"),
+        ({"q_chair_target": -3}, "q_chair_target", "greater than or equal to 0"),
+        ({"cost_budget": "0.5", "setup_cost": "10"}, "cost_budget", "less than the fixed costs"),
+        ({"name": ""}, "name", "required"),
+        ({"b_room_height_m_min": "abc"}, "b_room_height_m_min", "Enter a number"),
+        (
+            {
+                "b_lighting_panel_count_min": 0,
+                "b_lighting_panel_count_max": 0,
+                "b_lighting_point_count_max": 0,
+                "b_lighting_point_count_min": 0,
+                "b_lighting_spot_count_max": 0,
+                "b_lighting_dome_illuminance_lux_min": 0,
+                "b_lighting_dome_illuminance_lux_max": 0,
+                "b_lighting_sun_probability": 0,
+            },
+            None,
+            "frames would be black",
+        ),
+        ({"team": 999999}, "team", "Select a valid choice"),
+        ({"seed": "1e400"}, "seed", "whole number"),
+        ({"q_chair_contrast": -1}, "q_chair_contrast", "greater than or equal to 0"),
+        ({"q_chair_contrast": "lots"}, "q_chair_contrast", "Enter a number"),
+        ({"q_chair_contrast": "nan"}, "q_chair_contrast", "Enter a number"),
+        ({"q_wall_clock_contrast": "inf"}, "q_wall_clock_contrast", "Enter a number"),
+        ({"q_chair_contrast": 5000}, "q_chair_contrast", "less than or equal to 1000"),
+        ({"b_thresholds_min_contrast": -2}, "b_thresholds_min_contrast", "greater than or equal to 0"),
+    ],
+)
 def test_invalid_plan_is_shown_inline_and_nothing_saved(client, people, object_classes, overrides, field, message):
     client.force_login(people["pia"])
     response = client.post(reverse("campaigns:create"), _plan_data(people["team"], **overrides))
@@ -378,8 +429,10 @@ def test_failed_jobs_grouped_by_kind_with_traceback(client, done_campaign, peopl
     assert "LayoutError: the objects do not fit in the room" in page and "more detail" not in page
     assert "RuntimeError: renderer ran out of memory" in page
     assert "<details><summary>Traceback</summary>" in page and "most recent call last" in page
-    only = client.get(reverse("campaigns:failed", args=[done_campaign.pk]),
-                      {"kind": "LayoutError: the objects do not fit in the room"})
+    only = client.get(
+        reverse("campaigns:failed", args=[done_campaign.pk]),
+        {"kind": "LayoutError: the objects do not fit in the room"},
+    )
     rows = [r["frame"].index for r in only.context["rows"]]
     assert rows == [10]
 
@@ -397,8 +450,10 @@ def test_retry_one_retry_kind_and_ignore(client, done_campaign, people, outbox):
     client.post(url, {"frame_id": layout.pk})  # twice: nothing more happens
     done_campaign.refresh_from_db()
     assert done_campaign.frames_dead == 1
-    client.post(reverse("campaigns:failed-action", args=[done_campaign.pk, "ignore"]),
-                {"kind": "RuntimeError: renderer ran out of memory"})
+    client.post(
+        reverse("campaigns:failed-action", args=[done_campaign.pk, "ignore"]),
+        {"kind": "RuntimeError: renderer ran out of memory"},
+    )
     assert FrameEvent.objects.filter(frame=memory, to_state="ignored").exists()
     page = client.get(reverse("campaigns:failed", args=[done_campaign.pk]))
     assert [r["frame"].index for r in page.context["rows"]] == [10]  # retrying; the ignored one is hidden
@@ -419,16 +474,27 @@ def test_gallery_boxes_and_filters(client, done_campaign, people):
     response = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]))
     page = response.content.decode()
     assert response.status_code == 200 and page.count('class="tile"') == 3
-    assert "viewBox=\"0 0 64 48\"" in page and "<rect" in page and "<text" in page
+    assert 'viewBox="0 0 64 48"' in page and "<rect" in page and "<text" in page
     only = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"class": "ottoman"})
-    with_ottoman = sorted(Frame.objects.filter(campaign=done_campaign, instances__object_class__name="ottoman")
-                          .distinct().values_list("index", flat=True), reverse=True)
+    with_ottoman = sorted(
+        Frame.objects.filter(campaign=done_campaign, instances__object_class__name="ottoman")
+        .distinct()
+        .values_list("index", flat=True),
+        reverse=True,
+    )
     assert [t["frame"].index for t in only.context["tiles"]] == with_ottoman and with_ottoman
-    assert all(b["matches"] == (b["object_class__name"] == "ottoman") for t in only.context["tiles"] for b in t["boxes"])
+    assert all(
+        b["matches"] == (b["object_class__name"] == "ottoman") for t in only.context["tiles"] for b in t["boxes"]
+    )
     rejected = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"accepted": "rejected"})
     assert all(any(not b["accepted"] for b in t["boxes"]) for t in rejected.context["tiles"])
-    for junk in ({"min_visible": "nan"}, {"min_visible": "x"}, {"page": "9999"}, {"class": "<script>"},
-                 {"accepted": "maybe"}):
+    for junk in (
+        {"min_visible": "nan"},
+        {"min_visible": "x"},
+        {"page": "9999"},
+        {"class": "<script>"},
+        {"accepted": "maybe"},
+    ):
         assert client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), junk).status_code == 200
 
 
@@ -449,7 +515,9 @@ def test_frame_page_images_labels_and_cached_views(client, done_campaign, people
     folder = media_root / "campaigns" / str(done_campaign.pk) / "frames" / "0"
     for name in ("mask.png", "depth.png", "thumb.jpg"):
         body = _body(client.get(reverse("campaigns:frame-file", args=[done_campaign.pk, 0, name])))
-        assert body[:4] in (b"\x89PNG", b"\xff\xd8\xff\xe0", b"\xff\xd8\xff\xdb") and (folder / f"view-{name}").is_file()
+        assert (
+            body[:4] in (b"\x89PNG", b"\xff\xd8\xff\xe0", b"\xff\xd8\xff\xdb") and (folder / f"view-{name}").is_file()
+        )
     assert client.get(reverse("campaigns:frame-file", args=[done_campaign.pk, 0, "depth.npy"])).status_code == 404
     assert client.get(reverse("campaigns:frame-file", args=[done_campaign.pk, 0, "..%2F..%2Fx"])).status_code == 404
     assert client.get(reverse("campaigns:frame", args=[done_campaign.pk, 999])).status_code == 404
@@ -465,8 +533,11 @@ def test_rerender_queues_a_frame_with_the_same_coordinates(client, done_campaign
     source = Frame.objects.get(campaign=done_campaign, index=1)
     new = Frame.objects.filter(campaign=done_campaign).order_by("-index").first()
     assert new.index == 12 and new.state == Frame.State.QUEUED
-    assert (new.layout_index, new.lighting_index, new.view_index) == (source.layout_index, source.lighting_index,
-                                                                      source.view_index)
+    assert (new.layout_index, new.lighting_index, new.view_index) == (
+        source.layout_index,
+        source.lighting_index,
+        source.view_index,
+    )
     assert new.composition == source.composition
     # Paused: refused with a message.
     client.post(reverse("campaigns:action", args=[done_campaign.pk, "pause"]))
@@ -482,8 +553,14 @@ CUBE_OBJ = CUBE_OBJ_TEXT
 def _upload(client, people, content: bytes, filename: str, **extra):
     from django.core.files.uploadedfile import SimpleUploadedFile
 
-    data = {"name": extra.pop("name", "test box"), "team": people["team"].pk, "object_class": "ottoman",
-            "unit": extra.pop("unit", "m"), "creation_cost": "5", "mesh": SimpleUploadedFile(filename, content)}
+    data = {
+        "name": extra.pop("name", "test box"),
+        "team": people["team"].pk,
+        "object_class": "ottoman",
+        "unit": extra.pop("unit", "m"),
+        "creation_cost": "5",
+        "mesh": SimpleUploadedFile(filename, content),
+    }
     data.update(extra)
     return client.post(reverse("campaigns:assets"), data)
 
@@ -514,18 +591,22 @@ def test_upload_good_mesh(client, people, object_classes, media_root, monkeypatc
     assert "test box" not in client.get(reverse("campaigns:assets")).content.decode()
 
 
-@pytest.mark.parametrize("content, filename, extra, message", [
-    (b"\x89PNG\r\n\x1a\n" + b"\x00" * 200, "chair.obj", {}, "not a mesh file"),
-    (b"", "empty.obj", {}, "empty"),
-    (CUBE_OBJ.encode(), "box.obj", {"unit": "mm"}, "is outside 0.02–10"),
-    (CUBE_OBJ.replace("v 0.5 0.5 0.5", "v nan 0.5 0.5").encode(), "box.obj", {}, "NaN"),
-    (b"ply\nformat binary_little_endian 1.0\nelement vertex 99999\nend_header\n\x00\x01", "x.ply", {}, "nreadable"),
-    (b"glTF" + struct.pack("<II", 2, 20) + b"\x00" * 8, "x.glb", {}, ""),
-    (CUBE_OBJ.encode(), "box.obj", {"name": ""}, "required"),
-    (CUBE_OBJ.encode(), "box.obj", {"unit": "furlong"}, "valid choice"),
-])
-def test_bad_uploads_are_refused_with_a_reason(client, people, object_classes, media_root, content, filename, extra,
-                                              message):
+@pytest.mark.parametrize(
+    "content, filename, extra, message",
+    [
+        (b"\x89PNG\r\n\x1a\n" + b"\x00" * 200, "chair.obj", {}, "not a mesh file"),
+        (b"", "empty.obj", {}, "empty"),
+        (CUBE_OBJ.encode(), "box.obj", {"unit": "mm"}, "is outside 0.02–10"),
+        (CUBE_OBJ.replace("v 0.5 0.5 0.5", "v nan 0.5 0.5").encode(), "box.obj", {}, "NaN"),
+        (b"ply\nformat binary_little_endian 1.0\nelement vertex 99999\nend_header\n\x00\x01", "x.ply", {}, "nreadable"),
+        (b"glTF" + struct.pack("<II", 2, 20) + b"\x00" * 8, "x.glb", {}, ""),
+        (CUBE_OBJ.encode(), "box.obj", {"name": ""}, "required"),
+        (CUBE_OBJ.encode(), "box.obj", {"unit": "furlong"}, "valid choice"),
+    ],
+)
+def test_bad_uploads_are_refused_with_a_reason(
+    client, people, object_classes, media_root, content, filename, extra, message
+):
     client.force_login(people["pia"])
     response = _upload(client, people, content, filename, **extra)
     assert response.status_code == 400
@@ -558,8 +639,9 @@ def test_asset_preview_file_and_sniffing():
 def test_asset_preview_permissions(client, people, object_classes, media_root):
     from campaigns.asset_files import preview_path
 
-    mine = Asset.objects.create(object_class=object_classes["chair"], name="private", kind="mesh",
-                                team=people["other_team"])
+    mine = Asset.objects.create(
+        object_class=object_classes["chair"], name="private", kind="mesh", team=people["other_team"]
+    )
     shared = Asset.objects.get(name="procedural chair")
     for asset in (mine, shared):
         preview_path(asset.pk).parent.mkdir(parents=True, exist_ok=True)
@@ -601,8 +683,12 @@ def test_every_form_posts_with_csrf(client, done_campaign, people):
     strict.force_login(people["pia"])
     assert strict.post(reverse("campaigns:action", args=[done_campaign.pk, "pause"])).status_code == 403
     client.force_login(people["ada"])
-    for url in (reverse("campaigns:detail", args=[done_campaign.pk]), reverse("campaigns:failed", args=[done_campaign.pk]),
-                reverse("campaigns:frame", args=[done_campaign.pk, 0]), reverse("campaigns:create"),
-                reverse("campaigns:assets")):
+    for url in (
+        reverse("campaigns:detail", args=[done_campaign.pk]),
+        reverse("campaigns:failed", args=[done_campaign.pk]),
+        reverse("campaigns:frame", args=[done_campaign.pk, 0]),
+        reverse("campaigns:create"),
+        reverse("campaigns:assets"),
+    ):
         page = client.get(url).content.decode()
         assert page.count('method="post"') == page.count("csrfmiddlewaretoken"), url

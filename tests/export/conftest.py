@@ -21,12 +21,14 @@ CLASSES = ("chair", "armchair", "side_table", "ottoman", "sofa", "wall_clock")
 # (index, layout, view, composition): four layouts, two views each.
 FRAME_PLAN = [
     (2 * layout + view, layout, view, composition)
-    for layout, composition in enumerate([
-        {"chair": 2, "ottoman": 1, "side_table": 1},
-        {"chair": 1, "armchair": 1, "wall_clock": 1},
-        {"sofa": 1, "chair": 2},
-        {"armchair": 1, "ottoman": 1, "side_table": 1, "chair": 1},
-    ])
+    for layout, composition in enumerate(
+        [
+            {"chair": 2, "ottoman": 1, "side_table": 1},
+            {"chair": 1, "armchair": 1, "wall_clock": 1},
+            {"sofa": 1, "chair": 2},
+            {"armchair": 1, "ottoman": 1, "side_table": 1, "chair": 1},
+        ]
+    )
     for view in (0, 1)
 ]
 
@@ -34,8 +36,9 @@ FRAME_PLAN = [
 @pytest.fixture(scope="session")
 def rendered_frames(tmp_path_factory) -> dict[int, Path]:
     """Render FRAME_PLAN once per session with the seeds a worker would use; index → folder of its files."""
-    return render_frame_plan(FRAME_PLAN, budget=TINY_BUDGET, campaign_seed=CAMPAIGN_SEED,
-                             root=tmp_path_factory.mktemp("rendered"))
+    return render_frame_plan(
+        FRAME_PLAN, budget=TINY_BUDGET, campaign_seed=CAMPAIGN_SEED, root=tmp_path_factory.mktemp("rendered")
+    )
 
 
 @pytest.fixture
@@ -56,8 +59,14 @@ def make_campaign(owner, object_classes):
 
     def make(name: str = "export tiny", seed: int = CAMPAIGN_SEED):
         return services.create_campaign(
-            owner=owner, name=name, quotas=[services.QuotaInput(n, 10_000) for n in CLASSES], budget=TINY_BUDGET,
-            cost_budget=Decimal("1000"), price_per_cpu_hour=Decimal("0.05"), seed=seed, asset_ids=[],
+            owner=owner,
+            name=name,
+            quotas=[services.QuotaInput(n, 10_000) for n in CLASSES],
+            budget=TINY_BUDGET,
+            cost_budget=Decimal("1000"),
+            price_per_cpu_hour=Decimal("0.05"),
+            seed=seed,
+            asset_ids=[],
         )
 
     return make

@@ -30,8 +30,9 @@ def _export(campaign, out: Path, **options) -> ExportSummary:
 
 
 def _coco_files(out: Path) -> list[Path]:
-    return [out / "annotations" / f"{split}.json" for split in SPLITS
-            if (out / "annotations" / f"{split}.json").exists()]
+    return [
+        out / "annotations" / f"{split}.json" for split in SPLITS if (out / "annotations" / f"{split}.json").exists()
+    ]
 
 
 def _quiet_eval(gt: COCO, dt: COCO, iou_type: str) -> float:
@@ -54,9 +55,15 @@ def test_coco_loads_and_ground_truth_as_detections_scores_ap_one(real_campaign, 
             continue
         annotations = gt.loadAnns(gt.getAnnIds())
         for iou_type in ("bbox", "segm"):
-            detections = [{"image_id": a["image_id"], "category_id": a["category_id"], "score": 1.0,
-                           **({"bbox": a["bbox"]} if iou_type == "bbox" else {"segmentation": a["segmentation"]})}
-                          for a in annotations]
+            detections = [
+                {
+                    "image_id": a["image_id"],
+                    "category_id": a["category_id"],
+                    "score": 1.0,
+                    **({"bbox": a["bbox"]} if iou_type == "bbox" else {"segmentation": a["segmentation"]}),
+                }
+                for a in annotations
+            ]
             # pycocotools COCOeval: the ground truth used as detections must score AP = 1.0.
             assert _quiet_eval(gt, gt.loadRes(detections), iou_type) == pytest.approx(1.0), (path.name, iou_type)
     assert total_annotations == sum(summary.annotations_per_split.values()) > 10
@@ -72,8 +79,10 @@ def test_masks_areas_and_boxes_agree_with_pycocotools(real_campaign, tmp_path):
     for path in _coco_files(out):
         data = json.loads(path.read_text())
         images = {image["id"]: image for image in data["images"]}
-        masks = {i: cv2.imread(str(out / "masks" / image["mask_file_name"]), cv2.IMREAD_UNCHANGED)
-                 for i, image in images.items()}
+        masks = {
+            i: cv2.imread(str(out / "masks" / image["mask_file_name"]), cv2.IMREAD_UNCHANGED)
+            for i, image in images.items()
+        }
         for annotation in data["annotations"]:
             rle = annotation["segmentation"]
             decoded = mask_utils.decode(rle)  # pycocotools decodes our RLE ...
@@ -113,8 +122,9 @@ def test_every_frame_parameter_and_campaign_facts_are_exported(real_campaign, tm
         assert row["scene"] == on_disk
     campaign_json = json.loads((out / "campaign.json").read_text())
     assert campaign_json["budget"] == real_campaign.budget and campaign_json["seed"] == real_campaign.seed
-    assert {q["class_name"] for q in campaign_json["quotas"]} == set(real_campaign.quotas.values_list(
-        "object_class__name", flat=True))
+    assert {q["class_name"] for q in campaign_json["quotas"]} == set(
+        real_campaign.quotas.values_list("object_class__name", flat=True)
+    )
     software = json.loads((out / "software.json").read_text())
     assert software["packages"]["mitsuba"] == metadata.version("mitsuba")
     assert software["packages"]["drjit"] == metadata.version("drjit")
@@ -185,16 +195,24 @@ def test_yolo_labels_match_the_coco_boxes(real_campaign, tmp_path):
             by_image.setdefault(a["image_id"], []).append(a)
         assert all((out / path).is_file() for path in listed)  # "./images/…" relative to data.yaml's folder
         for image in coco["images"]:
-            rows = [line.split() for line in (out / "labels" / f"{image['file_name'][:-4]}.txt").read_text()
-                    .splitlines()]
+            rows = [
+                line.split() for line in (out / "labels" / f"{image['file_name'][:-4]}.txt").read_text().splitlines()
+            ]
             expected = by_image.get(image["id"], [])
             assert len(rows) == len(expected)
             for row, a in zip(rows, expected, strict=True):
                 x, y, w, h = a["bbox"]
                 cls, cx, cy, nw, nh = int(row[0]), *map(float, row[1:])
                 assert cls == a["category_id"] - 1
-                assert (cx, cy, nw, nh) == pytest.approx(((x + w / 2) / image["width"], (y + h / 2) / image["height"],
-                                                          w / image["width"], h / image["height"]), abs=1e-6)
+                assert (cx, cy, nw, nh) == pytest.approx(
+                    (
+                        (x + w / 2) / image["width"],
+                        (y + h / 2) / image["height"],
+                        w / image["width"],
+                        h / image["height"],
+                    ),
+                    abs=1e-6,
+                )
 
 
 def test_accepted_only_drops_rejected_instances(real_campaign, tmp_path):
@@ -204,13 +222,16 @@ def test_accepted_only_drops_rejected_instances(real_campaign, tmp_path):
     _export(real_campaign, everything)
     _export(real_campaign, accepted, accepted_only=True)
     visible = Instance.objects.filter(campaign=real_campaign, mask_area_px__gt=0)
-    count = {path: sum(len(json.loads(p.read_text())["annotations"]) for p in _coco_files(path))
-             for path in (everything, accepted)}
+    count = {
+        path: sum(len(json.loads(p.read_text())["annotations"]) for p in _coco_files(path))
+        for path in (everything, accepted)
+    }
     assert count[everything] == visible.count()
     assert count[accepted] == visible.filter(accepted=True).count()
     assert all(a["accepted"] for p in _coco_files(accepted) for a in json.loads(p.read_text())["annotations"])
     assert len(json.loads((accepted / "annotations/train.json").read_text())["images"]) + sum(
-        len(json.loads(p.read_text())["images"]) for p in _coco_files(accepted)[1:]) == len(FRAME_PLAN)
+        len(json.loads(p.read_text())["images"]) for p in _coco_files(accepted)[1:]
+    ) == len(FRAME_PLAN)
 
 
 def test_annotations_carry_contrast_and_the_statistics_average_it(real_campaign, tmp_path):
@@ -286,8 +307,9 @@ def test_reexport_of_an_unchanged_campaign_gives_identical_files(real_campaign, 
     lines_one = (one / MANIFEST_NAME).read_text().splitlines()[1:]
     lines_two = (two / MANIFEST_NAME).read_text().splitlines()[1:]
     strip = [{k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")} for line in lines_one]
-    assert strip == [{k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")}
-                     for line in lines_two]  # deterministic: same content, same order, same checksums
+    assert strip == [
+        {k: v for k, v in json.loads(line).items() if k in ("path", "size", "sha256")} for line in lines_two
+    ]  # deterministic: same content, same order, same checksums
 
 
 @pytest.mark.parametrize("splits", ["0.5,0.5", "0.8,0.1,0.2", "a,b,c", "-0.1,0.6,0.5", "0,0.5,0.5", "nan,0,1"])

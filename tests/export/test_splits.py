@@ -21,8 +21,18 @@ def synthetic_layouts(n_layouts: int, seed: int) -> np.ndarray:
     rng = np.random.default_rng(seed)
     sizes = rng.integers(2, 13, size=n_layouts)
     views = rng.integers(1, 4, size=n_layouts)
-    per_class = np.array([np.bincount(rng.choice(len(CLASS_PROBABILITIES), size=n, p=CLASS_PROBABILITIES),
-                                      minlength=len(CLASS_PROBABILITIES)) for n in sizes]) * views[:, None]
+    per_class = (
+        np.array(
+            [
+                np.bincount(
+                    rng.choice(len(CLASS_PROBABILITIES), size=n, p=CLASS_PROBABILITIES),
+                    minlength=len(CLASS_PROBABILITIES),
+                )
+                for n in sizes
+            ]
+        )
+        * views[:, None]
+    )
     return np.hstack([per_class, views[:, None]])
 
 
@@ -67,21 +77,31 @@ def test_too_few_layouts_is_reported_not_hidden():
     assert len(two) == 2 and "train" in two.values()
 
 
-@pytest.mark.parametrize("text, expected", [("0.8,0.1,0.1", (0.8, 0.1, 0.1)), (" 1, 0, 0 ", (1.0, 0.0, 0.0)),
-                                            ("0.7,0.2,0.1", (0.7, 0.2, 0.1))])
+@pytest.mark.parametrize(
+    "text, expected",
+    [("0.8,0.1,0.1", (0.8, 0.1, 0.1)), (" 1, 0, 0 ", (1.0, 0.0, 0.0)), ("0.7,0.2,0.1", (0.7, 0.2, 0.1))],
+)
 def test_parse_split_ratios(text, expected):
     assert parse_split_ratios(text) == pytest.approx(expected)
 
 
 @pytest.mark.django_db
 def test_synthetic_campaign_export_meets_the_tolerance_and_never_splits_a_layout(
-        owner, object_classes, rendered_frames, media_root, tmp_path):
+    owner, object_classes, rendered_frames, media_root, tmp_path
+):
     """1,200 layouts × 2 views through the real exporter (rows bulk-inserted, files hard-linked: bench_export's
     generator)."""
     from datasets.management.commands.bench_export import make_synthetic_campaign
 
-    campaign = make_synthetic_campaign(owner=owner, template_dir=rendered_frames[0], media_root=media_root,
-                                       frames=2400, views_per_layout=2, seed=4, name="synthetic splits")
+    campaign = make_synthetic_campaign(
+        owner=owner,
+        template_dir=rendered_frames[0],
+        media_root=media_root,
+        frames=2400,
+        views_per_layout=2,
+        seed=4,
+        name="synthetic splits",
+    )
     out = tmp_path / "dataset"
     summary = export_dataset(campaign_id=campaign.pk, out_dir=out)
     assert summary.frames == 2400 and summary.layouts == 1200

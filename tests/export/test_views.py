@@ -46,8 +46,11 @@ def test_owner_downloads_a_streamed_zip_that_verifies(client, real_campaign, tmp
     assert gt.getAnnIds()
     # The same content as a directory export (checksums of every file but the manifest).
     directory = tmp_path / "directory-export"
-    export_dataset(campaign_id=real_campaign.pk, out_dir=directory, options=ExportOptions(
-        ratios=(0.5, 0.25, 0.25), formats=frozenset({"coco", "yolo"})))
+    export_dataset(
+        campaign_id=real_campaign.pk,
+        out_dir=directory,
+        options=ExportOptions(ratios=(0.5, 0.25, 0.25), formats=frozenset({"coco", "yolo"})),
+    )
     zipped = {e["path"]: e["sha256"] for e in iter_manifest_entries(tmp_path / root / MANIFEST_NAME)}
     exported = {e["path"]: e["sha256"] for e in iter_manifest_entries(directory / MANIFEST_NAME)}
     assert zipped == exported

@@ -94,8 +94,22 @@ class PrivateRedis:
     def start(self) -> None:
         handle = open(self.log_path, "ab")
         self.proc = subprocess.Popen(
-            ["redis-server", "--port", str(self.port), "--bind", "127.0.0.1", "--save", "", "--appendonly", "no",
-             "--daemonize", "no"], stdout=handle, stderr=subprocess.STDOUT)
+            [
+                "redis-server",
+                "--port",
+                str(self.port),
+                "--bind",
+                "127.0.0.1",
+                "--save",
+                "",
+                "--appendonly",
+                "no",
+                "--daemonize",
+                "no",
+            ],
+            stdout=handle,
+            stderr=subprocess.STDOUT,
+        )
         import redis
 
         client = redis.Redis(host="127.0.0.1", port=self.port)
@@ -129,13 +143,21 @@ def private_redis(tmp_path, settings, monkeypatch):
     # Not the current app: shared tasks (ping, render_frame) must keep using the project's app and its
     # result backend in the tests that run after this one.
     app = Celery("evenframe-private-redis", set_as_current=False)
-    app.conf.update(broker_url=server.url, task_default_queue=settings.CELERY_TASK_DEFAULT_QUEUE,
-                    task_serializer="json", accept_content=["json"], broker_connection_retry_on_startup=True)
+    app.conf.update(
+        broker_url=server.url,
+        task_default_queue=settings.CELERY_TASK_DEFAULT_QUEUE,
+        task_serializer="json",
+        accept_content=["json"],
+        broker_connection_retry_on_startup=True,
+    )
 
     def send(*, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str, countdown_s: float = 0.0) -> None:
-        app.send_task(messaging.TASK_NAME, kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no,
-                                                   "campaign_uid": campaign_uid},
-                      task_id=task_id, countdown=countdown_s if countdown_s > 0 else None)
+        app.send_task(
+            messaging.TASK_NAME,
+            kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
+            task_id=task_id,
+            countdown=countdown_s if countdown_s > 0 else None,
+        )
 
     monkeypatch.setattr(messaging, "send_frame_task", send)
     yield server

@@ -24,8 +24,11 @@ SLOTS = 2 * 2  # workers × concurrency
 def _max_running_at_once(campaign) -> int:
     """Frames running at the same time, replayed from the append-only event log."""
     running, peak = 0, 0
-    for from_state, to_state in FrameEvent.objects.filter(campaign=campaign, frame__isnull=False).order_by(
-            "created_at", "id").values_list("from_state", "to_state"):
+    for from_state, to_state in (
+        FrameEvent.objects.filter(campaign=campaign, frame__isnull=False)
+        .order_by("created_at", "id")
+        .values_list("from_state", "to_state")
+    ):
         if to_state == "running" and from_state != "running":
             running += 1
         elif from_state == "running" and to_state != "running":
@@ -38,8 +41,12 @@ def test_spend_never_passes_the_budget_by_more_than_one_frame_per_slot(fault_wor
     workers = [fault_worker(concurrency=2), fault_worker(concurrency=2)]
     # 3600 per CPU-hour: a frame costs its CPU seconds in money, about 0.3–2 each; fixed costs 2 × 1.00.
     campaign = make_campaign(quotas={"chair": 5000, "ottoman": 5000}, price="3600", cost_budget="14", start=True)
-    wait_for(lambda: Campaign.objects.get(pk=campaign.pk).status != "running", timeout_s=180,
-             what="the budget to stop the campaign", workers=workers)
+    wait_for(
+        lambda: Campaign.objects.get(pk=campaign.pk).status != "running",
+        timeout_s=180,
+        what="the budget to stop the campaign",
+        workers=workers,
+    )
     wait_for(lambda: settled(campaign), timeout_s=60, what="in-flight frames to finish", workers=workers)
     campaign.refresh_from_db()
     assert campaign.status == "paused" and campaign.pause_reason == "budget", campaign.pause_detail

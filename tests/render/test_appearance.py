@@ -38,8 +38,9 @@ def _textures(spec: dict) -> list[dict | None]:
 
 def test_box_uv_maps_each_face_along_its_dominant_axis_in_metres():
     # A floor quad (normal +z) and a wall quad (normal −y): u, v are the two other coordinates / tile size.
-    vertices = np.array([[0, 0, 0], [2, 0, 0], [2, 3, 0], [0, 3, 0],
-                         [0, 1, 0], [2, 1, 0], [2, 1, 2.5], [0, 1, 2.5]], dtype=float)
+    vertices = np.array(
+        [[0, 0, 0], [2, 0, 0], [2, 3, 0], [0, 3, 0], [0, 1, 0], [2, 1, 0], [2, 1, 2.5], [0, 1, 2.5]], dtype=float
+    )
     faces = np.array([[0, 1, 2], [0, 2, 3], [4, 5, 6], [4, 6, 7]])
     out_vertices, out_faces, uv = appearance.box_uv(vertices, faces, tile_size_m=0.5)
     assert out_vertices.shape == (12, 3) and out_faces.shape == (4, 3) and uv.shape == (12, 2)
@@ -80,8 +81,9 @@ def test_textures_go_to_texturable_families_only_and_keep_the_rest_of_the_spec()
         assert plain[key] == dressed[key]
     strip = [{k: v for k, v in obj.items() if k != "materials"} for obj in dressed["objects"]]
     assert strip == [{k: v for k, v in obj.items() if k != "materials"} for obj in plain["objects"]]
-    materials = list(dressed["room"]["materials"].values()) + [m for o in dressed["objects"]
-                                                               for m in (o.get("materials") or {}).values()]
+    materials = list(dressed["room"]["materials"].values()) + [
+        m for o in dressed["objects"] for m in (o.get("materials") or {}).values()
+    ]
     for material in materials:
         allowed = appearance.TEXTURE_FAMILIES.get(material.get("family", ""), ())
         texture = material.get("texture")
@@ -205,18 +207,30 @@ def test_normal_map_tilt_follows_the_lambert_cosine_law_on_every_face(monkeypatc
     for mapped in (False, True):
         encoded = (np.broadcast_to((tilted if mapped else np.array([0.0, 0.0, 1.0])), (8, 8, 3)) + 1.0) / 2.0
         monkeypatch.setattr(appearance, "texture_normal_rgb", lambda texture, e=encoded: e.astype(np.float32))
-        material = {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0,
-                    "texture": {"family": "ceramic_tile", "params": {}, "seed": 0}}
+        material = {
+            "kind": "diffuse",
+            "rgb": [0.5, 0.5, 0.5],
+            "roughness": 1.0,
+            "texture": {"family": "ceramic_tile", "params": {}, "seed": 0},
+        }
         bsdf = mi.load_dict(bsdf_dict(material))
-        scene = mi.load_dict({
-            "type": "scene", "quad": mesh_from_arrays("quad", vertices, faces_uv, bsdf, uv=uv),
-            "sun": {"type": "directional", "direction": (-to_light).tolist(), "irradiance": 1.0},
-            "sensor": {"type": "perspective", "fov": 20.0,
-                       "to_world": mi.ScalarTransform4f().look_at(origin=(2.0 * n).tolist(), target=[0, 0, 0],
-                                                                  up=a.tolist()),
-                       "film": {"type": "hdrfilm", "width": 16, "height": 16, "rfilter": {"type": "box"}},
-                       "sampler": {"type": "independent", "sample_count": 4}},
-            "integrator": {"type": "direct"}})
+        scene = mi.load_dict(
+            {
+                "type": "scene",
+                "quad": mesh_from_arrays("quad", vertices, faces_uv, bsdf, uv=uv),
+                "sun": {"type": "directional", "direction": (-to_light).tolist(), "irradiance": 1.0},
+                "sensor": {
+                    "type": "perspective",
+                    "fov": 20.0,
+                    "to_world": mi.ScalarTransform4f().look_at(
+                        origin=(2.0 * n).tolist(), target=[0, 0, 0], up=a.tolist()
+                    ),
+                    "film": {"type": "hdrfilm", "width": 16, "height": 16, "rfilter": {"type": "box"}},
+                    "sampler": {"type": "independent", "sample_count": 4},
+                },
+                "integrator": {"type": "direct"},
+            }
+        )
         means[mapped] = float(np.asarray(mi.render(scene)).mean())
     assert means[True] / means[False] == pytest.approx(np.cos(np.radians(25.0)) / np.cos(np.radians(45.0)), rel=0.02)
 
@@ -232,8 +246,13 @@ def test_pooled_bsdfs_take_the_colour_and_relief_of_each_new_material():
     pool = BsdfPool()
 
     def tiled(variant: int) -> dict:
-        return {"kind": "plastic", "rgb": [0.5, 0.5, 0.5], "roughness": 0.3, "family": "floor_tile",
-                "texture": appearance.texture_record("ceramic_tile", variant, 1.0)}
+        return {
+            "kind": "plastic",
+            "rgb": [0.5, 0.5, 0.5],
+            "roughness": 0.3,
+            "family": "floor_tile",
+            "texture": appearance.texture_record("ceramic_tile", variant, 1.0),
+        }
 
     first, second = tiled(1), tiled(2)
     key, bsdf = pool.acquire(first)
@@ -242,9 +261,13 @@ def test_pooled_bsdfs_take_the_colour_and_relief_of_each_new_material():
     assert key_again == key and reused is bsdf  # the same instance, recoloured
     params = mi.traverse(reused)
     assert np.allclose(np.asarray(params["brdf_0.normalmap.data"]), appearance.texture_normal_rgb(second["texture"]))
-    assert np.allclose(np.asarray(params["brdf_0.nested_bsdf.diffuse_reflectance.data"]),
-                       appearance.texture_linear_rgb(second["texture"]))
-    assert not np.allclose(appearance.texture_normal_rgb(first["texture"]), appearance.texture_normal_rgb(second["texture"]))
+    assert np.allclose(
+        np.asarray(params["brdf_0.nested_bsdf.diffuse_reflectance.data"]),
+        appearance.texture_linear_rgb(second["texture"]),
+    )
+    assert not np.allclose(
+        appearance.texture_normal_rgb(first["texture"]), appearance.texture_normal_rgb(second["texture"])
+    )
     # A family without relief gets no normal map.
     assert appearance.texture_normal_rgb(appearance.texture_record("marble", 1, 1.0)) is None
 
@@ -268,15 +291,28 @@ def test_a_one_metre_checker_on_the_floor_has_its_corners_where_project_points_p
     monkeypatch.setattr(appearance, "texture_normal_rgb", lambda texture: None)
     corners = np.array([[-6.0, -6.0, 0.0], [6.0, -6.0, 0.0], [6.0, 6.0, 0.0], [-6.0, 6.0, 0.0]])
     vertices, faces, uv = appearance.box_uv(corners, np.array([[0, 1, 2], [0, 2, 3]]), 2.0)
-    material = {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0,
-                "texture": {"family": "wood", "params": {}, "seed": 0}}
+    material = {
+        "kind": "diffuse",
+        "rgb": [0.5, 0.5, 0.5],
+        "roughness": 1.0,
+        "texture": {"family": "wood", "params": {}, "seed": 0},
+    }
     width_px, height_px = 160, 120
-    camera = {"position_m": [0.3, -3.2, 1.6], "target_m": [0.1, 0.6, 0.0], "focal_length_mm": 28.0,
-              "sensor_width_mm": 36.0}
+    camera = {
+        "position_m": [0.3, -3.2, 1.6],
+        "target_m": [0.1, 0.6, 0.0],
+        "focal_length_mm": 28.0,
+        "sensor_width_mm": 36.0,
+    }
     rotation, translation, k_matrix = camera_matrices(camera, width_px, height_px)
     _, label_sensor = sensor_dicts(k_matrix, rotation, translation, width_px, height_px, spp=1)
-    scene = mi.load_dict({"type": "scene", "sensor": label_sensor,
-                          "floor": mesh_from_arrays("floor", vertices, faces, mi.load_dict(bsdf_dict(material)), uv=uv)})
+    scene = mi.load_dict(
+        {
+            "type": "scene",
+            "sensor": label_sensor,
+            "floor": mesh_from_arrays("floor", vertices, faces, mi.load_dict(bsdf_dict(material)), uv=uv),
+        }
+    )
     albedo = np.asarray(mi.render(scene, integrator=aov_integrator()))[..., 2:5].mean(axis=2)
     rvec, _ = cv2.Rodrigues(rotation)
 
@@ -288,8 +324,10 @@ def test_a_one_metre_checker_on_the_floor_has_its_corners_where_project_points_p
         for y in range(-3, 6):
             (u, v), *neighbours = project([[x, y, 0], [x + 1, y, 0], [x, y + 1, 0], [x - 1, y, 0], [x, y - 1, 0]])
             # Corners whose squares are at least 12 px across (the far rows shrink to a few pixels).
-            if not (6 <= u < width_px - 6 and 6 <= v < height_px - 6) or min(
-                    np.hypot(*(np.asarray(n) - (u, v))) for n in neighbours) < 12:
+            if (
+                not (6 <= u < width_px - 6 and 6 <= v < height_px - 6)
+                or min(np.hypot(*(np.asarray(n) - (u, v))) for n in neighbours) < 12
+            ):
                 continue
             # A point 40 % of the way to the centre of each of the corner's four squares lies inside that square,
             # whatever the perspective: diagonal squares share a colour, neighbouring ones do not.

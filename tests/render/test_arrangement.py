@@ -51,14 +51,14 @@ FACING_TOLERANCE_DEG = 15.0
 DOOR_ZONE_DEPTH_M = 0.8
 
 
-def _home_layout(composition: list[str], seed: int, budget: dict, room: dict | None = None,
-                 mode: str = "home") -> tuple[dict, list[dict]]:
+def _home_layout(
+    composition: list[str], seed: int, budget: dict, room: dict | None = None, mode: str = "home"
+) -> tuple[dict, list[dict]]:
     rng = np.random.default_rng([seed, 31])
     if room is None:
         room = layout.sample_room(budget, rng)
     specs = [assets.sample_asset(name, rng) for name in composition]
-    objects = layout.place_objects(room, specs, rng, max_objects_per_m2=budget["room"]["max_objects_per_m2"],
-                                   mode=mode)
+    objects = layout.place_objects(room, specs, rng, max_objects_per_m2=budget["room"]["max_objects_per_m2"], mode=mode)
     return room, objects
 
 
@@ -115,10 +115,12 @@ def test_enough_layouts_and_every_object_records_its_arrangement(home_layouts):
 def test_wall_furniture_backs_onto_a_wall_within_a_few_cm_and_faces_the_room(home_layouts):
     seen = against = 0
     for room, objects in home_layouts:
-        walls = {"south": LineString([(0, 0), (room["width_m"], 0)]),
-                 "north": LineString([(0, room["depth_m"]), (room["width_m"], room["depth_m"])]),
-                 "west": LineString([(0, 0), (0, room["depth_m"])]),
-                 "east": LineString([(room["width_m"], 0), (room["width_m"], room["depth_m"])])}
+        walls = {
+            "south": LineString([(0, 0), (room["width_m"], 0)]),
+            "north": LineString([(0, room["depth_m"]), (room["width_m"], room["depth_m"])]),
+            "west": LineString([(0, 0), (0, room["depth_m"])]),
+            "east": LineString([(room["width_m"], 0), (room["width_m"], room["depth_m"])]),
+        }
         inward = {"south": (0, 1), "north": (0, -1), "west": (1, 0), "east": (-1, 0)}
         for obj in objects:
             if obj["class_name"] not in WALL_CLASSES:
@@ -129,8 +131,12 @@ def test_wall_furniture_backs_onto_a_wall_within_a_few_cm_and_faces_the_room(hom
             against += 1
             # The back edge (local y = -d/2) in the world, by scipy's rotation.
             w, d = obj["footprint_m"]
-            ends = Rotation.from_euler("z", obj["yaw_deg"], degrees=True).apply(
-                [[-w / 2, -d / 2, 0.0], [w / 2, -d / 2, 0.0]])[:, :2] + obj["position_m"][:2]
+            ends = (
+                Rotation.from_euler("z", obj["yaw_deg"], degrees=True).apply(
+                    [[-w / 2, -d / 2, 0.0], [w / 2, -d / 2, 0.0]]
+                )[:, :2]
+                + obj["position_m"][:2]
+            )
             back = LineString(ends)
             wall = min(walls, key=lambda name: walls[name].distance(back))
             # Parallel to the wall and a few cm off it: both back corners within the gap.
@@ -217,8 +223,9 @@ def test_home_layouts_are_collision_free_inside_the_room_and_clear_of_windows(ho
         room_box = box(0.0, 0.0, room["width_m"], room["depth_m"])
         floor = [o for o in objects if o["anchor"] in ("floor", "against_wall")]
         for obj in objects:
-            assert room_box.buffer(1e-6).contains(_polygon(obj) if obj["anchor"] != "wall"
-                                                  else layout.footprint_polygon(obj))
+            assert room_box.buffer(1e-6).contains(
+                _polygon(obj) if obj["anchor"] != "wall" else layout.footprint_polygon(obj)
+            )
             assert obj["position_m"][2] + obj["height_m"] <= room["height_m"] + 1e-9
         for a, b in itertools.combinations(floor, 2):
             # Reference: shapely distance between the footprint rectangles.
@@ -227,8 +234,12 @@ def test_home_layouts_are_collision_free_inside_the_room_and_clear_of_windows(ho
             poly = _polygon(obj)
             for window in room["windows"]:
                 u0, u1 = window["center_m"] - window["width_m"] / 2, window["center_m"] + window["width_m"] / 2
-                strip = {"south": box(u0, 0, u1, 0.1), "north": box(u0, room["depth_m"] - 0.1, u1, room["depth_m"]),
-                         "west": box(0, u0, 0.1, u1), "east": box(room["width_m"] - 0.1, u0, room["width_m"], u1)}
+                strip = {
+                    "south": box(u0, 0, u1, 0.1),
+                    "north": box(u0, room["depth_m"] - 0.1, u1, room["depth_m"]),
+                    "west": box(0, u0, 0.1, u1),
+                    "east": box(room["width_m"] - 0.1, u0, room["width_m"], u1),
+                }
                 if obj["height_m"] > window["sill_m"]:
                     # Nothing taller than the sill stands in the 10 cm in front of a window.
                     assert not poly.intersects(strip[window["wall"]]), (obj["class_name"], window)
@@ -247,8 +258,7 @@ DOOR = {"wall": "south", "center_m": 1.2, "width_m": 0.9, "height_m": 2.1, "arch
 
 
 def _room_with_door(door: dict | None) -> dict:
-    return {"width_m": 3.6, "depth_m": 3.4, "height_m": 2.5, "windows": [],
-            "doors": [door] if door else []}
+    return {"width_m": 3.6, "depth_m": 3.4, "height_m": 2.5, "windows": [], "doors": [door] if door else []}
 
 
 def _door_zone(room: dict, door: dict) -> Polygon:
@@ -269,14 +279,17 @@ def test_the_floor_in_front_of_a_door_stays_free(mode):
             if obj["anchor"] == "wall":
                 # Wall items: not on the door's wall within its width below the head.
                 if obj["wall"] == "south" and obj["mount_height_m"] < DOOR["height_m"]:
-                    x0, x1 = obj["position_m"][0] - obj["footprint_m"][0] / 2, obj["position_m"][0] + \
-                        obj["footprint_m"][0] / 2
+                    x0, x1 = (
+                        obj["position_m"][0] - obj["footprint_m"][0] / 2,
+                        obj["position_m"][0] + obj["footprint_m"][0] / 2,
+                    )
                     assert x1 <= zone.bounds[0] or x0 >= zone.bounds[2], obj
                 continue
             assert not _polygon(obj).intersects(zone), (seed, obj["class_name"], obj["arrangement"])
         # Unlabelled clutter placed afterwards keeps the zone free too (rugs lie flat and may).
-        clutter = distractors.sample_distractors(room, objects, {"distractor_count": [10, 10]},
-                                                 np.random.default_rng(seed))
+        clutter = distractors.sample_distractors(
+            room, objects, {"distractor_count": [10, 10]}, np.random.default_rng(seed)
+        )
         for item in clutter:
             if item["anchor"] == "floor" and item["kind"] != "rug":
                 assert not distractors.footprint_polygon(item).intersects(zone), item["kind"]
@@ -289,9 +302,11 @@ def test_the_floor_in_front_of_a_door_stays_free(mode):
 def test_a_malformed_door_is_refused_with_its_reason():
     rng = np.random.default_rng(0)
     specs = [assets.sample_asset("side_table", rng)]
-    for door in ({"wall": "up", "center_m": 1.0, "width_m": 0.9, "height_m": 2.0},
-                 {"wall": "south", "center_m": 1.0}, {"wall": "south", "center_m": 1.0, "width_m": -1,
-                                                      "height_m": 2.0}):
+    for door in (
+        {"wall": "up", "center_m": 1.0, "width_m": 0.9, "height_m": 2.0},
+        {"wall": "south", "center_m": 1.0},
+        {"wall": "south", "center_m": 1.0, "width_m": -1, "height_m": 2.0},
+    ):
         state = rng.bit_generator.state
         with pytest.raises(layout.LayoutError, match=r"door 1: "):
             layout.place_objects(_room_with_door(door), specs, rng, mode="home")
@@ -302,9 +317,12 @@ def test_a_composition_that_does_not_fit_names_class_and_reason():
     rng = np.random.default_rng(3)
     room = _room_with_door(DOOR) | {"width_m": 2.6, "depth_m": 2.6}
     beds = [{**assets.sample_asset("bed", rng), "footprint_m": [1.6, 2.1]} for _ in range(2)]
-    with pytest.raises(layout.LayoutError, match=r"cannot place bed #\d of 2 in a 2\.6 × 2\.6 m room: no "
-                                                 r"collision-free spot after 400 tries \(floor \d+% covered, "
-                                                 r"1 zone\(s\) in front of doors and curtains kept free\)"):
+    with pytest.raises(
+        layout.LayoutError,
+        match=r"cannot place bed #\d of 2 in a 2\.6 × 2\.6 m room: no "
+        r"collision-free spot after 400 tries \(floor \d+% covered, "
+        r"1 zone\(s\) in front of doors and curtains kept free\)",
+    ):
         layout.place_objects(room, beds, rng, mode="home")
     with pytest.raises(layout.LayoutError, match="unknown layout mode 'tidy'"):
         layout.place_objects(room, beds[:1], rng, mode="tidy")
@@ -333,8 +351,9 @@ def test_layout_mode_draw_leaves_the_room_and_assets_unchanged():
     assert (home["layout_mode"], free["layout_mode"]) == ("home", "free")
     assert home["room"] == free["room"]
     strip = ("position_m", "yaw_deg", "anchor", "arrangement", "support_instance_id")
-    assert [{k: v for k, v in o.items() if k not in strip} for o in home["objects"]] == \
-        [{k: v for k, v in o.items() if k not in strip} for o in free["objects"]]
+    assert [{k: v for k, v in o.items() if k not in strip} for o in home["objects"]] == [
+        {k: v for k, v in o.items() if k not in strip} for o in free["objects"]
+    ]
 
 
 def test_free_placement_probability_is_validated():
@@ -350,15 +369,19 @@ def test_rugs_lie_under_the_coffee_table_or_in_front_of_the_sofa(home_layouts):
         hosts = [o for o in objects if o["class_name"] in ("coffee_table", "sofa")]
         if not hosts:
             continue
-        clutter = distractors.sample_distractors(room, objects, {"distractor_count": [12, 12]},
-                                                 np.random.default_rng(k))
+        clutter = distractors.sample_distractors(
+            room, objects, {"distractor_count": [12, 12]}, np.random.default_rng(k)
+        )
         for rug in (d for d in clutter if d["kind"] == "rug"):
             rugs += 1
             area = distractors.footprint_polygon(rug)
             # Under the coffee table (its centre on the rug), or the floor just in front of the sofa
             # (a point 0.2 m ahead of its front edge) on the rug: the living-room rule (common practice).
-            spots = [Point(o["position_m"][:2]) if o["class_name"] == "coffee_table" else
-                     Point(np.array(o["position_m"][:2]) + (o["footprint_m"][1] / 2 + 0.2) * _front(o))
-                     for o in hosts]
+            spots = [
+                Point(o["position_m"][:2])
+                if o["class_name"] == "coffee_table"
+                else Point(np.array(o["position_m"][:2]) + (o["footprint_m"][1] / 2 + 0.2) * _front(o))
+                for o in hosts
+            ]
             hosted += any(area.contains(spot) for spot in spots)
     assert rugs >= 30 and hosted >= 0.8 * rugs, (hosted, rugs)

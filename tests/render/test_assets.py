@@ -42,8 +42,20 @@ HANDBOOK_M = {
 MM = 0.002  # measurement tolerance: 2 mm, well under the handbook ranges' widths
 
 SEEDS_PER_VARIANT = 6
-EXPECTED_CLASSES = {"chair", "armchair", "sofa", "dining_table", "coffee_table", "side_table", "ottoman",
-                    "wall_clock", "floor_lamp", "bookshelf", "potted_plant", "bed"}
+EXPECTED_CLASSES = {
+    "chair",
+    "armchair",
+    "sofa",
+    "dining_table",
+    "coffee_table",
+    "side_table",
+    "ottoman",
+    "wall_clock",
+    "floor_lamp",
+    "bookshelf",
+    "potted_plant",
+    "bed",
+}
 
 
 def _specs_by_variant(class_name: str, per_variant: int = SEEDS_PER_VARIANT) -> dict[str, list[dict]]:
@@ -90,8 +102,11 @@ def test_every_range_names_its_source():
                 assert 0.0 < r.low and r.high < 3.0, (class_name, name)  # metres, not millimetres
 
 
-@pytest.mark.parametrize("class_name,variant,spec", ALL_SPECS, ids=[f"{c}-{v}-{i % SEEDS_PER_VARIANT}"
-                                                                    for i, (c, v, _) in enumerate(ALL_SPECS)])
+@pytest.mark.parametrize(
+    "class_name,variant,spec",
+    ALL_SPECS,
+    ids=[f"{c}-{v}-{i % SEEDS_PER_VARIANT}" for i, (c, v, _) in enumerate(ALL_SPECS)],
+)
 def test_asset_geometry(class_name, variant, spec):
     ranges = assets.CLASSES[class_name].ranges
     # Every sampled dimension lies inside its published range.
@@ -124,8 +139,11 @@ def test_asset_geometry(class_name, variant, spec):
     # Handbook dimensions measured on the geometry itself.
     p = spec["params"]
     if class_name in ("chair", "armchair", "sofa"):
-        seat_z = _top_z_at(mesh, 0.05 if class_name != "sofa" else 0.1 * (w - 2 * p.get("arm_width_m", 0)),
-                           d / 2 - 0.1 if class_name == "sofa" else d / 4)
+        seat_z = _top_z_at(
+            mesh,
+            0.05 if class_name != "sofa" else 0.1 * (w - 2 * p.get("arm_width_m", 0)),
+            d / 2 - 0.1 if class_name == "sofa" else d / 4,
+        )
         lo, hi = HANDBOOK_M[(class_name, "seat")]
         assert lo - MM <= seat_z <= hi + MM, seat_z
     if class_name in ("dining_table", "coffee_table", "side_table"):
@@ -154,6 +172,7 @@ def test_asset_geometry(class_name, variant, spec):
 
 def test_variants_are_geometrically_different():
     """Compare surface-point occupancy on a 6×6×6 grid over the bounding box, variant against variant."""
+
     def descriptor(spec: dict) -> np.ndarray:
         mesh = _merged(assets.build_asset_parts(spec))
         points, _ = trimesh.sample.sample_surface(mesh, 3000, seed=0)
@@ -237,11 +256,16 @@ def test_user_asset_spec_wraps_a_mesh(tmp_path):
 
 
 ROOM = {
-    "width_m": 4.0, "depth_m": 3.0, "height_m": 2.5,
-    "materials": {k: {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0} for k in ("floor", "wall",
-                                                                                             "ceiling")},
-    "windows": [{"wall": "south", "center_m": 1.5, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.2},
-                {"wall": "east", "center_m": 1.0, "sill_m": 0.8, "width_m": 0.8, "height_m": 1.0}],
+    "width_m": 4.0,
+    "depth_m": 3.0,
+    "height_m": 2.5,
+    "materials": {
+        k: {"kind": "diffuse", "rgb": [0.5, 0.5, 0.5], "roughness": 1.0} for k in ("floor", "wall", "ceiling")
+    },
+    "windows": [
+        {"wall": "south", "center_m": 1.5, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.2},
+        {"wall": "east", "center_m": 1.0, "sill_m": 0.8, "width_m": 0.8, "height_m": 1.0},
+    ],
 }
 
 

@@ -112,7 +112,11 @@ def test_sensor_noise_variance_matches_shot_plus_read_model(exact_below):
         for level in (0.0005, 0.02, 0.3):
             flat = np.full((256, 256, 3), level, dtype=np.float32)
             noisy = camera.apply_sensor_noise(
-                flat, iso, full_well_electrons=full_well, read_noise_electrons=read, rng=np.random.default_rng(7),
+                flat,
+                iso,
+                full_well_electrons=full_well,
+                read_noise_electrons=read,
+                rng=np.random.default_rng(7),
                 exact_poisson_below_electrons=exact_below,
             )
             expected = (level * gain + read**2) / gain**2
@@ -121,7 +125,11 @@ def test_sensor_noise_variance_matches_shot_plus_read_model(exact_below):
         variances.append(noisy.var())
     assert variances == sorted(variances)  # more noise at higher ISO
     again = camera.apply_sensor_noise(
-        flat, 6400.0, full_well_electrons=full_well, read_noise_electrons=read, rng=np.random.default_rng(7),
+        flat,
+        6400.0,
+        full_well_electrons=full_well,
+        read_noise_electrons=read,
+        rng=np.random.default_rng(7),
         exact_poisson_below_electrons=exact_below,
     )
     np.testing.assert_array_equal(again, noisy)  # deterministic for a seed
@@ -134,8 +142,9 @@ def test_sensor_noise_on_a_full_frame_follows_the_model():
     signal = np.random.default_rng(0).random((480, 640, 3), dtype=np.float32)
     kept = signal.copy()
     full_well, read, iso = 30000.0, 3.0, 800.0
-    noisy = camera.apply_sensor_noise(signal, iso, full_well_electrons=full_well, read_noise_electrons=read,
-                                      rng=np.random.default_rng(1))
+    noisy = camera.apply_sensor_noise(
+        signal, iso, full_well_electrons=full_well, read_noise_electrons=read, rng=np.random.default_rng(1)
+    )
     assert noisy.shape == signal.shape and noisy.dtype == np.float32
     np.testing.assert_array_equal(signal, kept)  # the input is not written to
     gain = full_well * 100.0 / iso
@@ -164,14 +173,46 @@ FAKE_ROOM = {"width_m": 5.0, "depth_m": 4.0, "height_m": 2.6, "windows": []}
 
 def _fake_objects() -> list[dict]:
     return [
-        {"instance_id": 1, "class_name": "chair", "asset_id": "a", "position_m": [1.2, 1.0, 0.0], "yaw_deg": 30.0,
-         "footprint_m": [0.5, 0.5], "height_m": 0.9, "placement": "floor"},
-        {"instance_id": 2, "class_name": "table", "asset_id": "b", "position_m": [2.5, 2.0, 0.0], "yaw_deg": 0.0,
-         "footprint_m": [1.2, 0.8], "height_m": 0.75, "placement": "floor"},
-        {"instance_id": 3, "class_name": "lamp", "asset_id": "c", "position_m": [4.2, 3.2, 0.0], "yaw_deg": 0.0,
-         "footprint_m": [0.3, 0.3], "height_m": 1.5, "placement": "floor"},
-        {"instance_id": 4, "class_name": "sofa", "asset_id": "d", "position_m": [3.0, 3.4, 0.0], "yaw_deg": 180.0,
-         "footprint_m": [2.0, 0.9], "height_m": 0.85, "placement": "floor"},
+        {
+            "instance_id": 1,
+            "class_name": "chair",
+            "asset_id": "a",
+            "position_m": [1.2, 1.0, 0.0],
+            "yaw_deg": 30.0,
+            "footprint_m": [0.5, 0.5],
+            "height_m": 0.9,
+            "placement": "floor",
+        },
+        {
+            "instance_id": 2,
+            "class_name": "table",
+            "asset_id": "b",
+            "position_m": [2.5, 2.0, 0.0],
+            "yaw_deg": 0.0,
+            "footprint_m": [1.2, 0.8],
+            "height_m": 0.75,
+            "placement": "floor",
+        },
+        {
+            "instance_id": 3,
+            "class_name": "lamp",
+            "asset_id": "c",
+            "position_m": [4.2, 3.2, 0.0],
+            "yaw_deg": 0.0,
+            "footprint_m": [0.3, 0.3],
+            "height_m": 1.5,
+            "placement": "floor",
+        },
+        {
+            "instance_id": 4,
+            "class_name": "sofa",
+            "asset_id": "d",
+            "position_m": [3.0, 3.4, 0.0],
+            "yaw_deg": 180.0,
+            "footprint_m": [2.0, 0.9],
+            "height_m": 0.85,
+            "placement": "floor",
+        },
     ]
 
 
@@ -211,15 +252,17 @@ def test_focal_length_keeps_its_budget_spread_without_zoom_out():
 
     budget = normalize_budget({"camera": {"max_zoom_out": 1.0}})
     lo, hi = budget["camera"]["focal_length_mm"]
-    focal = [camera.sample_camera(budget, FAKE_ROOM, _fake_objects(), np.random.default_rng(seed))["focal_length_mm"]
-             for seed in range(1000)]
+    focal = [
+        camera.sample_camera(budget, FAKE_ROOM, _fake_objects(), np.random.default_rng(seed))["focal_length_mm"]
+        for seed in range(1000)
+    ]
     assert stats.kstest(focal, stats.uniform(loc=lo, scale=hi - lo).cdf).pvalue > 0.01
     zoomed = normalize_budget({"camera": {"max_zoom_out": 100.0}})
-    short = [camera.sample_camera(zoomed, FAKE_ROOM, _fake_objects(), np.random.default_rng(seed))["focal_length_mm"]
-             for seed in range(1000)]
+    short = [
+        camera.sample_camera(zoomed, FAKE_ROOM, _fake_objects(), np.random.default_rng(seed))["focal_length_mm"]
+        for seed in range(1000)
+    ]
     assert np.median(short) < np.median(focal)  # the trade-off is real: zooming out shortens the lens
-
-
 
 
 # ---------------------------------------------------------------------------------------------------------------------
@@ -251,8 +294,15 @@ def _mitsuba_sensor(mi, spec: dict, width_px: int, height_px: int, *, use_matrix
     }
 
 
-SPEC = {"position_m": [0.7, 0.4, 1.6], "target_m": [2.5, 3.0, 0.5], "up": [0, 0, 1], "focal_length_mm": 24.0,
-        "sensor_width_mm": 36.0, "f_number": 4.0, "focus_distance_m": 3.0}
+SPEC = {
+    "position_m": [0.7, 0.4, 1.6],
+    "target_m": [2.5, 3.0, 0.5],
+    "up": [0, 0, 1],
+    "focal_length_mm": 24.0,
+    "sensor_width_mm": 36.0,
+    "f_number": 4.0,
+    "focus_distance_m": 3.0,
+}
 
 
 @pytest.mark.parametrize("use_matrix", [False, True])
@@ -272,12 +322,14 @@ def test_mitsuba_position_aov_render_agrees_with_projection(mi):
     # Reference: a Mitsuba 3 render (aov integrator, world position) of a floor; pixel (0, 0) is the
     # top-left of the returned array, and each pixel's hit point projects back onto its centre.
     width_px, height_px = 48, 32
-    scene = mi.load_dict({
-        "type": "scene",
-        "integrator": {"type": "aov", "aovs": "pos:position"},
-        "sensor": _mitsuba_sensor(mi, SPEC, width_px, height_px, use_matrix=True),
-        "floor": {"type": "rectangle", "to_world": mi.ScalarTransform4f().scale([50, 50, 1])},
-    })
+    scene = mi.load_dict(
+        {
+            "type": "scene",
+            "integrator": {"type": "aov", "aovs": "pos:position"},
+            "sensor": _mitsuba_sensor(mi, SPEC, width_px, height_px, use_matrix=True),
+            "floor": {"type": "rectangle", "to_world": mi.ScalarTransform4f().scale([50, 50, 1])},
+        }
+    )
     image = np.array(mi.render(scene))
     R, t, K = camera.camera_matrices(SPEC, width_px, height_px)
     jj, ii = np.mgrid[0:height_px, 0:width_px]

@@ -76,8 +76,11 @@ def test_views_that_share_layouts_still_follow_the_budget():
     # with not one draw rejected: those heights are the streams' raw first draws, so that is the 1 % test's
     # false alarm, not a bias.)
     layouts = [seed for seed in range(1000, 1060) if _fits(seed)][:50]
-    cameras = [make_spec(SMALL, COMPOSITION, 100 * layout + slot, layout_seed=layout, view_slot=slot)["camera"]
-               for layout in layouts for slot in range(4)]
+    cameras = [
+        make_spec(SMALL, COMPOSITION, 100 * layout + slot, layout_seed=layout, view_slot=slot)["camera"]
+        for layout in layouts
+        for slot in range(4)
+    ]
     assert len(cameras) == 200
     pvalues = _ks_pvalues(cameras, SMALL)
     assert min(pvalues.values()) > P_MIN, pvalues
@@ -127,12 +130,15 @@ def test_views_of_one_layout_are_at_least_the_budget_minimum_apart(minimums):
     layouts = [seed for seed in range(12) if _fits(seed)][:8]
     slotted, independent = [], []
     for layout in layouts:
-        views = [make_spec(budget, COMPOSITION, 1000 + 10 * layout + slot, layout_seed=layout, view_slot=slot)
-                 for slot in range(6)]
+        views = [
+            make_spec(budget, COMPOSITION, 1000 + 10 * layout + slot, layout_seed=layout, view_slot=slot)
+            for slot in range(6)
+        ]
         assert all(v["objects"] == views[0]["objects"] for v in views)  # they do share the layout
         slotted += _too_close([v["camera"] for v in views], cam["min_view_angle_deg"], cam["min_view_distance_m"])
-        free = [make_spec(budget, COMPOSITION, 1000 + 10 * layout + slot, layout_seed=layout)["camera"]
-                for slot in range(6)]
+        free = [
+            make_spec(budget, COMPOSITION, 1000 + 10 * layout + slot, layout_seed=layout)["camera"] for slot in range(6)
+        ]
         independent += _too_close(free, cam["min_view_angle_deg"], cam["min_view_distance_m"])
     assert slotted == []
     # The check can fail: views drawn without their slot (independently) do come too close.
@@ -171,16 +177,24 @@ def test_bad_view_slot_is_a_clear_error(view_slot):
     with pytest.raises(SpecError, match="view_slot"):
         make_spec(SMALL, COMPOSITION, 1, view_slot=view_slot)
     with pytest.raises(ValueError, match="view_slot"):
-        camera.sample_camera(normalize_budget(SMALL), {"width_m": 4.0, "depth_m": 4.0, "height_m": 2.5}, [],
-                             np.random.default_rng(0), view_slot=view_slot)
+        camera.sample_camera(
+            normalize_budget(SMALL),
+            {"width_m": 4.0, "depth_m": 4.0, "height_m": 2.5},
+            [],
+            np.random.default_rng(0),
+            view_slot=view_slot,
+        )
 
 
-@pytest.mark.parametrize(("camera_fields", "message"), [
-    ({"distance_m": [3.0, 1.0]}, "distance_m: min"),
-    ({"distance_m": [0.1, 2.0]}, "distance_m"),
-    ({"min_view_angle_deg": 200.0}, "min_view_angle_deg"),
-    ({"min_view_distance_m": -1.0}, "min_view_distance_m"),
-])
+@pytest.mark.parametrize(
+    ("camera_fields", "message"),
+    [
+        ({"distance_m": [3.0, 1.0]}, "distance_m: min"),
+        ({"distance_m": [0.1, 2.0]}, "distance_m"),
+        ({"min_view_angle_deg": 200.0}, "min_view_angle_deg"),
+        ({"min_view_distance_m": -1.0}, "min_view_distance_m"),
+    ],
+)
 def test_bad_camera_fields_are_refused(camera_fields, message):
     with pytest.raises(BudgetError, match=message):
         normalize_budget({"camera": camera_fields})

@@ -16,16 +16,16 @@ TINY = ["--width", "64", "--height", "48", "--spp", "2"]
 
 def _run(*args: str, timeout: float = 180) -> subprocess.CompletedProcess:
     env = {**os.environ, "PYTHONPATH": str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", "")}
-    return subprocess.run([sys.executable, "-m", "render", *args], cwd=ROOT, env=env, capture_output=True,
-                          text=True, timeout=timeout)
+    return subprocess.run(
+        [sys.executable, "-m", "render", *args], cwd=ROOT, env=env, capture_output=True, text=True, timeout=timeout
+    )
 
 
 def test_cli_writes_frame_files_and_preview(tmp_path):
     out = tmp_path / "frame"
     done = _run("--seed", "3", "--out", str(out), "--classes", "chair=2,wall_clock=1", *TINY, "--preview")
     assert done.returncode == 0, done.stderr
-    for name in ("rgb.png", "instances.png", "depth.npy", "labels.json", "scene.json", "timings.json",
-                 "preview.png"):
+    for name in ("rgb.png", "instances.png", "depth.npy", "labels.json", "scene.json", "timings.json", "preview.png"):
         assert (out / name).is_file(), name
     labels = json.loads((out / "labels.json").read_text())
     assert len(labels["instances"]) == 3
@@ -77,7 +77,7 @@ def _tile(sheet, position: int, columns: int, width: int, height: int):
     row, col = divmod(position, columns)
     x = SHEET_GAP_PX + col * (width + SHEET_GAP_PX)
     y = SHEET_GAP_PX + row * (height + label_strip_height_px(width) + SHEET_GAP_PX)
-    return sheet[y:y + height, x:x + width]
+    return sheet[y : y + height, x : x + width]
 
 
 def test_contact_sheet_tiles_are_the_frames_rendered_alone(tmp_path, capsys):
@@ -137,7 +137,7 @@ def test_contact_sheet_tiles_are_the_frames_rendered_alone(tmp_path, capsys):
             x0, y0 = round(x), round(y)
             x1, y1 = max(x0, round(x + w) - 1), max(y0, round(y + h) - 1)
             box = np.zeros((24, 32), bool)
-            box[y0, x0:x1 + 1] = box[y1, x0:x1 + 1] = box[y0:y1 + 1, x0] = box[y0:y1 + 1, x1] = True
+            box[y0, x0 : x1 + 1] = box[y1, x0 : x1 + 1] = box[y0 : y1 + 1, x0] = box[y0 : y1 + 1, x1] = True
             outline |= box
             last = (box, ACCEPTED_RGB if item.get("accepted") else REJECTED_RGB)
         if last is None:
@@ -196,8 +196,20 @@ def test_contact_sheet_layout_error_on_a_later_seed_writes_nothing(tmp_path):
     budget = tmp_path / "small_room.json"
     budget.write_text(json.dumps({"room": {"width_m": [2.0, 2.0], "depth_m": [2.0, 2.0]}}))
     out = tmp_path / "sheet.png"
-    done = _run("--seed", "1", "--contact-sheet", "3", "--classes", "bed=6,sofa=6", "--budget", str(budget),
-                "--out", str(out), *SHEET_TINY, timeout=60)
+    done = _run(
+        "--seed",
+        "1",
+        "--contact-sheet",
+        "3",
+        "--classes",
+        "bed=6,sofa=6",
+        "--budget",
+        str(budget),
+        "--out",
+        str(out),
+        *SHEET_TINY,
+        timeout=60,
+    )
     assert done.returncode == 2 and done.stderr.startswith("error: "), done.stderr
     assert "frame 1/3" not in done.stdout  # every spec is made before the first render
     assert not out.exists()

@@ -20,8 +20,15 @@ from render import appearance, assets, backend, distractors, layout
 from render.budget import DEFAULT_BUDGET, BudgetError, normalize_budget
 from render.spec import make_spec, spec_to_json
 
-LIVING = {"sofa": 1, "armchair": 1, "coffee_table": 1, "side_table": 1, "bookshelf": 1, "wall_clock": 1,
-          "potted_plant": 1}
+LIVING = {
+    "sofa": 1,
+    "armchair": 1,
+    "coffee_table": 1,
+    "side_table": 1,
+    "bookshelf": 1,
+    "wall_clock": 1,
+    "potted_plant": 1,
+}
 DINING = {"dining_table": 1, "chair": 2, "floor_lamp": 1, "ottoman": 1, "wall_clock": 1}
 COMPOSITIONS = (LIVING, DINING, {"chair": 2, "coffee_table": 1, "potted_plant": 1, "wall_clock": 1})
 W, H = 64, 48
@@ -147,8 +154,9 @@ def test_floor_distractors_stand_inside_the_room_clear_of_furniture(crowded_spec
             footprint = distractors.footprint_polygon(item)
             assert room.contains(footprint)
             assert all(footprint.intersection(f).area == 0.0 for f in furniture), item["kind"]
-            assert all(footprint.intersection(distractors.footprint_polygon(other)).area == 0.0
-                       for other in items[k + 1:])
+            assert all(
+                footprint.intersection(distractors.footprint_polygon(other)).area == 0.0 for other in items[k + 1 :]
+            )
             # On the floor, or wholly on the rug and lifted by its thickness.
             on_rug = [r for r in rugs if distractors.footprint_polygon(r).contains(footprint)]
             expected_z = on_rug[0]["size_m"][2] if on_rug else 0.0
@@ -162,7 +170,9 @@ def test_floor_distractors_stand_inside_the_room_clear_of_furniture(crowded_spec
 def _support_polygon(host: dict, surface: dict) -> Polygon:
     c, s = math.cos(math.radians(host["yaw_deg"])), math.sin(math.radians(host["yaw_deg"]))
     (sx, sy), (w, d) = surface["center_m"], surface["size_m"]
-    local = np.array([[sx - w / 2, sy - d / 2], [sx + w / 2, sy - d / 2], [sx + w / 2, sy + d / 2], [sx - w / 2, sy + d / 2]])
+    local = np.array(
+        [[sx - w / 2, sy - d / 2], [sx + w / 2, sy - d / 2], [sx + w / 2, sy + d / 2], [sx - w / 2, sy + d / 2]]
+    )
     return Polygon(local @ np.array([[c, s], [-s, c]]) + np.asarray(host["position_m"][:2]))
 
 
@@ -177,9 +187,12 @@ def test_surface_and_seat_distractors_rest_on_their_host(crowded_specs):
             footprint = distractors.footprint_polygon(item)
             z = item["position_m"][2]
             if item["anchor"] == "surface":
-                resting = [s for s in host["support_surfaces"]
-                           if abs(host["position_m"][2] + s["height_m"] - z) <= 0.01
-                           and _support_polygon(host, s).buffer(1e-6).contains(footprint)]
+                resting = [
+                    s
+                    for s in host["support_surfaces"]
+                    if abs(host["position_m"][2] + s["height_m"] - z) <= 0.01
+                    and _support_polygon(host, s).buffer(1e-6).contains(footprint)
+                ]
                 assert resting, (item["kind"], host["class_name"])
                 # Clear of the labelled things standing on the same host.
                 for other in spec["objects"]:
@@ -195,7 +208,7 @@ def test_surface_and_seat_distractors_rest_on_their_host(crowded_specs):
                 on_seat += 1
         seat_items = [d for d in spec.get("distractors", []) if d["anchor"] == "seat"]
         for k, a in enumerate(seat_items):
-            for b in seat_items[k + 1:]:
+            for b in seat_items[k + 1 :]:
                 assert distractors.footprint_polygon(a).intersection(distractors.footprint_polygon(b)).area == 0.0
     assert on_surface >= 30 and on_seat >= 10
 
@@ -215,7 +228,12 @@ def test_wall_distractors_hang_on_a_wall_clear_of_windows_and_wall_items(crowded
     facing = {"south": 0.0, "north": 180.0, "west": 270.0, "east": 90.0}
     for spec in crowded_specs:
         room = spec["room"]
-        plane = {"south": ("y", 0.0), "north": ("y", room["depth_m"]), "west": ("x", 0.0), "east": ("x", room["width_m"])}
+        plane = {
+            "south": ("y", 0.0),
+            "north": ("y", room["depth_m"]),
+            "west": ("x", 0.0),
+            "east": ("x", room["width_m"]),
+        }
         labelled = [_wall_rect(o, room) for o in spec["objects"] if o["anchor"] == "wall"]
         items = [d for d in spec.get("distractors", []) if d["anchor"] == "wall"]
         rects = [_wall_rect(d, room) for d in items]
@@ -230,7 +248,7 @@ def test_wall_distractors_hang_on_a_wall_clear_of_windows_and_wall_items(crowded
                     w0, w1 = window["center_m"] - window["width_m"] / 2, window["center_m"] + window["width_m"] / 2
                     s0, s1 = window["sill_m"], window["sill_m"] + window["height_m"]
                     assert not (u0 < w1 and w0 < u1 and z0 < s1 and s0 < z1), "over a window"
-            for other in labelled + rects[:k] + rects[k + 1:]:
+            for other in labelled + rects[:k] + rects[k + 1 :]:
                 if other[0] == wall:
                     assert not (u0 < other[2] and other[1] < u1 and z0 < other[4] and other[3] < z1), "overlap"
             checked += 1
@@ -245,8 +263,14 @@ def test_distractors_near_the_camera_or_around_a_bulb_are_dropped():
     far = {**record, "position_m": [3.0, 3.0, 0.0]}
     bulb = {**record, "position_m": [3.0, 1.0, 0.0]}  # holds a point light (a panel at its height does not count)
     # A picture 0.3 m beside the eye (the camera keeps that far from walls) is only a picture beside the camera.
-    picture = {"kind": "picture_frame", "anchor": "wall", "yaw_deg": 270.0, "size_m": [0.5, 0.03, 0.4],
-               "position_m": [0.7, 1.0, 1.0], "wall": "west"}
+    picture = {
+        "kind": "picture_frame",
+        "anchor": "wall",
+        "yaw_deg": 270.0,
+        "size_m": [0.5, 0.03, 0.4],
+        "position_m": [0.7, 1.0, 1.0],
+        "wall": "west",
+    }
     lights = [{"kind": "point", "position_m": [3.0, 1.0, 0.3]}, {"kind": "panel", "center_m": [1.0, 1.3, 0.2]}]
     kept = distractors.clear_of_camera_and_lights([near, around, far, bulb, picture], camera, lights)
     assert kept == [near, far, picture]
@@ -323,11 +347,15 @@ def test_distractors_never_get_labels_but_show_in_the_frame():
 
 def _box_record(centre: np.ndarray, side_m: float) -> dict:
     material = assets.sample_material("cardboard", np.random.default_rng(0))
-    return {"kind": "box", "anchor": "floor", "position_m": [float(centre[0]), float(centre[1]),
-                                                             float(centre[2] - side_m / 2)],
-            "yaw_deg": 0.0, "size_m": [side_m] * 3,
-            "params": {"width_m": side_m, "depth_m": side_m, "height_m": side_m, "lid_height_m": 0.0},
-            "materials": {"body": material}}
+    return {
+        "kind": "box",
+        "anchor": "floor",
+        "position_m": [float(centre[0]), float(centre[1]), float(centre[2] - side_m / 2)],
+        "yaw_deg": 0.0,
+        "size_m": [side_m] * 3,
+        "params": {"width_m": side_m, "depth_m": side_m, "height_m": side_m, "lid_height_m": 0.0},
+        "materials": {"body": material},
+    }
 
 
 def _projected_box(record: dict, R: np.ndarray, t: np.ndarray, K: np.ndarray) -> Polygon:
@@ -335,8 +363,7 @@ def _projected_box(record: dict, R: np.ndarray, t: np.ndarray, K: np.ndarray) ->
     lo, hi = distractors.distractor_bounds_m(record)
     corners = np.array([[x, y, z] for x in (lo[0], hi[0]) for y in (lo[1], hi[1]) for z in (lo[2], hi[2])])
     rvec, _ = cv2.Rodrigues(np.asarray(R, dtype=np.float64))
-    points, _ = cv2.projectPoints(corners, rvec, np.asarray(t, dtype=np.float64), np.asarray(K, dtype=np.float64),
-                                  None)
+    points, _ = cv2.projectPoints(corners, rvec, np.asarray(t, dtype=np.float64), np.asarray(K, dtype=np.float64), None)
     return shapely.MultiPoint(points.reshape(-1, 2)).convex_hull
 
 

@@ -41,7 +41,9 @@ def test_doors_fit_their_walls_clear_of_windows_corners_and_each_other():
             for window in room["windows"]:
                 if window["wall"] == door["wall"]:
                     w0, w1 = window["center_m"] - window["width_m"] / 2, window["center_m"] + window["width_m"] / 2
-                    assert u1 + dressing.DOOR_OPENING_GAP_M <= w0 + 1e-6 or w1 + dressing.DOOR_OPENING_GAP_M <= u0 + 1e-6
+                    assert (
+                        u1 + dressing.DOOR_OPENING_GAP_M <= w0 + 1e-6 or w1 + dressing.DOOR_OPENING_GAP_M <= u0 + 1e-6
+                    )
         spans = sorted((d["wall"], *_door_span(d)) for d in room["doors"])
         for (wall_a, _, a1), (wall_b, b0, _) in zip(spans, spans[1:], strict=False):
             assert wall_a != wall_b or a1 <= b0 + 1e-6
@@ -50,8 +52,9 @@ def test_doors_fit_their_walls_clear_of_windows_corners_and_each_other():
 
 def test_door_count_and_curtains_follow_the_budget():
     assert all(not room["doors"] for room in _rooms(50, {"room": {"door_count": [0, 0]}}))
-    assert all(not room["curtains"] for room in _rooms(50, {"room": {"curtain_probability": 0.0,
-                                                                      "window_probability": 1.0}}))
+    assert all(
+        not room["curtains"] for room in _rooms(50, {"room": {"curtain_probability": 0.0, "window_probability": 1.0}})
+    )
     # With every window curtained at probability 1 × the bedroom's 0.9: scipy's exact binomial test.
     from scipy import stats
 
@@ -74,9 +77,14 @@ def test_room_types_are_a_budget_axis_with_their_own_finishes():
     assert {r["floor_finish"] for r in rooms} == set(dressing.FLOOR_FINISHES)
 
 
-@pytest.mark.parametrize("value, message", [
-    (["kitchen"], "unknown 'kitchen'"), ([], "choose at least one"), ("bedroom", "expected a list"),
-])
+@pytest.mark.parametrize(
+    "value, message",
+    [
+        (["kitchen"], "unknown 'kitchen'"),
+        ([], "choose at least one"),
+        ("bedroom", "expected a list"),
+    ],
+)
 def test_room_types_refuse_bad_input(value, message):
     with pytest.raises(BudgetError, match=message):
         normalize_budget({"room": {"room_types": value}})
@@ -84,7 +92,9 @@ def test_room_types_refuse_bad_input(value, message):
 
 def test_room_types_keep_their_canonical_order():
     assert normalize_budget({"room": {"room_types": ["office", "bedroom", "office"]}})["room"]["room_types"] == [
-        "bedroom", "office"]
+        "bedroom",
+        "office",
+    ]
 
 
 def test_dressing_is_deterministic_and_plain_json():
@@ -113,18 +123,34 @@ def test_dressing_geometry_stays_on_the_walls_and_out_of_furniture_space():
         centres = skirting.triangles_center
         for door in room["doors"]:
             u0, u1 = _door_span(door)
-            inner = dressing.wall_to_world(room, door["wall"], np.array([[u0 + 0.01, 0.005, 0.03],
-                                                                         [u1 - 0.01, 0.005, 0.03]]))
+            inner = dressing.wall_to_world(
+                room, door["wall"], np.array([[u0 + 0.01, 0.005, 0.03], [u1 - 0.01, 0.005, 0.03]])
+            )
             lo, hi = inner.min(axis=0), inner.max(axis=0)
             inside = np.all((centres >= lo - 1e-6) & (centres <= hi + 1e-6), axis=1)
             assert not inside.any(), "skirting runs across a door"
 
 
 def test_wall_items_never_hang_on_doors_or_curtains():
-    room = {"width_m": 4.0, "depth_m": 4.0, "height_m": 2.6, "windows": [],
-            "doors": [{"wall": "south", "center_m": 1.0, "width_m": 0.8, "height_m": 2.0, "architrave_m": 0.07,
-                       "handle_height_m": 1.0, "panelled": False, "hinge_left": True}],
-            "curtains": []}
+    room = {
+        "width_m": 4.0,
+        "depth_m": 4.0,
+        "height_m": 2.6,
+        "windows": [],
+        "doors": [
+            {
+                "wall": "south",
+                "center_m": 1.0,
+                "width_m": 0.8,
+                "height_m": 2.0,
+                "architrave_m": 0.07,
+                "handle_height_m": 1.0,
+                "panelled": False,
+                "hinge_left": True,
+            }
+        ],
+        "curtains": [],
+    }
     assert layout._blocks_window(room, "south", 0.8, 1.2, 1.4, 1.6)  # a picture over the door
     assert not layout._blocks_window(room, "south", 2.2, 2.6, 1.4, 1.6)
     assert not layout._blocks_window(room, "north", 0.8, 1.2, 1.4, 1.6)
@@ -132,15 +158,34 @@ def test_wall_items_never_hang_on_doors_or_curtains():
 
 def _zone_polygon(zone) -> Polygon:
     ux, uy, vx, vy = zone.ux, zone.uy, -zone.uy, zone.ux
-    return Polygon([(zone.cx + su * zone.hw * ux + sv * zone.hd * vx, zone.cy + su * zone.hw * uy + sv * zone.hd * vy)
-                    for su, sv in ((-1, -1), (1, -1), (1, 1), (-1, 1))])
+    return Polygon(
+        [
+            (zone.cx + su * zone.hw * ux + sv * zone.hd * vx, zone.cy + su * zone.hw * uy + sv * zone.hd * vy)
+            for su, sv in ((-1, -1), (1, -1), (1, 1), (-1, 1))
+        ]
+    )
 
 
 def test_clearance_zones_lie_in_front_of_doors_and_under_curtains():
-    room = {"width_m": 4.0, "depth_m": 5.0, "height_m": 2.6, "windows": [],
-            "doors": [{"wall": "east", "center_m": 2.0, "width_m": 0.8, "height_m": 2.0, "architrave_m": 0.07}],
-            "curtains": [{"wall": "south", "rod_start_m": 1.0, "rod_end_m": 3.0, "panel_m": 0.4, "bottom_m": 0.01,
-                          "rod_z_m": 2.3, "sides": ["left", "right"], "fold_depth_m": 0.03}]}
+    room = {
+        "width_m": 4.0,
+        "depth_m": 5.0,
+        "height_m": 2.6,
+        "windows": [],
+        "doors": [{"wall": "east", "center_m": 2.0, "width_m": 0.8, "height_m": 2.0, "architrave_m": 0.07}],
+        "curtains": [
+            {
+                "wall": "south",
+                "rod_start_m": 1.0,
+                "rod_end_m": 3.0,
+                "panel_m": 0.4,
+                "bottom_m": 0.01,
+                "rod_z_m": 2.3,
+                "sides": ["left", "right"],
+                "fold_depth_m": 0.03,
+            }
+        ],
+    }
     door, left, right = (_zone_polygon(z) for z in layout.door_clearance_zones(room))
     x0, y0, x1, y1 = door.bounds
     assert (x1 - x0, y0, y1) == pytest.approx((0.8, 2.0 - 0.47, 2.0 + 0.47))  # 0.8 m of free floor (common practice)
@@ -156,8 +201,11 @@ def test_placed_objects_keep_door_fronts_and_curtains_free():
 
     checked = curtained = 0
     for seed in range(40):
-        spec = make_spec({"room": {"door_count": [2, 2], "window_probability": 1.0}},
-                         {"sofa": 1, "bookshelf": 1, "armchair": 1, "chair": 2}, seed)
+        spec = make_spec(
+            {"room": {"door_count": [2, 2], "window_probability": 1.0}},
+            {"sofa": 1, "bookshelf": 1, "armchair": 1, "chair": 2},
+            seed,
+        )
         zones = [_zone_polygon(z) for z in layout.door_clearance_zones(spec["room"])]
         curtained += len(zones) > len(spec["room"]["doors"])
         for obj in spec["objects"]:
@@ -173,6 +221,7 @@ def test_placed_objects_keep_door_fronts_and_curtains_free():
 # ---------------------------------------------------------------------------------------------------------------------
 # Window glass
 # ---------------------------------------------------------------------------------------------------------------------
+
 
 def test_thin_glass_transmittance_matches_fresnel_and_the_handbook_value():
     """At normal incidence one face reflects r = ((n − 1)/(n + 1))² = 0.04 and a pane 2r/(1 + r) = 0.077, so

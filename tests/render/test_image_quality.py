@@ -17,16 +17,26 @@ LLVM = "llvm_ad_rgb" in backend.available_variants()
 needs_llvm = pytest.mark.skipif(not LLVM, reason="libLLVM >= 17 is needed for the quick JIT renders here")
 
 
-def _window_spec(*, spp: int, sun: bool, width_px: int = 64, height_px: int = 48, lamps: bool = False,
-                 textures: bool = True) -> dict:
+def _window_spec(
+    *, spp: int, sun: bool, width_px: int = 64, height_px: int = 48, lamps: bool = False, textures: bool = True
+) -> dict:
     """A room with one window, lit by the sky (and the sun), no lamps unless asked."""
     from render.spec import make_spec
 
-    lighting = {"panel_count": [0, 0], "point_count": [1, 1] if lamps else [0, 0], "spot_count": [0, 0],
-                "sun_probability": 1.0 if sun else 0.0, "dome_illuminance_lux": [15000.0, 15000.0],
-                "sun_illuminance_lux": [60000.0, 60000.0], "sun_elevation_deg": [30.0, 30.0]}
-    budget = {"render": {"width_px": width_px, "height_px": height_px, "spp": spp, "max_depth": 5},
-              "room": {"window_probability": 1.0}, "lighting": lighting}
+    lighting = {
+        "panel_count": [0, 0],
+        "point_count": [1, 1] if lamps else [0, 0],
+        "spot_count": [0, 0],
+        "sun_probability": 1.0 if sun else 0.0,
+        "dome_illuminance_lux": [15000.0, 15000.0],
+        "sun_illuminance_lux": [60000.0, 60000.0],
+        "sun_elevation_deg": [30.0, 30.0],
+    }
+    budget = {
+        "render": {"width_px": width_px, "height_px": height_px, "spp": spp, "max_depth": 5},
+        "room": {"window_probability": 1.0},
+        "lighting": lighting,
+    }
     if not textures:
         budget["appearance"] = {"texture_probability": 0.0}
     for seed in range(200):
@@ -105,8 +115,13 @@ def test_denoiser_removes_synthetic_noise_from_a_smooth_image():
     height, width = 64, 96
     ramp = np.linspace(0.2, 1.0, width, dtype=np.float32)[None, :, None] * np.ones((height, 1, 3), np.float32)
     noisy = ramp + np.random.default_rng(0).normal(0.0, 0.08, ramp.shape).astype(np.float32)
-    clean = denoise(noisy, albedo_rgb=np.full_like(ramp, 0.5), normal_xyz=np.dstack(
-        [np.zeros((height, width)), np.zeros((height, width)), np.ones((height, width))]).astype(np.float32))
+    clean = denoise(
+        noisy,
+        albedo_rgb=np.full_like(ramp, 0.5),
+        normal_xyz=np.dstack([np.zeros((height, width)), np.zeros((height, width)), np.ones((height, width))]).astype(
+            np.float32
+        ),
+    )
     rmse_in = float(np.sqrt(((noisy - ramp) ** 2).mean()))
     rmse_out = float(np.sqrt(((clean - ramp) ** 2).mean()))
     assert rmse_out < rmse_in / 4, (rmse_in, rmse_out)
@@ -128,7 +143,9 @@ def test_denoiser_lowers_the_error_of_a_noisy_render(llvm):
     reference = render_radiance(built, seed=17, aux=False).radiance_rgb
     scale = 0.18 / float(reference.mean())
     denoised = denoise(noisy.radiance_rgb, albedo_rgb=noisy.albedo_rgb, normal_xyz=noisy.normal_xyz)
-    psnr_raw = peak_signal_noise_ratio(encode_srgb_8bit(reference * scale), encode_srgb_8bit(noisy.radiance_rgb * scale))
+    psnr_raw = peak_signal_noise_ratio(
+        encode_srgb_8bit(reference * scale), encode_srgb_8bit(noisy.radiance_rgb * scale)
+    )
     psnr_denoised = peak_signal_noise_ratio(encode_srgb_8bit(reference * scale), encode_srgb_8bit(denoised * scale))
     assert psnr_denoised > psnr_raw + 6.0, (psnr_raw, psnr_denoised)
 
@@ -141,9 +158,15 @@ def test_denoiser_lowers_the_error_of_a_noisy_render(llvm):
 def test_portal_rectangles_fill_the_openings_and_face_the_room():
     from render.scene import window_portal_frames
 
-    room = {"width_m": 4.0, "depth_m": 5.0, "height_m": 2.6, "windows": [
-        {"wall": wall, "center_m": 1.5, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.0}
-        for wall in ("south", "north", "west", "east")]}
+    room = {
+        "width_m": 4.0,
+        "depth_m": 5.0,
+        "height_m": 2.6,
+        "windows": [
+            {"wall": wall, "center_m": 1.5, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.0}
+            for wall in ("south", "north", "west", "east")
+        ],
+    }
     centre_of_room = np.array([2.0, 2.5, 1.3])
     for frame in window_portal_frames(room):
         u, v, n = frame["u"], frame["v"], frame["normal"]
@@ -200,16 +223,30 @@ def test_emitting_quad_emits_on_its_normal_side_only(llvm):
     from render.scene import emitting_quad
 
     mi = llvm
-    quad = emitting_quad("q", (0.0, 0.0, 0.0), (0.5, 0.0, 0.0), (0.0, 0.5, 0.0), (0.0, 0.0, 1.0),
-                         bsdf={"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.0, 0.0, 0.0]}},
-                         emitter={"type": "area", "radiance": {"type": "rgb", "value": [2.0, 2.0, 2.0]}})
+    quad = emitting_quad(
+        "q",
+        (0.0, 0.0, 0.0),
+        (0.5, 0.0, 0.0),
+        (0.0, 0.5, 0.0),
+        (0.0, 0.0, 1.0),
+        bsdf={"type": "diffuse", "reflectance": {"type": "rgb", "value": [0.0, 0.0, 0.0]}},
+        emitter={"type": "area", "radiance": {"type": "rgb", "value": [2.0, 2.0, 2.0]}},
+    )
     seen = {}
     for side, z in (("front", 3.0), ("back", -3.0)):
-        scene = mi.load_dict({
-            "type": "scene", "quad": quad, "integrator": {"type": "path", "max_depth": 2},
-            "sensor": {"type": "perspective", "fov": 10.0,
-                       "to_world": mi.ScalarTransform4f().look_at(origin=[0, 0, z], target=[0, 0, 0], up=[0, 1, 0]),
-                       "film": {"type": "hdrfilm", "width": 8, "height": 8, "rfilter": {"type": "box"}}}})
+        scene = mi.load_dict(
+            {
+                "type": "scene",
+                "quad": quad,
+                "integrator": {"type": "path", "max_depth": 2},
+                "sensor": {
+                    "type": "perspective",
+                    "fov": 10.0,
+                    "to_world": mi.ScalarTransform4f().look_at(origin=[0, 0, z], target=[0, 0, 0], up=[0, 1, 0]),
+                    "film": {"type": "hdrfilm", "width": 8, "height": 8, "rfilter": {"type": "box"}},
+                },
+            }
+        )
         seen[side] = float(np.array(mi.render(scene, spp=4)).mean())
     assert seen["front"] == pytest.approx(2.0, rel=1e-3)
     assert seen["back"] == 0.0
@@ -265,8 +302,15 @@ def test_frames_that_differ_in_lens_and_light_placement_reuse_the_compiled_kerne
 
     root = Path(__file__).resolve().parents[2]
     env = dict(os.environ, DRJIT_CACHE_DIR=str(tmp_path / "kernels"))
-    done = subprocess.run([sys.executable, "-c", _KERNEL_REUSE_SCRIPT, str(root)], capture_output=True, text=True,
-                          cwd=root, env=env, timeout=300, check=False)
+    done = subprocess.run(
+        [sys.executable, "-c", _KERNEL_REUSE_SCRIPT, str(root)],
+        capture_output=True,
+        text=True,
+        cwd=root,
+        env=env,
+        timeout=300,
+        check=False,
+    )
     assert done.returncode == 0, done.stderr[-3000:]
     result = json.loads(done.stdout.strip().splitlines()[-1])
     assert len(result["settled"]) >= 3  # path tracing (sky + lamps), the sun pass, the label pass
@@ -277,8 +321,15 @@ def test_frames_that_differ_in_lens_and_light_placement_reuse_the_compiled_kerne
 # Exposure
 # ---------------------------------------------------------------------------------------------------------------------
 
-CAMERA = {"f_number": 8.0, "iso": 800.0, "iso_limits": [100.0, 3200.0], "exposure_compensation_ev": 0.0,
-          "shutter_limits_s": [1 / 500, 1 / 8], "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
+CAMERA = {
+    "f_number": 8.0,
+    "iso": 800.0,
+    "iso_limits": [100.0, 3200.0],
+    "exposure_compensation_ev": 0.0,
+    "shutter_limits_s": [1 / 500, 1 / 8],
+    "full_well_electrons": 30000.0,
+    "read_noise_electrons": 3.0,
+}
 
 
 def _correct_shutter_s(luminance: float, f_number: float, iso: float) -> float:
@@ -297,8 +348,10 @@ def test_exposure_is_never_more_than_a_third_of_a_stop_off_when_the_iso_range_al
     # Shutter times snap to 1/3 stops, so within 1/6 stop of a limit either outcome is right.
     margin = 2 ** (1 / 6)
     feasible = _correct_shutter_s(luminance, 8.0, iso_hi) <= hi_s and _correct_shutter_s(luminance, 8.0, iso_lo) >= lo_s
-    clearly_infeasible = (_correct_shutter_s(luminance, 8.0, iso_hi) > hi_s * margin
-                          or _correct_shutter_s(luminance, 8.0, iso_lo) < lo_s / margin)
+    clearly_infeasible = (
+        _correct_shutter_s(luminance, 8.0, iso_hi) > hi_s * margin
+        or _correct_shutter_s(luminance, 8.0, iso_lo) < lo_s / margin
+    )
     error_ev = math.log2(chosen["shutter_s"] / _correct_shutter_s(luminance, 8.0, chosen["iso"]))
     assert chosen["exposure_error_ev"] == pytest.approx(error_ev, abs=0.17)
     assert iso_lo <= chosen["iso"] <= iso_hi and lo_s <= chosen["shutter_s"] <= hi_s
@@ -321,9 +374,11 @@ def test_meter_reads_the_log_average_luminance():
     assert metered_luminance_cd_m2(uniform) == pytest.approx(20.0 + METER_LOG_DELTA_CD_M2, rel=1e-6)
     lamp = np.full((100, 100, 3), 10.0, dtype=np.float32)
     lamp.reshape(-1, 3)[:300] = 10000.0
-    expected = math.exp(0.97 * math.log(10.0 + METER_LOG_DELTA_CD_M2) + 0.03 * math.log(10000.0 + METER_LOG_DELTA_CD_M2))
+    expected = math.exp(
+        0.97 * math.log(10.0 + METER_LOG_DELTA_CD_M2) + 0.03 * math.log(10000.0 + METER_LOG_DELTA_CD_M2)
+    )
     assert metered_luminance_cd_m2(lamp) == pytest.approx(expected, rel=1e-5)
-    assert metered_luminance_cd_m2(lamp) / 10.0 == pytest.approx(1000 ** 0.03, rel=1e-3)
+    assert metered_luminance_cd_m2(lamp) / 10.0 == pytest.approx(1000**0.03, rel=1e-3)
     assert metered_luminance_cd_m2(np.zeros((4, 4, 3), dtype=np.float32)) == pytest.approx(METER_LOG_DELTA_CD_M2)
 
 

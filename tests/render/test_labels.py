@@ -34,8 +34,10 @@ def _box_triangles(lo, hi) -> np.ndarray:
     return np.array([[corner[q[0]], corner[q[i]], corner[q[i + 1]]] for q in quads for i in (1, 2)])
 
 
-OBJ = [{"instance_id": 7, "class_name": "chair", "asset_id": "chair-1"},
-       {"instance_id": 9, "class_name": "table", "asset_id": "table-1"}]
+OBJ = [
+    {"instance_id": 7, "class_name": "chair", "asset_id": "chair-1"},
+    {"instance_id": 9, "class_name": "table", "asset_id": "table-1"},
+]
 THRESHOLDS = {"min_visible_fraction": 0.25, "min_box_px": 16.0}
 
 
@@ -131,8 +133,9 @@ def test_near_plane_clipping_and_objects_behind_camera():
     behind = {7: _square_triangles(10, 10, 30, 30) * np.array([1, 1, -1])}
     (label,) = labels.instance_labels(np.zeros((HEIGHT, WIDTH), np.uint16), OBJ[:1], behind, R0, T0, K0, THRESHOLDS)
     assert label["amodal_bbox"] is None and label["truncation_fraction"] == 1.0 and label["visible_fraction"] == 0.0
-    floor = np.array([[[-1.0, 1.0, -2.0], [1.0, 1.0, -2.0], [1.0, 1.0, 2.0]], [[-1.0, 1.0, -2.0], [1.0, 1.0, 2.0],
-                                                                             [-1.0, 1.0, 2.0]]])
+    floor = np.array(
+        [[[-1.0, 1.0, -2.0], [1.0, 1.0, -2.0], [1.0, 1.0, 2.0]], [[-1.0, 1.0, -2.0], [1.0, 1.0, 2.0], [-1.0, 1.0, 2.0]]]
+    )
     projected = labels.project_triangles(floor, R0, T0, K0, near_m=0.5)
     z_free = np.asarray(projected)
     assert len(z_free) == 3  # one triangle with one vertex behind → quad (2), the other → 1 triangle
@@ -143,8 +146,13 @@ def test_near_plane_clipping_and_objects_behind_camera():
 def test_labels_are_fast_and_deterministic():
     # Budget: ≲ 30 ms for 8 objects of ~2000 triangles at 640×480.
     rng = np.random.default_rng(0)
-    spec = {"position_m": [0.5, 0.5, 1.5], "target_m": [3.0, 3.0, 0.5], "up": [0, 0, 1], "focal_length_mm": 24.0,
-            "sensor_width_mm": 36.0}
+    spec = {
+        "position_m": [0.5, 0.5, 1.5],
+        "target_m": [3.0, 3.0, 0.5],
+        "up": [0, 0, 1],
+        "focal_length_mm": 24.0,
+        "sensor_width_mm": 36.0,
+    }
     R, t, K = camera.camera_matrices(spec, 640, 480)
     objects, tris = [], {}
     for i in range(8):
@@ -171,24 +179,33 @@ def test_mitsuba_label_pass_agrees_with_rasterizer():
     mi = pytest.importorskip("mitsuba")
     mi.set_variant("scalar_rgb")
     width_px, height_px = 80, 60
-    spec = {"position_m": [2.2, -1.4, 1.3], "target_m": [0.1, 0.2, 0.3], "up": [0, 0, 1], "focal_length_mm": 30.0,
-            "sensor_width_mm": 36.0}
+    spec = {
+        "position_m": [2.2, -1.4, 1.3],
+        "target_m": [0.1, 0.2, 0.3],
+        "up": [0, 0, 1],
+        "focal_length_mm": 30.0,
+        "sensor_width_mm": 36.0,
+    }
     params = camera.mitsuba_sensor_params({**spec, "f_number": 4.0, "focus_distance_m": 2.0}, width_px, height_px)
     lo, hi = np.array([-0.5, -0.3, 0.0]), np.array([0.6, 0.5, 0.9])
     to_world = mi.ScalarTransform4f().translate(((lo + hi) / 2).tolist()).scale(((hi - lo) / 2).tolist())
-    scene = mi.load_dict({
-        "type": "scene",
-        "integrator": {"type": "aov", "aovs": "d:depth"},
-        "sensor": {
-            "type": "perspective", "fov": params["fov"], "fov_axis": params["fov_axis"],
-            "to_world": mi.ScalarTransform4f().look_at(
-                origin=params["origin"], target=params["target"], up=params["up"]
-            ),
-            "sampler": {"type": "stratified", "sample_count": 1, "jitter": False},
-            "film": {"type": "hdrfilm", "width": width_px, "height": height_px, "rfilter": {"type": "box"}},
-        },
-        "box": {"type": "cube", "to_world": to_world},
-    })
+    scene = mi.load_dict(
+        {
+            "type": "scene",
+            "integrator": {"type": "aov", "aovs": "d:depth"},
+            "sensor": {
+                "type": "perspective",
+                "fov": params["fov"],
+                "fov_axis": params["fov_axis"],
+                "to_world": mi.ScalarTransform4f().look_at(
+                    origin=params["origin"], target=params["target"], up=params["up"]
+                ),
+                "sampler": {"type": "stratified", "sample_count": 1, "jitter": False},
+                "film": {"type": "hdrfilm", "width": width_px, "height": height_px, "rfilter": {"type": "box"}},
+            },
+            "box": {"type": "cube", "to_world": to_world},
+        }
+    )
     covered_mi = np.array(mi.render(scene))[..., 0] > 0
     R, t, K = camera.camera_matrices(spec, width_px, height_px)
     ours = labels.rasterize_triangles(labels.project_triangles(_box_triangles(lo, hi), R, t, K), width_px, height_px)

@@ -22,8 +22,16 @@ COMPOSITIONS = {
     "study": ["bookshelf", "chair", "side_table", "potted_plant", "ottoman"],
     "lounge": ["armchair", "armchair", "ottoman", "floor_lamp", "side_table"],
 }
-BIG_COMPOSITION = ["sofa", "coffee_table", "armchair", "floor_lamp", "potted_plant", "wall_clock", "side_table",
-                   "bookshelf"]
+BIG_COMPOSITION = [
+    "sofa",
+    "coffee_table",
+    "armchair",
+    "floor_lamp",
+    "potted_plant",
+    "wall_clock",
+    "side_table",
+    "bookshelf",
+]
 LAYOUTS_PER_COMPOSITION = 100  # 5 × 100 = 500 seeded layouts
 CLEARANCE_M = layout.DEFAULT_CLEARANCE_M
 
@@ -54,8 +62,9 @@ def _support_polygon(host: dict, surface: dict) -> Polygon:
     (cx, cy), (w, d) = surface["center_m"], surface["size_m"]
     yaw = np.radians(host["yaw_deg"])
     c, s = np.cos(yaw), np.sin(yaw)
-    local = np.array([[cx - w / 2, cy - d / 2], [cx + w / 2, cy - d / 2], [cx + w / 2, cy + d / 2],
-                      [cx - w / 2, cy + d / 2]])
+    local = np.array(
+        [[cx - w / 2, cy - d / 2], [cx + w / 2, cy - d / 2], [cx + w / 2, cy + d / 2], [cx - w / 2, cy + d / 2]]
+    )
     x, y = host["position_m"][:2]
     return Polygon(np.column_stack([x + c * local[:, 0] - s * local[:, 1], y + s * local[:, 0] + c * local[:, 1]]))
 
@@ -87,8 +96,12 @@ def test_500_layouts_are_collision_free_and_inside_their_rooms(layouts):
                 wall_count += 1
                 assert obj["anchor"] == "wall"
                 low, high = layout.object_world_bounds(obj)
-                touches = {"south": low[1], "north": room["depth_m"] - high[1], "west": low[0],
-                           "east": room["width_m"] - high[0]}
+                touches = {
+                    "south": low[1],
+                    "north": room["depth_m"] - high[1],
+                    "west": low[0],
+                    "east": room["width_m"] - high[0],
+                }
                 assert touches[obj["wall"]] == pytest.approx(0.0, abs=1e-6)  # back flat on the wall
                 assert obj["position_m"][2] == pytest.approx(obj["mount_height_m"])
                 centre_z = obj["mount_height_m"] + obj["height_m"] / 2
@@ -106,9 +119,12 @@ def test_500_layouts_are_collision_free_and_inside_their_rooms(layouts):
                 surface_count += 1
                 host = by_id[obj["support_instance_id"]]
                 assert obj["anchor"] == "surface" and host["support_surfaces"]
-                fits = [s for s in host["support_surfaces"]
-                        if _support_polygon(host, s).buffer(1e-5).contains(polygons[obj["instance_id"]])
-                        and obj["position_m"][2] == pytest.approx(host["position_m"][2] + s["height_m"], abs=1e-6)]
+                fits = [
+                    s
+                    for s in host["support_surfaces"]
+                    if _support_polygon(host, s).buffer(1e-5).contains(polygons[obj["instance_id"]])
+                    and obj["position_m"][2] == pytest.approx(host["position_m"][2] + s["height_m"], abs=1e-6)
+                ]
                 assert fits, "surface item not inside its support rectangle at its height"
             else:
                 assert obj["anchor"] != "surface"
@@ -116,8 +132,9 @@ def test_500_layouts_are_collision_free_and_inside_their_rooms(layouts):
 
 
 def test_objects_keep_input_order_and_one_based_ids(layouts):
-    for (_, objects), composition in zip(layouts, [c for c in COMPOSITIONS.values()
-                                                   for _ in range(LAYOUTS_PER_COMPOSITION)], strict=True):
+    for (_, objects), composition in zip(
+        layouts, [c for c in COMPOSITIONS.values() for _ in range(LAYOUTS_PER_COMPOSITION)], strict=True
+    ):
         assert [o["class_name"] for o in objects] == composition
         assert [o["instance_id"] for o in objects] == list(range(1, len(composition) + 1))
         json.dumps(objects)
@@ -173,8 +190,11 @@ def test_impossible_composition_names_class_and_reason():
     narrow = []
     for bed in beds[:3]:
         narrow.append({**bed, "footprint_m": [1.3, 2.1], "height_m": 1.0})
-    with pytest.raises(layout.LayoutError, match=r"cannot place bed #\d of 3 in a 3\.0 × 3\.0 m room: no "
-                                                 r"collision-free spot after 400 tries \(floor \d+% covered\)"):
+    with pytest.raises(
+        layout.LayoutError,
+        match=r"cannot place bed #\d of 3 in a 3\.0 × 3\.0 m room: no "
+        r"collision-free spot after 400 tries \(floor \d+% covered\)",
+    ):
         layout.place_objects(room, narrow, rng)
     assert issubclass(layout.LayoutError, ValueError)
 
@@ -218,9 +238,11 @@ def test_world_transform_matches_scipy_rotation():
     for part in parts:
         assert np.all(part.mesh.bounds[0] >= low - 1e-6) and np.all(part.mesh.bounds[1] <= high + 1e-6)
     local = assets.build_asset_parts(spec)
-    np.testing.assert_allclose(parts[0].mesh.vertices,
-                               Rotation.from_euler("z", 123.0, degrees=True).apply(local[0].mesh.vertices)
-                               + [1.0, 2.0, 0.0], atol=1e-9)
+    np.testing.assert_allclose(
+        parts[0].mesh.vertices,
+        Rotation.from_euler("z", 123.0, degrees=True).apply(local[0].mesh.vertices) + [1.0, 2.0, 0.0],
+        atol=1e-9,
+    )
     assert layout.footprint_polygon(obj).area == pytest.approx(spec["footprint_m"][0] * spec["footprint_m"][1])
 
 

@@ -14,15 +14,33 @@ from render import lights
 from render.budget import normalize_budget
 
 ROOM_WITH_WINDOW = {
-    "width_m": 4.0, "depth_m": 5.0, "height_m": 2.7,
+    "width_m": 4.0,
+    "depth_m": 5.0,
+    "height_m": 2.7,
     "windows": [{"wall": "south", "center_m": 2.0, "sill_m": 0.9, "width_m": 1.2, "height_m": 1.2}],
 }
 ROOM_CLOSED = {"width_m": 4.0, "depth_m": 5.0, "height_m": 2.7, "windows": []}
 OBJECTS = [
-    {"instance_id": 1, "class_name": "chair", "asset_id": "a", "position_m": [1.0, 1.0, 0.0], "yaw_deg": 0.0,
-     "footprint_m": [0.5, 0.5], "height_m": 0.9, "placement": "floor"},
-    {"instance_id": 2, "class_name": "lamp", "asset_id": "b", "position_m": [3.0, 4.0, 0.0], "yaw_deg": 0.0,
-     "footprint_m": [0.4, 0.4], "height_m": 1.8, "placement": "floor"},
+    {
+        "instance_id": 1,
+        "class_name": "chair",
+        "asset_id": "a",
+        "position_m": [1.0, 1.0, 0.0],
+        "yaw_deg": 0.0,
+        "footprint_m": [0.5, 0.5],
+        "height_m": 0.9,
+        "placement": "floor",
+    },
+    {
+        "instance_id": 2,
+        "class_name": "lamp",
+        "asset_id": "b",
+        "position_m": [3.0, 4.0, 0.0],
+        "yaw_deg": 0.0,
+        "footprint_m": [0.4, 0.4],
+        "height_m": 1.8,
+        "placement": "floor",
+    },
 ]
 
 
@@ -163,8 +181,11 @@ def test_sample_lights_sun_azimuth_uses_budget_range_and_forced_lamp():
     budget = normalize_budget({"lighting": {"sun_probability": 1.0, "sun_azimuth_deg": [200.0, 300.0]}})
     east = {**ROOM_WITH_WINDOW, "windows": [{**ROOM_WITH_WINDOW["windows"][0], "wall": "east"}]}
     for seed in range(50):
-        sun = next(x for x in lights.sample_lights(budget, ROOM_WITH_WINDOW, [], np.random.default_rng(seed))
-                   if x["kind"] == "sun")
+        sun = next(
+            x
+            for x in lights.sample_lights(budget, ROOM_WITH_WINDOW, [], np.random.default_rng(seed))
+            if x["kind"] == "sun"
+        )
         assert 210.0 - 1e-6 <= sun["azimuth_deg"] <= 300.0 + 1e-6  # window ∩ budget range
         sun = next(x for x in lights.sample_lights(budget, east, [], np.random.default_rng(seed)) if x["kind"] == "sun")
         assert _azimuth_off_normal(sun, "east") <= 60.0 + 1e-6  # no overlap: entering through the window wins
@@ -189,19 +210,25 @@ def test_sample_lights_is_fast():
 
 
 def _floor_radiance(mi, emitter: dict, spp: int = 4) -> float:
-    scene = mi.load_dict({
-        "type": "scene",
-        "integrator": {"type": "path", "max_depth": 2},
-        "sensor": {
-            "type": "perspective", "fov": 0.05,  # a tiny pixel footprint: E varies ~1 %/cm obliquely
-            "to_world": mi.ScalarTransform4f().look_at(origin=[0, 0, 1], target=[0, 0, 0], up=[0, 1, 0]),
-            "sampler": {"type": "independent", "sample_count": spp},
-            "film": {"type": "hdrfilm", "width": 1, "height": 1, "rfilter": {"type": "box"}},
-        },
-        "floor": {"type": "rectangle", "to_world": mi.ScalarTransform4f().scale([20, 20, 1]),
-                  "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [1.0, 1.0, 1.0]}}},
-        "light": emitter,
-    })
+    scene = mi.load_dict(
+        {
+            "type": "scene",
+            "integrator": {"type": "path", "max_depth": 2},
+            "sensor": {
+                "type": "perspective",
+                "fov": 0.05,  # a tiny pixel footprint: E varies ~1 %/cm obliquely
+                "to_world": mi.ScalarTransform4f().look_at(origin=[0, 0, 1], target=[0, 0, 0], up=[0, 1, 0]),
+                "sampler": {"type": "independent", "sample_count": spp},
+                "film": {"type": "hdrfilm", "width": 1, "height": 1, "rfilter": {"type": "box"}},
+            },
+            "floor": {
+                "type": "rectangle",
+                "to_world": mi.ScalarTransform4f().scale([20, 20, 1]),
+                "bsdf": {"type": "diffuse", "reflectance": {"type": "rgb", "value": [1.0, 1.0, 1.0]}},
+            },
+            "light": emitter,
+        }
+    )
     rgb = np.array(mi.render(scene))[0, 0, :3]
     return float(lights.LUMINANCE_WEIGHTS @ rgb)
 
@@ -212,14 +239,22 @@ def test_mitsuba_units_point_and_sun():
     # Point source 1 m up, 0.5 m aside: E = I cos θ / d² (inverse-square and cosine laws), L = E / π.
     light = {"kind": "point", "position_m": [0.5, 0.0, 1.0], "flux_lm": 1000.0, "cct_k": 4000.0}
     q = lights.emitter_quantities(light)
-    radiance = _floor_radiance(mi, {"type": "point", "position": light["position_m"],
-                                    "intensity": {"type": "rgb", "value": q["intensity_rgb"]}})
+    radiance = _floor_radiance(
+        mi,
+        {"type": "point", "position": light["position_m"], "intensity": {"type": "rgb", "value": q["intensity_rgb"]}},
+    )
     d2 = 0.5**2 + 1.0
     expected = lights.point_intensity_cd(1000.0) * (1.0 / math.sqrt(d2)) / d2 / math.pi
     assert radiance == pytest.approx(expected, rel=1e-3)
     # Sun at 40° elevation: E_horizontal = E sin(elevation).
     sun = {"kind": "sun", "elevation_deg": 40.0, "azimuth_deg": 120.0, "illuminance_lux": 50000.0, "cct_k": 5500.0}
     q = lights.emitter_quantities(sun)
-    radiance = _floor_radiance(mi, {"type": "directional", "direction": q["direction"],
-                                    "irradiance": {"type": "rgb", "value": q["irradiance_rgb"]}})
+    radiance = _floor_radiance(
+        mi,
+        {
+            "type": "directional",
+            "direction": q["direction"],
+            "irradiance": {"type": "rgb", "value": q["irradiance_rgb"]},
+        },
+    )
     assert radiance == pytest.approx(50000.0 * math.sin(math.radians(40.0)) / math.pi, rel=1e-3)

@@ -63,8 +63,12 @@ def test_y_up_becomes_z_up_with_front_on_plus_y(tmp_path):
 
 def test_scene_with_node_transforms_is_flattened(tmp_path):
     scene = trimesh.Scene()
-    scene.add_geometry(_box((0.2, 0.2, 0.2)), node_name="a", transform=trimesh.transformations.translation_matrix([1, 0, 0]))
-    scene.add_geometry(_box((0.2, 0.2, 0.2)), node_name="b", transform=trimesh.transformations.translation_matrix([0, 0, 1]))
+    scene.add_geometry(
+        _box((0.2, 0.2, 0.2)), node_name="a", transform=trimesh.transformations.translation_matrix([1, 0, 0])
+    )
+    scene.add_geometry(
+        _box((0.2, 0.2, 0.2)), node_name="b", transform=trimesh.transformations.translation_matrix([0, 0, 1])
+    )
     path = tmp_path / "two.glb"
     scene.export(path)
     mesh = load_user_mesh(path, unit="m")

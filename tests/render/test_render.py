@@ -38,16 +38,35 @@ def _look_at_cv(position, target, up=(0.0, 0.0, 1.0)):
     return rotation, -rotation @ position
 
 
-def _scene(mi, k_matrix, rotation, translation, shapes: dict, *, lights: dict | None = None, spp: int = 4,
-           width: int = W, height: int = H, max_depth: int = 3):
+def _scene(
+    mi,
+    k_matrix,
+    rotation,
+    translation,
+    shapes: dict,
+    *,
+    lights: dict | None = None,
+    spp: int = 4,
+    width: int = W,
+    height: int = H,
+    max_depth: int = 3,
+):
     from render import scene as sc
 
     rgb_sensor, label_sensor = sc.sensor_dicts(k_matrix, rotation, translation, width, height, spp=spp)
     scene_dict = {"type": "scene", sc.RGB_SENSOR_ID: rgb_sensor, sc.LABEL_SENSOR_ID: label_sensor}
     scene_dict.update(shapes)
     scene_dict.update(lights or {"ambient": {"type": "constant"}})
-    return sc.load_scene(scene_dict, width_px=width, height_px=height, k_matrix=k_matrix, rotation=rotation,
-                         translation=translation, spp=spp, max_depth=max_depth)
+    return sc.load_scene(
+        scene_dict,
+        width_px=width,
+        height_px=height,
+        k_matrix=k_matrix,
+        rotation=rotation,
+        translation=translation,
+        spp=spp,
+        max_depth=max_depth,
+    )
 
 
 def _mesh(mi, name, mesh: trimesh.Trimesh, material=None):
@@ -115,7 +134,7 @@ def test_shape_index_maps_to_instances(variant):
     assert set(np.unique(ids).tolist()) == {0, *instance_ids}
     rvec, _ = cv2.Rodrigues(rotation)
     for instance_id, centre in centres.items():
-        (u, v), = cv2.projectPoints(centre[None], rvec, translation, k_matrix, None)[0].reshape(-1, 2)
+        ((u, v),) = cv2.projectPoints(centre[None], rvec, translation, k_matrix, None)[0].reshape(-1, 2)
         assert ids[int(v), int(u)] == instance_id
         ys, xs = np.nonzero(ids == instance_id)
         assert abs(xs.mean() + 0.5 - u) < 1.5 and abs(ys.mean() + 0.5 - v) < 1.5
@@ -161,9 +180,18 @@ def test_lambertian_plane_under_point_source(variant):
     plane = trimesh.creation.box(extents=[10.0, 10.0, 0.01])
     plane.apply_translation([0.0, 0.0, -0.005])
     light = {"kind": "point", "position_m": [0.0, 0.0, distance_m], "flux_lm": flux_lm, "cct_k": 6500.0}
-    built = _scene(mi, k_matrix, rotation, translation,
-                   {"i1_p0": _mesh(mi, "i1_p0", plane, {"kind": "diffuse", "rgb": [albedo] * 3, "roughness": 1})},
-                   lights=sc.emitter_entries(light, 0), spp=64, width=width, height=height, max_depth=2)
+    built = _scene(
+        mi,
+        k_matrix,
+        rotation,
+        translation,
+        {"i1_p0": _mesh(mi, "i1_p0", plane, {"kind": "diffuse", "rgb": [albedo] * 3, "roughness": 1})},
+        lights=sc.emitter_entries(light, 0),
+        spp=64,
+        width=width,
+        height=height,
+        max_depth=2,
+    )
     luminance = luminance_cd_m2(sc.render_rgb(built, seed=1))
     u = (np.arange(width) + 0.5 - width / 2) / 60.0 * distance_m
     v = (np.arange(height) + 0.5 - height / 2) / 60.0 * distance_m
@@ -258,8 +286,14 @@ def test_metered_exposure_follows_iso_2720():
     from render.frame import expose
 
     luminance, f_number, iso = 37.0, 4.0, 200.0
-    camera = {"f_number": f_number, "iso": iso, "exposure_compensation_ev": 0.0, "shutter_limits_s": [1e-5, 30.0],
-              "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
+    camera = {
+        "f_number": f_number,
+        "iso": iso,
+        "exposure_compensation_ev": 0.0,
+        "shutter_limits_s": [1e-5, 30.0],
+        "full_well_electrons": 30000.0,
+        "read_noise_electrons": 3.0,
+    }
     radiance = np.full((8, 8, 3), luminance, np.float32)
     rgb, exposure = expose(radiance, camera, rng=np.random.default_rng(0), noise=False)
     expected_s = 12.5 * f_number**2 / (luminance * iso)
@@ -279,8 +313,14 @@ def test_metered_exposure_follows_iso_2720():
 def test_metered_shutter_ignores_float_noise():
     from render.frame import expose
 
-    camera = {"f_number": 2.8, "iso": 400.0, "exposure_compensation_ev": 0.3, "shutter_limits_s": [1e-4, 1.0],
-              "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
+    camera = {
+        "f_number": 2.8,
+        "iso": 400.0,
+        "exposure_compensation_ev": 0.3,
+        "shutter_limits_s": [1e-4, 1.0],
+        "full_well_electrons": 30000.0,
+        "read_noise_electrons": 3.0,
+    }
     radiance = np.random.default_rng(1).uniform(0, 50, (16, 16, 3)).astype(np.float32)
     _, a = expose(radiance, camera, rng=np.random.default_rng(0))
     _, b = expose(radiance * np.float32(1 + 2e-6), camera, rng=np.random.default_rng(0))
@@ -291,11 +331,18 @@ def test_preview_draws_boxes(tiny_spec):
     from render.frame import ACCEPTED_RGB, REJECTED_RGB, draw_preview
 
     rgb = np.full((H, W, 3), 128, np.uint8)
-    labels = {"instances": [
-        {"instance_id": 1, "class_name": "chair", "accepted": True, "bbox": [10, 20, 30, 25]},
-        {"instance_id": 2, "class_name": "sofa", "accepted": False, "reject_reasons": ["occluded"],
-         "bbox": [50, 30, 20, 20]},
-    ]}
+    labels = {
+        "instances": [
+            {"instance_id": 1, "class_name": "chair", "accepted": True, "bbox": [10, 20, 30, 25]},
+            {
+                "instance_id": 2,
+                "class_name": "sofa",
+                "accepted": False,
+                "reject_reasons": ["occluded"],
+                "bbox": [50, 30, 20, 20],
+            },
+        ]
+    }
     preview = draw_preview(rgb, labels)
     assert preview.shape == rgb.shape and (rgb == 128).all()  # the input is not modified
     assert (np.abs(preview[44, 10:40].astype(int) - ACCEPTED_RGB).sum(axis=1) < 60).any()
@@ -311,8 +358,15 @@ def test_auto_iso_raises_sensitivity_before_underexposing():
     f_number, iso = 4.0, 100.0
     luminance = 12.5 * f_number**2 / (1.0 * iso)  # N²/t = L S / K with t = 1 s
     radiance = np.full((8, 8, 3), luminance, dtype=np.float32)
-    camera = {"f_number": f_number, "iso": iso, "iso_limits": [100.0, 3200.0], "exposure_compensation_ev": 0.0,
-              "shutter_limits_s": [1 / 500, 1 / 8], "full_well_electrons": 30000.0, "read_noise_electrons": 3.0}
+    camera = {
+        "f_number": f_number,
+        "iso": iso,
+        "iso_limits": [100.0, 3200.0],
+        "exposure_compensation_ev": 0.0,
+        "shutter_limits_s": [1 / 500, 1 / 8],
+        "full_well_electrons": 30000.0,
+        "read_noise_electrons": 3.0,
+    }
     _, exposure = expose(radiance, camera, rng=np.random.default_rng(0), noise=False)
     assert exposure["iso"] == 800.0 and exposure["iso_sampled"] == 100.0
     assert exposure["shutter_s"] == pytest.approx(0.125, rel=0.01)

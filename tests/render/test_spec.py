@@ -94,8 +94,9 @@ def test_sub_seeds_derive_from_seed_sequence():
     import numpy as np
 
     children = np.random.SeedSequence(42).spawn(len(AXES))
-    expected = {axis: int(child.generate_state(1, dtype=np.uint32)[0]) for axis, child in zip(AXES, children,
-                                                                                             strict=True)}
+    expected = {
+        axis: int(child.generate_state(1, dtype=np.uint32)[0]) for axis, child in zip(AXES, children, strict=True)
+    }
     assert derive_sub_seeds(42) == expected
     assert derive_sub_seeds(42, camera_seed=3)["camera"] == 3
 
@@ -156,8 +157,9 @@ def box_obj(tmp_path):
 
 
 def _user_assets(path):
-    return {"ottoman": [{"asset_id": "user/7", "mesh_path": str(path), "unit": "m", "up_axis": "z",
-                         "placement": "floor"}]}
+    return {
+        "ottoman": [{"asset_id": "user/7", "mesh_path": str(path), "unit": "m", "up_axis": "z", "placement": "floor"}]
+    }
 
 
 def test_user_mesh_appears_with_its_asset_id_and_procedural_variety_stays(box_obj):
@@ -173,9 +175,12 @@ def test_user_mesh_appears_with_its_asset_id_and_procedural_variety_stays(box_ob
         assert spec["user_assets"]["ottoman"][0]["asset_id"] == "user/7"
     assert "user/7" in ids
     assert any(i.startswith("ottoman/") for i in ids)
-    user_obj = next(o for seed in range(8)
-                    for o in make_spec(None, composition, seed, user_assets=_user_assets(box_obj))["objects"]
-                    if o["asset_id"] == "user/7")
+    user_obj = next(
+        o
+        for seed in range(8)
+        for o in make_spec(None, composition, seed, user_assets=_user_assets(box_obj))["objects"]
+        if o["asset_id"] == "user/7"
+    )
     # Re-renderable from its JSON alone: the mesh path and unit are in the object.
     assert user_obj["variant"] == "user" and user_obj["mesh_path"] == str(box_obj.resolve())
     assert user_obj["footprint_m"] == [0.5, 0.4] and user_obj["height_m"] == 0.35

@@ -39,8 +39,21 @@ def _luminance(srgb8: np.ndarray) -> np.ndarray:
 
 
 def test_every_family_declares_size_colour_jitter_and_known_slot_kinds():
-    expected = {"wood", "parquet", "ceramic_tile", "stone_tile", "carpet", "rug", "fabric", "leather", "marble",
-                "plaster", "wallpaper", "brushed_metal", "concrete"}
+    expected = {
+        "wood",
+        "parquet",
+        "ceramic_tile",
+        "stone_tile",
+        "carpet",
+        "rug",
+        "fabric",
+        "leather",
+        "marble",
+        "plaster",
+        "wallpaper",
+        "brushed_metal",
+        "concrete",
+    }
     assert set(textures.FAMILIES) == expected
     for name, family in textures.FAMILIES.items():
         assert family.name == name
@@ -149,7 +162,9 @@ def _seam(image: np.ndarray) -> str | None:
         wrap, interior = _seam_steps(image, axis)
         typical = float(np.median(interior)) + quantum
         if wrap > SEAM_RATIO_MAX * typical and wrap > interior.max():
-            return f"axis {axis}: wrap step {wrap:.3g} = {wrap / typical:.1f} × typical, max interior {interior.max():.3g}"
+            return (
+                f"axis {axis}: wrap step {wrap:.3g} = {wrap / typical:.1f} × typical, max interior {interior.max():.3g}"
+            )
     return None
 
 
@@ -166,8 +181,11 @@ def test_seam_check_catches_a_texture_that_does_not_tile():
 @pytest.mark.parametrize("seed", [0, 1])
 def test_every_map_tiles_seamlessly(family, seed):
     result = _sampled(family, seed)
-    for name, image in (("base colour", result.base_color_srgb8), ("roughness", result.roughness),
-                        ("normal", result.normal)):
+    for name, image in (
+        ("base colour", result.base_color_srgb8),
+        ("roughness", result.roughness),
+        ("normal", result.normal),
+    ):
         seam = _seam(image)
         assert seam is None, f"{family} {name}: {seam}"
 
@@ -214,8 +232,12 @@ def test_parquet_shows_its_board_period(tile_size_m, board_width_m):
     # Reference: geometry alone — boards w wide across an image S wide give S / w rows per image,
     # i.e. the joints repeat at S / w cycles per image along the across-board axis (y).
     expected_cycles = round(tile_size_m / board_width_m)
-    params = {"tile_size_m": tile_size_m, "board_width_m": board_width_m, "board_length_m": tile_size_m / 2,
-              "joint_width_m": 0.002}
+    params = {
+        "tile_size_m": tile_size_m,
+        "board_width_m": board_width_m,
+        "board_length_m": tile_size_m / 2,
+        "joint_width_m": 0.002,
+    }
     result = textures.generate_texture("parquet", params, 5, resolution_px=RESOLUTION_PX)
     assert result.info["geometry"]["board_width_m"] == pytest.approx(board_width_m, rel=1e-6)
     # Across the boards (y): the mean over x of |∂luma/∂y| peaks at every long joint (the dark joint and the
@@ -235,9 +257,17 @@ def test_tile_grout_lines_sit_at_the_predicted_pixels(aspect, layout):
     # (running bond: odd rows shifted by half a piece, joints at 32·aspect k); 8 mm grout centred on a joint
     # at pixel edge p covers exactly the pixels p − 1 and p (mod 128).
     n, pitch = RESOLUTION_PX, 32
-    params = {"tile_size_m": 0.512, "piece_width_m": 0.128, "piece_aspect": aspect, "layout": layout,
-              "grout_width_m": 0.008, "grout": "charcoal", "palette": "white", "glaze_mottle": 0.0,
-              "piece_tone_variation": 0.0}
+    params = {
+        "tile_size_m": 0.512,
+        "piece_width_m": 0.128,
+        "piece_aspect": aspect,
+        "layout": layout,
+        "grout_width_m": 0.008,
+        "grout": "charcoal",
+        "palette": "white",
+        "glaze_mottle": 0.0,
+        "piece_tone_variation": 0.0,
+    }
     luma = _luminance(textures.generate_texture("ceramic_tile", params, 2, resolution_px=n).base_color_srgb8)
     dark = luma < 0.5 * (luma.max() + luma.min())
 
@@ -260,10 +290,12 @@ def test_normals_follow_the_height_gradient_analytically():
     # Periodic sawtooth: check away from its drop.
     normal_u = maps.height_to_normal(0.5 * cols * pixel_m, pixel_m)[:, 4:12]
     normal_v = maps.height_to_normal(0.5 * rows * pixel_m, pixel_m)[4:12, :]
-    np.testing.assert_allclose(normal_u, np.broadcast_to([-0.5 / 1.25**0.5, 0.0, 1 / 1.25**0.5], normal_u.shape),
-                               atol=1e-6)
-    np.testing.assert_allclose(normal_v, np.broadcast_to([0.0, -0.5 / 1.25**0.5, 1 / 1.25**0.5], normal_v.shape),
-                               atol=1e-6)
+    np.testing.assert_allclose(
+        normal_u, np.broadcast_to([-0.5 / 1.25**0.5, 0.0, 1 / 1.25**0.5], normal_u.shape), atol=1e-6
+    )
+    np.testing.assert_allclose(
+        normal_v, np.broadcast_to([0.0, -0.5 / 1.25**0.5, 1 / 1.25**0.5], normal_v.shape), atol=1e-6
+    )
 
 
 def test_srgb_encoding_matches_the_standard():
@@ -312,15 +344,18 @@ def test_cache_hit_does_not_regenerate(tmp_path, monkeypatch):
     assert [p.stat().st_mtime_ns for p in second.all()] == mtimes
     _check_files(first, textures.generate_texture("parquet", CACHE_PARAMS, 4, resolution_px=64))
     # Anything that changes the content changes the key.
-    keys = {first.key,
-            textures.texture_set("parquet", CACHE_PARAMS, 5, tmp_path, resolution_px=64).key,
-            textures.texture_set("parquet", CACHE_PARAMS, 4, tmp_path, resolution_px=32).key,
-            textures.texture_set("parquet", {**CACHE_PARAMS, "board_width_m": 0.11}, 4, tmp_path,
-                                 resolution_px=64).key}
+    keys = {
+        first.key,
+        textures.texture_set("parquet", CACHE_PARAMS, 5, tmp_path, resolution_px=64).key,
+        textures.texture_set("parquet", CACHE_PARAMS, 4, tmp_path, resolution_px=32).key,
+        textures.texture_set("parquet", {**CACHE_PARAMS, "board_width_m": 0.11}, 4, tmp_path, resolution_px=64).key,
+    }
     assert len(keys) == 4 and len(calls) == 4
     # Defaults spelled out give the same key as defaults left out.
-    assert textures.texture_key("parquet", textures.canonical_params("parquet", CACHE_PARAMS), 4,
-                                resolution_px=64) == first.key
+    assert (
+        textures.texture_key("parquet", textures.canonical_params("parquet", CACHE_PARAMS), 4, resolution_px=64)
+        == first.key
+    )
 
 
 def test_a_partial_set_is_regenerated(tmp_path):

@@ -56,8 +56,9 @@ QUAD_UV = np.array([[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]])
 
 def _textured_quad_glb(path: Path, *, roughness: float = 1.0, metallic: float = 0.0) -> Path:
     mesh = trimesh.Trimesh(QUAD_V, QUAD_F, process=False)
-    material = trimesh.visual.material.PBRMaterial(baseColorTexture=_two_colour_texture(), roughnessFactor=roughness,
-                                                   metallicFactor=metallic)
+    material = trimesh.visual.material.PBRMaterial(
+        baseColorTexture=_two_colour_texture(), roughnessFactor=roughness, metallicFactor=metallic
+    )
     mesh.visual = trimesh.visual.TextureVisuals(uv=QUAD_UV, material=material)
     mesh.export(path)
     return path
@@ -66,8 +67,12 @@ def _textured_quad_glb(path: Path, *, roughness: float = 1.0, metallic: float = 
 def _obj_zip_bytes(*, with_texture: bool = True, extra: dict[str, bytes] | None = None) -> bytes:
     # Hand-written OBJ + MTL (Wavefront formats): the quad in the x-y plane facing +z, Kd 1 (the map is taken as
     # is), Ns 0 → trimesh's roughness (2 / (0 + 2))^(1/4) = 1: a matte surface.
-    obj = "mtllib quad.mtl\n" + "".join(f"v {x} {y} {z}\n" for x, y, z in QUAD_V) + \
-        "".join(f"vt {u} {v}\n" for u, v in QUAD_UV) + "usemtl painted\nf 1/1 2/2 3/3\nf 1/1 3/3 4/4\n"
+    obj = (
+        "mtllib quad.mtl\n"
+        + "".join(f"v {x} {y} {z}\n" for x, y, z in QUAD_V)
+        + "".join(f"vt {u} {v}\n" for u, v in QUAD_UV)
+        + "usemtl painted\nf 1/1 2/2 3/3\nf 1/1 3/3 4/4\n"
+    )
     mtl = "newmtl painted\nKd 1.0 1.0 1.0\nNs 0\nmap_Kd textures/paint.png\n"
     png = io.BytesIO()
     _two_colour_texture().save(png, format="PNG")
@@ -93,19 +98,31 @@ def mi():
 def _front_view(mi, parts: list[assets.Part]) -> np.ndarray:
     """Linear RGB of the parts seen from local +y (their front) under a constant white sky of radiance 1."""
     scene_dict = {
-        "type": "scene", "integrator": {"type": "path", "max_depth": 3},
+        "type": "scene",
+        "integrator": {"type": "path", "max_depth": 3},
         "sky": {"type": "constant", "radiance": {"type": "rgb", "value": 1.0}},
-        "sensor": {"type": "perspective", "fov": FOV_DEG, "fov_axis": "x",
-                   "to_world": mi.ScalarTransform4f().look_at(origin=[0, EYE_DISTANCE_M, 0.15], target=[0, 0, 0.15],
-                                                              up=[0, 0, 1]),
-                   "film": {"type": "hdrfilm", "width": WIDTH_PX, "height": HEIGHT_PX, "pixel_format": "rgb",
-                            "rfilter": {"type": "box"}},
-                   "sampler": {"type": "independent", "sample_count": 16}},
+        "sensor": {
+            "type": "perspective",
+            "fov": FOV_DEG,
+            "fov_axis": "x",
+            "to_world": mi.ScalarTransform4f().look_at(
+                origin=[0, EYE_DISTANCE_M, 0.15], target=[0, 0, 0.15], up=[0, 0, 1]
+            ),
+            "film": {
+                "type": "hdrfilm",
+                "width": WIDTH_PX,
+                "height": HEIGHT_PX,
+                "pixel_format": "rgb",
+                "rfilter": {"type": "box"},
+            },
+            "sampler": {"type": "independent", "sample_count": 16},
+        },
     }
     for k, part in enumerate(parts):
         bsdf = mi.load_dict(scene.bsdf_dict(part.material))
-        scene_dict[f"p{k}"] = scene.mesh_from_arrays(f"p{k}", part.mesh.vertices, part.mesh.faces, bsdf,
-                                                     uv=part.material.get("uv"))
+        scene_dict[f"p{k}"] = scene.mesh_from_arrays(
+            f"p{k}", part.mesh.vertices, part.mesh.faces, bsdf, uv=part.material.get("uv")
+        )
     return np.asarray(mi.render(mi.load_dict(scene_dict)), dtype=np.float64)
 
 
@@ -118,12 +135,13 @@ def _pixel_of(height_m: float) -> tuple[int, int]:
 
 def _window_mean(image: np.ndarray, height_m: float) -> np.ndarray:
     row, col = _pixel_of(height_m)
-    return image[row - 2:row + 3, col - 4:col + 5].reshape(-1, 3).mean(axis=0)
+    return image[row - 2 : row + 3, col - 4 : col + 5].reshape(-1, 3).mean(axis=0)
 
 
 def _kept_parts(path: Path, *, up_axis: str, front: str | None = None) -> tuple[dict, list[assets.Part]]:
-    spec = assets.user_asset_spec(path, "wall_clock", "floor", np.random.default_rng(3), unit="m", up_axis=up_axis,
-                                  front=front, look="keep")
+    spec = assets.user_asset_spec(
+        path, "wall_clock", "floor", np.random.default_rng(3), unit="m", up_axis=up_axis, front=front, look="keep"
+    )
     return spec, assets.build_asset_parts(spec)
 
 
@@ -141,8 +159,9 @@ def test_textured_glb_renders_its_texture_colours_under_a_white_sky(tmp_path, mi
     assert len(parts) == 1 and parts[0].material["kind"] == "diffuse"  # roughness 1, metallic 0
     assert "family" not in spec["materials"]["part0"]  # the procedural texture step leaves it alone
     # The spec's mean colour is the texture's mean in linear light (half red, half green rows).
-    np.testing.assert_allclose(spec["materials"]["part0"]["rgb"],
-                               (_srgb_decode(RED_SRGB8) + _srgb_decode(GREEN_SRGB8)) / 2, atol=1e-3)
+    np.testing.assert_allclose(
+        spec["materials"]["part0"]["rgb"], (_srgb_decode(RED_SRGB8) + _srgb_decode(GREEN_SRGB8)) / 2, atol=1e-3
+    )
     _assert_two_colour_front(_front_view(mi, parts))
 
 
@@ -159,8 +178,9 @@ def test_obj_mtl_zip_renders_its_texture_colours_under_a_white_sky(tmp_path, mi)
 
 def test_randomized_look_ignores_the_texture(tmp_path):
     path = _textured_quad_glb(tmp_path / "quad.glb")
-    spec = assets.user_asset_spec(path, "wall_clock", "floor", np.random.default_rng(3), unit="m", up_axis="+y",
-                                  look="randomize")
+    spec = assets.user_asset_spec(
+        path, "wall_clock", "floor", np.random.default_rng(3), unit="m", up_axis="+y", look="randomize"
+    )
     assert list(spec["materials"]) == ["body"] and "user_texture" not in spec["materials"]["body"]
     assert "look" not in spec  # the default is not written: older specs keep their bytes
 
@@ -169,16 +189,23 @@ def test_several_materials_become_several_parts_with_their_factors(tmp_path):
     # Two glTF primitives: a matte red seat and a polished gold leg (metallicFactor 1 → a metal, glTF §3.9.2).
     seat = trimesh.creation.box(extents=(0.5, 0.5, 0.05))
     seat.apply_translation((0, 0, 0.45))
-    seat.visual = trimesh.visual.TextureVisuals(material=trimesh.visual.material.PBRMaterial(
-        baseColorFactor=[0.6, 0.1, 0.1, 1.0], roughnessFactor=0.5, metallicFactor=0.0))
+    seat.visual = trimesh.visual.TextureVisuals(
+        material=trimesh.visual.material.PBRMaterial(
+            baseColorFactor=[0.6, 0.1, 0.1, 1.0], roughnessFactor=0.5, metallicFactor=0.0
+        )
+    )
     leg = trimesh.creation.box(extents=(0.05, 0.05, 0.45))
     leg.apply_translation((0, 0, 0.2))
-    leg.visual = trimesh.visual.TextureVisuals(material=trimesh.visual.material.PBRMaterial(
-        baseColorFactor=[0.9, 0.7, 0.3, 1.0], roughnessFactor=0.2, metallicFactor=1.0))
+    leg.visual = trimesh.visual.TextureVisuals(
+        material=trimesh.visual.material.PBRMaterial(
+            baseColorFactor=[0.9, 0.7, 0.3, 1.0], roughnessFactor=0.2, metallicFactor=1.0
+        )
+    )
     path = tmp_path / "stool.glb"
     trimesh.Scene([seat, leg]).export(path)
-    spec = assets.user_asset_spec(path, "ottoman", "floor", np.random.default_rng(1), unit="m", up_axis="z",
-                                  look="keep")
+    spec = assets.user_asset_spec(
+        path, "ottoman", "floor", np.random.default_rng(1), unit="m", up_axis="z", look="keep"
+    )
     materials = sorted(spec["materials"].values(), key=lambda m: m["kind"])
     assert [m["kind"] for m in materials] == ["metal", "plastic"]
     # glTF factors are linear; trimesh keeps them as 8-bit, so 1/255 steps.
@@ -204,8 +231,9 @@ def test_flat_modelled_clock_hangs_face_out_on_the_wall(tmp_path):
     from render.spec import normalize_budget
 
     path = _dial_clock_glb(tmp_path / "clock.glb")
-    spec = assets.user_asset_spec(path, "wall_clock", "wall", np.random.default_rng(2), unit="m", up_axis="+y",
-                                  front="+z", look="keep")
+    spec = assets.user_asset_spec(
+        path, "wall_clock", "wall", np.random.default_rng(2), unit="m", up_axis="+y", front="+z", look="keep"
+    )
     # Local frame: 0.3 m wide, 0.04 m deep (dial + hand), 0.3 m tall; the hand sticks out on +y (the front).
     np.testing.assert_allclose(spec["footprint_m"], [0.3, 0.04], atol=2e-3)
     assert spec["height_m"] == pytest.approx(0.3, abs=2e-3)
@@ -216,8 +244,12 @@ def test_flat_modelled_clock_hangs_face_out_on_the_wall(tmp_path):
         world = trimesh.util.concatenate([p.mesh for p in object_world_parts(placed[0])])
         vertices = world.vertices
         # Distance of every vertex from each wall plane; the clock hangs on the nearest one.
-        distances = {"south": vertices[:, 1], "north": room["depth_m"] - vertices[:, 1],
-                     "west": vertices[:, 0], "east": room["width_m"] - vertices[:, 0]}
+        distances = {
+            "south": vertices[:, 1],
+            "north": room["depth_m"] - vertices[:, 1],
+            "west": vertices[:, 0],
+            "east": room["width_m"] - vertices[:, 0],
+        }
         wall = min(distances, key=lambda w: distances[w].min())
         away = distances[wall]
         assert away.min() == pytest.approx(0.0, abs=0.01)  # back on the wall
@@ -230,12 +262,15 @@ def test_flat_modelled_clock_hangs_face_out_on_the_wall(tmp_path):
         assert hand[:, 2].mean() > centre_z + 0.02
 
 
-@pytest.mark.parametrize(("up_axis", "front", "expected_extents"), [
-    ("+z", None, (0.4, 0.2, 0.1)),  # no change
-    ("+y", None, (0.4, 0.1, 0.2)),  # glTF default: front +z
-    ("+x", "-y", (0.1, 0.2, 0.4)),
-    ("-z", "+x", (0.2, 0.4, 0.1)),
-])
+@pytest.mark.parametrize(
+    ("up_axis", "front", "expected_extents"),
+    [
+        ("+z", None, (0.4, 0.2, 0.1)),  # no change
+        ("+y", None, (0.4, 0.1, 0.2)),  # glTF default: front +z
+        ("+x", "-y", (0.1, 0.2, 0.4)),
+        ("-z", "+x", (0.2, 0.4, 0.1)),
+    ],
+)
 def test_up_axis_and_front_turn_the_bounding_box(tmp_path, up_axis, front, expected_extents):
     # A 0.4 × 0.2 × 0.1 m box (file x, y, z): its extents show where each file axis ends up (local x, y, z).
     path = tmp_path / "box.ply"
@@ -321,16 +356,38 @@ def test_a_frame_with_a_kept_look_upload_renders_through_the_scene_hook(tmp_path
 
     path = _dial_clock_glb(tmp_path / "clock.glb")
     quad = _textured_quad_glb(tmp_path / "quad.glb")
-    entries = {"wall_clock": [
-        {"asset_id": "user/1", "mesh_path": str(quad), "unit": "m", "up_axis": "+y", "front": "+z",
-         "placement": "wall", "look": "keep"},
-        {"asset_id": "user/2", "mesh_path": str(path), "unit": "m", "up_axis": "+y", "front": "+z",
-         "placement": "wall", "look": "keep"}]}
-    budget = {"render": {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3},
-              "appearance": {"distractor_count": [0, 0]}}
-    spec = next(s for seed in range(20)
-                for s in [spec_module.make_spec(budget, {"wall_clock": 2}, seed, user_assets=entries)]
-                if any(o["asset_id"] == "user/1" for o in s["objects"]))
+    entries = {
+        "wall_clock": [
+            {
+                "asset_id": "user/1",
+                "mesh_path": str(quad),
+                "unit": "m",
+                "up_axis": "+y",
+                "front": "+z",
+                "placement": "wall",
+                "look": "keep",
+            },
+            {
+                "asset_id": "user/2",
+                "mesh_path": str(path),
+                "unit": "m",
+                "up_axis": "+y",
+                "front": "+z",
+                "placement": "wall",
+                "look": "keep",
+            },
+        ]
+    }
+    budget = {
+        "render": {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3},
+        "appearance": {"distractor_count": [0, 0]},
+    }
+    spec = next(
+        s
+        for seed in range(20)
+        for s in [spec_module.make_spec(budget, {"wall_clock": 2}, seed, user_assets=entries)]
+        if any(o["asset_id"] == "user/1" for o in s["objects"])
+    )
     textured = [o for o in spec["objects"] if o["asset_id"] == "user/1"][0]
     assert textured["materials"]["part0"]["user_texture"]["mesh_path"] == str(quad.resolve())
     # The spec re-reads from its JSON alone (the texture record is plain JSON).

@@ -141,9 +141,11 @@ def test_explicit_noise_sigma_is_used_and_floored():
     delta_e = visibility.instance_contrasts(rgb, ids, [1])[1]["delta_e"]
     # Reference: the module's formula contrast = ΔE*ab / max(noise_sigma, NOISE_FLOOR_LSTAR).
     assert visibility.instance_contrasts(rgb, ids, [1], noise_sigma=10.0)[1]["contrast"] == pytest.approx(
-        delta_e / 10.0, abs=1e-4)
+        delta_e / 10.0, abs=1e-4
+    )
     assert visibility.instance_contrasts(rgb, ids, [1], noise_sigma=0.25)[1]["contrast"] == pytest.approx(
-        delta_e / visibility.NOISE_FLOOR_LSTAR, abs=1e-4)
+        delta_e / visibility.NOISE_FLOOR_LSTAR, abs=1e-4
+    )
 
 
 # ---------------------------------------------------------------------------------------------------------------------
@@ -187,7 +189,8 @@ def test_dark_object_on_dark_wall_is_low_contrast_and_bright_object_is_high():
     # Reference: ΔE*ab of L* 70 vs 4 is 66; divided by the estimated noise (≈ σ = 2, L* 4 clips a little at 0).
     assert bright["delta_e"] == pytest.approx(66.0, abs=1.5)
     assert bright["contrast"] == pytest.approx(
-        bright["delta_e"] / visibility.noise_sigma_lightness(bright_rgb), abs=1e-3)
+        bright["delta_e"] / visibility.noise_sigma_lightness(bright_rgb), abs=1e-3
+    )
     assert bright["contrast"] > 20.0
 
 
@@ -201,8 +204,10 @@ def test_absent_ids_full_masks_and_empty_id_list():
     rgb = _grey_image(np.where(ids == 1, 60.0, 40.0))
     got = visibility.instance_contrasts(rgb, ids, [5, 70000])
     # Reference: the module's definition — ids absent from the image report zeros.
-    assert got == {5: {"contrast": 0.0, "delta_e": 0.0, "lightness": 0.0},
-                   70000: {"contrast": 0.0, "delta_e": 0.0, "lightness": 0.0}}
+    assert got == {
+        5: {"contrast": 0.0, "delta_e": 0.0, "lightness": 0.0},
+        70000: {"contrast": 0.0, "delta_e": 0.0, "lightness": 0.0},
+    }
     assert visibility.instance_contrasts(rgb, ids, []) == {}
 
     full = np.full((32, 48), 3, dtype=np.uint16)
@@ -217,7 +222,7 @@ def test_absent_ids_full_masks_and_empty_id_list():
 @pytest.mark.parametrize("shape", [(1, 1), (2, 9)])
 def test_tiny_objects_fall_back_to_the_uneroded_mask(shape):
     ids = np.zeros((48, 48), dtype=np.uint16)
-    ids[24:24 + shape[0], 20:20 + shape[1]] = 4
+    ids[24 : 24 + shape[0], 20 : 20 + shape[1]] = 4
     rgb = _grey_image(np.where(ids == 4, 70.0, 30.0))
     got = visibility.instance_contrasts(rgb, ids, [4])[4]
     # Reference: the module's definition — erosion by 1 px empties a 1- or 2-px-thin mask, so the mask itself is
@@ -237,12 +242,12 @@ def test_ring_skips_the_mixed_edges_and_includes_other_instances():
     r = visibility.ring_width_px(size, size)
     assert r == 2  # max(2, round(0.01 · 64))
     ids = np.zeros((size, size), dtype=np.uint16)
-    ids[lo - 1 - r:hi + 1 + r, lo - 1 - r:hi + 1 + r] = 2  # another instance all around the object ...
+    ids[lo - 1 - r : hi + 1 + r, lo - 1 - r : hi + 1 + r] = 2  # another instance all around the object ...
     ids[lo:hi, lo:hi] = 1  # ... the object itself
     lstar = np.full((size, size), 80.0)  # background (id 0) beyond the ring: must not count
     lstar[ids == 2] = 20.0  # the other instance, in the ring: must count
-    lstar[lo - 1:hi + 1, lo - 1:hi + 1] = 100.0  # mixed pixels: the 1-px band outside and the mask's own edge layer
-    lstar[lo + 1:hi - 1, lo + 1:hi - 1] = 50.0  # the eroded inside
+    lstar[lo - 1 : hi + 1, lo - 1 : hi + 1] = 100.0  # mixed pixels: the 1-px band outside and the mask's own edge layer
+    lstar[lo + 1 : hi - 1, lo + 1 : hi - 1] = 50.0  # the eroded inside
     rgb = _grey_image(lstar)
     got = visibility.instance_contrasts(rgb, ids, [1])[1]
     # Reference: by construction, inside = L* 50 only and ring = chessboard distances 2..1+r = the other instance's

@@ -54,10 +54,36 @@ def build_world(user_model: Any) -> World:
     alpha_asset = Asset.objects.create(object_class=chair, name="alpha-own-mesh", kind=Asset.Kind.MESH, team=alpha)
     bravo_asset = Asset.objects.create(object_class=chair, name="bravo-secret-mesh", kind=Asset.Kind.MESH, team=bravo)
     quota = [services.QuotaInput(class_name="chair", target_accepted=3)]
-    alpha_campaign = services.create_campaign(owner=pia, team=alpha, name="alpha-campaign", quotas=quota,
-                                              cost_budget=10, price_per_cpu_hour=1, asset_ids=[shared.pk])
-    bravo_campaign = services.create_campaign(owner=bob, team=bravo, name="bravo-secret-campaign", quotas=quota,
-                                              cost_budget=10, price_per_cpu_hour=1, asset_ids=[bravo_asset.pk])
-    return World(alpha=alpha, bravo=bravo, pia=pia, ada=ada, vic=vic, bob=bob, loner=loner, root=root,
-                 shared_asset=shared, alpha_asset=alpha_asset, bravo_asset=bravo_asset,
-                 alpha_campaign=alpha_campaign, bravo_campaign=bravo_campaign)
+    alpha_campaign = services.create_campaign(
+        owner=pia,
+        team=alpha,
+        name="alpha-campaign",
+        quotas=quota,
+        cost_budget=10,
+        price_per_cpu_hour=1,
+        asset_ids=[shared.pk],
+    )
+    bravo_campaign = services.create_campaign(
+        owner=bob,
+        team=bravo,
+        name="bravo-secret-campaign",
+        quotas=quota,
+        cost_budget=10,
+        price_per_cpu_hour=1,
+        asset_ids=[bravo_asset.pk],
+    )
+    return World(
+        alpha=alpha,
+        bravo=bravo,
+        pia=pia,
+        ada=ada,
+        vic=vic,
+        bob=bob,
+        loner=loner,
+        root=root,
+        shared_asset=shared,
+        alpha_asset=alpha_asset,
+        bravo_asset=bravo_asset,
+        alpha_campaign=alpha_campaign,
+        bravo_campaign=bravo_campaign,
+    )

@@ -40,8 +40,9 @@ def _roles(team: Team) -> dict[str, str]:
 
 def test_planner_cannot_make_themselves_admin_of_another_team(world):
     before = _roles(world.bravo)
-    response = _signed_in(world.pia).post(ADD_MEMBERSHIP, {
-        "team": world.bravo.pk, "user": _user_value(world, world.pia), "role": "admin"})
+    response = _signed_in(world.pia).post(
+        ADD_MEMBERSHIP, {"team": world.bravo.pk, "user": _user_value(world, world.pia), "role": "admin"}
+    )
     assert response.status_code in (200, 403), response.status_code
     assert _roles(world.bravo) == before
     assert not Membership.objects.filter(team=world.bravo, user=world.pia).exists()
@@ -50,16 +51,18 @@ def test_planner_cannot_make_themselves_admin_of_another_team(world):
 def test_planner_cannot_promote_themselves(world):
     own = Membership.objects.get(team=world.alpha, user=world.pia)
     url = reverse("admin:teams_membership_change", args=[own.pk])
-    response = _signed_in(world.pia).post(url, {
-        "team": world.alpha.pk, "user": _user_value(world, world.pia), "role": "admin"})
+    response = _signed_in(world.pia).post(
+        url, {"team": world.alpha.pk, "user": _user_value(world, world.pia), "role": "admin"}
+    )
     assert response.status_code in (200, 403), response.status_code
     own.refresh_from_db()
     assert own.role == "planner"
 
 
 def test_planner_cannot_add_members_to_their_team(world):
-    response = _signed_in(world.pia).post(ADD_MEMBERSHIP, {
-        "team": world.alpha.pk, "user": _user_value(world, world.loner), "role": "viewer"})
+    response = _signed_in(world.pia).post(
+        ADD_MEMBERSHIP, {"team": world.alpha.pk, "user": _user_value(world, world.loner), "role": "viewer"}
+    )
     assert response.status_code in (200, 403), response.status_code
     assert not Membership.objects.filter(user=world.loner).exists()
 
@@ -67,13 +70,15 @@ def test_planner_cannot_add_members_to_their_team(world):
 def test_team_admin_adds_members_to_their_own_team_only(world):
     ada = _signed_in(world.ada)
     # Ada is a planner in Bravo: she may not add anyone there.
-    refused = ada.post(ADD_MEMBERSHIP, {"team": world.bravo.pk, "user": _user_value(world, world.loner),
-                                        "role": "viewer"})
+    refused = ada.post(
+        ADD_MEMBERSHIP, {"team": world.bravo.pk, "user": _user_value(world, world.loner), "role": "viewer"}
+    )
     assert refused.status_code == 200
     assert not Membership.objects.filter(team=world.bravo, user=world.loner).exists()
     # In Alpha she is an admin: the same form for her own team goes through.
-    added = ada.post(ADD_MEMBERSHIP, {"team": world.alpha.pk, "user": _user_value(world, world.loner),
-                                      "role": "planner"})
+    added = ada.post(
+        ADD_MEMBERSHIP, {"team": world.alpha.pk, "user": _user_value(world, world.loner), "role": "planner"}
+    )
     assert added.status_code == 302, added.content[:2000]
     assert Membership.objects.get(team=world.alpha, user=world.loner).role == "planner"
 
@@ -93,8 +98,10 @@ def test_membership_pages_do_not_list_every_account(world):
 
 def test_team_admin_cannot_change_their_own_role(world):
     own = Membership.objects.get(team=world.alpha, user=world.ada)
-    response = _signed_in(world.ada).post(reverse("admin:teams_membership_change", args=[own.pk]), {
-        "team": world.alpha.pk, "user": _user_value(world, world.ada), "role": "viewer"})
+    response = _signed_in(world.ada).post(
+        reverse("admin:teams_membership_change", args=[own.pk]),
+        {"team": world.alpha.pk, "user": _user_value(world, world.ada), "role": "viewer"},
+    )
     assert response.status_code in (200, 403), response.status_code
     own.refresh_from_db()
     assert own.role == "admin"
@@ -102,8 +109,10 @@ def test_team_admin_cannot_change_their_own_role(world):
 
 def test_team_admin_changes_other_members_roles(world):
     vic = Membership.objects.get(team=world.alpha, user=world.vic)
-    response = _signed_in(world.ada).post(reverse("admin:teams_membership_change", args=[vic.pk]), {
-        "team": world.alpha.pk, "user": _user_value(world, world.vic), "role": "planner"})
+    response = _signed_in(world.ada).post(
+        reverse("admin:teams_membership_change", args=[vic.pk]),
+        {"team": world.alpha.pk, "user": _user_value(world, world.vic), "role": "planner"},
+    )
     assert response.status_code == 302
     vic.refresh_from_db()
     assert vic.role == "planner"
@@ -137,11 +146,20 @@ class TestTeamPage:
     def test_planner_cannot_rename_the_team_or_change_members(self, world):
         pia = _signed_in(world.pia)
         vic = Membership.objects.get(team=world.alpha, user=world.vic)
-        response = pia.post(reverse("admin:teams_team_change", args=[world.alpha.pk]), {
-            "name": "Renamed", "memberships-TOTAL_FORMS": "1", "memberships-INITIAL_FORMS": "1",
-            "memberships-MIN_NUM_FORMS": "0", "memberships-MAX_NUM_FORMS": "1000",
-            "memberships-0-id": vic.pk, "memberships-0-team": world.alpha.pk,
-            "memberships-0-user": _user_value(world, world.vic), "memberships-0-role": "admin"})
+        response = pia.post(
+            reverse("admin:teams_team_change", args=[world.alpha.pk]),
+            {
+                "name": "Renamed",
+                "memberships-TOTAL_FORMS": "1",
+                "memberships-INITIAL_FORMS": "1",
+                "memberships-MIN_NUM_FORMS": "0",
+                "memberships-MAX_NUM_FORMS": "1000",
+                "memberships-0-id": vic.pk,
+                "memberships-0-team": world.alpha.pk,
+                "memberships-0-user": _user_value(world, world.vic),
+                "memberships-0-role": "admin",
+            },
+        )
         assert response.status_code == 403
         world.alpha.refresh_from_db()
         vic.refresh_from_db()
@@ -193,9 +211,16 @@ class TestTeamPage:
         empty = Team.objects.create(name="Charlie")
         Membership.objects.create(team=empty, user=world.pia, role="viewer")
         pia = _signed_in(world.pia)
-        created = pia.post(reverse("admin:teams_team_add"), {
-            "name": "Zulu", "memberships-TOTAL_FORMS": "0", "memberships-INITIAL_FORMS": "0",
-            "memberships-MIN_NUM_FORMS": "0", "memberships-MAX_NUM_FORMS": "1000"})
+        created = pia.post(
+            reverse("admin:teams_team_add"),
+            {
+                "name": "Zulu",
+                "memberships-TOTAL_FORMS": "0",
+                "memberships-INITIAL_FORMS": "0",
+                "memberships-MIN_NUM_FORMS": "0",
+                "memberships-MAX_NUM_FORMS": "1000",
+            },
+        )
         assert created.status_code == 403
         assert not Team.objects.filter(name="Zulu").exists()
         deleted = pia.post(reverse("admin:teams_team_delete", args=[empty.pk]), {"post": "yes"})
@@ -208,13 +233,16 @@ class TestTeamPage:
 
 def test_superuser_keeps_full_power(world):
     root = _signed_in(world.root)
-    response = root.post(ADD_MEMBERSHIP, {"team": world.bravo.pk, "user": _user_value(world, world.pia),
-                                          "role": "admin"})
+    response = root.post(
+        ADD_MEMBERSHIP, {"team": world.bravo.pk, "user": _user_value(world, world.pia), "role": "admin"}
+    )
     assert response.status_code == 302
     assert Membership.objects.get(team=world.bravo, user=world.pia).role == "admin"
     ada = Membership.objects.get(team=world.alpha, user=world.ada)
-    response = root.post(reverse("admin:teams_membership_change", args=[ada.pk]), {
-        "team": world.alpha.pk, "user": _user_value(world, world.ada), "role": "viewer"})
+    response = root.post(
+        reverse("admin:teams_membership_change", args=[ada.pk]),
+        {"team": world.alpha.pk, "user": _user_value(world, world.ada), "role": "viewer"},
+    )
     assert response.status_code == 302
     ada.refresh_from_db()
     assert ada.role == "viewer"

@@ -39,8 +39,11 @@ def test_adding_a_team_under_a_name_just_taken_gives_a_message_not_a_500(world, 
     rival = Team.objects.first()
     before = Team.objects.count()
     client = _root_client(world)
-    response = client.post(reverse("admin:teams_team_add"), {"name": rival.name, "memberships-TOTAL_FORMS": "0",
-                                                              "memberships-INITIAL_FORMS": "0"}, follow=True)
+    response = client.post(
+        reverse("admin:teams_team_add"),
+        {"name": rival.name, "memberships-TOTAL_FORMS": "0", "memberships-INITIAL_FORMS": "0"},
+        follow=True,
+    )
     assert response.status_code == 200
     assert b"Not saved: another save took the same name" in response.content
     assert Team.objects.count() == before

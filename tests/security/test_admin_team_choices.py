@@ -40,8 +40,11 @@ def _asset_ids(campaign: Campaign) -> set[int]:
 
 @pytest.mark.parametrize("page", ["add", "change"])
 def test_campaign_asset_selector_offers_own_and_shared_assets_only(world, page):
-    url = (reverse("admin:campaigns_campaign_add") if page == "add"
-           else reverse("admin:campaigns_campaign_change", args=[world.alpha_campaign.pk]))
+    url = (
+        reverse("admin:campaigns_campaign_add")
+        if page == "add"
+        else reverse("admin:campaigns_campaign_change", args=[world.alpha_campaign.pk])
+    )
     response = _signed_in(world.pia).get(url)
     assert response.status_code == 200
     assert set(select_options(response.content, "assets")) == {str(world.shared_asset.pk), str(world.alpha_asset.pk)}
@@ -85,7 +88,8 @@ def test_a_member_of_both_teams_cannot_give_a_campaign_the_other_teams_asset(wor
     ada = _signed_in(world.ada)
     values = _campaign_form(ada, world.alpha_campaign)
     assert str(world.bravo_asset.pk) in select_options(
-        ada.get(reverse("admin:campaigns_campaign_change", args=[world.alpha_campaign.pk])).content, "assets")
+        ada.get(reverse("admin:campaigns_campaign_change", args=[world.alpha_campaign.pk])).content, "assets"
+    )
     values["assets"] = [str(world.bravo_asset.pk)]
     response = ada.post(reverse("admin:campaigns_campaign_change", args=[world.alpha_campaign.pk]), values)
     assert response.status_code == 200
@@ -110,8 +114,13 @@ def test_quota_cannot_be_added_to_another_teams_campaign(world):
     assert page.status_code == 200
     assert [v for v in select_options(page.content, "campaign") if v] == [str(world.alpha_campaign.pk)]
     values = form_values(page.content, "classquota_form")
-    values.update({"campaign": [str(world.bravo_campaign.pk)], "object_class": [str(ObjectClass.objects.get().pk)],
-                   "target_accepted": ["5"]})
+    values.update(
+        {
+            "campaign": [str(world.bravo_campaign.pk)],
+            "object_class": [str(ObjectClass.objects.get().pk)],
+            "target_accepted": ["5"],
+        }
+    )
     before = ClassQuota.objects.filter(campaign=world.bravo_campaign).count()
     response = pia.post(reverse("admin:campaigns_classquota_add"), values)
     assert response.status_code == 200
@@ -123,8 +132,14 @@ class TestAssets:
         page = client.get(reverse("admin:campaigns_asset_add"))
         assert page.status_code == 200
         values = form_values(page.content, "asset_form")
-        values.update({"object_class": [str(ObjectClass.objects.get().pk)], "name": ["new-mesh"], "kind": ["mesh"],
-                       **{k: [v] for k, v in changes.items()}})
+        values.update(
+            {
+                "object_class": [str(ObjectClass.objects.get().pk)],
+                "name": ["new-mesh"],
+                "kind": ["mesh"],
+                **{k: [v] for k, v in changes.items()},
+            }
+        )
         return client.post(reverse("admin:campaigns_asset_add"), values)
 
     def test_asset_team_choices_are_the_users_teams(self, world):
@@ -187,13 +202,34 @@ def test_service_written_records_cannot_be_added_or_edited_in_admin(world, model
 
 def test_no_admin_page_shows_another_teams_rows(world):
     """Every add page, list and change page of an Alpha row, for every teams and campaigns admin class."""
-    frame = Frame.objects.create(campaign=world.alpha_campaign, index=0, seed=1, layout_index=0, lighting_index=0,
-                                 view_index=0, composition={"chair": 1})
-    instance = Instance.objects.create(frame=frame, campaign=world.alpha_campaign, object_class=ObjectClass.objects.get(),
-                                       instance_id=1, visible_fraction=0.5, accepted=True)
-    alpha_rows = [world.alpha, world.alpha.memberships.get(user=world.pia), world.alpha_campaign, world.alpha_asset,
-                  world.alpha_campaign.quotas.get(), frame, world.alpha_campaign.events.first(), instance,
-                  ObjectClass.objects.get()]
+    frame = Frame.objects.create(
+        campaign=world.alpha_campaign,
+        index=0,
+        seed=1,
+        layout_index=0,
+        lighting_index=0,
+        view_index=0,
+        composition={"chair": 1},
+    )
+    instance = Instance.objects.create(
+        frame=frame,
+        campaign=world.alpha_campaign,
+        object_class=ObjectClass.objects.get(),
+        instance_id=1,
+        visible_fraction=0.5,
+        accepted=True,
+    )
+    alpha_rows = [
+        world.alpha,
+        world.alpha.memberships.get(user=world.pia),
+        world.alpha_campaign,
+        world.alpha_asset,
+        world.alpha_campaign.quotas.get(),
+        frame,
+        world.alpha_campaign.events.first(),
+        instance,
+        ObjectClass.objects.get(),
+    ]
     registered = [m for m in admin.site._registry if m._meta.app_label in ("teams", "campaigns")]
     assert {type(row) for row in alpha_rows} == set(registered)
     # Ada plans in Bravo, so Bravo's rows are hers to see; an account in no team is nobody's.
@@ -201,10 +237,15 @@ def test_no_admin_page_shows_another_teams_rows(world):
         client = _signed_in(user)
         for model in registered:
             opts = model._meta
-            urls = [reverse(f"admin:{opts.app_label}_{opts.model_name}_changelist"),
-                    reverse(f"admin:{opts.app_label}_{opts.model_name}_add")]
-            urls += [reverse(f"admin:{opts.app_label}_{opts.model_name}_change", args=[row.pk])
-                     for row in alpha_rows if type(row) is model]
+            urls = [
+                reverse(f"admin:{opts.app_label}_{opts.model_name}_changelist"),
+                reverse(f"admin:{opts.app_label}_{opts.model_name}_add"),
+            ]
+            urls += [
+                reverse(f"admin:{opts.app_label}_{opts.model_name}_change", args=[row.pk])
+                for row in alpha_rows
+                if type(row) is model
+            ]
             for url in urls:
                 response = client.get(url)
                 assert response.status_code in (200, 403), (user, url, response.status_code)
@@ -231,16 +272,21 @@ def test_odd_values_in_any_admin_field_never_cause_a_server_error(world):
     """Each field of each add and change form, one at a time, set to a hostile value, posted as a superuser."""
     root = _signed_in(world.root)
     pages = [
-        ("teams", "team", world.alpha.pk), ("teams", "membership", world.alpha.memberships.get(user=world.vic).pk),
-        ("campaigns", "campaign", world.alpha_campaign.pk), ("campaigns", "asset", world.alpha_asset.pk),
+        ("teams", "team", world.alpha.pk),
+        ("teams", "membership", world.alpha.memberships.get(user=world.vic).pk),
+        ("campaigns", "campaign", world.alpha_campaign.pk),
+        ("campaigns", "asset", world.alpha_asset.pk),
         ("campaigns", "classquota", world.alpha_campaign.quotas.get().pk),
         ("campaigns", "objectclass", ObjectClass.objects.get().pk),
     ]
     for app, model, pk in pages:
         for url in (reverse(f"admin:{app}_{model}_add"), reverse(f"admin:{app}_{model}_change", args=[pk])):
             form = form_values(root.get(url).content, f"{model}_form")
-            fields = [name for name in form
-                      if name != "csrfmiddlewaretoken" and not name.endswith(("TOTAL_FORMS", "INITIAL_FORMS"))]
+            fields = [
+                name
+                for name in form
+                if name != "csrfmiddlewaretoken" and not name.endswith(("TOTAL_FORMS", "INITIAL_FORMS"))
+            ]
             for name in fields:
                 for value in ODD_VALUES:
                     response = root.post(url, {**form, name: [value]})

@@ -30,9 +30,17 @@ def no_preview(monkeypatch) -> None:
 
 
 def _upload(client, team, name: str, *, object_class: str = "ottoman"):
-    return client.post(reverse("campaigns:assets"), {
-        "name": name, "team": team.pk, "object_class": object_class, "unit": "m", "creation_cost": "3",
-        "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ)})
+    return client.post(
+        reverse("campaigns:assets"),
+        {
+            "name": name,
+            "team": team.pk,
+            "object_class": object_class,
+            "unit": "m",
+            "creation_cost": "3",
+            "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ),
+        },
+    )
 
 
 def _text(response) -> str:
@@ -48,12 +56,13 @@ def test_two_teams_may_give_assets_of_one_class_the_same_name(client, world, med
     theirs = _upload(client, world.other_team, "pouf")
     assert theirs.status_code == 302, theirs.context["form"].errors
     assert sorted(Asset.objects.filter(name="pouf").values_list("team__name", flat=True)) == [
-        "Elsewhere Ltd", "Studio North"]
+        "Elsewhere Ltd",
+        "Studio North",
+    ]
     assert len(_mesh_files(media_root)) == 2
 
 
-def test_a_taken_name_is_refused_in_the_team_with_a_message_about_that_team_only(client, world, media_root,
-                                                                                   no_preview):
+def test_a_taken_name_is_refused_in_the_team_with_a_message_about_that_team_only(client, world, media_root, no_preview):
     from campaigns.models import Asset
 
     client.force_login(world.planner)
@@ -105,8 +114,9 @@ def test_the_database_keeps_names_unique_per_team_and_class(world):
 
     def add(name: str, team) -> None:
         with transaction.atomic():
-            Asset.objects.create(object_class=ottoman, name=name, kind=Asset.Kind.MESH, team=team,
-                                 mesh_file=f"assets/meshes/{name}.obj")
+            Asset.objects.create(
+                object_class=ottoman, name=name, kind=Asset.Kind.MESH, team=team, mesh_file=f"assets/meshes/{name}.obj"
+            )
 
     add("stool", world.team)
     add("stool", world.other_team)
@@ -123,9 +133,15 @@ def test_the_shared_library_lookup_never_returns_a_team_upload(world):
     from campaigns.models import Asset, ObjectClass
 
     chair = ObjectClass.objects.get(name="chair")
-    mesh = services.upload_asset(user=world.planner, team=world.team, object_class_name="chair",
-                                 name="studio chair", mesh_path="assets/meshes/studio-chair.obj",
-                                 original_name="studio chair.obj", unit="m")
+    mesh = services.upload_asset(
+        user=world.planner,
+        team=world.team,
+        object_class_name="chair",
+        name="studio chair",
+        mesh_path="assets/meshes/studio-chair.obj",
+        original_name="studio chair.obj",
+        unit="m",
+    )
     shared = services.ensure_procedural_asset(object_class=chair, name="studio chair", creation_cost="1")
     assert shared.pk != mesh.pk
     assert shared.team_id is None and shared.kind == Asset.Kind.PROCEDURAL
@@ -138,8 +154,10 @@ def test_the_migration_keeps_existing_assets_and_frees_names_across_teams(django
     from django.db import connection
     from django.db.migrations.executor import MigrationExecutor
 
-    before, after = ("campaigns", "0003_quota_min_contrast_instance_contrast"), ("campaigns",
-                                                                                 "0004_asset_name_unique_per_team")
+    before, after = (
+        ("campaigns", "0003_quota_min_contrast_instance_contrast"),
+        ("campaigns", "0004_asset_name_unique_per_team"),
+    )
     executor = MigrationExecutor(connection)
     executor.migrate([before])
     try:
@@ -148,10 +166,14 @@ def test_the_migration_keeps_existing_assets_and_frees_names_across_teams(django
         team_b = old.get_model("teams", "Team").objects.create(name="B")
         oc = old.get_model("campaigns", "ObjectClass").objects.create(name="ottoman")
         asset_model = old.get_model("campaigns", "Asset")
-        rows = [asset_model.objects.create(object_class=oc, name=name, team=team, kind=kind,
-                                           creation_cost=Decimal("1"))
-                for name, team, kind in (("procedural ottoman", None, "procedural"), ("pouf", team_a, "mesh"),
-                                         ("stool", team_b, "mesh"))]
+        rows = [
+            asset_model.objects.create(object_class=oc, name=name, team=team, kind=kind, creation_cost=Decimal("1"))
+            for name, team, kind in (
+                ("procedural ottoman", None, "procedural"),
+                ("pouf", team_a, "mesh"),
+                ("stool", team_b, "mesh"),
+            )
+        ]
         with pytest.raises(IntegrityError), transaction.atomic():  # the old rule: one name per class, every team
             asset_model.objects.create(object_class=oc, name="pouf", team=team_b, kind="mesh")
 
@@ -159,7 +181,8 @@ def test_the_migration_keeps_existing_assets_and_frees_names_across_teams(django
         executor.migrate([after])
         new = executor.loader.project_state([after]).apps.get_model("campaigns", "Asset")
         assert sorted(new.objects.values_list("pk", "name", "team_id")) == sorted(
-            (r.pk, r.name, r.team_id) for r in rows)
+            (r.pk, r.name, r.team_id) for r in rows
+        )
         new.objects.create(object_class_id=oc.pk, name="pouf", team_id=team_b.pk, kind="mesh")
         with pytest.raises(IntegrityError), transaction.atomic():
             new.objects.create(object_class_id=oc.pk, name="pouf", team_id=team_b.pk, kind="mesh")
@@ -176,8 +199,16 @@ def test_files_of_refused_uploads_never_stay(client, world, media_root, no_previ
     assert len(kept) == 1
     assert _upload(client, world.team, "pouf").status_code == 400
     assert _upload(client, world.team, "procedural ottoman").status_code == 400
-    bad = client.post(reverse("campaigns:assets"), {
-        "name": "noise", "team": world.team.pk, "object_class": "ottoman", "unit": "m", "creation_cost": "3",
-        "mesh": SimpleUploadedFile("noise.obj", b"\x89PNG\r\n\x1a\n" + bytes(range(256)) * 4)})
+    bad = client.post(
+        reverse("campaigns:assets"),
+        {
+            "name": "noise",
+            "team": world.team.pk,
+            "object_class": "ottoman",
+            "unit": "m",
+            "creation_cost": "3",
+            "mesh": SimpleUploadedFile("noise.obj", b"\x89PNG\r\n\x1a\n" + bytes(range(256)) * 4),
+        },
+    )
     assert bad.status_code == 400 and "not a mesh file" in bad.context["form"].errors["mesh"][0]
     assert _mesh_files(media_root) == kept

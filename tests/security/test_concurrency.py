@@ -41,9 +41,27 @@ TINY_BUDGET = {
     "variation": {"layouts": 1000, "lighting_per_layout": 1, "views_per_lighting": 2},
 }
 # A 0.5 m box as OBJ text: a mesh the upload check accepts.
-CUBE_OBJ = ("\n".join(["# a 0.5 m box"] + [f"v {x} {y} {z}" for x in (0, .5) for y in (0, .5) for z in (0, .5)] + [
-    "f 1 2 4", "f 1 4 3", "f 5 7 8", "f 5 8 6", "f 1 5 6", "f 1 6 2", "f 3 4 8", "f 3 8 7", "f 1 3 7", "f 1 7 5",
-    "f 2 6 8", "f 2 8 4"]) + "\n").encode()
+CUBE_OBJ = (
+    "\n".join(
+        ["# a 0.5 m box"]
+        + [f"v {x} {y} {z}" for x in (0, 0.5) for y in (0, 0.5) for z in (0, 0.5)]
+        + [
+            "f 1 2 4",
+            "f 1 4 3",
+            "f 5 7 8",
+            "f 5 8 6",
+            "f 1 5 6",
+            "f 1 6 2",
+            "f 3 4 8",
+            "f 3 8 7",
+            "f 1 3 7",
+            "f 1 7 5",
+            "f 2 6 8",
+            "f 2 8 4",
+        ]
+    )
+    + "\n"
+).encode()
 CAMPAIGN_TAKEN = "already has a campaign called"
 ASSET_TAKEN = "ottoman asset called"
 
@@ -96,9 +114,20 @@ def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
     from render.budget import DEFAULT_BUDGET, FIELDS
 
     data: dict[str, Any] = {
-        "name": name, "team": team_pk, "description": "", "seed": 5, "cost_budget": "50",
-        "price_per_cpu_hour": "0.05", "setup_cost": "1", "manual_labelling_rate_per_hour": "12", "weight": 1,
-        "max_attempts": 3, "q_chair_target": 6, "q_ottoman_target": 0, "save": "1"}
+        "name": name,
+        "team": team_pk,
+        "description": "",
+        "seed": 5,
+        "cost_budget": "50",
+        "price_per_cpu_hour": "0.05",
+        "setup_cost": "1",
+        "manual_labelling_rate_per_hour": "12",
+        "weight": 1,
+        "max_attempts": 3,
+        "q_chair_target": 6,
+        "q_ottoman_target": 0,
+        "save": "1",
+    }
     merged = {k: {**v, **TINY_BUDGET.get(k, {})} for k, v in DEFAULT_BUDGET.items()}
     for f in FIELDS:
         value = merged[f.section][f.name]
@@ -143,8 +172,7 @@ def rival_after_name_check(*, table: str, name: str, make_rival: Callable[[], No
 
     def wrapper(execute: Callable[..., Any], sql: str, params: Any, many: bool, context: dict[str, Any]) -> Any:
         result = execute(sql, params, many, context)
-        if (not fired and sql.lstrip().upper().startswith("SELECT") and f'"{table}"' in sql
-                and name in (params or ())):
+        if not fired and sql.lstrip().upper().startswith("SELECT") and f'"{table}"' in sql and name in (params or ()):
             fired.append(sql)
             make_rival()
         return result
@@ -157,8 +185,19 @@ def _rival_campaign(world: World, name: str) -> Callable[[], None]:
     def make() -> None:
         from campaigns.models import Campaign
 
-        Campaign.objects.bulk_create([Campaign(name=name, team=world.team, owner=world.planner, budget={},
-                                               cost_budget=Decimal("1"), price_per_cpu_hour=Decimal("0"))])
+        Campaign.objects.bulk_create(
+            [
+                Campaign(
+                    name=name,
+                    team=world.team,
+                    owner=world.planner,
+                    budget={},
+                    cost_budget=Decimal("1"),
+                    price_per_cpu_hour=Decimal("0"),
+                )
+            ]
+        )
+
     return make
 
 
@@ -166,8 +205,18 @@ def _rival_asset(world: World, name: str) -> Callable[[], None]:
     def make() -> None:
         from campaigns.models import Asset, ObjectClass
 
-        Asset.objects.bulk_create([Asset(object_class=ObjectClass.objects.get(name="ottoman"), name=name,
-                                         kind=Asset.Kind.MESH, mesh_file="assets/meshes/rival.obj", team=world.team)])
+        Asset.objects.bulk_create(
+            [
+                Asset(
+                    object_class=ObjectClass.objects.get(name="ottoman"),
+                    name=name,
+                    kind=Asset.Kind.MESH,
+                    mesh_file="assets/meshes/rival.obj",
+                    team=world.team,
+                )
+            ]
+        )
+
     return make
 
 
@@ -195,12 +244,19 @@ def test_a_campaign_name_taken_after_the_check_gets_the_form_error(client, world
 def test_a_rename_to_a_name_taken_after_the_check_gets_the_form_error(client, world):
     from campaigns import services
 
-    draft = services.create_campaign(owner=world.planner, team=world.team, name="First name",
-                                     quotas=[services.QuotaInput("chair", 3)], budget=TINY_BUDGET,
-                                     cost_budget=Decimal("50"), price_per_cpu_hour=Decimal("0.05"))
+    draft = services.create_campaign(
+        owner=world.planner,
+        team=world.team,
+        name="First name",
+        quotas=[services.QuotaInput("chair", 3)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("50"),
+        price_per_cpu_hour=Decimal("0.05"),
+    )
     client.force_login(world.planner)
-    with rival_after_name_check(table="campaigns_campaign", name="Wanted",
-                                make_rival=_rival_campaign(world, "Wanted")) as fired:
+    with rival_after_name_check(
+        table="campaigns_campaign", name="Wanted", make_rival=_rival_campaign(world, "Wanted")
+    ) as fired:
         response = client.post(reverse("campaigns:edit", args=[draft.pk]), _plan_data(world.team.pk, "Wanted"))
     assert fired, "the name check did not run"
     assert response.status_code == 400
@@ -210,16 +266,18 @@ def test_a_rename_to_a_name_taken_after_the_check_gets_the_form_error(client, wo
     assert list(draft.quotas.values_list("object_class__name", "target_accepted")) == [("chair", 3)]
 
 
-def test_an_asset_name_taken_after_the_check_gets_the_form_error_and_leaves_no_file(client, world, media_root,
-                                                                                     no_preview):
+def test_an_asset_name_taken_after_the_check_gets_the_form_error_and_leaves_no_file(
+    client, world, media_root, no_preview
+):
     from django.core.files.uploadedfile import SimpleUploadedFile
 
     from campaigns.models import Asset
 
     client.force_login(world.planner)
     data = {**_upload_data(world.team.pk, "footstool"), "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ)}
-    with rival_after_name_check(table="campaigns_asset", name="footstool",
-                                make_rival=_rival_asset(world, "footstool")) as fired:
+    with rival_after_name_check(
+        table="campaigns_asset", name="footstool", make_rival=_rival_asset(world, "footstool")
+    ) as fired:
         response = client.post(reverse("campaigns:assets"), data)
     assert fired, "the name check did not run"
     assert response.status_code == 400
@@ -228,8 +286,10 @@ def test_an_asset_name_taken_after_the_check_gets_the_form_error_and_leaves_no_f
     assert Asset.objects.filter(name="footstool").count() == 1
     assert _mesh_files(media_root) == []
     assert not any((media_root / "assets").glob("[0-9]*")), "no info folder for an asset that was not made"
-    again = client.post(reverse("campaigns:assets"), {**_upload_data(world.team.pk, "footstool"),
-                                                      "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ)})
+    again = client.post(
+        reverse("campaigns:assets"),
+        {**_upload_data(world.team.pk, "footstool"), "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ)},
+    )
     assert again.status_code == 400 and again.context["form"].errors["name"] == late_error
     assert _mesh_files(media_root) == []
 
@@ -239,9 +299,15 @@ def test_a_cost_budget_the_service_refuses_is_a_form_error_not_a_500(client, wor
     from campaigns import services
     from campaigns.models import Campaign
 
-    campaign = services.create_campaign(owner=world.planner, team=world.team, name="Started",
-                                        quotas=[services.QuotaInput("chair", 3)], budget=TINY_BUDGET,
-                                        cost_budget=Decimal("50"), price_per_cpu_hour=Decimal("0.05"))
+    campaign = services.create_campaign(
+        owner=world.planner,
+        team=world.team,
+        name="Started",
+        quotas=[services.QuotaInput("chair", 3)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("50"),
+        price_per_cpu_hour=Decimal("0.05"),
+    )
     Campaign.objects.filter(pk=campaign.pk).update(status=Campaign.Status.PAUSED)
     client.force_login(world.planner)
     response = client.post(reverse("campaigns:edit", args=[campaign.pk]), {"cost_budget": "999999999999.99"})
@@ -256,22 +322,35 @@ def test_nul_characters_in_names_and_filters_are_refused_not_a_server_error(clie
     from campaigns import services
     from campaigns.models import Campaign
 
-    campaign = services.create_campaign(owner=world.planner, team=world.team, name="Filters",
-                                        quotas=[services.QuotaInput("chair", 3)], budget=TINY_BUDGET,
-                                        cost_budget=Decimal("50"), price_per_cpu_hour=Decimal("0.05"))
+    campaign = services.create_campaign(
+        owner=world.planner,
+        team=world.team,
+        name="Filters",
+        quotas=[services.QuotaInput("chair", 3)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("50"),
+        price_per_cpu_hour=Decimal("0.05"),
+    )
     client.force_login(world.planner)
     gallery = client.get(reverse("campaigns:gallery", args=[campaign.pk]), {"class": "ch\x00air"})
     assert gallery.status_code == 200 and gallery.context["class_name"] == ""
     failed = client.get(reverse("campaigns:failed", args=[campaign.pk]), {"kind": "Layout\x00Error"})
     assert failed.status_code == 200 and not failed.context["rows"]
     for action in ("retry", "ignore"):
-        response = client.post(reverse("campaigns:failed-action", args=[campaign.pk, action]),
-                               {"kind": "Layout\x00Error"})
+        response = client.post(
+            reverse("campaigns:failed-action", args=[campaign.pk, action]), {"kind": "Layout\x00Error"}
+        )
         assert response.status_code == 302
     with pytest.raises(services.CampaignError) as refused:
-        services.create_campaign(owner=world.planner, team=world.team, name="NUL class",
-                                 quotas=[services.QuotaInput("ch\x00air", 3)], budget=TINY_BUDGET,
-                                 cost_budget=Decimal("50"), price_per_cpu_hour=Decimal("0.05"))
+        services.create_campaign(
+            owner=world.planner,
+            team=world.team,
+            name="NUL class",
+            quotas=[services.QuotaInput("ch\x00air", 3)],
+            budget=TINY_BUDGET,
+            cost_budget=Decimal("50"),
+            price_per_cpu_hour=Decimal("0.05"),
+        )
     assert refused.value.field == "quota" and "unknown object class" in refused.value.message
     assert not Campaign.objects.filter(name="NUL class").exists()
 
@@ -299,8 +378,9 @@ def _send(url: str, *, cookie: str, body: bytes | None = None, content_type: str
     opener = urllib.request.build_opener(_NoRedirect)
     try:
         with opener.open(request, timeout=180) as response:
-            return Reply(response.status, response.read().decode("utf-8", "replace"),
-                         response.headers.get("Location", ""))
+            return Reply(
+                response.status, response.read().decode("utf-8", "replace"), response.headers.get("Location", "")
+            )
     except urllib.error.HTTPError as exc:
         return Reply(exc.code, exc.read().decode("utf-8", "replace"), exc.headers.get("Location", ""))
 
@@ -331,8 +411,9 @@ class Visitor:
 
     def post_form(self, path: str, data: dict[str, Any]) -> Reply:
         body = urllib.parse.urlencode({**data, "csrfmiddlewaretoken": self.token}, doseq=True).encode()
-        return _send(self.base_url + path, cookie=self.cookie, body=body,
-                     content_type="application/x-www-form-urlencoded")
+        return _send(
+            self.base_url + path, cookie=self.cookie, body=body, content_type="application/x-www-form-urlencoded"
+        )
 
     def post_multipart(self, path: str, data: dict[str, Any], files: dict[str, tuple[str, bytes]]) -> Reply:
         boundary = uuid.uuid4().hex
@@ -340,11 +421,19 @@ class Visitor:
         for key, value in {**data, "csrfmiddlewaretoken": self.token}.items():
             parts.append(f'--{boundary}\r\nContent-Disposition: form-data; name="{key}"\r\n\r\n{value}\r\n'.encode())
         for key, (filename, content) in files.items():
-            parts.append(f'--{boundary}\r\nContent-Disposition: form-data; name="{key}"; filename="{filename}"\r\n'
-                         f"Content-Type: application/octet-stream\r\n\r\n".encode() + content + b"\r\n")
+            parts.append(
+                f'--{boundary}\r\nContent-Disposition: form-data; name="{key}"; filename="{filename}"\r\n'
+                f"Content-Type: application/octet-stream\r\n\r\n".encode()
+                + content
+                + b"\r\n"
+            )
         parts.append(f"--{boundary}--\r\n".encode())
-        return _send(self.base_url + path, cookie=self.cookie, body=b"".join(parts),
-                     content_type=f"multipart/form-data; boundary={boundary}")
+        return _send(
+            self.base_url + path,
+            cookie=self.cookie,
+            body=b"".join(parts),
+            content_type=f"multipart/form-data; boundary={boundary}",
+        )
 
 
 def _all_at_once(count: int, send: Callable[[int], Reply]) -> list[Reply]:
@@ -378,8 +467,9 @@ def test_simultaneous_creates_with_one_name_make_one_campaign(live_server, live_
     visitor.open_form(path)
     for round_no in range(CAMPAIGN_ROUNDS):
         name = f"Race {round_no}"
-        replies = _all_at_once(THREADS, lambda i, name=name: visitor.post_form(path, _plan_data(live_world.team.pk,
-                                                                                                 name)))
+        replies = _all_at_once(
+            THREADS, lambda i, name=name: visitor.post_form(path, _plan_data(live_world.team.pk, name))
+        )
         made = Campaign.objects.filter(team=live_world.team, name=name)
         assert made.count() == 1
         detail = reverse("campaigns:detail", args=[made.get().pk])
@@ -389,8 +479,9 @@ def test_simultaneous_creates_with_one_name_make_one_campaign(live_server, live_
     assert ClassQuota.objects.count() == CAMPAIGN_ROUNDS
 
 
-def test_simultaneous_uploads_with_one_name_make_one_asset_and_leave_no_file(live_server, live_world, media_root,
-                                                                            no_preview):
+def test_simultaneous_uploads_with_one_name_make_one_asset_and_leave_no_file(
+    live_server, live_world, media_root, no_preview
+):
     from campaigns.models import Asset
 
     visitor = Visitor(live_server.url, live_world.planner)
@@ -398,8 +489,12 @@ def test_simultaneous_uploads_with_one_name_make_one_asset_and_leave_no_file(liv
     visitor.open_form(path)
     for round_no in range(UPLOAD_ROUNDS):
         name = f"pouf {round_no}"
-        replies = _all_at_once(THREADS, lambda i, name=name: visitor.post_multipart(
-            path, _upload_data(live_world.team.pk, name), {"mesh": (f"box{i}.obj", CUBE_OBJ)}))
+        replies = _all_at_once(
+            THREADS,
+            lambda i, name=name: visitor.post_multipart(
+                path, _upload_data(live_world.team.pk, name), {"mesh": (f"box{i}.obj", CUBE_OBJ)}
+            ),
+        )
         _assert_one_winner(replies, taken=ASSET_TAKEN, success_path=lambda p: p == path)
         assert Asset.objects.filter(name=name).count() == 1
     meshes = Asset.objects.filter(kind=Asset.Kind.MESH)

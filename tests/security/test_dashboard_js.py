@@ -20,9 +20,11 @@ pytestmark = pytest.mark.browser
 
 # At most 64 characters (ObjectClass.name's column).
 CLASS_NAME = "c\"]'\\</script><b>b</b>&amp;<img src=x onerror=__pwned=1>"
-CAMPAIGN_NAME = ("Camp \"double\" 'single' \\back </script><script>window.__pwned=2</script> <b>bold</b> & "
-                 "<img src=x onerror=\"window.__pwned=3\">")
-ASSET_NAME = "stool \"x\" 'y' \\z </script><img src=x onerror=\"window.__pwned=4\"> <i>it</i> &lt;"
+CAMPAIGN_NAME = (
+    "Camp \"double\" 'single' \\back </script><script>window.__pwned=2</script> <b>bold</b> & "
+    '<img src=x onerror="window.__pwned=3">'
+)
+ASSET_NAME = 'stool "x" \'y\' \\z </script><img src=x onerror="window.__pwned=4"> <i>it</i> &lt;'
 TINY_BUDGET = {"render": {"width_px": 64, "height_px": 48, "spp": 4, "max_depth": 3}}
 
 
@@ -41,9 +43,15 @@ def odd_world(transactional_db, django_user_model) -> dict[str, Any]:
     services.ensure_procedural_asset(object_class=odd, name=ASSET_NAME, creation_cost="1")
     Asset.objects.create(object_class=odd, name=ASSET_NAME, kind=Asset.Kind.MESH, team=team)
     campaign = services.create_campaign(
-        owner=planner, team=team, name=CAMPAIGN_NAME, description=CAMPAIGN_NAME,
-        quotas=[services.QuotaInput(CLASS_NAME, 5), services.QuotaInput("chair", 3)], budget=TINY_BUDGET,
-        cost_budget=Decimal("100"), price_per_cpu_hour=Decimal("0.05"))
+        owner=planner,
+        team=team,
+        name=CAMPAIGN_NAME,
+        description=CAMPAIGN_NAME,
+        quotas=[services.QuotaInput(CLASS_NAME, 5), services.QuotaInput("chair", 3)],
+        budget=TINY_BUDGET,
+        cost_budget=Decimal("100"),
+        price_per_cpu_hour=Decimal("0.05"),
+    )
     return {"team": team, "planner": planner, "campaign": campaign, "class": odd}
 
 
@@ -64,8 +72,14 @@ def browser_page(live_server, odd_world, chromium_context) -> tuple[Any, list[st
     page = chromium_context.new_page()
     page.on("pageerror", lambda exc: problems.append(f"page error: {exc}"))
     page.on("dialog", lambda dialog: (problems.append(f"dialog: {dialog.message}"), dialog.dismiss()))
-    page.on("console", lambda msg: problems.append(f"console {msg.type}: {msg.text}")
-            if msg.type == "error" and "Failed to load resource" not in msg.text else None)
+    page.on(
+        "console",
+        lambda msg: (
+            problems.append(f"console {msg.type}: {msg.text}")
+            if msg.type == "error" and "Failed to load resource" not in msg.text
+            else None
+        ),
+    )
     return page, problems
 
 
@@ -109,19 +123,21 @@ def test_list_page_polls_with_odd_names(browser_page, live_server, odd_world, wa
     _no_injection(page, problems)
 
 
-def test_planner_estimate_follows_a_target_for_an_oddly_named_class(browser_page, live_server, odd_world,
-                                                                     wait_until):
+def test_planner_estimate_follows_a_target_for_an_oddly_named_class(browser_page, live_server, odd_world, wait_until):
     page, problems = browser_page
     for url in (reverse("campaigns:create"), reverse("campaigns:edit", args=[odd_world["campaign"].pk])):
         page.goto(live_server.url + url)
         labels = page.locator(".quota-table tbody th label").all_text_contents()
         assert CLASS_NAME in labels
         # Type a target for the odd class (its input's name holds the class name as it is).
-        page.evaluate("""(name) => {
+        page.evaluate(
+            """(name) => {
             const input = document.getElementsByName(name)[0];
             input.value = "7";
             input.dispatchEvent(new Event("input", {bubbles: true}));
-        }""", f"q_{CLASS_NAME}_target")
+        }""",
+            f"q_{CLASS_NAME}_target",
+        )
         page.wait_for_selector("#estimate .estimate-body:not([hidden])")
         wait_until(lambda: (page.text_content("[data-est=frames]") or "").strip().isdigit(), 20, "the estimate")
         assert page.locator("[data-est=verdict] .pill").count() == 1
@@ -135,8 +151,10 @@ def test_every_page_shows_odd_names_as_text(browser_page, live_server, odd_world
     page.goto(live_server.url + reverse("campaigns:assets"))
     names = page.locator(".assets-table tbody tr td strong").all_text_contents()
     assert names.count(ASSET_NAME) == 2  # the shared generator and the team's upload
-    for url in (reverse("campaigns:gallery", args=[campaign.pk]) + "?" + urlencode({"class": CLASS_NAME}),
-                reverse("campaigns:failed", args=[campaign.pk])):
+    for url in (
+        reverse("campaigns:gallery", args=[campaign.pk]) + "?" + urlencode({"class": CLASS_NAME}),
+        reverse("campaigns:failed", args=[campaign.pk]),
+    ):
         page.goto(live_server.url + url)
         assert page.text_content("h1").startswith(CAMPAIGN_NAME)
     options = page.goto(live_server.url + reverse("campaigns:gallery", args=[campaign.pk]))

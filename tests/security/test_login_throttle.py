@@ -34,8 +34,9 @@ def throttle(settings):
 
 @pytest.fixture
 def people(django_user_model):
-    return {name: django_user_model.objects.create_user(name, password=PASSWORD, is_staff=True)
-            for name in ("pia", "ada")}
+    return {
+        name: django_user_model.objects.create_user(name, password=PASSWORD, is_staff=True) for name in ("pia", "ada")
+    }
 
 
 def _sign_in(client: Client, username: str, password: str, *, url: str | None = None):
@@ -112,8 +113,9 @@ def test_lockout_answers_4xx_for_odd_clients(people):
         response = _sign_in(client, "pia", "wrong-password")
         assert response.status_code in (200, 429)
     assert response.status_code == 429
-    ajax = client.post(reverse("login"), {"username": "pia", "password": PASSWORD},
-                       HTTP_X_REQUESTED_WITH="XMLHttpRequest")
+    ajax = client.post(
+        reverse("login"), {"username": "pia", "password": PASSWORD}, HTTP_X_REQUESTED_WITH="XMLHttpRequest"
+    )
     assert ajax.status_code == 429
     # Not even a user name: the form refuses it before anything is counted.
     assert _sign_in(Client(raise_request_exception=False), "", "").status_code == 200
@@ -152,29 +154,40 @@ def test_test_client_login_passes_a_request(people):
 
 
 def _settings_in_subprocess(**env: str) -> subprocess.CompletedProcess:
-    code = ("import evenframe.settings as s; "
-            "print(s.AXES_FAILURE_LIMIT, s.AXES_COOLOFF_TIME.total_seconds(), s.AXES_LOCKOUT_PARAMETERS)")
+    code = (
+        "import evenframe.settings as s; "
+        "print(s.AXES_FAILURE_LIMIT, s.AXES_COOLOFF_TIME.total_seconds(), s.AXES_LOCKOUT_PARAMETERS)"
+    )
     clean = {k: v for k, v in os.environ.items() if not k.startswith("EVENFRAME_LOGIN_")}
-    return subprocess.run([sys.executable, "-c", code], cwd=ROOT, env={**clean, **env}, capture_output=True,
-                          text=True, timeout=60)
+    return subprocess.run(
+        [sys.executable, "-c", code], cwd=ROOT, env={**clean, **env}, capture_output=True, text=True, timeout=60
+    )
 
 
 def test_settings_come_from_the_environment():
     default = _settings_in_subprocess()
     assert default.returncode == 0, default.stderr
     assert default.stdout.split(maxsplit=2) == ["5", "900.0", "[['username', 'ip_address']]\n"]
-    chosen = _settings_in_subprocess(EVENFRAME_LOGIN_FAILURE_LIMIT="3", EVENFRAME_LOGIN_COOLOFF_MINUTES="2.5",
-                                     EVENFRAME_LOGIN_LOCKOUT_BY="ip")
+    chosen = _settings_in_subprocess(
+        EVENFRAME_LOGIN_FAILURE_LIMIT="3", EVENFRAME_LOGIN_COOLOFF_MINUTES="2.5", EVENFRAME_LOGIN_LOCKOUT_BY="ip"
+    )
     assert chosen.returncode == 0, chosen.stderr
     assert chosen.stdout.split(maxsplit=2) == ["3", "150.0", "['ip_address']\n"]
 
 
-@pytest.mark.parametrize(("name", "value", "message"), [
-    ("EVENFRAME_LOGIN_FAILURE_LIMIT", "0", "EVENFRAME_LOGIN_FAILURE_LIMIT must be at least 1"),
-    ("EVENFRAME_LOGIN_FAILURE_LIMIT", "five", "EVENFRAME_LOGIN_FAILURE_LIMIT must be a whole number"),
-    ("EVENFRAME_LOGIN_COOLOFF_MINUTES", "nan", "EVENFRAME_LOGIN_COOLOFF_MINUTES must be at least 0.1"),
-    ("EVENFRAME_LOGIN_LOCKOUT_BY", "cookie", "EVENFRAME_LOGIN_LOCKOUT_BY must be one of user-and-ip, ip, user-or-ip"),
-])
+@pytest.mark.parametrize(
+    ("name", "value", "message"),
+    [
+        ("EVENFRAME_LOGIN_FAILURE_LIMIT", "0", "EVENFRAME_LOGIN_FAILURE_LIMIT must be at least 1"),
+        ("EVENFRAME_LOGIN_FAILURE_LIMIT", "five", "EVENFRAME_LOGIN_FAILURE_LIMIT must be a whole number"),
+        ("EVENFRAME_LOGIN_COOLOFF_MINUTES", "nan", "EVENFRAME_LOGIN_COOLOFF_MINUTES must be at least 0.1"),
+        (
+            "EVENFRAME_LOGIN_LOCKOUT_BY",
+            "cookie",
+            "EVENFRAME_LOGIN_LOCKOUT_BY must be one of user-and-ip, ip, user-or-ip",
+        ),
+    ],
+)
 def test_bad_settings_stop_the_start_with_a_clear_message(name, value, message):
     result = _settings_in_subprocess(**{name: value})
     assert result.returncode != 0

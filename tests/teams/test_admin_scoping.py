@@ -23,12 +23,15 @@ def setup(django_user_model):
     owner_b = django_user_model.objects.create_user("owner-b", password="pw-123-long")
     Membership.objects.create(team=b, user=owner_b, role="admin")
     quota = [services.QuotaInput(class_name="chair", target_accepted=3)]
-    mine = services.create_campaign(owner=staff, team=a, name="alpha-campaign", quotas=quota, cost_budget=10,
-                                    price_per_cpu_hour=1)
-    theirs = services.create_campaign(owner=owner_b, team=b, name="bravo-secret", quotas=quota, cost_budget=10,
-                                      price_per_cpu_hour=1)
-    frame = Frame.objects.create(campaign=theirs, index=0, seed=1, layout_index=0, lighting_index=0, view_index=0,
-                                 composition={"chair": 1})
+    mine = services.create_campaign(
+        owner=staff, team=a, name="alpha-campaign", quotas=quota, cost_budget=10, price_per_cpu_hour=1
+    )
+    theirs = services.create_campaign(
+        owner=owner_b, team=b, name="bravo-secret", quotas=quota, cost_budget=10, price_per_cpu_hour=1
+    )
+    frame = Frame.objects.create(
+        campaign=theirs, index=0, seed=1, layout_index=0, lighting_index=0, view_index=0, composition={"chair": 1}
+    )
     return staff, mine, theirs, frame
 
 
@@ -44,8 +47,10 @@ def test_campaign_changelist_shows_only_own_team(client, setup):
 def test_other_teams_rows_are_not_reachable(client, setup):
     staff, _, theirs, frame = setup
     client.force_login(staff)
-    for url in (reverse("admin:campaigns_campaign_change", args=[theirs.pk]),
-                reverse("admin:campaigns_frame_change", args=[frame.pk])):
+    for url in (
+        reverse("admin:campaigns_campaign_change", args=[theirs.pk]),
+        reverse("admin:campaigns_frame_change", args=[frame.pk]),
+    ):
         response = client.get(url, follow=True)
         assert b"bravo-secret" not in response.content
         assert response.redirect_chain or response.status_code == 404

@@ -24,20 +24,41 @@ pytestmark = pytest.mark.django_db
 
 
 def test_team_paths_of_every_model():
-    assert {model: team_path(model) for model in (
-        Team, Membership, get_user_model(), Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass,
-    )} == {
-        Team: "pk", Membership: "team", get_user_model(): "memberships__team", Asset: "team", Campaign: "team",
-        ClassQuota: "campaign__team", Frame: "campaign__team", FrameEvent: "campaign__team",
-        Instance: "campaign__team", ObjectClass: None,
+    assert {
+        model: team_path(model)
+        for model in (
+            Team,
+            Membership,
+            get_user_model(),
+            Asset,
+            Campaign,
+            ClassQuota,
+            Frame,
+            FrameEvent,
+            Instance,
+            ObjectClass,
+        )
+    } == {
+        Team: "pk",
+        Membership: "team",
+        get_user_model(): "memberships__team",
+        Asset: "team",
+        Campaign: "team",
+        ClassQuota: "campaign__team",
+        Frame: "campaign__team",
+        FrameEvent: "campaign__team",
+        Instance: "campaign__team",
+        ObjectClass: None,
     }
 
 
 @pytest.fixture
 def people(django_user_model):
     a, b = Team.objects.create(name="A"), Team.objects.create(name="B")
-    users = {name: django_user_model.objects.create_user(name, password="pw-123-long")
-             for name in ("viewer", "planner", "admin", "outsider", "newcomer")}
+    users = {
+        name: django_user_model.objects.create_user(name, password="pw-123-long")
+        for name in ("viewer", "planner", "admin", "outsider", "newcomer")
+    }
     for role in ("viewer", "planner", "admin"):
         Membership.objects.create(team=a, user=users[role], role=role)
     Membership.objects.create(team=b, user=users["outsider"], role="admin")
@@ -66,15 +87,18 @@ def test_only_team_admins_manage_members_and_never_their_own_membership(people):
     own = Membership.objects.get(team=a, user=users["admin"])
     planner = Membership.objects.get(team=a, user=users["planner"])
     assert membership_change_errors(user=users["admin"], team=a, member=users["newcomer"], role=ADMIN) == {}
-    assert membership_change_errors(user=users["admin"], team=a, member=users["planner"], role=VIEWER,
-                                    current=planner) == {}
-    assert set(membership_change_errors(user=users["admin"], team=a, member=users["admin"], role=VIEWER,
-                                        current=own)) == {"user"}
-    assert set(membership_change_errors(user=users["admin"], team=b, member=users["newcomer"], role=VIEWER)) == {
-        "team"}
+    assert (
+        membership_change_errors(user=users["admin"], team=a, member=users["planner"], role=VIEWER, current=planner)
+        == {}
+    )
+    assert set(
+        membership_change_errors(user=users["admin"], team=a, member=users["admin"], role=VIEWER, current=own)
+    ) == {"user"}
+    assert set(membership_change_errors(user=users["admin"], team=b, member=users["newcomer"], role=VIEWER)) == {"team"}
     # Moving a membership of A into B needs admin rights in both.
-    assert set(membership_change_errors(user=users["outsider"], team=b, member=users["planner"], role=VIEWER,
-                                        current=planner)) == {"team"}
+    assert set(
+        membership_change_errors(user=users["outsider"], team=b, member=users["planner"], role=VIEWER, current=planner)
+    ) == {"team"}
     assert membership_change_errors(user=users["root"], team=b, member=users["root"], role=ADMIN) == {}
     assert may_change_membership(user=users["admin"], membership=planner)
     assert not may_change_membership(user=users["admin"], membership=own)
@@ -87,6 +111,5 @@ def test_nobody_grants_a_role_above_their_own(people):
     a, _, users = people
     errors = membership_change_errors(user=users["planner"], team=a, member=users["newcomer"], role=ADMIN)
     assert errors["role"] == "You cannot grant a role above your own (planner)."
-    assert "role" not in membership_change_errors(user=users["planner"], team=a, member=users["newcomer"],
-                                                  role=PLANNER)
+    assert "role" not in membership_change_errors(user=users["planner"], team=a, member=users["newcomer"], role=PLANNER)
     assert "role" in membership_change_errors(user=users["viewer"], team=a, member=users["newcomer"], role=PLANNER)

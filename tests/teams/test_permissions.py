@@ -26,8 +26,10 @@ pytestmark = pytest.mark.django_db
 def people(django_user_model):
     team = Team.objects.create(name="Team A")
     other = Team.objects.create(name="Team B")
-    users = {name: django_user_model.objects.create_user(name, password="pw-123-long")
-             for name in ("viewer", "planner", "admin", "outsider")}
+    users = {
+        name: django_user_model.objects.create_user(name, password="pw-123-long")
+        for name in ("viewer", "planner", "admin", "outsider")
+    }
     for name in ("viewer", "planner", "admin"):
         Membership.objects.create(team=team, user=users[name], role=name)
     Membership.objects.create(team=other, user=users["outsider"], role="admin")
@@ -36,8 +38,14 @@ def people(django_user_model):
 
 def _campaign(team, owner):
     services.ensure_object_class(name="chair")
-    return services.create_campaign(owner=owner, team=team, name=f"c-{team.pk}", quotas=[
-        services.QuotaInput(class_name="chair", target_accepted=5)], cost_budget=100, price_per_cpu_hour=1)
+    return services.create_campaign(
+        owner=owner,
+        team=team,
+        name=f"c-{team.pk}",
+        quotas=[services.QuotaInput(class_name="chair", target_accepted=5)],
+        cost_budget=100,
+        price_per_cpu_hour=1,
+    )
 
 
 def test_roles_are_ordered(people):
@@ -69,16 +77,28 @@ def test_viewer_cannot_create_campaigns_in_the_team(people):
     team, _, users = people
     services.ensure_object_class(name="chair")
     with pytest.raises(services.CampaignError, match="not a planner"):
-        services.create_campaign(owner=users["viewer"], team=team, name="x", quotas=[
-            services.QuotaInput(class_name="chair", target_accepted=5)], cost_budget=100, price_per_cpu_hour=1)
+        services.create_campaign(
+            owner=users["viewer"],
+            team=team,
+            name="x",
+            quotas=[services.QuotaInput(class_name="chair", target_accepted=5)],
+            cost_budget=100,
+            price_per_cpu_hour=1,
+        )
     assert not Campaign.objects.exists()
 
 
 def test_same_name_allowed_in_two_teams_but_not_twice_in_one(people):
     team, other, users = people
     _campaign(team, users["planner"])
-    services.create_campaign(owner=users["outsider"], team=other, name=f"c-{team.pk}", quotas=[
-        services.QuotaInput(class_name="chair", target_accepted=5)], cost_budget=100, price_per_cpu_hour=1)
+    services.create_campaign(
+        owner=users["outsider"],
+        team=other,
+        name=f"c-{team.pk}",
+        quotas=[services.QuotaInput(class_name="chair", target_accepted=5)],
+        cost_budget=100,
+        price_per_cpu_hour=1,
+    )
     with pytest.raises(services.CampaignError, match="already has a campaign"):
         _campaign(team, users["admin"])
 

@@ -39,8 +39,13 @@ def test_a_campaign_without_a_team_lands_in_the_owners_own_team(django_user_mode
 
     services.ensure_object_class(name="chair")
     mallory = django_user_model.objects.create_user("mallory", password="pw-mallory-123")
-    campaign = services.create_campaign(owner=mallory, name="mine", cost_budget=100, price_per_cpu_hour=1,
-                                        quotas=[services.QuotaInput(class_name="chair", target_accepted=5)])
+    campaign = services.create_campaign(
+        owner=mallory,
+        name="mine",
+        cost_budget=100,
+        price_per_cpu_hour=1,
+        quotas=[services.QuotaInput(class_name="chair", target_accepted=5)],
+    )
     assert campaign.team.personal_owner == mallory
     assert not alices_team.campaigns.exists()
 

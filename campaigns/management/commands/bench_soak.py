@@ -70,8 +70,12 @@ class Command(BaseCommand):
         parser.add_argument("--width", type=int, default=64)
         parser.add_argument("--height", type=int, default=48)
         parser.add_argument("--spp", type=int, default=2)
-        parser.add_argument("--kill-interval-s", type=float, default=20.0,
-                            help="Mean time between kill -9 of a random worker (exponential); 0 = no kills")
+        parser.add_argument(
+            "--kill-interval-s",
+            type=float,
+            default=20.0,
+            help="Mean time between kill -9 of a random worker (exponential); 0 = no kills",
+        )
         parser.add_argument("--crash-fraction", type=float, default=0.02, help="Share of frames that always raise")
         parser.add_argument("--abort-fraction", type=float, default=0.01, help="Share of frames that always abort")
         parser.add_argument("--transient-p", type=float, default=0.05, help="Probability an attempt fails once")
@@ -91,8 +95,12 @@ class Command(BaseCommand):
     # folder needs a fresh process.
     def _reexec(self, options: dict) -> None:
         data_dir = options["data_dir"] or tempfile.mkdtemp(prefix="evenframe-soak-")
-        env = {**os.environ, "EVENFRAME_DATA_DIR": data_dir, CHILD_ENV: data_dir,
-               "EVENFRAME_MEDIA_ROOT": str(Path(data_dir) / "media")}
+        env = {
+            **os.environ,
+            "EVENFRAME_DATA_DIR": data_dir,
+            CHILD_ENV: data_dir,
+            "EVENFRAME_MEDIA_ROOT": str(Path(data_dir) / "media"),
+        }
         argv = [sys.executable, str(ROOT / "manage.py"), "bench_soak", *sys.argv[2:]]
         self.stdout.write(f"soak: private data folder {data_dir}")
         sys.stdout.flush()
@@ -115,9 +123,21 @@ class Command(BaseCommand):
             env["DATABASE_URL"] = f"sqlite:///{Path(connection.settings_dict['NAME']).resolve()}"
         log_path = log_dir / f"{name.split('@')[0]}.log"
         proc = subprocess.Popen(
-            [sys.executable, str(ROOT / "manage.py"), "render_worker", f"--concurrency={options['concurrency']}",
-             "--threads=1", f"--name={name}", "--loglevel=INFO"],
-            cwd=ROOT, env=env, stdout=open(log_path, "wb"), stderr=subprocess.STDOUT, start_new_session=True)
+            [
+                sys.executable,
+                str(ROOT / "manage.py"),
+                "render_worker",
+                f"--concurrency={options['concurrency']}",
+                "--threads=1",
+                f"--name={name}",
+                "--loglevel=INFO",
+            ],
+            cwd=ROOT,
+            env=env,
+            stdout=open(log_path, "wb"),
+            stderr=subprocess.STDOUT,
+            start_new_session=True,
+        )
         return Worker(proc, name, log_path)
 
     def _wait_live(self, workers: list[Worker], timeout_s: float = 120) -> None:
@@ -149,27 +169,43 @@ class Command(BaseCommand):
         index_range = range(int(frames_wanted * 1.3) + 10)
         crash = sorted(i for i in index_range if rng.random() < options["crash_fraction"])
         abort = sorted(i for i in index_range if i not in crash and rng.random() < options["abort_fraction"])
-        faults = {"crash_frames": crash, "abort_frames": abort, "transient_p": options["transient_p"],
-                  "seed": options["seed"]}
+        faults = {
+            "crash_frames": crash,
+            "abort_frames": abort,
+            "transient_p": options["transient_p"],
+            "seed": options["seed"],
+        }
 
         user, _ = get_user_model().objects.get_or_create(username="soak")
         for name in SOAK_CLASSES:
             oc = services.ensure_object_class(name=name)
             services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}")
         campaign = services.create_campaign(
-            owner=user, name=f"soak {time.strftime('%Y-%m-%d %H:%M:%S')} {uuid.uuid4().hex[:4]}",
+            owner=user,
+            name=f"soak {time.strftime('%Y-%m-%d %H:%M:%S')} {uuid.uuid4().hex[:4]}",
             quotas=[services.QuotaInput(name, 1_000_000) for name in SOAK_CLASSES],
-            budget={"render": {"width_px": options["width"], "height_px": options["height"], "spp": options["spp"],
-                               "max_depth": 3},
-                    "room": {"width_m": [3.0, 3.5], "depth_m": [3.0, 3.5], "max_objects_per_m2": 0.5},
-                    "thresholds": {"min_visible_fraction": 0.2, "min_box_px": 3.0},
-                    "variation": {"layouts": 1_000_000, "lighting_per_layout": 1, "views_per_lighting": 1}},
-            cost_budget=Decimal("1000000"), price_per_cpu_hour=Decimal("0.05"), seed=options["seed"],
-            max_attempts=options["max_attempts"])
-        self.stdout.write(f"soak: campaign {campaign.pk}, {options['workers']} worker(s) × {options['concurrency']}, "
-                          f"{options['width']}×{options['height']} px, {options['spp']} spp; crash frames {crash}, "
-                          f"abort frames {abort}, transient p {options['transient_p']}, "
-                          f"kill every ~{options['kill_interval_s']} s")
+            budget={
+                "render": {
+                    "width_px": options["width"],
+                    "height_px": options["height"],
+                    "spp": options["spp"],
+                    "max_depth": 3,
+                },
+                "room": {"width_m": [3.0, 3.5], "depth_m": [3.0, 3.5], "max_objects_per_m2": 0.5},
+                "thresholds": {"min_visible_fraction": 0.2, "min_box_px": 3.0},
+                "variation": {"layouts": 1_000_000, "lighting_per_layout": 1, "views_per_lighting": 1},
+            },
+            cost_budget=Decimal("1000000"),
+            price_per_cpu_hour=Decimal("0.05"),
+            seed=options["seed"],
+            max_attempts=options["max_attempts"],
+        )
+        self.stdout.write(
+            f"soak: campaign {campaign.pk}, {options['workers']} worker(s) × {options['concurrency']}, "
+            f"{options['width']}×{options['height']} px, {options['spp']} spp; crash frames {crash}, "
+            f"abort frames {abort}, transient p {options['transient_p']}, "
+            f"kill every ~{options['kill_interval_s']} s"
+        )
         sys.stdout.flush()
 
         started = 0
@@ -182,8 +218,9 @@ class Command(BaseCommand):
         try:
             self._wait_live(workers)
             services.start_campaign(campaign_id=campaign.pk)
-            next_kill = (t0 + rng.expovariate(1 / options["kill_interval_s"])
-                         if options["kill_interval_s"] > 0 else float("inf"))
+            next_kill = (
+                t0 + rng.expovariate(1 / options["kill_interval_s"]) if options["kill_interval_s"] > 0 else float("inf")
+            )
             last_report = t0
             while True:
                 now = time.monotonic()
@@ -195,26 +232,30 @@ class Command(BaseCommand):
                     break
                 if now >= next_kill:
                     victim = rng.randrange(len(workers))
-                    interrupted += Frame.objects.filter(campaign=campaign, state="running",
-                                                        worker_host=workers[victim].name).count()
+                    interrupted += Frame.objects.filter(
+                        campaign=campaign, state="running", worker_host=workers[victim].name
+                    ).count()
                     workers[victim].kill()
                     kills += 1
-                    workers[victim] = self._start_worker(index=started, options=options, faults=faults,
-                                                         log_dir=log_dir)
+                    workers[victim] = self._start_worker(index=started, options=options, faults=faults, log_dir=log_dir)
                     started += 1
                     next_kill = now + rng.expovariate(1 / options["kill_interval_s"])
                 if now - last_report >= 15:
                     last_report = now
-                    self.stdout.write(f"  {now - t0:6.0f} s: {campaign.frames_done} done, {campaign.frames_dead} "
-                                      f"dead, {kills} kill(s)")
+                    self.stdout.write(
+                        f"  {now - t0:6.0f} s: {campaign.frames_done} done, {campaign.frames_dead} "
+                        f"dead, {kills} kill(s)"
+                    )
                     sys.stdout.flush()
                 time.sleep(0.25)
             if campaign.status == Campaign.Status.RUNNING:
                 services.cancel_campaign(campaign_id=campaign.pk)
             # Running frames finish and are recorded; frames of killed workers are revoked by the sweep.
             deadline = time.monotonic() + 120
-            while time.monotonic() < deadline and Frame.objects.filter(
-                    campaign=campaign, state__in=("queued", "running")).exists():
+            while (
+                time.monotonic() < deadline
+                and Frame.objects.filter(campaign=campaign, state__in=("queued", "running")).exists()
+            ):
                 time.sleep(0.5)
             elapsed_s = time.monotonic() - t0
         finally:
@@ -240,10 +281,12 @@ class Command(BaseCommand):
             "transient × attempts": dead.filter(error__contains="InjectedTransientError").count(),
         }
         dead_why["worker lost (kill -9)"] = dead.count() - sum(dead_why.values())
-        swept = FrameEvent.objects.filter(campaign=campaign, from_state="running", to_state="queued",
-                                          detail__contains="no heartbeat").count()
-        redelivered = FrameEvent.objects.filter(campaign=campaign, to_state="running",
-                                                detail__contains="redelivered").count()
+        swept = FrameEvent.objects.filter(
+            campaign=campaign, from_state="running", to_state="queued", detail__contains="no heartbeat"
+        ).count()
+        redelivered = FrameEvent.objects.filter(
+            campaign=campaign, to_state="running", detail__contains="redelivered"
+        ).count()
         lines = [
             f"soak finished in {elapsed_s:.0f} s ({campaign.frames_done / max(elapsed_s, 1e-9) * 60:.1f} frames/min)",
             f"  frames done              {campaign.frames_done}",

@@ -58,8 +58,9 @@ class Command(BaseCommand):
         create = sub.add_parser("create", help="Create a draft campaign.")
         create.add_argument("name")
         create.add_argument("--owner", required=True, help="Username of the owner")
-        create.add_argument("--quota", action="append", default=[], required=True,
-                            help=f"{QUOTA_SYNTAX}; repeat per class")
+        create.add_argument(
+            "--quota", action="append", default=[], required=True, help=f"{QUOTA_SYNTAX}; repeat per class"
+        )
         create.add_argument("--budget-file", help="JSON randomization budget (partial; merged over the defaults)")
         create.add_argument("--budget-json", help="The same, inline")
         create.add_argument("--width", type=int, help="Shortcut for render.width_px")
@@ -88,8 +89,10 @@ class Command(BaseCommand):
                 return self._create(options)
             if action == "tick":
                 counts = scheduler.sweep()  # also takes back frames running on dead workers
-                self.stdout.write(f"{counts['sent']} message(s) sent; lost frames: {counts['requeued']} requeued, "
-                                  f"{counts['dead']} dead, {counts['revoked']} revoked")
+                self.stdout.write(
+                    f"{counts['sent']} message(s) sent; lost frames: {counts['requeued']} requeued, "
+                    f"{counts['dead']} dead, {counts['revoked']} revoked"
+                )
                 return
             if action == "list":
                 for c in selectors.campaign_list():
@@ -101,9 +104,12 @@ class Command(BaseCommand):
             if action == "set-budget":
                 services.set_cost_budget(campaign_id=campaign.pk, cost_budget=options["cost_budget"])
             else:
-                {"start": services.start_campaign, "pause": services.pause_campaign,
-                 "resume": services.resume_campaign, "cancel": services.cancel_campaign}[action](
-                    campaign_id=campaign.pk)
+                {
+                    "start": services.start_campaign,
+                    "pause": services.pause_campaign,
+                    "resume": services.resume_campaign,
+                    "cancel": services.cancel_campaign,
+                }[action](campaign_id=campaign.pk)
             campaign.refresh_from_db()
             self.stdout.write(f"campaign {campaign.pk} {campaign.name!r}: {campaign.status}")
         except services.CampaignError as exc:
@@ -133,15 +139,24 @@ class Command(BaseCommand):
                 budget = json.loads(options["budget_json"])
             except json.JSONDecodeError as exc:
                 raise CommandError(f"--budget-json: {exc}") from exc
-        render = {k: options[o] for k, o in (("width_px", "width"), ("height_px", "height"), ("spp", "spp"))
-                  if options.get(o) is not None}
+        render = {
+            k: options[o]
+            for k, o in (("width_px", "width"), ("height_px", "height"), ("spp", "spp"))
+            if options.get(o) is not None
+        }
         if render:
             budget = {**budget, "render": {**budget.get("render", {}), **render}}
         campaign = services.create_campaign(
-            owner=user, name=options["name"], quotas=[parse_quota(q) for q in options["quota"]], budget=budget,
-            cost_budget=options["cost_budget"], price_per_cpu_hour=options["price_per_cpu_hour"],
-            setup_cost=options["setup_cost"], manual_labelling_rate_per_hour=options["manual_rate_per_hour"],
-            weight=options["weight"], seed=options["seed"],
+            owner=user,
+            name=options["name"],
+            quotas=[parse_quota(q) for q in options["quota"]],
+            budget=budget,
+            cost_budget=options["cost_budget"],
+            price_per_cpu_hour=options["price_per_cpu_hour"],
+            setup_cost=options["setup_cost"],
+            manual_labelling_rate_per_hour=options["manual_rate_per_hour"],
+            weight=options["weight"],
+            seed=options["seed"],
         )
         self.stdout.write(f"created campaign {campaign.pk} {campaign.name!r} (draft)")
         if options["start"]:
@@ -159,32 +174,47 @@ class Command(BaseCommand):
         name_width = max([len(q.class_name) for q in s.quotas] + [5])
         for q in s.quotas:
             mark = "  met" if q.met else ""
-            w(f"    {q.class_name:<{name_width}} {progress_bar(q.accepted, q.target)} {q.accepted:5d} / {q.target:<5d}"
-              f" rejected {q.rejected:4d}  yield {q.yield_estimate:.2f}{mark}")
+            w(
+                f"    {q.class_name:<{name_width}} {progress_bar(q.accepted, q.target)} {q.accepted:5d} / {q.target:<5d}"
+                f" rejected {q.rejected:4d}  yield {q.yield_estimate:.2f}{mark}"
+            )
         frames = ", ".join(f"{k} {v}" for k, v in s.frames.items() if v)
         w(f"  Frames: {frames or 'none yet'}")
         median_cpu = f"{s.median_cpu_s:.2f} CPU s" if s.median_cpu_s is not None else "—"
         median_wall = f"{s.median_wall_s:.2f} s" if s.median_wall_s is not None else "—"
         w(f"  Per frame (median of recent): {median_cpu}, wall {median_wall}; total {s.cpu_s_spent:.1f} CPU s")
         budget_fraction = float(s.total_spent / c.cost_budget) if c.cost_budget else 0.0
-        w(f"  Spend: {s.total_spent:.4f} of budget {c.cost_budget} {progress_bar(int(budget_fraction * 1000), 1000)}"
-          f" {budget_fraction * 100:.1f}%  (fixed {s.fixed:.2f} + compute {s.compute_spent:.4f})")
+        w(
+            f"  Spend: {s.total_spent:.4f} of budget {c.cost_budget} {progress_bar(int(budget_fraction * 1000), 1000)}"
+            f" {budget_fraction * 100:.1f}%  (fixed {s.fixed:.2f} + compute {s.compute_spent:.4f})"
+        )
         if s.amortized.per_accepted_instance is not None:
-            w(f"  Amortized: {s.amortized.per_frame:.4f} per frame, {s.amortized.per_accepted_instance:.4f} per "
-              "accepted instance")
+            w(
+                f"  Amortized: {s.amortized.per_frame:.4f} per frame, {s.amortized.per_accepted_instance:.4f} per "
+                "accepted instance"
+            )
         p = s.projection
         if p.frames_remaining == 0:
             w("  Remaining: nothing — every quota is met")
         else:
             frames_left = p.frames_remaining if p.frames_remaining is not None else "unknown"
             cost_left = f"{p.cost_remaining:.4f}" if p.cost_remaining is not None else "unknown"
-            w(f"  Remaining: ≈ {frames_left} frames, ≈ {cost_left} compute, ETA {format_duration(p.seconds_remaining)}"
-              f" on {s.live_slots} live worker slot(s)")
+            w(
+                f"  Remaining: ≈ {frames_left} frames, ≈ {cost_left} compute, ETA {format_duration(p.seconds_remaining)}"
+                f" on {s.live_slots} live worker slot(s)"
+            )
         m = s.manual
         if c.manual_labelling_rate_per_hour > Decimal(0):
-            refs = "; ".join(f"{r.citation}: {r.seconds_per_instance:g} s for {r.what} ({r.note})" for r in m.references)
-            w(f"  Manual labelling of {sum(q.target for q in s.quotas)} instances at {c.manual_labelling_rate_per_hour}"
-              f"/h: {m.cost_for_instances:.2f} ({m.seconds_per_instance:g} s per instance — {refs})")
+            refs = "; ".join(
+                f"{r.citation}: {r.seconds_per_instance:g} s for {r.what} ({r.note})" for r in m.references
+            )
+            w(
+                f"  Manual labelling of {sum(q.target for q in s.quotas)} instances at {c.manual_labelling_rate_per_hour}"
+                f"/h: {m.cost_for_instances:.2f} ({m.seconds_per_instance:g} s per instance — {refs})"
+            )
             be = s.break_even_frames
-            w(f"  Break-even: {be} frames" if be is not None else
-              "  Break-even: not yet known (no accepted instances) or never (a frame costs more than its labels)")
+            w(
+                f"  Break-even: {be} frames"
+                if be is not None
+                else "  Break-even: not yet known (no accepted instances) or never (a frame costs more than its labels)"
+            )

@@ -25,9 +25,18 @@ DEMO_OWNER = "demo"
 DEMO_TEAM = "Lindqvist & Daughters — catalogue vision"
 
 CLASS_LABELS = {
-    "chair": "Chair", "armchair": "Armchair", "sofa": "Sofa", "dining_table": "Dining table",
-    "coffee_table": "Coffee table", "side_table": "Side table", "ottoman": "Ottoman", "wall_clock": "Wall clock",
-    "floor_lamp": "Floor lamp", "bookshelf": "Bookshelf", "potted_plant": "Potted plant", "bed": "Bed",
+    "chair": "Chair",
+    "armchair": "Armchair",
+    "sofa": "Sofa",
+    "dining_table": "Dining table",
+    "coffee_table": "Coffee table",
+    "side_table": "Side table",
+    "ottoman": "Ottoman",
+    "wall_clock": "Wall clock",
+    "floor_lamp": "Floor lamp",
+    "bookshelf": "Bookshelf",
+    "potted_plant": "Potted plant",
+    "bed": "Bed",
 }
 # One-off cost of writing and checking each procedural generator (an invented studio rate: about 4 h at 40/h).
 GENERATOR_CREATION_COST = Decimal("160.00")
@@ -63,8 +72,12 @@ class Command(BaseCommand):
     help = "Create the demo object classes, assets and the demo campaign (safe to run twice)."
 
     def add_arguments(self, parser) -> None:
-        parser.add_argument("--owner", default=DEMO_OWNER, help="Username that owns the demo campaign "
-                            "(created by make demo; created here without a usable password if missing)")
+        parser.add_argument(
+            "--owner",
+            default=DEMO_OWNER,
+            help="Username that owns the demo campaign "
+            "(created by make demo; created here without a usable password if missing)",
+        )
         parser.add_argument("--start", action="store_true", help="Start the demo campaign if it is a draft")
 
     def handle(self, *args, **options) -> None:
@@ -82,19 +95,26 @@ class Command(BaseCommand):
             for name in demo_class_names():
                 object_class = services.ensure_object_class(name=name, label=CLASS_LABELS.get(name, ""))
                 before = object_class.assets.count()
-                services.ensure_procedural_asset(object_class=object_class, name=f"procedural {name}",
-                                                 creation_cost=GENERATOR_CREATION_COST)
+                services.ensure_procedural_asset(
+                    object_class=object_class, name=f"procedural {name}", creation_cost=GENERATOR_CREATION_COST
+                )
                 created_assets += object_class.assets.count() - before
             campaign = Campaign.objects.filter(team=team, name=DEMO_CAMPAIGN_NAME).first()
             if campaign is None:
                 try:
                     campaign = services.create_campaign(
-                        owner=owner, team=team, name=DEMO_CAMPAIGN_NAME, quotas=DEMO_QUOTAS, budget=DEMO_BUDGET,
-                        cost_budget=DEMO_COST_BUDGET, price_per_cpu_hour=DEMO_PRICE_PER_CPU_HOUR,
-                        setup_cost=DEMO_SETUP_COST, manual_labelling_rate_per_hour=DEMO_MANUAL_RATE_PER_HOUR,
+                        owner=owner,
+                        team=team,
+                        name=DEMO_CAMPAIGN_NAME,
+                        quotas=DEMO_QUOTAS,
+                        budget=DEMO_BUDGET,
+                        cost_budget=DEMO_COST_BUDGET,
+                        price_per_cpu_hour=DEMO_PRICE_PER_CPU_HOUR,
+                        setup_cost=DEMO_SETUP_COST,
+                        manual_labelling_rate_per_hour=DEMO_MANUAL_RATE_PER_HOUR,
                         seed=DEMO_SEED,
                         description="Lindqvist & Daughters' detector misses wall clocks and ottomans: "
-                                    "a skewed top-up set, chairs 10× wall clocks.",
+                        "a skewed top-up set, chairs 10× wall clocks.",
                     )
                 except services.CampaignError as exc:
                     raise CommandError(str(exc)) from exc

@@ -27,12 +27,24 @@ class Command(BaseCommand):
         parser.add_argument("--name", required=True, help="Asset name (unique in the team and class)")
         parser.add_argument("--user", required=True, help="User name of a planner of the team")
         parser.add_argument("--unit", default="auto", choices=["auto", *UNIT_TO_M], help="File unit (default auto)")
-        parser.add_argument("--up-axis", default="+z", choices=list(SIGNED_AXES),
-                            help="File axis pointing up (default +z; glTF files are usually +y)")
-        parser.add_argument("--front", default="", choices=["", *FRONT_AXES],
-                            help="File axis the model's front faces (default: +y for a z-up file, +z for y-up)")
-        parser.add_argument("--look", default="keep", choices=list(LOOKS),
-                            help="keep the model's materials (default) or randomize its colours")
+        parser.add_argument(
+            "--up-axis",
+            default="+z",
+            choices=list(SIGNED_AXES),
+            help="File axis pointing up (default +z; glTF files are usually +y)",
+        )
+        parser.add_argument(
+            "--front",
+            default="",
+            choices=["", *FRONT_AXES],
+            help="File axis the model's front faces (default: +y for a z-up file, +z for y-up)",
+        )
+        parser.add_argument(
+            "--look",
+            default="keep",
+            choices=list(LOOKS),
+            help="keep the model's materials (default) or randomize its colours",
+        )
         parser.add_argument("--cost", default="0", help="Creation cost (modelling, licensing)")
 
     def handle(self, *args, **options) -> None:
@@ -53,13 +65,23 @@ class Command(BaseCommand):
             upload = File(handle, name=path.name)
             try:
                 asset = services.upload_mesh_asset(
-                    user=user, team=team, object_class_name=options["object_class"], name=options["name"],
-                    upload=upload, unit=options["unit"], creation_cost=options["cost"], up_axis=options["up_axis"],
-                    front=options["front"], look=options["look"])
+                    user=user,
+                    team=team,
+                    object_class_name=options["object_class"],
+                    name=options["name"],
+                    upload=upload,
+                    unit=options["unit"],
+                    creation_cost=options["cost"],
+                    up_axis=options["up_axis"],
+                    front=options["front"],
+                    look=options["look"],
+                )
             except (asset_files.UploadError, services.CampaignError) as exc:
                 raise CommandError(f"{path.name}: {exc}") from exc
         info = asset_files.asset_info(asset.pk)
         size = asset_files.size_text(info["extents_m"]) if info.get("extents_m") else "unknown size"
-        self.stdout.write(f"asset {asset.pk} {asset}: {size}, unit {info.get('unit', asset.mesh_unit)}, "
-                          f"{info.get('parts', 1)} part(s), {info.get('textured_parts', 0)} textured, "
-                          f"look {asset.look}; campaigns use it only where they choose it")
+        self.stdout.write(
+            f"asset {asset.pk} {asset}: {size}, unit {info.get('unit', asset.mesh_unit)}, "
+            f"{info.get('parts', 1)} part(s), {info.get('textured_parts', 0)} textured, "
+            f"look {asset.look}; campaigns use it only where they choose it"
+        )

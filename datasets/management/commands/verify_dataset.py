@@ -22,7 +22,8 @@ class Command(BaseCommand):
         for problem in report.problems:
             self.stderr.write(problem)
         if not report.ok:
-            raise CommandError(f"{report.directory}: {len(report.problems)} problem(s) in {report.files} listed "
-                               "files")
-        self.stdout.write(f"{report.directory}: OK, {report.files} files, {report.bytes_checked / 1e6:.1f} MB "
-                          f"match the manifest ({seconds:.1f} s)")
+            raise CommandError(f"{report.directory}: {len(report.problems)} problem(s) in {report.files} listed files")
+        self.stdout.write(
+            f"{report.directory}: OK, {report.files} files, {report.bytes_checked / 1e6:.1f} MB "
+            f"match the manifest ({seconds:.1f} s)"
+        )

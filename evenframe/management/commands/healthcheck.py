@@ -16,7 +16,9 @@ class Command(BaseCommand):
 
     def add_arguments(self, parser) -> None:
         parser.add_argument("--wait", type=float, default=0, help="Seconds to keep polling until healthy.")
-        parser.add_argument("--url", default="", help="Also require this web server URL to answer (e.g. the login page).")
+        parser.add_argument(
+            "--url", default="", help="Also require this web server URL to answer (e.g. the login page)."
+        )
 
     def _web_ok(self, url: str) -> tuple[bool, str]:
         try:

@@ -18,7 +18,9 @@ class Command(BaseCommand):
     def add_arguments(self, parser) -> None:
         parser.add_argument("--concurrency", type=int, default=1, help="Frames rendered at once on this machine.")
         parser.add_argument(
-            "--threads", type=int, default=0,
+            "--threads",
+            type=int,
+            default=0,
             help="Renderer threads per frame (default: CPU cores / concurrency, so workers do not oversubscribe).",
         )
         parser.add_argument("--name", default="", help="Node name (default render-<pid>@<host>).")
