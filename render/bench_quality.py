@@ -16,7 +16,11 @@
    with sensor noise off (the render's own error).
 4. Raw at equal CPU: the previous pipeline (sky found by brute force, no denoiser, sensor noise off)
    at the sample count whose CPU time matches the default frame's, scored the same way.
-5. CPU per frame at ``--cpu-width`` × ``--cpu-height`` (640×480), end to end, the new default
+5. Reference check (skip with ``--skip-reference-check``): a second reference of the same scene with other
+   path-tracing samples (cached too). Their PSNR says how converged the references are — sunlit rooms, lit
+   mostly by light bouncing off sun patches, are still grainy at 2048 spp — and with it the no-SN frame's PSNR
+   against the converged image is estimated (:func:`truth_psnr`).
+6. CPU per frame at ``--cpu-width`` × ``--cpu-height`` (640×480), end to end, the new default
    against the previous default (32 spp, no denoiser, brute-force sky), over the same seeds, in two
    passes: *first sight* (each frame's render kernels are compiled, as for the first frame of its
    structure on a worker) and *repeat* (the kernels are in memory, as for the later frames of a
@@ -126,7 +130,9 @@ def _with(
     return spec
 
 
-def reference_rgb(spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None) -> np.ndarray:
+def reference_rgb(
+    spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None, sampler_offset: int = 0
+) -> np.ndarray:
     """The reference 8-bit image of ``spec``: its high-spp linear radiance (cached on disk by the reference
     spec's bytes), exposed by today's :func:`render.frame.expose` with sensor noise off.
 
@@ -137,6 +143,9 @@ def reference_rgb(spec: dict[str, Any], reference_spp: int, cache: Path, *, thre
     from .spec import axis_rng, spec_to_json
 
     reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
+    if sampler_offset:
+        # An independent reference: the same scene, other path-tracing samples (the noise sub-seed seeds them).
+        reference["sub_seeds"]["noise"] = int(reference["sub_seeds"]["noise"]) + int(sampler_offset)
     key = hashlib.sha256(spec_to_json(reference).encode()).hexdigest()[:20]
     path = cache / f"reference-radiance-{key}.npy"
     if path.is_file():
@@ -149,6 +158,23 @@ def reference_rgb(spec: dict[str, Any], reference_spp: int, cache: Path, *, thre
         print(f"    (reference rendered: {reference_spp} spp, {cpu_s:.0f} CPU s, cached as {path.name})", flush=True)
     rgb, _ = expose(radiance, reference["camera"], rng=axis_rng(reference["sub_seeds"], "noise"), noise=False)
     return rgb
+
+
+def _mse(a: np.ndarray, b: np.ndarray) -> float:
+    return float(np.mean((a.astype(np.float64) - b.astype(np.float64)) ** 2))
+
+
+def truth_psnr(reference: np.ndarray, second_reference: np.ndarray, image: np.ndarray) -> float:
+    """PSNR (dB, 8-bit) of ``image`` against the converged image, estimated from a finite-spp reference.
+
+    For independent zero-mean errors, E|image − ref|² = E|image − truth|² + E|ref − truth|², and two independent
+    references give E|ref − truth|² = E|ref − ref₂|² / 2; so MSE(image, truth) ≈ MSE(image, ref) −
+    MSE(ref, ref₂) / 2. (Variance decomposition of independent errors; exact in linear radiance, approximate
+    on 8-bit images, where clipping and the sRGB curve bend it.) Floored at 0.01 of the raw MSE.
+    """
+    raw = _mse(image, reference)
+    corrected = max(raw - _mse(reference, second_reference) / 2.0, 0.01 * raw)
+    return 10.0 * math.log10(255.0**2 / corrected) if corrected > 0 else 99.0
 
 
 def scores(reference: np.ndarray, image: np.ndarray) -> tuple[float, float]:
@@ -249,6 +275,12 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--cpu-width", type=int, default=640)
     parser.add_argument("--cpu-height", type=int, default=480)
     parser.add_argument("--skip-cpu", action="store_true", help="skip the 640×480 CPU comparison")
+    parser.add_argument(
+        "--skip-reference-check",
+        action="store_true",
+        help="skip the second, independent reference per seed (its PSNR against the first says how converged "
+        "the references are; it also gives the estimated PSNR against the converged image)",
+    )
     parser.add_argument("--cache", type=Path, default=Path("data/bench_quality"))
     parser.add_argument("--variant", default="llvm_ad_rgb", choices=("llvm_ad_rgb", "scalar_rgb"))
     parser.add_argument("--threads", type=int)
@@ -294,7 +326,7 @@ def main(argv: list[str] | None = None) -> int:
 
     header = (
         f"{'seed':>5} {'kind':<7} {'PSNR dB':>8} {'SSIM':>6} {'PSNR no-SN':>10} {'SSIM no-SN':>10} "
-        f"{'CPU s':>6} {'raw spp':>7} {'raw CPU s':>9} {'raw PSNR':>8} {'gain dB':>7}"
+        f"{'CPU s':>6} {'raw spp':>7} {'raw CPU s':>9} {'raw PSNR':>8} {'gain dB':>7} {'ref self':>8} {'est. truth':>10}"
     )
     print(header)
     rows = []
@@ -318,6 +350,11 @@ def main(argv: list[str] | None = None) -> int:
             _with(spec, spp=raw_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
         )
         psnr_raw, _ = scores(reference, raw.rgb)
+        ref_self, truth = float("nan"), float("nan")
+        if not args.skip_reference_check:
+            second = reference_rgb(spec, args.reference_spp, args.cache, threads=args.threads, sampler_offset=1_000_003)
+            ref_self = scores(reference, second)[0]
+            truth = truth_psnr(reference, second, clean.rgb)
         rows.append(
             {
                 "psnr": psnr,
@@ -328,11 +365,14 @@ def main(argv: list[str] | None = None) -> int:
                 "raw_cpu_s": raw_cpu_s,
                 "psnr_raw": psnr_raw,
                 "gain": psnr_clean - psnr_raw,
+                "ref_self": ref_self,
+                "truth": truth,
             }
         )
         print(
             f"{seed:>5} {kind:<7} {psnr:>8.2f} {ssim:>6.3f} {psnr_clean:>10.2f} {ssim_clean:>10.3f} {cpu_s:>6.2f} "
-            f"{raw_spp:>7} {raw_cpu_s:>9.2f} {psnr_raw:>8.2f} {psnr_clean - psnr_raw:>7.2f}",
+            f"{raw_spp:>7} {raw_cpu_s:>9.2f} {psnr_raw:>8.2f} {psnr_clean - psnr_raw:>7.2f} {ref_self:>8.2f} "
+            f"{truth:>10.2f}",
             flush=True,
         )
 
@@ -347,6 +387,18 @@ def main(argv: list[str] | None = None) -> int:
     worst = min(r["psnr"] for r in rows)
     worst_clean = min(r["psnr_clean"] for r in rows)
     print("\nPSNR / SSIM: scikit-image metrics on the 8-bit images; 'no-SN' = the same frame with sensor noise off.")
+    if not args.skip_reference_check:
+        print(
+            "'ref self' = PSNR of the reference against an independent reference of the same spp (how far the "
+            "reference is from converged: each is about 3 dB closer to the truth than to the other); 'est. truth' "
+            "= the no-SN frame's PSNR against the converged image, estimated (see truth_psnr)."
+        )
+        worst_truth = min(r["truth"] for r in rows)
+        print(
+            f"worst seed against the converged image (estimate, no sensor noise): {worst_truth:.2f} dB "
+            f"({_verdict(worst_truth >= GOAL_WORST_PSNR_DB)} the {GOAL_WORST_PSNR_DB:g} dB goal); lowest 'ref self' "
+            f"{min(r['ref_self'] for r in rows):.2f} dB"
+        )
     print(
         f"goal median PSNR >= {GOAL_MEDIAN_PSNR_DB:g} dB: {median('psnr'):.2f} dB with sensor noise "
         f"({_verdict(median('psnr') >= GOAL_MEDIAN_PSNR_DB)}), {median('psnr_clean'):.2f} dB without "

@@ -441,3 +441,20 @@ def test_budget_switches_are_booleans():
     for bad in (1, "yes", None, 0.0):
         with pytest.raises(BudgetError, match="render.denoise: expected true or false"):
             normalize_budget({"render": {"denoise": bad}})
+
+
+def test_truth_psnr_removes_the_references_own_noise():
+    """Two references and a frame, each the truth plus independent noise: the estimate against the truth recovers
+    the frame's true PSNR although the reference is noisier than the frame (variance of a difference of
+    independent errors is the sum of their variances)."""
+    from render.bench_quality import truth_psnr
+
+    rng = np.random.default_rng(3)
+    truth = rng.uniform(40, 215, size=(240, 320, 3))
+    frame = truth + rng.normal(0, 4.0, truth.shape)
+    reference = truth + rng.normal(0, 6.0, truth.shape)
+    second = truth + rng.normal(0, 6.0, truth.shape)
+    expected = 10 * np.log10(255.0**2 / np.mean((frame - truth) ** 2))
+    naive = 10 * np.log10(255.0**2 / np.mean((frame - reference) ** 2))
+    assert truth_psnr(reference, second, frame) == pytest.approx(expected, abs=0.25)  # sampling error of the MSEs
+    assert expected - naive > 3.0  # what the naive score got wrong
