@@ -453,6 +453,20 @@ def distractor_count(spec: _Any) -> int | None:
     return 0 if isinstance(appearance, dict) and "distractor_count" in appearance else None
 
 
+def room_summary(*, room_types: Counter[str], layout_modes: Counter[str]) -> dict[str, _Any]:
+    """Rows of the overview's room table: frames per room type and per arrangement (``home`` or ``free``), most
+    frequent first, with shares of the frames that record one (specs made before room types record none)."""
+
+    def rows(counts: Counter[str]) -> list[dict[str, _Any]]:
+        total = sum(counts.values())
+        return [
+            {"name": name, "label": name.replace("_", " "), "frames": n, "share_pct": round(100.0 * n / total, 1)}
+            for name, n in sorted(counts.items(), key=lambda item: (-item[1], item[0]))
+        ]
+
+    return {"room_types": rows(room_types), "layout_modes": rows(layout_modes)}
+
+
 def appearance_summary(
     *, families: Counter[str], distractor_counts: Sequence[int], frames: int, library: Sequence[str] = ()
 ) -> dict[str, _Any]:
@@ -539,6 +553,8 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
     elevation: dict[str, list[float]] = {}
     families: Counter[str] = Counter()
     distractor_counts: list[int] = []
+    room_types: Counter[str] = Counter()
+    layout_modes: Counter[str] = Counter()
     specs_read = 0
     for relative in dirs:
         spec = _read_json(root / relative / "scene.json")
@@ -549,6 +565,11 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
         distractors = distractor_count(spec)
         if distractors is not None:
             distractor_counts.append(distractors)
+        room = spec.get("room")
+        if isinstance(room, dict) and isinstance(room.get("room_type"), str):
+            room_types[room["room_type"]] += 1
+        if isinstance(spec.get("layout_mode"), str):
+            layout_modes[spec["layout_mode"]] += 1
         camera = spec.get("camera", {})
         position = camera.get("position_m") or [0, 0, 0]
         values["eye_height_m"].append(float(position[2]))
@@ -592,6 +613,7 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
                 families=families, distractor_counts=distractor_counts, frames=specs_read, library=_texture_library()
             ),
             "distractor_range": budget.get("appearance", {}).get("distractor_count"),
+            **room_summary(room_types=room_types, layout_modes=layout_modes),
         },
     }
 

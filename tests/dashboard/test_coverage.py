@@ -235,3 +235,23 @@ def test_texture_families_and_distractors_of_a_real_spec():
     assert selectors.texture_families(spec) == expected
     assert sum(expected.values()) > len(spec["room"]["materials"])  # objects' parts are counted too
     assert selectors.distractor_count(spec) == len(spec.get("distractors", []))
+
+
+def test_overview_shows_room_types_and_arrangements(client, make_campaign, media_root, outbox, people):
+    """Frames per room type and per arrangement, from the scene files; a spec made before room types counts in
+    neither table."""
+    specs = []
+    for room_type, mode in (("bedroom", "home"), ("bedroom", "free"), ("office", "home"), (None, None)):
+        spec = _spec({"floor": None}, [], [])
+        if room_type:
+            spec["room"]["room_type"] = room_type
+            spec["layout_mode"] = mode
+        specs.append(spec)
+    campaign = make_campaign("rooms", start=True)
+    _record(campaign, media_root, specs)
+    client.force_login(people["vera"])
+    page = client.get(reverse("campaigns:detail", args=[campaign.pk])).content.decode()
+    rows = re.findall(r'<tr data-room="([^"]+)"><td>[^<]+</td><td>(\d+)</td><td>([\d.]+) %</td>', page)
+    assert rows == [("bedroom", "2", "66.7"), ("office", "1", "33.3")]
+    modes = " ".join(re.sub(r"<[^>]+>", "", re.search(r'id="layout-modes">(.*?)</p>', page, re.S).group(1)).split())
+    assert modes == "Arrangement: like a home 66.7 % · free random placement 33.3 %."
