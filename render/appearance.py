@@ -126,23 +126,67 @@ def assign_textures(
     docstring).
 
     ``appearance`` is the budget's section: ``texture_probability``, ``texture_families`` (the families
-    allowed), ``texture_variants``, ``texture_scale`` [low, high]. Every material draws the same number of random numbers whatever
-    it becomes, so one material's outcome never shifts another's; the distractors' materials come
-    last, so the room and the objects wear the same textures with or without them.
+    allowed), ``texture_variants``, ``texture_scale`` [low, high], and the colour jitter ``hue_jitter_deg``,
+    ``saturation_scale`` and ``value_scale`` (:func:`jitter_hsv`): a plain material's ``rgb`` is jittered here, a
+    textured one records ``hsv_jitter`` [hue °, saturation ×, value ×] and its image is jittered at scene build.
+    Metals and materials without a family (an upload's own look) keep their colour. Every material draws the same
+    number of random numbers whatever it becomes, so one material's outcome never shifts another's; the
+    distractors' materials come last, so the room and the objects wear the same textures with or without them.
     """
     probability = float(appearance["texture_probability"])
     allowed = set(appearance.get("texture_families") or ())
     variants = int(appearance["texture_variants"])
     scale_low, scale_high = (float(v) for v in appearance["texture_scale"])
+    hue_deg = float(appearance.get("hue_jitter_deg", 0.0))
+    sat_low, sat_high = (float(v) for v in appearance.get("saturation_scale", (1.0, 1.0)))
+    val_low, val_high = (float(v) for v in appearance.get("value_scale", (1.0, 1.0)))
     for material in _materials(room, objects, distractors):
-        draw_use, draw_family, draw_variant, draw_scale = rng.random(4)
+        draw_use, draw_family, draw_variant, draw_scale, draw_hue, draw_sat, draw_val = rng.random(7)
+        jitter = [
+            round(hue_deg * (2.0 * draw_hue - 1.0), 6),
+            round(sat_low + (sat_high - sat_low) * draw_sat, 6),
+            round(val_low + (val_high - val_low) * draw_val, 6),
+        ]
+        jitters = material.get("family") and material.get("kind") != "metal" and jitter != [0.0, 1.0, 1.0]
         families = [f for f in TEXTURE_FAMILIES.get(str(material.get("family", "")), ()) if f in allowed]
         if not families or draw_use >= probability:
+            if jitters and "rgb" in material:
+                rgb = jitter_hsv(np.asarray(material["rgb"], dtype=np.float64), *jitter)
+                material["rgb"] = [round(float(v), 6) for v in np.clip(rgb, ALBEDO_MIN, ALBEDO_MAX)]
             continue
         family = families[min(int(draw_family * len(families)), len(families) - 1)]
         variant = min(int(draw_variant * variants), variants - 1)
         scale = scale_low * (scale_high / scale_low) ** draw_scale  # log-uniform: as many halvings as doublings
         material["texture"] = texture_record(family, variant, scale)
+        if jitters:
+            material["texture"]["hsv_jitter"] = jitter
+
+
+#: Albedo limits of a jittered colour (as :func:`render.assets.sample_material` keeps them): no paint or fabric
+#: reflects more than 95 % or less than 0.5 %.
+ALBEDO_MIN, ALBEDO_MAX = 0.005, 0.95
+
+
+def jitter_hsv(rgb_linear: np.ndarray, hue_deg: float, saturation_scale: float, value_scale: float) -> np.ndarray:
+    """Linear RGB (…, 3) with its hue turned by ``hue_deg``, saturation and value scaled (clipped to [0, 1]).
+
+    Done in HSV of the sRGB-encoded colour (the space people pick colours in), then decoded back to linear.
+
+    References
+    ----------
+    A. R. Smith, "Color gamut transform pairs", SIGGRAPH 1978 (HSV); scikit-image ``color.rgb2hsv`` /
+    ``hsv2rgb``; IEC 61966-2-1 (sRGB). Colour randomization: Tobin et al. 2017 (domain randomization).
+    """
+    from skimage.color import hsv2rgb, rgb2hsv
+
+    from render import srgb
+
+    linear = np.asarray(rgb_linear, dtype=np.float64)
+    hsv = rgb2hsv(np.clip(srgb.encode(np.clip(linear, 0.0, 1.0)), 0.0, 1.0).reshape(-1, 1, 3))
+    hsv[..., 0] = (hsv[..., 0] + float(hue_deg) / 360.0) % 1.0
+    hsv[..., 1] = np.clip(hsv[..., 1] * float(saturation_scale), 0.0, 1.0)
+    hsv[..., 2] = np.clip(hsv[..., 2] * float(value_scale), 0.0, 1.0)
+    return srgb.decode(hsv2rgb(hsv)).reshape(linear.shape)
 
 
 def box_uv(

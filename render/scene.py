@@ -247,9 +247,13 @@ def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
         from .user_models import texture_linear_rgb as user_texture_linear_rgb
 
         return user_texture_linear_rgb(material["user_texture"])
-    from .appearance import texture_linear_rgb
+    from .appearance import jitter_hsv, texture_linear_rgb
 
-    return texture_linear_rgb(material["texture"])
+    image = texture_linear_rgb(material["texture"])
+    jitter = material["texture"].get("hsv_jitter")
+    if jitter:
+        image = jitter_hsv(image, *jitter).astype(np.float32)
+    return image
 
 
 def _normal_image(material: dict[str, Any]) -> np.ndarray | None:

@@ -337,3 +337,45 @@ def test_a_one_metre_checker_on_the_floor_has_its_corners_where_project_points_p
             assert light[0] == light[1] and light[2] == light[3] and light[0] != light[2], (x, y, u, v)
             checked += 1
     assert checked >= 6
+
+
+def test_jitter_hsv_follows_the_hsv_definition():
+    """HSV of the sRGB-encoded colour (Smith 1978; scikit-image ``rgb2hsv``): a 120° hue turn takes pure red to
+    pure green, saturation × 0 leaves a grey of the same value, value × 0.5 halves the largest encoded channel."""
+    from render import srgb
+
+    red = srgb.decode(np.array([1.0, 0.0, 0.0]))
+    assert np.allclose(appearance.jitter_hsv(red, 120.0, 1.0, 1.0), [0.0, 1.0, 0.0], atol=1e-9)
+    assert np.allclose(appearance.jitter_hsv(red, -120.0, 1.0, 1.0), [0.0, 0.0, 1.0], atol=1e-9)
+    orange = srgb.decode(np.array([0.9, 0.5, 0.2]))
+    grey = srgb.encode(appearance.jitter_hsv(orange, 0.0, 0.0, 1.0))
+    assert np.allclose(grey, 0.9, atol=1e-9)
+    assert srgb.encode(appearance.jitter_hsv(orange, 0.0, 1.0, 0.5)).max() == pytest.approx(0.45)
+    image = np.random.default_rng(0).uniform(0.01, 0.9, size=(4, 5, 3))
+    assert np.allclose(appearance.jitter_hsv(image, 0.0, 1.0, 1.0), image, atol=1e-9)  # no jitter, same colours
+
+
+def test_colour_jitter_in_the_budget_moves_plain_colours_and_tags_textures():
+    from render.spec import make_spec
+
+    composition = {"chair": 2, "sofa": 1, "floor_lamp": 1}
+    still = {"hue_jitter_deg": 0.0, "saturation_scale": [1.0, 1.0], "value_scale": [1.0, 1.0]}
+    moved = plain = 0
+    for seed in range(12):
+        off = make_spec({"appearance": still}, composition, seed)
+        on = make_spec(None, composition, seed)
+        for item_off, item_on in zip(off["objects"], on["objects"], strict=True):
+            for slot, material in item_on["materials"].items():
+                before = item_off["materials"][slot]
+                if material.get("kind") == "metal" or not material.get("family"):
+                    assert material["rgb"] == before["rgb"] and "hsv_jitter" not in (material.get("texture") or {})
+                    continue
+                texture = material.get("texture")
+                if texture:
+                    hue, sat, val = texture["hsv_jitter"]
+                    assert abs(hue) <= 12.0 and 0.8 <= sat <= 1.2 and 0.85 <= val <= 1.15
+                    assert "hsv_jitter" not in before["texture"]
+                else:
+                    plain += 1
+                    moved += material["rgb"] != before["rgb"]
+    assert plain > 10 and moved == plain
