@@ -93,6 +93,24 @@ def budget_value(budget: dict[str, Any], field: Field) -> Any:
     return section[field.name] if field.name in section else DEFAULT_BUDGET[field.section][field.name]
 
 
+def budget_form_data(budget: dict[str, Any]) -> dict[str, Any]:
+    """The planner form's POST fields for ``budget`` (a field it lacks at its default): what :meth:`CampaignForm.clean`
+    reads back. A switch that is on is ``"on"``, one that is off is absent (a browser sends nothing for it)."""
+    data: dict[str, Any] = {}
+    for field in FIELDS:
+        value = budget_value(budget, field)
+        if field.kind == "bool":
+            if value:
+                data[budget_field_name(field)] = "on"
+        elif field.kind == "choices":
+            data[budget_field_name(field)] = list(value)
+        elif field.kind in ("range", "int_range"):
+            data[budget_field_name(field, "min")], data[budget_field_name(field, "max")] = value
+        else:
+            data[budget_field_name(field)] = value
+    return data
+
+
 def _switch_field(label: str, initial: bool) -> forms.Field:
     """A budget switch (``Field.kind == "bool"``): a checkbox; unchecked is absent from a POST, so False."""
     return forms.BooleanField(

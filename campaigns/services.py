@@ -26,7 +26,7 @@ import os
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
-from dataclasses import dataclass
+from dataclasses import asdict, dataclass
 from datetime import timedelta
 from decimal import Decimal, InvalidOperation
 from typing import Any, NamedTuple
@@ -481,14 +481,8 @@ def create_campaign(
             team=team,
             owner=owner,
             description=description,
-            seed=settings.seed,
             budget=normalized,
-            cost_budget=settings.cost_budget,
-            price_per_cpu_hour=settings.price_per_cpu_hour,
-            setup_cost=settings.setup_cost,
-            manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
-            weight=settings.weight,
-            max_attempts=settings.max_attempts,
+            **asdict(settings),  # seed, money settings, weight, max_attempts
         )
     campaign.assets.set(assets)
     _write_quotas(campaign=campaign, clean=clean)
@@ -1179,14 +1173,8 @@ def update_draft_campaign(
         Campaign.objects.filter(pk=campaign.pk).update(
             name=name,
             description=description,
-            seed=settings.seed,
             budget=normalized,
-            cost_budget=settings.cost_budget,
-            price_per_cpu_hour=settings.price_per_cpu_hour,
-            setup_cost=settings.setup_cost,
-            manual_labelling_rate_per_hour=settings.manual_labelling_rate_per_hour,
-            weight=settings.weight,
-            max_attempts=settings.max_attempts,
+            **asdict(settings),  # seed, money settings, weight, max_attempts
         )
     campaign.refresh_from_db()
     campaign.assets.set(assets)

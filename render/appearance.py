@@ -273,13 +273,29 @@ def texture_linear_rgb(texture: dict[str, Any]) -> np.ndarray:
     """Linear-RGB base colour (H, W, 3) float32 of a spec ``texture`` record, from the disk cache.
 
     Row 0 is v = 0 (Mitsuba's bitmap convention). Generated on a cache miss; the decoded image is
-    kept in memory per process (read-only).
+    kept in memory per process (read-only), and so is its colour-jittered copy when the record has ``hsv_jitter``.
     """
-    params_json = json.dumps(dict(texture["params"]), sort_keys=True)
-    return _linear_texture(
+    key = (
         str(texture["family"]),
-        params_json,
+        json.dumps(dict(texture["params"]), sort_keys=True),
         int(texture["seed"]),
         int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)),
         str(texture_cache_dir()),
     )
+    jitter = texture.get("hsv_jitter")
+    if jitter:
+        return _jittered_texture(*key, tuple(float(v) for v in jitter))
+    return _linear_texture(*key)
+
+
+# Frames of one layout share their texture records, jitter included; the HSV round trip costs about 30 ms per
+# 256 px image, so it is done once per record and process (128 images: about 100 MB at most).
+@functools.lru_cache(maxsize=128)
+def _jittered_texture(
+    family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str, jitter: tuple[float, ...]
+) -> np.ndarray:
+    image = np.ascontiguousarray(
+        jitter_hsv(_linear_texture(family, params_json, seed, resolution_px, cache_dir), *jitter), dtype=np.float32
+    )
+    image.setflags(write=False)
+    return image

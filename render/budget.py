@@ -23,6 +23,26 @@ MAX_RESOLUTION_PX = 4096
 MAX_SPP = 4096
 
 
+#: The choices of ``room.room_types`` (``render.dressing.ROOM_TYPES`` holds their finishes) and of
+#: ``appearance.texture_families`` (``render.textures.FAMILIES``); kept here so the budget imports no geometry.
+ROOM_TYPES: tuple[str, ...] = ("living_room", "bedroom", "dining_room", "office")
+TEXTURE_FAMILIES: tuple[str, ...] = (
+    "wood",
+    "parquet",
+    "ceramic_tile",
+    "stone_tile",
+    "marble",
+    "concrete",
+    "carpet",
+    "rug",
+    "fabric",
+    "leather",
+    "plaster",
+    "wallpaper",
+    "brushed_metal",
+)
+
+
 class BudgetError(ValueError):
     """A budget field is missing, of the wrong type, out of bounds or min > max.
 
@@ -158,7 +178,7 @@ FIELDS: tuple[Field, ...] = (
         "Kinds of room drawn, each with plausible finishes: floors (parquet, tile, carpet, concrete), paint or "
         "wallpaper, how often windows have curtains.",
         "common practice",
-        choices=("living_room", "bedroom", "dining_room", "office"),
+        choices=ROOM_TYPES,
     ),
     Field(
         "room",
@@ -448,21 +468,7 @@ FIELDS: tuple[Field, ...] = (
         "Procedural texture families surfaces may wear, each only where it fits (wood grain on wood, parquet, "
         "tiles, marble or concrete on floors, plaster or wallpaper on walls, weaves on upholstery…). A surface "
         "none of whose families is allowed stays plain.",
-        choices=(
-            "wood",
-            "parquet",
-            "ceramic_tile",
-            "stone_tile",
-            "marble",
-            "concrete",
-            "carpet",
-            "rug",
-            "fabric",
-            "leather",
-            "plaster",
-            "wallpaper",
-            "brushed_metal",
-        ),
+        choices=TEXTURE_FAMILIES,
     ),
     Field(
         "appearance",
@@ -540,7 +546,7 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "window_probability": 0.6,
         "max_objects_per_m2": 0.6,
         "free_placement_probability": 0.25,
-        "room_types": ["living_room", "bedroom", "dining_room", "office"],
+        "room_types": list(ROOM_TYPES),
         "door_count": [1, 2],
         "curtain_probability": 1.0,
     },
@@ -580,21 +586,7 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
     "thresholds": {"min_visible_fraction": 0.25, "min_box_px": 16.0, "min_contrast": 2.0},
     "appearance": {
         "texture_probability": 0.85,
-        "texture_families": [
-            "wood",
-            "parquet",
-            "ceramic_tile",
-            "stone_tile",
-            "marble",
-            "concrete",
-            "carpet",
-            "rug",
-            "fabric",
-            "leather",
-            "plaster",
-            "wallpaper",
-            "brushed_metal",
-        ],
+        "texture_families": list(TEXTURE_FAMILIES),
         "texture_variants": 32,
         "hue_jitter_deg": 12.0,
         "saturation_scale": [0.8, 1.2],

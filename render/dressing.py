@@ -153,8 +153,9 @@ def _sample_door(room: dict[str, Any], rng: np.random.Generator) -> dict[str, An
             continue
         lengths = np.array([s1 - s0 for s0, s1 in spans])
         position = draw_along * lengths.sum()
-        index = min(int(np.searchsorted(np.cumsum(lengths), position, side="right")), len(spans) - 1)
-        start_u = spans[index][0] + min(position - (np.cumsum(lengths)[index] - lengths[index]), lengths[index])
+        ends = np.cumsum(lengths)
+        index = min(int(np.searchsorted(ends, position, side="right")), len(spans) - 1)
+        start_u = spans[index][0] + min(position - (ends[index] - lengths[index]), lengths[index])
         return {
             "wall": wall,
             "center_m": round(float(start_u + total / 2), 6),
@@ -290,18 +291,9 @@ def _wall_box(
     room: dict[str, Any], wall: str, u0: float, u1: float, o0: float, o1: float, z0: float, z1: float
 ) -> trimesh.Trimesh:
     """An axis-aligned box given in wall coordinates (u along, o into the room, z up), in world metres."""
-    width, depth = float(room["width_m"]), float(room["depth_m"])
-    if wall == "south":
-        bounds = [[u0, o0, z0], [u1, o1, z1]]
-    elif wall == "north":
-        bounds = [[u0, depth - o1, z0], [u1, depth - o0, z1]]
-    elif wall == "west":
-        bounds = [[o0, u0, z0], [o1, u1, z1]]
-    elif wall == "east":
-        bounds = [[width - o1, u0, z0], [width - o0, u1, z1]]
-    else:
-        raise ValueError(f"unknown wall {wall!r}")
-    return trimesh.creation.box(bounds=np.asarray(bounds, dtype=np.float64))
+    corners = wall_to_world(room, wall, np.array([[u0, o0, z0], [u1, o1, z1]], dtype=np.float64))
+    low, high = corners.min(axis=0), corners.max(axis=0)
+    return assets.box_mesh(low[0], high[0], low[1], high[1], low[2], high[2])
 
 
 def wall_to_world(room: dict[str, Any], wall: str, uoz: np.ndarray) -> np.ndarray:
@@ -525,18 +517,7 @@ def _wall_boxes(room: dict[str, Any], wall: str) -> list[trimesh.Trimesh]:
                 run_start = None
         if run_start is not None:
             rects.append((u0, u1, run_start, height))
-    width, depth = room["width_m"], room["depth_m"]
-    boxes = []
-    for u0, u1, z0, z1 in rects:
-        if wall == "south":
-            boxes.append(assets.box_mesh(u0, u1, -t, 0.0, z0, z1))
-        elif wall == "north":
-            boxes.append(assets.box_mesh(u0, u1, depth, depth + t, z0, z1))
-        elif wall == "west":
-            boxes.append(assets.box_mesh(-t, 0.0, u0, u1, z0, z1))
-        else:
-            boxes.append(assets.box_mesh(width, width + t, u0, u1, z0, z1))
-    return boxes
+    return [_wall_box(room, wall, u0, u1, -t, 0.0, z0, z1) for u0, u1, z0, z1 in rects]
 
 
 def room_parts(room: dict[str, Any]) -> list[assets.Part]:

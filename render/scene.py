@@ -27,6 +27,7 @@ Mitsuba 3 plugin reference: ``thinlens``, ``perspective``, ``aov``,
 
 from __future__ import annotations
 
+import functools
 import math
 import re
 import weakref
@@ -247,13 +248,9 @@ def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
         from .user_models import texture_linear_rgb as user_texture_linear_rgb
 
         return user_texture_linear_rgb(material["user_texture"])
-    from .appearance import jitter_hsv, texture_linear_rgb
+    from .appearance import texture_linear_rgb
 
-    image = texture_linear_rgb(material["texture"])
-    jitter = material["texture"].get("hsv_jitter")
-    if jitter:
-        image = jitter_hsv(image, *jitter).astype(np.float32)
-    return image
+    return texture_linear_rgb(material["texture"])
 
 
 def _normal_image(material: dict[str, Any]) -> np.ndarray | None:
@@ -791,6 +788,7 @@ def thin_glass_transmittance(cos_theta: Any, ior: float = GLASS_IOR) -> np.ndarr
     return 1.0 - 2.0 * r / (1.0 + r)
 
 
+@functools.lru_cache(maxsize=8)
 def diffuse_glass_transmittance(ior: float = GLASS_IOR) -> float:
     """Cosine-weighted hemispherical mean of :func:`thin_glass_transmittance`: T̄ = 2 ∫₀¹ T(μ) μ dμ (0.845 at 1.5),
     the fraction of a uniform sky's light that a pane lets into a room."""

@@ -151,7 +151,7 @@ def test_live_json_has_counters_and_series(client, done_campaign, people):
 
 
 def _plan_data(team_obj, **overrides):
-    from render.budget import DEFAULT_BUDGET, FIELDS
+    from campaigns.forms import budget_form_data
 
     data = {
         "name": "Lamps and clocks",
@@ -169,14 +169,7 @@ def _plan_data(team_obj, **overrides):
         "q_ottoman_target": 0,
         "q_armchair_target": "",
     }
-    for f in FIELDS:
-        value = {**DEFAULT_BUDGET, **{k: {**DEFAULT_BUDGET[k], **v} for k, v in TINY_BUDGET.items()}}[f.section][f.name]
-        if f.kind == "choices":
-            data[f"b_{f.section}_{f.name}"] = list(value)
-        elif isinstance(value, list):
-            data[f"b_{f.section}_{f.name}_min"], data[f"b_{f.section}_{f.name}_max"] = value
-        else:
-            data[f"b_{f.section}_{f.name}"] = value
+    data.update(budget_form_data(TINY_BUDGET))
     data.update(overrides)
     return data
 

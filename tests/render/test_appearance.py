@@ -379,3 +379,12 @@ def test_colour_jitter_in_the_budget_moves_plain_colours_and_tags_textures():
                     plain += 1
                     moved += material["rgb"] != before["rgb"]
     assert plain > 10 and moved == plain
+
+
+def test_a_jittered_texture_is_its_base_image_jittered_once_per_record():
+    record = appearance.texture_record("parquet", 2, 1.0)
+    jittered = {**record, "hsv_jitter": [30.0, 1.1, 0.9]}
+    image = appearance.texture_linear_rgb(jittered)
+    expected = appearance.jitter_hsv(appearance.texture_linear_rgb(record), 30.0, 1.1, 0.9)
+    assert np.allclose(image, expected, atol=1e-6) and not image.flags.writeable
+    assert appearance.texture_linear_rgb(dict(jittered)) is image  # cached: the HSV round trip runs once

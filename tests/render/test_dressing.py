@@ -247,3 +247,14 @@ def test_diffuse_glass_transmittance_is_the_cosine_weighted_mean():
     expected, _ = integrate.quad(lambda mu: 2.0 * float(thin_glass_transmittance(mu)) * mu, 0.0, 1.0)
     assert diffuse_glass_transmittance() == pytest.approx(expected, rel=1e-6)
     assert 0.8 < expected < 0.9
+
+
+def test_the_budgets_choices_name_what_the_render_core_has():
+    """The budget lists its choices itself (it imports no geometry); they must be the room types dressing knows
+    and the texture families the generators make."""
+    from render import budget
+    from render.textures import FAMILIES
+
+    assert set(budget.ROOM_TYPES) == set(dressing.ROOM_TYPES)
+    assert set(budget.TEXTURE_FAMILIES) == set(FAMILIES)
+    assert normalize_budget()["room"]["room_types"] == list(budget.ROOM_TYPES)

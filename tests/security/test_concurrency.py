@@ -111,7 +111,7 @@ def no_preview(monkeypatch) -> None:
 
 
 def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
-    from render.budget import DEFAULT_BUDGET, FIELDS
+    from campaigns.forms import budget_form_data
 
     data: dict[str, Any] = {
         "name": name,
@@ -128,18 +128,7 @@ def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
         "q_ottoman_target": 0,
         "save": "1",
     }
-    merged = {k: {**v, **TINY_BUDGET.get(k, {})} for k, v in DEFAULT_BUDGET.items()}
-    for f in FIELDS:
-        value = merged[f.section][f.name]
-        if isinstance(value, bool):
-            if value:
-                data[f"b_{f.section}_{f.name}"] = "on"
-        elif f.kind == "choices":
-            data[f"b_{f.section}_{f.name}"] = list(value)
-        elif isinstance(value, list):
-            data[f"b_{f.section}_{f.name}_min"], data[f"b_{f.section}_{f.name}_max"] = value
-        else:
-            data[f"b_{f.section}_{f.name}"] = value
+    data.update(budget_form_data(TINY_BUDGET))
     return data
 
 
