@@ -16,10 +16,10 @@
    with sensor noise off (the render's own error).
 4. Raw at equal CPU: the previous pipeline (sky found by brute force, no denoiser, sensor noise off)
    at the sample count whose CPU time matches the default frame's, scored the same way.
-5. Reference check (skip with ``--skip-reference-check``): a second reference of the same scene with other
-   path-tracing samples (cached too). Their PSNR says how converged the references are — sunlit rooms, lit
-   mostly by light bouncing off sun patches, are still grainy at 2048 spp — and with it the no-SN frame's PSNR
-   against the converged image is estimated (:func:`truth_psnr`).
+5. Reference passes: the reference is the mean radiance of ``--reference-passes`` (2) independent passes of
+   ``--reference-spp`` each, ``--sun-passes`` (4) for sunlit rooms — lit mostly by light bouncing off sun
+   patches, they are still grainy after one 2048-spp pass. The first two passes' PSNR says how converged one
+   pass is, and with it the no-SN frame's PSNR against the converged image is estimated (:func:`truth_psnr`).
 6. CPU per frame at ``--cpu-width`` × ``--cpu-height`` (640×480), end to end, the new default
    against the previous default (32 spp, no denoiser, brute-force sky), over the same seeds, in two
    passes: *first sight* (each frame's render kernels are compiled, as for the first frame of its
@@ -130,50 +130,81 @@ def _with(
     return spec
 
 
-def reference_rgb(
-    spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None, sampler_offset: int = 0
+#: Sampler-seed offset between independent reference passes of one scene.
+PASS_SEED_OFFSET = 1_000_003
+
+
+def reference_radiance(
+    spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None, pass_index: int = 0
 ) -> np.ndarray:
-    """The reference 8-bit image of ``spec``: its high-spp linear radiance (cached on disk by the reference
-    spec's bytes), exposed by today's :func:`render.frame.expose` with sensor noise off.
+    """One reference pass of ``spec``: its linear radiance at ``reference_spp``, denoiser and sensor noise
+    off, cached on disk by the pass's spec bytes. Pass ``k`` uses other path-tracing samples than pass 0
+    (the noise sub-seed, which seeds the sampler, is offset by ``k`` × :data:`PASS_SEED_OFFSET`), so
+    passes are independent estimates of the same image.
+    """
+    from .spec import spec_to_json
+
+    reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
+    if pass_index:
+        reference["sub_seeds"]["noise"] = int(reference["sub_seeds"]["noise"]) + PASS_SEED_OFFSET * int(pass_index)
+    key = hashlib.sha256(spec_to_json(reference).encode()).hexdigest()[:20]
+    path = cache / f"reference-radiance-{key}.npy"
+    if path.is_file():
+        return np.load(path)
+    result, cpu_s = _render(reference, threads=threads)
+    radiance = np.asarray(result.radiance_rgb, dtype=np.float32)
+    cache.mkdir(parents=True, exist_ok=True)
+    np.save(path, radiance)
+    print(
+        f"    (reference pass {pass_index}: {reference_spp} spp, {cpu_s:.0f} CPU s, cached as {path.name})", flush=True
+    )
+    return radiance
+
+
+def expose_reference(spec: dict[str, Any], radiance: np.ndarray) -> np.ndarray:
+    """A reference radiance exposed by today's :func:`render.frame.expose`, sensor noise off.
 
     The cache holds radiance, not the 8-bit image, so a change to exposure or encoding never compares
     default frames with a reference exposed the old way.
     """
     from .frame import expose
-    from .spec import axis_rng, spec_to_json
+    from .spec import axis_rng
 
-    reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
-    if sampler_offset:
-        # An independent reference: the same scene, other path-tracing samples (the noise sub-seed seeds them).
-        reference["sub_seeds"]["noise"] = int(reference["sub_seeds"]["noise"]) + int(sampler_offset)
-    key = hashlib.sha256(spec_to_json(reference).encode()).hexdigest()[:20]
-    path = cache / f"reference-radiance-{key}.npy"
-    if path.is_file():
-        radiance = np.load(path)
-    else:
-        result, cpu_s = _render(reference, threads=threads)
-        radiance = np.asarray(result.radiance_rgb, dtype=np.float32)
-        cache.mkdir(parents=True, exist_ok=True)
-        np.save(path, radiance)
-        print(f"    (reference rendered: {reference_spp} spp, {cpu_s:.0f} CPU s, cached as {path.name})", flush=True)
-    rgb, _ = expose(radiance, reference["camera"], rng=axis_rng(reference["sub_seeds"], "noise"), noise=False)
+    camera = _with(spec, sensor_noise=False)["camera"]
+    rgb, _ = expose(radiance, camera, rng=axis_rng(spec["sub_seeds"], "noise"), noise=False)
     return rgb
+
+
+def reference_rgb(
+    spec: dict[str, Any], reference_spp: int, cache: Path, *, threads: int | None = None, passes: int = 1
+) -> tuple[np.ndarray, list[np.ndarray]]:
+    """The reference 8-bit image of ``spec`` and its passes' own 8-bit images.
+
+    The reference is the mean linear radiance of ``passes`` independent passes of ``reference_spp`` each
+    (``passes`` × ``reference_spp`` samples per pixel in all), exposed once; the mean of independent
+    unbiased estimates is unbiased with 1/``passes`` of their variance.
+    """
+    radiances = [reference_radiance(spec, reference_spp, cache, threads=threads, pass_index=k) for k in range(passes)]
+    mean = np.mean(np.stack(radiances), axis=0) if passes > 1 else radiances[0]
+    return expose_reference(spec, mean), [expose_reference(spec, r) for r in radiances]
 
 
 def _mse(a: np.ndarray, b: np.ndarray) -> float:
     return float(np.mean((a.astype(np.float64) - b.astype(np.float64)) ** 2))
 
 
-def truth_psnr(reference: np.ndarray, second_reference: np.ndarray, image: np.ndarray) -> float:
+def truth_psnr(reference: np.ndarray, pass_a: np.ndarray, pass_b: np.ndarray, image: np.ndarray, passes: int) -> float:
     """PSNR (dB, 8-bit) of ``image`` against the converged image, estimated from a finite-spp reference.
 
-    For independent zero-mean errors, E|image − ref|² = E|image − truth|² + E|ref − truth|², and two independent
-    references give E|ref − truth|² = E|ref − ref₂|² / 2; so MSE(image, truth) ≈ MSE(image, ref) −
-    MSE(ref, ref₂) / 2. (Variance decomposition of independent errors; exact in linear radiance, approximate
-    on 8-bit images, where clipping and the sRGB curve bend it.) Floored at 0.01 of the raw MSE.
+    ``reference`` is the mean of ``passes`` independent passes, of which ``pass_a`` and ``pass_b`` are two.
+    For independent zero-mean errors, E|image − ref|² = E|image − truth|² + E|ref − truth|²; one pass has
+    E|pass − truth|² = σ² = E|pass_a − pass_b|² / 2, and the mean of ``passes`` has σ² / ``passes``. So
+    MSE(image, truth) ≈ MSE(image, ref) − MSE(pass_a, pass_b) / (2 · passes). (Variance decomposition of
+    independent errors; exact in linear radiance, approximate on 8-bit images, where clipping and the sRGB
+    curve bend it.) Floored at 0.01 of the raw MSE.
     """
     raw = _mse(image, reference)
-    corrected = max(raw - _mse(reference, second_reference) / 2.0, 0.01 * raw)
+    corrected = max(raw - _mse(pass_a, pass_b) / (2.0 * passes), 0.01 * raw)
     return 10.0 * math.log10(255.0**2 / corrected) if corrected > 0 else 99.0
 
 
@@ -276,10 +307,18 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--cpu-height", type=int, default=480)
     parser.add_argument("--skip-cpu", action="store_true", help="skip the 640×480 CPU comparison")
     parser.add_argument(
-        "--skip-reference-check",
-        action="store_true",
-        help="skip the second, independent reference per seed (its PSNR against the first says how converged "
-        "the references are; it also gives the estimated PSNR against the converged image)",
+        "--reference-passes",
+        type=int,
+        default=2,
+        help="independent reference passes per seed, each at --reference-spp; the reference is their mean. "
+        "With 2 or more, the first two passes' PSNR says how converged one pass is, and the default frame's "
+        "PSNR against the converged image is estimated",
+    )
+    parser.add_argument(
+        "--sun-passes",
+        type=int,
+        default=4,
+        help="reference passes for sunlit seeds (lit mostly by light bounced off sun patches, they converge slowest)",
     )
     parser.add_argument("--cache", type=Path, default=Path("data/bench_quality"))
     parser.add_argument("--variant", default="llvm_ad_rgb", choices=("llvm_ad_rgb", "scalar_rgb"))
@@ -287,8 +326,8 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--cpu-pipeline", choices=("new", "previous"), help=argparse.SUPPRESS)
     parser.add_argument("--cpu-seeds", help=argparse.SUPPRESS)
     args = parser.parse_args(argv)
-    if args.per_kind < 1 or args.reference_spp < 1:
-        parser.error("--per-kind and --reference-spp must be at least 1")
+    if min(args.per_kind, args.reference_spp, args.reference_passes, args.sun_passes) < 1:
+        parser.error("--per-kind, --reference-spp, --reference-passes and --sun-passes must be at least 1")
 
     # An empty kernel cache of our own: "first sight" CPU figures then include the compile, whatever
     # earlier runs on this machine left in the user's cache. Must be set before Dr.Jit loads.
@@ -332,7 +371,10 @@ def main(argv: list[str] | None = None) -> int:
     rows = []
     for seed, kind in seeds:
         spec = make_spec(budget, composition, seed)
-        reference = reference_rgb(spec, args.reference_spp, args.cache, threads=args.threads)
+        passes = max(args.reference_passes, args.sun_passes) if kind == "sun" else args.reference_passes
+        reference, pass_images = reference_rgb(
+            spec, args.reference_spp, args.cache, threads=args.threads, passes=passes
+        )
         # Compile this scene's kernels first (1 spp; the kernels do not depend on the sample count), so the
         # timings below are repeat-pass figures whether or not the reference came from the cache.
         _render(_with(spec, spp=1), threads=args.threads)
@@ -351,10 +393,9 @@ def main(argv: list[str] | None = None) -> int:
         )
         psnr_raw, _ = scores(reference, raw.rgb)
         ref_self, truth = float("nan"), float("nan")
-        if not args.skip_reference_check:
-            second = reference_rgb(spec, args.reference_spp, args.cache, threads=args.threads, sampler_offset=1_000_003)
-            ref_self = scores(reference, second)[0]
-            truth = truth_psnr(reference, second, clean.rgb)
+        if passes >= 2:
+            ref_self = scores(pass_images[0], pass_images[1])[0]
+            truth = truth_psnr(reference, pass_images[0], pass_images[1], clean.rgb, passes)
         rows.append(
             {
                 "psnr": psnr,
@@ -387,11 +428,12 @@ def main(argv: list[str] | None = None) -> int:
     worst = min(r["psnr"] for r in rows)
     worst_clean = min(r["psnr_clean"] for r in rows)
     print("\nPSNR / SSIM: scikit-image metrics on the 8-bit images; 'no-SN' = the same frame with sensor noise off.")
-    if not args.skip_reference_check:
+    if any(math.isfinite(r["truth"]) for r in rows):
         print(
-            "'ref self' = PSNR of the reference against an independent reference of the same spp (how far the "
-            "reference is from converged: each is about 3 dB closer to the truth than to the other); 'est. truth' "
-            "= the no-SN frame's PSNR against the converged image, estimated (see truth_psnr)."
+            "'ref self' = PSNR of two independent reference passes against each other (how far one pass is from "
+            "converged: each is about 3 dB closer to the truth than to the other, and the mean of n passes another "
+            "10·log10(n) dB closer); 'est. truth' = the no-SN frame's PSNR against the converged image, estimated "
+            "(see truth_psnr)."
         )
         worst_truth = min(r["truth"] for r in rows)
         print(

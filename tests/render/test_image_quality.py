@@ -444,17 +444,20 @@ def test_budget_switches_are_booleans():
 
 
 def test_truth_psnr_removes_the_references_own_noise():
-    """Two references and a frame, each the truth plus independent noise: the estimate against the truth recovers
-    the frame's true PSNR although the reference is noisier than the frame (variance of a difference of
-    independent errors is the sum of their variances)."""
+    """Reference passes and a frame, each the truth plus independent noise: the estimate against the truth
+    recovers the frame's true PSNR although the reference is noisier than the frame (the variance of a
+    difference of independent errors is the sum of their variances; the mean of n passes has 1/n of one
+    pass's variance)."""
     from render.bench_quality import truth_psnr
 
     rng = np.random.default_rng(3)
     truth = rng.uniform(40, 215, size=(240, 320, 3))
     frame = truth + rng.normal(0, 4.0, truth.shape)
-    reference = truth + rng.normal(0, 6.0, truth.shape)
-    second = truth + rng.normal(0, 6.0, truth.shape)
     expected = 10 * np.log10(255.0**2 / np.mean((frame - truth) ** 2))
-    naive = 10 * np.log10(255.0**2 / np.mean((frame - reference) ** 2))
-    assert truth_psnr(reference, second, frame) == pytest.approx(expected, abs=0.25)  # sampling error of the MSEs
-    assert expected - naive > 3.0  # what the naive score got wrong
+    for passes in (2, 4):
+        runs = [truth + rng.normal(0, 8.0, truth.shape) for _ in range(passes)]
+        reference = np.mean(runs, axis=0)
+        naive = 10 * np.log10(255.0**2 / np.mean((frame - reference) ** 2))
+        estimate = truth_psnr(reference, runs[0], runs[1], frame, passes)
+        assert estimate == pytest.approx(expected, abs=0.3)  # sampling error of the MSEs
+        assert expected - naive > 1.0  # what the naive score got wrong
