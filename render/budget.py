@@ -201,6 +201,16 @@ FIELDS: tuple[Field, ...] = (
         "room 0.6, office 0.35). 0 turns curtains off.",
         "common practice",
     ),
+    Field(
+        "room",
+        "outdoor_view_probability",
+        "probability",
+        "",
+        0.0,
+        1.0,
+        "Chance that a room's windows look out on an outdoor scene (sky with clouds, grass or paving, buildings "
+        "or trees, seen in perspective from the camera and lighting the room); otherwise they show a plain sky.",
+    ),
     # lighting
     Field("lighting", "panel_count", "int_range", "", 0, 8, "Rectangular ceiling panels (area lights)."),
     Field(
@@ -549,6 +559,7 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "room_types": list(ROOM_TYPES),
         "door_count": [1, 2],
         "curtain_probability": 1.0,
+        "outdoor_view_probability": 1.0,
     },
     "lighting": {
         "panel_count": [0, 2],

@@ -10,8 +10,9 @@ makes a box into a room, all of it unlabelled background:
 - :func:`dressing_parts` (scene build): triangle meshes of all of it, one part per material.
 
 The glass of the windows is not geometry here: the window portal that carries the sky into the room
-(:func:`render.scene.window_portal_entries`) is itself the pane (a thin dielectric), so the sky
-stays sampled directly.
+(:func:`render.scene.window_portal_entries`) is itself the pane (it transmits the sky times a thin pane's
+mean transmittance and mirrors the rest), so the sky stays sampled directly. What the windows look out on is
+:mod:`render.backdrop`.
 
 Frame of reference on a wall: ``u`` runs along the wall from its lower-coordinate end, ``o`` is the
 distance into the room from the wall's inner face (negative inside the wall), ``z`` is height.

@@ -45,7 +45,7 @@ import numpy as np
 
 from .rounding import round_floats
 
-STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "denoise", "labels", "encode")
+STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "denoise", "window_view", "labels", "encode")
 # PNG zlib level 1 (fast). Measured at 640×480: the noisy RGB frame compresses best *and* fastest
 # with the Huffman-only strategy (15 ms, 420 KB vs 19 ms, 497 KB at the default strategy); the
 # instance image is mostly runs, where the default strategy is already 4 ms and 5 KB.
@@ -265,7 +265,13 @@ def render_frame(
     """
     from . import labels as labels_module
     from .backend import init_renderer
-    from .scene import SUN_PASS_SPP_FACTOR, build_scene, render_label_and_aux, render_radiance
+    from .scene import (
+        SUN_PASS_SPP_FACTOR,
+        build_scene,
+        render_label_and_aux,
+        render_radiance,
+        render_window_view,
+    )
     from .spec import axis_rng
 
     timings = dict.fromkeys(STAGES, 0.0)
@@ -302,6 +308,16 @@ def render_frame(
     if built.sun_scene is not None:
         render_info["sun_pass_spp"] = int(render["spp"]) * SUN_PASS_SPP_FACTOR
     timings["denoise"] = time.perf_counter() - start
+
+    # The outdoor scene the camera sees through the windows, added after the denoiser: it is nearly noise-free
+    # (camera rays only), and its detail (clouds, facades) has no albedo feature the denoiser could keep.
+    start = time.perf_counter()
+    window_view = render_window_view(built, seed=spec["sub_seeds"]["noise"])
+    if window_view is not None:
+        # Clipped at 0: along a window's edge the frame and the view pass cover a pixel with different samples.
+        radiance_out = np.maximum(radiance_out + window_view, 0.0)
+        render_info["outdoor_view"] = True
+    timings["window_view"] = time.perf_counter() - start
 
     start = time.perf_counter()
     triangles_world = {

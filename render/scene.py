@@ -118,9 +118,13 @@ def emitting_quad(
     *,
     bsdf: dict[str, Any],
     emitter: dict[str, Any] | None,
+    with_uv: bool = False,
 ) -> Any:
     """A one-sided area emitter on the rectangle ``centre ± half_u ± half_v`` facing ``normal``
     (``emitter=None``: the same quad, not emitting).
+
+    ``with_uv``: texture coordinates u = 0 → 1 along ``half_u`` and v = 0 → 1 along ``half_v`` (for a
+    textured radiance, :func:`render.backdrop.card_image`).
 
     Two triangles (an ``mi.Mesh``) rather than Mitsuba's ``rectangle`` shape: a rectangle keeps its
     placement as constants compiled into the render kernel, so every frame with a differently
@@ -141,10 +145,13 @@ def emitting_quad(
     props["bsdf"] = mi.load_dict(bsdf)
     if emitter is not None:
         props["emitter"] = mi.load_dict(emitter)
-    mesh = mi.Mesh(name, vertex_count=4, face_count=2, props=props)
+    mesh = mi.Mesh(name, vertex_count=4, face_count=2, has_vertex_texcoords=with_uv, props=props)
     params = mi.traverse(mesh)
     params["vertex_positions"] = type(params["vertex_positions"])(corners.astype(np.float32).reshape(-1))
     params["faces"] = type(params["faces"])(faces.astype(np.uint32).reshape(-1))
+    if with_uv:
+        uv = np.array([[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]], np.float32)
+        params["vertex_texcoords"] = type(params["vertex_texcoords"])(uv.reshape(-1))
     params.update()
     return mesh
 
@@ -491,6 +498,8 @@ class BuiltScene:
     sun_scene: Any = None
     sun_sensor: Any = None
     window_light: str = "dome"
+    # The camera's direct view of the outdoor scene through the windows (window_view_scenes), when there is one.
+    window_view_scenes: tuple | None = None
 
 
 @dataclass
@@ -633,6 +642,31 @@ def render_radiance(built: BuiltScene, *, seed: int = 0, aux: bool = False) -> R
         labels = render_label_and_aux(built)
         result.albedo_rgb, result.normal_xyz = labels.albedo_rgb, labels.normal_xyz
     return result
+
+
+def render_window_view(built: BuiltScene, *, seed: int = 0) -> np.ndarray | None:
+    """What the outdoor scene adds to the camera's direct view of the windows (H, W, 3), or None without one.
+
+    The room is lit through each window by its mean outdoor radiance (uniform over the pane, sampled as a
+    portal); the camera, looking through a window, should see the outdoor scene itself. Both
+    :func:`window_view_scenes` are rendered with one-segment paths (the emitters the camera sees directly,
+    with the frame's lens, pixel filter and occluders) and the same seed, so the window's pixel coverage
+    cancels in their difference, which :func:`render.frame.render_frame` adds to the (denoised) radiance.
+    Exact for the direct view; a window seen in a mirror or through the pane's own reflection keeps the
+    uniform light (about 15 % of the pane, the glass's reflectance).
+    """
+    if built.window_view_scenes is None:
+        return None
+    mi = _mi()
+    seed = int(seed) & 0x7FFFFFFF
+    textured, uniform = (
+        np.array(
+            mi.render(scene, sensor=scene.sensors()[0], integrator=path_integrator(1), spp=built.spp, seed=seed),
+            dtype=np.float32,
+        )[..., :3]
+        for scene in built.window_view_scenes
+    )
+    return textured - uniform
 
 
 def _ray_cosines(k_matrix: np.ndarray, width_px: int, height_px: int) -> np.ndarray:
@@ -813,21 +847,137 @@ def glass_bsdf() -> dict[str, Any]:
     }
 
 
-def window_glass_entries(room: dict[str, Any]) -> dict[str, Any]:
-    """Plain panes (thin dielectric, no emission) in the window openings' outer faces: the glass of
-    ``window_light="dome"``, where the sky is found by paths that leave through it."""
+def portal_bsdf() -> dict[str, Any]:
+    """The surface of a window that emits the outside's light (a portal, or a brute-force pane carrying the
+    outdoor scene): an opaque mirror of reflectance 1 − T̄.
+
+    It reflects like the pane (:func:`glass_bsdf`) but lets nothing through: a ray through a portal would meet
+    nothing, and the light from outside is the emitter's. Not a ``mask``: Mitsuba's path tracer counts a
+    surface's emission only on the mask's opaque share, so a masked portal showed the camera (and the rays
+    that hit it) 1 − T̄ = 15 % of its radiance — windows looked dark grey (measured: a unit emitter behind a
+    mask of opacity 0.155 renders 0.17 at 64 spp, behind a diffuse surface 1.0).
+    """
     return {
-        f"window_glass_{index}": emitting_quad(
+        "type": "conductor",
+        "material": "none",
+        "specular_reflectance": {"type": "uniform", "value": 1.0 - diffuse_glass_transmittance()},
+    }
+
+
+def window_glass_entries(room: dict[str, Any], window_radiance: list[np.ndarray] | None = None) -> dict[str, Any]:
+    """Plain panes (no emission) in the window openings' outer faces: the glass of ``window_light="dome"``,
+    where the sky is found by paths that leave through it.
+
+    With ``window_radiance`` (each window's outdoor light, :func:`outdoor_windows`), each pane emits it (times
+    the glass's T̄, like a portal) instead, at a next-event sampling weight so small that the light is still
+    found by the paths that hit it: the brute-force counterpart of the portals.
+    """
+    entries = {}
+    for index, frame in enumerate(window_portal_frames(room)):
+        emitter, bsdf = None, glass_bsdf()
+        if window_radiance is not None:
+            bsdf = portal_bsdf()
+            emitter = {
+                "type": "area",
+                "radiance": _rgb(np.asarray(window_radiance[index]) * diffuse_glass_transmittance()),
+                "sampling_weight": BRUTE_FORCE_SAMPLING_WEIGHT,
+            }
+        entries[f"window_glass_{index}"] = emitting_quad(
             f"window_glass_{index}",
             frame["centre_m"],
             frame["u"],
             frame["v"],
             frame["normal"],
-            bsdf=glass_bsdf(),
-            emitter=None,
+            bsdf=bsdf,
+            emitter=emitter,
         )
-        for index, frame in enumerate(window_portal_frames(room))
-    }
+    return entries
+
+
+#: Next-event sampling weight of a brute-force window (relative to a lamp's 1): next-event estimation almost
+#: never picks it, and multiple importance sampling then gives its light to the paths that hit it.
+BRUTE_FORCE_SAMPLING_WEIGHT = 1e-6
+
+
+def _rgb(value: Any) -> dict[str, Any]:
+    return {"type": "rgb", "value": [float(v) for v in np.asarray(value).reshape(3)]}
+
+
+@dataclass
+class OutdoorWindows:
+    """A room's outdoor scene (:mod:`render.backdrop`) per window: the light it sends in and what the camera sees.
+
+    ``radiance_rgb``: each window's cosine-weighted mean outdoor radiance (sky above, ground below, the skyline
+    between), which its emitter sends into the room; ``cards``: each window's image of the outdoor scene as
+    seen from the camera, (rows, cols, 3). Both in the units of the room's sky radiance, before the glass.
+    """
+
+    radiance_rgb: list[np.ndarray]
+    cards: list[np.ndarray]
+
+
+def outdoor_windows(spec: dict[str, Any]) -> OutdoorWindows | None:
+    """The room's :class:`OutdoorWindows`; None when it has no outdoor scene (no ``room.backdrop``, no windows, no
+    dome)."""
+    from .backdrop import card_image, window_mean_radiance
+    from .lights import emitter_quantities
+
+    room = spec["room"]
+    backdrop = room.get("backdrop")
+    domes = [light for light in spec["lights"] if light["kind"] == "dome"]
+    if not backdrop or not room.get("windows") or not domes:
+        return None
+    sky_rgb = np.sum([emitter_quantities(light)["radiance_rgb"] for light in domes], axis=0)
+    sun = None
+    for light in spec["lights"]:
+        if light["kind"] == "sun":
+            quantities = emitter_quantities(light)
+            sun = (quantities["direction"], quantities["irradiance_rgb"])
+    frames = window_portal_frames(room)
+    position = spec["camera"]["position_m"]
+    return OutdoorWindows(
+        radiance_rgb=[window_mean_radiance(frame, backdrop, sky_rgb, sun) for frame in frames],
+        cards=[card_image(frame, position, backdrop, sky_rgb, sun) for frame in frames],
+    )
+
+
+def window_view_scenes(room: dict[str, Any], outdoor: OutdoorWindows, shapes: dict[str, Any], sensor: dict) -> tuple:
+    """Two scenes for the camera's direct view of the windows: the room's shapes (occluders) with each window
+    emitting its camera-view image (``cards``), and with each emitting its uniform light (``radiance_rgb``), both
+    times the glass's T̄. Rendered with paths of one segment (emitters seen directly), their difference is
+    what the outdoor scene adds to the frame over the uniform light (:func:`render_window_view`)."""
+    mi = _mi()
+    transmittance = diffuse_glass_transmittance()
+    scenes = []
+    for textured in (True, False):
+        scene_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: dict(sensor), **shapes}
+        for index, frame in enumerate(window_portal_frames(room)):
+            radiance = (
+                {
+                    "type": "bitmap",
+                    "bitmap": mi.Bitmap(np.ascontiguousarray(outdoor.cards[index] * transmittance, dtype=np.float32)),
+                    "raw": True,
+                    "filter_type": "bilinear",
+                    "wrap_mode": "clamp",
+                }
+                if textured
+                else _rgb(outdoor.radiance_rgb[index] * transmittance)
+            )
+            name = f"window_view_{index}"
+            scene_dict[name] = emitting_quad(
+                name,
+                frame["centre_m"],
+                frame["u"],
+                frame["v"],
+                frame["normal"],
+                bsdf={"type": "diffuse"},
+                emitter={"type": "area", "radiance": radiance},
+                with_uv=textured,
+            )
+        scene = mi.load_dict(scene_dict)
+        opaque_lens_constants(scene)
+        scenes.append(scene)
+    return tuple(scenes)
 
 
 def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
@@ -869,7 +1019,13 @@ def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
     return frames
 
 
-def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, reference_flux_lm: float) -> dict[str, Any]:
+def window_portal_entries(
+    room: dict[str, Any],
+    dome: dict[str, Any],
+    *,
+    reference_flux_lm: float,
+    window_radiance: list[np.ndarray] | None = None,
+) -> dict[str, Any]:
     """Scene-dict entries that replace a uniform sky (``dome``) by emitters in the window openings.
 
     Seen from inside a closed room, a sky of uniform radiance L is visible only through the window
@@ -878,9 +1034,14 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
     from inside (nothing outside the room's convex shell can send a ray back in), so the estimate
     stays unbiased — while next-event estimation now aims shadow rays at the openings instead of at
     the whole sphere, most of which the walls block. Each portal is also the window's pane
-    (:func:`glass_bsdf`): it mirrors part of the room and emits the sky times the pane's transmittance T̄;
-    the rays it lets through leave the room and meet nothing. Its NEE sampling weight is its flux Φ = π L A = E A over ``reference_flux_lm`` (the
-    mean lamp flux, or the mean portal flux without lamps), at least 1 with lamps.
+    (:func:`portal_bsdf`): it mirrors the pane's share of the room (1 − T̄) and emits the sky times the pane's
+    transmittance T̄; a ray through it would leave the room and meet nothing, so it lets none through. Its NEE
+    sampling weight is its flux Φ = π L A = E A over ``reference_flux_lm`` (the mean lamp flux, or the mean
+    portal flux without lamps), at least 1 with lamps.
+
+    With ``window_radiance`` (:func:`outdoor_windows`: each window's mean outdoor radiance, in the units of all
+    domes' radiance together), each portal emits that times T̄ instead of the plain sky, and its flux is
+    π × its luminance × T̄ × A. The brute-force counterpart is :func:`window_glass_entries` with the same.
 
     References
     ----------
@@ -895,6 +1056,13 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
     if not frames or max(radiance_rgb) <= 0:
         return {}
     fluxes = [float(dome["illuminance_lux"]) * frame["area_m2"] * diffuse_glass_transmittance() for frame in frames]
+    if window_radiance is not None:
+        from .backdrop import LUMA
+
+        fluxes = [
+            math.pi * float(np.asarray(radiance) @ LUMA) * frame["area_m2"] * diffuse_glass_transmittance()
+            for radiance, frame in zip(window_radiance, frames, strict=True)
+        ]
     reference = reference_flux_lm if reference_flux_lm > 0 else sum(fluxes) / len(fluxes)
     entries = {}
     for index, (frame, flux_lm) in enumerate(zip(frames, fluxes, strict=True)):
@@ -908,10 +1076,14 @@ def window_portal_entries(room: dict[str, Any], dome: dict[str, Any], *, referen
             frame["u"],
             frame["v"],
             frame["normal"],
-            bsdf=glass_bsdf(),
+            bsdf=portal_bsdf(),
             emitter={
                 "type": "area",
-                "radiance": {"type": "rgb", "value": list(radiance_rgb)},
+                "radiance": (
+                    {"type": "rgb", "value": list(radiance_rgb)}
+                    if window_radiance is None
+                    else _rgb(np.asarray(window_radiance[index]) * diffuse_glass_transmittance())
+                ),
                 "sampling_weight": round(float(weight), 6),
             },
         )
@@ -1092,18 +1264,28 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
             LABEL_SENSOR_ID: label_sensor,
             **shapes,
         }
+        # The outdoor scene through the windows (render.backdrop) replaces the plain sky in both modes.
+        outdoor = outdoor_windows(spec)
+        window_radiance = outdoor.radiance_rgb if outdoor else None
         if use_portals:
             reference_lm = _mean_lamp_flux_lm(lights)
+            domes = [light for light in lights if light["kind"] == "dome"]
             for index, light in enumerate(lights):
-                if light["kind"] == "dome":
-                    scene_dict.update(window_portal_entries(spec["room"], light, reference_flux_lm=reference_lm))
-                elif light["kind"] != "sun":
+                if light["kind"] == "dome" and (outdoor is None or light is domes[0]):
+                    scene_dict.update(
+                        window_portal_entries(
+                            spec["room"], light, reference_flux_lm=reference_lm, window_radiance=window_radiance
+                        )
+                    )
+                elif light["kind"] not in ("sun", "dome"):
                     scene_dict.update(emitter_entries(light, index))
         else:
             if windows:
-                scene_dict.update(window_glass_entries(spec["room"]))
+                scene_dict.update(window_glass_entries(spec["room"], window_radiance))
             weights = emitter_sampling_weights(lights, spec["room"])
             for index, (light, weight) in enumerate(zip(lights, weights, strict=True)):
+                if light["kind"] == "dome" and outdoor is not None:
+                    continue  # the panes carry the outdoor scene; a dome behind them would count the sky twice
                 if light["kind"] != "sun" or not sun_lights:
                     scene_dict.update(emitter_entries(light, index, sampling_weight=weight))
         built = load_scene(
@@ -1117,6 +1299,8 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
             max_depth=int(render["max_depth"]),
         )
         built.window_light = window_light
+        if outdoor is not None:
+            built.window_view_scenes = window_view_scenes(spec["room"], outdoor, shapes, rgb_sensor)
         if sun_lights:
             sun_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: dict(rgb_sensor), **shapes}
             for index, light in enumerate(lights):

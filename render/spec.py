@@ -33,6 +33,8 @@ _APPEARANCE_SPAWN_KEY = (len(AXES), 1)
 # Spawn key of the distractor stream (unlabelled clutter), also derived from the layout sub-seed: the labelled
 # objects, lights and camera of a seed stay what they were, and frames that share a layout share their clutter.
 _DISTRACTOR_SPAWN_KEY = (len(AXES), 2)
+# The outdoor scene through the windows (render.backdrop): a stream of its own, keyed by the layout.
+_BACKDROP_SPAWN_KEY = (len(AXES), 3)
 # A sub-seed is a 32-bit unsigned integer: exact in JSON and in JavaScript.
 _SEED_MAX = 2**32
 
@@ -158,6 +160,7 @@ def make_spec(
         Bad composition or seeds; ``layout.LayoutError`` (a ValueError) when the objects do not fit.
     """
     from .appearance import assign_textures
+    from .backdrop import sample_backdrop
     from .camera import sample_camera
     from .distractors import clear_of_camera_and_lights, sample_distractors
     from .layout import choose_layout_mode, place_objects, sample_room
@@ -192,6 +195,11 @@ def make_spec(
     appearance_rng = np.random.default_rng(np.random.SeedSequence(sub_seeds["layout"], spawn_key=_APPEARANCE_SPAWN_KEY))
     assign_textures(room, objects, normalized["appearance"], appearance_rng, distractors=distractors)
     room, objects, distractors = round_floats(room), round_floats(objects), round_floats(distractors)
+
+    if room.get("windows"):
+        backdrop_rng = np.random.default_rng(np.random.SeedSequence(sub_seeds["layout"], spawn_key=_BACKDROP_SPAWN_KEY))
+        if backdrop_rng.random() < float(normalized["room"]["outdoor_view_probability"]):
+            room["backdrop"] = round_floats(sample_backdrop(backdrop_rng))
 
     lights = round_floats(sample_lights(normalized, room, objects, axis_rng(sub_seeds, "lighting")))
     camera = round_floats(sample_camera(normalized, room, objects, axis_rng(sub_seeds, "camera"), view_slot=view_slot))
