@@ -67,6 +67,19 @@ TEXTURE_FAMILIES: dict[str, tuple[str, ...]] = {
 #: a normal map would only alias into noise the denoiser cannot tell from texture.
 NORMAL_MAP_FAMILIES: tuple[str, ...] = ("parquet", "ceramic_tile", "stone_tile")
 
+#: Texture families whose roughness map is rendered (glossy surfaces whose gloss varies at room scale: boards that
+#: shine differently, glazed tiles and matte grout, polished stone, worn leather, brushed metal). The matte
+#: families (carpet, fabric, plaster, wallpaper, rugs, concrete) render as diffuse, where roughness does nothing.
+ROUGHNESS_MAP_FAMILIES: tuple[str, ...] = (
+    "wood",
+    "parquet",
+    "ceramic_tile",
+    "stone_tile",
+    "marble",
+    "leather",
+    "brushed_metal",
+)
+
 #: Base-colour image size. 256 px over a 0.4–2.4 m tile is 1.6–9.4 mm per texel, about a pixel of a
 #: 640×480 frame 1–3 m away; 512 px made textured renders slower (3 MB per texture, memory-bound lookups).
 TEXTURE_RESOLUTION_PX = 256
@@ -251,6 +264,58 @@ def _normal_texture(family: str, params_json: str, seed: int, resolution_px: int
         encoded = np.ascontiguousarray(np.asarray(image.convert("RGB"), dtype=np.float32) / 255.0)
     encoded.setflags(write=False)
     return encoded
+
+
+@functools.lru_cache(maxsize=256)
+def _roughness_texture(family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str) -> np.ndarray:
+    from PIL import Image
+
+    from .textures import texture_set
+
+    paths = texture_set(family, json.loads(params_json), seed, Path(cache_dir), resolution_px=resolution_px)
+    with Image.open(paths.roughness) as image:
+        roughness = np.ascontiguousarray(np.asarray(image.convert("L"), dtype=np.float32) / 255.0)
+    roughness.setflags(write=False)
+    return roughness
+
+
+def texture_roughness(texture: dict[str, Any]) -> np.ndarray | None:
+    """Perceptual roughness map (H, W) float32 in [0, 1] of a spec ``texture`` record, or None for a family not in
+    :data:`ROUGHNESS_MAP_FAMILIES`. Same rows as :func:`texture_linear_rgb`."""
+    if str(texture["family"]) not in ROUGHNESS_MAP_FAMILIES:
+        return None
+    return _roughness_texture(
+        str(texture["family"]),
+        json.dumps(dict(texture["params"]), sort_keys=True),
+        int(texture["seed"]),
+        int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)),
+        str(texture_cache_dir()),
+    )
+
+
+@functools.lru_cache(maxsize=256)
+def _roughness_spread(
+    family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str
+) -> tuple[float, float, float, np.ndarray]:
+    roughness = _roughness_texture(family, params_json, seed, resolution_px, cache_dir)
+    low, high = (float(v) for v in np.percentile(roughness, [2.0, 98.0]))
+    weight = np.clip((roughness - low) / max(high - low, 1e-6), 0.0, 1.0).astype(np.float32)[..., None]
+    weight.setflags(write=False)
+    return float(roughness.mean()), low, high, np.ascontiguousarray(weight)
+
+
+def roughness_spread(texture: dict[str, Any]) -> tuple[float, float, float, np.ndarray] | None:
+    """``(mean, low, high, weight)`` of a texture's roughness map: its mean, 2nd and 98th percentiles, and the map
+    rescaled to [0, 1] between them as an (H, W, 1) float32 image (cached per record); None without a map."""
+    if str(texture["family"]) not in ROUGHNESS_MAP_FAMILIES:
+        return None
+    return _roughness_spread(
+        str(texture["family"]),
+        json.dumps(dict(texture["params"]), sort_keys=True),
+        int(texture["seed"]),
+        int(texture.get("resolution_px", TEXTURE_RESOLUTION_PX)),
+        str(texture_cache_dir()),
+    )
 
 
 def texture_normal_rgb(texture: dict[str, Any]) -> np.ndarray | None:

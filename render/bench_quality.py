@@ -7,7 +7,8 @@
    ``sun`` (sunlight through a window).
 2. Reference per seed: the same scene at ``--reference-spp`` samples per pixel, denoiser and sensor
    noise off, sky through window portals (unbiased; ``tests/render/test_image_quality.py``
-   checks it against brute force). Its linear radiance is cached under ``--cache`` by the spec's bytes, so
+   checks it against brute force). Its linear radiance is cached under ``--cache`` by the spec's bytes and the
+   render core's source (:func:`render_code_digest`), so
    reruns are quick; it is exposed like any frame (sensor noise off) each run.
 3. Default frame: the campaign default budget (only the resolution changed), end to end through
    :func:`render.frame.render_frame`, timed in process CPU seconds (all threads). PSNR and
@@ -39,6 +40,7 @@ from __future__ import annotations
 
 import argparse
 import copy
+import functools
 import hashlib
 import math
 import os
@@ -130,6 +132,21 @@ def _with(
     return spec
 
 
+@functools.lru_cache(maxsize=1)
+def render_code_digest() -> str:
+    """SHA-256 of the render core's source (every ``render/**/*.py`` but the benchmarks and the CLI): part of a
+    reference's cache key, so a change to how scenes are built or rendered never compares frames with a reference
+    of the old code, whose spec bytes may be the same."""
+    root = Path(__file__).resolve().parent
+    digest = hashlib.sha256()
+    for path in sorted(root.rglob("*.py")):
+        if path.name.startswith("bench") or path.name == "cli.py":
+            continue
+        digest.update(str(path.relative_to(root)).encode())
+        digest.update(path.read_bytes())
+    return digest.hexdigest()
+
+
 #: Sampler-seed offset between independent reference passes of one scene.
 PASS_SEED_OFFSET = 1_000_003
 
@@ -147,7 +164,7 @@ def reference_radiance(
     reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
     if pass_index:
         reference["sub_seeds"]["noise"] = int(reference["sub_seeds"]["noise"]) + PASS_SEED_OFFSET * int(pass_index)
-    key = hashlib.sha256(spec_to_json(reference).encode()).hexdigest()[:20]
+    key = hashlib.sha256((spec_to_json(reference) + render_code_digest()).encode()).hexdigest()[:20]
     path = cache / f"reference-radiance-{key}.npy"
     if path.is_file():
         return np.load(path)

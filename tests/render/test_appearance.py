@@ -268,6 +268,12 @@ def test_pooled_bsdfs_take_the_colour_and_relief_of_each_new_material():
     assert not np.allclose(
         appearance.texture_normal_rgb(first["texture"]), appearance.texture_normal_rgb(second["texture"])
     )
+    # And its gloss map: the specular weight of the second tile's roughness map, not the first's.
+    from render.scene import _gloss_weight, _snapped_material
+
+    gloss = np.asarray(params["brdf_0.nested_bsdf.specular_reflectance.data"])
+    assert np.allclose(gloss, _gloss_weight(_snapped_material(second)))
+    assert not np.allclose(gloss, _gloss_weight(_snapped_material(first)))
     # A family without relief gets no normal map.
     assert appearance.texture_normal_rgb(appearance.texture_record("marble", 1, 1.0)) is None
 
@@ -388,3 +394,51 @@ def test_a_jittered_texture_is_its_base_image_jittered_once_per_record():
     expected = appearance.jitter_hsv(appearance.texture_linear_rgb(record), 30.0, 1.1, 0.9)
     assert np.allclose(image, expected, atol=1e-6) and not image.flags.writeable
     assert appearance.texture_linear_rgb(dict(jittered)) is image  # cached: the HSV round trip runs once
+
+
+def test_glossy_textures_vary_their_gloss_with_their_roughness_map():
+    """Glazed tiles shine and their grout does not: a glossy tile's specular weight is lower where its roughness map
+    is rougher (a GGX highlight's peak falls as 1/α², Walter et al., EGSR 2007), a metal takes the map as its GGX
+    alpha per texel, and matte or plain materials keep one roughness."""
+    import mitsuba as mi
+
+    from render.scene import _gloss_weight, _snapped_material, bsdf_dict, roughness_span
+
+    backend.init_renderer(variant="llvm_ad_rgb")
+    tile = {
+        "kind": "plastic",
+        "rgb": [0.5] * 3,
+        "roughness": 0.2,
+        "texture": appearance.texture_record("ceramic_tile", 3, 1.0),
+    }
+    span = roughness_span(tile)
+    assert span is not None and span[0] < 0.2 < span[1]
+    roughness = appearance.texture_roughness(tile["texture"])
+    gloss = _gloss_weight(_snapped_material(tile))[..., 0]
+    assert gloss.max() == pytest.approx(1.0) and gloss.min() < 0.6
+    assert np.corrcoef(roughness.ravel(), gloss.ravel())[0, 1] < -0.5
+    assert float(gloss[roughness <= np.percentile(roughness, 20)].mean()) > float(
+        gloss[roughness >= np.percentile(roughness, 95)].mean()
+    )
+
+    metal = {
+        "kind": "metal",
+        "rgb": [0.8] * 3,
+        "roughness": 0.3,
+        "texture": appearance.texture_record("brushed_metal", 2, 1.0),
+    }
+    metal_span = roughness_span(metal)
+    assert metal_span is not None
+    bsdf = mi.load_dict(bsdf_dict(_snapped_material(metal)))
+    alphas = np.asarray(mi.traverse(bsdf)["brdf_0.alpha.data"])[..., 0]
+    low, high = metal_span
+    assert alphas.min() >= low**2 - 1e-6 and alphas.max() <= high**2 + 1e-6 and alphas.std() > 0
+
+    carpet = {
+        "kind": "diffuse",
+        "rgb": [0.5] * 3,
+        "roughness": 0.9,
+        "texture": appearance.texture_record("carpet", 1, 1.0),
+    }
+    assert roughness_span(carpet) is None
+    assert roughness_span({"kind": "plastic", "rgb": [0.5] * 3, "roughness": 0.3}) is None
