@@ -118,13 +118,15 @@ def texture_record(family: str, variant: int, scale: float) -> dict[str, Any]:
 
 def _materials(
     spec_room: dict[str, Any], objects: list[dict[str, Any]], distractors: list[dict[str, Any]] | None = None
-) -> Iterator[dict[str, Any]]:
-    """Every material dict of the room, the objects and the distractors, in a fixed order."""
+) -> Iterator[tuple[str, dict[str, Any]]]:
+    """Every material dict of the room, the objects and the distractors with its surface kind
+    (:data:`render.budget.SURFACE_KINDS`), in a fixed order."""
     for slot in sorted(spec_room.get("materials", {})):
-        yield spec_room["materials"][slot]
-    for item in [*objects, *(distractors or [])]:
-        for slot in sorted(item.get("materials", {}) or {}):
-            yield item["materials"][slot]
+        yield ("floor" if slot == "floor" else "walls"), spec_room["materials"][slot]
+    for kind, items in (("objects", objects), ("clutter", distractors or [])):
+        for item in items:
+            for slot in sorted(item.get("materials", {}) or {}):
+                yield kind, item["materials"][slot]
 
 
 def assign_textures(
@@ -142,6 +144,10 @@ def assign_textures(
     allowed), ``texture_variants``, ``texture_scale`` [low, high], and the colour jitter ``hue_jitter_deg``,
     ``saturation_scale`` and ``value_scale`` (:func:`jitter_hsv`): a plain material's ``rgb`` is jittered here, a
     textured one records ``hsv_jitter`` [hue °, saturation ×, value ×] and its image is jittered at scene build.
+    Per surface kind (:data:`render.budget.SURFACE_KINDS`), ``<kind>_texture_scale`` [low, high] multiplies the texture scale
+    range (the product drawn log-uniformly with the same draw) and ``<kind>_colour_jitter`` j scales the jitter:
+    the hue turn × j, the saturation and value factors raised to the power j (j = 0: the colours as generated,
+    1: the jitter above, 2: twice as many stops either way).
     Metals and materials without a family (an upload's own look) keep their colour. Every material draws the same
     number of random numbers whatever it becomes, so one material's outcome never shifts another's; the
     distractors' materials come last, so the room and the objects wear the same textures with or without them.
@@ -153,13 +159,15 @@ def assign_textures(
     hue_deg = float(appearance.get("hue_jitter_deg", 0.0))
     sat_low, sat_high = (float(v) for v in appearance.get("saturation_scale", (1.0, 1.0)))
     val_low, val_high = (float(v) for v in appearance.get("value_scale", (1.0, 1.0)))
-    for material in _materials(room, objects, distractors):
+    for surface_kind, material in _materials(room, objects, distractors):
         draw_use, draw_family, draw_variant, draw_scale, draw_hue, draw_sat, draw_val = rng.random(7)
+        strength = float(appearance.get(f"{surface_kind}_colour_jitter", 1.0))
         jitter = [
-            round(hue_deg * (2.0 * draw_hue - 1.0), 6),
-            round(sat_low + (sat_high - sat_low) * draw_sat, 6),
-            round(val_low + (val_high - val_low) * draw_val, 6),
+            round(hue_deg * strength * (2.0 * draw_hue - 1.0), 6),
+            round((sat_low + (sat_high - sat_low) * draw_sat) ** strength, 6),
+            round((val_low + (val_high - val_low) * draw_val) ** strength, 6),
         ]
+        kind_low, kind_high = (float(v) for v in appearance.get(f"{surface_kind}_texture_scale", (1.0, 1.0)))
         jitters = material.get("family") and material.get("kind") != "metal" and jitter != [0.0, 1.0, 1.0]
         families = [f for f in TEXTURE_FAMILIES.get(str(material.get("family", "")), ()) if f in allowed]
         if not families or draw_use >= probability:
@@ -169,7 +177,8 @@ def assign_textures(
             continue
         family = families[min(int(draw_family * len(families)), len(families) - 1)]
         variant = min(int(draw_variant * variants), variants - 1)
-        scale = scale_low * (scale_high / scale_low) ** draw_scale  # log-uniform: as many halvings as doublings
+        low, high = scale_low * kind_low, scale_high * kind_high
+        scale = low * (high / low) ** draw_scale  # log-uniform: as many halvings as doublings
         material["texture"] = texture_record(family, variant, scale)
         if jitters:
             material["texture"]["hsv_jitter"] = jitter

@@ -71,6 +71,15 @@ class Field:
     choices: tuple[str, ...] = ()
 
 
+#: Surface kinds with their own texture scale and colour-jitter strength (``appearance.<kind>_…``; the render core's
+#: ``appearance.assign_textures`` sorts every material into one), and what each covers.
+SURFACE_KINDS: dict[str, str] = {
+    "floor": "the floor",
+    "walls": "walls, ceiling, doors, window frames, skirting and curtains",
+    "objects": "the labelled objects",
+    "clutter": "the unlabelled clutter",
+}
+
 # Sources for default ranges. Values marked "from memory" were not re-checked
 # against the book at hand; "common practice" marks rules of thumb.
 FIELDS: tuple[Field, ...] = (
@@ -529,6 +538,32 @@ FIELDS: tuple[Field, ...] = (
         "Physical size of a texture relative to its variant's (board width, tile size, weave), drawn "
         "log-uniformly per surface.",
     ),
+    *(
+        field
+        for kind, surfaces in SURFACE_KINDS.items()
+        for field in (
+            Field(
+                "appearance",
+                f"{kind}_texture_scale",
+                "range",
+                "×",
+                0.25,
+                4.0,
+                f"Texture size on {surfaces}, times the texture scale above (the product drawn log-uniformly per "
+                "surface).",
+            ),
+            Field(
+                "appearance",
+                f"{kind}_colour_jitter",
+                "float",
+                "×",
+                0.0,
+                3.0,
+                f"Colour jitter strength on {surfaces}: the hue turn times this, the saturation and brightness "
+                "factors raised to this power. 0 keeps their generated colours; 1 is the jitter above.",
+            ),
+        )
+    ),
     Field(
         "appearance",
         "distractor_count",
@@ -603,6 +638,8 @@ DEFAULT_BUDGET: dict[str, dict[str, Any]] = {
         "saturation_scale": [0.8, 1.2],
         "value_scale": [0.85, 1.15],
         "texture_scale": [0.8, 1.25],
+        **{f"{kind}_texture_scale": [1.0, 1.0] for kind in SURFACE_KINDS},
+        **{f"{kind}_colour_jitter": 1.0 for kind in SURFACE_KINDS},
         "distractor_count": [3, 10],
     },
     "variation": {"layouts": 1000, "lighting_per_layout": 2, "views_per_lighting": 2},

@@ -442,3 +442,44 @@ def test_glossy_textures_vary_their_gloss_with_their_roughness_map():
     }
     assert roughness_span(carpet) is None
     assert roughness_span({"kind": "plastic", "rgb": [0.5] * 3, "roughness": 0.3}) is None
+
+
+def _all_materials(spec: dict) -> dict[str, list[dict]]:
+    from render.appearance import _materials
+
+    kinds: dict[str, list[dict]] = {}
+    for kind, material in _materials(spec["room"], spec["objects"], spec.get("distractors")):
+        kinds.setdefault(kind, []).append(material)
+    return kinds
+
+
+def test_each_surface_kind_has_its_own_colour_jitter_and_texture_scale():
+    """Per surface kind: colour jitter 0 keeps that kind's generated colours while the others are still jittered, and
+    a texture scale range multiplies that kind's texture sizes (same draw, so exactly ×2 here)."""
+    from render.spec import make_spec
+
+    composition = {"chair": 2, "sofa": 1, "coffee_table": 1}
+    still = {"hue_jitter_deg": 0.0, "saturation_scale": [1.0, 1.0], "value_scale": [1.0, 1.0]}
+    checked = 0
+    for seed in range(4):
+        plain = _all_materials(make_spec({"appearance": still}, composition, seed))
+        objects_still = _all_materials(make_spec({"appearance": {"objects_colour_jitter": 0.0}}, composition, seed))
+        assert objects_still["objects"] == plain["objects"]
+        assert objects_still["walls"] != plain["walls"]  # the room is still jittered
+        default = _all_materials(make_spec(None, composition, seed))
+        bigger = _all_materials(make_spec({"appearance": {"floor_texture_scale": [2.0, 2.0]}}, composition, seed))
+        for before, after in zip(default["floor"], bigger["floor"], strict=True):
+            if before.get("texture"):
+                assert after["texture"]["tile_size_m"] == pytest.approx(2 * before["texture"]["tile_size_m"], rel=1e-4)
+                checked += 1
+        assert bigger["objects"] == default["objects"] and bigger["walls"] == default["walls"]
+    assert checked >= 1
+
+
+def test_surface_kind_settings_are_checked_like_the_other_ranges():
+    from render.budget import BudgetError, normalize_budget
+
+    with pytest.raises(BudgetError, match="appearance.walls_colour_jitter"):
+        normalize_budget({"appearance": {"walls_colour_jitter": -1.0}})
+    with pytest.raises(BudgetError, match="appearance.floor_texture_scale"):
+        normalize_budget({"appearance": {"floor_texture_scale": [2.0, 1.0]}})
