@@ -338,7 +338,11 @@ def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
 
 
 def _normal_image(material: dict[str, Any]) -> np.ndarray | None:
-    """The normal map of a procedurally textured material, when its family has one that shows."""
+    """The normal map of a procedurally textured material, when its family has one that shows, or an upload's own."""
+    if material.get("user_normal"):
+        from .user_models import normal_rgb
+
+        return normal_rgb(material["user_normal"])
     if not material.get("texture"):
         return None
     from .appearance import texture_normal_rgb
@@ -361,6 +365,8 @@ def _snapped_material(material: dict[str, Any]) -> dict[str, Any]:
             snapped["roughness_span"] = list(span)
     if material.get("user_texture"):
         snapped["user_texture"] = material["user_texture"]
+    if material.get("user_normal"):
+        snapped["user_normal"] = material["user_normal"]
     return snapped
 
 

@@ -12,10 +12,12 @@ An uploaded GLB / glTF or OBJ + MTL keeps its look when its asset says so (``loo
 - :func:`texture_linear_rgb` gives the scene (``render.scene.bsdf_dict``) that part's base colour as a
   linear float32 image: the texture decoded from sRGB times the base-colour factor.
 
-Not carried over: normal maps (Mitsuba 3 has a ``normalmap`` BSDF, but wrapping every textured part in it adds a
-BSDF type — one more kernel compile per frame structure — and changes the pooled BSDF's parameter paths, so it is
-left out), metallic-roughness and occlusion textures (their factors are used), emission, transparency (alpha is
-dropped: the part renders opaque), texture transforms and second UV sets.
+- a glTF part's ``normalTexture`` (tangent space, +X right, +Y up in the image, glTF 2.0 §3.9.3) is kept too
+  (``Look.normal_texture``) and renders through Mitsuba's ``normalmap`` (:func:`mitsuba_normal_map`).
+
+Not carried over: the normal texture's ``scale``, metallic-roughness and occlusion textures (their factors are
+used), emission, transparency (alpha is dropped: the part renders opaque), texture transforms and second UV sets.
+OBJ + MTL bump maps (``bump`` / ``map_Bump``) are height maps of no agreed scale and are left out.
 
 References
 ----------
@@ -55,13 +57,16 @@ ALBEDO_MIN, ALBEDO_MAX = 0.01, 0.95
 @dataclass
 class Look:
     """One part's material: ``rgb`` linear base colour (the factor), ``roughness`` and ``metallic`` in 0..1,
-    ``texture`` (H, W, 3) uint8 sRGB-encoded base-colour pixels or None."""
+    ``texture`` (H, W, 3) uint8 sRGB-encoded base-colour pixels or None; ``normal_texture`` the part's normal map
+    (glTF) or None."""
 
     rgb: tuple[float, float, float] = DEFAULT_RGB_LINEAR
     roughness: float = 0.6
     metallic: float = 0.0
     texture: np.ndarray | None = field(default=None, repr=False)
     name: str = ""
+    #: (H, W, 3) uint8 tangent-space normal map as the file stores it (glTF convention), or None.
+    normal_texture: np.ndarray | None = field(default=None, repr=False)
 
 
 def _unit_colour(value: Any) -> np.ndarray | None:
@@ -138,6 +143,7 @@ def visual_look(visual: Any, *, has_uv: bool) -> Look:
             metallic=_factor(material.metallicFactor, 1.0),
             texture=texture,
             name=str(getattr(material, "name", "") or ""),
+            normal_texture=_texture_pixels(getattr(material, "normalTexture", None)) if has_uv else None,
         )
     if getattr(visual, "kind", None) in ("vertex", "face"):
         colour = _unit_colour(getattr(visual, "main_color", None))
@@ -160,7 +166,8 @@ def look_rgb_linear(look: Look) -> np.ndarray:
 
 
 def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -> dict[str, Any]:
-    """Spec material (JSON) of a part: ``{"kind", "rgb", "roughness"}`` plus ``user_texture`` when textured.
+    """Spec material (JSON) of a part: ``{"kind", "rgb", "roughness"}`` plus ``user_texture`` when textured and
+    ``user_normal`` (the same record) when it has a normal map.
 
     Metallic ≥ 0.5 renders as ``metal`` (glTF: a metal's base colour is its specular F0); a dielectric as
     ``plastic`` (glTF dielectric: diffuse base under a specular coat of F0 = 0.04, IOR 1.5), or as ``diffuse`` when
@@ -180,6 +187,8 @@ def look_material(look: Look, *, texture_record: dict[str, Any] | None = None) -
     }
     if look.texture is not None and texture_record is not None:
         material["user_texture"] = dict(texture_record)
+    if look.normal_texture is not None and texture_record is not None:
+        material["user_normal"] = dict(texture_record)
     return material
 
 
@@ -203,6 +212,22 @@ def mitsuba_uv(uv: np.ndarray) -> np.ndarray:
     out = np.array(uv, dtype=np.float64, copy=True)
     out[:, 1] = 1.0 - out[:, 1]
     return out
+
+
+def mitsuba_normal_map(pixels: np.ndarray) -> np.ndarray:
+    """A glTF tangent-space normal map (H, W, 3) uint8 → the float32 image Mitsuba's ``normalmap`` reads
+    (n = 2·value − 1 in the shading frame).
+
+    The values are linear (no sRGB decoding: glTF 2.0 §3.9.3 stores the vector itself). Mitsuba's shading frame is
+    s = ∂p/∂u and t = n × s, so its y runs *up* the image whatever way v runs, which is glTF's +Y: the channels
+    are taken as they are (a rendered test checks the direction). glTF's tangent ``w`` for mirrored texture
+    coordinates has no counterpart: a mirrored part's relief is inverted in y. Normals are renormalised after
+    8-bit rounding and kept out of the surface.
+    """
+    vector = np.asarray(pixels, dtype=np.float64)[..., :3] / 255.0 * 2.0 - 1.0
+    vector[..., 2] = np.maximum(vector[..., 2], 1e-3)  # a tangent-space normal never points into the surface
+    vector /= np.linalg.norm(vector, axis=-1, keepdims=True)
+    return ((vector + 1.0) / 2.0).astype(np.float32)
 
 
 # --- files that must come with a model ---------------------------------------------------------------------------

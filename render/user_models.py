@@ -55,3 +55,25 @@ def texture_linear_rgb(record: dict[str, Any]) -> np.ndarray:
     """Linear-RGB base colour (H, W, 3) float32 of a spec ``user_texture`` record (texture × factor; read-only,
     cached per process). Row 0 is the image's top row, as Mitsuba's bitmap expects."""
     return _linear_texture(json.dumps(record, sort_keys=True))
+
+
+@functools.lru_cache(maxsize=64)
+def _normal_map(record_json: str) -> np.ndarray:
+    from render.user_materials import mitsuba_normal_map
+
+    record = json.loads(record_json)
+    model = load_model_cached(
+        record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"], front=record.get("front") or None
+    )
+    index = int(record["part"])
+    if not 0 <= index < len(model.parts) or model.parts[index].look.normal_texture is None:
+        raise ValueError(f"user normal map: part {index} of {Path(record['mesh_path']).name} has none")
+    image = mitsuba_normal_map(model.parts[index].look.normal_texture)
+    image.setflags(write=False)
+    return image
+
+
+def normal_rgb(record: dict[str, Any]) -> np.ndarray:
+    """Mitsuba ``normalmap`` image (H, W, 3) float32 of a spec ``user_normal`` record (read-only, cached per
+    process; :func:`render.user_materials.mitsuba_normal_map`)."""
+    return _normal_map(json.dumps(record, sort_keys=True))
