@@ -37,7 +37,7 @@ lint: $(STAMP)
 	$(VENV)/bin/ruff format --check .
 	$(VENV)/bin/lint-imports
 	$(PY) scripts/check_private_names.py
-	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy campaigns datasets render teams fleet evenframe
+	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy campaigns datasets render teams fleet evenframe dashboard
 
 bench: $(STAMP)
 	$(PY) -m render.bench --frames 5

@@ -82,6 +82,7 @@ INSTALLED_APPS = [
     "campaigns",
     "datasets",
     "fleet",
+    "dashboard",
     "axes",
 ]
 
@@ -110,7 +111,7 @@ LOGOUT_REDIRECT_URL = "login"
 TEMPLATES = [
     {
         "BACKEND": "django.template.backends.django.DjangoTemplates",
-        "DIRS": [BASE_DIR / "templates"],
+        "DIRS": [],  # templates live in the apps (dashboard/templates, datasets/templates)
         "APP_DIRS": True,
         "OPTIONS": {
             "context_processors": [
@@ -201,7 +202,7 @@ DATABASE_RETRY_S = float(os.environ.get("EVENFRAME_DATABASE_RETRY_S", "300"))
 # --- static, i18n ----------------------------------------------------------
 STATIC_URL = "/static/"
 STATIC_ROOT = Path(os.environ.get("EVENFRAME_STATIC_ROOT", DATA_DIR / "static")).resolve()
-STATICFILES_DIRS = [BASE_DIR / "static"]
+STATICFILES_DIRS: list[Path] = []  # static files live in dashboard/static
 # Serve straight from the app folders too, so the embedded demo needs no collectstatic step.
 WHITENOISE_USE_FINDERS = True
 try:

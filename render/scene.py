@@ -402,7 +402,7 @@ class BsdfPool:
             return key, mi.load_dict(bsdf_dict(snapped))
         bsdf = free.pop()
         params = mi.traverse(bsdf)
-        if span:
+        if span and image is not None:
             # A gloss-varying texture: its colour, its gloss map (or a metal's alpha map) and its relief.
             weight = _roughness_weight(snapped)
             low, high = span

@@ -135,7 +135,7 @@ def _plan_data(user, **overrides) -> dict:
     """The planner form's own initial values (every budget field at its default), then ``overrides``."""
     from django import forms
 
-    from campaigns.forms import CampaignForm
+    from dashboard.forms import CampaignForm
 
     form = CampaignForm(user=user)
     data = {}

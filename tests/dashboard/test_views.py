@@ -151,7 +151,7 @@ def test_live_json_has_counters_and_series(client, done_campaign, people):
 
 
 def _plan_data(team_obj, **overrides):
-    from campaigns.forms import budget_form_data
+    from dashboard.forms import budget_form_data
 
     data = {
         "name": "Lamps and clocks",
@@ -213,8 +213,8 @@ def test_create_campaign_with_a_per_class_min_contrast(client, people, object_cl
 
 
 def test_a_service_error_on_a_quota_threshold_lands_on_its_column(client, people, object_classes):
-    from campaigns.forms import CampaignForm
     from campaigns.services import CampaignError
+    from dashboard.forms import CampaignForm
 
     form = CampaignForm(_plan_data(people["team"]), user=people["pia"])
     assert form.is_valid(), form.errors

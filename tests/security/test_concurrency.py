@@ -111,7 +111,7 @@ def no_preview(monkeypatch) -> None:
 
 
 def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
-    from campaigns.forms import budget_form_data
+    from dashboard.forms import budget_form_data
 
     data: dict[str, Any] = {
         "name": name,

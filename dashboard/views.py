@@ -35,8 +35,8 @@ from django.views.decorators.cache import never_cache
 from django.views.decorators.http import require_GET, require_POST
 
 from campaigns import asset_files, errors, selectors, services
-from campaigns.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
 from campaigns.models import Asset, Campaign, Frame
+from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
 from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user
 
 GALLERY_PAGE = 24
@@ -769,3 +769,37 @@ def asset_preview(request: HttpRequest, asset_id: int) -> FileResponse:
     response = FileResponse(open(path, "rb"), content_type="image/png")
     response["Cache-Control"] = "private, max-age=600"
     return response
+
+
+def home(request: HttpRequest) -> HttpResponse:
+    return redirect("campaigns:list")
+
+
+def protected_media(request: HttpRequest, path: str) -> FileResponse:
+    """Files under MEDIA_ROOT, for members of the owning team only.
+
+    ``campaigns/<id>/...`` belongs to that campaign's team; ``assets/...`` to the uploading asset's team
+    (shared procedural previews are readable by every signed-in user). Anything else is not served.
+    """
+    root = Path(settings.MEDIA_ROOT).resolve()
+    target = (root / path).resolve()
+    # Refuse anything that escapes the media root (../, absolute paths, symlinks out).
+    if root not in target.parents or not target.is_file():
+        raise Http404("no such file")
+    parts = target.relative_to(root).parts
+    allowed = False
+    if len(parts) >= 3 and parts[0] == "campaigns" and parts[1].isdigit():
+        team_id = Campaign.objects.filter(pk=int(parts[1])).values_list("team_id", flat=True).first()
+        allowed = team_id is not None and has_role(user=request.user, team=team_id, role=VIEWER)
+    elif parts and parts[0] == "assets":
+        relative = "/".join(parts)
+        asset = Asset.objects.filter(mesh_file=relative).values("team_id").first()
+        if asset is not None:
+            allowed = asset["team_id"] is None or has_role(user=request.user, team=asset["team_id"], role=VIEWER)
+        else:
+            allowed = bool(getattr(request.user, "is_superuser", False))
+    elif getattr(request.user, "is_superuser", False):
+        allowed = True
+    if not allowed:
+        raise Http404("no such file")  # outsiders must not learn that the file exists
+    return FileResponse(open(target, "rb"))
