@@ -30,13 +30,15 @@ test-services: $(STAMP)
 	EVENFRAME_SECRET_KEY=$${EVENFRAME_SECRET_KEY:-test-only-secret-key-for-the-suite-0123456789abcdef} \
 	EVENFRAME_DEBUG=1 $(MAKE) test
 
-# Style, the import contracts of DEVELOPERS.md (pyproject.toml [tool.importlinter]), private names, and types
+# Style, the import contracts of DEVELOPERS.md (pyproject.toml [tool.importlinter]), private names, reasons for
+# function-level imports of our modules, and types
 # (mypy with the Django plugin; it reads the settings, so it gets a data folder of its own).
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .
 	$(VENV)/bin/ruff format --check .
 	$(VENV)/bin/lint-imports
 	$(PY) scripts/check_private_names.py
+	$(PY) scripts/check_deferred_imports.py
 	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy campaigns datasets render teams fleet evenframe dashboard
 
 bench: $(STAMP)

@@ -28,6 +28,8 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, cast
 
+from evenframe.celery import app
+
 MAX_UPLOAD_BYTES = 32 * 1024 * 1024
 CHECK_TIMEOUT_S = 30.0
 CHECK_MEMORY_BYTES = 2 * 1024**3
@@ -117,6 +119,7 @@ def unpack_staged_zip(staged: StagedMesh) -> StagedMesh:
     Raises :class:`UploadError` with the render core's reason (path traversal, links, too many or too large
     entries, a zip bomb, not exactly one model file) and leaves nothing behind.
     """
+    # deferred: keeps render.meshes (trimesh) out of the web process
     from render.meshes import MeshError, extract_model_zip
 
     token = staged.final.name.split(".")[0]
@@ -299,7 +302,7 @@ def _asset_parts(
     """The asset's parts (``render.assets.Part``) in its local frame: front +y, z up."""
     import numpy as np
 
-    from render import assets
+    from render import assets  # deferred: keeps render.assets (trimesh, scipy) out of the web process
 
     if kind == "mesh":
         if mesh_path is None:
@@ -348,13 +351,14 @@ def render_asset_preview(
     import numpy as np
     import trimesh
 
+    # deferred: Mitsuba loads in the worker that renders the preview, not the web process
     from render.backend import init_renderer
 
     init_renderer(variant=variant)
     import mitsuba as mi
 
-    from render import scene as render_scene
-    from render import srgb
+    from render import scene as render_scene  # deferred: keeps the renderer (render.scene) out of the web process
+    from render import srgb  # deferred: keeps the render core out of the web process
 
     parts = _asset_parts(
         kind=kind, class_name=class_name, mesh_path=mesh_path, unit=unit, up_axis=up_axis, front=front, look=look
@@ -426,8 +430,6 @@ def request_preview(*, asset_pk: int) -> None:
     import logging
 
     try:
-        from evenframe.celery import app
-
         app.send_task("evenframe.asset_preview", kwargs={"asset_pk": asset_pk})
     except Exception:  # noqa: BLE001 - a missing preview shows as pending; the upload itself succeeded
         logging.getLogger("evenframe.campaigns").warning(

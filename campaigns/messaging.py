@@ -13,6 +13,8 @@ from collections.abc import Callable
 
 from django.db import transaction
 
+from evenframe.celery import app
+
 log = logging.getLogger("evenframe.campaigns")
 
 TASK_NAME = "evenframe.render_frame"
@@ -30,8 +32,6 @@ def send_frame_task(
     *, frame_id: int, dispatch_no: int, campaign_uid: str, task_id: str, countdown_s: float = 0.0
 ) -> None:
     """Put one render task on the broker. Tests replace this to capture messages instead."""
-    from evenframe.celery import app
-
     app.send_task(
         TASK_NAME,
         kwargs={"frame_id": frame_id, "dispatch_no": dispatch_no, "campaign_uid": campaign_uid},
@@ -49,8 +49,6 @@ def revoke_tasks(*, task_ids: list[str]) -> None:
     if settings.CELERY_BROKER_URL.startswith("filesystem://"):
         return  # no remote control on this transport; claim_frame releases the frames instead
     try:
-        from evenframe.celery import app
-
         app.control.revoke(task_ids)
     except Exception:  # noqa: BLE001 - revocation is an optimisation; claim_frame is the guarantee
         log.warning("could not revoke %d task(s); workers will release them at start", len(task_ids), exc_info=True)

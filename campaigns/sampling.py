@@ -23,6 +23,7 @@ from typing import Any
 import numpy as np
 
 from campaigns import planner
+from render.budget import normalize_budget
 
 # Render cost grows with the number of objects; a frame never holds more than this many, whatever the room.
 MAX_OBJECTS_PER_FRAME = 12
@@ -30,8 +31,9 @@ MAX_OBJECTS_PER_FRAME = 12
 
 def room_floor_area_m2(*, budget: Mapping[str, Any], seeds: planner.FrameSeeds) -> float:
     """Floor area of the room this frame's layout seed gives (the room is the layout stream's first draw)."""
-    from render.budget import normalize_budget
-    from render.layout import sample_room
+    from render.layout import sample_room  # deferred: keeps render.layout (trimesh, shapely) out of Django start-up
+
+    # deferred: keeps render.spec (scene samplers, trimesh) out of Django start-up
     from render.spec import axis_rng, derive_sub_seeds
 
     sub_seeds = derive_sub_seeds(
@@ -87,7 +89,10 @@ def render_core_label_pass(*, threads: int | None = None, variant: str | None = 
     """Labels of one frame from the render core (``make_spec`` + ``render_frame``, nothing written)."""
 
     def run(budget: dict[str, Any], composition: dict[str, int], seeds: planner.FrameSeeds) -> list[dict[str, Any]]:
+        # deferred: render-core entry point stays a call-time import (workers load the renderer late)
         from render.frame import render_frame
+
+        # deferred: keeps render.spec (scene samplers, trimesh) out of Django start-up
         from render.spec import make_spec
 
         spec = make_spec(
@@ -124,7 +129,7 @@ def simulate(
     the label pass's. ``in_flight`` frames are planned before the oldest one's
     labels are known, as the scheduler does with several frames queued.
     """
-    from render.layout import LayoutError
+    from render.layout import LayoutError  # deferred: keeps render.layout (trimesh, shapely) out of Django start-up
 
     if strategy not in ("planner", "uniform"):
         raise ValueError(f"strategy must be 'planner' or 'uniform', got {strategy!r}")

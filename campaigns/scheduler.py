@@ -29,8 +29,10 @@ from django.db.models import Q
 from django.utils import timezone
 
 from campaigns import costs, messaging, planner, selectors, services
+from campaigns.frame_files import frame_output_dir, remove_partial_folders
 from campaigns.models import Campaign, Frame
 from campaigns.sampling import max_objects_for_frame
+from fleet.models import live_workers
 
 log = logging.getLogger("evenframe.campaigns")
 
@@ -107,14 +109,10 @@ def send_messages(*, messages: list[tuple[int, int, str, float]], campaign_uid: 
 
 
 def campaign_slots_live() -> bool:
-    from fleet.models import live_workers
-
     return live_workers().exists()
 
 
 def campaign_slots() -> dict[int, int]:
-    from fleet.models import live_workers
-
     weights = dict(Campaign.objects.filter(status=Status.RUNNING).values_list("pk", "weight"))
     total = fleet_slots(concurrencies=list(live_workers().values_list("concurrency", flat=True)))
     return share_slots(total_slots=total, weights=weights)
@@ -350,8 +348,6 @@ def sweep() -> dict[str, int]:
     campaign tick``; safe to run anywhere at once (campaign lock, conditional updates). This, not broker
     redelivery, is what recovers a frame after kill -9 on both transports (see services.release_lost_frames).
     """
-    from fleet.models import live_workers
-
     live = list(live_workers().values_list("hostname", flat=True))
     started_before = timezone.now() - timedelta(seconds=settings.WORKER_LIVE_WINDOW_S)
     campaign_ids = set(
@@ -386,8 +382,6 @@ def sweep() -> dict[str, int]:
 def _remove_partial_folders(*, campaign_id: int, index: int) -> None:
     """A frame that settled without a result may have a killed attempt's partial folder; the sweep runs where
     the media is (in a worker), so it removes it. Best effort: files are not the frame's state."""
-    from campaigns.frame_files import frame_output_dir, remove_partial_folders
-
     try:
         remove_partial_folders(frame_output_dir(campaign_id=campaign_id, index=index)[0])
     except OSError:

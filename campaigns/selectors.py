@@ -12,7 +12,11 @@ from typing import cast
 from django.db.models import Count, QuerySet, Sum
 
 from campaigns import costs, planner
+from campaigns.errors import error_kind
 from campaigns.models import Campaign, ClassQuota, Frame
+from campaigns.sampling import MAX_OBJECTS_PER_FRAME
+from fleet.models import live_workers
+from teams.permissions import scope_to_user
 
 State = Frame.State
 RECENT_FRAMES_FOR_ESTIMATES = 50
@@ -129,8 +133,6 @@ class CampaignSummary:
 
 
 def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
-    from fleet.models import live_workers
-
     campaign.refresh_from_db()
     quota_rows = [
         QuotaRow(
@@ -375,8 +377,6 @@ def throughput(*, campaign: Campaign, minutes: int = 120) -> dict[str, _Any]:
 
 def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
     """Live workers with their frames in the last hour (all campaigns) and CPU use (CPU s per wall s per slot)."""
-    from fleet.models import live_workers
-
     now = _timezone.now()
     since = now - _timedelta(seconds=window_s)
     per_host = {
@@ -620,6 +620,7 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
 
 def _texture_library() -> tuple[str, ...]:
     try:
+        # deferred: optional render core, see the ImportError fallback
         from render.textures import FAMILIES
     except ImportError:  # the web server may run without the render core
         return ()
@@ -647,8 +648,6 @@ def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
 
     The database groups by the full error text (few distinct texts); groups with the same first line merge here.
     """
-    from campaigns.errors import error_kind
-
     groups: dict[str, dict[str, _Any]] = {}
     for row in (
         failed_frames(campaign=campaign)
@@ -721,8 +720,6 @@ def asset_library(*, user: _Any) -> list[dict[str, _Any]]:
     (every instance of the class comes from its generator); an uploaded mesh counts instances whose render-core
     asset id names it (``user/<asset pk>``).
     """
-    from teams.permissions import scope_to_user
-
     assets = (
         scope_to_user(Asset.objects.all(), user=user, include_shared=True)
         .select_related("object_class", "team")
@@ -860,9 +857,6 @@ def plan_estimate(
     visible campaigns (Beta posterior, :func:`campaigns.planner.posterior_yield`), shared over frames holding
     ``min(12, density × mean floor area)`` objects (the scheduler's density limit). ``budget`` is normalized.
     """
-    from campaigns.sampling import MAX_OBJECTS_PER_FRAME
-    from fleet.models import live_workers
-
     render = budget["render"]
     frame_time = frame_time_estimate(
         width_px=render["width_px"], height_px=render["height_px"], spp=render["spp"], history=history
@@ -999,6 +993,7 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
     from django.conf import settings
 
     try:
+        # deferred: optional render core, see the ImportError fallback
         from render.assets import CLASSES
     except ImportError:  # the web server may run without the render core
         CLASSES = {}

@@ -36,8 +36,11 @@ from django.db.models import F, Q, QuerySet
 from django.db.models.functions import Coalesce
 from django.utils import timezone
 
-from campaigns import costs, errors, messaging, planner, selectors
+from campaigns import asset_files, costs, errors, messaging, planner, selectors
 from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+from render.budget import FIELDS_BY_KEY, BudgetError, normalize_budget
+from teams.models import Team
+from teams.permissions import PLANNER, has_role, personal_team
 
 log = logging.getLogger("evenframe.campaigns")
 
@@ -196,8 +199,6 @@ def _finite(value: Any, what: str, **where: Any) -> float:
 
 def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any]:
     """The render core's ``normalize_budget`` plus the campaign caps; :class:`CampaignError` on bad input."""
-    from render.budget import BudgetError, normalize_budget
-
     try:
         normalized = normalize_budget(dict(budget or {}))
     except BudgetError as exc:
@@ -228,8 +229,6 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
 
 def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]) -> list[_CleanQuota]:
     """Check class quotas against the normalized budget; an empty threshold takes the budget's default."""
-    from render.budget import FIELDS_BY_KEY
-
     max_contrast = FIELDS_BY_KEY["thresholds", "min_contrast"].upper
     if not quotas:
         raise CampaignError("at least one class quota is required", field="quotas")
@@ -319,8 +318,6 @@ def _campaign_name_conflict(*, team_id: int, name: str, exclude_pk: int | None =
         taken = taken.exclude(pk=exclude_pk)
     if not taken.exists():
         return None
-    from teams.models import Team
-
     team_name = Team.objects.filter(pk=team_id).values_list("name", flat=True).first()
     return CampaignError(f"team {team_name} already has a campaign called {name!r}", field="name")
 
@@ -451,8 +448,6 @@ def create_campaign(
 
     One transaction: a request that fails half-way (or loses the race for the name) leaves no row behind."""
     name = _clean_name(name, description)
-    from teams.permissions import PLANNER, has_role, personal_team
-
     if team is None:
         team = personal_team(user=owner)
     elif not has_role(user=owner, team=team, role=PLANNER):
@@ -1373,9 +1368,9 @@ def _clean_asset_input(
     look: str = "randomize",
 ) -> _AssetInput:
     """Every check of an upload that needs no file, the name's availability last."""
+    # deferred: keeps render.meshes (trimesh) out of Django start-up
     from render.meshes import FRONT_AXES, UNIT_TO_M, UP_AXES, axis_rotation
-    from render.user_materials import LOOKS
-    from teams.permissions import PLANNER, has_role
+    from render.user_materials import LOOKS  # deferred: keeps the render core out of Django start-up
 
     if not has_role(user=user, team=team, role=PLANNER):
         raise CampaignError(f"{user} is not a planner in team {team}", field="team")
@@ -1470,8 +1465,6 @@ def upload_mesh_asset(
     Must not run inside a transaction (the row must be committed before the file counts as kept).
     """
     from django.conf import settings
-
-    from campaigns import asset_files
 
     clean = _clean_asset_input(
         user=user,

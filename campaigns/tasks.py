@@ -17,7 +17,11 @@ from typing import Any, TypeVar
 
 from celery import shared_task
 
+from campaigns import planner, scheduler, selectors, services
+from campaigns.asset_files import render_preview_for
 from campaigns.frame_files import frame_output_dir, publish_frame_dir, remove_partial_folders
+from campaigns.models import Asset
+from fleet import faults
 
 log = logging.getLogger("evenframe.workers")
 T = TypeVar("T")
@@ -35,6 +39,7 @@ def render_frame_files(
 
     ``user_assets`` are the campaign's uploaded meshes (``campaigns.selectors.campaign_user_mesh_entries``).
     """
+    # deferred: render-core entry point stays a call-time import (workers load the renderer late)
     from render.frame import render_frame_from_inputs
 
     threads = int(os.environ.get("EVENFRAME_RENDER_THREADS", "0") or 0) or None
@@ -55,10 +60,10 @@ def render_frame_files(
 def _is_permanent(exc: BaseException) -> bool:
     """Errors that the same inputs would raise again: no point retrying."""
     try:
-        from render.budget import BudgetError
-        from render.layout import LayoutError
-        from render.meshes import MeshError
-        from render.spec import SpecError
+        from render.budget import BudgetError  # deferred: ImportError fallback below
+        from render.layout import LayoutError  # deferred: ImportError fallback below
+        from render.meshes import MeshError  # deferred: ImportError fallback below
+        from render.spec import SpecError  # deferred: ImportError fallback below
     except ImportError:  # render core incomplete: treat everything as transient
         return False
     return isinstance(exc, (LayoutError, BudgetError, SpecError, MeshError))
@@ -99,9 +104,6 @@ def render_frame(self, frame_id: int, dispatch_no: int, campaign_uid: str | None
     the render succeeded; the result is recorded only after that, so a failure (disk full, read-only media,
     a crash) never leaves a counted frame with missing or half-written files.
     """
-    from campaigns import planner, scheduler, selectors, services
-    from fleet import faults
-
     host = getattr(self.request, "hostname", None) or socket.gethostname()
     claim = with_database_retry(
         lambda: services.claim_frame(
@@ -194,9 +196,6 @@ def _dispatch_after(scheduler: Any, campaign_id: int) -> None:
 @shared_task(name="evenframe.asset_preview", ignore_result=True)
 def asset_preview(asset_pk: int) -> str:
     """Render an asset's 128×128 preview (campaigns.asset_files.render_asset_preview)."""
-    from campaigns.asset_files import render_preview_for
-    from campaigns.models import Asset
-
     asset = Asset.objects.select_related("object_class").filter(pk=asset_pk).first()
     if asset is None:
         return "no such asset"

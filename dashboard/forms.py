@@ -18,6 +18,7 @@ from django import forms
 from campaigns import services
 from campaigns.models import Asset, Campaign, ObjectClass
 from render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
+from teams.permissions import PLANNER, teams_for
 
 if TYPE_CHECKING:
     from teams.models import Team
@@ -226,8 +227,6 @@ class CampaignForm(forms.Form):
     RUN_FIELDS = ("seed", "weight", "max_attempts")
 
     def __init__(self, *args: Any, user: Any, campaign: Campaign | None = None, **kwargs: Any) -> None:
-        from teams.permissions import PLANNER, teams_for
-
         super().__init__(*args, **kwargs)
         self.campaign = campaign
         budget = campaign.budget if campaign else DEFAULT_BUDGET
@@ -342,8 +341,6 @@ class CampaignForm(forms.Form):
         team the user plans in; the service refuses another team's). Preselected: the campaign's own choice, or
         the defaults of :func:`campaigns.services.default_campaign_assets` for every class."""
         from django.db.models import Q
-
-        from teams.permissions import PLANNER, teams_for
 
         team_ids = (
             [campaign.team_id]
@@ -569,8 +566,6 @@ class AssetUploadForm(forms.Form):
     )
 
     def __init__(self, *args: Any, user: Any, **kwargs: Any) -> None:
-        from teams.permissions import PLANNER, teams_for
-
         super().__init__(*args, **kwargs)
         _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
 

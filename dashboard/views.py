@@ -37,7 +37,8 @@ from django.views.decorators.http import require_GET, require_POST
 from campaigns import asset_files, errors, selectors, services
 from campaigns.models import Asset, Campaign, Frame
 from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
-from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user
+from render.budget import FIELDS
+from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user, teams_for
 
 GALLERY_PAGE = 24
 FAILED_PAGE = 50
@@ -105,8 +106,6 @@ def campaign_list(request: HttpRequest) -> HttpResponse:
     rows = selectors.campaign_rows(campaigns=campaigns)
     for row in rows:
         row["eta"] = _duration(row["eta_s"]) if row["eta_s"] is not None else None
-    from teams.permissions import teams_for
-
     return render(
         request,
         "campaigns/list.html",
@@ -197,8 +196,6 @@ def _planner_page(
 
 
 def campaign_create(request: HttpRequest) -> HttpResponse:
-    from teams.permissions import teams_for
-
     if request.method not in ("GET", "POST"):
         return HttpResponseNotAllowed(["GET", "POST"])
     if not teams_for(user=request.user, role=PLANNER).exists():
@@ -319,8 +316,6 @@ def _eta(live: dict[str, Any]) -> str:
 
 
 def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
-    from render.budget import FIELDS
-
     rows = []
     for f in FIELDS:
         value = budget_value(campaign.budget, f)
@@ -675,7 +670,7 @@ def frame_rerender(request: HttpRequest, campaign_id: int, index: int) -> HttpRe
 
 
 def _asset_rows(request: HttpRequest) -> list[dict[str, Any]]:
-    from render.assets import HANDBOOK_RANGES
+    from render.assets import HANDBOOK_RANGES  # deferred: keeps render.assets (trimesh, scipy) out of the web process
 
     rows = selectors.asset_library(user=request.user)
     for row in rows:
@@ -695,8 +690,6 @@ def _asset_rows(request: HttpRequest) -> list[dict[str, Any]]:
 
 
 def asset_library(request: HttpRequest) -> HttpResponse:
-    from teams.permissions import teams_for
-
     if request.method not in ("GET", "POST"):
         return HttpResponseNotAllowed(["GET", "POST"])
     can_upload = teams_for(user=request.user, role=PLANNER).exists()

@@ -102,7 +102,7 @@ def rle_from_mask(frame_dir: Path, instance_id: int, cache: dict[str, np.ndarray
 
     For rows recorded without a mask encoding; ``cache`` keeps the frame's mask image between its instances.
     """
-    from render.labels import mask_to_rle
+    from render.labels import mask_to_rle  # deferred: keeps render.labels (pycocotools) out of the web process
 
     if "ids" not in cache:
         import cv2

@@ -14,6 +14,8 @@ from typing import Any
 
 import numpy as np
 
+from campaigns import selectors
+from campaigns.models import ClassQuota
 from datasets.options import ExportOptions
 from datasets.queries import Category, InstanceRow
 from datasets.splits import SPLITS
@@ -85,8 +87,6 @@ def class_statistics(
     annotations: Counter,
 ) -> dict:
     """``class_statistics.json``: per class and split, what was exported, with the quota's thresholds and counters."""
-    from campaigns.models import ClassQuota
-
     quotas = {
         q["object_class_id"]: q
         for q in ClassQuota.objects.filter(campaign=campaign).values(
@@ -178,8 +178,6 @@ def splits_json(
 
 def campaign_json(*, campaign: Any) -> dict:
     """``campaign.json``: settings, randomization budget, quotas, assets, costs and counters."""
-    from campaigns import selectors
-
     c = campaign
     quotas = [
         {

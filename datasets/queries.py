@@ -13,6 +13,7 @@ from typing import Any, NamedTuple
 
 import numpy as np
 
+from campaigns.models import Campaign, ClassQuota, Frame, Instance
 from datasets.errors import ExportError
 
 FRAME_CHUNK = 2000
@@ -21,8 +22,6 @@ INSTANCE_CHUNK = 10000
 
 def find_campaign(*, key: str | int) -> Any:
     """A campaign by id or exact name; :class:`ExportError` if there is none."""
-    from campaigns.models import Campaign
-
     text = str(key).strip()
     found = Campaign.objects.filter(pk=int(text)).first() if text.isdigit() else None
     if found is None:
@@ -46,8 +45,6 @@ class Category:
 
 def campaign_categories(*, campaign: Any) -> list[Category]:
     """The campaign's quota classes, sorted by name: COCO ids 1…K, YOLO indices 0…K−1."""
-    from campaigns.models import ClassQuota
-
     rows = (
         ClassQuota.objects.filter(campaign=campaign)
         .order_by("object_class__name")
@@ -61,15 +58,11 @@ def campaign_categories(*, campaign: Any) -> list[Category]:
 
 def done_frames(campaign: Any, finished_before: datetime) -> Any:
     """The campaign's frames in the export: done before ``finished_before``."""
-    from campaigns.models import Frame
-
     return Frame.objects.filter(campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before)
 
 
 def exported_instances(campaign: Any, finished_before: datetime, accepted_only: bool) -> Any:
     """The instances in the export: visible (a mask and a box) on a done frame; accepted ones only if asked."""
-    from campaigns.models import Frame, Instance
-
     query = Instance.objects.filter(
         campaign=campaign,
         frame__state=Frame.State.DONE,

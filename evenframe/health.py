@@ -8,6 +8,9 @@ from dataclasses import asdict, dataclass
 from django.conf import settings
 from django.db import connection
 
+from evenframe.celery import app
+from fleet.models import live_workers
+
 
 @dataclass
 class Check:
@@ -33,8 +36,6 @@ def check_database() -> Check:
 
 
 def check_broker() -> Check:
-    from evenframe.celery import app
-
     url = settings.CELERY_BROKER_URL
     shown = url.split("@")[-1] if "@" in url else url
     try:
@@ -47,8 +48,6 @@ def check_broker() -> Check:
 
 
 def check_workers() -> Check:
-    from fleet.models import live_workers
-
     try:
         workers = list(live_workers())
     except Exception as exc:  # noqa: BLE001
@@ -62,7 +61,7 @@ def check_workers() -> Check:
 
 
 def check_renderer() -> Check:
-    from render.backend import choose_backend
+    from render.backend import choose_backend  # deferred: keeps the render core out of the web process
 
     try:
         choice = choose_backend()

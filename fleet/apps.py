@@ -14,4 +14,5 @@ class FleetConfig(AppConfig):
     default_auto_field = "django.db.models.BigAutoField"
 
     def ready(self) -> None:
+        # deferred: heartbeat imports fleet.models, which load after apps.py
         from fleet import heartbeat  # noqa: F401 - importing it connects the Celery worker signals

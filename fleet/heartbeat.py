@@ -17,13 +17,16 @@ from django.conf import settings
 from django.db import close_old_connections
 from django.utils import timezone
 
+from fleet import hooks
+from fleet.models import WorkerHeartbeat
+
 log = logging.getLogger("evenframe.workers")
 _stop = threading.Event()
 _state: dict = {}
 
 
 def _beat(hostname: str, concurrency: int) -> None:
-    from fleet.models import WorkerHeartbeat
+    # deferred: keeps the render core out of Django start-up (fleet.apps.ready imports this)
     from render.backend import choose_backend
 
     try:
@@ -75,8 +78,6 @@ def _beat(hostname: str, concurrency: int) -> None:
 
 
 def _sweep() -> None:
-    from fleet import hooks
-
     try:
         counts = hooks.run_sweep()
         if counts and any(counts.get(k) for k in ("requeued", "dead", "revoked")):
@@ -86,8 +87,6 @@ def _sweep() -> None:
 
 
 def _mark_stopped(hostname: str) -> None:
-    from fleet.models import WorkerHeartbeat
-
     try:
         close_old_connections()
         WorkerHeartbeat.objects.filter(hostname=hostname).update(stopped_at=timezone.now())

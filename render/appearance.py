@@ -38,6 +38,10 @@ from typing import Any
 
 import numpy as np
 
+from render import srgb
+
+from .textures import sample_texture_params, srgb8_to_linear, texture_set
+
 #: Asset material family (``render.assets.FAMILIES``) → texture families it may wear.
 #: Plastic, painted and ceramic surfaces, foliage, paper and lampshades stay plain-coloured: in a
 #: home they are plain.
@@ -96,8 +100,6 @@ def texture_cache_dir() -> Path:
 
 @functools.lru_cache(maxsize=4096)
 def _variant_params(family: str, variant: int) -> tuple[tuple[str, Any], ...]:
-    from .textures import sample_texture_params
-
     params = sample_texture_params(family, np.random.default_rng(np.random.SeedSequence(variant, spawn_key=(7,))))
     return tuple(sorted(params.items()))
 
@@ -201,8 +203,6 @@ def jitter_hsv(rgb_linear: np.ndarray, hue_deg: float, saturation_scale: float, 
     """
     from skimage.color import hsv2rgb, rgb2hsv
 
-    from render import srgb
-
     linear = np.asarray(rgb_linear, dtype=np.float64)
     hsv = rgb2hsv(np.clip(srgb.encode(np.clip(linear, 0.0, 1.0)), 0.0, 1.0).reshape(-1, 1, 3))
     hsv[..., 0] = (hsv[..., 0] + float(hue_deg) / 360.0) % 1.0
@@ -252,8 +252,6 @@ def yaw_frame(obj: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
 def _linear_texture(family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str) -> np.ndarray:
     from PIL import Image
 
-    from .textures import srgb8_to_linear, texture_set
-
     paths = texture_set(family, json.loads(params_json), seed, Path(cache_dir), resolution_px=resolution_px)
     with Image.open(paths.base_color) as image:
         srgb8 = np.asarray(image.convert("RGB"))
@@ -266,8 +264,6 @@ def _linear_texture(family: str, params_json: str, seed: int, resolution_px: int
 def _normal_texture(family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str) -> np.ndarray:
     from PIL import Image
 
-    from .textures import texture_set
-
     paths = texture_set(family, json.loads(params_json), seed, Path(cache_dir), resolution_px=resolution_px)
     with Image.open(paths.normal) as image:
         encoded = np.ascontiguousarray(np.asarray(image.convert("RGB"), dtype=np.float32) / 255.0)
@@ -278,8 +274,6 @@ def _normal_texture(family: str, params_json: str, seed: int, resolution_px: int
 @functools.lru_cache(maxsize=256)
 def _roughness_texture(family: str, params_json: str, seed: int, resolution_px: int, cache_dir: str) -> np.ndarray:
     from PIL import Image
-
-    from .textures import texture_set
 
     paths = texture_set(family, json.loads(params_json), seed, Path(cache_dir), resolution_px=resolution_px)
     with Image.open(paths.roughness) as image:

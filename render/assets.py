@@ -37,6 +37,8 @@ import trimesh
 from scipy.spatial import ConvexHull
 
 from render import meshes, srgb
+from render.user_materials import look_material, mitsuba_uv, texture_record
+from render.user_models import load_model_cached
 
 # ---------------------------------------------------------------------------
 # Handbook ranges
@@ -1736,8 +1738,6 @@ USER_LOOKS = ("keep", "randomize")
 
 
 def _load_user_model(path: str, unit: str, up_axis: str, front: str | None) -> meshes.UserModel:
-    from render.user_models import load_model_cached
-
     return load_model_cached(path, unit=unit, up_axis=up_axis, front=front)
 
 
@@ -1761,8 +1761,6 @@ def user_asset_spec(
     The spec records ``front`` and ``look`` only when they differ from the defaults, so older specs keep their bytes.
     Raises ``MeshError`` for a bad file and ``ValueError`` for a bad placement or look.
     """
-    from render.user_materials import look_material, texture_record
-
     if placement not in USER_PLACEMENTS:
         raise ValueError(f"unknown placement {placement!r} (known: {', '.join(USER_PLACEMENTS)})")
     if look not in USER_LOOKS:
@@ -1816,8 +1814,6 @@ def user_asset_spec(
 
 
 def _build_user_parts(spec: dict[str, Any]) -> list[Part]:
-    from render.user_materials import mitsuba_uv
-
     model = _load_user_model(
         spec["mesh_path"], spec.get("unit", "auto"), spec.get("up_axis", "z"), spec.get("front") or None
     )

@@ -20,6 +20,8 @@ import tempfile
 import time
 from pathlib import Path
 
+from .cli import default_composition
+
 TARGET_RATIO = 1.15
 
 
@@ -36,8 +38,9 @@ def main(argv: list[str] | None = None) -> int:
     if args.frames < 1:
         parser.error("--frames must be at least 1")
 
-    from .backend import init_renderer
-    from .cli import default_composition
+    from .backend import init_renderer  # deferred: the render core loads after the arguments are checked
+
+    # deferred: the render core loads after the arguments are checked
     from .frame import STAGES, render_frame_from_inputs
 
     choice = init_renderer(variant=args.variant, threads=args.threads)

@@ -25,6 +25,9 @@ from typing import Any
 
 import numpy as np
 
+from .budget import DEFAULT_BUDGET
+from .cli import default_composition
+
 GOAL_FLAT_SHARE = 0.25
 GOAL_BUILD_SHARE = 0.10
 FLAT_RANGE = 1e-4
@@ -43,8 +46,6 @@ def flat_share(albedo_rgb: np.ndarray, visible: np.ndarray) -> float:
 
 
 def _budget(width_px: int, height_px: int, texture_probability: float | None = None) -> dict[str, Any]:
-    from .budget import DEFAULT_BUDGET
-
     budget = copy.deepcopy(DEFAULT_BUDGET)
     budget["render"].update(width_px=width_px, height_px=height_px)
     if texture_probability is not None:
@@ -65,11 +66,12 @@ def main(argv: list[str] | None = None) -> int:
     if args.frames < 1 or args.cpu_frames < 0:
         parser.error("--frames must be at least 1 and --cpu-frames at least 0")
 
-    from .backend import init_renderer
-    from .cli import default_composition
-    from .frame import render_frame
+    from .backend import init_renderer  # deferred: the render core loads after the arguments are checked
+    from .frame import render_frame  # deferred: the render core loads after the arguments are checked
+
+    # deferred: the render core loads after the arguments are checked
     from .scene import build_scene, render_label_and_aux
-    from .spec import make_spec
+    from .spec import make_spec  # deferred: the render core loads after the arguments are checked
 
     choice = init_renderer(variant=args.variant)
     composition = default_composition()

@@ -53,6 +53,14 @@ from typing import Any, TypedDict
 
 import numpy as np
 
+# None of these loads Dr.Jit: it loads in init_renderer, after main() has pointed DRJIT_CACHE_DIR at a fresh folder.
+from .backend import init_renderer
+from .budget import DEFAULT_BUDGET
+from .cli import default_composition
+from .denoise import denoiser_status
+from .frame import expose, render_frame
+from .spec import axis_rng, make_spec, spec_to_json
+
 GOAL_MEDIAN_PSNR_DB = 32.0
 GOAL_WORST_PSNR_DB = 28.0
 GOAL_MEDIAN_SSIM = 0.9
@@ -88,7 +96,6 @@ def lighting_kind(spec: dict[str, Any]) -> str | None:
 def pick_seeds(
     budget: dict[str, Any], composition: dict[str, int], per_kind: int, *, limit: int = 500
 ) -> list[tuple[int, str]]:
-    from .spec import make_spec
 
     chosen: dict[str, list[int]] = {kind: [] for kind in KINDS}
     for seed in range(limit):
@@ -104,7 +111,6 @@ def pick_seeds(
 
 
 def _budget(width_px: int, height_px: int, **render: Any) -> dict[str, Any]:
-    from .budget import DEFAULT_BUDGET
 
     budget = copy.deepcopy(DEFAULT_BUDGET)
     budget["render"].update(width_px=width_px, height_px=height_px, **render)
@@ -112,7 +118,6 @@ def _budget(width_px: int, height_px: int, **render: Any) -> dict[str, Any]:
 
 
 def _render(spec: dict[str, Any], *, window_light: str = "portal", threads: int | None = None) -> tuple[Any, float]:
-    from .frame import render_frame
 
     start = time.process_time()
     result = render_frame(spec, window_light=window_light, threads=threads)
@@ -159,7 +164,6 @@ def reference_radiance(
     (the noise sub-seed, which seeds the sampler, is offset by ``k`` × :data:`PASS_SEED_OFFSET`), so
     passes are independent estimates of the same image.
     """
-    from .spec import spec_to_json
 
     reference = _with(spec, spp=reference_spp, denoise=False, sensor_noise=False)
     if pass_index:
@@ -184,8 +188,6 @@ def expose_reference(spec: dict[str, Any], radiance: np.ndarray) -> np.ndarray:
     The cache holds radiance, not the 8-bit image, so a change to exposure or encoding never compares
     default frames with a reference exposed the old way.
     """
-    from .frame import expose
-    from .spec import axis_rng
 
     camera = _with(spec, sensor_noise=False)["camera"]
     rgb, _ = expose(radiance, camera, rng=axis_rng(spec["sub_seeds"], "noise"), noise=False)
@@ -245,8 +247,6 @@ def _pipeline_cpu(
 
     Runs in a process of its own (see :func:`cpu_per_frame`), so nothing compiled before counts.
     """
-    from .cli import default_composition
-    from .spec import make_spec
 
     composition = default_composition()
     specs = [make_spec(_budget(width_px, height_px), composition, seed) for seed in seeds]
@@ -350,12 +350,6 @@ def main(argv: list[str] | None = None) -> int:
     # earlier runs on this machine left in the user's cache. Must be set before Dr.Jit loads.
     kernel_cache = tempfile.TemporaryDirectory(prefix="evenframe-bench-kernels-")
     os.environ["DRJIT_CACHE_DIR"] = kernel_cache.name
-
-    from .backend import init_renderer
-    from .budget import DEFAULT_BUDGET
-    from .cli import default_composition
-    from .denoise import denoiser_status
-    from .spec import make_spec
 
     choice = init_renderer(variant=args.variant, threads=args.threads)
     if args.cpu_pipeline:

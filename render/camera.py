@@ -38,6 +38,8 @@ from typing import Any
 
 import numpy as np
 
+from render import srgb
+
 from .rounding import round_floats
 
 #: ISO 2720 / ISO 12232 lens transmittance × vignetting × cos⁴ factor in H = q L t / N².
@@ -502,8 +504,6 @@ def encode_srgb_8bit(signal_rgb: np.ndarray) -> np.ndarray:
     IEC 61966-2-1:1999, sRGB encoding (12.92 x below 0.0031308, else 1.055 x^(1/2.4) − 0.055).
     """
     linear = np.clip(np.asarray(signal_rgb, dtype=np.float32), 0.0, 1.0)
-    from render import srgb
-
     return np.round(srgb.encode(linear) * 255.0).astype(np.uint8)
 
 
@@ -548,6 +548,7 @@ def object_bounds_m(obj: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
     """
     object_world_bounds: Callable[[dict[str, Any]], tuple[np.ndarray, np.ndarray]] | None
     try:
+        # deferred: ImportError fallback when render.layout lacks object_world_bounds
         from .layout import object_world_bounds
     except ImportError:
         object_world_bounds = None

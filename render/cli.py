@@ -33,6 +33,8 @@ from typing import Any, NoReturn
 
 import numpy as np
 
+from .budget import load_budget_file, normalize_budget
+
 EXIT_BAD_INPUT = 2
 EXIT_WRITE_FAILED = 1
 # Contact sheets: at most a 20 × 20 grid, and a bounded image (about 3 bytes per pixel in memory).
@@ -118,7 +120,7 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def default_composition() -> dict[str, int]:
-    from .assets import CLASSES
+    from .assets import CLASSES  # deferred: the render core loads after the arguments are checked
 
     mix = {name: count for name, count in DEFAULT_CLASSES.items() if name in CLASSES}
     if not mix:  # the asset library changed: take the first three classes
@@ -127,8 +129,6 @@ def default_composition() -> dict[str, int]:
 
 
 def _budget(args: argparse.Namespace) -> dict[str, Any]:
-    from .budget import load_budget_file, normalize_budget
-
     budget = load_budget_file(args.budget) if args.budget else normalize_budget()
     for key, value in (("width_px", args.width), ("height_px", args.height), ("spp", args.spp)):
         if value is not None:
@@ -157,8 +157,9 @@ def run(argv: list[str] | None = None) -> int:
             raise CliError(f"{flag} applies to a contact sheet only (add --contact-sheet COUNT)")
     import time
 
+    # deferred: the render core loads after the arguments are checked
     from .frame import draw_preview, render_frame, write_png
-    from .spec import make_spec
+    from .spec import make_spec  # deferred: the render core loads after the arguments are checked
 
     start = time.perf_counter()
     try:
@@ -292,7 +293,7 @@ def draw_tile(
     """
     from PIL import Image, ImageDraw, ImageFont
 
-    from .frame import ACCEPTED_RGB, REJECTED_RGB
+    from .frame import ACCEPTED_RGB, REJECTED_RGB  # deferred: the render core loads after the arguments are checked
 
     height_px, width_px = rgb.shape[:2]
     x, y = tile_origin_px(position, width_px, height_px, columns)
@@ -347,8 +348,8 @@ def run_contact_sheet(args: argparse.Namespace) -> int:
 
     from PIL import Image
 
-    from .frame import render_frame
-    from .spec import make_spec
+    from .frame import render_frame  # deferred: the render core loads after the arguments are checked
+    from .spec import make_spec  # deferred: the render core loads after the arguments are checked
 
     try:
         budget = _budget(args)

@@ -44,6 +44,8 @@ from shapely.geometry import Polygon
 
 from render import assets, layout
 
+from .appearance import yaw_frame
+
 R = assets.DimensionRange
 
 #: Placement rank: rugs first (floor items may stand on them), then floor, surface, seat and wall items.
@@ -818,8 +820,6 @@ def texture_frame(distractor: dict[str, Any], material: dict[str, Any]) -> tuple
     border): their frame starts at the item's corner and is scaled so the item spans one tile. Every
     other material is projected in the item's own frame, like an object's.
     """
-    from .appearance import yaw_frame
-
     rotation, origin = yaw_frame(distractor)
     family = material.get("family")
     texture = material.get("texture") or {}

@@ -45,7 +45,7 @@ import numpy as np
 
 from .rounding import round_floats
 
-STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "label_pass", "denoise", "window_view", "labels", "encode")
+STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "window_view", "label_pass", "denoise", "labels", "encode")
 # PNG zlib level 1 (fast). Measured at 640×480: the noisy RGB frame compresses best *and* fastest
 # with the Huffman-only strategy (15 ms, 420 KB vs 19 ms, 497 KB at the default strategy); the
 # instance image is mostly runs, where the default strategy is already 4 ms and 5 KB.
@@ -104,6 +104,7 @@ def auto_exposure(mean_luminance_cd_m2: float, camera: dict[str, Any]) -> dict[s
     ----------
     ISO 2720:1974 (reflected-light meter, K = 12.5); ISO 12232:2019 (speed series in 1/3 stops).
     """
+    # deferred: keeps render.camera out of the web process (planner imports render.frame)
     from . import camera as cam
 
     f_number = float(camera["f_number"])
@@ -170,6 +171,7 @@ def expose(
     ISO 2720:1974 (meter, K = 12.5), ISO 12232:2019 (saturation-based speed), IEC 61966-2-1 (sRGB OETF),
     EMVA 1288 (noise model) — see :mod:`render.camera`.
     """
+    # deferred: keeps render.camera out of the web process (planner imports render.frame)
     from . import camera as cam
 
     f_number = float(camera["f_number"])
@@ -224,6 +226,7 @@ def _dump_json(value: Any) -> str:
 
 def write_frame_files(result: FrameResult, out_dir: Path, *, spec_json: str | None = None) -> dict[str, Path]:
     """Write rgb.png, instances.png (16-bit), depth.npy, labels.json, scene.json, timings.json."""
+    # deferred: keeps render.spec (trimesh) out of the web process (planner imports render.frame)
     from .spec import spec_to_json
 
     out_dir = Path(out_dir)
@@ -263,8 +266,13 @@ def render_frame(
     window_light : str
         ``portal`` (default) or ``dome``: how sky light enters (see :func:`render.scene.build_scene`).
     """
+    # deferred: keeps render.labels (pycocotools) out of the web process (planner imports render.frame)
     from . import labels as labels_module
+
+    # deferred: keeps render.backend out of the web process (planner imports render.frame)
     from .backend import init_renderer
+
+    # deferred: keeps render.scene (Mitsuba scenes) out of the web process (planner imports render.frame)
     from .scene import (
         SUN_PASS_SPP_FACTOR,
         build_scene,
@@ -272,6 +280,8 @@ def render_frame(
         render_radiance,
         render_window_view,
     )
+
+    # deferred: keeps render.spec (trimesh) out of the web process (planner imports render.frame)
     from .spec import axis_rng
 
     timings = dict.fromkeys(STAGES, 0.0)
@@ -288,6 +298,16 @@ def render_frame(
     start = time.perf_counter()
     radiance_pass = render_radiance(built, seed=spec["sub_seeds"]["noise"])
     timings["render"] = time.perf_counter() - start
+
+    # The outdoor scene the camera sees through the windows (render.backdrop), added to the raw render before the
+    # denoiser: the view pass traces the frame's own camera rays, so the sum is exactly a render of windows showing
+    # the outdoor scene, window edges included. (Added after the denoiser, edges the denoiser had sharpened along
+    # its albedo image met the view pass's softer ones and left a coloured fringe.)
+    start = time.perf_counter()
+    window_view = render_window_view(built, seed=spec["sub_seeds"]["noise"])
+    if window_view is not None:
+        radiance_pass.radiance_rgb = np.maximum(radiance_pass.radiance_rgb + window_view, 0.0)
+    timings["window_view"] = time.perf_counter() - start
 
     start = time.perf_counter()
     label_pass = render_label_and_aux(built)
@@ -307,17 +327,9 @@ def render_frame(
     )
     if built.sun_scene is not None:
         render_info["sun_pass_spp"] = int(render["spp"]) * SUN_PASS_SPP_FACTOR
-    timings["denoise"] = time.perf_counter() - start
-
-    # The outdoor scene the camera sees through the windows, added after the denoiser: it is nearly noise-free
-    # (camera rays only), and its detail (clouds, facades) has no albedo feature the denoiser could keep.
-    start = time.perf_counter()
-    window_view = render_window_view(built, seed=spec["sub_seeds"]["noise"])
     if window_view is not None:
-        # Clipped at 0: along a window's edge the frame and the view pass cover a pixel with different samples.
-        radiance_out = np.maximum(radiance_out + window_view, 0.0)
         render_info["outdoor_view"] = True
-    timings["window_view"] = time.perf_counter() - start
+    timings["denoise"] = time.perf_counter() - start
 
     start = time.perf_counter()
     triangles_world = {
@@ -383,6 +395,7 @@ def denoise_radiance(
     The record says ``denoised`` (bool) and ``denoiser`` (what ran, or why nothing did). A denoiser that
     cannot load leaves the frame raw and says so, rather than failing the frame.
     """
+    # deferred: keeps the denoiser (render.denoise) out of the web process (planner imports render.frame)
     from .denoise import DenoiserUnavailable, denoise
 
     if not wanted:
@@ -412,7 +425,10 @@ def judge_visibility(
     see. Instances already not visible geometrically keep contrast 0 and no extra reason.
     See :mod:`render.visibility` for the measure.
     """
+    # deferred: keeps render.labels (pycocotools) out of the web process (planner imports render.frame)
     from .labels import thresholds_for_class
+
+    # deferred: keeps render.visibility (cv2, scipy) out of the web process (planner imports render.frame)
     from .visibility import instance_contrasts, noise_sigma_lightness
 
     noise_sigma = noise_sigma_lightness(rgb)
@@ -476,6 +492,7 @@ def render_frame_from_inputs(
     user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None = None,
 ) -> FrameResult:
     """:func:`render.spec.make_spec` then :func:`render_frame`, timing the spec stage too."""
+    # deferred: keeps render.spec (trimesh) out of the web process (planner imports render.frame)
     from .spec import make_spec
 
     start = time.perf_counter()

@@ -29,6 +29,7 @@ from typing import Any
 
 import numpy as np
 
+from .camera import object_bounds_m
 from .rounding import round_floats
 
 #: CIE XYZ → linear sRGB (IEC 61966-2-1:1999, D65 white, BT.709 primaries).
@@ -274,8 +275,6 @@ def _count(rng: np.random.Generator, bounds: Sequence[int]) -> int:
 
 def _object_boxes(objects: list[dict[str, Any]]) -> np.ndarray:
     """(N, 6) array of world AABBs [xmin, ymin, zmin, xmax, ymax, zmax] (camera.object_bounds_m)."""
-    from .camera import object_bounds_m
-
     boxes = [np.concatenate(object_bounds_m(obj)) for obj in objects]
     return np.array(boxes).reshape(-1, 6)
 

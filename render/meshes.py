@@ -23,6 +23,8 @@ from typing import Any, cast
 import numpy as np
 import trimesh
 
+from .user_materials import check_textures_present, visual_look
+
 SUPPORTED_EXTENSIONS: tuple[str, ...] = (".obj", ".ply", ".stl", ".glb", ".gltf")
 UNIT_TO_M: dict[str, float] = {"m": 1.0, "cm": 0.01, "mm": 0.001, "in": 0.0254}
 #: Signed file axes a model's up or front may point along. "z" and "y" are the older spellings of "+z" and "+y".
@@ -177,8 +179,6 @@ def load_user_model(
     MeshError
         With a one-line reason; the file is never partly used.
     """
-    from .user_materials import check_textures_present, visual_look
-
     file_path = Path(path)
     name = file_path.name
     extension = file_path.suffix.lower()

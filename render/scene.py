@@ -36,6 +36,16 @@ from typing import Any
 
 import numpy as np
 
+from .appearance import box_uv, roughness_spread, yaw_frame
+from .backdrop import LUMA, card_image, window_mean_radiance
+from .camera import aperture_radius_m, camera_matrices
+from .distractors import distractor_world_parts, texture_frame
+from .dressing import WALL_THICKNESS_M, room_parts
+from .layout import object_world_parts
+from .lights import emitter_quantities
+from .user_models import normal_rgb
+from .user_models import texture_linear_rgb as user_texture_linear_rgb
+
 # Near clip of both sensors. The perspective sensor starts its rays on the
 # near plane, so the ``depth`` AOV (hit distance) is measured from there;
 # :func:`render_label_pass` adds the near plane back.
@@ -263,8 +273,6 @@ def _weight_texture(image: np.ndarray) -> dict[str, Any]:
 
 
 def _roughness_weight(material: dict[str, Any]) -> np.ndarray:
-    from .appearance import roughness_spread
-
     spread = roughness_spread(material["texture"])
     assert spread is not None  # only called for materials with a roughness_span
     return spread[3]
@@ -297,8 +305,6 @@ def roughness_span(material: dict[str, Any]) -> tuple[float, float] | None:
     kind = material.get("kind", "diffuse")
     if not texture or kind not in ("plastic", "varnish", "metal"):
         return None
-    from .appearance import roughness_spread
-
     spread = roughness_spread(texture)
     if spread is None:
         return None
@@ -329,10 +335,8 @@ _COLOUR_PARAMETER = {
 def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
     """Linear base-colour image of a textured material: a procedural ``texture`` or an upload's ``user_texture``."""
     if material.get("user_texture"):
-        from .user_models import texture_linear_rgb as user_texture_linear_rgb
-
         return user_texture_linear_rgb(material["user_texture"])
-    from .appearance import texture_linear_rgb
+    from .appearance import texture_linear_rgb  # deferred: tests patch render.appearance.texture_linear_rgb
 
     return texture_linear_rgb(material["texture"])
 
@@ -340,12 +344,10 @@ def _base_colour_image(material: dict[str, Any]) -> np.ndarray:
 def _normal_image(material: dict[str, Any]) -> np.ndarray | None:
     """The normal map of a procedurally textured material, when its family has one that shows, or an upload's own."""
     if material.get("user_normal"):
-        from .user_models import normal_rgb
-
         return normal_rgb(material["user_normal"])
     if not material.get("texture"):
         return None
-    from .appearance import texture_normal_rgb
+    from .appearance import texture_normal_rgb  # deferred: tests patch render.appearance.texture_normal_rgb
 
     return texture_normal_rgb(material["texture"])
 
@@ -757,7 +759,7 @@ def render_window_view(built: BuiltScene, *, seed: int = 0) -> np.ndarray | None
     portal); the camera, looking through a window, should see the outdoor scene itself. Both
     :func:`window_view_scenes` are rendered with one-segment paths (the emitters the camera sees directly,
     with the frame's lens, pixel filter and occluders) and the same seed, so the window's pixel coverage
-    cancels in their difference, which :func:`render.frame.render_frame` adds to the (denoised) radiance.
+    cancels in their difference, which :func:`render.frame.render_frame` adds to the raw radiance before denoising.
     Exact for the direct view; a window seen in a mirror or through the pane's own reflection keeps the
     uniform light (about 15 % of the pane, the glass's reflectance).
     """
@@ -1025,9 +1027,6 @@ class OutdoorWindows:
 def outdoor_windows(spec: dict[str, Any]) -> OutdoorWindows | None:
     """The room's :class:`OutdoorWindows`; None when it has no outdoor scene (no ``room.backdrop``, no windows, no
     dome)."""
-    from .backdrop import card_image, window_mean_radiance
-    from .lights import emitter_quantities
-
     room = spec["room"]
     backdrop = room.get("backdrop")
     domes = [light for light in spec["lights"] if light["kind"] == "dome"]
@@ -1093,8 +1092,6 @@ def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
     the window reveals see the sky through it exactly as they would see the open sky. The axes are
     right-handed, ``u × v = n``, so Mitsuba's rectangle (which emits towards its local +z) faces the room.
     """
-    from .dressing import WALL_THICKNESS_M
-
     width, depth, t = float(room["width_m"]), float(room["depth_m"]), WALL_THICKNESS_M
     frames = []
     for window in room.get("windows") or []:
@@ -1155,16 +1152,12 @@ def window_portal_entries(
     34(4) (EGSR 2015) (portals for light entering through openings); Pharr, Jakob, Humphreys,
     *Physically Based Rendering*, 4th ed. (2023), §12.5 (portal image infinite lights).
     """
-    from .lights import emitter_quantities
-
     radiance_rgb = [v * diffuse_glass_transmittance() for v in emitter_quantities(dome)["radiance_rgb"]]
     frames = window_portal_frames(room)
     if not frames or max(radiance_rgb) <= 0:
         return {}
     fluxes = [float(dome["illuminance_lux"]) * frame["area_m2"] * diffuse_glass_transmittance() for frame in frames]
     if window_radiance is not None:
-        from .backdrop import LUMA
-
         fluxes = [
             math.pi * float(np.asarray(radiance) @ LUMA) * frame["area_m2"] * diffuse_glass_transmittance()
             for radiance, frame in zip(window_radiance, frames, strict=True)
@@ -1213,8 +1206,6 @@ def emitter_entries(light: dict[str, Any], index: int, *, sampling_weight: float
 
 
 def _emitter_entries(light: dict[str, Any], index: int) -> dict[str, dict[str, Any]]:
-    from .lights import emitter_quantities
-
     quantities = emitter_quantities(light)
     kind = light["kind"]
     if kind == "panel":
@@ -1272,10 +1263,6 @@ def scene_parts(
     Distractor shapes are named ``"d{k}_p{j}"`` (k: position in ``spec["distractors"]``), so
     :func:`instance_of_shape_id` maps them to 0: they hide objects in the label pass like the room
     does and never get a label or amodal geometry of their own."""
-    from .distractors import distractor_world_parts
-    from .dressing import room_parts
-    from .layout import object_world_parts
-
     parts: list[tuple[str, np.ndarray, np.ndarray, dict[str, Any]]] = []
     room = spec["room"]
     for k, (name, vertices, faces, material) in enumerate(
@@ -1316,10 +1303,6 @@ def build_scene(spec: dict[str, Any], *, window_light: str = "portal") -> BuiltS
     In both, a sun shining into a room with windows renders in ``sun_scene``, alone and without the panes
     (glass would stop its shadow rays), at the glass's transmittance (:func:`glass_bsdf`).
     """
-    from .appearance import box_uv, yaw_frame
-    from .camera import aperture_radius_m, camera_matrices
-    from .distractors import texture_frame
-
     if window_light not in WINDOW_LIGHT_MODES:
         raise ValueError(f"window_light must be one of {WINDOW_LIGHT_MODES}, got {window_light!r}")
     render = spec["render"]

@@ -22,7 +22,14 @@ from typing import Any
 
 import numpy as np
 
+from .appearance import assign_textures
+from .assets import CLASSES, sample_asset, user_asset_spec
+from .backdrop import sample_backdrop
 from .budget import normalize_budget
+from .camera import sample_camera
+from .distractors import clear_of_camera_and_lights, sample_distractors
+from .layout import choose_layout_mode, place_objects, sample_room
+from .lights import sample_lights
 from .rounding import round_floats
 
 SPEC_FORMAT_VERSION = 1
@@ -86,8 +93,6 @@ def axis_rng(sub_seeds: dict[str, int], axis: str) -> np.random.Generator:
 
 def validate_composition(composition: Any) -> dict[str, int]:
     """``{class_name: count}`` with known classes and non-negative whole counts, sorted by class."""
-    from .assets import CLASSES
-
     if not isinstance(composition, dict):
         raise SpecError(f"composition: expected {{class_name: count}}, got {type(composition).__name__}")
     clean: dict[str, int] = {}
@@ -159,13 +164,6 @@ def make_spec(
     ValueError
         Bad composition or seeds; ``layout.LayoutError`` (a ValueError) when the objects do not fit.
     """
-    from .appearance import assign_textures
-    from .backdrop import sample_backdrop
-    from .camera import sample_camera
-    from .distractors import clear_of_camera_and_lights, sample_distractors
-    from .layout import choose_layout_mode, place_objects, sample_room
-    from .lights import sample_lights
-
     normalized = normalize_budget(budget)
     clean_composition = validate_composition(composition)
     sub_seeds = derive_sub_seeds(seed, layout_seed=layout_seed, lighting_seed=lighting_seed, camera_seed=camera_seed)
@@ -278,8 +276,6 @@ def _clean_user_assets(
 
 def _sample_object(class_name: str, rng: np.random.Generator, entries: Sequence[dict[str, str]]) -> dict[str, Any]:
     """One asset spec: the procedural generator, or (uniformly among generator and uploads) a user mesh."""
-    from .assets import sample_asset, user_asset_spec
-
     if not entries:
         return sample_asset(class_name, rng)  # no extra draw: specs without uploads keep their bytes
     pick = int(rng.integers(len(entries) + 1))

@@ -16,7 +16,7 @@ import numpy as np
 
 from render import srgb
 from render.meshes import MeshError, load_user_model
-from render.user_materials import ALBEDO_MAX, ALBEDO_MIN
+from render.user_materials import ALBEDO_MAX, ALBEDO_MIN, mitsuba_normal_map
 
 
 @functools.lru_cache(maxsize=16)
@@ -59,8 +59,6 @@ def texture_linear_rgb(record: dict[str, Any]) -> np.ndarray:
 
 @functools.lru_cache(maxsize=64)
 def _normal_map(record_json: str) -> np.ndarray:
-    from render.user_materials import mitsuba_normal_map
-
     record = json.loads(record_json)
     model = load_model_cached(
         record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"], front=record.get("front") or None

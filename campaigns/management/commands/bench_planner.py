@@ -11,6 +11,7 @@ from django.db import DatabaseError
 from campaigns import sampling
 from campaigns.management.commands.seed_demo import DEMO_BUDGET, DEMO_CAMPAIGN_NAME, DEMO_QUOTAS, DEMO_SEED
 from campaigns.models import Campaign
+from campaigns.services import normalize_campaign_budget
 
 TARGET_FRAME_RATIO = 0.6
 TARGET_SURPLUS_FRACTION = 0.10
@@ -61,8 +62,6 @@ class Command(BaseCommand):
         elif options["campaign"]:
             raise CommandError(f"no campaign {key!r}")
         else:
-            from campaigns.services import normalize_campaign_budget
-
             budget, seed, source = normalize_campaign_budget(DEMO_BUDGET), DEMO_SEED, "the seed_demo definition"
             quotas = {
                 q.class_name: sampling.QuotaRule(

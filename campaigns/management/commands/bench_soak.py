@@ -37,6 +37,11 @@ from django.core.management import call_command
 from django.core.management.base import BaseCommand, CommandParser
 from django.db.models import Count, Sum
 
+from campaigns import integrity, services
+from campaigns.models import Campaign, Frame, FrameEvent
+from evenframe.celery import ensure_broker_folders
+from fleet.models import WorkerHeartbeat
+
 CHILD_ENV = "EVENFRAME_SOAK_DATA_DIR"
 ROOT = Path(__file__).resolve().parents[3]
 SOAK_CLASSES = ("chair", "ottoman", "side_table", "wall_clock")
@@ -141,8 +146,6 @@ class Command(BaseCommand):
         return Worker(proc, name, log_path)
 
     def _wait_live(self, workers: list[Worker], timeout_s: float = 120) -> None:
-        from fleet.models import WorkerHeartbeat
-
         deadline = time.monotonic() + timeout_s
         names = {w.name for w in workers}
         while time.monotonic() < deadline:
@@ -153,10 +156,6 @@ class Command(BaseCommand):
 
     def _run(self, options: dict) -> int:
         from django.contrib.auth import get_user_model
-
-        from campaigns import integrity, services
-        from campaigns.models import Campaign, Frame, FrameEvent
-        from evenframe.celery import ensure_broker_folders
 
         call_command("migrate", verbosity=0)
         ensure_broker_folders()

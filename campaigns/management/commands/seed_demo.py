@@ -18,6 +18,7 @@ from django.db import transaction
 
 from campaigns import services
 from campaigns.models import Campaign
+from render.assets import CLASSES
 from teams.models import Membership, Team
 
 DEMO_CAMPAIGN_NAME = "Catalogue top-up: rare pieces"
@@ -63,8 +64,6 @@ DEMO_SEED = 20240611
 
 
 def demo_class_names() -> list[str]:
-    from render.assets import CLASSES
-
     return sorted(CLASSES)
 
 

@@ -15,6 +15,7 @@ from django.core.management.base import BaseCommand, CommandError, CommandParser
 from campaigns import asset_files, services
 from render.meshes import FRONT_AXES, SIGNED_AXES, UNIT_TO_M
 from render.user_materials import LOOKS
+from teams.models import Team
 
 
 class Command(BaseCommand):
@@ -49,8 +50,6 @@ class Command(BaseCommand):
 
     def handle(self, *args, **options) -> None:
         from django.contrib.auth import get_user_model
-
-        from teams.models import Team
 
         path = Path(options["file"])
         if not path.is_file():

@@ -31,6 +31,7 @@ from django.utils import timezone
 from campaigns import services
 from campaigns.frame_files import frame_relative_dir
 from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
+from campaigns.services import normalize_campaign_budget
 
 TEMPLATE_FILES: tuple[str, ...] = ("rgb.png", "instances.png", "labels.json", "scene.json")
 # Skewed on purpose (invented): a common class, two medium ones, rare ones.
@@ -54,7 +55,7 @@ REPO_ROOT = Path(__file__).resolve().parents[3]
 
 def render_template_frame(out_dir: Path, *, seed: int = 3) -> Path:
     """One real tiny frame by the render core (imported here, never at Django load)."""
-    from campaigns.services import normalize_campaign_budget
+    # deferred: render-core entry point stays a call-time import (workers load the renderer late)
     from render.frame import render_frame_from_inputs
 
     render_frame_from_inputs(normalize_campaign_budget(TEMPLATE_BUDGET), TEMPLATE_COMPOSITION, seed, out_dir=out_dir)

@@ -8,6 +8,8 @@ import socket
 from django.conf import settings
 from django.core.management.base import BaseCommand, CommandError
 
+from evenframe.celery import app
+
 
 class Command(BaseCommand):
     help = (
@@ -28,8 +30,6 @@ class Command(BaseCommand):
         parser.add_argument("--max-tasks-per-child", type=int, default=0)
 
     def handle(self, *args, **options) -> None:
-        from evenframe.celery import app
-
         concurrency = options["concurrency"]
         if concurrency < 1:
             raise CommandError("--concurrency must be at least 1")
