@@ -29,6 +29,7 @@ from pathlib import Path
 from typing import Any, cast
 
 from evenframe.celery import app
+from render.images import write_image
 
 MAX_UPLOAD_BYTES = 32 * 1024 * 1024
 CHECK_TIMEOUT_S = 30.0
@@ -347,7 +348,6 @@ def render_asset_preview(
 
     Also writes info.json with the rendered instance's extents. Runs in a render worker, never in the web server.
     """
-    import cv2
     import numpy as np
     import trimesh
 
@@ -398,9 +398,7 @@ def render_asset_preview(
     rgb8 = (np.clip(srgb.encode(np.clip(image, 0, 1)), 0, 1) * 255 + 0.5).astype(np.uint8)
     folder = asset_dir(asset_pk)
     folder.mkdir(parents=True, exist_ok=True)
-    tmp_png = folder / f".preview.{os.getpid()}.png"
-    cv2.imwrite(str(tmp_png), np.ascontiguousarray(rgb8[..., ::-1]))
-    os.replace(tmp_png, preview_path(asset_pk))
+    write_image(preview_path(asset_pk), rgb8)
     info = asset_info(asset_pk)
     info.setdefault("extents_m", [round(float(v), 4) for v in combined.extents])
     info.setdefault("faces", int(len(combined.faces)))

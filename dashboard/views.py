@@ -10,8 +10,6 @@ from __future__ import annotations
 
 import json
 import math
-import os
-import uuid
 from collections.abc import Mapping, Sequence
 from functools import lru_cache
 from pathlib import Path
@@ -38,6 +36,7 @@ from campaigns import asset_files, errors, selectors, services
 from campaigns.models import Asset, Campaign, Frame
 from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
 from render.budget import FIELDS
+from render.images import write_image
 from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user, teams_for
 
 GALLERY_PAGE = 24
@@ -585,13 +584,12 @@ def frame_detail(request: HttpRequest, campaign_id: int, index: int) -> HttpResp
 FRAME_FILES = {"rgb.png", "thumb.jpg", "mask.png", "depth.png", "scene.json", "labels.json"}
 
 
-def _write_atomic_image(path: Path, image: Any, params: list[int] | None = None) -> None:
-    import cv2
-
-    tmp = path.with_name(f".{path.stem}.{os.getpid()}.{uuid.uuid4().hex[:6]}{path.suffix}")
-    if not cv2.imwrite(str(tmp), image, params or []):
-        raise Http404("could not write the derived image")
-    os.replace(tmp, path)
+def _write_derived(path: Path, image: Any) -> None:
+    """Write a derived view (RGB, RGBA or grey array) atomically; a failure is a missing view, not a crash."""
+    try:
+        write_image(path, image)
+    except (OSError, ValueError) as exc:
+        raise Http404("could not write the derived image") from exc
 
 
 def _derived(folder: Path, name: str) -> Path:
@@ -609,7 +607,7 @@ def _derived(folder: Path, name: str) -> Path:
         h, w = rgb.shape[:2]
         if w > THUMB_WIDTH_PX:
             rgb = cv2.resize(rgb, (THUMB_WIDTH_PX, round(h * THUMB_WIDTH_PX / w)), interpolation=cv2.INTER_AREA)
-        _write_atomic_image(target, rgb, [cv2.IMWRITE_JPEG_QUALITY, 85])
+        _write_derived(target, np.ascontiguousarray(rgb[..., ::-1]))  # OpenCV reads BGR
     elif name == "mask.png":
         ids = cv2.imread(str(folder / "instances.png"), cv2.IMREAD_UNCHANGED)
         if ids is None:
@@ -620,7 +618,7 @@ def _derived(folder: Path, name: str) -> Path:
         hsv = np.stack([hue, np.full_like(hue, 200), np.full_like(hue, 255)], axis=-1)
         bgr = cv2.cvtColor(hsv, cv2.COLOR_HSV2BGR)
         alpha = np.where(ids > 0, 255, 0).astype(np.uint8)
-        _write_atomic_image(target, np.dstack([bgr, alpha]))
+        _write_derived(target, np.dstack([bgr[..., ::-1], alpha]))
     elif name == "depth.png":
         try:
             depth = np.load(folder / "depth.npy", allow_pickle=False)
@@ -633,7 +631,7 @@ def _derived(folder: Path, name: str) -> Path:
             scaled[hit] = (255 - np.clip((depth[hit] - near) / max(far - near, 1e-6), 0, 1) * 235).astype(np.uint8)
         colour = cv2.applyColorMap(scaled, cv2.COLORMAP_VIRIDIS)
         colour[~hit] = (40, 33, 31)  # no hit: our ink colour
-        _write_atomic_image(target, colour)
+        _write_derived(target, np.ascontiguousarray(colour[..., ::-1]))
     else:
         raise Http404("no such view")
     return target

@@ -34,6 +34,7 @@ from typing import Any, NoReturn
 import numpy as np
 
 from .budget import load_budget_file, normalize_budget
+from .images import write_image
 
 EXIT_BAD_INPUT = 2
 EXIT_WRITE_FAILED = 1
@@ -158,7 +159,7 @@ def run(argv: list[str] | None = None) -> int:
     import time
 
     # deferred: the render core loads after the arguments are checked
-    from .frame import draw_preview, render_frame, write_png
+    from .frame import draw_preview, render_frame
     from .spec import make_spec  # deferred: the render core loads after the arguments are checked
 
     start = time.perf_counter()
@@ -179,7 +180,7 @@ def run(argv: list[str] | None = None) -> int:
     spec_s = time.perf_counter() - start
     result = render_frame(spec, out_dir=args.out, variant=args.variant, threads=args.threads, spec_s=spec_s)
     if args.preview:
-        write_png(args.out / "preview.png", draw_preview(result.rgb, result.labels))
+        write_image(args.out / "preview.png", draw_preview(result.rgb, result.labels))
     instances = result.labels.get("instances", [])
     accepted = sum(1 for instance in instances if instance.get("accepted"))
     exposure = result.labels.get("exposure", {})
@@ -323,14 +324,9 @@ def draw_tile(
 
 
 def _write_sheet(sheet: Any, target: Path) -> None:
-    """Write next to the target under a hidden name and rename: an interrupted write leaves no half PNG."""
+    """Write the sheet (a PIL image) atomically: an interrupted write leaves no half PNG."""
     target.parent.mkdir(parents=True, exist_ok=True)
-    partial = target.with_name(f".{target.name}.partial-{os.getpid()}")
-    try:
-        sheet.save(partial, format="PNG", compress_level=6)
-        os.replace(partial, target)
-    finally:
-        partial.unlink(missing_ok=True)
+    write_image(target, np.asarray(sheet.convert("RGB")))
 
 
 def run_contact_sheet(args: argparse.Namespace) -> int:

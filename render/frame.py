@@ -43,13 +43,10 @@ from typing import Any
 
 import numpy as np
 
+from .images import write_image
 from .rounding import round_floats
 
 STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "window_view", "label_pass", "denoise", "labels", "encode")
-# PNG zlib level 1 (fast). Measured at 640×480: the noisy RGB frame compresses best *and* fastest
-# with the Huffman-only strategy (15 ms, 420 KB vs 19 ms, 497 KB at the default strategy); the
-# instance image is mostly runs, where the default strategy is already 4 ms and 5 KB.
-PNG_COMPRESSION_LEVEL = 1
 # Shutter dials step in thirds of a stop (1/125, 1/100, 1/80 s ...); common practice.
 SHUTTER_STOPS_PER_EV = 3
 OUTPUT_FILES: tuple[str, ...] = ("rgb.png", "instances.png", "depth.npy", "labels.json", "scene.json", "timings.json")
@@ -205,21 +202,6 @@ def expose(
     return rgb, exposure
 
 
-def write_png(path: Path, image: np.ndarray) -> None:
-    import cv2
-
-    params = [cv2.IMWRITE_PNG_COMPRESSION, PNG_COMPRESSION_LEVEL]
-    if image.ndim == 3:
-        image = np.ascontiguousarray(image[..., ::-1])  # RGB → BGR for OpenCV
-        params += [cv2.IMWRITE_PNG_STRATEGY, cv2.IMWRITE_PNG_STRATEGY_HUFFMAN_ONLY]
-    # Encode in memory and write with Python: cv2.imwrite only returns False, which would hide the reason
-    # (no space left on device, read-only file system) that the frame's error must show.
-    ok, encoded = cv2.imencode(".png", image, params)
-    if not ok:
-        raise ValueError(f"could not encode {path.name} as PNG")
-    Path(path).write_bytes(encoded.tobytes())
-
-
 def _dump_json(value: Any) -> str:
     return json.dumps(value, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
 
@@ -232,8 +214,8 @@ def write_frame_files(result: FrameResult, out_dir: Path, *, spec_json: str | No
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     files = {name: out_dir / name for name in OUTPUT_FILES}
-    write_png(files["rgb.png"], result.rgb)
-    write_png(files["instances.png"], result.instance_ids.astype(np.uint16))
+    write_image(files["rgb.png"], result.rgb)
+    write_image(files["instances.png"], result.instance_ids.astype(np.uint16))
     np.save(files["depth.npy"], result.depth_m.astype(np.float32))
     files["labels.json"].write_text(_dump_json(result.labels) + "\n", encoding="utf-8")
     files["scene.json"].write_text((spec_json or spec_to_json(result.spec)) + "\n", encoding="utf-8")
