@@ -32,7 +32,9 @@ def _kill_mid_frame_then_recover(fault_worker, make_campaign, media_root, *, env
     slow = fault_worker(faults={"render_delay_s": 60}, env=env)
     campaign = make_campaign(quotas={"chair": 4, "ottoman": 2}, start=True)
     frame = wait_for(lambda: _running_on(campaign, slow), timeout_s=60, what="a frame running on A", workers=[slow])
-    fast = fault_worker(env=env)
+    # B takes 3 s a frame: with frames as fast as the tiny budget's, B could fill the quotas before A is seen dead
+    # (4 s after its last beat), and the campaign would then rightly revoke A's frame instead of rerunning it.
+    fast = fault_worker(faults={"render_delay_s": 3}, env=env)
     slow.kill()
     wait_for(lambda: _status(campaign) == "completed", timeout_s=120, what="the campaign to complete", workers=[fast])
     wait_for(lambda: settled(campaign), timeout_s=60, what="in-flight frames to finish", workers=[fast])
