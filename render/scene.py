@@ -36,7 +36,7 @@ from typing import Any
 
 import numpy as np
 
-from .appearance import box_uv, roughness_spread, yaw_frame
+from .appearance import box_uv, roughness_spread, texture_cache_dir, yaw_frame
 from .backdrop import LUMA, card_image, window_mean_radiance
 from .camera import aperture_radius_m, camera_matrices
 from .distractors import distractor_world_parts, texture_frame
@@ -198,13 +198,7 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
     colour: dict[str, Any] = {"type": "rgb", "value": rgb}
     if material.get("texture") or material.get("user_texture"):
         # Linear RGB already (raw); bilinear lookup, repeated: the box projection's uv run past 1.
-        colour = {
-            "type": "bitmap",
-            "bitmap": _mi().Bitmap(_base_colour_image(material).copy()),
-            "raw": True,
-            "filter_type": "bilinear",
-            "wrap_mode": "repeat",
-        }
+        colour = _bitmap_texture(_base_colour_image(material))
     alpha = roughness_to_alpha(float(material.get("roughness", 0.5)))
     bsdf_type = _bsdf_type(kind, alpha)
     span = material.get("roughness_span")
@@ -215,7 +209,7 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
             "distribution": "ggx",
             "alpha": max(alpha, SMOOTH_ALPHA),
             "diffuse_reflectance": colour,
-            "specular_reflectance": _weight_texture(_gloss_weight(material)),
+            "specular_reflectance": _bitmap_texture(_gloss_weight(material)),
             "int_ior": _IOR[kind],
         }
     elif bsdf_type == "diffuse":
@@ -242,33 +236,23 @@ def bsdf_dict(material: dict[str, Any]) -> dict[str, Any]:
             # GGX alpha per texel, roughness between the span's ends by the map (roughconductor takes a texture).
             low, high = span
             alphas = (low + (high - low) * _roughness_weight(material)) ** 2
-            inner["alpha"] = _weight_texture(np.maximum(alphas, SMOOTH_ALPHA).astype(np.float32))
+            inner["alpha"] = _bitmap_texture(np.maximum(alphas, SMOOTH_ALPHA).astype(np.float32))
     normal = _normal_image(material)
     if normal is not None:
         # The relief of tiles and parquet (appearance.NORMAL_MAP_FAMILIES) bends the shading normal.
-        inner = {
-            "type": "normalmap",
-            "bsdf": inner,
-            "normalmap": {
-                "type": "bitmap",
-                "bitmap": _mi().Bitmap(normal.copy()),
-                "raw": True,
-                "filter_type": "bilinear",
-                "wrap_mode": "repeat",
-            },
-        }
+        inner = {"type": "normalmap", "bsdf": inner, "normalmap": _bitmap_texture(normal)}
     return {"type": "twosided", "material": inner}
 
 
-def _weight_texture(image: np.ndarray) -> dict[str, Any]:
+def _bitmap_texture(image: np.ndarray, wrap_mode: str = "repeat") -> dict[str, Any]:
+    """A ``bitmap`` texture of a linear (raw) float32 image, looked up bilinearly."""
     return {
         "type": "bitmap",
-        "bitmap": _mi().Bitmap(
-            np.array(image, dtype=np.float32, order="C")
-        ),  # a writable copy: nanobind refuses read-only arrays
+        # A writable copy: nanobind refuses read-only arrays.
+        "bitmap": _mi().Bitmap(np.array(image, dtype=np.float32, order="C")),
         "raw": True,
         "filter_type": "bilinear",
-        "wrap_mode": "repeat",
+        "wrap_mode": wrap_mode,
     }
 
 
@@ -278,15 +262,32 @@ def _roughness_weight(material: dict[str, Any]) -> np.ndarray:
     return spread[3]
 
 
+# Gloss maps (:func:`_gloss_weight`) per (texture record JSON, texture cache, span ends, roughness): a pooled BSDF
+# taken again for a material seen before skips recomputing its map. 256 KB each at the default 256 px.
+_GLOSS_CACHE: dict[tuple[str, str, float, float, float], np.ndarray] = {}
+_GLOSS_CACHE_SIZE = 64
+
+
 def _gloss_weight(material: dict[str, Any]) -> np.ndarray:
     """A glossy textured material's specular weight per texel (H, W, 1): (r̄ / r)², in [0.2, 1], where r is the
     roughness the map gives the texel (between the span's ends) and r̄ the material's. A GGX highlight's peak
     falls as 1 / α² = 1 / r⁴ (Walter et al., "Microfacet models for refraction through rough surfaces",
-    EGSR 2007); the square root of that keeps rougher texels visibly duller without blacking them out."""
-    low, high = material["roughness_span"]
-    roughness = low + (high - low) * _roughness_weight(material)
+    EGSR 2007); the square root of that keeps rougher texels visibly duller without blacking them out.
+
+    Read-only, cached per process on everything it depends on: the texture record (and the texture cache it is
+    read from, as :func:`render.appearance.roughness_spread` keys it), the span and the roughness."""
+    low, high = (float(v) for v in material["roughness_span"])
     mean = max(float(material.get("roughness", 0.5)), 0.05)
-    return np.clip((mean / np.maximum(roughness, 0.05)) ** 2, 0.2, 1.0).astype(np.float32)
+    key = (_json_key(material["texture"]), str(texture_cache_dir()), low, high, mean)
+    gloss = _GLOSS_CACHE.get(key)
+    if gloss is None:
+        roughness = low + (high - low) * _roughness_weight(material)
+        gloss = np.clip((mean / np.maximum(roughness, 0.05)) ** 2, 0.2, 1.0).astype(np.float32)
+        gloss.setflags(write=False)
+        if len(_GLOSS_CACHE) >= _GLOSS_CACHE_SIZE:
+            _GLOSS_CACHE.pop(next(iter(_GLOSS_CACHE)))
+        _GLOSS_CACHE[key] = gloss
+    return gloss
 
 
 def roughness_span(material: dict[str, Any]) -> tuple[float, float] | None:
@@ -413,7 +414,7 @@ class BsdfPool:
                 if name.endswith("diffuse_reflectance.data") or (metal and name.endswith("specular_reflectance.data")):
                     params[name] = mi.TensorXf(image.copy())
                 elif name.endswith("specular_reflectance.data"):
-                    params[name] = mi.TensorXf(_gloss_weight(snapped))
+                    params[name] = mi.TensorXf(_gloss_weight(snapped).copy())
                 elif name.endswith("alpha.data"):
                     alphas = np.maximum((low + (high - low) * weight) ** 2, SMOOTH_ALPHA).astype(np.float32)
                     params[name] = mi.TensorXf(alphas)
@@ -990,15 +991,7 @@ def window_glass_entries(room: dict[str, Any], window_radiance: list[np.ndarray]
                 "radiance": _rgb(np.asarray(window_radiance[index]) * diffuse_glass_transmittance()),
                 "sampling_weight": BRUTE_FORCE_SAMPLING_WEIGHT,
             }
-        entries[f"window_glass_{index}"] = emitting_quad(
-            f"window_glass_{index}",
-            frame["centre_m"],
-            frame["u"],
-            frame["v"],
-            frame["normal"],
-            bsdf=bsdf,
-            emitter=emitter,
-        )
+        entries[f"window_glass_{index}"] = _window_quad(f"window_glass_{index}", frame, bsdf=bsdf, emitter=emitter)
     return entries
 
 
@@ -1058,23 +1051,14 @@ def window_view_scenes(room: dict[str, Any], outdoor: OutdoorWindows, shapes: di
         scene_dict: dict[str, Any] = {"type": "scene", RGB_SENSOR_ID: dict(sensor), **shapes}
         for index, frame in enumerate(window_portal_frames(room)):
             radiance = (
-                {
-                    "type": "bitmap",
-                    "bitmap": mi.Bitmap(np.ascontiguousarray(outdoor.cards[index] * transmittance, dtype=np.float32)),
-                    "raw": True,
-                    "filter_type": "bilinear",
-                    "wrap_mode": "clamp",
-                }
+                _bitmap_texture(outdoor.cards[index] * transmittance, wrap_mode="clamp")
                 if textured
                 else _rgb(outdoor.radiance_rgb[index] * transmittance)
             )
             name = f"window_view_{index}"
-            scene_dict[name] = emitting_quad(
+            scene_dict[name] = _window_quad(
                 name,
-                frame["centre_m"],
-                frame["u"],
-                frame["v"],
-                frame["normal"],
+                frame,
                 bsdf={"type": "diffuse"},
                 emitter={"type": "area", "radiance": radiance},
                 with_uv=textured,
@@ -1120,6 +1104,15 @@ def window_portal_frames(room: dict[str, Any]) -> list[dict[str, Any]]:
             }
         )
     return frames
+
+
+def _window_quad(
+    name: str, frame: dict[str, Any], *, bsdf: dict[str, Any], emitter: dict[str, Any] | None, with_uv: bool = False
+) -> Any:
+    """:func:`emitting_quad` filling a window opening (a frame of :func:`window_portal_frames`), facing the room."""
+    return emitting_quad(
+        name, frame["centre_m"], frame["u"], frame["v"], frame["normal"], bsdf=bsdf, emitter=emitter, with_uv=with_uv
+    )
 
 
 def window_portal_entries(
@@ -1169,12 +1162,9 @@ def window_portal_entries(
         if reference_flux_lm > 0:
             weight = max(1.0, weight)
         name = f"window_portal_{index}"
-        entries[name] = emitting_quad(
+        entries[name] = _window_quad(
             name,
-            frame["centre_m"],
-            frame["u"],
-            frame["v"],
-            frame["normal"],
+            frame,
             bsdf=portal_bsdf(),
             emitter={
                 "type": "area",

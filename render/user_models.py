@@ -35,16 +35,22 @@ def load_model_cached(path: str, *, unit: str = "auto", up_axis: str = "z", fron
     return _cached_model(str(path), stat.st_mtime_ns, stat.st_size, unit, up_axis, front or "")
 
 
-@functools.lru_cache(maxsize=64)
-def _linear_texture(record_json: str) -> np.ndarray:
+def _part_look(record_json: str, image: str, what: str, missing: str) -> Any:
+    """The look of the part a spec ``user_texture`` / ``user_normal`` record names, which must have the ``image``
+    (``texture``, ``normal_texture``): else a ValueError "{what}: part {index} of {file name} {missing}"."""
     record = json.loads(record_json)
     model = load_model_cached(
         record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"], front=record.get("front") or None
     )
     index = int(record["part"])
-    if not 0 <= index < len(model.parts) or model.parts[index].look.texture is None:
-        raise ValueError(f"user texture: part {index} of {Path(record['mesh_path']).name} has no texture")
-    look = model.parts[index].look
+    if not 0 <= index < len(model.parts) or getattr(model.parts[index].look, image) is None:
+        raise ValueError(f"{what}: part {index} of {Path(record['mesh_path']).name} {missing}")
+    return model.parts[index].look
+
+
+@functools.lru_cache(maxsize=64)
+def _linear_texture(record_json: str) -> np.ndarray:
+    look = _part_look(record_json, "texture", "user texture", "has no texture")
     linear = srgb.decode(look.texture.astype(np.float32) / np.float32(255.0)) * np.asarray(look.rgb, np.float32)
     image = np.clip(linear, ALBEDO_MIN, ALBEDO_MAX).astype(np.float32)
     image.setflags(write=False)
@@ -59,14 +65,8 @@ def texture_linear_rgb(record: dict[str, Any]) -> np.ndarray:
 
 @functools.lru_cache(maxsize=64)
 def _normal_map(record_json: str) -> np.ndarray:
-    record = json.loads(record_json)
-    model = load_model_cached(
-        record["mesh_path"], unit=record["unit"], up_axis=record["up_axis"], front=record.get("front") or None
-    )
-    index = int(record["part"])
-    if not 0 <= index < len(model.parts) or model.parts[index].look.normal_texture is None:
-        raise ValueError(f"user normal map: part {index} of {Path(record['mesh_path']).name} has none")
-    image = mitsuba_normal_map(model.parts[index].look.normal_texture)
+    look = _part_look(record_json, "normal_texture", "user normal map", "has none")
+    image = mitsuba_normal_map(look.normal_texture)
     image.setflags(write=False)
     return image
 
