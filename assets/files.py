@@ -3,7 +3,7 @@
 Upload validation never parses a user's file in the web process: :func:`check_mesh_file` runs
 ``render.meshes.load_user_mesh`` in a child process with a memory cap (``RLIMIT_AS``), a CPU-time cap and
 a wall-clock timeout, and reads back its one-line verdict. The preview (:func:`render_asset_preview`) runs in a
-render worker (task ``evenframe.asset_preview`` in :mod:`campaigns.tasks`) or in ``manage.py asset_previews``;
+render worker (task ``evenframe.asset_preview`` in :mod:`assets.tasks`) or in ``manage.py asset_previews``;
 the library shows "preview pending" until the file exists.
 
 An OBJ with its MTL and images (or a glTF with its buffers) arrives as one ``.zip``: it is unpacked into a hidden
@@ -13,7 +13,7 @@ no path traversal, links, zip bombs or encrypted entries) and that folder is ren
 Files of asset ``pk`` live under ``MEDIA_ROOT/assets/<pk>/``: ``info.json`` (extents, faces, unit) and
 ``preview.png``. Uploaded meshes live in ``MEDIA_ROOT/assets/meshes/<random>.<format>``; an upload is first staged
 as a hidden ``.partial-<random>.<format>`` file beside it (:func:`stage_upload`) and renamed into place only in the
-transaction that inserts its row (``campaigns.services.upload_mesh_asset``), which removes it on any failure.
+transaction that inserts its row (``assets.services.upload_mesh_asset``), which removes it on any failure.
 """
 
 from __future__ import annotations
@@ -407,7 +407,7 @@ def render_asset_preview(
 
 
 def render_preview_for(asset: Any) -> Path:
-    """:func:`render_asset_preview` for an :class:`campaigns.models.Asset` row."""
+    """:func:`render_asset_preview` for an :class:`assets.models.Asset` row."""
     from django.conf import settings
 
     mesh_path = str(Path(settings.MEDIA_ROOT) / asset.mesh_file.name) if asset.mesh_file else None
@@ -430,6 +430,4 @@ def request_preview(*, asset_pk: int) -> None:
     try:
         app.send_task("evenframe.asset_preview", kwargs={"asset_pk": asset_pk})
     except Exception:  # noqa: BLE001 - a missing preview shows as pending; the upload itself succeeded
-        logging.getLogger("evenframe.campaigns").warning(
-            "could not request preview of asset %s", asset_pk, exc_info=True
-        )
+        logging.getLogger("evenframe.assets").warning("could not request preview of asset %s", asset_pk, exc_info=True)

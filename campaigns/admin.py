@@ -1,4 +1,4 @@
-"""Admin for every campaign model. Counters and state are read-only here: they change through services only."""
+"""Admin for every campaign model (object classes and assets: :mod:`assets.admin`). Counters and state are read-only here: they change through services only."""
 
 from __future__ import annotations
 
@@ -8,37 +8,10 @@ from django import forms
 from django.contrib import admin
 from django.http import HttpRequest
 
-from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
 from campaigns.services import CampaignError, normalize_campaign_budget
-from teams.admin import TeamScopedAdminMixin
-from teams.permissions import ADMIN, PLANNER, has_role, team_id_of
-
-
-class TeamScopedAdmin(TeamScopedAdminMixin, admin.ModelAdmin):
-    """Staff who are not superusers see only their teams' rows, change them as planners and delete them as admins.
-
-    Rows no team owns (shared procedural assets, object classes) are changed and deleted by superusers only: they
-    are every team's.
-    """
-
-    def has_change_permission(self, request: HttpRequest, obj: Any = None) -> bool:
-        allowed = super().has_change_permission(request, obj)
-        if obj is None or not allowed:
-            return allowed
-        return self._has_team_role(request, obj, PLANNER)
-
-    def has_delete_permission(self, request: HttpRequest, obj: Any = None) -> bool:
-        allowed = super().has_delete_permission(request, obj)
-        if obj is None or not allowed:
-            return allowed
-        return self._has_team_role(request, obj, ADMIN)
-
-    @staticmethod
-    def _has_team_role(request: HttpRequest, obj: Any, role: str) -> bool:
-        team_id = team_id_of(obj)
-        if team_id is None:
-            return request.user.is_superuser
-        return has_role(user=request.user, team=team_id, role=role)
+from teams.admin import TeamScopedAdmin, TeamScopedAdminMixin
+from teams.permissions import PLANNER, has_role
 
 
 class RecordAdmin(TeamScopedAdmin):
@@ -52,26 +25,6 @@ class RecordAdmin(TeamScopedAdmin):
 
     def has_change_permission(self, request: HttpRequest, obj: Any = None) -> bool:
         return False
-
-
-@admin.register(ObjectClass)
-class ObjectClassAdmin(TeamScopedAdmin):
-    list_display = ("name", "label")
-    search_fields = ("name", "label")
-
-
-@admin.register(Asset)
-class AssetAdmin(TeamScopedAdmin):
-    """Shared procedural assets (no team) are listed for everyone and changed by superusers; uploaded ones belong
-    to their team. Mesh files arrive through the dashboard's upload page, which checks them."""
-
-    list_display = ("name", "object_class", "kind", "generator", "creation_cost")
-    list_filter = ("kind", "object_class")
-    search_fields = ("name", "generator")
-
-    def get_readonly_fields(self, request: HttpRequest, obj: Any = None) -> tuple[str, ...]:
-        readonly = tuple(super().get_readonly_fields(request, obj))
-        return readonly if request.user.is_superuser else (*readonly, "mesh_file")
 
 
 class ClassQuotaInline(TeamScopedAdminMixin, admin.TabularInline):

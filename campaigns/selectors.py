@@ -240,7 +240,8 @@ from django.db.models import (  # noqa: E402
 from django.db.models.functions import Coalesce, Least, TruncMinute  # noqa: E402
 from django.utils import timezone as _timezone  # noqa: E402
 
-from campaigns.models import Asset, FrameEvent, Instance  # noqa: E402
+from assets.models import Asset  # noqa: E402
+from campaigns.models import FrameEvent, Instance  # noqa: E402
 
 COVERAGE_SAMPLE_FRAMES = 500
 PLAIN_SURFACE = "plain"  # a material slot without a texture

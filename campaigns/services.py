@@ -12,9 +12,9 @@ Concurrency rules (several workers record results at once):
 * counters change only by ``F()`` increments in the transaction that records
   the result.
 
-Unique names (a campaign's name in its team, an asset's name in its team and class) are checked first, for a clear
+Unique names (a campaign's name in its team) are checked first, for a clear
 message, and the insert or rename is guarded as well: a request that loses a race for the name between its check
-and its write gets the same :class:`CampaignError` as the check gives (:func:`_name_guard`), never an
+and its write gets the same :class:`CampaignError` as the check gives (:func:`evenframe.inputs.name_guard`), never an
 ``IntegrityError``.
 """
 
@@ -22,22 +22,22 @@ from __future__ import annotations
 
 import logging
 import math
-import os
 from collections import Counter
-from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
-from contextlib import contextmanager
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass
 from datetime import timedelta
-from decimal import Decimal, InvalidOperation
+from decimal import Decimal
 from typing import Any, NamedTuple
 
-from django.db import IntegrityError, transaction
+from django.db import transaction
 from django.db.models import F, Q, QuerySet
 from django.db.models.functions import Coalesce
 from django.utils import timezone
 
-from campaigns import asset_files, costs, errors, messaging, planner, selectors
-from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+from assets.models import Asset, ObjectClass
+from campaigns import costs, errors, messaging, planner, selectors
+from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
+from evenframe.inputs import DEFAULT_MONEY_MAXIMUM, InputError, clean_amount, clean_name, name_guard
 from render.budget import FIELDS_BY_KEY, BudgetError, normalize_budget
 from teams.models import Team
 from teams.permissions import PLANNER, has_role, personal_team
@@ -59,7 +59,7 @@ Status = Campaign.Status
 State = Frame.State
 
 
-class CampaignError(ValueError):
+class CampaignError(InputError):
     """Bad input or an impossible transition; the message says which and nothing was changed.
 
     Structured for forms: ``field`` names the input the error is about (the service's keyword, e.g. ``name``,
@@ -78,18 +78,14 @@ class CampaignError(ValueError):
         budget_field: tuple[str, str, str] | None = None,
         detail: str = "",
     ) -> None:
-        self.message = message
-        self.field = field
+        super().__init__(message, field=field)
         self.class_name = class_name
         self.column = column
         # For field "budget": (section, name, part) of the budget input, and the message for that input alone.
         self.budget_field = budget_field
         self.detail = detail or message
         if field == "quota" and class_name is not None:
-            text = f"quota {class_name!r}: {message}"
-        else:
-            text = f"{field}: {message}" if field else message
-        super().__init__(text)
+            self.args = (f"quota {class_name!r}: {message}",)
 
 
 @dataclass(frozen=True)
@@ -121,26 +117,6 @@ def lock_campaign(campaign_id: int) -> Campaign:
         raise CampaignError(f"campaign {campaign_id} does not exist") from exc
 
 
-@contextmanager
-def _name_guard(conflict: Callable[[], CampaignError | None]) -> Iterator[None]:
-    """Run an insert or rename of a uniquely named row; a unique violation becomes the name check's own error.
-
-    The name was checked before (``conflict()`` returned None), but another request may have taken it since. The
-    write runs in a savepoint, so the violation rolls back only the write and the enclosing transaction can ask
-    again: under PostgreSQL's READ COMMITTED the violation is raised once the other transaction has committed, so
-    the row it wrote is visible to the new query (SQLite writers never overlap: ``transaction_mode = IMMEDIATE``).
-    Any other integrity error is not a name clash and propagates.
-    """
-    try:
-        with transaction.atomic():
-            yield
-    except IntegrityError:
-        error = conflict()
-        if error is None:
-            raise
-        raise error from None
-
-
 def _event(
     *,
     campaign_id: int,
@@ -163,25 +139,12 @@ def _event(
 # Largest accepted money values: below what the DecimalFields can store (max_digits), so input is refused
 # with a message instead of failing in the database.
 MONEY_MAXIMUM = {"price_per_cpu_hour": Decimal("100000"), "manual_labelling_rate_per_hour": Decimal("1000000")}
-DEFAULT_MONEY_MAXIMUM = Decimal("1000000000")
 
 
 def _decimal(value: Any, what: str, *, minimum: Decimal = Decimal(0)) -> Decimal:
     """A money amount from input; ``what`` is the input's name (the error's field)."""
-    if isinstance(value, bool):
-        raise CampaignError(f"expected a number, got {value!r}", field=what)
-    try:
-        number = Decimal(str(value).strip())
-    except (InvalidOperation, ValueError) as exc:
-        raise CampaignError(f"expected a number, got {value!r}", field=what) from exc
-    if not number.is_finite():
-        raise CampaignError(f"must be finite, got {value!r}", field=what)
-    if number < minimum:
-        raise CampaignError(f"must be at least {minimum}, got {number}", field=what)
     maximum = MONEY_MAXIMUM.get(what, DEFAULT_MONEY_MAXIMUM)
-    if number > maximum:
-        raise CampaignError(f"must be at most {maximum}, got {number}", field=what)
-    return number
+    return clean_amount(value, what, minimum=minimum, maximum=maximum, error=CampaignError)
 
 
 def _finite(value: Any, what: str, **where: Any) -> float:
@@ -297,18 +260,7 @@ def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapp
 
 
 def _clean_name(name: Any, description: str, *, max_length: int = 200) -> str:
-    if name is not None and not isinstance(name, str):
-        raise CampaignError(f"expected text, got {type(name).__name__}", field="name")
-    name = (name or "").strip()
-    if not name:
-        raise CampaignError("required", field="name")
-    if len(name) > max_length:
-        raise CampaignError(f"at most {max_length} characters, got {len(name)}", field="name")
-    if "\x00" in name:
-        raise CampaignError("must not contain NUL characters", field="name")
-    if "\x00" in (description or ""):
-        raise CampaignError("must not contain NUL characters", field="description")
-    return name
+    return clean_name(name, description, max_length=max_length, error=CampaignError)
 
 
 def _campaign_name_conflict(*, team_id: int, name: str, exclude_pk: int | None = None) -> CampaignError | None:
@@ -470,7 +422,7 @@ def create_campaign(
     else:
         assets = default_campaign_assets(team_id=team.pk, class_names=[q.object_class.name for q in clean])
     _check_fixed_cost(assets=assets, settings=settings)
-    with _name_guard(lambda: _campaign_name_conflict(team_id=team.pk, name=name)):
+    with name_guard(lambda: _campaign_name_conflict(team_id=team.pk, name=name)):
         campaign = Campaign.objects.create(
             name=name,
             team=team,
@@ -1087,31 +1039,6 @@ def record_failure(
     return to_state
 
 
-# --- catalogue ----------------------------------------------------------------------------------------
-
-
-def ensure_object_class(*, name: str, label: str = "", description: str = "") -> ObjectClass:
-    obj, _ = ObjectClass.objects.get_or_create(
-        name=name, defaults={"label": label or name.replace("_", " "), "description": description}
-    )
-    return obj
-
-
-def ensure_procedural_asset(*, object_class: ObjectClass, name: str, creation_cost: Decimal | float | str = 0) -> Asset:
-    """The shared (team-less) procedural asset of this class and name, created once.
-
-    Only the shared library is looked at: a team's upload with the same name is another asset and is never
-    returned here (names are unique per team, and the shared library is its own namespace)."""
-    cost = _decimal(creation_cost, "creation_cost")
-    asset, _ = Asset.objects.get_or_create(
-        object_class=object_class,
-        name=name,
-        team=None,
-        defaults={"kind": Asset.Kind.PROCEDURAL, "generator": object_class.name, "creation_cost": cost},
-    )
-    return asset
-
-
 # --- dashboard actions (added for the dashboard, issue 5) ------------------------------------------------------
 
 
@@ -1164,7 +1091,7 @@ def update_draft_campaign(
         covered = {a.object_class.name for a in kept}
         assets = kept + default_campaign_assets(team_id=campaign.team_id, class_names=class_names - covered)
     _check_fixed_cost(assets=assets, settings=settings)
-    with _name_guard(lambda: _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk)):
+    with name_guard(lambda: _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk)):
         Campaign.objects.filter(pk=campaign.pk).update(
             name=name,
             description=description,
@@ -1311,205 +1238,3 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
         lambda: messaging.send_frame_task(frame_id=fid, dispatch_no=dispatch_no, campaign_uid=uid, task_id=task_id)
     )
     return frame
-
-
-ASSET_NAME_MAX_CHARS = 128  # Asset.name's max_length
-
-
-def _article(word: str) -> str:
-    return "an" if word[:1] and word[:1].lower() in "aeiou" else "a"
-
-
-def _asset_name_conflict(*, team: Any, object_class: ObjectClass, name: str) -> CampaignError | None:
-    """The error for a name a team cannot give an upload of this class, or None when the name is free.
-
-    Taken when the team already has an asset of that class and name, or when the shared library has one with the
-    same name up to letter case (a team upload would shadow it confusingly in the library and the planner). Only
-    the team's own assets and the shared library are looked at, so the answer never depends on another team's
-    assets and the message never mentions them.
-    """
-    owners = set(
-        Asset.objects.filter(object_class=object_class)
-        .filter(Q(team=team, name=name) | Q(team__isnull=True, name__iexact=name))
-        .values_list("team_id", flat=True)
-    )
-    what = f"{_article(object_class.name)} {object_class.name} asset called {name!r}"
-    if team.pk in owners:
-        return CampaignError(f"team {team} already has {what}", field="name")
-    if None in owners:
-        return CampaignError(
-            f"the shared library already has {what}; choose another name so the two are not confused", field="name"
-        )
-    return None
-
-
-@dataclass(frozen=True)
-class _AssetInput:
-    team: Any
-    object_class: ObjectClass
-    name: str
-    unit: str
-    creation_cost: Decimal
-    up_axis: str = "+z"
-    front: str = ""
-    look: str = "randomize"
-
-
-def _clean_asset_input(
-    *,
-    user: Any,
-    team: Any,
-    object_class_name: str,
-    name: Any,
-    unit: str,
-    creation_cost: Decimal | float | str,
-    up_axis: str = "+z",
-    front: str = "",
-    look: str = "randomize",
-) -> _AssetInput:
-    """Every check of an upload that needs no file, the name's availability last."""
-    # deferred: keeps render.meshes (trimesh) out of Django start-up
-    from render.meshes import FRONT_AXES, UNIT_TO_M, UP_AXES, axis_rotation
-    from render.user_materials import LOOKS  # deferred: keeps the render core out of Django start-up
-
-    if not has_role(user=user, team=team, role=PLANNER):
-        raise CampaignError(f"{user} is not a planner in team {team}", field="team")
-    name = _clean_name(name, "", max_length=ASSET_NAME_MAX_CHARS)
-    if unit != "auto" and unit not in UNIT_TO_M:
-        raise CampaignError(f"unknown unit {unit!r} (known: auto, {', '.join(UNIT_TO_M)})", field="unit")
-    if up_axis not in UP_AXES:
-        raise CampaignError(f"unknown up axis {up_axis!r} (known: {', '.join(UP_AXES)})", field="up_axis")
-    if front and front not in FRONT_AXES:
-        raise CampaignError(f"unknown front {front!r} (known: {', '.join(FRONT_AXES)})", field="front")
-    try:
-        axis_rotation(up_axis, front or None)
-    except ValueError as exc:
-        raise CampaignError(str(exc), field="front") from exc
-    if look not in LOOKS:
-        raise CampaignError(f"unknown look {look!r} (known: {', '.join(LOOKS)})", field="look")
-    try:
-        object_class = ObjectClass.objects.get(name=object_class_name)
-    except (ObjectClass.DoesNotExist, ValueError, TypeError) as exc:
-        raise CampaignError(f"unknown object class {object_class_name!r}", field="object_class") from exc
-    cost = _decimal(creation_cost, "creation_cost")
-    if conflict := _asset_name_conflict(team=team, object_class=object_class, name=name):
-        raise conflict
-    return _AssetInput(team, object_class, name, unit, cost, up_axis, front or "", look)
-
-
-def _insert_asset(*, clean: _AssetInput, mesh_path: str) -> Asset:
-    """The asset row; a team asset with this class and name made meanwhile gives the name check's error."""
-    with _name_guard(lambda: _asset_name_conflict(team=clean.team, object_class=clean.object_class, name=clean.name)):
-        return Asset.objects.create(
-            object_class=clean.object_class,
-            name=clean.name,
-            kind=Asset.Kind.MESH,
-            mesh_file=mesh_path,
-            mesh_unit=clean.unit,
-            team=clean.team,
-            creation_cost=clean.creation_cost,
-            up_axis=clean.up_axis,
-            front=clean.front,
-            look=clean.look,
-        )
-
-
-@transaction.atomic
-def upload_asset(
-    *,
-    user: Any,
-    team: Any,
-    object_class_name: str,
-    name: str,
-    mesh_path: str,
-    original_name: str,
-    unit: str = "auto",
-    creation_cost: Decimal | float | str = 0,
-) -> Asset:
-    """Add a mesh that is already checked and stored (``mesh_path``: relative to MEDIA_ROOT) to a team's library.
-
-    The dashboard's upload goes through :func:`upload_mesh_asset`, which checks and stores the file itself."""
-    clean = _clean_asset_input(
-        user=user, team=team, object_class_name=object_class_name, name=name, unit=unit, creation_cost=creation_cost
-    )
-    return _insert_asset(clean=clean, mesh_path=mesh_path)
-
-
-def upload_mesh_asset(
-    *,
-    user: Any,
-    team: Any,
-    object_class_name: str,
-    name: str,
-    upload: Any,
-    unit: str = "auto",
-    creation_cost: Decimal | float | str = 0,
-    up_axis: str = "+z",
-    front: str = "",
-    look: str = "keep",
-) -> Asset:
-    """Check an uploaded model, store it and add it to a team's library; on any failure nothing stays.
-
-    ``upload`` is a Django ``UploadedFile`` (``name``, ``size``, ``chunks()``): an OBJ, PLY, STL or GLB file, or a
-    ``.zip`` holding one OBJ with its MTL and images (or a glTF with its buffers and images). ``up_axis`` and
-    ``front`` are the file axes pointing up and towards the model's front (``render.meshes.axis_rotation``);
-    ``look`` "keep" renders the file's materials and textures, "randomize" random colours. Order: the checks that
-    need no file (role, name, class, cost, orientation, the name free in the team and the shared library), then the
-    file is staged beside its final place (a zip unpacked into a hidden folder, refusing path traversal and zip
-    bombs) and parsed in a limited child process (:mod:`campaigns.asset_files`: scale, faces, missing MTL or
-    texture files), then the row is inserted and the file (or folder) renamed into place in one transaction. A
-    request that loses the race for the name, a model that does not parse or any other failure removes what was
-    staged, so no model without a row is left in MEDIA_ROOT. Raises :class:`CampaignError` (input) or
-    :class:`campaigns.asset_files.UploadError` (the file). Its ``info.json`` records the normalized size in metres.
-    Uploads join no campaign by themselves: a campaign chooses them (:func:`create_campaign`).
-    Must not run inside a transaction (the row must be committed before the file counts as kept).
-    """
-    from django.conf import settings
-
-    clean = _clean_asset_input(
-        user=user,
-        team=team,
-        object_class_name=object_class_name,
-        name=name,
-        unit=unit,
-        creation_cost=creation_cost,
-        up_axis=up_axis,
-        front=front,
-        look=look,
-    )
-    staged = asset_files.stage_upload(upload)
-    try:
-        if staged.kind == "zip":
-            staged = asset_files.unpack_staged_zip(staged)
-        info = asset_files.check_mesh_file(
-            path=staged.model_path, unit=clean.unit, up_axis=clean.up_axis, front=clean.front
-        )
-        try:
-            with transaction.atomic(durable=True):
-                asset = _insert_asset(
-                    clean=clean, mesh_path=str(staged.final_model_path.relative_to(settings.MEDIA_ROOT))
-                )
-                try:
-                    os.replace(staged.path, staged.final)
-                except OSError as exc:
-                    raise asset_files.UploadError(
-                        f"the file could not be stored ({exc.strerror or exc}); nothing was kept."
-                    ) from exc
-        except BaseException:
-            asset_files.remove_path(staged.final)  # renamed, but the row did not commit
-            raise
-    finally:
-        asset_files.discard(staged)
-    try:
-        asset_files.write_asset_info(
-            asset.pk,
-            {
-                **info,
-                "format": staged.kind.removesuffix("-dir"),
-                "original_name": str(getattr(upload, "name", ""))[:200],
-            },
-        )
-    except OSError:  # the asset is kept; its preview render writes the extents again
-        log.warning("asset %s: could not write info.json", asset.pk, exc_info=True)
-    asset_files.request_preview(asset_pk=asset.pk)
-    return asset

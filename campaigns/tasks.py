@@ -1,4 +1,4 @@
-"""Celery tasks, thin: claim a frame, call the render core, hand the result to a campaigns service; asset previews.
+"""Celery tasks, thin: claim a frame, call the render core, hand the result to a campaigns service.
 
 Registered when ``evenframe.celery`` autodiscovers ``campaigns``.
 """
@@ -18,9 +18,7 @@ from typing import Any, TypeVar
 from celery import shared_task
 
 from campaigns import planner, scheduler, selectors, services
-from campaigns.asset_files import render_preview_for
 from campaigns.frame_files import frame_output_dir, publish_frame_dir, remove_partial_folders
-from campaigns.models import Asset
 from fleet import faults
 
 log = logging.getLogger("evenframe.workers")
@@ -191,12 +189,3 @@ def _dispatch_after(scheduler: Any, campaign_id: int) -> None:
         scheduler.dispatch(campaign_id=campaign_id)
     except Exception:  # noqa: BLE001 - the frame's own outcome is recorded; topping up can wait for the sweep
         log.warning("dispatch after campaign %s's frame failed; the next sweep tops up", campaign_id, exc_info=True)
-
-
-@shared_task(name="evenframe.asset_preview", ignore_result=True)
-def asset_preview(asset_pk: int) -> str:
-    """Render an asset's 128×128 preview (campaigns.asset_files.render_asset_preview)."""
-    asset = Asset.objects.select_related("object_class").filter(pk=asset_pk).first()
-    if asset is None:
-        return "no such asset"
-    return str(render_preview_for(asset))

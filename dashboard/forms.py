@@ -15,8 +15,10 @@ from typing import TYPE_CHECKING, Any
 
 from django import forms
 
+from assets.models import Asset, ObjectClass
 from campaigns import services
-from campaigns.models import Asset, Campaign, ObjectClass
+from campaigns.models import Campaign
+from evenframe.inputs import InputError
 from render.budget import DEFAULT_BUDGET, FIELDS, FIELDS_BY_KEY, Field
 from teams.permissions import PLANNER, teams_for
 
@@ -455,17 +457,17 @@ class CampaignForm(forms.Form):
                 self.add_service_error(exc)
         return data
 
-    def add_service_error(self, exc: services.CampaignError) -> None:
+    def add_service_error(self, exc: InputError) -> None:
         """Put a service's error on the input it names: its ``field``, a quota row's column, or a budget input
         (``budget_field``: section, name and the end of a range). Anything else is an error of the whole form."""
         field = getattr(exc, "field", "")
         message = getattr(exc, "message", str(exc))
-        if field == "quota" and exc.class_name is not None:
+        if field == "quota" and isinstance(exc, services.CampaignError) and exc.class_name is not None:
             key = f"q_{exc.class_name}_{QUOTA_COLUMNS.get(exc.column, 'target')}"
             if key in self.fields:
                 self.add_error(key, message)
                 return
-        elif field == "budget" and exc.budget_field:
+        elif field == "budget" and isinstance(exc, services.CampaignError) and exc.budget_field:
             section, name, part = exc.budget_field
             budget_field = FIELDS_BY_KEY.get((section, name))
             if budget_field is not None:

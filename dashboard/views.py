@@ -32,8 +32,11 @@ from django.urls import reverse
 from django.views.decorators.cache import never_cache
 from django.views.decorators.http import require_GET, require_POST
 
-from campaigns import asset_files, errors, selectors, services
-from campaigns.models import Asset, Campaign, Frame
+from assets import files as asset_files
+from assets import services as asset_services
+from assets.models import Asset
+from campaigns import errors, selectors, services
+from campaigns.models import Campaign, Frame
 from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
 from render.budget import FIELDS
 from render.images import write_image
@@ -730,7 +733,7 @@ def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
         return None
     d = form.cleaned_data
     try:
-        return services.upload_mesh_asset(
+        return asset_services.upload_mesh_asset(
             user=request.user,
             team=d["team"],
             object_class_name=d["object_class"].name,
@@ -744,7 +747,7 @@ def _upload(request: HttpRequest, form: AssetUploadForm) -> Asset | None:
         )
     except asset_files.UploadError as exc:
         form.add_error("mesh", str(exc)[:1].upper() + str(exc)[1:])
-    except services.CampaignError as exc:
+    except asset_services.AssetError as exc:
         form.add_service_error(exc)
     return None
 

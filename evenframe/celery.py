@@ -10,7 +10,7 @@ os.environ.setdefault("DJANGO_SETTINGS_MODULE", "evenframe.settings")
 
 app = Celery("evenframe")
 app.config_from_object("django.conf:settings", namespace="CELERY")
-app.autodiscover_tasks(["fleet", "campaigns"])
+app.autodiscover_tasks(["fleet", "assets", "campaigns"])
 
 
 def ensure_broker_folders() -> None:

@@ -79,6 +79,7 @@ INSTALLED_APPS = [
     "django.contrib.staticfiles",
     "evenframe",
     "teams",
+    "assets",
     "campaigns",
     "datasets",
     "fleet",

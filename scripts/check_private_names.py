@@ -12,7 +12,7 @@ import ast
 import sys
 from pathlib import Path
 
-PACKAGES = ("render", "campaigns", "datasets", "fleet", "teams", "evenframe")
+PACKAGES = ("render", "assets", "campaigns", "datasets", "fleet", "teams", "evenframe", "dashboard")
 SKIP_PARTS = {"migrations", "tests", ".venv", "data"}
 
 

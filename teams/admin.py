@@ -23,6 +23,7 @@ from teams.permissions import (
     may_change_membership,
     membership_change_errors,
     scope_by_team,
+    team_id_of,
     teams_for,
 )
 
@@ -163,6 +164,33 @@ class TeamScopedAdminMixin(_AdminBase):
         formset = super().get_formset(request, obj, **kwargs)
         formset.request_user = formset.form.request_user = request.user  # classes made for this request
         return formset
+
+
+class TeamScopedAdmin(TeamScopedAdminMixin, admin.ModelAdmin):
+    """Staff who are not superusers see only their teams' rows, change them as planners and delete them as admins.
+
+    Rows no team owns (shared procedural assets, object classes) are changed and deleted by superusers only: they
+    are every team's.
+    """
+
+    def has_change_permission(self, request: HttpRequest, obj: Any = None) -> bool:
+        allowed = super().has_change_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return self._has_team_role(request, obj, PLANNER)
+
+    def has_delete_permission(self, request: HttpRequest, obj: Any = None) -> bool:
+        allowed = super().has_delete_permission(request, obj)
+        if obj is None or not allowed:
+            return allowed
+        return self._has_team_role(request, obj, ADMIN)
+
+    @staticmethod
+    def _has_team_role(request: HttpRequest, obj: Any, role: str) -> bool:
+        team_id = team_id_of(obj)
+        if team_id is None:
+            return request.user.is_superuser
+        return has_role(user=request.user, team=team_id, role=role)
 
 
 class MemberField(forms.ModelChoiceField):

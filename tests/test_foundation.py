@@ -129,11 +129,12 @@ def test_login_page_is_public(client):
 
 @pytest.mark.django_db
 def test_media_is_behind_login_team_scoped_and_refuses_traversal(client, django_user_model, tmp_path, settings):
+    from assets import services as asset_services
     from campaigns import services
     from teams.models import Membership, Team
 
     settings.MEDIA_ROOT = tmp_path / "media"
-    services.ensure_object_class(name="chair")
+    asset_services.ensure_object_class(name="chair")
     team, other = Team.objects.create(name="Ours"), Team.objects.create(name="Theirs")
     member = django_user_model.objects.create_user("ana", password="pw-123-long")
     outsider = django_user_model.objects.create_user("oz", password="pw-123-long")

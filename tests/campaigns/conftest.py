@@ -22,13 +22,13 @@ def user(transactional_db, django_user_model):
 
 @pytest.fixture
 def classes(transactional_db):
-    from campaigns import services
+    from assets import services as asset_services
 
     names = ("chair", "armchair", "side_table", "ottoman", "wall_clock", "sofa")
     out = {}
     for name in names:
-        oc = services.ensure_object_class(name=name)
-        services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}", creation_cost="1.00")
+        oc = asset_services.ensure_object_class(name=name)
+        asset_services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}", creation_cost="1.00")
         out[name] = oc
     return out
 

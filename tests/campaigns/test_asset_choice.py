@@ -14,8 +14,11 @@ import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from django.urls import reverse
 
-from campaigns import asset_files, selectors, services
-from campaigns.models import Asset, Campaign
+from assets import files as asset_files
+from assets import services as asset_services
+from assets.models import Asset
+from campaigns import selectors, services
+from campaigns.models import Campaign
 from tests.campaigns.conftest import TINY_BUDGET
 
 CUBE_OBJ = "".join(f"v {x} {y} {z}\n" for x in (-0.2, 0.2) for y in (-0.15, 0.15) for z in (0.0, 0.3)) + (
@@ -26,7 +29,7 @@ CUBE_OBJ = "".join(f"v {x} {y} {z}\n" for x in (-0.2, 0.2) for y in (-0.15, 0.15
 @pytest.fixture
 def no_preview(monkeypatch):
     requested = []
-    monkeypatch.setattr("campaigns.asset_files.request_preview", lambda **kw: requested.append(kw))
+    monkeypatch.setattr("assets.files.request_preview", lambda **kw: requested.append(kw))
     return requested
 
 
@@ -41,7 +44,7 @@ def _upload(
     user, team, *, name="cube", object_class="ottoman", content: bytes | None = None, filename="cube.obj", **kwargs
 ):
     data = CUBE_OBJ.encode() if content is None else content
-    return services.upload_mesh_asset(
+    return asset_services.upload_mesh_asset(
         user=user,
         team=team,
         object_class_name=object_class,
@@ -93,9 +96,11 @@ def test_an_upload_joins_only_the_campaigns_that_choose_it(user, team, classes, 
 
 
 def test_an_only_upload_of_a_class_without_generator_is_preselected(user, team, classes, media_root, no_preview):
-    from campaigns.models import ObjectClass
+    from assets.models import ObjectClass
 
-    lamp = services.ensure_object_class(name="floor_lamp")  # a render-core class with no procedural asset row here
+    lamp = asset_services.ensure_object_class(
+        name="floor_lamp"
+    )  # a render-core class with no procedural asset row here
     assert not Asset.objects.filter(object_class=lamp, kind="procedural").exists()
     only = _upload(user, team, name="tall lamp", object_class="floor_lamp")
     campaign = _create(user, "lamps", {"floor_lamp": 1, "chair": 1})
@@ -184,7 +189,7 @@ def test_orientation_and_look_go_from_upload_to_the_spec_entries(user, team, cla
 
 
 def test_front_along_the_up_axis_is_refused_before_anything_is_stored(user, team, classes, media_root, no_preview):
-    with pytest.raises(services.CampaignError) as caught:
+    with pytest.raises(asset_services.AssetError) as caught:
         _upload(user, team, up_axis="+y", front="-y")
     assert caught.value.field == "front"
     assert not Asset.objects.filter(kind="mesh").exists() and not (media_root / "assets").exists()

@@ -7,7 +7,8 @@ from io import StringIO
 import pytest
 from django.core.management import CommandError, call_command
 
-from campaigns.models import Asset, Campaign, ClassQuota, ObjectClass
+from assets.models import Asset, ObjectClass
+from campaigns.models import Campaign, ClassQuota
 
 pytestmark = pytest.mark.django_db(transaction=True)
 

@@ -6,6 +6,7 @@ from decimal import Decimal
 
 import pytest
 
+from assets import services as asset_services
 from campaigns import scheduler, selectors, services
 from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
 from tests.campaigns.conftest import TINY_BUDGET
@@ -438,7 +439,7 @@ def uploads(user, classes, media_root, django_user_model):
     Membership.objects.create(team=other_team, user=otto, role="admin")
     ours_rel, ours_path = _write_box(media_root, "footstool")
     theirs_rel, _ = _write_box(media_root, "pouf")
-    ours = services.upload_asset(
+    ours = asset_services.upload_asset(
         user=user,
         team=ours_team,
         object_class_name="ottoman",
@@ -447,7 +448,7 @@ def uploads(user, classes, media_root, django_user_model):
         original_name="footstool.obj",
         unit="m",
     )
-    theirs = services.upload_asset(
+    theirs = asset_services.upload_asset(
         user=otto,
         team=other_team,
         object_class_name="ottoman",

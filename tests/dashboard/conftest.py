@@ -52,12 +52,12 @@ def people(db, django_user_model):
 
 @pytest.fixture
 def object_classes(db):
-    from campaigns import services
+    from assets import services as asset_services
 
     out = {}
     for name in CLASSES:
-        oc = services.ensure_object_class(name=name)
-        services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}", creation_cost="2.00")
+        oc = asset_services.ensure_object_class(name=name)
+        asset_services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}", creation_cost="2.00")
         out[name] = oc
     return out
 

@@ -123,9 +123,9 @@ def test_plan_start_watch_retry_and_browse(
 def test_upload_refuses_a_bad_file_and_takes_a_good_one(
     page, live_server, people, object_classes, media_root, tmp_path, monkeypatch
 ):
-    from campaigns.models import Asset
+    from assets.models import Asset
 
-    monkeypatch.setattr("campaigns.asset_files.request_preview", lambda **kw: None)
+    monkeypatch.setattr("assets.files.request_preview", lambda **kw: None)
     base = live_server.url
     _login(page, base, "pia")
     page.click("nav >> text=Assets")

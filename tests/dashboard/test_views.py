@@ -12,7 +12,8 @@ import struct
 import pytest
 from django.urls import reverse
 
-from campaigns.models import Asset, Campaign, Frame, FrameEvent
+from assets.models import Asset
+from campaigns.models import Campaign, Frame, FrameEvent
 from tests.dashboard.conftest import CUBE_OBJ_TEXT, TINY_BUDGET
 
 pytestmark = pytest.mark.django_db
@@ -568,13 +569,13 @@ def test_asset_library_lists_procedural_assets_with_appearances(client, done_cam
 
 def test_upload_good_mesh(client, people, object_classes, media_root, monkeypatch):
     requested = []
-    monkeypatch.setattr("campaigns.asset_files.request_preview", lambda **kw: requested.append(kw))
+    monkeypatch.setattr("assets.files.request_preview", lambda **kw: requested.append(kw))
     client.force_login(people["pia"])
     response = _upload(client, people, CUBE_OBJ.encode(), "box.obj")
     assert response.status_code == 302, response.context["form"].errors if response.context else ""
     asset = Asset.objects.get(name="test box")
     assert asset.kind == "mesh" and asset.team == people["team"] and requested == [{"asset_pk": asset.pk}]
-    from campaigns.asset_files import asset_info
+    from assets.files import asset_info
 
     assert asset_info(asset.pk)["extents_m"] == [0.5, 0.5, 0.5]
     page = client.get(reverse("campaigns:assets")).content.decode()
@@ -611,14 +612,14 @@ def test_bad_uploads_are_refused_with_a_reason(
 
 
 def test_upload_size_limit(client, people, object_classes, media_root, monkeypatch):
-    monkeypatch.setattr("campaigns.asset_files.MAX_UPLOAD_BYTES", 100)
+    monkeypatch.setattr("assets.files.MAX_UPLOAD_BYTES", 100)
     client.force_login(people["pia"])
     response = _upload(client, people, CUBE_OBJ.encode(), "box.obj")
     assert response.status_code == 400 and "the limit is" in str(response.context["form"].errors)
 
 
 def test_asset_preview_file_and_sniffing():
-    from campaigns.asset_files import sniff_mesh_format
+    from assets.files import sniff_mesh_format
 
     assert sniff_mesh_format(CUBE_OBJ.encode(), size_bytes=len(CUBE_OBJ)) == "obj"
     assert sniff_mesh_format(b"ply\nformat ascii 1.0\n", size_bytes=20) == "ply"
@@ -630,7 +631,7 @@ def test_asset_preview_file_and_sniffing():
 
 
 def test_asset_preview_permissions(client, people, object_classes, media_root):
-    from campaigns.asset_files import preview_path
+    from assets.files import preview_path
 
     mine = Asset.objects.create(
         object_class=object_classes["chair"], name="private", kind="mesh", team=people["other_team"]
@@ -650,7 +651,7 @@ def test_asset_preview_render(media_root, object_classes):
     """The worker-side preview: a 128×128 PNG of a procedural asset (rendered with the render core's Mitsuba)."""
     import cv2
 
-    from campaigns.asset_files import asset_info, render_preview_for
+    from assets.files import asset_info, render_preview_for
 
     asset = Asset.objects.get(name="procedural ottoman")
     path = render_preview_for(asset)

@@ -48,9 +48,9 @@ def owner(db, django_user_model):
 
 @pytest.fixture
 def object_classes(db):
-    from campaigns import services
+    from assets import services as asset_services
 
-    return {name: services.ensure_object_class(name=name) for name in CLASSES}
+    return {name: asset_services.ensure_object_class(name=name) for name in CLASSES}
 
 
 @pytest.fixture

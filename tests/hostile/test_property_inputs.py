@@ -8,6 +8,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from assets import services as asset_services
 from campaigns import services
 from campaigns.models import Campaign, ClassQuota, FrameEvent
 from render.budget import DEFAULT_BUDGET, FIELDS, BudgetError, normalize_budget
@@ -121,7 +122,7 @@ def test_campaign_creation_never_crashes_or_saves_partially(
 ):
     user, _ = django_user_model.objects.get_or_create(username="prop")
     for class_name in ("chair", "wall_clock", "ottoman"):
-        services.ensure_object_class(name=class_name)
+        asset_services.ensure_object_class(name=class_name)
     counts = (Campaign.objects.count(), ClassQuota.objects.count(), FrameEvent.objects.count())
     try:
         campaign = services.create_campaign(

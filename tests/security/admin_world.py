@@ -7,8 +7,10 @@ from typing import Any
 
 from django.contrib.auth.models import Permission
 
+from assets import services as asset_services
+from assets.models import Asset
 from campaigns import services
-from campaigns.models import Asset, Campaign
+from campaigns.models import Campaign
 from teams.models import Membership, Team
 
 PASSWORD = "admin-world-password-123"
@@ -32,9 +34,9 @@ class World:
 
 
 def build_world(user_model: Any) -> World:
-    chair = services.ensure_object_class(name="chair")
+    chair = asset_services.ensure_object_class(name="chair")
     alpha, bravo = Team.objects.create(name="Alpha"), Team.objects.create(name="Bravo")
-    staff_permissions = Permission.objects.filter(content_type__app_label__in=("teams", "campaigns"))
+    staff_permissions = Permission.objects.filter(content_type__app_label__in=("teams", "assets", "campaigns"))
 
     def person(name: str, *, staff: bool = False, **roles: str) -> Any:
         user = user_model.objects.create_user(name, password=PASSWORD, is_staff=staff)
@@ -50,7 +52,7 @@ def build_world(user_model: Any) -> World:
     bob = person("bob", bravo="admin")
     loner = person("loner")
     root = user_model.objects.create_superuser("root", password=PASSWORD)
-    shared = services.ensure_procedural_asset(object_class=chair, name="shared-library-chair")
+    shared = asset_services.ensure_procedural_asset(object_class=chair, name="shared-library-chair")
     alpha_asset = Asset.objects.create(object_class=chair, name="alpha-own-mesh", kind=Asset.Kind.MESH, team=alpha)
     bravo_asset = Asset.objects.create(object_class=chair, name="bravo-secret-mesh", kind=Asset.Kind.MESH, team=bravo)
     quota = [services.QuotaInput(class_name="chair", target_accepted=3)]

@@ -8,7 +8,8 @@ from django.contrib import admin
 from django.test import Client
 from django.urls import reverse
 
-from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+from assets.models import Asset, ObjectClass
+from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
 from tests.security.admin_forms import form_values, select_options
 from tests.security.admin_world import build_world
 
@@ -129,7 +130,7 @@ def test_quota_cannot_be_added_to_another_teams_campaign(world):
 
 class TestAssets:
     def _add(self, client: Client, **changes: str):
-        page = client.get(reverse("admin:campaigns_asset_add"))
+        page = client.get(reverse("admin:assets_asset_add"))
         assert page.status_code == 200
         values = form_values(page.content, "asset_form")
         values.update(
@@ -140,10 +141,10 @@ class TestAssets:
                 **{k: [v] for k, v in changes.items()},
             }
         )
-        return client.post(reverse("admin:campaigns_asset_add"), values)
+        return client.post(reverse("admin:assets_asset_add"), values)
 
     def test_asset_team_choices_are_the_users_teams(self, world):
-        page = _signed_in(world.pia).get(reverse("admin:campaigns_asset_add"))
+        page = _signed_in(world.pia).get(reverse("admin:assets_asset_add"))
         assert [v for v in select_options(page.content, "team") if v] == [str(world.alpha.pk)]
 
     def test_asset_cannot_be_given_to_another_team(self, world):
@@ -164,7 +165,7 @@ class TestAssets:
 
     def test_own_asset_cannot_move_to_another_team(self, world):
         pia = _signed_in(world.pia)
-        url = reverse("admin:campaigns_asset_change", args=[world.alpha_asset.pk])
+        url = reverse("admin:assets_asset_change", args=[world.alpha_asset.pk])
         values = form_values(pia.get(url).content, "asset_form")
         values["team"] = [str(world.bravo.pk)]
         assert pia.post(url, values).status_code == 200
@@ -174,7 +175,7 @@ class TestAssets:
 
 def test_shared_reference_data_is_changed_by_superusers_only(world):
     chair = ObjectClass.objects.get()
-    url = reverse("admin:campaigns_objectclass_change", args=[chair.pk])
+    url = reverse("admin:assets_objectclass_change", args=[chair.pk])
     assert _signed_in(world.pia).post(url, {"name": "sofa", "label": "sofa", "description": ""}).status_code == 403
     chair.refresh_from_db()
     assert chair.name == "chair"
@@ -230,7 +231,7 @@ def test_no_admin_page_shows_another_teams_rows(world):
         instance,
         ObjectClass.objects.get(),
     ]
-    registered = [m for m in admin.site._registry if m._meta.app_label in ("teams", "campaigns")]
+    registered = [m for m in admin.site._registry if m._meta.app_label in ("teams", "assets", "campaigns")]
     assert {type(row) for row in alpha_rows} == set(registered)
     # Ada plans in Bravo, so Bravo's rows are hers to see; an account in no team is nobody's.
     for user, hidden in ((world.pia, (*BRAVO_ONLY, b"loner")), (world.ada, (b"loner",))):
@@ -258,7 +259,7 @@ def test_every_admin_class_is_checked(world):
     from teams.admin import TeamScopedAdminMixin
 
     for model, model_admin in admin.site._registry.items():
-        if model._meta.app_label not in ("teams", "campaigns"):
+        if model._meta.app_label not in ("teams", "assets", "campaigns"):
             continue
         assert isinstance(model_admin, TeamScopedAdminMixin), model
         for inline in model_admin.inlines:
@@ -275,9 +276,9 @@ def test_odd_values_in_any_admin_field_never_cause_a_server_error(world):
         ("teams", "team", world.alpha.pk),
         ("teams", "membership", world.alpha.memberships.get(user=world.vic).pk),
         ("campaigns", "campaign", world.alpha_campaign.pk),
-        ("campaigns", "asset", world.alpha_asset.pk),
+        ("assets", "asset", world.alpha_asset.pk),
         ("campaigns", "classquota", world.alpha_campaign.quotas.get().pk),
-        ("campaigns", "objectclass", ObjectClass.objects.get().pk),
+        ("assets", "objectclass", ObjectClass.objects.get().pk),
     ]
     for app, model, pk in pages:
         for url in (reverse(f"admin:{app}_{model}_add"), reverse(f"admin:{app}_{model}_change", args=[pk])):

@@ -26,7 +26,7 @@ def world(db, django_user_model) -> World:
 
 @pytest.fixture
 def no_preview(monkeypatch) -> None:
-    monkeypatch.setattr("campaigns.asset_files.request_preview", lambda **kw: None)
+    monkeypatch.setattr("assets.files.request_preview", lambda **kw: None)
 
 
 def _upload(client, team, name: str, *, object_class: str = "ottoman"):
@@ -48,7 +48,7 @@ def _text(response) -> str:
 
 
 def test_two_teams_may_give_assets_of_one_class_the_same_name(client, world, media_root, no_preview):
-    from campaigns.models import Asset
+    from assets.models import Asset
 
     client.force_login(world.planner)
     assert _upload(client, world.team, "pouf").status_code == 302
@@ -63,7 +63,7 @@ def test_two_teams_may_give_assets_of_one_class_the_same_name(client, world, med
 
 
 def test_a_taken_name_is_refused_in_the_team_with_a_message_about_that_team_only(client, world, media_root, no_preview):
-    from campaigns.models import Asset
+    from assets.models import Asset
 
     client.force_login(world.planner)
     assert _upload(client, world.team, "pouf").status_code == 302
@@ -92,7 +92,7 @@ def test_another_teams_names_never_show_in_an_upload_answer(client, world, media
 
 
 def test_a_team_upload_cannot_take_a_shared_asset_name(client, world, media_root, no_preview):
-    from campaigns.models import Asset
+    from assets.models import Asset
 
     client.force_login(world.planner)
     for name in ("procedural ottoman", "Procedural Ottoman"):
@@ -108,7 +108,7 @@ def test_a_team_upload_cannot_take_a_shared_asset_name(client, world, media_root
 
 
 def test_the_database_keeps_names_unique_per_team_and_class(world):
-    from campaigns.models import Asset, ObjectClass
+    from assets.models import Asset, ObjectClass
 
     ottoman = ObjectClass.objects.get(name="ottoman")
 
@@ -129,11 +129,11 @@ def test_the_database_keeps_names_unique_per_team_and_class(world):
 
 
 def test_the_shared_library_lookup_never_returns_a_team_upload(world):
-    from campaigns import services
-    from campaigns.models import Asset, ObjectClass
+    from assets import services as asset_services
+    from assets.models import Asset, ObjectClass
 
     chair = ObjectClass.objects.get(name="chair")
-    mesh = services.upload_asset(
+    mesh = asset_services.upload_asset(
         user=world.planner,
         team=world.team,
         object_class_name="chair",
@@ -142,10 +142,10 @@ def test_the_shared_library_lookup_never_returns_a_team_upload(world):
         original_name="studio chair.obj",
         unit="m",
     )
-    shared = services.ensure_procedural_asset(object_class=chair, name="studio chair", creation_cost="1")
+    shared = asset_services.ensure_procedural_asset(object_class=chair, name="studio chair", creation_cost="1")
     assert shared.pk != mesh.pk
     assert shared.team_id is None and shared.kind == Asset.Kind.PROCEDURAL
-    assert services.ensure_procedural_asset(object_class=chair, name="studio chair").pk == shared.pk
+    assert asset_services.ensure_procedural_asset(object_class=chair, name="studio chair").pk == shared.pk
 
 
 @pytest.mark.django_db(transaction=True)

@@ -78,7 +78,7 @@ class World:
 
 
 def _make_world(django_user_model) -> World:
-    from campaigns import services
+    from assets import services as asset_services
     from teams.models import Membership, Team
 
     team = Team.objects.create(name="Studio North")
@@ -88,8 +88,8 @@ def _make_world(django_user_model) -> World:
     Membership.objects.create(team=team, user=planner, role="planner")
     Membership.objects.create(team=other, user=outsider, role="planner")
     for name in ("chair", "ottoman"):
-        oc = services.ensure_object_class(name=name)
-        services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}", creation_cost="2.00")
+        oc = asset_services.ensure_object_class(name=name)
+        asset_services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}", creation_cost="2.00")
     return World(team, other, planner, outsider)
 
 
@@ -107,7 +107,7 @@ def live_world(transactional_db, django_user_model) -> World:
 @pytest.fixture
 def no_preview(monkeypatch) -> None:
     """Uploads ask the fleet for a preview; no broker message from these tests."""
-    monkeypatch.setattr("campaigns.asset_files.request_preview", lambda **kw: None)
+    monkeypatch.setattr("assets.files.request_preview", lambda **kw: None)
 
 
 def _plan_data(team_pk: int, name: str) -> dict[str, Any]:
@@ -192,7 +192,7 @@ def _rival_campaign(world: World, name: str) -> Callable[[], None]:
 
 def _rival_asset(world: World, name: str) -> Callable[[], None]:
     def make() -> None:
-        from campaigns.models import Asset, ObjectClass
+        from assets.models import Asset, ObjectClass
 
         Asset.objects.bulk_create(
             [
@@ -260,7 +260,7 @@ def test_an_asset_name_taken_after_the_check_gets_the_form_error_and_leaves_no_f
 ):
     from django.core.files.uploadedfile import SimpleUploadedFile
 
-    from campaigns.models import Asset
+    from assets.models import Asset
 
     client.force_login(world.planner)
     data = {**_upload_data(world.team.pk, "footstool"), "mesh": SimpleUploadedFile("box.obj", CUBE_OBJ)}
@@ -471,7 +471,7 @@ def test_simultaneous_creates_with_one_name_make_one_campaign(live_server, live_
 def test_simultaneous_uploads_with_one_name_make_one_asset_and_leave_no_file(
     live_server, live_world, media_root, no_preview
 ):
-    from campaigns.models import Asset
+    from assets.models import Asset
 
     visitor = Visitor(live_server.url, live_world.planner)
     path = reverse("campaigns:assets")

@@ -30,8 +30,9 @@ TINY_BUDGET = {"render": {"width_px": 64, "height_px": 48, "spp": 4, "max_depth"
 
 @pytest.fixture
 def odd_world(transactional_db, django_user_model) -> dict[str, Any]:
+    from assets import services as asset_services
+    from assets.models import Asset, ObjectClass
     from campaigns import services
-    from campaigns.models import Asset, ObjectClass
     from teams.models import Membership, Team
 
     assert len(CLASS_NAME) <= 64
@@ -39,8 +40,8 @@ def odd_world(transactional_db, django_user_model) -> dict[str, Any]:
     planner = django_user_model.objects.create_user(username="pia", password="odd-names-password-1")
     Membership.objects.create(team=team, user=planner, role="planner")
     odd = ObjectClass.objects.create(name=CLASS_NAME, label=CLASS_NAME)
-    services.ensure_object_class(name="chair")
-    services.ensure_procedural_asset(object_class=odd, name=ASSET_NAME, creation_cost="1")
+    asset_services.ensure_object_class(name="chair")
+    asset_services.ensure_procedural_asset(object_class=odd, name=ASSET_NAME, creation_cost="1")
     Asset.objects.create(object_class=odd, name=ASSET_NAME, kind=Asset.Kind.MESH, team=team)
     campaign = services.create_campaign(
         owner=planner,

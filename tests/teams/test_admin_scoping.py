@@ -6,6 +6,7 @@ import pytest
 from django.contrib.auth.models import Permission
 from django.urls import reverse
 
+from assets import services as asset_services
 from campaigns import services
 from campaigns.models import Campaign, Frame
 from teams.models import Membership, Team
@@ -15,10 +16,10 @@ pytestmark = pytest.mark.django_db
 
 @pytest.fixture
 def setup(django_user_model):
-    services.ensure_object_class(name="chair")
+    asset_services.ensure_object_class(name="chair")
     a, b = Team.objects.create(name="Alpha"), Team.objects.create(name="Bravo")
     staff = django_user_model.objects.create_user("staff-a", password="pw-123-long", is_staff=True)
-    staff.user_permissions.set(Permission.objects.filter(content_type__app_label="campaigns"))
+    staff.user_permissions.set(Permission.objects.filter(content_type__app_label__in=("assets", "campaigns")))
     Membership.objects.create(team=a, user=staff, role="planner")
     owner_b = django_user_model.objects.create_user("owner-b", password="pw-123-long")
     Membership.objects.create(team=b, user=owner_b, role="admin")

@@ -6,8 +6,9 @@ from __future__ import annotations
 import pytest
 from django.contrib.auth import get_user_model
 
-from campaigns import services
-from campaigns.models import Asset, Campaign, ClassQuota, Frame, FrameEvent, Instance, ObjectClass
+from assets import services as asset_services
+from assets.models import Asset, ObjectClass
+from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
 from teams.models import Membership, Team
 from teams.permissions import (
     ADMIN,
@@ -68,8 +69,8 @@ def people(django_user_model):
 
 def test_scope_by_team_keeps_own_and_shared_rows(people):
     a, b, users = people
-    chair = services.ensure_object_class(name="chair")
-    shared = services.ensure_procedural_asset(object_class=chair, name="shared")
+    chair = asset_services.ensure_object_class(name="chair")
+    shared = asset_services.ensure_procedural_asset(object_class=chair, name="shared")
     mine = Asset.objects.create(object_class=chair, name="mine", team=a)
     theirs = Asset.objects.create(object_class=chair, name="theirs", team=b)
     assert set(scope_by_team(Asset.objects.all(), user=users["viewer"])) == {shared, mine}

@@ -6,6 +6,7 @@ import pytest
 from django.core.exceptions import PermissionDenied
 from django.http import Http404
 
+from assets import services as asset_services
 from campaigns import services
 from campaigns.models import Campaign
 from teams.models import Membership, Team
@@ -37,7 +38,7 @@ def people(django_user_model):
 
 
 def _campaign(team, owner):
-    services.ensure_object_class(name="chair")
+    asset_services.ensure_object_class(name="chair")
     return services.create_campaign(
         owner=owner,
         team=team,
@@ -75,7 +76,7 @@ def test_outsider_gets_404_and_viewer_403(people):
 
 def test_viewer_cannot_create_campaigns_in_the_team(people):
     team, _, users = people
-    services.ensure_object_class(name="chair")
+    asset_services.ensure_object_class(name="chair")
     with pytest.raises(services.CampaignError, match="not a planner"):
         services.create_campaign(
             owner=users["viewer"],

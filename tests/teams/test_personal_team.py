@@ -35,9 +35,10 @@ def test_a_user_is_not_put_into_another_users_team_by_its_name(django_user_model
 
 
 def test_a_campaign_without_a_team_lands_in_the_owners_own_team(django_user_model, alices_team):
+    from assets import services as asset_services
     from campaigns import services
 
-    services.ensure_object_class(name="chair")
+    asset_services.ensure_object_class(name="chair")
     mallory = django_user_model.objects.create_user("mallory", password="pw-mallory-123")
     campaign = services.create_campaign(
         owner=mallory,

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from django.core.management.base import BaseCommand
 
-from campaigns.asset_files import preview_path, render_preview_for
-from campaigns.models import Asset
+from assets.files import preview_path, render_preview_for
+from assets.models import Asset
 
 
 class Command(BaseCommand):

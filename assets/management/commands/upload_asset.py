@@ -1,6 +1,6 @@
 """``manage.py upload_asset FILE --team T --class C --name N --user U``: add a model to a team's library.
 
-The same checks and storage as the dashboard's upload (``campaigns.services.upload_mesh_asset``): OBJ, PLY, STL,
+The same checks and storage as the dashboard's upload (``assets.services.upload_mesh_asset``): OBJ, PLY, STL,
 GLB, or a .zip with an OBJ and its MTL and images (or a glTF and its files); up axis, front and look per asset.
 Prints the normalized size in metres. The upload joins no campaign by itself.
 """
@@ -12,7 +12,7 @@ from pathlib import Path
 from django.core.files import File
 from django.core.management.base import BaseCommand, CommandError, CommandParser
 
-from campaigns import asset_files, services
+from assets import files, services
 from render.meshes import FRONT_AXES, SIGNED_AXES, UNIT_TO_M
 from render.user_materials import LOOKS
 from teams.models import Team
@@ -75,10 +75,10 @@ class Command(BaseCommand):
                     front=options["front"],
                     look=options["look"],
                 )
-            except (asset_files.UploadError, services.CampaignError) as exc:
+            except (files.UploadError, services.AssetError) as exc:
                 raise CommandError(f"{path.name}: {exc}") from exc
-        info = asset_files.asset_info(asset.pk)
-        size = asset_files.size_text(info["extents_m"]) if info.get("extents_m") else "unknown size"
+        info = files.asset_info(asset.pk)
+        size = files.size_text(info["extents_m"]) if info.get("extents_m") else "unknown size"
         self.stdout.write(
             f"asset {asset.pk} {asset}: {size}, unit {info.get('unit', asset.mesh_unit)}, "
             f"{info.get('parts', 1)} part(s), {info.get('textured_parts', 0)} textured, "

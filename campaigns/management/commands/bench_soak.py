@@ -37,6 +37,7 @@ from django.core.management import call_command
 from django.core.management.base import BaseCommand, CommandParser
 from django.db.models import Count, Sum
 
+from assets import services as asset_services
 from campaigns import integrity, services
 from campaigns.models import Campaign, Frame, FrameEvent
 from evenframe.celery import ensure_broker_folders
@@ -177,8 +178,8 @@ class Command(BaseCommand):
 
         user, _ = get_user_model().objects.get_or_create(username="soak")
         for name in SOAK_CLASSES:
-            oc = services.ensure_object_class(name=name)
-            services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}")
+            oc = asset_services.ensure_object_class(name=name)
+            asset_services.ensure_procedural_asset(object_class=oc, name=f"procedural {name}")
         campaign = services.create_campaign(
             owner=user,
             name=f"soak {time.strftime('%Y-%m-%d %H:%M:%S')} {uuid.uuid4().hex[:4]}",

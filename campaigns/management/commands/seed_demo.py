@@ -16,6 +16,7 @@ from django.contrib.auth import get_user_model
 from django.core.management.base import BaseCommand, CommandError
 from django.db import transaction
 
+from assets import services as asset_services
 from campaigns import services
 from campaigns.models import Campaign
 from render.assets import CLASSES
@@ -92,9 +93,9 @@ class Command(BaseCommand):
             Membership.objects.update_or_create(team=team, user=owner, defaults={"role": Membership.Role.ADMIN})
             created_assets = 0
             for name in demo_class_names():
-                object_class = services.ensure_object_class(name=name, label=CLASS_LABELS.get(name, ""))
+                object_class = asset_services.ensure_object_class(name=name, label=CLASS_LABELS.get(name, ""))
                 before = object_class.assets.count()
-                services.ensure_procedural_asset(
+                asset_services.ensure_procedural_asset(
                     object_class=object_class, name=f"procedural {name}", creation_cost=GENERATOR_CREATION_COST
                 )
                 created_assets += object_class.assets.count() - before

@@ -28,6 +28,7 @@ from django.core.management.base import BaseCommand, CommandError, CommandParser
 from django.db import connection, transaction
 from django.utils import timezone
 
+from assets import services as asset_services
 from campaigns import services
 from campaigns.frame_files import frame_relative_dir
 from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
@@ -88,7 +89,7 @@ def make_synthetic_campaign(
     names = sorted(class_weights)
     if campaign is None:
         for class_name in names:
-            services.ensure_object_class(name=class_name)
+            asset_services.ensure_object_class(name=class_name)
         campaign = services.create_campaign(
             owner=owner,
             name=name or f"bench export {time.strftime('%Y%m%d-%H%M%S')}-{os.getpid()}",
