@@ -1,5 +1,5 @@
-"""Quota-aware composition planner: pure functions, no Django, no renderer (the render core's pure
-``contrast_reason`` only).
+"""Quota-aware composition planner: pure functions, no Django, no renderer (of the render core, only the pure
+reject-reason wording of :mod:`render.reasons`).
 
 Each next frame's class composition comes from the remaining deficits and the
 accepted yield observed per class. The yield of class *c* (the probability
@@ -30,7 +30,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from render.frame import contrast_reason  # pure (no renderer import): one wording for the reject reason
+from render.reasons import box_reason, contrast_reason, visible_fraction_reason  # one wording for reject reasons
 
 PRIOR_YIELD = 0.5  # common practice: an uninformative-ish prior mean for "accepted"
 PRIOR_STRENGTH = 4.0  # pseudo-placements; small so observations dominate after a few frames
@@ -253,20 +253,16 @@ def accept_instance(
 
     References
     ----------
-    The contrast rule and its wording: ``render.frame.contrast_reason``.
+    The wording of every reason: :mod:`render.reasons`.
     """
     box = label.get("bbox")
     area_px = int(label.get("mask_area_px") or 0)
     if not box or area_px == 0:
         return False, ["not visible"]
-    reasons = []
-    visible_fraction = float(label.get("visible_fraction") or 0.0)
-    if visible_fraction < min_visible_fraction:
-        reasons.append(f"visible_fraction {visible_fraction:.2f} < {min_visible_fraction:.2f}")
-    side_px = min(float(box[2]), float(box[3]))
-    if side_px < min_box_px:
-        reasons.append(f"box {side_px:g} px < {min_box_px:g} px")
-    low_contrast = contrast_reason(label, min_contrast=min_contrast)
-    if low_contrast:
-        reasons.append(low_contrast)
+    candidates = (
+        visible_fraction_reason(float(label.get("visible_fraction") or 0.0), min_visible_fraction=min_visible_fraction),
+        box_reason(min(float(box[2]), float(box[3])), min_box_px=min_box_px),
+        contrast_reason(label, min_contrast=min_contrast),
+    )
+    reasons = [reason for reason in candidates if reason]
     return not reasons, reasons

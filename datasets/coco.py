@@ -75,8 +75,13 @@ def image_entry(
     }
 
 
-def annotation_entry(row: InstanceRow, *, category: Category, rle: dict[str, Any]) -> dict[str, Any]:
-    """A COCO annotation (the instance row's primary key is its id) with the visibility measures."""
+def annotation_entry(row: InstanceRow, *, category: Category, rle: dict[str, Any], iscrowd: int = 0) -> dict[str, Any]:
+    """A COCO annotation (the instance row's primary key is its id) with the visibility measures.
+
+    ``iscrowd`` 1 marks an ignore region: a visible object the quota rules did not accept. COCO evaluation matches
+    detections on such a region without counting them as false positives and never counts the region as missed
+    (pycocotools ``COCOeval.evaluateImg``: crowd ground truth is ignored); most trainers skip it as a target.
+    """
     return {
         "id": int(row.pk),
         "image_id": int(row.frame_index),
@@ -84,7 +89,7 @@ def annotation_entry(row: InstanceRow, *, category: Category, rle: dict[str, Any
         "bbox": [float(v) for v in row.bbox],
         "area": int(row.mask_area_px),
         "segmentation": rle,
-        "iscrowd": 0,
+        "iscrowd": int(iscrowd),
         "instance_id": int(row.instance_id),
         "asset_id": row.asset_id,
         "visible_fraction": row.visible_fraction,

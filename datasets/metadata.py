@@ -54,8 +54,9 @@ def software_versions() -> dict[str, Any]:
 class ClassStats:
     """One class's running sums over the exported instances (per split where counted)."""
 
-    instances: Counter = field(default_factory=Counter)  # split → n
+    instances: Counter = field(default_factory=Counter)  # split → n (labelled objects)
     accepted: Counter = field(default_factory=Counter)
+    ignore_regions: Counter = field(default_factory=Counter)  # split → n (visible, not accepted: COCO iscrowd 1)
     frames: Counter = field(default_factory=Counter)
     visible_fraction_sum: float = 0.0
     contrast_sum: float = 0.0
@@ -64,8 +65,12 @@ class ClassStats:
     truncation_fraction_sum: float = 0.0
     area_px_sum: int = 0
 
-    def add(self, split: str, row: InstanceRow) -> None:
-        """Count one exported instance of this class (frames are counted by the caller, once per frame)."""
+    def add(self, split: str, row: InstanceRow, *, ignore: bool = False) -> None:
+        """Count one exported instance of this class (frames are counted by the caller, once per frame); an ignore
+        region is only counted, its measures stay out of the means."""
+        if ignore:
+            self.ignore_regions[split] += 1
+            return
         self.instances[split] += 1
         self.accepted[split] += int(bool(row.accepted))
         self.visible_fraction_sum += row.visible_fraction
@@ -121,6 +126,11 @@ def class_statistics(
                 },
                 "exported_instances": {**{sp: s.instances[sp] for sp in SPLITS}, "total": n},
                 "exported_accepted": {**{sp: s.accepted[sp] for sp in SPLITS}, "total": sum(s.accepted.values())},
+                "ignore_regions": {
+                    **{sp: s.ignore_regions[sp] for sp in SPLITS},
+                    "total": sum(s.ignore_regions.values()),
+                },
+                "background_below_px": options.background_below(cat.name),
                 "share": {sp: (round(s.instances[sp] / n, 6) if n else None) for sp in SPLITS},
                 "frames_with_class": {**{sp: s.frames[sp] for sp in SPLITS}, "total": sum(s.frames.values())},
                 "mean_visible_fraction": round(s.visible_fraction_sum / n, 6) if n else None,
@@ -134,7 +144,7 @@ def class_statistics(
         )
     return {
         "campaign_id": campaign.pk,
-        "accepted_only": options.accepted_only,
+        "rejected": options.rejected,
         "images": {**{s: images[s] for s in SPLITS}, "total": sum(images.values())},
         "annotations": {**{s: annotations[s] for s in SPLITS}, "total": sum(annotations.values())},
         "classes": classes,
@@ -169,7 +179,7 @@ def splits_json(
         "unit": "layout (Frame.layout_index): frames that share a layout share its split",
         "method": "greedy largest-first balance of per-class instance counts (assign_splits); layouts "
         "assigned by a previous export with the same ratios keep their split",
-        "balanced_on": "exported instances" + (" (accepted only)" if options.accepted_only else ""),
+        "balanced_on": "labelled instances" + ("" if options.labels_rejected else " (accepted only)"),
         "layouts": {s: layouts_per_split[s] for s in SPLITS},
         "achieved_shares": achieved,
         "assignment": by_split,
@@ -263,12 +273,7 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
         f"Classes: {names}. Splits: "
         + ", ".join(f"{s} {r:g}" for s, r in zip(SPLITS, options.ratios, strict=True))
         + " (by layout).",
-        "Instances: "
-        + (
-            "accepted by the campaign's quota rules only."
-            if options.accepted_only
-            else "every visible instance; `accepted` says whether the quota rule accepted it."
-        ),
+        "Instances: " + _instances_sentence(options),
         "",
         "| path | content |",
         "|---|---|",
@@ -277,7 +282,8 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
     ]
     if coco:
         lines.append(
-            "| `annotations/<split>.json` | COCO instances: bbox, area, RLE segmentation, iscrowd 0; "
+            "| `annotations/<split>.json` | COCO instances: bbox, area, RLE segmentation, iscrowd (0: an object, 1: an "
+            "ignore region, see below); "
             "extra per annotation: visible/occlusion/truncation fraction, contrast (ΔE*ab against the "
             "surroundings ÷ image noise; null for frames rendered before it was measured), amodal_bbox, "
             "accepted; "
@@ -301,5 +307,84 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
         "",
         f"Active splits: {', '.join(active)}.",
         "",
+        *_rejected_section(options),
+        *_conventions_section(coco=coco, yolo=yolo),
     ]
     return "\n".join(lines)
+
+
+def _instances_sentence(options: ExportOptions) -> str:
+    below = f"{options.background_below_px} visible pixels"
+    if options.background_below_px_by_class:
+        below += " (" + ", ".join(f"{name} {px}" for name, px in options.background_below_px_by_class) + ")"
+    if options.rejected == "label":
+        return (
+            "every visible instance is an object (`iscrowd` 0), including those the quota rules rejected; "
+            "`accepted` says which were accepted."
+        )
+    if options.rejected == "drop":
+        return (
+            "the objects the quota rules accepted; visible instances they rejected are left out, so they are "
+            "unlabelled background in the images (the export command printed how many)."
+        )
+    return (
+        "the objects the quota rules accepted (`iscrowd` 0); visible instances they rejected are ignore regions "
+        f"(`iscrowd` 1), unless fewer than {below} show, then they are background."
+    )
+
+
+def _rejected_section(options: ExportOptions) -> list[str]:
+    """Why ignore regions, and the trade-off of the YOLO choice made for this export."""
+    lines = [
+        "## Objects the quota rules did not accept",
+        "",
+        "A visible object can be rejected (too occluded, too small, too little contrast for the campaign's quota "
+        "rules). Labelled as an object, it teaches a detector to find what the rules call unfindable; deleted, it "
+        "teaches that a visible object is background. COCO's answer is an ignore region: an annotation with "
+        "`iscrowd: 1` and its mask, which COCO evaluation neither rewards nor punishes (a detection on it is not a "
+        "false positive, a miss is not a false negative) and most trainers leave out of the loss.",
+        "",
+        f"This export: `{options.rejected}` (choices: `ignore`, `label`, `drop`).",
+    ]
+    if options.rejected == "ignore" and "yolo" in options.formats:
+        lines += [
+            "",
+            "YOLO labels have no ignore regions. The choices, and this export's:",
+            "",
+            "- `fill` — the region's pixels (its mask grown by one pixel, never over a labelled object) are painted "
+            "RGB (124, 116, 104), the usual normalisation's zero; the object no longer shows, so no label is "
+            "missing. Cost: the images differ from the render (COCO's `images/` are the same files, so COCO users "
+            "see the fill too, inside regions they ignore anyway).",
+            "- `skip` — frames with an ignore region are left out of the YOLO split lists. Cost: fewer frames, and "
+            "fewer of the crowded ones.",
+            "- `keep` — frames unchanged and listed; `yolo_unlabelled.txt` says how many unlabelled objects each "
+            "image holds. Cost: those objects are trained as background.",
+            "",
+            f"This export: `{options.yolo_ignore}`.",
+        ]
+    return [*lines, ""]
+
+
+def _conventions_section(*, coco: bool, yolo: bool) -> list[str]:
+    """Which names and layouts a standard defines, and which are this tool's own."""
+    lines = ["## Names and layouts", ""]
+    if coco:
+        lines.append(
+            "- COCO (cocodataset.org, data format): `info`, `licenses`, `categories`, `images` (`id`, `file_name`, "
+            "`width`, `height`) and `annotations` (`id`, `image_id`, `category_id`, `bbox` [x, y, w, h] px, `area`, "
+            "`segmentation` as RLE, `iscrowd`) are the standard's; every other field of an image or annotation is "
+            "our own addition, which COCO readers ignore. `annotations/<split>.json` is a common layout, not a "
+            "standard one."
+        )
+    if yolo:
+        lines.append(
+            "- YOLO (the Ultralytics detection format, from memory): `labels/<stem>.txt` beside `images/<stem>.png`, "
+            "`class cx cy w h` normalised, `data.yaml` with `names`, `nc` and split lists, `<split>.txt` image lists. "
+            "`classes.txt` (one name per line) is the older Darknet convention. `yolo_unlabelled.txt` is our own."
+        )
+    lines += [
+        "- Our own: `masks/<stem>.png` (16-bit instance ids), `scenes.jsonl`, `campaign.json`, `software.json`, "
+        "`class_statistics.json`, `splits.json`, `manifest.jsonl` (SHA-256 per file).",
+        "",
+    ]
+    return lines

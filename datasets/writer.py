@@ -45,6 +45,7 @@ from datasets.queries import (
 )
 from datasets.sinks import SCRATCH_DIR, ChunkBuffer, DirectorySink, Sink, ZipSink, copy_into
 from datasets.splits import SPLITS, assign_splits, split_shares
+from render.images import encode_image
 
 log = logging.getLogger("evenframe.export")
 
@@ -91,6 +92,12 @@ class ExportSummary:
     images_per_split: dict[str, int] = field(default_factory=dict)
     annotations_per_split: dict[str, int] = field(default_factory=dict)
     max_share_deviation_pp: float | None = None
+    ignore_regions: int = 0
+    background: int = 0
+    dropped: int = 0
+    yolo_filled_frames: int = 0
+    yolo_skipped_frames: int = 0
+    yolo_unlabelled: int = 0
     files: int = 0
     bytes_total: int = 0
     files_written: int = 0
@@ -98,6 +105,27 @@ class ExportSummary:
     files_reused: int = 0
     seconds: float = 0.0
     peak_rss_mb: float = 0.0
+
+    def _rejected_lines(self) -> list[str]:
+        """What became of the visible instances the quota rules did not accept (none when there were none)."""
+        if not (self.ignore_regions or self.background or self.dropped):
+            return []
+        parts = []
+        if self.ignore_regions:
+            parts.append(f"{self.ignore_regions} ignore regions (COCO iscrowd 1)")
+        if self.dropped:
+            parts.append(f"{self.dropped} left out as asked (unlabelled background in the images)")
+        if self.background:
+            parts.append(f"{self.background} below the background pixel limit (unlabelled)")
+        line = "  visible but not accepted: " + ", ".join(parts)
+        yolo = []
+        if self.yolo_filled_frames:
+            yolo.append(f"filled in {self.yolo_filled_frames} images")
+        if self.yolo_skipped_frames:
+            yolo.append(f"{self.yolo_skipped_frames} frames left out of the YOLO lists")
+        if self.yolo_unlabelled:
+            yolo.append(f"{self.yolo_unlabelled} unlabelled objects kept (yolo_unlabelled.txt)")
+        return [line] + ([f"  YOLO ignore regions: {', '.join(yolo)}"] if yolo else [])
 
     def lines(self) -> list[str]:
         splits = ", ".join(
@@ -117,6 +145,7 @@ class ExportSummary:
             f"exported campaign {self.campaign_id}: {self.frames} frames in {self.layouts} layouts → {self.out}",
             f"  splits: {splits}",
             f"  largest per-class share deviation from the ratios: {deviation}",
+            *self._rejected_lines(),
             f"  files: {self.files} ({self.bytes_total / 1e6:.1f} MB); written {self.files_written} "
             f"({self.bytes_written / 1e6:.1f} MB), reused {self.files_reused} unchanged",
             f"  {self.seconds:.1f} s, {rate:.0f} frames/s, peak RSS {self.peak_rss_mb:.0f} MB",
@@ -156,7 +185,48 @@ class _Tally:
     images: Counter = field(default_factory=Counter)
     annotations: Counter = field(default_factory=Counter)
     variants: Counter = field(default_factory=Counter)  # renderer variant → frames
+    ignore_regions: Counter = field(default_factory=Counter)  # split → COCO iscrowd-1 regions
+    background: int = 0  # not accepted, below the background pixel limit: unlabelled
+    dropped: int = 0  # not accepted, left out as asked
+    yolo_filled_frames: int = 0
+    yolo_skipped_frames: int = 0
+    yolo_unlabelled: int = 0
     frames: int = 0
+
+
+@dataclass
+class _FrameInstances:
+    """What one frame's instances became: its YOLO lines and the mask ids of its labelled objects and ignore regions."""
+
+    yolo_lines: list[str] = field(default_factory=list)
+    labelled_ids: list[int] = field(default_factory=list)
+    ignore_ids: list[int] = field(default_factory=list)
+
+
+#: The colour ignore regions are filled with for YOLO: the ImageNet channel means (0.485, 0.456, 0.406) × 255, which
+#: the usual input normalisation maps to zero, i.e. no signal (from memory: torchvision's normalisation constants).
+IGNORE_FILL_RGB: tuple[int, int, int] = (124, 116, 104)
+
+
+def fill_ignore_regions(frame_dir: Path, *, ignore_ids: list[int], labelled_ids: list[int]) -> bytes:
+    """The frame's image (PNG bytes) with its ignore regions painted :data:`IGNORE_FILL_RGB`.
+
+    A region is its instance's mask grown by one pixel (3 × 3), which covers the anti-aliased edge the RGB render
+    spreads around the label pass's pixel-centre mask; grown pixels that belong to a labelled object stay as they
+    are, so no labelled object loses a pixel.
+    """
+    import cv2
+
+    rgb = cv2.imread(str(frame_dir / "rgb.png"), cv2.IMREAD_COLOR)
+    ids = cv2.imread(str(frame_dir / "instances.png"), cv2.IMREAD_UNCHANGED)
+    if rgb is None or ids is None or ids.shape[:2] != rgb.shape[:2]:
+        raise ExportError(f"unreadable or mismatched frame files rgb.png / instances.png in {frame_dir}")
+    region = np.isin(ids, ignore_ids).astype(np.uint8)
+    region = cv2.dilate(region, np.ones((3, 3), np.uint8)).astype(bool)
+    region &= ~np.isin(ids, labelled_ids)
+    rgb = cv2.cvtColor(rgb, cv2.COLOR_BGR2RGB)
+    rgb[region] = IGNORE_FILL_RGB
+    return encode_image(rgb, suffix=".png")
 
 
 class _ScratchFiles:
@@ -166,10 +236,11 @@ class _ScratchFiles:
         self.coco = coco.CocoParts(scratch, active)
         self.yolo_lists: dict[str, IO[str]] = yolo.open_split_lists(scratch, active) if yolo_lists else {}
         self.scenes = open(scratch / "scenes.part", "w", encoding="utf-8")  # noqa: SIM115
+        self.yolo_unlabelled = open(scratch / "yolo-unlabelled.part", "w", encoding="utf-8")  # noqa: SIM115
 
     def close(self) -> None:
         self.coco.close()
-        for handle in (*self.yolo_lists.values(), self.scenes):
+        for handle in (*self.yolo_lists.values(), self.scenes, self.yolo_unlabelled):
             handle.close()
 
 
@@ -220,7 +291,7 @@ class _Exporter:
         layouts, counts = layout_counts(
             campaign=self.campaign,
             categories=self.categories,
-            accepted_only=options.accepted_only,
+            accepted_only=not options.labels_rejected,
             finished_before=self.finished_before,
         )
         weights = [1.0] * len(self.categories) + [FRAME_BALANCE_WEIGHT]
@@ -238,7 +309,7 @@ class _Exporter:
     def _export_frames(self, sink: Sink, plan: _SplitPlan, files: _ScratchFiles, tally: _Tally) -> Iterator[None]:
         """The frame and instance streams, merged by frame index; yields after every frame."""
         frames = frame_rows(self.campaign, self.finished_before)
-        instances = InstancesByFrame(instance_rows(self.campaign, self.finished_before, self.options.accepted_only))
+        instances = InstancesByFrame(instance_rows(self.campaign, self.finished_before, accepted_only=False))
         n_frames = plan.n_frames
         for frame in frames:
             self._export_frame(sink, frame, instances.for_frame(frame.index), plan, files, tally)
@@ -266,8 +337,6 @@ class _Exporter:
         frame_dir = self._frame_dir(frame.output_dir, index)
         _, labels = self._read_json(frame_dir / "labels.json")
         scene_text = self._read_text(frame_dir / "scene.json")
-        sink.copy_file(path=f"images/{stem}.png", source=frame_dir / "rgb.png", frame=index)
-        sink.copy_file(path=f"masks/{stem}.png", source=frame_dir / "instances.png", frame=index)
         image = labels.get("image") or {}
         width_px = int(image.get("width_px") or self.campaign.width_px)
         height_px = int(image.get("height_px") or self.campaign.height_px)
@@ -277,7 +346,7 @@ class _Exporter:
         )
         files.coco.append(split, "images", dumps(image_entry))
         tally.images[split] += 1
-        yolo_lines = self._export_instances(
+        exported = self._export_instances(
             instances,
             split=split,
             frame_dir=frame_dir,
@@ -286,10 +355,40 @@ class _Exporter:
             files=files,
             tally=tally,
         )
+        if self.options.fills_images and exported.ignore_ids:
+            filled = fill_ignore_regions(frame_dir, ignore_ids=exported.ignore_ids, labelled_ids=exported.labelled_ids)
+            sink.put_bytes(path=f"images/{stem}.png", data=filled, frame=index)
+            tally.yolo_filled_frames += 1
+        else:
+            sink.copy_file(path=f"images/{stem}.png", source=frame_dir / "rgb.png", frame=index)
+        sink.copy_file(path=f"masks/{stem}.png", source=frame_dir / "instances.png", frame=index)
         if files.yolo_lists:
-            sink.put_bytes(path=f"labels/{stem}.txt", data="".join(yolo_lines).encode(), frame=index)
-            files.yolo_lists[split].write(yolo.list_line(stem))
+            self._export_yolo_frame(
+                sink, stem=stem, index=index, split=split, exported=exported, files=files, tally=tally
+            )
         files.scenes.write(self._scene_line(frame, split=split, scene_text=scene_text, frame_dir=frame_dir))
+
+    def _export_yolo_frame(
+        self,
+        sink: Sink,
+        *,
+        stem: str,
+        index: int,
+        split: str,
+        exported: _FrameInstances,
+        files: _ScratchFiles,
+        tally: _Tally,
+    ) -> None:
+        """A frame's YOLO labels and its line in the split list, by the export's ignore-region choice."""
+        n_ignore = len(exported.ignore_ids)
+        if n_ignore and self.options.yolo_ignore == "skip":
+            tally.yolo_skipped_frames += 1
+            return
+        sink.put_bytes(path=f"labels/{stem}.txt", data="".join(exported.yolo_lines).encode(), frame=index)
+        files.yolo_lists[split].write(yolo.list_line(stem))
+        if n_ignore and self.options.yolo_ignore == "keep":
+            files.yolo_unlabelled.write(yolo.unlabelled_line(stem, n_ignore))
+            tally.yolo_unlabelled += n_ignore
 
     def _export_instances(
         self,
@@ -301,27 +400,43 @@ class _Exporter:
         height_px: int,
         files: _ScratchFiles,
         tally: _Tally,
-    ) -> list[str]:
-        """A frame's instances into its split's COCO annotations and the statistics; returns its YOLO lines."""
-        yolo_lines: list[str] = []
+    ) -> _FrameInstances:
+        """A frame's instances into its split's COCO annotations and the statistics, by the export's choice for
+        visible instances that were not accepted (:data:`datasets.options.REJECTED_MODES`)."""
+        options = self.options
+        out = _FrameInstances()
         classes_in_frame: set[int] = set()
         mask_cache: dict[str, np.ndarray] = {}
         for row in instances:
             category = self.category_of.get(row.object_class_id)
             if category is None:
                 continue
+            labelled = bool(row.accepted) or options.labels_rejected
+            if not labelled:
+                if options.rejected == "drop":
+                    tally.dropped += 1
+                    continue
+                if int(row.mask_area_px) < options.background_below(category.name):
+                    tally.background += 1
+                    continue
             rle = row.segmentation_rle
             if not rle:  # rows recorded without a mask encoding: encode the frame's mask image
                 rle = coco.rle_from_mask(frame_dir, int(row.instance_id), mask_cache)
-            files.coco.append(split, "annotations", dumps(coco.annotation_entry(row, category=category, rle=rle)))
+            entry = coco.annotation_entry(row, category=category, rle=rle, iscrowd=0 if labelled else 1)
+            files.coco.append(split, "annotations", dumps(entry))
             tally.annotations[split] += 1
-            tally.stats[row.object_class_id].add(split, row)
+            tally.stats[row.object_class_id].add(split, row, ignore=not labelled)
+            if not labelled:
+                tally.ignore_regions[split] += 1
+                out.ignore_ids.append(int(row.instance_id))
+                continue
+            out.labelled_ids.append(int(row.instance_id))
             classes_in_frame.add(row.object_class_id)
             if files.yolo_lists:
-                yolo_lines.append(yolo.label_line(category, row.bbox, width_px, height_px))
+                out.yolo_lines.append(yolo.label_line(category, row.bbox, width_px, height_px))
         for class_id in classes_in_frame:
             tally.stats[class_id].frames[split] += 1
-        return yolo_lines
+        return out
 
     @staticmethod
     def _scene_line(frame: FrameRow, *, split: str, scene_text: str, frame_dir: Path) -> str:
@@ -361,6 +476,8 @@ class _Exporter:
                 yield from coco.write_coco(sink, split=split, campaign=campaign, categories=categories)
         if yolo_lists:
             yield from yolo.write_yolo_meta(sink, campaign=campaign, categories=categories, active=plan.active)
+            if options.rejected == "ignore" and options.yolo_ignore == "keep":
+                yield from copy_into(sink, "yolo_unlabelled.txt", [sink.scratch / "yolo-unlabelled.part"])
         yield from copy_into(sink, "scenes.jsonl", [sink.scratch / "scenes.part"])
         class_stats = metadata.class_statistics(
             campaign=campaign,
@@ -405,6 +522,11 @@ class _Exporter:
         summary.images_per_split = {s: tally.images[s] for s in SPLITS}
         summary.annotations_per_split = {s: tally.annotations[s] for s in SPLITS}
         summary.max_share_deviation_pp = self._max_share_deviation_pp(plan.shares)
+        summary.ignore_regions = sum(tally.ignore_regions.values())
+        summary.background, summary.dropped = tally.background, tally.dropped
+        summary.yolo_filled_frames = tally.yolo_filled_frames
+        summary.yolo_skipped_frames = tally.yolo_skipped_frames
+        summary.yolo_unlabelled = tally.yolo_unlabelled
         sink.write_manifest(
             {
                 "format": EXPORT_FORMAT,

@@ -35,6 +35,11 @@ def list_line(stem: str) -> str:
     return f"./images/{stem}.png\n"
 
 
+def unlabelled_line(stem: str, count: int) -> str:
+    """A line of ``yolo_unlabelled.txt``: an image path and how many visible objects in it carry no label."""
+    return f"./images/{stem}.png {int(count)}\n"
+
+
 def write_yolo_meta(
     sink: Sink, *, campaign: Any, categories: Sequence[Category], active: Sequence[str]
 ) -> Iterator[None]:

@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import copy
+import io
 import json
 import os
+from collections import Counter
 from importlib import metadata
 from pathlib import Path
 
@@ -93,7 +96,7 @@ def test_masks_areas_and_boxes_agree_with_pycocotools(real_campaign, tmp_path):
             instance_mask = masks[annotation["image_id"]] == annotation["instance_id"]
             assert masks[annotation["image_id"]].dtype == np.uint16
             assert np.array_equal(instance_mask, decoded.astype(bool))
-            assert annotation["iscrowd"] == 0
+            assert annotation["iscrowd"] == (0 if annotation["accepted"] else 1)  # rejected: ignore regions
             for key in ("visible_fraction", "occlusion_fraction", "truncation_fraction"):
                 assert 0.0 <= annotation[key] <= 1.0
             assert len(annotation["amodal_bbox"]) == 4
@@ -133,7 +136,7 @@ def test_every_frame_parameter_and_campaign_facts_are_exported(real_campaign, tm
     assert set(software["renderer_variants"]) <= {"scalar_rgb", "llvm_ad_rgb"}
     stats = json.loads((out / "class_statistics.json").read_text())
     coco_total = sum(len(json.loads(p.read_text())["annotations"]) for p in _coco_files(out))
-    assert sum(c["exported_instances"]["total"] for c in stats["classes"]) == coco_total
+    assert sum(c["exported_instances"]["total"] + c["ignore_regions"]["total"] for c in stats["classes"]) == coco_total
 
 
 def test_frames_of_a_layout_share_a_split(real_campaign, tmp_path):
@@ -198,7 +201,7 @@ def test_yolo_labels_match_the_coco_boxes(real_campaign, tmp_path):
             rows = [
                 line.split() for line in (out / "labels" / f"{image['file_name'][:-4]}.txt").read_text().splitlines()
             ]
-            expected = by_image.get(image["id"], [])
+            expected = [a for a in by_image.get(image["id"], []) if not a["iscrowd"]]  # ignore regions: no line
             assert len(rows) == len(expected)
             for row, a in zip(rows, expected, strict=True):
                 x, y, w, h = a["bbox"]
@@ -215,23 +218,190 @@ def test_yolo_labels_match_the_coco_boxes(real_campaign, tmp_path):
                 )
 
 
-def test_accepted_only_drops_rejected_instances(real_campaign, tmp_path):
+def _annotations(out: Path) -> list[dict]:
+    return [a for p in _coco_files(out) for a in json.loads(p.read_text())["annotations"]]
+
+
+def test_rejected_instances_are_ignore_regions_labels_or_left_out_as_asked(real_campaign, tmp_path):
     from campaigns.models import Instance
 
-    everything, accepted = tmp_path / "all", tmp_path / "accepted"
-    _export(real_campaign, everything)
-    _export(real_campaign, accepted, accepted_only=True)
     visible = Instance.objects.filter(campaign=real_campaign, mask_area_px__gt=0)
-    count = {
-        path: sum(len(json.loads(p.read_text())["annotations"]) for p in _coco_files(path))
-        for path in (everything, accepted)
+    rejected = visible.filter(accepted=False)
+    background = rejected.filter(mask_area_px__lt=16)
+    assert rejected.exclude(pk__in=background).exists()  # the fixture holds ignore regions to export
+    exports = {mode: tmp_path / mode for mode in ("ignore", "label", "drop")}
+    summaries = {mode: _export(real_campaign, out, rejected=mode) for mode, out in exports.items()}
+    # label: every visible instance is an object (what the export did before ignore regions).
+    assert len(_annotations(exports["label"])) == visible.count()
+    assert not any(a["iscrowd"] for a in _annotations(exports["label"]))
+    # drop: accepted objects only; the rejected are counted, not hidden.
+    assert [a["iscrowd"] for a in _annotations(exports["drop"])] == [0] * visible.filter(accepted=True).count()
+    assert summaries["drop"].dropped == rejected.count()
+    assert any("left out as asked" in line for line in summaries["drop"].lines())
+    # ignore (default): accepted objects, and every rejected one with 16 visible pixels or more as iscrowd 1.
+    ignore = _annotations(exports["ignore"])
+    assert sorted(a["id"] for a in ignore if a["iscrowd"]) == sorted(
+        rejected.exclude(pk__in=background).values_list("pk", flat=True)
+    )
+    assert all(a["accepted"] == (a["iscrowd"] == 0) for a in ignore)
+    assert summaries["ignore"].ignore_regions == rejected.count() - background.count()
+    assert summaries["ignore"].background == background.count()
+    readme = (exports["ignore"] / "README.md").read_text()
+    assert "`iscrowd: 1`" in readme and "This export: `ignore`" in readme
+    # Frames stay in every mode: a frame without a labelled object is a negative example.
+    for out in exports.values():
+        images = sum(len(json.loads(p.read_text())["images"]) for p in _coco_files(out))
+        assert images == len(FRAME_PLAN)
+
+
+def test_accepted_only_is_rejected_drop(real_campaign, tmp_path):
+    """The download's ``accepted_only=1`` and the command's ``--accepted-only``, from before ignore regions."""
+    out = tmp_path / "accepted"
+    call_command("export_dataset", str(real_campaign.pk), "--out", str(out), "--accepted-only", stdout=io.StringIO())
+    assert json.loads((out / "manifest.jsonl").read_text().splitlines()[0])["options"]["rejected"] == "drop"
+    assert all(a["accepted"] and not a["iscrowd"] for a in _annotations(out))
+
+
+def test_background_limit_per_class_turns_ignore_regions_into_background(real_campaign, tmp_path):
+    from campaigns.models import Instance
+
+    rejected = Instance.objects.filter(campaign=real_campaign, mask_area_px__gt=0, accepted=False)
+    biggest = rejected.order_by("-mask_area_px").select_related("object_class").first()
+    name = biggest.object_class.name
+    out = tmp_path / "dataset"
+    summary = _export(
+        real_campaign, out, background_below_px=0, background_below_px_by_class=((name, biggest.mask_area_px + 1),)
+    )
+    crowd = {a["id"] for a in _annotations(out) if a["iscrowd"]}
+    of_class = rejected.filter(object_class__name=name)
+    assert crowd == set(rejected.exclude(object_class__name=name).values_list("pk", flat=True))
+    assert summary.background == of_class.count() and summary.ignore_regions == len(crowd)
+    stats = json.loads((out / "class_statistics.json").read_text())
+    limits = {c["name"]: c["background_below_px"] for c in stats["classes"]}
+    assert limits[name] == biggest.mask_area_px + 1 and {v for k, v in limits.items() if k != name} == {0}
+
+
+def test_ignore_regions_are_not_false_positives_in_cocoeval(real_campaign, tmp_path):
+    """pycocotools COCOeval treats iscrowd-1 ground truth as ignore: detections on it are neither true nor false
+    positives, and it is never a missed object (COCO detection evaluation; ``COCOeval.evaluateImg``)."""
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    crowd_seen = 0
+    for path in _coco_files(out):
+        gt = COCO(str(path))
+        annotations = gt.loadAnns(gt.getAnnIds())
+        objects = [a for a in annotations if not a["iscrowd"]]
+        crowd = [a for a in annotations if a["iscrowd"]]
+        if not objects or not crowd:
+            continue
+        crowd_seen += len(crowd)
+        detections = [
+            {"image_id": a["image_id"], "category_id": a["category_id"], "score": 1.0, "bbox": a["bbox"]}
+            for a in objects
+        ]
+        assert _quiet_eval(gt, gt.loadRes(copy.deepcopy(detections)), "bbox") == pytest.approx(1.0)
+        # A confident detection exactly on each ignore region changes nothing ...
+        on_ignore = [
+            {"image_id": a["image_id"], "category_id": a["category_id"], "score": 0.99, "bbox": a["bbox"]}
+            for a in crowd
+        ]
+        assert _quiet_eval(gt, gt.loadRes(copy.deepcopy(detections + on_ignore)), "bbox") == pytest.approx(1.0)
+        # ... while the same regions exported as objects (iscrowd 0) and not detected lower the recall.
+        as_objects = json.loads(path.read_text())
+        for a in as_objects["annotations"]:
+            a["iscrowd"] = 0
+        plain = tmp_path / f"plain-{path.name}"
+        plain.write_text(json.dumps(as_objects))
+        gt_plain = COCO(str(plain))
+        assert _quiet_eval(gt_plain, gt_plain.loadRes(copy.deepcopy(detections)), "bbox") < 1.0
+    assert crowd_seen > 0
+
+
+def _read_rgb(path: Path) -> np.ndarray:
+    import cv2
+
+    return cv2.cvtColor(cv2.imread(str(path), cv2.IMREAD_COLOR), cv2.COLOR_BGR2RGB)
+
+
+def test_yolo_fill_paints_ignore_regions_and_never_a_labelled_object(real_campaign, media_root, tmp_path):
+    import cv2
+
+    from datasets.writer import IGNORE_FILL_RGB
+
+    out = tmp_path / "dataset"
+    summary = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    crowd_by_image: dict[int, list[int]] = {}
+    objects_by_image: dict[int, list[int]] = {}
+    for a in _annotations(out):
+        (crowd_by_image if a["iscrowd"] else objects_by_image).setdefault(a["image_id"], []).append(a["instance_id"])
+    assert summary.yolo_filled_frames == len(crowd_by_image) > 0
+    for frame in real_campaign.frames.all():
+        stem = f"{frame.index:06d}"
+        exported = _read_rgb(out / "images" / f"{stem}.png")
+        original = _read_rgb(media_root / frame.output_dir / "rgb.png")
+        ids = cv2.imread(str(out / "masks" / f"{stem}.png"), cv2.IMREAD_UNCHANGED)
+        crowd = np.isin(ids, crowd_by_image.get(frame.index, []))
+        labelled = np.isin(ids, objects_by_image.get(frame.index, []))
+        assert (exported[crowd] == IGNORE_FILL_RGB).all()  # every ignore-region pixel is filled
+        assert np.array_equal(exported[labelled], original[labelled])  # no labelled pixel is touched
+        changed = (exported != original).any(axis=2)
+        grown = cv2.dilate(crowd.astype(np.uint8), np.ones((3, 3), np.uint8)).astype(bool)
+        assert not (changed & ~grown).any()  # nothing outside the region and its one-pixel rim changes
+
+
+def test_yolo_skip_and_keep(real_campaign, tmp_path):
+    skip, keep = tmp_path / "skip", tmp_path / "keep"
+    yolo_and_coco = frozenset({"coco", "yolo"})
+    summary_skip = _export(real_campaign, skip, formats=yolo_and_coco, yolo_ignore="skip")
+    summary_keep = _export(real_campaign, keep, formats=yolo_and_coco, yolo_ignore="keep")
+    crowd = Counter(a["image_id"] for a in _annotations(skip) if a["iscrowd"])
+    listed = {
+        line
+        for split in SPLITS
+        if (skip / f"{split}.txt").exists()
+        for line in (skip / f"{split}.txt").read_text().split()
     }
-    assert count[everything] == visible.count()
-    assert count[accepted] == visible.filter(accepted=True).count()
-    assert all(a["accepted"] for p in _coco_files(accepted) for a in json.loads(p.read_text())["annotations"])
-    assert len(json.loads((accepted / "annotations/train.json").read_text())["images"]) + sum(
-        len(json.loads(p.read_text())["images"]) for p in _coco_files(accepted)[1:]
-    ) == len(FRAME_PLAN)
+    assert listed == {f"./images/{i:06d}.png" for i in range(len(FRAME_PLAN)) if i not in crowd}
+    assert summary_skip.yolo_skipped_frames == len(crowd) > 0
+    unlabelled = dict(line.split() for line in (keep / "yolo_unlabelled.txt").read_text().splitlines())
+    assert unlabelled == {f"./images/{i:06d}.png": str(n) for i, n in crowd.items()}
+    assert summary_keep.yolo_unlabelled == sum(crowd.values())
+    for frame_index in crowd:  # kept images are the render's own
+        assert (keep / "images" / f"{frame_index:06d}.png").read_bytes() == (
+            skip / "images" / f"{frame_index:06d}.png"
+        ).read_bytes()
+
+
+@pytest.mark.parametrize(
+    ("text", "expected"),
+    [
+        ("", (16, ())),
+        ("0", (0, ())),
+        ("20, wall_clock=40,chair=0", (20, (("chair", 0), ("wall_clock", 40)))),
+    ],
+)
+def test_parse_background_below(text, expected):
+    from datasets.options import parse_background_below
+
+    assert parse_background_below(text) == expected
+
+
+@pytest.mark.parametrize("text", ["-1", "x", "chair=", "=5", "chair=1.5", "99999999999"])
+def test_parse_background_below_refuses_bad_input(text):
+    from datasets.errors import ExportError
+    from datasets.options import parse_background_below
+
+    with pytest.raises(ExportError, match="background below"):
+        parse_background_below(text)
+
+
+def test_unknown_modes_are_refused():
+    from datasets.errors import ExportError
+
+    with pytest.raises(ExportError, match="rejected instances"):
+        ExportOptions(rejected="hide")
+    with pytest.raises(ExportError, match="YOLO ignore regions"):
+        ExportOptions(yolo_ignore="blur")
 
 
 def test_annotations_carry_contrast_and_the_statistics_average_it(real_campaign, tmp_path):

@@ -86,6 +86,10 @@ def test_bad_options_unknown_campaign_and_empty_campaign(client, make_campaign, 
     response = client.get(_url(campaign.pk, "splits=0.9,0.9,0.9"))
     assert response.status_code == 400 and b"splits: ratios must sum to 1" in response.content
     assert client.get(_url(campaign.pk, "format=voc")).status_code == 400
+    for bad in ("rejected=hide", "yolo_ignore=blur", "background_below=-3", "background_below=chair%3Dx"):
+        response = client.get(_url(campaign.pk, bad))
+        assert response.status_code == 400, bad
+        assert response.content.strip() and b"Traceback" not in response.content
     assert client.get(_url(999_999)).status_code == 404
     status, body, _ = _download(client, _url(campaign.pk))
     assert status == 200
