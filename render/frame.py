@@ -43,8 +43,17 @@ from typing import Any
 
 import numpy as np
 
+from . import camera as cam
+from . import labels as labels_module
+from .backend import init_renderer
+from .denoise import DenoiserUnavailable, denoise
 from .images import write_image
+from .labels import thresholds_for_class
+from .reasons import contrast_reason
 from .rounding import round_floats
+from .scene import SUN_PASS_SPP_FACTOR, build_scene, render_label_and_aux, render_radiance, render_window_view
+from .spec import axis_rng, make_spec, spec_to_json
+from .visibility import instance_contrasts, noise_sigma_lightness
 
 STAGES: tuple[str, ...] = ("spec", "scene_build", "render", "window_view", "label_pass", "denoise", "labels", "encode")
 # Shutter dials step in thirds of a stop (1/125, 1/100, 1/80 s ...); common practice.
@@ -101,8 +110,6 @@ def auto_exposure(mean_luminance_cd_m2: float, camera: dict[str, Any]) -> dict[s
     ----------
     ISO 2720:1974 (reflected-light meter, K = 12.5); ISO 12232:2019 (speed series in 1/3 stops).
     """
-    # deferred: keeps render.camera out of the web process (planner imports render.frame)
-    from . import camera as cam
 
     f_number = float(camera["f_number"])
     iso = float(camera["iso"])
@@ -168,8 +175,6 @@ def expose(
     ISO 2720:1974 (meter, K = 12.5), ISO 12232:2019 (saturation-based speed), IEC 61966-2-1 (sRGB OETF),
     EMVA 1288 (noise model) — see :mod:`render.camera`.
     """
-    # deferred: keeps render.camera out of the web process (planner imports render.frame)
-    from . import camera as cam
 
     f_number = float(camera["f_number"])
     chosen = auto_exposure(cam.metered_luminance_cd_m2(radiance_rgb), camera)
@@ -208,8 +213,6 @@ def _dump_json(value: Any) -> str:
 
 def write_frame_files(result: FrameResult, out_dir: Path, *, spec_json: str | None = None) -> dict[str, Path]:
     """Write rgb.png, instances.png (16-bit), depth.npy, labels.json, scene.json, timings.json."""
-    # deferred: keeps render.spec (trimesh) out of the web process (planner imports render.frame)
-    from .spec import spec_to_json
 
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
@@ -248,23 +251,6 @@ def render_frame(
     window_light : str
         ``portal`` (default) or ``dome``: how sky light enters (see :func:`render.scene.build_scene`).
     """
-    # deferred: keeps render.labels (pycocotools) out of the web process (planner imports render.frame)
-    from . import labels as labels_module
-
-    # deferred: keeps render.backend out of the web process (planner imports render.frame)
-    from .backend import init_renderer
-
-    # deferred: keeps render.scene (Mitsuba scenes) out of the web process (planner imports render.frame)
-    from .scene import (
-        SUN_PASS_SPP_FACTOR,
-        build_scene,
-        render_label_and_aux,
-        render_radiance,
-        render_window_view,
-    )
-
-    # deferred: keeps render.spec (trimesh) out of the web process (planner imports render.frame)
-    from .spec import axis_rng
 
     timings = dict.fromkeys(STAGES, 0.0)
     timings["spec"] = float(spec_s)
@@ -377,8 +363,6 @@ def denoise_radiance(
     The record says ``denoised`` (bool) and ``denoiser`` (what ran, or why nothing did). A denoiser that
     cannot load leaves the frame raw and says so, rather than failing the frame.
     """
-    # deferred: keeps the denoiser (render.denoise) out of the web process (planner imports render.frame)
-    from .denoise import DenoiserUnavailable, denoise
 
     if not wanted:
         return radiance_pass.radiance_rgb, {"denoised": False, "denoiser": "off (budget render.denoise is false)"}
@@ -407,11 +391,6 @@ def judge_visibility(
     see. Instances already not visible geometrically keep contrast 0 and no extra reason.
     See :mod:`render.visibility` for the measure.
     """
-    # deferred: keeps render.labels (pycocotools) out of the web process (planner imports render.frame)
-    from .labels import thresholds_for_class
-
-    # deferred: keeps render.visibility (cv2, scipy) out of the web process (planner imports render.frame)
-    from .visibility import instance_contrasts, noise_sigma_lightness
 
     noise_sigma = noise_sigma_lightness(rgb)
     visible_ids = [int(item["instance_id"]) for item in instances if item.get("mask_area_px")]
@@ -433,32 +412,6 @@ def judge_visibility(
     return out
 
 
-def contrast_reason(label: Mapping[str, Any], *, min_contrast: float) -> str | None:
-    """The reject reason for too little contrast, worded like the others; None when it passes.
-
-    Instances with no visible pixels are judged by their geometry ("not visible") alone. The
-    comparison is shown with enough digits that it is never "2.00 < 2.00".
-    """
-    if not label.get("mask_area_px") or min_contrast <= 0:
-        return None
-    contrast = label.get("contrast")
-    if contrast is None:  # labels from before the measure existed
-        return None
-    contrast = float(contrast)
-    if contrast >= min_contrast:
-        return None
-    return f"contrast {_below(contrast, min_contrast)} < {min_contrast:g}"
-
-
-def _below(value: float, limit: float) -> str:
-    """``value`` with the fewest decimals (2–6) that still print it below ``limit``."""
-    for decimals in range(2, 7):
-        text = f"{value:.{decimals}f}"
-        if float(text) < limit:
-            return text
-    return repr(value)
-
-
 def render_frame_from_inputs(
     budget: dict[str, Any] | None,
     composition: dict[str, int],
@@ -474,8 +427,6 @@ def render_frame_from_inputs(
     user_assets: Mapping[str, Sequence[Mapping[str, Any]]] | None = None,
 ) -> FrameResult:
     """:func:`render.spec.make_spec` then :func:`render_frame`, timing the spec stage too."""
-    # deferred: keeps render.spec (trimesh) out of the web process (planner imports render.frame)
-    from .spec import make_spec
 
     start = time.perf_counter()
     spec = make_spec(

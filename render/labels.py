@@ -27,6 +27,7 @@ import numpy as np
 from pycocotools import mask as mask_utils
 
 from .camera import NEAR_CLIP_M
+from .reasons import box_reason, visible_fraction_reason
 from .rounding import round_floats
 
 #: Largest canvas (pixels) and most (triangle, row) pairs for an exact unbounded count.
@@ -369,11 +370,12 @@ def instance_labels(
         if bbox is None or area == 0:  # no bbox means no pixel (area 0)
             reasons.append("not visible")
         else:
-            if visible_fraction < min_visible:
-                reasons.append(f"visible_fraction {visible_fraction:.2f} < {min_visible:.2f}")
-            side = min(bbox[2], bbox[3])
-            if side < min_box:
-                reasons.append(f"box {side:g} px < {min_box:g} px")
+            for reason in (
+                visible_fraction_reason(visible_fraction, min_visible_fraction=min_visible),
+                box_reason(min(bbox[2], bbox[3]), min_box_px=min_box),
+            ):
+                if reason:
+                    reasons.append(reason)
         results.append(
             {
                 "instance_id": instance_id,

@@ -207,3 +207,23 @@ def test_task_runs_in_a_separate_worker_process(render_worker_factory, client, d
 def test_broker_in_use_matches_configuration():
     expected = "redis" if os.environ.get("CELERY_BROKER_URL", "").startswith("redis") else "filesystem"
     assert settings.CELERY_BROKER_URL.startswith(expected)
+
+
+def test_the_web_process_loads_no_renderer():
+    """Importing every page (the URL configuration) loads none of the render core's heavy modules: Mitsuba, Dr.Jit,
+    the denoiser, pycocotools, trimesh, or the frame pipeline. A fresh interpreter, so this test process's own
+    imports cannot hide one."""
+    import subprocess
+    import sys
+
+    code = (
+        "import os, sys\n"
+        "os.environ.setdefault('DJANGO_SETTINGS_MODULE', 'evenframe.settings')\n"
+        "import django\n"
+        "django.setup()\n"
+        "import evenframe.urls\n"
+        "heavy = ('render.frame', 'render.scene', 'render.labels', 'mitsuba', 'drjit', 'oidn', 'pycocotools', 'trimesh')\n"
+        "print(','.join(m for m in heavy if m in sys.modules))\n"
+    )
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120, check=True)
+    assert result.stdout.strip() == "", result.stdout

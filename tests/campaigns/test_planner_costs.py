@@ -107,18 +107,18 @@ def test_accept_instance_uses_quota_thresholds():
     label = {"visible_fraction": 0.4, "bbox": [10, 10, 20, 8], "mask_area_px": 100, "reject_reasons": []}
     assert planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6)[0]
     ok, reasons = planner.accept_instance(label, min_visible_fraction=0.5, min_box_px=10)
-    assert not ok and reasons == ["visible_fraction 0.40 < 0.50", "box 8 px < 10 px"]
+    assert not ok and reasons == ["visible_fraction 0.40 < 0.5", "box 8 px < 10 px"]
     assert planner.accept_instance(
         {**label, "bbox": None, "mask_area_px": 0}, min_visible_fraction=0, min_box_px=0
     ) == (False, ["not visible"])
 
 
 def test_accept_instance_judges_contrast_by_the_quota_minimum():
-    from render.frame import contrast_reason
+    from render.reasons import contrast_reason
 
     label = {"visible_fraction": 0.9, "bbox": [10, 10, 20, 20], "mask_area_px": 300, "contrast": 1.42}
     ok, reasons = planner.accept_instance(label, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0)
-    # The wording is the render core's own (render.frame.contrast_reason), never a copy of it.
+    # The wording is the render core's own (render.reasons.contrast_reason), never a copy of it.
     assert not ok and reasons == [contrast_reason(label, min_contrast=2.0)] and reasons[0].startswith("contrast 1.42")
     assert planner.accept_instance(
         {**label, "contrast": 2.0}, min_visible_fraction=0.3, min_box_px=6, min_contrast=2.0
@@ -131,7 +131,7 @@ def test_accept_instance_judges_contrast_by_the_quota_minimum():
     ok, reasons = planner.accept_instance(
         {**label, "visible_fraction": 0.1}, min_visible_fraction=0.3, min_box_px=30, min_contrast=2.0
     )
-    assert reasons == ["visible_fraction 0.10 < 0.30", "box 20 px < 30 px", "contrast 1.42 < 2"]
+    assert reasons == ["visible_fraction 0.10 < 0.3", "box 20 px < 30 px", "contrast 1.42 < 2"]
 
 
 def test_accept_instance_judges_labels_without_contrast_as_before():
@@ -140,7 +140,7 @@ def test_accept_instance_judges_labels_without_contrast_as_before():
         assert planner.accept_instance(old, min_visible_fraction=0.3, min_box_px=6, **kwargs) == (True, [])
         assert planner.accept_instance(old, min_visible_fraction=0.5, min_box_px=10, **kwargs) == (
             False,
-            ["visible_fraction 0.40 < 0.50", "box 8 px < 10 px"],
+            ["visible_fraction 0.40 < 0.5", "box 8 px < 10 px"],
         )
     # No visible pixels: judged by geometry alone, whatever the contrast says.
     assert planner.accept_instance(

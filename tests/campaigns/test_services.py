@@ -306,7 +306,7 @@ def test_quota_min_contrast_defaults_to_the_budget_and_is_stored(user, classes):
 
 
 def test_result_judges_contrast_by_the_quota_and_stores_it(user, classes, outbox, media_root):
-    from render.frame import contrast_reason
+    from render.reasons import contrast_reason
 
     campaign = services.create_campaign(
         owner=user,
