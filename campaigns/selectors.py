@@ -1022,3 +1022,116 @@ def campaign_user_mesh_entries(*, campaign: Campaign) -> dict[str, list[dict[str
             }
         )
     return out
+
+
+# --- dataset statistics: streamed rows (datasets.page_statistics counts them) -------------------------------------
+
+from collections.abc import Iterator as _Iterator  # noqa: E402
+from datetime import datetime as _datetime  # noqa: E402
+
+STATISTICS_FRAME_CHUNK = 2000
+STATISTICS_INSTANCE_CHUNK = 10000
+
+
+@dataclass(frozen=True)
+class StatisticsFrame:
+    """A done frame and its accepted, visible instances (instance id order), as :func:`statistics_frames` reads it.
+
+    Each instance is ``{"instance_id", "class_name", "bbox_xywh_px", "mask_area_px", "visible_fraction",
+    "truncation_fraction", "occlusion_fraction"}``.
+    """
+
+    index: int
+    output_dir: str
+    instances: tuple[Mapping[str, _Any], ...]
+
+
+def _statistics_frames(*, campaign: Campaign, finished_before: _datetime) -> QuerySet[Frame]:
+    return Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__lte=finished_before)
+
+
+def _statistics_instances(*, campaign: Campaign, finished_before: _datetime) -> QuerySet[Instance]:
+    # The instances an accepted-only export holds: accepted, with a mask and a box, on a done frame.
+    return Instance.objects.filter(
+        campaign=campaign,
+        frame__state=State.DONE,
+        frame__finished_at__lte=finished_before,
+        accepted=True,
+        mask_area_px__gt=0,
+        bbox_xywh_px__isnull=False,
+    )
+
+
+def statistics_class_names(*, campaign: Campaign) -> list[str]:
+    """The campaign's quota classes and any other class its instances have, sorted by name."""
+    names = set(ClassQuota.objects.filter(campaign=campaign).values_list("object_class__name", flat=True))
+    names.update(Instance.objects.filter(campaign=campaign).values_list("object_class__name", flat=True).distinct())
+    return sorted(names)
+
+
+def statistics_frame_count(*, campaign: Campaign, finished_before: _datetime, before_index: int | None = None) -> int:
+    """Done frames (finished by ``finished_before``), only those with an index below ``before_index`` if given."""
+    frames = _statistics_frames(campaign=campaign, finished_before=finished_before)
+    return (frames if before_index is None else frames.filter(index__lt=before_index)).count()
+
+
+def statistics_frame_limit(*, campaign: Campaign, finished_before: _datetime, max_instances: int) -> int | None:
+    """Index of the first frame past the first ``max_instances`` accepted instances in frame order; None if all fit.
+
+    Reading the frames below that index reads at most ``max_instances`` instances and only whole frames (the
+    frame holding instance number ``max_instances + 1`` is left out with all after it).
+    """
+    over = list(
+        _statistics_instances(campaign=campaign, finished_before=finished_before)
+        .order_by("frame__index", "instance_id")
+        .values_list("frame__index", flat=True)[max_instances : max_instances + 1]
+    )
+    return over[0] if over else None
+
+
+def statistics_frames(
+    *, campaign: Campaign, finished_before: _datetime, before_index: int | None = None
+) -> _Iterator[StatisticsFrame]:
+    """The done frames in index order, each with its accepted, visible instances, streamed.
+
+    Two ``.iterator()`` queries (frames; instances sorted by frame index) merged by frame index, so memory holds
+    one frame's instances; frames finished after ``finished_before`` are left out of both (a snapshot, as the
+    export takes). A frame without accepted instances comes with none.
+    """
+    frames = _statistics_frames(campaign=campaign, finished_before=finished_before)
+    instances = _statistics_instances(campaign=campaign, finished_before=finished_before)
+    if before_index is not None:
+        frames = frames.filter(index__lt=before_index)
+        instances = instances.filter(frame__index__lt=before_index)
+    frame_rows = frames.order_by("index").values_list("index", "output_dir").iterator(chunk_size=STATISTICS_FRAME_CHUNK)
+    keys = (
+        "instance_id",
+        "class_name",
+        "bbox_xywh_px",
+        "mask_area_px",
+        "visible_fraction",
+        "truncation_fraction",
+        "occlusion_fraction",
+    )
+    instance_rows = (
+        instances.order_by("frame__index", "instance_id")
+        .values_list(
+            "frame__index",
+            "instance_id",
+            "object_class__name",
+            "bbox_xywh_px",
+            "mask_area_px",
+            "visible_fraction",
+            "truncation_fraction",
+            "occlusion_fraction",
+        )
+        .iterator(chunk_size=STATISTICS_INSTANCE_CHUNK)
+    )
+    pending = next(instance_rows, None)
+    for index, output_dir in frame_rows:
+        rows = []
+        while pending is not None and pending[0] <= index:
+            if pending[0] == index:
+                rows.append(dict(zip(keys, pending[1:], strict=True)))
+            pending = next(instance_rows, None)
+        yield StatisticsFrame(index=index, output_dir=output_dir, instances=tuple(rows))

@@ -15,6 +15,7 @@ urlpatterns = [
     path("<int:campaign_id>/", views.campaign_detail, name="detail"),
     path("<int:campaign_id>/edit/", views.campaign_edit, name="edit"),
     path("<int:campaign_id>/live.json", views.campaign_live, name="live"),
+    path("<int:campaign_id>/statistics/", views.campaign_statistics, name="statistics"),
     path("<int:campaign_id>/delete/", views.campaign_delete, name="delete"),
     path("<int:campaign_id>/failed/", views.failed_jobs, name="failed"),
     re_path(r"^(?P<campaign_id>[0-9]+)/(?P<action>start|pause|resume|cancel)/$", views.campaign_action, name="action"),

@@ -38,6 +38,7 @@ from assets.models import Asset
 from campaigns import errors, selectors, services
 from campaigns.models import Campaign, Frame
 from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
+from datasets import page_statistics
 from render.budget import FIELDS
 from render.images import write_image
 from teams.permissions import ADMIN, PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user, teams_for
@@ -331,6 +332,25 @@ def _budget_summary(campaign: Campaign) -> list[dict[str, Any]]:
             {"section": f.section, "name": f.name.replace("_", " "), "value": text, "unit": f.unit, "help": f.help}
         )
     return rows
+
+
+@require_GET
+def campaign_statistics(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    """Dataset statistics of the campaign's done frames (datasets.page_statistics), drawn with plotly."""
+    campaign = _campaign(request, campaign_id)
+    stats = page_statistics.campaign_statistics(campaign=campaign)
+    return render(
+        request,
+        "campaigns/statistics.html",
+        {
+            "c": campaign,
+            "tab": "statistics",
+            "stats": stats,
+            "chart_data": stats["statistics"],
+            "plotly_url": reverse("campaigns:plotly", kwargs={"version": plotly_version()}),
+            **_roles(request, campaign),
+        },
+    )
 
 
 @never_cache

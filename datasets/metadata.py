@@ -301,6 +301,9 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
         "| `software.json` | package versions of the exporting machine; renderer variants of the frames |",
         "| `class_statistics.json` | per class and split: instances, frames, mean visibility, contrast and area; "
         "quota thresholds and counters |",
+        "| `dataset_statistics.json` | over the labelled objects: COCO size classes (area below 32², below 96², "
+        "above), box-size, visible / occlusion / truncation and camera-distance histograms per class, instances "
+        "per image, class co-occurrence, box-centre grid; bin edges and units inside |",
         "| `splits.json` | ratios, method, achieved shares, each layout's split |",
         "| `manifest.jsonl` | header, then every file with size and SHA-256; "
         "check with `manage.py verify_dataset DIR` |",

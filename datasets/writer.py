@@ -45,6 +45,7 @@ from datasets.queries import (
 )
 from datasets.sinks import SCRATCH_DIR, ChunkBuffer, DirectorySink, Sink, ZipSink, copy_into
 from datasets.splits import SPLITS, assign_splits, split_shares
+from datasets.statistics import DatasetStatistics, StatInstance, camera_distances
 from render.images import encode_image
 
 log = logging.getLogger("evenframe.export")
@@ -182,6 +183,7 @@ class _Tally:
     """What the run counts while frames stream by: per class statistics, and per split images, annotations."""
 
     stats: dict[int, metadata.ClassStats]
+    dataset: DatasetStatistics
     images: Counter = field(default_factory=Counter)
     annotations: Counter = field(default_factory=Counter)
     variants: Counter = field(default_factory=Counter)  # renderer variant → frames
@@ -199,6 +201,7 @@ class _FrameInstances:
     """What one frame's instances became: its YOLO lines and the mask ids of its labelled objects and ignore regions."""
 
     yolo_lines: list[str] = field(default_factory=list)
+    labelled: list[tuple[InstanceRow, str]] = field(default_factory=list)  # row and class name
     labelled_ids: list[int] = field(default_factory=list)
     ignore_ids: list[int] = field(default_factory=list)
 
@@ -273,7 +276,10 @@ class _Exporter:
         start = time.perf_counter()
         plan = self._plan_splits()
         files = _ScratchFiles(sink.scratch, active=plan.active, yolo_lists="yolo" in self.options.formats)
-        tally = _Tally(stats={c.object_class_id: metadata.ClassStats() for c in self.categories})
+        tally = _Tally(
+            stats={c.object_class_id: metadata.ClassStats() for c in self.categories},
+            dataset=DatasetStatistics(class_names=[c.name for c in self.categories]),
+        )
         try:
             yield from self._export_frames(sink, plan, files, tally)
         finally:
@@ -355,6 +361,9 @@ class _Exporter:
             files=files,
             tally=tally,
         )
+        tally.dataset.add_image(
+            width_px=width_px, height_px=height_px, instances=self._stat_instances(exported, scene_text)
+        )
         if self.options.fills_images and exported.ignore_ids:
             filled = fill_ignore_regions(frame_dir, ignore_ids=exported.ignore_ids, labelled_ids=exported.labelled_ids)
             sink.put_bytes(path=f"images/{stem}.png", data=filled, frame=index)
@@ -367,6 +376,29 @@ class _Exporter:
                 sink, stem=stem, index=index, split=split, exported=exported, files=files, tally=tally
             )
         files.scenes.write(self._scene_line(frame, split=split, scene_text=scene_text, frame_dir=frame_dir))
+
+    @staticmethod
+    def _stat_instances(exported: _FrameInstances, scene_text: str) -> list[StatInstance]:
+        """The frame's labelled objects for ``dataset_statistics.json``, with their camera distances from the
+        frame's scene spec (None where the spec cannot tell)."""
+        if not exported.labelled:
+            return []
+        try:
+            distances = camera_distances(json.loads(scene_text))
+        except (ValueError, AttributeError):  # not a JSON object: no distances (the scene line fails loudly later)
+            distances = {}
+        return [
+            StatInstance(
+                category=name,
+                bbox=row.bbox,
+                area_px=int(row.mask_area_px),
+                visible_fraction=float(row.visible_fraction),
+                truncation_fraction=float(row.truncation_fraction),
+                occlusion_fraction=float(row.occlusion_fraction),
+                distance_m=distances.get(int(row.instance_id)),
+            )
+            for row, name in exported.labelled
+        ]
 
     def _export_yolo_frame(
         self,
@@ -431,6 +463,7 @@ class _Exporter:
                 out.ignore_ids.append(int(row.instance_id))
                 continue
             out.labelled_ids.append(int(row.instance_id))
+            out.labelled.append((row, category.name))
             classes_in_frame.add(row.object_class_id)
             if files.yolo_lists:
                 out.yolo_lines.append(yolo.label_line(category, row.bbox, width_px, height_px))
@@ -488,6 +521,7 @@ class _Exporter:
             annotations=tally.annotations,
         )
         sink.put_bytes(path="class_statistics.json", data=pretty(class_stats))
+        sink.put_bytes(path="dataset_statistics.json", data=pretty(tally.dataset.as_json()))
         sink.put_bytes(
             path="splits.json",
             data=pretty(

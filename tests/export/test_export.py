@@ -561,3 +561,44 @@ def test_instances_recorded_without_rle_get_one_from_the_mask_image(real_campaig
             assert int(mask_utils.area(a["segmentation"])) == a["area"]  # pycocotools
             checked += 1
     assert checked > 10
+
+
+def test_dataset_statistics_agree_with_a_recount_of_the_annotations(real_campaign, tmp_path):
+    """``dataset_statistics.json`` counts the labelled objects (iscrowd 0) exactly as the COCO files hold them; size
+    classes by the COCO detection evaluation's area limits 32² and 96² px (from memory: cocodataset.org, detection
+    evaluation)."""
+    out = tmp_path / "dataset"
+    _export(real_campaign, out)
+    stats = json.loads((out / "dataset_statistics.json").read_text())
+    images: dict[int, list[dict]] = {}
+    for path in _coco_files(out):
+        data = json.loads(path.read_text())
+        names = {c["id"]: c["name"] for c in data["categories"]}
+        for image in data["images"]:
+            images.setdefault(image["id"], [])
+        for a in data["annotations"]:
+            if not a["iscrowd"]:
+                images[a["image_id"]].append({**a, "name": names[a["category_id"]]})
+    objects = [a for rows in images.values() for a in rows]
+    assert stats["images"] == len(images) == len(FRAME_PLAN) and stats["instances"] == len(objects)
+    for name, counts in stats["size_classes"]["counts"].items():
+        areas = [a["area"] for a in objects if a["name"] == name]
+        expected = [
+            sum(area < 32**2 for area in areas),
+            sum(32**2 <= area < 96**2 for area in areas),
+            sum(area >= 96**2 for area in areas),
+        ]
+        assert counts == expected, name
+    per_image = Counter(len(rows) for rows in images.values())
+    recount = [per_image.get(n, 0) for n in stats["instances_per_image"]["values"]]
+    assert stats["instances_per_image"]["counts"] == recount
+    classes = stats["co_occurrence"]["classes"]
+    for i, first in enumerate(classes):
+        for j, second in enumerate(classes):
+            both = sum(
+                any(a["name"] == first for a in rows) and any(a["name"] == second for a in rows)
+                for rows in images.values()
+            )
+            assert stats["co_occurrence"]["counts"][i][j] == both
+    distances = stats["camera_distance"]["counts"]
+    assert sum(sum(row) for row in distances.values()) == len(objects)  # every object's distance is known
