@@ -169,6 +169,9 @@ class Frame(models.Model):
     queued_at = models.DateTimeField(null=True, blank=True)
     started_at = models.DateTimeField(null=True, blank=True)
     finished_at = models.DateTimeField(null=True, blank=True)
+    # Curation: a done frame a user left out of exports, and why (it still counts for quotas and spend).
+    excluded_at = models.DateTimeField(null=True, blank=True, help_text="When the frame was left out of exports")
+    excluded_reason = models.CharField(max_length=500, blank=True, help_text="Why it is left out of exports")
 
     IN_FLIGHT_STATES = (State.QUEUED, State.RUNNING, State.FAILED)
 

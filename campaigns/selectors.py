@@ -664,18 +664,33 @@ def error_groups(*, campaign: Campaign) -> list[dict[str, _Any]]:
     return sorted(groups.values(), key=lambda g: (-g["count"], g["kind"]))
 
 
-def gallery_frames(
-    *, campaign: Campaign, class_name: str = "", accepted: str = "", min_visible_fraction: float | None = None
-) -> QuerySet[Frame]:
-    """Done frames that hold at least one instance matching every given filter."""
+GALLERY_EXPORT_STATES = ("", "included", "excluded")
+
+
+def gallery_frames(*, campaign: Campaign, match: Q | None = None, export_state: str = "") -> QuerySet[Frame]:
+    """Done frames that hold at least one instance matching ``match`` (:func:`instance_filter`), and in the export
+    (``included``) or left out of it (``excluded``) when asked."""
     frames = Frame.objects.filter(campaign=campaign, state=State.DONE)
-    match = instance_filter(class_name=class_name, accepted=accepted, min_visible_fraction=min_visible_fraction)
     if match is not None:
         frames = frames.filter(Exists(Instance.objects.filter(match, frame=OuterRef("pk"))))
+    if export_state == "included":
+        frames = frames.filter(excluded_at__isnull=True)
+    elif export_state == "excluded":
+        frames = frames.filter(excluded_at__isnull=False)
     return frames.order_by("-index")
 
 
-def instance_filter(*, class_name: str = "", accepted: str = "", min_visible_fraction: float | None = None) -> Q | None:
+def instance_filter(
+    *,
+    class_name: str = "",
+    accepted: str = "",
+    min_visible_fraction: float | None = None,
+    min_contrast: float | None = None,
+    min_box_px: float | None = None,
+) -> Q | None:
+    """Instances of a class, accepted or rejected, at least this visible, this contrasted (instances without a
+    contrast measure never match a contrast filter) and whose visible box has both sides at least ``min_box_px``
+    (the quota rule's measure: the box's shorter side)."""
     query = Q()
     if class_name:
         query &= Q(object_class__name=class_name)
@@ -685,6 +700,10 @@ def instance_filter(*, class_name: str = "", accepted: str = "", min_visible_fra
         query &= Q(accepted=False)
     if min_visible_fraction is not None:
         query &= Q(visible_fraction__gte=min_visible_fraction)
+    if min_contrast is not None:
+        query &= Q(contrast__gte=min_contrast)
+    if min_box_px is not None:  # COCO [x, y, w, h]: both sides, as JSON array elements 2 and 3
+        query &= Q(bbox_xywh_px__2__gte=min_box_px, bbox_xywh_px__3__gte=min_box_px)
     return query if query else None
 
 
@@ -1047,7 +1066,10 @@ class StatisticsFrame:
 
 
 def _statistics_frames(*, campaign: Campaign, finished_before: _datetime) -> QuerySet[Frame]:
-    return Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__lte=finished_before)
+    # Frames a user left out of exports are left out here too: the page shows what an export holds.
+    return Frame.objects.filter(
+        campaign=campaign, state=State.DONE, finished_at__lte=finished_before, excluded_at__isnull=True
+    )
 
 
 def _statistics_instances(*, campaign: Campaign, finished_before: _datetime) -> QuerySet[Instance]:
@@ -1056,6 +1078,7 @@ def _statistics_instances(*, campaign: Campaign, finished_before: _datetime) -> 
         campaign=campaign,
         frame__state=State.DONE,
         frame__finished_at__lte=finished_before,
+        frame__excluded_at__isnull=True,
         accepted=True,
         mask_area_px__gt=0,
         bbox_xywh_px__isnull=False,

@@ -1198,6 +1198,41 @@ def ignore_frame(*, campaign_id: int, frame_id: int, kind: str | None = None) ->
     return len(ids)
 
 
+EXCLUSION_REASON_MAX_CHARS = 500  # Frame.excluded_reason's max_length
+
+
+@transaction.atomic
+def exclude_frames(*, campaign_id: int, frame_ids: Iterable[int], reason: Any) -> int:
+    """Leave done frames out of every later export, with a reason; returns how many changed.
+
+    Curation only: the frames keep counting for the quotas, the spend and the statistics of the campaign's progress;
+    an export skips them and lists them in its manifest. Frames that are not done, already excluded or of another
+    campaign are left as they are.
+    """
+    if reason is not None and not isinstance(reason, str):
+        raise CampaignError(f"expected text, got {type(reason).__name__}", field="reason")
+    reason = " ".join((reason or "").split())
+    if not reason:
+        raise CampaignError("say why the frames are left out (it goes into the export's manifest)", field="reason")
+    if len(reason) > EXCLUSION_REASON_MAX_CHARS:
+        raise CampaignError(f"at most {EXCLUSION_REASON_MAX_CHARS} characters, got {len(reason)}", field="reason")
+    if "\x00" in reason:
+        raise CampaignError("must not contain NUL characters", field="reason")
+    campaign = lock_campaign(campaign_id)
+    return Frame.objects.filter(
+        campaign=campaign, pk__in=list(frame_ids), state=State.DONE, excluded_at__isnull=True
+    ).update(excluded_at=timezone.now(), excluded_reason=reason)
+
+
+@transaction.atomic
+def include_frames(*, campaign_id: int, frame_ids: Iterable[int]) -> int:
+    """Put excluded frames back into later exports; returns how many changed."""
+    campaign = lock_campaign(campaign_id)
+    return Frame.objects.filter(campaign=campaign, pk__in=list(frame_ids), excluded_at__isnull=False).update(
+        excluded_at=None, excluded_reason=""
+    )
+
+
 @transaction.atomic
 def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     """A new frame with the same layout, lighting and view coordinates and the same composition as a done one.

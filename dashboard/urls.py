@@ -23,5 +23,7 @@ urlpatterns = [
     path("<int:campaign_id>/frames/", views.frame_gallery, name="gallery"),
     path("<int:campaign_id>/frames/<int:index>/", views.frame_detail, name="frame"),
     path("<int:campaign_id>/frames/<int:index>/rerender/", views.frame_rerender, name="rerender"),
+    path("<int:campaign_id>/frames/exclude/", views.frames_exclude, name="frames-exclude"),
+    path("<int:campaign_id>/frames/<int:index>/include/", views.frame_include, name="frame-include"),
     path("<int:campaign_id>/frames/<int:index>/<str:name>", views.frame_file, name="frame-file"),
 ]

@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
 from typing import Any
@@ -18,7 +19,7 @@ from typing import Any
 from django.conf import settings
 from django.contrib import messages
 from django.core.paginator import Paginator
-from django.db.models import Q
+from django.db.models import Q, QuerySet
 from django.http import (
     FileResponse,
     Http404,
@@ -26,6 +27,7 @@ from django.http import (
     HttpResponse,
     HttpResponseNotAllowed,
     JsonResponse,
+    QueryDict,
 )
 from django.shortcuts import redirect, render
 from django.urls import reverse
@@ -471,50 +473,103 @@ def _float_or_none(text: str | None, *, low: float, high: float) -> float | None
     return min(high, max(low, value))
 
 
-def _boxes(
-    instances: Sequence[Mapping[str, Any]],
-    match: Q | None,
-    *,
-    class_name: str,
-    accepted: str,
-    min_visible: float | None,
-) -> list[dict[str, Any]]:
+@dataclass(frozen=True)
+class _GalleryFilter:
+    """The gallery's filters, parsed leniently (a value out of range is clamped, a bad one ignored): instances of a
+    class, accepted or rejected, at least this visible / contrasted / large; frames in or out of the export."""
+
+    class_name: str = ""
+    accepted: str = ""
+    min_visible: float | None = None
+    min_contrast: float | None = None
+    min_box_px: float | None = None
+    export_state: str = ""
+
+    @classmethod
+    def parse(cls, data: Mapping[str, str], campaign: Campaign) -> _GalleryFilter:
+        class_name = data.get("class", "")
+        # A name with NUL is no class's (and PostgreSQL refuses it even in a lookup).
+        if class_name and ("\x00" in class_name or not campaign.quotas.filter(object_class__name=class_name).exists()):
+            class_name = ""
+        accepted = data.get("accepted", "")
+        export_state = data.get("export", "")
+        return cls(
+            class_name=class_name,
+            accepted=accepted if accepted in ("accepted", "rejected") else "",
+            min_visible=_float_or_none(data.get("min_visible"), low=0.0, high=1.0),
+            min_contrast=_float_or_none(data.get("min_contrast"), low=0.0, high=1e6),
+            min_box_px=_float_or_none(data.get("min_box"), low=0.0, high=1e5),
+            export_state=export_state if export_state in selectors.GALLERY_EXPORT_STATES else "",
+        )
+
+    @property
+    def instance_query(self) -> Q | None:
+        return selectors.instance_filter(
+            class_name=self.class_name,
+            accepted=self.accepted,
+            min_visible_fraction=self.min_visible,
+            min_contrast=self.min_contrast,
+            min_box_px=self.min_box_px,
+        )
+
+    def frames(self, campaign: Campaign) -> QuerySet[Frame]:
+        return selectors.gallery_frames(campaign=campaign, match=self.instance_query, export_state=self.export_state)
+
+    def matches(self, inst: Mapping[str, Any]) -> bool:
+        """Whether an instance row passes the instance filters (the same rule as :meth:`instance_query`)."""
+        box = inst["bbox_xywh_px"]
+        contrast = inst["contrast"]
+        return (
+            (not self.class_name or inst["object_class__name"] == self.class_name)
+            and (self.accepted != "accepted" or inst["accepted"])
+            and (self.accepted != "rejected" or not inst["accepted"])
+            and (self.min_visible is None or inst["visible_fraction"] >= self.min_visible)
+            and (self.min_contrast is None or (contrast is not None and contrast >= self.min_contrast))
+            and (self.min_box_px is None or (bool(box) and min(box[2], box[3]) >= self.min_box_px))
+        )
+
+    @property
+    def filters_instances(self) -> bool:
+        return self.instance_query is not None
+
+    def as_form(self) -> dict[str, str]:
+        """The values to show back in the form (numbers as typed, clamped)."""
+
+        def text(value: float | None) -> str:
+            return "" if value is None else f"{value:g}"
+
+        return {
+            "class_name": self.class_name,
+            "accepted": self.accepted,
+            "min_visible": text(self.min_visible),
+            "min_contrast": text(self.min_contrast),
+            "min_box": text(self.min_box_px),
+            "export": self.export_state,
+        }
+
+
+def _boxes(instances: Sequence[Mapping[str, Any]], rule: _GalleryFilter | None = None) -> list[dict[str, Any]]:
     out = []
     for inst in instances:
-        box = inst["bbox_xywh_px"]
-        matches = (
-            (not class_name or inst["object_class__name"] == class_name)
-            and (accepted != "accepted" or inst["accepted"])
-            and (accepted != "rejected" or not inst["accepted"])
-            and (min_visible is None or inst["visible_fraction"] >= min_visible)
+        matches = rule is None or rule.matches(inst)
+        out.append(
+            {
+                **inst,
+                "box": inst["bbox_xywh_px"],
+                "matches": matches,
+                "reasons": ", ".join(inst["reject_reasons"] or []),
+            }
         )
-        out.append({**inst, "box": box, "matches": matches, "reasons": ", ".join(inst["reject_reasons"] or [])})
     return out
 
 
 @require_GET
 def frame_gallery(request: HttpRequest, campaign_id: int) -> HttpResponse:
     campaign = _campaign(request, campaign_id)
-    class_name = request.GET.get("class", "")
-    # A name with NUL is no class's (and PostgreSQL refuses it even in a lookup).
-    if class_name and ("\x00" in class_name or not campaign.quotas.filter(object_class__name=class_name).exists()):
-        class_name = ""
-    accepted = request.GET.get("accepted", "")
-    accepted = accepted if accepted in ("accepted", "rejected") else ""
-    min_visible = _float_or_none(request.GET.get("min_visible"), low=0.0, high=1.0)
-    frames = selectors.gallery_frames(
-        campaign=campaign, class_name=class_name, accepted=accepted, min_visible_fraction=min_visible
-    )
-    page = Paginator(frames, GALLERY_PAGE).get_page(request.GET.get("page"))
+    rule = _GalleryFilter.parse(request.GET, campaign)
+    page = Paginator(rule.frames(campaign), GALLERY_PAGE).get_page(request.GET.get("page"))
     instances = selectors.frame_instances(frame_ids=[f.pk for f in page])
-    match = selectors.instance_filter(class_name=class_name, accepted=accepted, min_visible_fraction=min_visible)
-    tiles = [
-        {
-            "frame": f,
-            "boxes": _boxes(instances[f.pk], match, class_name=class_name, accepted=accepted, min_visible=min_visible),
-        }
-        for f in page
-    ]
+    tiles = [{"frame": f, "boxes": _boxes(instances[f.pk], rule if rule.filters_instances else None)} for f in page]
     query = request.GET.copy()
     query.pop("page", None)
     return render(
@@ -524,18 +579,59 @@ def frame_gallery(request: HttpRequest, campaign_id: int) -> HttpResponse:
             "c": campaign,
             "page": page,
             "tiles": tiles,
-            "class_name": class_name,
-            "accepted": accepted,
-            "min_visible": "" if min_visible is None else f"{min_visible:g}",
+            "flt": rule.as_form(),
             "query": query.urlencode(),
             "classes": list(
                 campaign.quotas.order_by("object_class__name").values_list("object_class__name", flat=True)
             ),
-            "filtered": bool(class_name or accepted or min_visible is not None),
+            "filtered": rule != _GalleryFilter(),
+            "filters_instances": rule.filters_instances,
             "label_size": round(campaign.width_px / 20, 2),
+            "reason_max": services.EXCLUSION_REASON_MAX_CHARS,
             **_roles(request, campaign),
         },
     )
+
+
+@require_POST
+def frames_exclude(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    """Leave frames out of exports, with a reason: one frame (``frame``: its index) or every frame the gallery's
+    filters select (the filters posted back as fields)."""
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    index = request.POST.get("frame", "")
+    if index:
+        frame = _frame(campaign, int(index)) if index.isdigit() and len(index) <= 9 else None
+        if frame is None:
+            raise Http404("no such frame")
+        frames = Frame.objects.filter(pk=frame.pk)
+        back = redirect("campaigns:frame", campaign_id=campaign.pk, index=frame.index)
+    else:
+        frames = _GalleryFilter.parse(request.POST, campaign).frames(campaign).filter(excluded_at__isnull=True)
+        query = QueryDict(mutable=True)
+        for key in ("class", "accepted", "min_visible", "min_contrast", "min_box", "export"):
+            if request.POST.get(key):
+                query[key] = request.POST[key]
+        back = redirect(f"{reverse('campaigns:gallery', args=[campaign.pk])}?{query.urlencode()}")
+    try:
+        changed = services.exclude_frames(
+            campaign_id=campaign.pk, frame_ids=frames.values_list("pk", flat=True), reason=request.POST.get("reason")
+        )
+    except services.CampaignError as exc:
+        messages.error(request, exc.message[:1].upper() + exc.message[1:] + ".")
+        return back
+    messages.success(request, f"{changed} frame{'s' if changed != 1 else ''} left out of exports.")
+    return back
+
+
+@require_POST
+def frame_include(request: HttpRequest, campaign_id: int, index: int) -> HttpResponse:
+    """Put an excluded frame back into exports."""
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    frame = _frame(campaign, index)
+    changed = services.include_frames(campaign_id=campaign.pk, frame_ids=[frame.pk])
+    if changed:
+        messages.success(request, f"Frame {frame.index} is in exports again.")
+    return redirect("campaigns:frame", campaign_id=campaign.pk, index=frame.index)
 
 
 def _frame(campaign: Campaign, index: int) -> Frame:
@@ -565,7 +661,7 @@ def frame_detail(request: HttpRequest, campaign_id: int, index: int) -> HttpResp
     campaign = _campaign(request, campaign_id)
     frame = _frame(campaign, index)
     instances = selectors.frame_instances(frame_ids=[frame.pk])[frame.pk]
-    boxes = _boxes(instances, None, class_name="", accepted="", min_visible=None)
+    boxes = _boxes(instances)
     spec, labels = {}, {}
     has_files = False
     if frame.state == Frame.State.DONE and frame.output_dir:
@@ -598,6 +694,7 @@ def frame_detail(request: HttpRequest, campaign_id: int, index: int) -> HttpResp
             "prev_index": prev_index,
             "next_index": next_index,
             "timings": frame.timings_s or {},
+            "reason_max": services.EXCLUSION_REASON_MAX_CHARS,
             "label_size": round(render_settings["width_px"] / 48, 2),
             **_roles(request, campaign),
         },

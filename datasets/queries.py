@@ -57,8 +57,22 @@ def campaign_categories(*, campaign: Any) -> list[Category]:
 
 
 def done_frames(campaign: Any, finished_before: datetime) -> Any:
-    """The campaign's frames in the export: done before ``finished_before``."""
-    return Frame.objects.filter(campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before)
+    """The campaign's frames in the export: done before ``finished_before`` and not excluded by a user."""
+    return Frame.objects.filter(
+        campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before, excluded_at__isnull=True
+    )
+
+
+def excluded_frames(campaign: Any, finished_before: datetime) -> list[dict[str, Any]]:
+    """The done frames a user left out of exports, with their reasons, in index order (for the manifest)."""
+    rows = (
+        Frame.objects.filter(
+            campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before, excluded_at__isnull=False
+        )
+        .order_by("index")
+        .values_list("index", "excluded_reason")
+    )
+    return [{"frame_index": int(index), "reason": reason} for index, reason in rows]
 
 
 def exported_instances(campaign: Any, finished_before: datetime, accepted_only: bool) -> Any:
@@ -67,6 +81,7 @@ def exported_instances(campaign: Any, finished_before: datetime, accepted_only: 
         campaign=campaign,
         frame__state=Frame.State.DONE,
         frame__finished_at__lte=finished_before,
+        frame__excluded_at__isnull=True,
         mask_area_px__gt=0,
         bbox_xywh_px__isnull=False,
     )

@@ -38,6 +38,7 @@ from datasets.queries import (
     InstanceRow,
     InstancesByFrame,
     campaign_categories,
+    excluded_frames,
     find_campaign,
     frame_rows,
     instance_rows,
@@ -93,6 +94,7 @@ class ExportSummary:
     images_per_split: dict[str, int] = field(default_factory=dict)
     annotations_per_split: dict[str, int] = field(default_factory=dict)
     max_share_deviation_pp: float | None = None
+    excluded_frames: int = 0
     ignore_regions: int = 0
     background: int = 0
     dropped: int = 0
@@ -147,6 +149,11 @@ class ExportSummary:
             f"  splits: {splits}",
             f"  largest per-class share deviation from the ratios: {deviation}",
             *self._rejected_lines(),
+            *(
+                [f"  left out by curation: {self.excluded_frames} frames (listed with their reasons in the manifest)"]
+                if self.excluded_frames
+                else []
+            ),
             f"  files: {self.files} ({self.bytes_total / 1e6:.1f} MB); written {self.files_written} "
             f"({self.bytes_written / 1e6:.1f} MB), reused {self.files_reused} unchanged",
             f"  {self.seconds:.1f} s, {rate:.0f} frames/s, peak RSS {self.peak_rss_mb:.0f} MB",
@@ -561,6 +568,8 @@ class _Exporter:
         summary.yolo_filled_frames = tally.yolo_filled_frames
         summary.yolo_skipped_frames = tally.yolo_skipped_frames
         summary.yolo_unlabelled = tally.yolo_unlabelled
+        excluded = excluded_frames(self.campaign, self.finished_before)
+        summary.excluded_frames = len(excluded)
         sink.write_manifest(
             {
                 "format": EXPORT_FORMAT,
@@ -571,6 +580,8 @@ class _Exporter:
                 "exported_at": self.finished_before.isoformat(),
                 "frames": tally.frames,
                 "options": self.options.as_json(),
+                # Frames a user left out (curation), with the reason given; they are in no file of the export.
+                "excluded_frames": excluded,
             }
         )
         for key in ("files", "bytes_total", "files_written", "bytes_written", "files_reused"):

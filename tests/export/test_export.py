@@ -602,3 +602,31 @@ def test_dataset_statistics_agree_with_a_recount_of_the_annotations(real_campaig
             assert stats["co_occurrence"]["counts"][i][j] == both
     distances = stats["camera_distance"]["counts"]
     assert sum(sum(row) for row in distances.values()) == len(objects)  # every object's distance is known
+
+
+def test_excluded_frames_are_in_no_file_and_listed_in_the_manifest(real_campaign, tmp_path):
+    from campaigns import services
+    from campaigns.models import Frame
+
+    left_out = Frame.objects.get(campaign=real_campaign, index=3)
+    services.exclude_frames(campaign_id=real_campaign.pk, frame_ids=[left_out.pk], reason="lamp blown out")
+    out = tmp_path / "dataset"
+    summary = _export(real_campaign, out, formats=frozenset({"coco", "yolo"}))
+    stem = "000003"
+    assert summary.frames == len(FRAME_PLAN) - 1
+    assert not (out / "images" / f"{stem}.png").exists() and not (out / "masks" / f"{stem}.png").exists()
+    assert not (out / "labels" / f"{stem}.txt").exists()
+    for path in _coco_files(out):
+        data = json.loads(path.read_text())
+        assert 3 not in {i["id"] for i in data["images"]} and 3 not in {a["image_id"] for a in data["annotations"]}
+    for split in SPLITS:
+        if (out / f"{split}.txt").exists():
+            assert f"./images/{stem}.png" not in (out / f"{split}.txt").read_text().split()
+    scenes = [json.loads(line)["frame_index"] for line in (out / "scenes.jsonl").read_text().splitlines()]
+    assert 3 not in scenes and len(scenes) == len(FRAME_PLAN) - 1
+    header = json.loads((out / MANIFEST_NAME).read_text().splitlines()[0])
+    assert header["excluded_frames"] == [{"frame_index": 3, "reason": "lamp blown out"}]
+    assert not any(stem in line for line in (out / MANIFEST_NAME).read_text().splitlines()[1:])
+    assert verify_dataset(directory=out).ok
+    stats = json.loads((out / "dataset_statistics.json").read_text())
+    assert stats["images"] == len(FRAME_PLAN) - 1
