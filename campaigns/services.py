@@ -37,7 +37,7 @@ from django.utils import timezone
 from assets.models import Asset, ObjectClass
 from campaigns import costs, errors, messaging, planner, selectors
 from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
-from evenframe.inputs import DEFAULT_MONEY_MAXIMUM, InputError, clean_amount, clean_name, name_guard
+from evenframe.inputs import DEFAULT_MONEY_MAXIMUM, InputError, clean_amount, clean_name, clean_text, name_guard
 from render.budget import FIELDS_BY_KEY, BudgetError, normalize_budget
 from teams.models import Team
 from teams.permissions import PLANNER, has_role, personal_team
@@ -1209,15 +1209,13 @@ def exclude_frames(*, campaign_id: int, frame_ids: Iterable[int], reason: Any) -
     an export skips them and lists them in its manifest. Frames that are not done, already excluded or of another
     campaign are left as they are.
     """
-    if reason is not None and not isinstance(reason, str):
-        raise CampaignError(f"expected text, got {type(reason).__name__}", field="reason")
-    reason = " ".join((reason or "").split())
-    if not reason:
-        raise CampaignError("say why the frames are left out (it goes into the export's manifest)", field="reason")
-    if len(reason) > EXCLUSION_REASON_MAX_CHARS:
-        raise CampaignError(f"at most {EXCLUSION_REASON_MAX_CHARS} characters, got {len(reason)}", field="reason")
-    if "\x00" in reason:
-        raise CampaignError("must not contain NUL characters", field="reason")
+    reason = clean_text(
+        " ".join(reason.split()) if isinstance(reason, str) else reason,
+        "reason",
+        max_length=EXCLUSION_REASON_MAX_CHARS,
+        required="say why the frames are left out (it goes into the export's manifest)",
+        error=CampaignError,
+    )
     campaign = lock_campaign(campaign_id)
     return Frame.objects.filter(
         campaign=campaign, pk__in=list(frame_ids), state=State.DONE, excluded_at__isnull=True

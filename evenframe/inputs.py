@@ -32,6 +32,29 @@ class InputError(ValueError):
         super().__init__(f"{field}: {message}" if field else message)
 
 
+def clean_text(
+    value: Any,
+    field: str,
+    *,
+    max_length: int,
+    required: str = "required",
+    error: Callable[..., InputError] = InputError,
+) -> str:
+    """Required text from input, stripped, at most ``max_length`` characters, without NUL (PostgreSQL text cannot
+    hold it); ``required`` is the message when it is empty. ``error`` makes the exception (the calling service's own
+    :class:`InputError` subclass)."""
+    if value is not None and not isinstance(value, str):
+        raise error(f"expected text, got {type(value).__name__}", field=field)
+    value = (value or "").strip()
+    if not value:
+        raise error(required, field=field)
+    if len(value) > max_length:
+        raise error(f"at most {max_length} characters, got {len(value)}", field=field)
+    if "\x00" in value:
+        raise error("must not contain NUL characters", field=field)
+    return value
+
+
 def clean_name(
     name: Any,
     description: str = "",
@@ -39,18 +62,8 @@ def clean_name(
     max_length: int = 200,
     error: Callable[..., InputError] = InputError,
 ) -> str:
-    """A required one-line name from input (stripped), checked with its optional description.
-
-    ``error`` makes the exception (the calling service's own :class:`InputError` subclass)."""
-    if name is not None and not isinstance(name, str):
-        raise error(f"expected text, got {type(name).__name__}", field="name")
-    name = (name or "").strip()
-    if not name:
-        raise error("required", field="name")
-    if len(name) > max_length:
-        raise error(f"at most {max_length} characters, got {len(name)}", field="name")
-    if "\x00" in name:
-        raise error("must not contain NUL characters", field="name")
+    """A required one-line name from input (stripped), checked with its optional description."""
+    name = clean_text(name, "name", max_length=max_length, error=error)
     if "\x00" in (description or ""):
         raise error("must not contain NUL characters", field="description")
     return name
