@@ -39,7 +39,7 @@ lint: $(STAMP)
 	$(VENV)/bin/lint-imports
 	$(PY) scripts/check_private_names.py
 	$(PY) scripts/check_deferred_imports.py
-	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy assets campaigns datasets render teams fleet evenframe dashboard
+	EVENFRAME_DATA_DIR=$${EVENFRAME_DATA_DIR:-$(CURDIR)/data/lint} $(VENV)/bin/mypy assets campaigns datasets render teams fleet evenframe dashboard api
 
 bench: $(STAMP)
 	$(PY) -m render.bench --frames 5

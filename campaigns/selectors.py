@@ -696,8 +696,8 @@ def instance_filter(
         query &= Q(object_class__name=class_name)
     if accepted == "accepted":
         query &= Q(accepted=True)
-    elif accepted == "rejected":
-        query &= Q(accepted=False)
+    elif accepted == "rejected":  # visible but rejected: an instance without pixels shows nothing to look at
+        query &= Q(accepted=False, mask_area_px__gt=0)
     if min_visible_fraction is not None:
         query &= Q(visible_fraction__gte=min_visible_fraction)
     if min_contrast is not None:

@@ -34,6 +34,7 @@ from django.urls import reverse
 from django.views.decorators.cache import never_cache
 from django.views.decorators.http import require_GET, require_POST
 
+from api import services as api_services
 from assets import files as asset_files
 from assets import services as asset_services
 from assets.models import Asset
@@ -522,7 +523,7 @@ class _GalleryFilter:
         return (
             (not self.class_name or inst["object_class__name"] == self.class_name)
             and (self.accepted != "accepted" or inst["accepted"])
-            and (self.accepted != "rejected" or not inst["accepted"])
+            and (self.accepted != "rejected" or (not inst["accepted"] and inst["mask_area_px"] > 0))
             and (self.min_visible is None or inst["visible_fraction"] >= self.min_visible)
             and (self.min_contrast is None or (contrast is not None and contrast >= self.min_contrast))
             and (self.min_box_px is None or (bool(box) and min(box[2], box[3]) >= self.min_box_px))
@@ -585,6 +586,10 @@ def frame_gallery(request: HttpRequest, campaign_id: int) -> HttpResponse:
                 campaign.quotas.order_by("object_class__name").values_list("object_class__name", flat=True)
             ),
             "filtered": rule != _GalleryFilter(),
+            # What the bulk form would leave out: the selected frames not left out already.
+            "to_exclude": rule.frames(campaign).filter(excluded_at__isnull=True).count()
+            if rule != _GalleryFilter() and rule.export_state != "excluded"
+            else 0,
             "filters_instances": rule.filters_instances,
             "label_size": round(campaign.width_px / 20, 2),
             "reason_max": services.EXCLUSION_REASON_MAX_CHARS,
@@ -914,3 +919,44 @@ def protected_media(request: HttpRequest, path: str) -> FileResponse:
     if not allowed:
         raise Http404("no such file")  # outsiders must not learn that the file exists
     return FileResponse(open(target, "rb"))
+
+
+# --- API tokens (profile) ----------------------------------------------------------------------------------------------
+
+
+@never_cache
+def api_tokens(request: HttpRequest) -> HttpResponse:
+    """The user's API tokens; a POST makes one and shows its plaintext on this response only (it is not stored)."""
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    created = None
+    name_error = ""
+    status = 200
+    if request.method == "POST":
+        try:
+            created = api_services.create_token(user=request.user, name=request.POST.get("name"))
+        except api_services.ApiTokenError as exc:
+            name_error = exc.message[:1].upper() + exc.message[1:] + "."
+            status = 400
+    return render(
+        request,
+        "profile/api_tokens.html",
+        {
+            "tokens": api_services.tokens_of(user=request.user),
+            "new_token": created[0] if created else None,
+            "plaintext": created[1] if created else "",
+            "name_error": name_error,
+            "name": request.POST.get("name", "") if status == 400 else "",
+            "api_docs_url": reverse("api-v1:openapi-view"),
+        },
+        status=status,
+    )
+
+
+@require_POST
+def api_token_revoke(request: HttpRequest, token_id: int) -> HttpResponse:
+    if api_services.revoke_token(user=request.user, token_id=token_id):
+        messages.success(request, "Token revoked; requests with it are refused from now on.")
+    else:
+        raise Http404("no such token")
+    return redirect("api-tokens")

@@ -261,7 +261,14 @@ def campaign_json(*, campaign: Any) -> dict:
     }
 
 
-def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Category], active: Sequence[str]) -> str:
+def readme(
+    *,
+    campaign: Any,
+    options: ExportOptions,
+    categories: Sequence[Category],
+    active: Sequence[str],
+    excluded_frames: int = 0,
+) -> str:
     """``README.md``: what is where in this export."""
     c = campaign
     names = ", ".join(cat.name for cat in categories)
@@ -308,7 +315,13 @@ def readme(*, campaign: Any, options: ExportOptions, categories: Sequence[Catego
         "| `manifest.jsonl` | header, then every file with size and SHA-256; "
         "check with `manage.py verify_dataset DIR` |",
         "",
-        f"Active splits: {', '.join(active)}.",
+        f"Active splits: {', '.join(active)}."
+        + (
+            f" Frames left out by curation: {excluded_frames} (not in any file here; `manifest.jsonl`'s first line "
+            "lists them with their reasons)."
+            if excluded_frames
+            else ""
+        ),
         "",
         *_rejected_section(options),
         *_conventions_section(coco=coco, yolo=yolo),
@@ -355,7 +368,8 @@ def _rejected_section(options: ExportOptions) -> list[str]:
             "YOLO labels have no ignore regions. The choices, and this export's:",
             "",
             "- `fill` — the region's pixels (its mask grown by one pixel, never over a labelled object) are painted "
-            "RGB (124, 116, 104), the usual normalisation's zero; the object no longer shows, so no label is "
+            "RGB (124, 116, 104), the ImageNet mean, which the usual input normalisation maps to zero; the object no "
+            "longer shows, so no label is "
             "missing. Cost: the images differ from the render (COCO's `images/` are the same files, so COCO users "
             "see the fill too, inside regions they ignore anyway).",
             "- `skip` — frames with an ignore region are left out of the YOLO split lists. Cost: fewer frames, and "

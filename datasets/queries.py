@@ -12,6 +12,7 @@ from datetime import datetime
 from typing import Any, NamedTuple
 
 import numpy as np
+from django.db.models import Q
 
 from campaigns.models import Campaign, ClassQuota, Frame, Instance
 from datasets.errors import ExportError
@@ -57,9 +58,10 @@ def campaign_categories(*, campaign: Any) -> list[Category]:
 
 
 def done_frames(campaign: Any, finished_before: datetime) -> Any:
-    """The campaign's frames in the export: done before ``finished_before`` and not excluded by a user."""
-    return Frame.objects.filter(
-        campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before, excluded_at__isnull=True
+    """The campaign's frames in the export: done before ``finished_before`` and not left out by a user by then (a
+    frame left out while the export runs is in it, as it was at the snapshot)."""
+    return Frame.objects.filter(campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before).filter(
+        Q(excluded_at__isnull=True) | Q(excluded_at__gt=finished_before)
     )
 
 
@@ -67,7 +69,10 @@ def excluded_frames(campaign: Any, finished_before: datetime) -> list[dict[str, 
     """The done frames a user left out of exports, with their reasons, in index order (for the manifest)."""
     rows = (
         Frame.objects.filter(
-            campaign=campaign, state=Frame.State.DONE, finished_at__lte=finished_before, excluded_at__isnull=False
+            campaign=campaign,
+            state=Frame.State.DONE,
+            finished_at__lte=finished_before,
+            excluded_at__lte=finished_before,
         )
         .order_by("index")
         .values_list("index", "excluded_reason")
@@ -78,10 +83,10 @@ def excluded_frames(campaign: Any, finished_before: datetime) -> list[dict[str, 
 def exported_instances(campaign: Any, finished_before: datetime, accepted_only: bool) -> Any:
     """The instances in the export: visible (a mask and a box) on a done frame; accepted ones only if asked."""
     query = Instance.objects.filter(
+        Q(frame__excluded_at__isnull=True) | Q(frame__excluded_at__gt=finished_before),
         campaign=campaign,
         frame__state=Frame.State.DONE,
         frame__finished_at__lte=finished_before,
-        frame__excluded_at__isnull=True,
         mask_area_px__gt=0,
         bbox_xywh_px__isnull=False,
     )

@@ -150,7 +150,9 @@ class ExportSummary:
             f"  largest per-class share deviation from the ratios: {deviation}",
             *self._rejected_lines(),
             *(
-                [f"  left out by curation: {self.excluded_frames} frames (listed with their reasons in the manifest)"]
+                [
+                    f"  left out by curation: {self.excluded_frames} frame{'s' if self.excluded_frames != 1 else ''} (listed with their reasons in the manifest)"
+                ]
                 if self.excluded_frames
                 else []
             ),
@@ -277,6 +279,8 @@ class _Exporter:
         self.categories = campaign_categories(campaign=campaign)
         self.category_of = {c.object_class_id: c for c in self.categories}
         self.summary = ExportSummary(campaign_id=campaign.pk, out="")
+        # Frames a user left out (curation) by the snapshot time, with their reasons: for the README and manifest.
+        self.excluded = excluded_frames(campaign, self.finished_before)
 
     def run(self, sink: Sink) -> Iterator[None]:
         """Splits, then every frame's files, then the aggregate files, then the manifest and the summary."""
@@ -551,7 +555,11 @@ class _Exporter:
         sink.put_bytes(
             path="README.md",
             data=metadata.readme(
-                campaign=campaign, options=options, categories=categories, active=plan.active
+                campaign=campaign,
+                options=options,
+                categories=categories,
+                active=plan.active,
+                excluded_frames=len(self.excluded),
             ).encode(),
         )
 
@@ -568,8 +576,7 @@ class _Exporter:
         summary.yolo_filled_frames = tally.yolo_filled_frames
         summary.yolo_skipped_frames = tally.yolo_skipped_frames
         summary.yolo_unlabelled = tally.yolo_unlabelled
-        excluded = excluded_frames(self.campaign, self.finished_before)
-        summary.excluded_frames = len(excluded)
+        summary.excluded_frames = len(self.excluded)
         sink.write_manifest(
             {
                 "format": EXPORT_FORMAT,
@@ -581,7 +588,7 @@ class _Exporter:
                 "frames": tally.frames,
                 "options": self.options.as_json(),
                 # Frames a user left out (curation), with the reason given; they are in no file of the export.
-                "excluded_frames": excluded,
+                "excluded_frames": self.excluded,
             }
         )
         for key in ("files", "bytes_total", "files_written", "bytes_written", "files_reused"):

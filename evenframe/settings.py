@@ -84,6 +84,9 @@ INSTALLED_APPS = [
     "datasets",
     "fleet",
     "dashboard",
+    "api",
+    # django-ninja: in INSTALLED_APPS so the API docs page serves Swagger UI from its own static files (no CDN).
+    "ninja",
     "axes",
 ]
 

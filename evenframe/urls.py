@@ -12,6 +12,9 @@ urlpatterns = [
     path("health/", views.health_page, name="health"),
     path("health.json", views.health_json, name="health-json"),
     path("admin/", admin.site.urls),
+    path("api/v1/", include("api.urls")),
+    path("profile/tokens/", dashboard_views.api_tokens, name="api-tokens"),
+    path("profile/tokens/<int:token_id>/revoke/", dashboard_views.api_token_revoke, name="api-token-revoke"),
     path("campaigns/", include("dashboard.urls")),
     path("campaigns/", include("datasets.urls")),
     # Media (rendered frames) behind login; in a real deployment a proxy may serve them instead.

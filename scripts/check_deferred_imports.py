@@ -16,7 +16,7 @@ import sys
 import tokenize
 from pathlib import Path
 
-PACKAGES = ("render", "assets", "campaigns", "datasets", "fleet", "teams", "evenframe", "dashboard")
+PACKAGES = ("render", "assets", "campaigns", "datasets", "fleet", "teams", "evenframe", "dashboard", "api")
 SKIP_PARTS = {"migrations", "tests", ".venv", "data"}
 MARKER = "# deferred:"
 

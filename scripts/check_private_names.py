@@ -12,7 +12,7 @@ import ast
 import sys
 from pathlib import Path
 
-PACKAGES = ("render", "assets", "campaigns", "datasets", "fleet", "teams", "evenframe", "dashboard")
+PACKAGES = ("render", "assets", "campaigns", "datasets", "fleet", "teams", "evenframe", "dashboard", "api")
 SKIP_PARTS = {"migrations", "tests", ".venv", "data"}
 
 

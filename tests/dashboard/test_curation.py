@@ -77,23 +77,43 @@ def test_viewer_and_outsider_cannot_exclude(client, done_campaign, people):
 
 
 def test_gallery_excludes_exactly_the_frames_its_filters_select(client, done_campaign, people):
-    rejected_frames = set(
-        Instance.objects.filter(campaign=done_campaign, accepted=False).values_list("frame__index", flat=True)
-    )
-    assert rejected_frames and rejected_frames != set(_done(done_campaign).values_list("index", flat=True))
+    done = set(_done(done_campaign).values_list("index", flat=True))
+    by_class: dict[str, set[int]] = {}
+    for name, index in Instance.objects.filter(campaign=done_campaign).values_list(
+        "object_class__name", "frame__index"
+    ):
+        by_class.setdefault(name, set()).add(index)
+    quoted = set(done_campaign.quotas.values_list("object_class__name", flat=True))  # the gallery's class choices
+    name, selected = next((n, f) for n, f in sorted(by_class.items()) if n in quoted and f != done)  # a proper subset
     client.force_login(people["pia"])
-    gallery = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"accepted": "rejected"})
-    assert "Leave these" in gallery.content.decode()
-    client.post(
-        reverse("campaigns:frames-exclude", args=[done_campaign.pk]), {"accepted": "rejected", "reason": "crowded"}
-    )
+    gallery = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"class": name})
+    count = len(selected)
+    assert ("Leave this frame" if count == 1 else f"Leave these {count} frames") in gallery.content.decode()
+    client.post(reverse("campaigns:frames-exclude", args=[done_campaign.pk]), {"class": name, "reason": "crowded"})
     excluded = set(_done(done_campaign).filter(excluded_at__isnull=False).values_list("index", flat=True))
-    assert excluded == rejected_frames
+    assert excluded == selected
     shown = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"export": "excluded"})
-    assert {t["frame"].index for t in shown.context["tiles"]} == rejected_frames
+    assert {t["frame"].index for t in shown.context["tiles"]} == selected
     assert "left out" in shown.content.decode()
+    assert "out of exports</button>" not in shown.content.decode()  # nothing left to leave out there
+    again = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"class": name})
+    assert "out of exports</button>" not in again.content.decode()  # every selected frame is out already
     kept = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"export": "included"})
-    assert not {t["frame"].index for t in kept.context["tiles"]} & rejected_frames
+    assert {t["frame"].index for t in kept.context["tiles"]} == done - selected
+
+
+def test_rejected_filter_shows_only_visible_rejected_instances(client, done_campaign, people):
+    """An instance rejected as "not visible" has no pixels to look at: the "rejected" filter leaves it out."""
+    client.force_login(people["vera"])
+    page = client.get(reverse("campaigns:gallery", args=[done_campaign.pk]), {"accepted": "rejected"})
+    expected = set(
+        Instance.objects.filter(campaign=done_campaign, accepted=False, mask_area_px__gt=0).values_list(
+            "frame__index", flat=True
+        )
+    )
+    assert {t["frame"].index for t in page.context["tiles"]} == expected
+    for tile in page.context["tiles"]:
+        assert all(b["mask_area_px"] > 0 for b in tile["boxes"] if b["matches"])
 
 
 def test_gallery_filters_by_contrast_and_box_size_like_a_recount(client, done_campaign, people):
