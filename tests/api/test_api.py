@@ -322,3 +322,23 @@ def test_docs_page_is_served_locally(client):
     assert '"validatorUrl": null' in html
     for url in urls:  # the static files are there (whitenoise serves them from the app folders)
         assert client.get(url).status_code == 200, url
+
+
+def test_token_admin_is_for_superusers_and_never_shows_the_hash(client, people, django_user_model):
+    from django.urls import reverse
+
+    from api import services as api_services
+
+    token, _plaintext = api_services.create_token(user=people["pia"], name="ci script")
+    client.force_login(people["ada"])  # a team admin, not a superuser
+    assert client.get(reverse("admin:api_apitoken_changelist")).status_code in (302, 403)
+    root = django_user_model.objects.create_superuser(username="root", password="root-password-123")
+    client.force_login(root)
+    page = client.get(reverse("admin:api_apitoken_change", args=[token.pk]))
+    assert page.status_code == 200 and token.key_hash not in page.content.decode()
+    client.post(
+        reverse("admin:api_apitoken_changelist"),
+        {"action": "revoke", "_selected_action": [token.pk]},
+    )
+    token.refresh_from_db()
+    assert token.revoked_at is not None
