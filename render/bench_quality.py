@@ -15,7 +15,8 @@
    SSIM (scikit-image ``metrics``) of its 8-bit image against the reference's: once with the
    default's sensor noise (what the dataset gets; the noise is a deliberate randomization) and once
    with sensor noise off (the render's own error).
-4. Raw at equal CPU: the previous pipeline (sky found by brute force, no denoiser, sensor noise off)
+4. Raw at equal CPU: the previous pipeline (sky found by brute force, no denoiser, sensor noise off, the sun
+   at the frame's own samples per pixel: :data:`PREVIOUS_SUN_PASS_SPP_FACTOR`)
    at the sample count whose CPU time matches the default frame's, scored the same way.
 5. Reference passes: the reference is the mean radiance of ``--reference-passes`` (2) independent passes of
    ``--reference-spp`` each, ``--sun-passes`` (4) for sunlit rooms — lit mostly by light bouncing off sun
@@ -39,6 +40,7 @@ equal CPU time.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import copy
 import functools
 import hashlib
@@ -48,12 +50,14 @@ import statistics
 import sys
 import tempfile
 import time
+from collections.abc import Iterator
 from pathlib import Path
 from typing import Any, TypedDict
 
 import numpy as np
 
 # None of these loads Dr.Jit: it loads in init_renderer, after main() has pointed DRJIT_CACHE_DIR at a fresh folder.
+from . import scene as scene_module
 from .backend import init_renderer
 from .budget import DEFAULT_BUDGET
 from .cli import default_composition
@@ -77,6 +81,20 @@ class _RenderDefault(TypedDict):
 
 #: The default before denoising and portals (for the CPU comparison).
 PREVIOUS_DEFAULT: _RenderDefault = {"spp": 32, "denoise": False, "window_light": "dome"}
+#: The previous pipeline rendered the sun with the other lights, at the frame's samples per pixel: its stand-in here
+#: renders the sun pass at the same count (factor 1), never at the new default's larger sun-pass factor.
+PREVIOUS_SUN_PASS_SPP_FACTOR = 1
+
+
+@contextlib.contextmanager
+def _sun_pass_factor(factor: int) -> Iterator[None]:
+    """Render with another :data:`render.scene.SUN_PASS_SPP_FACTOR` (the previous pipeline's, see above)."""
+    saved = scene_module.SUN_PASS_SPP_FACTOR
+    scene_module.SUN_PASS_SPP_FACTOR = int(factor)
+    try:
+        yield
+    finally:
+        scene_module.SUN_PASS_SPP_FACTOR = saved
 
 
 def lighting_kind(spec: dict[str, Any]) -> str | None:
@@ -253,10 +271,12 @@ def _pipeline_cpu(
     if pipeline == "previous":
         specs = [_with(spec, spp=PREVIOUS_DEFAULT["spp"], denoise=PREVIOUS_DEFAULT["denoise"]) for spec in specs]
     window_light = PREVIOUS_DEFAULT["window_light"] if pipeline == "previous" else "portal"
-    return {
-        sight: [_render(spec, window_light=window_light, threads=threads)[1] for spec in specs]
-        for sight in ("first sight", "repeat")
-    }
+    factor = PREVIOUS_SUN_PASS_SPP_FACTOR if pipeline == "previous" else scene_module.SUN_PASS_SPP_FACTOR
+    with _sun_pass_factor(factor):
+        return {
+            sight: [_render(spec, window_light=window_light, threads=threads)[1] for spec in specs]
+            for sight in ("first sight", "repeat")
+        }
 
 
 def cpu_per_frame(args: argparse.Namespace, seeds: list[int], default_render: dict[str, Any]) -> None:
@@ -395,13 +415,14 @@ def main(argv: list[str] | None = None) -> int:
         psnr_clean, ssim_clean = scores(reference, clean.rgb)
         # Raw (previous pipeline) at the CPU time of the default frame: CPU per sample from a probe render.
         probe_spp = 8
-        _, probe_cpu_s = _render(
-            _with(spec, spp=probe_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
-        )
-        raw_spp = max(1, round(probe_spp * cpu_s / probe_cpu_s))
-        raw, raw_cpu_s = _render(
-            _with(spec, spp=raw_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
-        )
+        with _sun_pass_factor(PREVIOUS_SUN_PASS_SPP_FACTOR):
+            _, probe_cpu_s = _render(
+                _with(spec, spp=probe_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
+            )
+            raw_spp = max(1, round(probe_spp * cpu_s / probe_cpu_s))
+            raw, raw_cpu_s = _render(
+                _with(spec, spp=raw_spp, denoise=False, sensor_noise=False), window_light="dome", threads=args.threads
+            )
         psnr_raw, _ = scores(reference, raw.rgb)
         ref_self, truth = float("nan"), float("nan")
         if passes >= 2:

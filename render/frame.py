@@ -45,13 +45,14 @@ import numpy as np
 
 from . import camera as cam
 from . import labels as labels_module
+from . import scene as scene_module
 from .backend import init_renderer
 from .denoise import DenoiserUnavailable, denoise
 from .images import write_image
 from .labels import thresholds_for_class
 from .reasons import contrast_reason
 from .rounding import round_floats
-from .scene import SUN_PASS_SPP_FACTOR, build_scene, render_label_and_aux, render_radiance, render_window_view
+from .scene import build_scene, render_label_and_aux, render_radiance, render_window_view
 from .spec import axis_rng, make_spec, spec_to_json
 from .visibility import instance_contrasts, noise_sigma_lightness
 
@@ -294,7 +295,7 @@ def render_frame(
         }
     )
     if built.sun_scene is not None:
-        render_info["sun_pass_spp"] = int(render["spp"]) * SUN_PASS_SPP_FACTOR
+        render_info["sun_pass_spp"] = int(render["spp"]) * scene_module.SUN_PASS_SPP_FACTOR
     if window_view is not None:
         render_info["outdoor_view"] = True
     timings["denoise"] = time.perf_counter() - start
