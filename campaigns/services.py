@@ -1231,6 +1231,10 @@ def include_frames(*, campaign_id: int, frame_ids: Iterable[int]) -> int:
     )
 
 
+# What makes a frame of a campaign in this status render again; completed and cancelled campaigns never do.
+RERENDER_HINT: dict[str, str] = {Status.DRAFT: "start it", Status.PAUSED: "resume it"}
+
+
 @transaction.atomic
 def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     """A new frame with the same layout, lighting and view coordinates and the same composition as a done one.
@@ -1240,9 +1244,15 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     fleet like any frame, so the campaign must be running (a paused campaign re-plans released frames).
     """
     campaign = lock_campaign(campaign_id)
-    if campaign.status != Status.RUNNING:
+    if campaign.status in (Status.COMPLETED, Status.CANCELLED):
         raise CampaignError(
-            f"campaign {campaign.name!r} is {campaign.status}; start or resume it to re-render "
+            f"campaign {campaign.name!r} is {campaign.status} and renders no more frames, so its frames cannot be "
+            "re-rendered; plan a new campaign to render more frames"
+        )
+    if campaign.status != Status.RUNNING:
+        hint = RERENDER_HINT.get(campaign.status, "start or resume it")
+        raise CampaignError(
+            f"campaign {campaign.name!r} is {campaign.status}; {hint} to re-render "
             "(frames render on the fleet only while it runs)"
         )
     try:

@@ -14,6 +14,8 @@ from decimal import Decimal
 from typing import TYPE_CHECKING, Any
 
 from django import forms
+from django.conf import settings
+from django.forms.utils import pretty_name
 
 from assets.models import Asset, ObjectClass
 from campaigns import services
@@ -230,6 +232,7 @@ class CampaignForm(forms.Form):
 
     def __init__(self, *args: Any, user: Any, campaign: Campaign | None = None, **kwargs: Any) -> None:
         super().__init__(*args, **kwargs)
+        _label_with_currency(self, *self.COST_FIELDS)
         self.campaign = campaign
         budget = campaign.budget if campaign else DEFAULT_BUDGET
         if campaign is not None:
@@ -509,6 +512,13 @@ def _asset_choice_label(asset: Asset) -> str:
     return f"{asset.object_class.name}: {asset.name}{owner}"
 
 
+def _label_with_currency(form: forms.Form, *names: str) -> None:
+    """ "Cost budget (EUR)": amounts are typed in ``settings.CURRENCY`` (the number is stored as typed)."""
+    for name in names:
+        field = form.fields[name]
+        field.label = f"{field.label or pretty_name(name)} ({settings.CURRENCY})"
+
+
 class CostBudgetForm(forms.Form):
     cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2)
 
@@ -570,6 +580,7 @@ class AssetUploadForm(forms.Form):
     def __init__(self, *args: Any, user: Any, **kwargs: Any) -> None:
         super().__init__(*args, **kwargs)
         _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
+        _label_with_currency(self, "creation_cost")
 
     def add_service_error(self, exc: Exception) -> None:
         """Put a service's error on the input it names (``name``, ``team``, ``object_class``, …), else on the form."""

@@ -41,6 +41,7 @@ from assets.models import Asset
 from campaigns import errors, selectors, services
 from campaigns.models import Campaign, Frame
 from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
+from dashboard.templatetags.money import currency, format_money
 from datasets import page_statistics
 from render.budget import FIELDS
 from render.images import write_image
@@ -138,7 +139,7 @@ def campaign_list_live(request: HttpRequest) -> JsonResponse:
                 "eta": _duration(row["eta_s"]) if row["eta_s"] is not None else "—",
             }
         )
-    return JsonResponse({"campaigns": out})
+    return JsonResponse({"campaigns": out, "currency": currency()})
 
 
 # --- planner -----------------------------------------------------------------------------------------------------
@@ -164,6 +165,7 @@ def _estimate(request: HttpRequest, form: CampaignForm) -> dict[str, Any] | None
         "instances_per_frame": est.instances_per_frame,
         "cpu_hours": round(est.cpu_hours, 3),
         "frame_cpu_s": round(est.frame_cpu_s, 3),
+        "price_per_cpu_hour": f"{d['price_per_cpu_hour']:.4f}",
         "compute_cost": f"{est.compute_cost:.4f}",
         "fixed_cost": f"{est.fixed_cost:.2f}",
         "total_cost": f"{est.total_cost:.2f}",
@@ -244,7 +246,9 @@ def campaign_edit(request: HttpRequest, campaign_id: int) -> HttpResponse:
                     field = exc.field if exc.field in budget_form.fields else None
                     budget_form.add_error(field, exc.message if field else str(exc))
                 else:
-                    messages.success(request, f"Cost budget set to {budget_form.cleaned_data['cost_budget']}.")
+                    messages.success(
+                        request, f"Cost budget set to {format_money(budget_form.cleaned_data['cost_budget'])}."
+                    )
                     return redirect("campaigns:detail", campaign_id=campaign.pk)
             return render(
                 request, "campaigns/edit_budget.html", {"campaign": campaign, "form": budget_form}, status=400
@@ -284,7 +288,7 @@ def estimate_json(request: HttpRequest) -> JsonResponse:
     if estimate is None:
         errors = {k: [str(e) for e in v] for k, v in form.errors.items()}
         return JsonResponse({"ok": False, "errors": errors})
-    return JsonResponse({"ok": True, "estimate": estimate})
+    return JsonResponse({"ok": True, "estimate": estimate, "currency": currency()})
 
 
 # --- campaign page -------------------------------------------------------------------------------------------------
@@ -364,6 +368,7 @@ def campaign_live(request: HttpRequest, campaign_id: int) -> JsonResponse:
     live["eta"] = _eta(live)
     if request.GET.get("coverage"):
         live["coverage"] = selectors.coverage_sample(campaign=campaign)
+    live["currency"] = currency()  # amounts stay numbers (as strings of digits); the page adds the code
     return JsonResponse(live)
 
 
@@ -375,11 +380,28 @@ ACTIONS = {
 }
 
 
+# Actions that cannot be undone ask first: a POST without ``confirm=yes`` changes nothing and shows a page whose
+# form posts again with it (no JavaScript needed).
+CONFIRMED_ACTIONS = {"cancel"}
+
+
 @require_POST
 def campaign_action(request: HttpRequest, campaign_id: int, action: str) -> HttpResponse:
     campaign = _campaign(request, campaign_id, role=PLANNER)
     if action not in ACTIONS:
         raise Http404("no such action")
+    if action in CONFIRMED_ACTIONS and request.POST.get("confirm") != "yes":
+        return _confirm_page(
+            request,
+            campaign,
+            title="Cancel campaign",
+            question=f"Cancel the campaign “{campaign.name}”?",
+            consequence="No more frames are sent and frames waiting in the queue are withdrawn. A cancelled "
+            "campaign cannot be started or resumed again; its done frames stay and can still be exported.",
+            action_url=reverse("campaigns:action", kwargs={"campaign_id": campaign.pk, "action": action}),
+            confirm_label="Yes, cancel the campaign",
+            keep_label="Keep it",
+        )
     function, done = ACTIONS[action]
     try:
         function(campaign_id=campaign.pk)
@@ -390,12 +412,32 @@ def campaign_action(request: HttpRequest, campaign_id: int, action: str) -> Http
     return redirect("campaigns:detail", campaign_id=campaign.pk)
 
 
+def _confirm_page(
+    request: HttpRequest, campaign: Campaign, *, ask_name: bool = False, error: str = "", status: int = 200, **text: str
+) -> HttpResponse:
+    context = {"c": campaign, "ask_name": ask_name, "error": error, **text}
+    return render(request, "campaigns/confirm.html", context, status=status)
+
+
 @require_POST
 def campaign_delete(request: HttpRequest, campaign_id: int) -> HttpResponse:
     campaign = _campaign(request, campaign_id, role=ADMIN)
-    if request.POST.get("confirm_name", "").strip() != campaign.name:
-        messages.error(request, "Type the campaign's name exactly to delete it.")
-        return redirect("campaigns:detail", campaign_id=campaign.pk)
+    typed = request.POST.get("confirm_name", "").strip()
+    if typed != campaign.name:
+        return _confirm_page(
+            request,
+            campaign,
+            title="Delete campaign",
+            question=f"Delete the campaign “{campaign.name}”?",
+            consequence="Deletes the campaign, its frames, instances and rendered files; this cannot be undone. "
+            "A running campaign must be paused or cancelled first.",
+            action_url=reverse("campaigns:delete", kwargs={"campaign_id": campaign.pk}),
+            confirm_label="Delete",
+            keep_label="Keep it",
+            ask_name=True,
+            error="Type the campaign's name exactly to delete it." if typed else "",
+            status=400 if typed else 200,
+        )
     try:
         services.delete_campaign(campaign_id=campaign.pk)
     except services.CampaignError as exc:

@@ -5,11 +5,12 @@ from __future__ import annotations
 from django.http import (
     Http404,
     HttpRequest,
+    HttpResponse,
     HttpResponseBadRequest,
     StreamingHttpResponse,
 )
 from django.http.response import HttpResponseBase
-from django.shortcuts import get_object_or_404
+from django.shortcuts import get_object_or_404, render
 from django.views.decorators.http import require_GET
 
 from campaigns.models import Campaign
@@ -26,13 +27,30 @@ from datasets.options import (
 from datasets.permissions import can_export
 from datasets.writer import stream_dataset_zip
 
+EXPORT_FIELDS = ("splits", "format", "rejected", "yolo_ignore", "background_below")
+
+
+def _wants_html(request: HttpRequest) -> bool:
+    return "text/html" in request.headers.get("Accept", "")
+
+
+def _form_with_error(request: HttpRequest, campaign: Campaign, message: str) -> HttpResponse:
+    """The download form again, with the message beside it and the values as they were entered (status 400)."""
+    values = {name: request.GET.get(name, "") for name in EXPORT_FIELDS}
+    if request.GET.get("accepted_only", "").lower() in ("1", "true", "yes", "on"):
+        values["rejected"] = "drop"
+    context = {"c": campaign, "export": values, "export_error": message}
+    return render(request, "datasets/export_error.html", context, status=400)
+
 
 @require_GET
 def download_dataset_zip(request: HttpRequest, campaign_id: int) -> HttpResponseBase:
     """``GET …/export.zip?splits=0.8,0.1,0.1&format=coco|yolo|both&rejected=ignore|label|drop&yolo_ignore=fill|skip|keep
     &background_below=16`` → the export, streamed (``accepted_only=1``, from before ignore regions: ``rejected=drop``).
 
-    Options are checked before the first byte is sent, so bad ones give a 400, not a broken download.
+    Options are checked before the first byte is sent, so bad ones give a 400, not a broken download: for a
+    browser (``Accept: text/html``, the campaign page's form) an HTML page with the form, the message and the values
+    as entered; for a script a one-line plain-text message.
     """
     campaign = get_object_or_404(Campaign.objects.select_related("owner"), pk=campaign_id)
     if not can_export(user=request.user, campaign=campaign):
@@ -51,7 +69,9 @@ def download_dataset_zip(request: HttpRequest, campaign_id: int) -> HttpResponse
             background_below_px_by_class=background_by_class,
         )
     except ExportError as exc:
-        return HttpResponseBadRequest(f"{exc}\n")
+        if _wants_html(request):
+            return _form_with_error(request, campaign, str(exc))
+        return HttpResponseBadRequest(f"{exc}\n", content_type="text/plain; charset=utf-8")
     response = StreamingHttpResponse(
         stream_dataset_zip(campaign=campaign, options=options), content_type="application/zip"
     )

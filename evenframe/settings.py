@@ -13,6 +13,7 @@ Two configurations, one code base:
 from __future__ import annotations
 
 import os
+import re
 import sys
 from datetime import timedelta
 from pathlib import Path
@@ -49,6 +50,16 @@ def env_number(name: str, default: float, *, minimum: float, whole: bool = False
     return number
 
 
+def env_currency(name: str, default: str) -> str:
+    """An ISO 4217 currency code (three capital letters, e.g. EUR, USD, CHF), refused at start-up otherwise."""
+    value = (os.environ.get(name) or "").strip() or default
+    if not re.fullmatch(r"[A-Z]{3}", value):
+        raise ImproperlyConfigured(
+            f"{name} must be an ISO 4217 code of three capital letters (e.g. EUR), got {value!r}"
+        )
+    return value
+
+
 _default_data_dir = BASE_DIR / "data"
 if "pytest" in sys.modules and not os.environ.get("EVENFRAME_DATA_DIR"):
     # A test run never shares the demo's database, broker folders or media: a running demo worker
@@ -59,6 +70,9 @@ MEDIA_ROOT = Path(os.environ.get("EVENFRAME_MEDIA_ROOT", DATA_DIR / "media")).re
 MEDIA_URL = "/media/"
 
 DEBUG = env_bool("EVENFRAME_DEBUG", False)
+# The currency every amount (budgets, spend, prices, asset costs) is in; pages show it beside each amount.
+# Amounts are stored as plain numbers: changing it relabels them, it converts nothing.
+CURRENCY = env_currency("EVENFRAME_CURRENCY", "EUR")
 _secret = os.environ.get("EVENFRAME_SECRET_KEY", "")
 if not _secret:
     if os.environ.get("DATABASE_URL", "").startswith("postgres") and not DEBUG:

@@ -42,6 +42,9 @@ echo "Evenframe is up in $(( $(date +%s) - started )) s: http://$HOST:$PORT/  (C
 setsid $PY manage.py asset_previews > "$LOGS/demo-previews.log" 2>&1 &
 pids+=($!)
 # Start (or resume) the demo campaign now that a worker is live, so dispatch is sized for it.
-$PY manage.py seed_demo --start | tail -1
-echo "progress: .venv/bin/python manage.py campaign status   (web: http://$HOST:$PORT/campaigns/)"
+# seed_demo's last line names the demo campaign's id: "progress: manage.py campaign status <id>".
+seeded=$($PY manage.py seed_demo --start)
+echo "$seeded" | grep -v '^progress: ' | tail -1 || true
+demo_id=$(echo "$seeded" | sed -n 's/^progress: manage.py campaign status \([0-9][0-9]*\)$/\1/p' | tail -1)
+echo "progress: $PY manage.py campaign status ${demo_id}   (web: http://$HOST:$PORT/campaigns/${demo_id:+$demo_id/})"
 wait "${pids[@]}"

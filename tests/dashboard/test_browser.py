@@ -117,6 +117,8 @@ def test_plan_start_watch_retry_and_browse(
     page.click("button:has-text('Pause')")
     page.wait_for_selector(".pill.status-paused")
     page.click("button:has-text('Cancel campaign')")
+    page.wait_for_selector("h1:has-text('Cancel campaign')")  # the confirmation page: nothing changed yet
+    page.click("button:has-text('Yes, cancel the campaign')")
     page.wait_for_selector(".pill.status-cancelled")
 
 

@@ -101,7 +101,7 @@ def test_planner_pauses_resumes_and_cancels(client, done_campaign, people, outbo
     page = client.get(reverse("campaigns:detail", args=[done_campaign.pk])).content.decode()
     assert "Pause" in page and "Delete this campaign" not in page
     for action, status in (("pause", "paused"), ("resume", "running"), ("cancel", "cancelled")):
-        response = client.post(reverse("campaigns:action", args=[done_campaign.pk, action]))
+        response = client.post(reverse("campaigns:action", args=[done_campaign.pk, action]), {"confirm": "yes"})
         assert response.status_code == 302
         done_campaign.refresh_from_db()
         assert done_campaign.status == status
@@ -119,7 +119,7 @@ def test_admin_deletes_only_with_the_name_and_not_while_running(client, done_cam
     assert Campaign.objects.filter(pk=done_campaign.pk).exists()
     response = client.post(url, {"confirm_name": done_campaign.name}, follow=True)
     assert "is running" in response.content.decode()
-    client.post(reverse("campaigns:action", args=[done_campaign.pk, "cancel"]))
+    client.post(reverse("campaigns:action", args=[done_campaign.pk, "cancel"]), {"confirm": "yes"})
     response = client.post(url, {"confirm_name": done_campaign.name})
     assert response.status_code == 302 and response["Location"] == reverse("campaigns:list")
     assert not Campaign.objects.filter(pk=done_campaign.pk).exists()
@@ -536,7 +536,7 @@ def test_rerender_queues_a_frame_with_the_same_coordinates(client, done_campaign
     # Paused: refused with a message.
     client.post(reverse("campaigns:action", args=[done_campaign.pk, "pause"]))
     response = client.post(reverse("campaigns:rerender", args=[done_campaign.pk, 1]), follow=True)
-    assert "start or resume it" in response.content.decode()
+    assert "resume it to re-render" in response.content.decode()
 
 
 # --- assets ----------------------------------------------------------------------------------------------------------

@@ -107,3 +107,23 @@ def test_campaign_page_offers_the_download_to_team_members(client, real_campaign
     client.force_login(_team_viewer(real_campaign, django_user_model, "cy"))
     page = client.get(reverse("campaigns:detail", kwargs={"campaign_id": real_campaign.pk}))
     assert page.status_code == 200 and link in page.content
+
+
+def test_bad_options_from_the_page_show_the_form_with_the_message_and_the_values(client, make_campaign, media_root):
+    campaign = make_campaign(name="form errors")
+    client.force_login(campaign.owner)
+    query = "splits=0.9,0.9,0.9&format=both&rejected=label&yolo_ignore=skip&background_below=16,chair%3D40"
+    response = client.get(_url(campaign.pk, query), HTTP_ACCEPT="text/html,application/xhtml+xml")
+    page = response.content.decode()
+    assert response.status_code == 400 and response["Content-Type"].startswith("text/html")
+    assert 'id="export-error"' in page and "splits: ratios must sum to 1" in page
+    assert 'name="splits" value="0.9,0.9,0.9"' in page and 'value="16,chair=40"' in page
+    assert '<option value="both" selected>' in page and '<option value="label" selected>' in page
+    assert '<option value="skip" selected>' in page and "Download dataset (.zip)" in page
+    assert reverse("campaigns:detail", args=[campaign.pk]) in page
+    # A script (no text/html in Accept) still gets the one-line message.
+    plain = client.get(_url(campaign.pk, query), HTTP_ACCEPT="*/*")
+    assert plain.status_code == 400 and plain.content.startswith(b"splits: ratios must sum to 1")
+    # The campaign page's card starts from the defaults, with no message.
+    detail = client.get(reverse("campaigns:detail", args=[campaign.pk])).content.decode()
+    assert 'name="splits" value="0.8,0.1,0.1"' in detail and 'id="export-error"' not in detail

@@ -73,9 +73,11 @@ class Command(BaseCommand):
         create.add_argument("--weight", type=int, default=1)
         create.add_argument("--seed", type=int, default=0)
         create.add_argument("--start", action="store_true", help="Start right after creating")
-        for action in ("start", "pause", "resume", "cancel", "status"):
+        for action in ("start", "pause", "resume", "cancel"):
             p = sub.add_parser(action, help=f"{action.capitalize()} a campaign.")
             p.add_argument("campaign", help="Campaign id or name")
+        status = sub.add_parser("status", help="Show a campaign's progress, spend and ETA (without one: list them).")
+        status.add_argument("campaign", nargs="?", help="Campaign id or name")
         budget = sub.add_parser("set-budget", help="Change a campaign's cost budget.")
         budget.add_argument("campaign")
         budget.add_argument("cost_budget")
@@ -94,9 +96,15 @@ class Command(BaseCommand):
                     f"{counts['dead']} dead, {counts['revoked']} revoked"
                 )
                 return
-            if action == "list":
-                for c in selectors.campaign_list():
+            if action == "list" or (action == "status" and not options.get("campaign")):
+                campaigns = list(selectors.campaign_list())
+                for c in campaigns:
                     self.stdout.write(f"{c.pk:4d}  {c.status:10s} {c.name}")
+                if action == "status":
+                    example = campaigns[0].pk if campaigns else "ID"
+                    self.stdout.write(
+                        "no campaigns yet" if not campaigns else f"status of one: manage.py campaign status {example}"
+                    )
                 return
             campaign = self._campaign(options["campaign"])
             if action == "status":

@@ -125,3 +125,5 @@ class Command(BaseCommand):
         if options["start"] and campaign.status == Campaign.Status.DRAFT:
             services.start_campaign(campaign_id=campaign.pk)
             self.stdout.write(f"started demo campaign {campaign.pk}")
+        # The last line names the id, for make demo's hint (scripts/demo.sh) and for people reading along.
+        self.stdout.write(f"progress: manage.py campaign status {campaign.pk}")

@@ -18,6 +18,19 @@
     return path.split(".").reduce(function (o, k) { return o == null ? undefined : o[k]; }, obj);
   }
   function text(v) { return v === null || v === undefined || v === "" ? "—" : String(v); }
+  /* Amounts arrive as plain numbers; an element with data-money="2" (or "4" for per-unit prices) shows them as
+   * "EUR 660.00", the code from <body data-currency>, as the server-side |money filter does. */
+  function currency() { return document.body.getAttribute("data-currency") || ""; }
+  function money(v, places) {
+    if (v === null || v === undefined || v === "") return "—";
+    var n = Number(v);
+    if (!isFinite(n)) return "—";
+    var code = currency();
+    return (code ? code + " " : "") + n.toFixed(places);
+  }
+  function show(el, v) {
+    el.textContent = el.hasAttribute("data-money") ? money(v, Number(el.getAttribute("data-money")) || 2) : text(v);
+  }
   /* Elements matching a constant selector, keyed by the value of one of their attributes. */
   function byAttribute(sel, attr, root) {
     var out = Object.create(null);
@@ -52,7 +65,7 @@
           if (!row) return;
           var cells = byAttribute("[data-field]", "data-field", row);
           ["status_label", "progress_pct", "spent", "frames_done", "eta"].forEach(function (k) {
-            if (cells[k]) cells[k].textContent = text(c[k]);
+            if (cells[k]) show(cells[k], c[k]);
           });
           if (cells.status_label) cells.status_label.className = "pill status-" + c.status;
           if (cells.progress_bar) cells.progress_bar.style.width = c.progress_pct + "%";
@@ -92,7 +105,7 @@
           if (k === "verdict") { el.replaceChildren(verdict(e)); return; }
           if (k === "fleet_time") { el.textContent = e.fleet_time || "no live worker"; return; }
           if (k === "instances_per_frame") { el.textContent = Math.round(e[k]); return; }
-          el.textContent = text(e[k]);
+          show(el, e[k]);
         });
       }).catch(function () { panel.classList.remove("loading"); });
     }
@@ -144,7 +157,7 @@
       annotations.push({ x: live.break_even_frames, yref: "paper", y: 0.92, xanchor: "right", text: "break-even at " + live.break_even_frames + " frames ", showarrow: false, font: { size: 11, color: MUTED } });
     }
     draw("chart-amortization", traces, { title: { text: "Amortization", font: { size: 13 }, x: 0.01 }, xaxis: { title: { text: "frames done" } },
-      yaxis: { title: { text: "cost per accepted instance" }, type: "log", dtick: 1 }, shapes: shapes, annotations: annotations, margin: { t: 44 } });
+      yaxis: { title: { text: "cost per accepted instance (" + currency() + ")" }, type: "log", dtick: 1 }, shapes: shapes, annotations: annotations, margin: { t: 44 } });
   }
   function costChart(live) {
     var s = live.series;
@@ -152,7 +165,7 @@
     draw("chart-cost", [{ type: "scatter", mode: "lines+markers", name: "compute cost per 1,000 frames", x: s.times,
       y: s.cost_per_frame.map(function (v) { return v * 1000; }), line: { color: SLATE, width: 2 }, marker: { size: 4 } }],
       { title: { text: "Compute cost per 1,000 frames over time (" + s.bucket_frames + " frame" + (s.bucket_frames > 1 ? "s" : "") + " per point)", font: { size: 13 }, x: 0.01 },
-        showlegend: false, xaxis: { type: "date", tickformat: "%H:%M:%S" }, yaxis: { title: { text: "per 1,000 frames" }, rangemode: "tozero" }, margin: { t: 36 } });
+        showlegend: false, xaxis: { type: "date", tickformat: "%H:%M:%S" }, yaxis: { title: { text: currency() + " per 1,000 frames" }, rangemode: "tozero" }, margin: { t: 36 } });
   }
   function throughputChart(live) {
     var t = live.throughput;
@@ -204,7 +217,7 @@
         el.textContent = live.pause_reason ? live.pause_reason + (live.pause_detail ? ": " + live.pause_detail : "") : "";
         return;
       }
-      el.textContent = text(get(live, key));
+      show(el, get(live, key));
       if (key === "status_label") el.className = "pill status-" + live.status;
     });
     $all("[data-live-bar]").forEach(function (el) {
