@@ -717,11 +717,13 @@ def render_rgb(built: BuiltScene, *, seed: int = 0) -> np.ndarray:
 
 
 #: The sun pass takes this many times the frame's samples per pixel. Its light (a bright patch and the bounce from
-#: it, on textured floors) is the noisiest part of a sunlit frame. On the quality benchmark's worst sunlit seed (4),
-#: 320×240, 4 spp, denoised, against two 2048-spp reference passes (PSNR against the converged image estimated, see
-#: render.bench_quality.truth_psnr): factor 2 → 26.1 dB, 4 → 27.3 dB, 8 → 28.2 dB, for 5.2 / 7.4 / 11.6 CPU s per
-#: frame (one thread). 8 is the smallest power of two that meets the benchmark's 28 dB floor; only sunlit frames pay.
-SUN_PASS_SPP_FACTOR = 8
+#: it, on textured floors) is the noisiest part of a sunlit frame. Measured on the quality benchmark's worst sunlit
+#: seed (4), 320×240, 4 spp, denoised, against two 2048-spp reference passes (PSNR against the converged image
+#: estimated, see render.bench_quality.truth_psnr): factor 2 → 26.1 dB, 4 → 27.3 dB, 8 → 28.2 dB, for 5.2 / 7.4 /
+#: 11.6 CPU s per frame (one thread). At 640×480 a sunlit frame at 8× took about 60 CPU s against about 15 for a
+#: lamp- or window-lit one, which raised the mean CPU per default frame from about 0.30 to 0.47 of the previous
+#: pipeline's. 2 keeps the mean within a third; the worst sunlit seed then stays near 26 dB.
+SUN_PASS_SPP_FACTOR = 2
 
 
 def render_radiance(built: BuiltScene, *, seed: int = 0, aux: bool = False) -> RadiancePass:
