@@ -178,6 +178,38 @@ def campaign_create(request: HttpRequest, payload: schemas.CampaignIn) -> Status
     return Status(201, _campaign_out(_campaign(request, campaign.pk)))
 
 
+@router.post("/campaigns/{campaign_id}/copy", response={201: schemas.CampaignOut, codes_4xx: schemas.ErrorOut})
+def campaign_copy(request: HttpRequest, campaign_id: int, payload: schemas.CampaignCopyIn) -> Status:
+    """A new draft with every setting of a campaign you can see (budget, quotas, money and run settings, assets),
+    in its team or another where you are a planner."""
+    source = _campaign(request, campaign_id)
+    team = None
+    if payload.team is not None:
+        team = teams_for(user=request.user, role=PLANNER).filter(pk=payload.team).first()
+        if team is None:
+            raise ApiError(
+                400, "team: not a team where you are a planner", {"team": "not a team where you are a planner"}
+            )
+    copy = services.copy_campaign(
+        campaign_id=source.pk, owner=request.user, name=payload.name, seed=payload.seed, team=team
+    )
+    return Status(201, _campaign_out(_campaign(request, copy.pk)))
+
+
+@router.post("/campaigns/{campaign_id}/extend", response={200: schemas.CampaignOut, codes_4xx: schemas.ErrorOut})
+def campaign_extend(request: HttpRequest, campaign_id: int, payload: schemas.CampaignExtendIn) -> dict[str, Any]:
+    """Raise targets or add classes to a running, paused or completed campaign (a completed one with a new unmet
+    quota becomes paused: resume it), and optionally set its cost budget; needs the planner role."""
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    targets: dict[str, int] = {}
+    for q in payload.quotas:
+        if q.class_name in targets:
+            raise ApiError(400, f"quota {q.class_name!r}: listed twice", {"quotas": f"{q.class_name!r} listed twice"})
+        targets[q.class_name] = q.target_accepted
+    services.extend_campaign(campaign_id=campaign.pk, targets=targets, cost_budget=payload.cost_budget)
+    return _campaign_out(_campaign(request, campaign.pk))
+
+
 # --- frames ---------------------------------------------------------------------------------------------------------
 
 

@@ -65,6 +65,24 @@ class CampaignIn(Schema):
     asset_ids: list[int] | None = Field(None, description="Omitted: the default assets of the quota classes")
 
 
+class CampaignCopyIn(Schema):
+    name: str | None = Field(None, description="Omitted: '<name> (copy)', or '(copy 2)' … when taken")
+    team: int | None = Field(None, description="Id of a team where you are a planner; omitted: the source's team")
+    seed: int | None = Field(
+        None, description="Omitted: the source's seed (the same scenes where the settings agree); another for new ones"
+    )
+
+
+class TargetIn(Schema):
+    class_name: str
+    target_accepted: int = Field(description="The new target: at least today's for a quoted class")
+
+
+class CampaignExtendIn(Schema):
+    quotas: list[TargetIn] = Field(default_factory=list, description="Raised targets and classes to add")
+    cost_budget: Decimal | None = Field(None, description="Omitted: the budget stays")
+
+
 class CampaignRowOut(Schema):
     id: int
     name: str

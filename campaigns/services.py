@@ -532,6 +532,174 @@ def set_cost_budget(*, campaign_id: int, cost_budget: Decimal | float | str) -> 
     return campaign
 
 
+# --- copy and extend -------------------------------------------------------------------------------
+
+
+def copy_name(*, campaign: Campaign) -> str:
+    """A name the campaign's team does not use yet for a copy: "<name> (copy)", then "(copy 2)", "(copy 3)" …"""
+    for n in range(1, 1000):
+        suffix = " (copy)" if n == 1 else f" (copy {n})"
+        name = campaign.name[: 200 - len(suffix)].rstrip() + suffix
+        if not Campaign.objects.filter(team_id=campaign.team_id, name=name).exists():
+            return name
+    raise CampaignError("every copy name up to (copy 999) is taken; give the copy a name", field="name")
+
+
+def source_quotas(*, campaign: Campaign) -> list[QuotaInput]:
+    """A campaign's quotas as inputs for a new plan (targets and their own thresholds)."""
+    return [
+        QuotaInput(q.object_class.name, q.target_accepted, q.min_visible_fraction, q.min_box_px, q.min_contrast)
+        for q in campaign.quotas.select_related("object_class").order_by("object_class__name")
+    ]
+
+
+@transaction.atomic
+def copy_campaign(
+    *, campaign_id: int, owner: Any, name: str | None = None, seed: int | None = None, team: Any = None
+) -> Campaign:
+    """A new draft with every setting of campaign ``campaign_id``: budget, quotas with their thresholds, money and
+    run settings, assets, description. ``name`` defaults to :func:`copy_name`; ``seed`` to the source's (the same
+    seed renders the same scenes at the same coordinates; give another for new ones); ``team`` to the source's.
+
+    Checked like :func:`create_campaign` (the owner plans in the team, the name is free, the assets are usable
+    by the team); nothing is written on bad input."""
+    try:
+        source = Campaign.objects.get(pk=campaign_id)
+    except (Campaign.DoesNotExist, TypeError, ValueError) as exc:
+        raise CampaignError(f"campaign {campaign_id} does not exist") from exc
+    campaign = create_campaign(
+        owner=owner,
+        team=team if team is not None else source.team,
+        name=copy_name(campaign=source) if name is None else name,
+        quotas=source_quotas(campaign=source),
+        budget=source.budget,
+        cost_budget=source.cost_budget,
+        price_per_cpu_hour=source.price_per_cpu_hour,
+        setup_cost=source.setup_cost,
+        manual_labelling_rate_per_hour=source.manual_labelling_rate_per_hour,
+        weight=source.weight,
+        seed=source.seed if seed is None else seed,
+        max_attempts=source.max_attempts,
+        asset_ids=list(source.assets.values_list("pk", flat=True)),
+        description=source.description,
+    )
+    record_copy(campaign_id=campaign.pk, source=source)
+    return campaign
+
+
+def record_copy(*, campaign_id: int, source: Campaign) -> None:
+    """The new draft's history says which campaign it was copied from (the planner page's copy saves through
+    :func:`create_campaign`, since its settings may have been changed on the way)."""
+    _event(
+        campaign_id=campaign_id,
+        from_state=Status.DRAFT,
+        to_state=Status.DRAFT,
+        detail=f"copy of campaign {source.pk} ({source.name})",
+    )
+
+
+EXTENDABLE = (Status.RUNNING, Status.PAUSED, Status.COMPLETED)
+EXTENDED_DETAIL = "extended with new quotas; resume it to render them"
+
+
+def _clean_extension_targets(targets: Any) -> dict[str, int]:
+    if not isinstance(targets, Mapping):
+        raise CampaignError(f"expected class names and targets, got {type(targets).__name__}", field="quotas")
+    clean: dict[str, int] = {}
+    for name, target in targets.items():
+        if not isinstance(name, str) or not name or "\x00" in name:
+            raise CampaignError(f"class name must be text, got {name!r}", field="quotas")
+        problem = ""
+        if isinstance(target, bool) or not isinstance(target, int):
+            problem = f"target must be a whole number, got {target!r}"
+        elif not 0 <= target <= MAX_TARGET_ACCEPTED:
+            problem = f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {target}"
+        if problem:
+            raise CampaignError(problem, field="quota", class_name=name, column="target_accepted")
+        clean[name] = target
+    return clean
+
+
+@transaction.atomic
+def extend_campaign(
+    *, campaign_id: int, targets: Mapping[str, int], cost_budget: Decimal | float | str | None = None
+) -> Campaign:
+    """Raise the targets of a started campaign's quotas or add classes to it, and optionally change its cost budget.
+
+    ``targets`` maps class names to new targets: a quoted class's target may only go up (what it accepted stays
+    accepted), a class the campaign does not quote yet joins with the budget's acceptance thresholds and its
+    default assets (:func:`default_campaign_assets`); a target of 0 for a new class adds nothing. A running
+    campaign's planner picks up the new deficits at its next dispatch; a completed campaign with an unmet quota
+    again becomes paused (resume to render), a paused one stays paused. Drafts are edited instead, cancelled
+    campaigns stay cancelled. Nothing is written on bad input."""
+    campaign = lock_campaign(campaign_id)
+    if campaign.status == Status.DRAFT:
+        raise CampaignError(f"campaign {campaign.name!r} is a draft; edit its plan instead of extending it")
+    if campaign.status not in EXTENDABLE:
+        raise CampaignError(
+            f"campaign {campaign.name!r} is {campaign.status} and renders no more frames; copy it to plan more"
+        )
+    wanted = _clean_extension_targets(targets)
+    quotas = {
+        q.object_class.name: q for q in ClassQuota.objects.filter(campaign=campaign).select_related("object_class")
+    }
+    raised: dict[str, tuple[ClassQuota, int]] = {}
+    added: list[QuotaInput] = []
+    for name, target in wanted.items():
+        quota = quotas.get(name)
+        if quota is None:
+            if target > 0:
+                added.append(QuotaInput(name, target))
+        elif target < quota.target_accepted:
+            raise CampaignError(
+                f"an extension only raises targets; the target is {quota.target_accepted}",
+                field="quota",
+                class_name=name,
+                column="target_accepted",
+            )
+        elif target > quota.target_accepted:
+            raised[name] = (quota, target)
+    new_quotas = _clean_quota_inputs(quotas=added, normalized_budget=campaign.budget) if added else []
+    new_budget = None if cost_budget is None else _decimal(cost_budget, "cost_budget")
+    if not raised and not new_quotas and (new_budget is None or new_budget == campaign.cost_budget):
+        raise CampaignError(
+            "nothing to change: give a class a higher target, a new class or a new budget", field="quotas"
+        )
+    changes = [f"{name} {quota.target_accepted} → {target}" for name, (quota, target) in sorted(raised.items())]
+    changes += [f"{q.object_class.name} added with {q.target_accepted}" for q in new_quotas]
+    for quota, target in raised.values():
+        ClassQuota.objects.filter(pk=quota.pk).update(target_accepted=target)
+        ClassQuota.objects.filter(pk=quota.pk, accepted_count__lt=target).update(met_at=None)
+    if new_quotas:
+        _write_quotas(campaign=campaign, clean=new_quotas)
+        names = [q.object_class.name for q in new_quotas]
+        campaign.assets.add(*default_campaign_assets(team_id=campaign.team_id, class_names=names))
+    if new_budget is not None and new_budget != campaign.cost_budget:
+        changes.append(f"cost budget {campaign.cost_budget} → {new_budget}")
+        Campaign.objects.filter(pk=campaign.pk).update(cost_budget=new_budget)
+        campaign.cost_budget = new_budget
+    _event(
+        campaign_id=campaign.pk,
+        from_state=campaign.status,
+        to_state=campaign.status,
+        detail="extended: " + "; ".join(changes),
+    )
+    unmet = ClassQuota.objects.filter(campaign=campaign, accepted_count__lt=F("target_accepted")).exists()
+    if campaign.status == Status.COMPLETED and unmet:
+        set_status(
+            campaign,
+            Status.PAUSED,
+            reason=Campaign.PauseReason.USER,
+            detail=EXTENDED_DETAIL,
+            allowed_from=(Status.COMPLETED,),
+        )
+        Campaign.objects.filter(pk=campaign.pk).update(finished_at=None)
+        campaign.finished_at = None
+    elif campaign.status == Status.RUNNING:
+        messaging.request_dispatch_on_commit(campaign.pk)
+    return campaign
+
+
 # --- frames: created by the scheduler ----------------------------------------------------------------
 
 
@@ -1247,7 +1415,11 @@ def rerender_frame(*, campaign_id: int, frame_id: int) -> Frame:
     if campaign.status in (Status.COMPLETED, Status.CANCELLED):
         raise CampaignError(
             f"campaign {campaign.name!r} is {campaign.status} and renders no more frames, so its frames cannot be "
-            "re-rendered; plan a new campaign to render more frames"
+            + (
+                "re-rendered; extend it (a higher target or a new class) to render again, or copy it"
+                if campaign.status == Status.COMPLETED
+                else "re-rendered; copy it to plan more frames"
+            )
         )
     if campaign.status != Status.RUNNING:
         hint = RERENDER_HINT.get(campaign.status, "start or resume it")

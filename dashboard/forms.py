@@ -230,13 +230,21 @@ class CampaignForm(forms.Form):
     COST_FIELDS = ("cost_budget", "price_per_cpu_hour", "setup_cost", "manual_labelling_rate_per_hour")
     RUN_FIELDS = ("seed", "weight", "max_attempts")
 
-    def __init__(self, *args: Any, user: Any, campaign: Campaign | None = None, **kwargs: Any) -> None:
+    def __init__(
+        self, *args: Any, user: Any, campaign: Campaign | None = None, source: Campaign | None = None, **kwargs: Any
+    ) -> None:
+        """``campaign``: edit that draft. ``source``: a new campaign that starts as a copy of it (every setting,
+        a free copy name, its team preselected)."""
         super().__init__(*args, **kwargs)
         _label_with_currency(self, *self.COST_FIELDS)
         self.campaign = campaign
-        budget = campaign.budget if campaign else DEFAULT_BUDGET
+        prefill = campaign or source
+        budget = prefill.budget if prefill else DEFAULT_BUDGET
         if campaign is not None:
             del self.fields["team"]  # a campaign stays in its team
+        else:
+            _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
+        if prefill is not None:
             for key in (
                 "name",
                 "description",
@@ -248,10 +256,15 @@ class CampaignForm(forms.Form):
                 "weight",
                 "max_attempts",
             ):
-                self.fields[key].initial = getattr(campaign, key)
-        else:
-            _model_choice_field(self, "team").queryset = teams_for(user=user, role=PLANNER)
-        self._init_assets(user=user, campaign=campaign)
+                self.fields[key].initial = getattr(prefill, key)
+        if source is not None and campaign is None:
+            self.fields["name"].initial = services.copy_name(campaign=source)
+            self.fields["team"].initial = source.team_id
+            self.fields["seed"].help_text = (
+                f"Root seed: same seed, same frames. This is the seed of “{source.name}”: where the settings agree, "
+                "the copy renders the same scenes; give another seed for new ones."
+            )
+        self._init_assets(user=user, campaign=campaign, chosen=prefill)
         # Known sections in their order, then any section the render core adds (titled from its key), so a new
         # budget section shows up in the form instead of breaking it.
         self.budget_rows: dict[str, list[dict[str, Any]]] = {s: [] for s in SECTION_ORDER}
@@ -289,8 +302,8 @@ class CampaignForm(forms.Form):
                 row["names"] = [name]
             self.budget_rows[field.section].append(row)
         quotas = {}
-        if campaign is not None:
-            quotas = {q.object_class.name: q for q in campaign.quotas.select_related("object_class")}
+        if prefill is not None:
+            quotas = {q.object_class.name: q for q in prefill.quotas.select_related("object_class")}
         self.quota_rows: list[dict[str, Any]] = []
         contrast_field = FIELDS_BY_KEY["thresholds", "min_contrast"]
         for oc in ObjectClass.objects.order_by("name"):
@@ -341,10 +354,11 @@ class CampaignForm(forms.Form):
             )
             self.quota_rows.append({"object_class": oc, "names": names})
 
-    def _init_assets(self, *, user: Any, campaign: Campaign | None) -> None:
+    def _init_assets(self, *, user: Any, campaign: Campaign | None, chosen: Campaign | None) -> None:
         """Offer the shared procedural library and the uploads of the campaign's team (a new campaign: of every
-        team the user plans in; the service refuses another team's). Preselected: the campaign's own choice, or
-        the defaults of :func:`campaigns.services.default_campaign_assets` for every class."""
+        team the user plans in; the service refuses another team's). Preselected: the choice of ``chosen`` (the
+        campaign, or the copy's source), or the defaults of :func:`campaigns.services.default_campaign_assets`
+        for every class."""
         from django.db.models import Q
 
         team_ids = (
@@ -359,8 +373,8 @@ class CampaignForm(forms.Form):
         )
         field = _model_choice_field(self, "assets")
         field.queryset = queryset
-        if campaign is not None:
-            field.initial = list(campaign.assets.values_list("pk", flat=True))
+        if chosen is not None:
+            field.initial = list(chosen.assets.values_list("pk", flat=True))
         else:
             class_names = list(ObjectClass.objects.values_list("name", flat=True))
             owner_ids: Sequence[int | None] = team_ids or [None]  # None: the shared procedural library
@@ -521,6 +535,53 @@ def _label_with_currency(form: forms.Form, *names: str) -> None:
 
 class CostBudgetForm(forms.Form):
     cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2)
+
+
+class ExtendForm(forms.Form):
+    """New targets for a started campaign's quotas (never below today's) and classes it may add, plus its budget.
+
+    ``rows``: per class, its field, the target and accepted count today (None for a class not quoted yet)."""
+
+    cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2, label="Cost budget")
+
+    def __init__(self, *args: Any, campaign: Campaign, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        _label_with_currency(self, "cost_budget")
+        self.fields["cost_budget"].initial = campaign.cost_budget
+        quotas = {q.object_class.name: q for q in campaign.quotas.select_related("object_class")}
+        self.rows: list[dict[str, Any]] = []
+        for oc in ObjectClass.objects.order_by("name"):
+            quota = quotas.get(oc.name)
+            name = f"t_{oc.name}"
+            self.fields[name] = forms.IntegerField(
+                label=f"{oc.label or oc.name} target",
+                min_value=quota.target_accepted if quota else 0,
+                max_value=services.MAX_TARGET_ACCEPTED,
+                initial=quota.target_accepted if quota else 0,
+                required=False,
+                widget=forms.NumberInput(attrs={"class": "num", "step": 1}),
+            )
+            self.rows.append(
+                {
+                    "class_name": oc.name,
+                    "label": oc.label or oc.name,
+                    "field": self[name],
+                    "target": quota.target_accepted if quota else None,
+                    "accepted": quota.accepted_count if quota else None,
+                }
+            )
+        self._quoted = {name: q.target_accepted for name, q in quotas.items()}
+
+    def targets(self) -> dict[str, int]:
+        """Changed targets only: raised quotas and new classes with a target above 0."""
+        out = {}
+        for row in self.rows:
+            value = self.cleaned_data.get(f"t_{row['class_name']}")
+            if value is None:
+                continue
+            if value != self._quoted.get(row["class_name"], 0):
+                out[row["class_name"]] = value
+        return out
 
 
 class AssetUploadForm(forms.Form):

@@ -40,7 +40,7 @@ from assets import services as asset_services
 from assets.models import Asset
 from campaigns import errors, selectors, services
 from campaigns.models import Campaign, Frame
-from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, budget_value
+from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, ExtendForm, budget_value
 from dashboard.templatetags.money import currency, format_money
 from datasets import page_statistics
 from render.budget import FIELDS
@@ -189,6 +189,7 @@ def _planner_page(
     campaign: Campaign | None,
     estimate: dict[str, Any] | None,
     status: int = 200,
+    source: Campaign | None = None,
 ) -> HttpResponse:
     return render(
         request,
@@ -196,6 +197,7 @@ def _planner_page(
         {
             "form": form,
             "campaign": campaign,
+            "source": source,
             "estimate": estimate,
             "estimate_url": reverse("campaigns:estimate"),
         },
@@ -275,6 +277,62 @@ def campaign_edit(request: HttpRequest, campaign_id: int) -> HttpResponse:
         return _planner_page(request, form, campaign=campaign, estimate=estimate, status=400)
     messages.success(request, "Plan saved.")
     return redirect("campaigns:detail", campaign_id=campaign.pk)
+
+
+def campaign_copy(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    """The planner form filled with every setting of a campaign the user may see; saving makes a new draft."""
+    source = _campaign(request, campaign_id)
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    if not teams_for(user=request.user, role=PLANNER).exists():
+        return render(request, "campaigns/no_team.html", status=403)
+    if request.method == "GET":
+        form = CampaignForm(user=request.user, source=source)
+        return _planner_page(request, form, campaign=None, estimate=None, source=source)
+    form = CampaignForm(request.POST, user=request.user, source=source)
+    estimate = _estimate(request, form)
+    if "preview" in request.POST or estimate is None:
+        status = 200 if estimate is not None or "preview" in request.POST else 400
+        return _planner_page(request, form, campaign=None, estimate=estimate, status=status, source=source)
+    try:
+        campaign = services.create_campaign(owner=request.user, team=form.cleaned_data["team"], **form.service_kwargs())
+    except services.CampaignError as exc:
+        form.add_service_error(exc)
+        return _planner_page(request, form, campaign=None, estimate=estimate, status=400, source=source)
+    services.record_copy(campaign_id=campaign.pk, source=source)
+    messages.success(request, f"Campaign “{campaign.name}” saved as a draft, a copy of “{source.name}”.")
+    return redirect("campaigns:detail", campaign_id=campaign.pk)
+
+
+def campaign_extend(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    """Raise a started campaign's targets, add classes, change its budget (:func:`services.extend_campaign`)."""
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    if campaign.status not in services.EXTENDABLE:
+        what = "edit its plan" if campaign.status == Campaign.Status.DRAFT else "copy it to plan more frames"
+        messages.error(request, f"A {campaign.get_status_display().lower()} campaign cannot be extended; {what}.")
+        return redirect("campaigns:detail", campaign_id=campaign.pk)
+    form = ExtendForm(request.POST or None, campaign=campaign)
+    if request.method == "POST" and form.is_valid():
+        try:
+            services.extend_campaign(
+                campaign_id=campaign.pk, targets=form.targets(), cost_budget=form.cleaned_data["cost_budget"]
+            )
+        except services.CampaignError as exc:
+            name = f"t_{exc.class_name}" if exc.class_name else exc.field
+            field = name if name in form.fields else None
+            form.add_error(field, exc.message if field else str(exc))
+        else:
+            campaign.refresh_from_db()
+            after: dict[str, str] = {
+                Campaign.Status.PAUSED: " It is paused: resume it to render the new quotas.",
+                Campaign.Status.RUNNING: " The planner takes the new quotas from the next frames on.",
+            }
+            messages.success(request, f"Campaign extended.{after.get(str(campaign.status), '')}")
+            return redirect("campaigns:detail", campaign_id=campaign.pk)
+    status = 400 if request.method == "POST" else 200
+    return render(request, "campaigns/extend.html", {"campaign": campaign, "form": form}, status=status)
 
 
 @never_cache

@@ -1,4 +1,4 @@
-"""``manage.py campaign create|start|pause|resume|cancel|status|tick|list``."""
+"""``manage.py campaign create|start|pause|resume|cancel|status|copy|extend|set-budget|tick|list``."""
 
 from __future__ import annotations
 
@@ -10,6 +10,7 @@ from django.core.management.base import BaseCommand, CommandError, CommandParser
 
 from campaigns import scheduler, selectors, services
 from campaigns.models import Campaign
+from evenframe.money import PER_UNIT_PLACES, format_money
 
 BAR_WIDTH = 30
 
@@ -81,6 +82,17 @@ class Command(BaseCommand):
         budget = sub.add_parser("set-budget", help="Change a campaign's cost budget.")
         budget.add_argument("campaign")
         budget.add_argument("cost_budget")
+        copy = sub.add_parser("copy", help="Copy a campaign's settings into a new draft.")
+        copy.add_argument("campaign", help="Campaign id or name")
+        copy.add_argument("--name", help="Name of the copy (default: '<name> (copy)')")
+        copy.add_argument("--seed", type=int, help="Root seed of the copy (default: the source's)")
+        copy.add_argument("--owner", required=True, help="Username of the copy's owner (a planner of its team)")
+        extend = sub.add_parser("extend", help="Raise quotas or add classes to a started campaign.")
+        extend.add_argument("campaign", help="Campaign id or name")
+        extend.add_argument(
+            "--quota", action="append", default=[], help="CLASS=NEW_TARGET; repeat per class (targets only go up)"
+        )
+        extend.add_argument("--cost-budget", help="New cost budget")
         sub.add_parser("tick", help="Take back lost frames, top up running campaigns, resend due retries.")
         sub.add_parser("list", help="List campaigns.")
 
@@ -109,6 +121,10 @@ class Command(BaseCommand):
             campaign = self._campaign(options["campaign"])
             if action == "status":
                 return self._status(campaign)
+            if action == "copy":
+                return self._copy(campaign, options)
+            if action == "extend":
+                return self._extend(campaign, options)
             if action == "set-budget":
                 services.set_cost_budget(campaign_id=campaign.pk, cost_budget=options["cost_budget"])
             else:
@@ -171,6 +187,31 @@ class Command(BaseCommand):
             services.start_campaign(campaign_id=campaign.pk)
             self.stdout.write(f"campaign {campaign.pk}: running")
 
+    def _copy(self, campaign: Campaign, options: dict) -> None:
+        user = get_user_model().objects.filter(username=options["owner"]).first()
+        if user is None:
+            raise CommandError(f"--owner: no user {options['owner']!r}")
+        copy = services.copy_campaign(campaign_id=campaign.pk, owner=user, name=options["name"], seed=options["seed"])
+        self.stdout.write(
+            f"created campaign {copy.pk} {copy.name!r} (draft), a copy of {campaign.pk} {campaign.name!r}"
+        )
+
+    def _extend(self, campaign: Campaign, options: dict) -> None:
+        targets: dict[str, int] = {}
+        for text in options["quota"]:
+            name, sep, value = text.partition("=")
+            if not sep or not name.strip() or not value.strip().isdigit():
+                raise CommandError(f"--quota {text!r}: expected CLASS=NEW_TARGET, e.g. clock=300")
+            targets[name.strip()] = int(value)
+        if not targets and options.get("cost_budget") is None:
+            raise CommandError("give --quota CLASS=NEW_TARGET (repeatable) or --cost-budget")
+        services.extend_campaign(campaign_id=campaign.pk, targets=targets, cost_budget=options.get("cost_budget"))
+        campaign.refresh_from_db()
+        quotas = ", ".join(
+            f"{q.object_class.name} {q.target_accepted}" for q in campaign.quotas.order_by("object_class__name")
+        )
+        self.stdout.write(f"campaign {campaign.pk} {campaign.name!r}: {campaign.status}; targets {quotas}")
+
     def _status(self, campaign: Campaign) -> None:
         s = selectors.campaign_summary(campaign=campaign)
         c = s.campaign
@@ -193,12 +234,14 @@ class Command(BaseCommand):
         w(f"  Per frame (median of recent): {median_cpu}, wall {median_wall}; total {s.cpu_s_spent:.1f} CPU s")
         budget_fraction = float(s.total_spent / c.cost_budget) if c.cost_budget else 0.0
         w(
-            f"  Spend: {s.total_spent:.4f} of budget {c.cost_budget} {progress_bar(int(budget_fraction * 1000), 1000)}"
-            f" {budget_fraction * 100:.1f}%  (fixed {s.fixed:.2f} + compute {s.compute_spent:.4f})"
+            f"  Spend: {format_money(s.total_spent)} of budget {format_money(c.cost_budget)} "
+            f"{progress_bar(int(budget_fraction * 1000), 1000)} {budget_fraction * 100:.1f}%  "
+            f"(fixed {format_money(s.fixed)} + compute {format_money(s.compute_spent, PER_UNIT_PLACES)})"
         )
         if s.amortized.per_accepted_instance is not None:
             w(
-                f"  Amortized: {s.amortized.per_frame:.4f} per frame, {s.amortized.per_accepted_instance:.4f} per "
+                f"  Amortized: {format_money(s.amortized.per_frame, PER_UNIT_PLACES)} per frame, "
+                f"{format_money(s.amortized.per_accepted_instance, PER_UNIT_PLACES)} per "
                 "accepted instance"
             )
         p = s.projection
@@ -206,19 +249,18 @@ class Command(BaseCommand):
             w("  Remaining: nothing — every quota is met")
         else:
             frames_left = p.frames_remaining if p.frames_remaining is not None else "unknown"
-            cost_left = f"{p.cost_remaining:.4f}" if p.cost_remaining is not None else "unknown"
+            cost_left = format_money(p.cost_remaining) if p.cost_remaining is not None else "unknown"
             w(
                 f"  Remaining: ≈ {frames_left} frames, ≈ {cost_left} compute, ETA {format_duration(p.seconds_remaining)}"
                 f" on {s.live_slots} live worker slot(s)"
             )
         m = s.manual
         if c.manual_labelling_rate_per_hour > Decimal(0):
-            refs = "; ".join(
-                f"{r.citation}: {r.seconds_per_instance:g} s for {r.what} ({r.note})" for r in m.references
-            )
+            refs = "; ".join(f"{r.citation}: {r.seconds_per_instance:g} s for {r.what}" for r in m.references)
             w(
-                f"  Manual labelling of {sum(q.target for q in s.quotas)} instances at {c.manual_labelling_rate_per_hour}"
-                f"/h: {m.cost_for_instances:.2f} ({m.seconds_per_instance:g} s per instance — {refs})"
+                f"  Manual labelling of {sum(q.target for q in s.quotas)} instances at "
+                f"{format_money(c.manual_labelling_rate_per_hour)}/h: {format_money(m.cost_for_instances)} "
+                f"({m.seconds_per_instance:g} s per instance — {refs})"
             )
             be = s.break_even_frames
             w(
