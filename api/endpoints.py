@@ -21,7 +21,7 @@ from assets.models import Asset
 from campaigns import selectors, services
 from campaigns.models import Campaign, Frame, Instance
 from evenframe.health import run_checks
-from teams.permissions import PLANNER, VIEWER, get_for_user_or_404, scope_to_user, teams_for
+from teams.permissions import PLANNER, VIEWER, get_for_user_or_404, has_role, scope_to_user, teams_for
 
 router = Router()
 
@@ -208,6 +208,50 @@ def campaign_extend(request: HttpRequest, campaign_id: int, payload: schemas.Cam
         targets[q.class_name] = q.target_accepted
     services.extend_campaign(campaign_id=campaign.pk, targets=targets, cost_budget=payload.cost_budget)
     return _campaign_out(_campaign(request, campaign.pk))
+
+
+def _notifications_out(request: HttpRequest, campaign: Campaign) -> dict[str, Any]:
+    campaign.refresh_from_db()
+    return {
+        "url": campaign.notify_url,
+        "emails": campaign.notify_emails.split(),
+        "failure_rate": campaign.notify_failure_rate,
+        "secret": campaign.notify_secret if has_role(user=request.user, team=campaign.team_id, role=PLANNER) else None,
+        "deliveries": [
+            {
+                "delivery_id": str(n.delivery_id),
+                "event": n.event,
+                "channel": n.channel,
+                "state": n.state,
+                "attempts": n.attempts,
+                "last_status_code": n.last_status_code,
+                "last_error": n.last_error,
+                "created_at": n.created_at.isoformat(),
+                "sent_at": n.sent_at.isoformat() if n.sent_at else None,
+            }
+            for n in selectors.recent_notifications(campaign=campaign, limit=50)
+        ],
+    }
+
+
+@router.get(
+    "/campaigns/{campaign_id}/notifications", response={200: schemas.NotificationsOut, codes_4xx: schemas.ErrorOut}
+)
+def notifications_read(request: HttpRequest, campaign_id: int) -> dict[str, Any]:
+    """Where the campaign's notifications go and its latest 50 deliveries (the secret only for planners)."""
+    return _notifications_out(request, _campaign(request, campaign_id))
+
+
+@router.post(
+    "/campaigns/{campaign_id}/notifications", response={200: schemas.NotificationsOut, codes_4xx: schemas.ErrorOut}
+)
+def notifications_set(request: HttpRequest, campaign_id: int, payload: schemas.NotificationsIn) -> dict[str, Any]:
+    """Set the webhook URL, e-mail addresses and failure alert share; a webhook gets its secret the first time."""
+    campaign = _campaign(request, campaign_id, role=PLANNER)
+    services.set_notifications(
+        campaign_id=campaign.pk, url=payload.url, emails=payload.emails, failure_rate=payload.failure_rate
+    )
+    return _notifications_out(request, campaign)
 
 
 # --- frames ---------------------------------------------------------------------------------------------------------

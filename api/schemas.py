@@ -83,6 +83,34 @@ class CampaignExtendIn(Schema):
     cost_budget: Decimal | None = Field(None, description="Omitted: the budget stays")
 
 
+class NotificationsIn(Schema):
+    url: str = Field("", description="Webhook URL (http or https); empty: no webhook")
+    emails: str = Field("", description="E-mail addresses separated by spaces or commas; empty: none")
+    failure_rate: float | None = Field(
+        None, description="Alert when this share (0–1) of the latest finished frames is dead; 0: off; omitted: kept"
+    )
+
+
+class DeliveryOut(Schema):
+    delivery_id: str
+    event: str
+    channel: str
+    state: str
+    attempts: int
+    last_status_code: int | None
+    last_error: str
+    created_at: str
+    sent_at: str | None
+
+
+class NotificationsOut(Schema):
+    url: str
+    emails: list[str]
+    failure_rate: float
+    secret: str | None = Field(description="The webhook's HMAC-SHA256 key; planners only")
+    deliveries: list[DeliveryOut]
+
+
 class CampaignRowOut(Schema):
     id: int
     name: str

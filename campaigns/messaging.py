@@ -18,6 +18,7 @@ from evenframe.celery import app
 log = logging.getLogger("evenframe.campaigns")
 
 TASK_NAME = "evenframe.render_frame"
+NOTIFY_TASK_NAME = "evenframe.deliver_notification"
 TASK_ID_PREFIX = "ef"
 
 _dispatcher: Callable[..., int] | None = None
@@ -76,3 +77,19 @@ def revoke_on_commit(task_ids: list[str]) -> None:
     """Revoke the messages of frames taken back, once the transaction commits."""
     if task_ids:
         transaction.on_commit(lambda: revoke_tasks(task_ids=task_ids))
+
+
+def send_notification(*, notification_id: int, countdown_s: float = 0.0) -> None:
+    """Put one notification delivery on the broker. Tests replace this to deliver in-process."""
+    try:
+        app.send_task(
+            NOTIFY_TASK_NAME,
+            kwargs={"notification_id": notification_id},
+            countdown=countdown_s if countdown_s > 0 else None,
+        )
+    except Exception:  # noqa: BLE001 - the sweep resends pending notifications whose message never left
+        log.warning("could not queue notification %s; the sweep sends it later", notification_id, exc_info=True)
+
+
+def send_notification_on_commit(*, notification_id: int, countdown_s: float = 0.0) -> None:
+    transaction.on_commit(lambda: send_notification(notification_id=notification_id, countdown_s=countdown_s))

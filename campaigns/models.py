@@ -71,6 +71,16 @@ class Campaign(models.Model):
     started_at = models.DateTimeField(null=True, blank=True)
     finished_at = models.DateTimeField(null=True, blank=True)
 
+    # Notifications (campaigns.notify): where to send them and when the failure alert last went out.
+    notify_url = models.CharField(max_length=500, blank=True, help_text="Webhook URL (http or https); empty: none")
+    notify_secret = models.CharField(max_length=64, blank=True, help_text="HMAC-SHA256 key of the webhook's signature")
+    notify_emails = models.CharField(max_length=1000, blank=True, help_text="E-mail addresses, space separated")
+    notify_failure_rate = models.FloatField(
+        default=0.2,
+        help_text="Alert when this share of the latest finished frames is dead (0 = no alert)",
+    )
+    failure_alert_at = models.DateTimeField(null=True, blank=True, help_text="When the failure alert went out")
+
     class Meta:
         ordering = ["-created_at"]
         constraints = [
@@ -78,6 +88,10 @@ class Campaign(models.Model):
             models.CheckConstraint(condition=models.Q(price_per_cpu_hour__gte=0), name="campaign_price_non_negative"),
             models.CheckConstraint(condition=models.Q(setup_cost__gte=0), name="campaign_setup_cost_non_negative"),
             models.CheckConstraint(condition=models.Q(weight__gte=1), name="campaign_weight_positive"),
+            models.CheckConstraint(
+                condition=models.Q(notify_failure_rate__gte=0) & models.Q(notify_failure_rate__lte=1),
+                name="campaign_notify_failure_rate_0_1",
+            ),
             models.UniqueConstraint(fields=["team", "name"], name="campaign_unique_name_per_team"),
         ]
 
@@ -236,3 +250,39 @@ class Instance(models.Model):
 
     def __str__(self) -> str:
         return f"frame {self.frame_id} instance {self.instance_id} ({self.object_class_id})"
+
+
+class Notification(models.Model):
+    """One notification to one channel (a webhook or the campaign's e-mail list), with its delivery attempts.
+
+    The payload is taken when the event happens; every attempt sends the same payload and delivery id."""
+
+    class Channel(models.TextChoices):
+        WEBHOOK = "webhook", "Webhook"
+        EMAIL = "email", "E-mail"
+
+    class State(models.TextChoices):
+        PENDING = "pending", "Pending"
+        SENT = "sent", "Sent"
+        FAILED = "failed", "Failed"
+
+    campaign = models.ForeignKey(Campaign, on_delete=models.CASCADE, related_name="notifications")
+    delivery_id = models.UUIDField(default=uuid.uuid4, unique=True, editable=False)
+    event = models.CharField(max_length=40)
+    channel = models.CharField(max_length=8, choices=Channel.choices)
+    target = models.CharField(max_length=1000, help_text="The URL or the addresses, as they were at the event")
+    payload = models.JSONField()
+    state = models.CharField(max_length=8, choices=State.choices, default=State.PENDING, db_index=True)
+    attempts = models.PositiveSmallIntegerField(default=0)
+    next_attempt_at = models.DateTimeField(null=True, blank=True)
+    last_status_code = models.PositiveSmallIntegerField(null=True, blank=True)
+    last_error = models.CharField(max_length=300, blank=True)
+    created_at = models.DateTimeField(default=timezone.now)
+    sent_at = models.DateTimeField(null=True, blank=True)
+
+    class Meta:
+        ordering = ["-created_at", "-pk"]
+        indexes = [models.Index(fields=["state", "next_attempt_at"], name="notification_due")]
+
+    def __str__(self) -> str:
+        return f"{self.event} → {self.channel} ({self.state})"

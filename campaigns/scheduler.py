@@ -376,6 +376,7 @@ def sweep() -> dict[str, int]:
                 ", ".join(f"frame id {r.frame_id} → {r.to_state}" for r in released),
             )
     counts["sent"] = dispatch()
+    counts["notifications"] = services.resend_due_notifications()
     return counts
 
 

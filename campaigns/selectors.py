@@ -13,7 +13,7 @@ from django.db.models import Count, QuerySet, Sum
 
 from campaigns import costs, planner
 from campaigns.errors import error_kind
-from campaigns.models import Campaign, ClassQuota, Frame
+from campaigns.models import Campaign, ClassQuota, Frame, Notification
 from campaigns.sampling import MAX_OBJECTS_PER_FRAME
 from fleet.models import live_workers
 from teams.permissions import scope_to_user
@@ -1158,3 +1158,19 @@ def statistics_frames(
                 rows.append(dict(zip(keys, pending[1:], strict=True)))
             pending = next(instance_rows, None)
         yield StatisticsFrame(index=index, output_dir=output_dir, instances=tuple(rows))
+
+
+# --- notifications ------------------------------------------------------------------------------------------------
+
+
+def notification_to_send(*, notification_id: int) -> Notification | None:
+    """A pending notification with its campaign (for the webhook secret), or None (sent, failed for good, gone)."""
+    return (
+        Notification.objects.select_related("campaign")
+        .filter(pk=notification_id, state=Notification.State.PENDING)
+        .first()
+    )
+
+
+def recent_notifications(*, campaign: Campaign, limit: int = 10) -> list[Notification]:
+    return list(Notification.objects.filter(campaign=campaign).order_by("-created_at", "-pk")[:limit])

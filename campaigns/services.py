@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import logging
 import math
+import secrets
 from collections import Counter
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import asdict, dataclass
@@ -29,14 +30,16 @@ from datetime import timedelta
 from decimal import Decimal
 from typing import Any, NamedTuple
 
+from django.conf import settings as django_settings
 from django.db import transaction
 from django.db.models import F, Q, QuerySet
 from django.db.models.functions import Coalesce
+from django.urls import reverse
 from django.utils import timezone
 
 from assets.models import Asset, ObjectClass
-from campaigns import costs, errors, messaging, planner, selectors
-from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance
+from campaigns import costs, errors, messaging, notify, planner, selectors
+from campaigns.models import Campaign, ClassQuota, Frame, FrameEvent, Instance, Notification
 from evenframe.inputs import DEFAULT_MONEY_MAXIMUM, InputError, clean_amount, clean_name, clean_text, name_guard
 from render.budget import FIELDS_BY_KEY, BudgetError, normalize_budget
 from teams.models import Team
@@ -458,6 +461,9 @@ def set_status(campaign: Campaign, to: str, *, reason: str = "", detail: str = "
     )
     for key, value in fields.items():
         setattr(campaign, key, value)
+    event = _STATUS_EVENTS.get((to, reason))
+    if event is not None:
+        queue_notification(campaign=campaign, event=event, detail=detail)
 
 
 def revoke_waiting_frames(campaign: Campaign, *, detail: str, states: Sequence[str] = (State.QUEUED,)) -> list[str]:
@@ -502,6 +508,7 @@ def resume_campaign(*, campaign_id: int) -> Campaign:
         if not selectors.can_afford_next_frame(campaign=campaign):
             raise CampaignError("the next frame would still take spend over the cost budget; raise the budget first")
     set_status(campaign, Status.RUNNING, allowed_from=(Status.PAUSED,))
+    Campaign.objects.filter(pk=campaign.pk).update(failure_alert_at=None)  # a resumed campaign may alert again
     messaging.request_dispatch_on_commit(campaign.pk)
     return campaign
 
@@ -1204,7 +1211,207 @@ def record_failure(
         wall_s_spent=F("wall_s_spent") + wall_s,
         compute_cost_spent=F("compute_cost_spent") + cost,
     )
+    if dead:
+        _alert_if_failing(campaign)
     return to_state
+
+
+# --- notifications ---------------------------------------------------------------------------------------------
+
+# Status changes that notify: (to, pause reason) → event (campaigns.notify.EVENTS).
+_STATUS_EVENTS: dict[tuple[str, str], str] = {
+    (Status.COMPLETED, ""): "campaign.completed",
+    (Status.PAUSED, Campaign.PauseReason.BUDGET): "campaign.paused_budget",
+    (Status.PAUSED, Campaign.PauseReason.FAILURES): "campaign.paused_failures",
+}
+# The failure alert looks at the latest finished frames, once enough have finished to say something.
+FAILURE_ALERT_WINDOW = 50
+FAILURE_ALERT_MIN_FRAMES = 10
+
+
+def _notification_payload(campaign: Campaign, *, event: str, detail: str) -> dict[str, Any]:
+    fresh = Campaign.objects.select_related("team").get(pk=campaign.pk)
+    base = str(getattr(django_settings, "PUBLIC_URL", "") or "").rstrip("/")
+    spent = costs.money(selectors.fixed_cost(campaign=fresh) + fresh.compute_cost_spent)
+    return {
+        "event": event,
+        "occurred_at": timezone.now().isoformat(),
+        "detail": detail,
+        "campaign": {
+            "id": fresh.pk,
+            "uid": str(fresh.uid),
+            "name": fresh.name,
+            "team": fresh.team.name,
+            "status": fresh.status,
+            "pause_reason": fresh.pause_reason,
+            "frames_done": fresh.frames_done,
+            "frames_dead": fresh.frames_dead,
+            "instances_accepted": fresh.instances_accepted,
+            "spent": f"{spent:.2f}",
+            "cost_budget": f"{fresh.cost_budget:.2f}",
+            "currency": str(django_settings.CURRENCY),
+            "url": f"{base}{reverse('campaigns:detail', args=[fresh.pk])}" if base else "",
+        },
+        "quotas": [
+            {"class_name": name, "target": target, "accepted": accepted}
+            for name, target, accepted in ClassQuota.objects.filter(campaign=fresh)
+            .order_by("object_class__name")
+            .values_list("object_class__name", "target_accepted", "accepted_count")
+        ],
+    }
+
+
+def queue_notification(*, campaign: Campaign, event: str, detail: str = "") -> list[Notification]:
+    """One notification per channel the campaign has (webhook, e-mail), sent by the fleet after commit."""
+    if event not in notify.EVENTS:
+        raise ValueError(f"unknown notification event {event!r}")
+    fresh = Campaign.objects.filter(pk=campaign.pk).values("notify_url", "notify_emails").first()
+    if fresh is None or not (fresh["notify_url"] or fresh["notify_emails"]):
+        return []
+    payload = _notification_payload(campaign, event=event, detail=detail)
+    channels = [
+        (Notification.Channel.WEBHOOK, fresh["notify_url"]),
+        (Notification.Channel.EMAIL, fresh["notify_emails"]),
+    ]
+    rows = [
+        Notification.objects.create(
+            campaign_id=campaign.pk, event=event, channel=channel, target=target, payload=payload
+        )
+        for channel, target in channels
+        if target
+    ]
+    for row in rows:
+        messaging.send_notification_on_commit(notification_id=row.pk)
+    return rows
+
+
+def _alert_if_failing(campaign: Campaign) -> None:
+    """Once per run: notify when the dead share of the latest finished frames reaches the campaign's threshold."""
+    row = Campaign.objects.filter(pk=campaign.pk).values("notify_failure_rate", "failure_alert_at").get()
+    threshold = row["notify_failure_rate"]
+    if not threshold or row["failure_alert_at"] is not None:
+        return
+    latest = list(
+        Frame.objects.filter(campaign=campaign, state__in=(State.DONE, State.DEAD))
+        .order_by("-finished_at", "-pk")
+        .values_list("state", flat=True)[:FAILURE_ALERT_WINDOW]
+    )
+    if len(latest) < FAILURE_ALERT_MIN_FRAMES:
+        return
+    dead = sum(1 for s in latest if s == State.DEAD)
+    share = dead / len(latest)
+    if share < threshold:
+        return
+    if Campaign.objects.filter(pk=campaign.pk, failure_alert_at__isnull=True).update(failure_alert_at=timezone.now()):
+        queue_notification(
+            campaign=campaign,
+            event="campaign.failure_rate",
+            detail=f"{dead} of the latest {len(latest)} finished frames are dead ({share:.0%} ≥ {threshold:.0%})",
+        )
+
+
+@transaction.atomic
+def set_notifications(*, campaign_id: int, url: Any = "", emails: Any = "", failure_rate: Any = None) -> Campaign:
+    """Where a campaign's notifications go: a webhook URL, e-mail addresses, and the failure-alert threshold
+    (a share 0–1; 0 turns the alert off; None keeps it). A webhook gets a signing secret the first time one is
+    set. Nothing is written on bad input."""
+    campaign = lock_campaign(campaign_id)
+    try:
+        clean_url = notify.clean_webhook_url(url)
+    except notify.NotifyError as exc:
+        raise CampaignError(str(exc), field="notify_url") from exc
+    try:
+        clean_emails = notify.clean_emails(emails)
+    except notify.NotifyError as exc:
+        raise CampaignError(str(exc), field="notify_emails") from exc
+    rate = campaign.notify_failure_rate
+    if failure_rate is not None:
+        rate = _finite(failure_rate, "failure alert share", field="notify_failure_rate")
+        if not 0.0 <= rate <= 1.0:
+            raise CampaignError(f"must be a share between 0 and 1, got {rate:g}", field="notify_failure_rate")
+    fields: dict[str, Any] = {
+        "notify_url": clean_url,
+        "notify_emails": " ".join(clean_emails),
+        "notify_failure_rate": rate,
+    }
+    if clean_url and not campaign.notify_secret:
+        fields["notify_secret"] = _new_secret()
+    Campaign.objects.filter(pk=campaign.pk).update(**fields)
+    _event(
+        campaign_id=campaign.pk,
+        from_state=campaign.status,
+        to_state=campaign.status,
+        detail=f"notifications: webhook {'on' if clean_url else 'off'}, {len(clean_emails)} e-mail address(es), "
+        + (f"failure alert at {rate:.0%}" if rate else "failure alert off"),
+    )
+    campaign.refresh_from_db()
+    return campaign
+
+
+def _new_secret() -> str:
+    return secrets.token_hex(32)
+
+
+@transaction.atomic
+def rotate_notification_secret(*, campaign_id: int) -> Campaign:
+    """A new signing secret (the old one stops verifying at once)."""
+    campaign = lock_campaign(campaign_id)
+    Campaign.objects.filter(pk=campaign.pk).update(notify_secret=_new_secret())
+    _event(
+        campaign_id=campaign.pk, from_state=campaign.status, to_state=campaign.status, detail="webhook secret rotated"
+    )
+    campaign.refresh_from_db()
+    return campaign
+
+
+@transaction.atomic
+def send_test_notification(*, campaign_id: int) -> list[Notification]:
+    campaign = lock_campaign(campaign_id)
+    if not (campaign.notify_url or campaign.notify_emails):
+        raise CampaignError("set a webhook URL or an e-mail address first", field="notify_url")
+    return queue_notification(
+        campaign=campaign, event="test", detail="sent from the campaign page to check the receiver"
+    )
+
+
+@transaction.atomic
+def record_notification_attempt(*, notification_id: int, attempt: notify.Attempt) -> str:
+    """Count one delivery attempt: sent, retried later with backoff, or failed for good; the new state."""
+    row = Notification.objects.select_for_update().filter(pk=notification_id).first()
+    if row is None or row.state != Notification.State.PENDING:
+        return row.state if row is not None else "gone"
+    attempts = row.attempts + 1
+    now = timezone.now()
+    fields: dict[str, Any] = {
+        "attempts": attempts,
+        "last_status_code": attempt.status_code,
+        "last_error": attempt.error[: notify.ERROR_TEXT_LIMIT],
+    }
+    if attempt.ok:
+        fields.update(state=Notification.State.SENT, sent_at=now, next_attempt_at=None)
+    elif attempts >= notify.MAX_ATTEMPTS:
+        fields.update(state=Notification.State.FAILED, next_attempt_at=None)
+    else:
+        delay = notify.retry_delay_s(attempts)
+        fields.update(next_attempt_at=now + timedelta(seconds=delay))
+        messaging.send_notification_on_commit(notification_id=row.pk, countdown_s=delay)
+    Notification.objects.filter(pk=row.pk).update(**fields)
+    return str(fields.get("state", Notification.State.PENDING))
+
+
+def resend_due_notifications(*, overdue_s: float = 120.0) -> int:
+    """Pending notifications whose next attempt is long overdue (its message was lost: broker down, worker killed
+    before it acknowledged) are sent again; the sweep calls this. Delivery ids keep repeats recognisable."""
+    cutoff = timezone.now() - timedelta(seconds=overdue_s)
+    due = list(
+        Notification.objects.filter(state=Notification.State.PENDING)
+        .filter(Q(next_attempt_at__lt=cutoff) | Q(next_attempt_at__isnull=True, created_at__lt=cutoff))
+        .values_list("pk", flat=True)[:100]
+    )
+    for pk in due:
+        Notification.objects.filter(pk=pk).update(next_attempt_at=timezone.now())
+        messaging.send_notification(notification_id=pk)
+    return len(due)
 
 
 # --- dashboard actions (added for the dashboard, issue 5) ------------------------------------------------------

@@ -16,9 +16,12 @@ from pathlib import Path
 from typing import Any, TypeVar
 
 from celery import shared_task
+from django.conf import settings
+from django.core.mail import send_mail
 
-from campaigns import planner, scheduler, selectors, services
+from campaigns import notify, planner, scheduler, selectors, services
 from campaigns.frame_files import frame_output_dir, publish_frame_dir, remove_partial_folders
+from campaigns.models import Notification
 from fleet import faults
 
 log = logging.getLogger("evenframe.workers")
@@ -189,3 +192,47 @@ def _dispatch_after(scheduler: Any, campaign_id: int) -> None:
         scheduler.dispatch(campaign_id=campaign_id)
     except Exception:  # noqa: BLE001 - the frame's own outcome is recorded; topping up can wait for the sweep
         log.warning("dispatch after campaign %s's frame failed; the next sweep tops up", campaign_id, exc_info=True)
+
+
+@shared_task(name="evenframe.deliver_notification", ignore_result=True)
+def deliver_notification(notification_id: int) -> str:
+    """One delivery attempt of a notification (webhook POST or e-mail); the service counts it and schedules the
+    retry. Returns the notification's state after the attempt."""
+    return deliver(notification_id=notification_id)
+
+
+def deliver(*, notification_id: int) -> str:
+    """The task's body, callable in-process (tests, ``manage.py campaign tick``)."""
+    row = selectors.notification_to_send(notification_id=notification_id)
+    if row is None:
+        return "not pending"
+    if row.channel == Notification.Channel.WEBHOOK:
+        attempt = _post(row)
+    else:
+        attempt = _mail(row)
+    if not attempt.ok:
+        log.warning("notification %s (%s, %s) failed: %s", row.pk, row.event, row.channel, attempt.error)
+    return services.record_notification_attempt(notification_id=row.pk, attempt=attempt)
+
+
+def _post(row: Notification) -> notify.Attempt:
+    if settings.WEBHOOK_BLOCK_PRIVATE:
+        refused = notify.private_target(row.target)
+        if refused:
+            return notify.Attempt(False, None, f"refused: {refused} (EVENFRAME_WEBHOOK_BLOCK_PRIVATE)")
+    return notify.post_webhook(
+        url=row.target,
+        event=row.event,
+        delivery_id=str(row.delivery_id),
+        secret=row.campaign.notify_secret,
+        payload=row.payload,
+    )
+
+
+def _mail(row: Notification) -> notify.Attempt:
+    subject, body = notify.email_text(row.payload)
+    try:
+        send_mail(subject, body, None, row.target.split(), fail_silently=False)
+    except Exception as exc:  # noqa: BLE001 - any mail failure (SMTP, DNS, refused) is a failed attempt to retry
+        return notify.Attempt(False, None, f"{type(exc).__name__}: {exc}"[: notify.ERROR_TEXT_LIMIT])
+    return notify.Attempt(True, None, "")

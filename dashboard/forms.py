@@ -537,6 +537,32 @@ class CostBudgetForm(forms.Form):
     cost_budget = forms.DecimalField(min_value=0, max_digits=14, decimal_places=2)
 
 
+class NotificationForm(forms.Form):
+    """Where a campaign's notifications go (checked again by :func:`campaigns.services.set_notifications`)."""
+
+    notify_url = forms.CharField(
+        required=False,
+        max_length=500,
+        label="Webhook URL",
+        help_text="http:// or https://; each event is POSTed as signed JSON. Empty: no webhook.",
+        widget=forms.URLInput(attrs={"placeholder": "https://ci.example.org/hooks/frames", "size": 60}),
+    )
+    notify_emails = forms.CharField(
+        required=False,
+        max_length=1000,
+        label="E-mail addresses",
+        help_text="Separated by spaces or commas; up to 10. Empty: no e-mail.",
+        widget=forms.TextInput(attrs={"size": 60}),
+    )
+    failure_alert_pct = forms.FloatField(
+        min_value=0,
+        max_value=100,
+        label="Failure alert (%)",
+        help_text="Notify when this share of the latest 50 finished frames (from 10 on) is dead; 0 turns it off.",
+        widget=forms.NumberInput(attrs={"class": "num", "step": "any", "min": 0, "max": 100}),
+    )
+
+
 class ExtendForm(forms.Form):
     """New targets for a started campaign's quotas (never below today's) and classes it may add, plus its budget.
 

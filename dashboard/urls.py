@@ -16,6 +16,7 @@ urlpatterns = [
     path("<int:campaign_id>/edit/", views.campaign_edit, name="edit"),
     path("<int:campaign_id>/copy/", views.campaign_copy, name="copy"),
     path("<int:campaign_id>/extend/", views.campaign_extend, name="extend"),
+    path("<int:campaign_id>/notifications/", views.campaign_notifications, name="notifications"),
     path("<int:campaign_id>/live.json", views.campaign_live, name="live"),
     path("<int:campaign_id>/statistics/", views.campaign_statistics, name="statistics"),
     path("<int:campaign_id>/delete/", views.campaign_delete, name="delete"),

@@ -38,9 +38,16 @@ from api import services as api_services
 from assets import files as asset_files
 from assets import services as asset_services
 from assets.models import Asset
-from campaigns import errors, selectors, services
+from campaigns import errors, notify, selectors, services
 from campaigns.models import Campaign, Frame
-from dashboard.forms import AssetUploadForm, CampaignForm, CostBudgetForm, ExtendForm, budget_value
+from dashboard.forms import (
+    AssetUploadForm,
+    CampaignForm,
+    CostBudgetForm,
+    ExtendForm,
+    NotificationForm,
+    budget_value,
+)
 from dashboard.templatetags.money import currency, format_money
 from datasets import page_statistics
 from render.budget import FIELDS
@@ -333,6 +340,65 @@ def campaign_extend(request: HttpRequest, campaign_id: int) -> HttpResponse:
             return redirect("campaigns:detail", campaign_id=campaign.pk)
     status = 400 if request.method == "POST" else 200
     return render(request, "campaigns/extend.html", {"campaign": campaign, "form": form}, status=status)
+
+
+NOTIFICATION_ACTIONS = ("save", "rotate", "test")
+
+
+def campaign_notifications(request: HttpRequest, campaign_id: int) -> HttpResponse:
+    """Webhook, e-mail and failure alert of a campaign; its latest deliveries. Planners change them and see the
+    signing secret; viewers see where notifications go."""
+    campaign = _campaign(request, campaign_id)
+    roles = _roles(request, campaign)
+    if request.method not in ("GET", "POST"):
+        return HttpResponseNotAllowed(["GET", "POST"])
+    initial = {
+        "notify_url": campaign.notify_url,
+        "notify_emails": campaign.notify_emails,
+        "failure_alert_pct": round(100 * campaign.notify_failure_rate, 4),
+    }
+    form = NotificationForm(initial=initial)
+    status = 200
+    if request.method == "POST":
+        campaign = _campaign(request, campaign_id, role=PLANNER)
+        action = request.POST.get("action", "save")
+        try:
+            if action == "rotate":
+                services.rotate_notification_secret(campaign_id=campaign.pk)
+                messages.success(request, "New signing secret: update your receiver; the old one no longer verifies.")
+                return redirect("campaigns:notifications", campaign_id=campaign.pk)
+            if action == "test":
+                sent = services.send_test_notification(campaign_id=campaign.pk)
+                messages.success(request, f"Test notification queued on {len(sent)} channel(s); see the list below.")
+                return redirect("campaigns:notifications", campaign_id=campaign.pk)
+            if action not in NOTIFICATION_ACTIONS:
+                raise services.CampaignError(f"unknown action {action!r}")
+            form = NotificationForm(request.POST)
+            if form.is_valid():
+                services.set_notifications(
+                    campaign_id=campaign.pk,
+                    url=form.cleaned_data["notify_url"],
+                    emails=form.cleaned_data["notify_emails"],
+                    failure_rate=form.cleaned_data["failure_alert_pct"] / 100.0,
+                )
+                messages.success(request, "Notification settings saved.")
+                return redirect("campaigns:notifications", campaign_id=campaign.pk)
+            status = 400
+        except services.CampaignError as exc:
+            field = {"notify_failure_rate": "failure_alert_pct"}.get(exc.field, exc.field)
+            if field in form.fields and form.is_bound:
+                form.add_error(field, exc.message)
+            else:
+                messages.error(request, str(exc))
+            status = 400
+    context = {
+        "c": campaign,
+        "form": form,
+        "deliveries": selectors.recent_notifications(campaign=campaign, limit=20),
+        "events": notify.EVENTS,
+        **roles,
+    }
+    return render(request, "campaigns/notifications.html", context, status=status)
 
 
 @never_cache

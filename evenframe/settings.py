@@ -73,6 +73,21 @@ DEBUG = env_bool("EVENFRAME_DEBUG", False)
 # The currency every amount (budgets, spend, prices, asset costs) is in; pages show it beside each amount.
 # Amounts are stored as plain numbers: changing it relabels them, it converts nothing.
 CURRENCY = env_currency("EVENFRAME_CURRENCY", "EUR")
+# Where people reach the dashboard (e.g. https://frames.example.org), for links in notifications; empty: no links.
+PUBLIC_URL = os.environ.get("EVENFRAME_PUBLIC_URL", "").strip().rstrip("/")
+# Refuse webhook addresses that resolve inside this network (loopback, private, link-local) at send time.
+WEBHOOK_BLOCK_PRIVATE = os.environ.get("EVENFRAME_WEBHOOK_BLOCK_PRIVATE", "") in ("1", "true", "yes")
+# Notification e-mail: SMTP when EVENFRAME_EMAIL_HOST is set, otherwise written to the worker's log (console).
+EMAIL_HOST = os.environ.get("EVENFRAME_EMAIL_HOST", "")
+EMAIL_BACKEND = (
+    "django.core.mail.backends.smtp.EmailBackend" if EMAIL_HOST else "django.core.mail.backends.console.EmailBackend"
+)
+EMAIL_PORT = int(os.environ.get("EVENFRAME_EMAIL_PORT", "") or 25)
+EMAIL_HOST_USER = os.environ.get("EVENFRAME_EMAIL_USER", "")
+EMAIL_HOST_PASSWORD = os.environ.get("EVENFRAME_EMAIL_PASSWORD", "")
+EMAIL_USE_TLS = os.environ.get("EVENFRAME_EMAIL_TLS", "") in ("1", "true", "yes")
+EMAIL_TIMEOUT = 15
+DEFAULT_FROM_EMAIL = os.environ.get("EVENFRAME_EMAIL_FROM", "") or "evenframe@localhost"
 _secret = os.environ.get("EVENFRAME_SECRET_KEY", "")
 if not _secret:
     if os.environ.get("DATABASE_URL", "").startswith("postgres") and not DEBUG:

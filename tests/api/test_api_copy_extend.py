@@ -47,3 +47,18 @@ def test_extend_through_the_api(api, make_campaign, outbox):
     assert api("vera").post(f"/campaigns/{campaign.pk}/extend", {"cost_budget": "200"}).status_code == 403
     assert api("otto").post(f"/campaigns/{campaign.pk}/extend", {"cost_budget": "200"}).status_code == 404
     assert dict(campaign.quotas.values_list("object_class__name", "target_accepted")) == {"chair": 7, "ottoman": 2}
+
+
+def test_notification_settings_through_the_api(api, make_campaign):
+    campaign = make_campaign("cellar")
+    response = api("pia").post(
+        f"/campaigns/{campaign.pk}/notifications", {"url": "https://ci.example.org/hook", "failure_rate": 0.3}
+    )
+    assert response.status_code == 200, response.content
+    body = response.json()
+    assert body["url"] == "https://ci.example.org/hook" and body["failure_rate"] == 0.3 and len(body["secret"]) == 64
+    assert api("vera").get(f"/campaigns/{campaign.pk}/notifications").json()["secret"] is None
+    bad = api("pia").post(f"/campaigns/{campaign.pk}/notifications", {"url": "gopher://x"})
+    assert bad.status_code == 400 and "notify_url" in bad.json()["errors"]
+    assert api("vera").post(f"/campaigns/{campaign.pk}/notifications", {"url": ""}).status_code == 403
+    assert api("otto").get(f"/campaigns/{campaign.pk}/notifications").status_code == 404
