@@ -136,7 +136,16 @@ def _campaign_out(campaign: Campaign) -> dict[str, Any]:
         "quotas": [{**q, "yield_estimate": q["yield"]} for q in live["quotas"]],
         "spend": {
             key: live[key]
-            for key in ("spent", "spent_pct", "cost_budget", "fixed", "compute", "cost_remaining", "per_accepted")
+            for key in (
+                "spent",
+                "spent_pct",
+                "cost_budget",
+                "fixed",
+                "library_share",
+                "compute",
+                "cost_remaining",
+                "per_accepted",
+            )
         }
         | {"cpu_s": live["cpu_s"]},
         "frames_remaining": live["frames_remaining"],

@@ -55,7 +55,7 @@ class CampaignIn(Schema):
     budget: dict[str, Any] | None = Field(
         None, description="The randomization budget (render, variation, thresholds, room, …); omitted keys default"
     )
-    cost_budget: Decimal = Field(description="Most the campaign may spend, fixed costs included")
+    cost_budget: Decimal = Field(description="Most the campaign may spend: setup cost plus compute")
     price_per_cpu_hour: Decimal
     setup_cost: Decimal = Decimal(0)
     manual_labelling_rate_per_hour: Decimal = Decimal(0)
@@ -162,10 +162,14 @@ class QuotaProgressOut(Schema):
 
 
 class SpendOut(Schema):
-    spent: str = Field(description="Fixed costs plus compute")
+    spent: str = Field(description="What the budget pays: setup cost plus compute")
     spent_pct: float
     cost_budget: str
-    fixed: str
+    fixed: str = Field(description="The setup cost")
+    library_share: str = Field(
+        description="This campaign's share of its assets' creation costs, amortized over every frame of every "
+        "campaign that used them (reported, not charged to the budget)"
+    )
     compute: str
     cpu_s: float
     cost_remaining: str | None

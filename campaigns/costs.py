@@ -88,6 +88,20 @@ def money(value: Decimal | float | int) -> Decimal:
     return Decimal(str(value)).quantize(MONEY_PLACES, rounding=ROUND_HALF_UP)
 
 
+#: Throughput, one definition for the campaign headline and the worker table: done frames per hour over the
+#: last 10 minutes, counted over the time since the start when the campaign (or worker) started within them.
+THROUGHPUT_WINDOW_S = 600.0
+#: The shortest span a pace is computed over (one frame a second after the start is not 3,600 frames per hour).
+THROUGHPUT_MIN_SPAN_S = 60.0
+
+
+def frames_per_hour(*, frames: int, window_s: float, running_for_s: float | None) -> float:
+    """Done frames per hour: ``frames`` finished in the last ``window_s`` seconds over the time they had, the window
+    or, when the campaign or worker started within it, the time since the start (at least a minute)."""
+    span = window_s if running_for_s is None else min(window_s, max(running_for_s, 0.0))
+    return round(frames * 3600.0 / max(THROUGHPUT_MIN_SPAN_S, span), 1)
+
+
 def frame_compute_cost(*, cpu_s: float, price_per_cpu_hour: Decimal) -> Decimal:
     """Cost of one frame: CPU-hours × price per CPU-hour."""
     if cpu_s < 0:
@@ -98,6 +112,25 @@ def frame_compute_cost(*, cpu_s: float, price_per_cpu_hour: Decimal) -> Decimal:
 def fixed_cost(*, asset_creation_costs: Sequence[Decimal], setup_cost: Decimal) -> Decimal:
     """Creation cost of the assets used plus the campaign's setup cost."""
     return money(sum((Decimal(c) for c in asset_creation_costs), Decimal(0)) + Decimal(setup_cost))
+
+
+def library_share(*, creation_cost: Decimal, frames_here: int, frames_total: int) -> Decimal:
+    """A campaign's share of an asset's creation cost: the cost is the asset library's, spread evenly over every
+    frame, in every campaign, that used the asset, so a campaign bears ``creation × frames_here / frames_total``
+    and the shares of all campaigns add up to the creation cost. No frame yet: no share."""
+    if frames_here < 0 or frames_total < frames_here:
+        raise ValueError(f"frames here ({frames_here}) must be between 0 and the total ({frames_total})")
+    if frames_total == 0:
+        return money(0)
+    return money(Decimal(creation_cost) * frames_here / frames_total)
+
+
+def projected_library_share(*, creation_cost: Decimal, frames_so_far: int, frames_planned: int) -> Decimal:
+    """The share a plan would bear if it rendered ``frames_planned`` frames with the asset after the
+    ``frames_so_far`` other frames that used it (later campaigns lower it further)."""
+    return library_share(
+        creation_cost=creation_cost, frames_here=frames_planned, frames_total=frames_so_far + frames_planned
+    )
 
 
 def prior_frame_cpu_s(*, width_px: int, height_px: int, spp: int) -> float:

@@ -9,13 +9,15 @@ from dataclasses import dataclass
 from decimal import Decimal
 from typing import cast
 
-from django.db.models import Count, QuerySet, Sum
+from django.db.models import Count, Q, QuerySet, Sum
 
+from assets.models import Asset
 from campaigns import costs, planner
 from campaigns.errors import error_kind
-from campaigns.models import Campaign, ClassQuota, Frame, Notification
+from campaigns.models import Campaign, ClassQuota, Frame, Instance, Notification
 from campaigns.sampling import MAX_OBJECTS_PER_FRAME
 from fleet.models import live_workers
+from render.lights import SKY_CCT_K, SUN_CCT_K
 from teams.permissions import scope_to_user
 
 State = Frame.State
@@ -54,8 +56,70 @@ def committed_cost(*, campaign: Campaign, states: Sequence[str] = tuple(Frame.IN
 
 
 def fixed_cost(*, campaign: Campaign) -> Decimal:
-    creation = campaign.assets.aggregate(s=Sum("creation_cost"))["s"] or Decimal(0)
-    return costs.fixed_cost(asset_creation_costs=[creation], setup_cost=campaign.setup_cost)
+    """The campaign's own fixed cost, which its budget pays: its setup cost. The assets' creation costs belong to
+    the asset library and reach a campaign only as its amortized share (:func:`library_shares`)."""
+    return costs.fixed_cost(asset_creation_costs=[], setup_cost=campaign.setup_cost)
+
+
+def _asset_instances(asset: Asset) -> Q:
+    """The instances an asset made: a procedural generator every instance of its class the render core drew
+    from it (asset ids ``<class>/<variant>``), an upload those naming it (``user/<asset pk>``)."""
+    if asset.kind == Asset.Kind.PROCEDURAL:
+        return Q(object_class_id=asset.object_class_id) & ~Q(asset_id__startswith="user/")
+    return Q(asset_id=f"user/{asset.pk}")
+
+
+def asset_usage(*, assets: Sequence[Asset]) -> dict[int, dict[int, tuple[int, int]]]:
+    """Per asset pk, per campaign id (every campaign of every team): (frames, instances) the asset appears in.
+
+    One aggregate query per asset."""
+    out: dict[int, dict[int, tuple[int, int]]] = {}
+    for asset in assets:
+        rows = (
+            Instance.objects.filter(_asset_instances(asset))
+            .values("campaign_id")
+            .annotate(f=Count("frame", distinct=True), n=Count("pk"))
+            .values_list("campaign_id", "f", "n")
+        )
+        out[asset.pk] = {campaign_id: (frames, instances) for campaign_id, frames, instances in rows}
+    return out
+
+
+@dataclass(frozen=True)
+class AssetShare:
+    """A campaign's share of one asset's creation cost (:func:`campaigns.costs.library_share`)."""
+
+    asset_id: int
+    name: str
+    class_name: str
+    creation_cost: Decimal
+    frames_here: int
+    frames_total: int
+    share: Decimal
+
+
+def library_shares(*, campaign: Campaign) -> list[AssetShare]:
+    """For each asset the campaign may use: its creation cost, the frames it appears in here and in every
+    campaign, and this campaign's amortized share of the cost."""
+    assets = list(campaign.assets.select_related("object_class").order_by("object_class__name", "name"))
+    usage = asset_usage(assets=assets)
+    out = []
+    for asset in assets:
+        per_campaign = usage[asset.pk]
+        here = per_campaign.get(campaign.pk, (0, 0))[0]
+        total = sum(frames for frames, _ in per_campaign.values())
+        out.append(
+            AssetShare(
+                asset_id=asset.pk,
+                name=asset.name,
+                class_name=asset.object_class.name,
+                creation_cost=costs.money(asset.creation_cost),
+                frames_here=here,
+                frames_total=total,
+                share=costs.library_share(creation_cost=asset.creation_cost, frames_here=here, frames_total=total),
+            )
+        )
+    return out
 
 
 def total_spent(*, campaign: Campaign) -> Decimal:
@@ -125,6 +189,8 @@ class CampaignSummary:
     cpu_s_spent: float
     median_cpu_s: float | None
     median_wall_s: float | None
+    library: list[AssetShare]
+    library_share: Decimal
     amortized: costs.Amortized
     projection: costs.Projection
     manual: costs.ManualComparison
@@ -158,8 +224,10 @@ def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
     median_wall_s = statistics.median(r[1] for r in recent) if recent else None
     fixed = fixed_cost(campaign=campaign)
     compute = costs.money(campaign.compute_cost_spent)
+    library = library_shares(campaign=campaign)
+    library_share = costs.money(sum((a.share for a in library), Decimal(0)))
     amortized = costs.amortized_cost(
-        fixed=fixed,
+        fixed=fixed + library_share,
         compute_spent=compute,
         frames_done=campaign.frames_done,
         accepted_instances=campaign.instances_accepted,
@@ -184,7 +252,7 @@ def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
     manual = costs.manual_labelling_cost(instances=total_target, rate_per_hour=campaign.manual_labelling_rate_per_hour)
     accepted_per_frame = campaign.instances_accepted / campaign.frames_done if campaign.frames_done else 0.0
     break_even = costs.break_even_frames(
-        fixed=fixed,
+        fixed=fixed + library_share,
         compute_cost_per_frame=cost_per_frame,
         accepted_per_frame=accepted_per_frame,
         manual_cost_per_instance=manual.cost_per_instance,
@@ -196,6 +264,8 @@ def campaign_summary(*, campaign: Campaign) -> CampaignSummary:
         fixed=fixed,
         compute_spent=compute,
         total_spent=costs.money(fixed + compute),
+        library=library,
+        library_share=library_share,
         cpu_s_spent=campaign.cpu_s_spent,
         median_cpu_s=median_cpu_s,
         median_wall_s=median_wall_s,
@@ -225,7 +295,6 @@ from typing import Any as _Any  # noqa: E402
 
 from django.db.models import (  # noqa: E402
     Avg,
-    DecimalField,
     Exists,
     ExpressionWrapper,
     F,
@@ -233,15 +302,12 @@ from django.db.models import (  # noqa: E402
     Max,
     Min,
     OuterRef,
-    Q,
     Subquery,
-    Value,
 )
 from django.db.models.functions import Coalesce, Least, TruncMinute  # noqa: E402
 from django.utils import timezone as _timezone  # noqa: E402
 
-from assets.models import Asset  # noqa: E402
-from campaigns.models import FrameEvent, Instance  # noqa: E402
+from campaigns.models import FrameEvent  # noqa: E402
 
 COVERAGE_SAMPLE_FRAMES = 500
 PLAIN_SURFACE = "plain"  # a material slot without a texture
@@ -268,25 +334,18 @@ def campaign_rows(*, campaigns: QuerySet[Campaign]) -> list[dict[str, _Any]]:
         .annotate(s=Sum(Least("accepted_count", "target_accepted")))
         .values("s")
     )
-    asset_cost = (
-        Asset.objects.filter(campaigns=OuterRef("pk")).values("campaigns").annotate(s=Sum("creation_cost")).values("s")
-    )
-    money_field = DecimalField(max_digits=16, decimal_places=6)
     rows = (
         campaigns.select_related("team")
         .annotate(
             target_total=Coalesce(Subquery(quota_target, output_field=IntegerField()), 0),
             towards_quota=Coalesce(Subquery(quota_done, output_field=IntegerField()), 0),
-            asset_cost=Coalesce(
-                Subquery(asset_cost, output_field=money_field), Value(Decimal(0)), output_field=money_field
-            ),
         )
         .order_by("-created_at")
     )
     now = _timezone.now()
     out = []
     for c in rows:
-        spent = costs.money(c.asset_cost + c.setup_cost + c.compute_cost_spent)
+        spent = costs.money(c.setup_cost + c.compute_cost_spent)  # what the budget pays (no library share)
         progress = c.towards_quota / c.target_total if c.target_total else 0.0
         eta_s = None
         if c.status == Campaign.Status.RUNNING and c.started_at and c.towards_quota:
@@ -334,7 +393,9 @@ def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
         .annotate(n=Count("pk"))
         .values_list("b", "n")
     )
-    fixed = fixed_cost(campaign=campaign)
+    # The curve starts at the setup cost plus today's share of the asset library (the share falls as other
+    # campaigns use the same assets, so earlier points are drawn with today's share too).
+    fixed = fixed_cost(campaign=campaign) + sum((a.share for a in library_shares(campaign=campaign)), Decimal(0))
     manual = costs.manual_labelling_cost(instances=1, rate_per_hour=campaign.manual_labelling_rate_per_hour)
     cumulative_frames, cumulative_cost, cumulative_accepted = 0, Decimal(fixed), 0
     x_frames, per_instance, per_frame, times = [], [], [], []
@@ -358,8 +419,11 @@ def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
 
 
 def throughput(*, campaign: Campaign, minutes: int = 120) -> dict[str, _Any]:
-    """Done frames per minute over the last ``minutes`` (one grouped query) and the rate of the last 10 minutes."""
-    since = _timezone.now() - _timedelta(minutes=minutes)
+    """Done frames per minute over the last ``minutes`` (one grouped query) and the campaign's pace by the one
+    definition of throughput (:func:`campaigns.costs.frames_per_hour` over :data:`~campaigns.costs.THROUGHPUT_WINDOW_S`,
+    counted from the start when it started within the window); the worker table uses the same."""
+    now = _timezone.now()
+    since = now - _timedelta(minutes=minutes)
     rows = list(
         Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=since)
         .annotate(m=TruncMinute("finished_at"))
@@ -367,17 +431,23 @@ def throughput(*, campaign: Campaign, minutes: int = 120) -> dict[str, _Any]:
         .annotate(n=Count("pk"))
         .order_by("m")
     )
-    recent_since = _timezone.now() - _timedelta(minutes=10)
+    window_s = costs.THROUGHPUT_WINDOW_S
+    recent_since = now - _timedelta(seconds=window_s)
     recent = Frame.objects.filter(campaign=campaign, state=State.DONE, finished_at__gte=recent_since).count()
+    running_for_s = (now - campaign.started_at).total_seconds() if campaign.started_at else None
     return {
         "minutes": [r["m"].isoformat() for r in rows],
         "frames": [r["n"] for r in rows],
-        "frames_per_hour_10min": recent * 6,
+        "frames_per_hour_10min": costs.frames_per_hour(frames=recent, window_s=window_s, running_for_s=running_for_s),
+        "window_s": window_s,
     }
 
 
-def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
-    """Live workers with their frames in the last hour (all campaigns) and CPU use (CPU s per wall s per slot)."""
+def fleet(*, window_s: float | None = None) -> list[dict[str, _Any]]:
+    """Live workers with their pace over the throughput window (all campaigns; :func:`campaigns.costs.frames_per_hour`,
+    the campaign headline's definition, counted from the worker's start when it started within the window) and CPU
+    use (CPU s per wall s per slot) over the same window."""
+    window_s = costs.THROUGHPUT_WINDOW_S if window_s is None else window_s
     now = _timezone.now()
     since = now - _timedelta(seconds=window_s)
     per_host = {
@@ -388,7 +458,8 @@ def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
     }
     out = []
     for w in live_workers().order_by("hostname"):
-        seconds = max(1.0, min(window_s, (now - w.started_at).total_seconds()))
+        running_for_s = (now - w.started_at).total_seconds()
+        seconds = max(costs.THROUGHPUT_MIN_SPAN_S, min(window_s, running_for_s))
         row = per_host.get(w.hostname, {"n": 0, "cpu": 0.0})
         out.append(
             {
@@ -397,8 +468,10 @@ def fleet(*, window_s: float = 3600.0) -> list[dict[str, _Any]]:
                 "concurrency": w.concurrency,
                 "variant": w.renderer_variant,
                 "last_seen_s": round((now - w.last_seen).total_seconds(), 1),
-                "frames_last_hour": row["n"],
-                "frames_per_hour": round(row["n"] * 3600.0 / seconds, 1),
+                "frames_in_window": row["n"],
+                "frames_per_hour": costs.frames_per_hour(
+                    frames=int(row["n"]), window_s=window_s, running_for_s=running_for_s
+                ),
                 "cpu_use": round((row["cpu"] or 0.0) / seconds / max(1, w.concurrency), 3),
             }
         )
@@ -548,8 +621,9 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
         .values_list("output_dir", flat=True)[:limit]
     )
     root = _Path(settings.MEDIA_ROOT)
-    values: dict[str, list[float]] = {k: [] for k in ("eye_height_m", "focal_length_mm", "f_number", "iso", "cct_k")}
+    values: dict[str, list[float]] = {k: [] for k in ("eye_height_m", "focal_length_mm", "f_number", "iso")}
     flux: dict[str, list[float]] = {}
+    cct: dict[str, list[float]] = {}
     azimuth: dict[str, list[float]] = {}
     elevation: dict[str, list[float]] = {}
     families: Counter[str] = Counter()
@@ -579,7 +653,7 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
                 values[key].append(float(camera[key]))
         for light in spec.get("lights", []):
             if "cct_k" in light:
-                values["cct_k"].append(float(light["cct_k"]))
+                cct.setdefault(str(light.get("kind", "light")), []).append(float(light["cct_k"]))
             if "flux_lm" in light:
                 flux.setdefault(str(light.get("kind", "light")), []).append(float(light["flux_lm"]))
         for obj in spec.get("objects", []):
@@ -596,9 +670,12 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
         "focal_length_mm": budget["camera"]["focal_length_mm"],
         "f_number": budget["camera"]["f_number"],
         "iso": budget["camera"]["iso"],
-        "cct_k": budget["lighting"]["cct_k"],
     }
     flux_ranges = {kind: budget["lighting"].get(f"{kind}_flux_lm") for kind in flux}
+    # Each light kind against its own range: the lamps draw from the budget's lighting.cct_k, daylight from the
+    # render core's fixed sun and sky ranges (a sky at 9,000 K is not a lamp outside its budget).
+    daylight_cct = {"sun": list(SUN_CCT_K), "dome": list(SKY_CCT_K)}
+    cct_ranges = {kind: daylight_cct.get(kind, budget["lighting"]["cct_k"]) for kind in cct}
     return {
         "frames_read": len(dirs),
         "limit": limit,
@@ -607,6 +684,8 @@ def coverage_sample(*, campaign: Campaign, limit: int = COVERAGE_SAMPLE_FRAMES) 
         "ranges": ranges,
         "flux": flux,
         "flux_ranges": flux_ranges,
+        "cct": cct,
+        "cct_ranges": cct_ranges,
         "azimuth_deg": azimuth,
         "elevation_deg": elevation,
         "appearance": {
@@ -734,38 +813,31 @@ def frame_instances(*, frame_ids: Sequence[int]) -> dict[int, list[Mapping[str, 
 
 
 def asset_library(*, user: _Any) -> list[dict[str, _Any]]:
-    """Procedural (shared) and the user's teams' uploaded assets, with appearances in the user's campaigns.
+    """Procedural (shared) and the user's teams' uploaded assets, with their appearances in every campaign.
 
-    An appearance is a done frame holding an instance of the asset: procedural generators cover their whole class
-    (every instance of the class comes from its generator); an uploaded mesh counts instances whose render-core
-    asset id names it (``user/<asset pk>``).
+    An appearance is a done frame holding an instance of the asset (:func:`_asset_instances`). The creation cost
+    is the library's, amortized over every appearance in every campaign of every team (a shared generator's
+    counts include other teams' campaigns: only the totals are shown, never which campaigns).
     """
     assets = (
         scope_to_user(Asset.objects.all(), user=user, include_shared=True)
         .select_related("object_class", "team")
         .order_by("object_class__name", "kind", "name")
     )
-    visible = scope_to_user(Instance.objects.all(), user=user, team_field="campaign__team")
-    by_class = dict(
-        visible.values("object_class__name")
-        .annotate(n=Count("frame", distinct=True))
-        .values_list("object_class__name", "n")
-    )
-    by_asset_id = dict(
-        visible.filter(asset_id__startswith="user/")
-        .values("asset_id")
-        .annotate(n=Count("frame", distinct=True))
-        .values_list("asset_id", "n")
-    )
+    rows = list(assets)
+    usage = asset_usage(assets=rows)
     out = []
-    for a in assets:
-        frames = (
-            by_class.get(a.object_class.name, 0)
-            if a.kind == Asset.Kind.PROCEDURAL
-            else by_asset_id.get(f"user/{a.pk}", 0)
-        )
+    for a in rows:
+        frames = sum(f for f, _ in usage[a.pk].values())
+        instances = sum(n for _, n in usage[a.pk].values())
         out.append(
-            {"asset": a, "frames": frames, "per_appearance": costs.money(a.creation_cost / frames) if frames else None}
+            {
+                "asset": a,
+                "frames": frames,
+                "instances": instances,
+                "campaigns": len(usage[a.pk]),
+                "per_appearance": costs.money(a.creation_cost / frames) if frames else None,
+            }
         )
     return out
 
@@ -774,7 +846,6 @@ def asset_library(*, user: _Any) -> list[dict[str, _Any]]:
 
 HISTORY_CAMPAIGNS = 100
 HISTORY_MIN_FRAMES = 3
-HISTORY_SAMPLE_RATIO = 16.0  # campaigns within ×16 in pixels × spp count as similar
 
 
 @dataclass(frozen=True)
@@ -785,58 +856,80 @@ class FrameTimeEstimate:
     detail: str
 
 
-def frame_time_estimate(*, width_px: int, height_px: int, spp: int, history: QuerySet[Campaign]) -> FrameTimeEstimate:
-    """CPU seconds per frame for a new budget: history of similar campaigns scaled by pixels × spp, else the prior.
+def _fit_frame_time(seen: Sequence[tuple[Mapping[str, _Any], int]]) -> tuple[float, float]:
+    """``(a, b)`` of ``cpu = a + b × samples`` from campaign means (``n`` frames each): a frame-weighted
+    least-squares line when the campaigns differ in samples and the line is plausible (a ≥ 0, b > 0); otherwise
+    the ratio estimate of ``b`` past a fixed overhead ``a``."""
+    weights = [float(r["n"]) for r, _ in seen]
+    xs = [float(n) for _, n in seen]
+    ys = [float(r["cpu"]) for r, _ in seen]
+    total = sum(weights)
+    mean_x = sum(w * x for w, x in zip(weights, xs, strict=True)) / total
+    mean_y = sum(w * y for w, y in zip(weights, ys, strict=True)) / total
+    sxx = sum(w * (x - mean_x) ** 2 for w, x in zip(weights, xs, strict=True))
+    if sxx > 0:
+        sxy = sum(w * (x - mean_x) * (y - mean_y) for w, x, y in zip(weights, xs, ys, strict=True))
+        slope = sxy / sxx
+        intercept = mean_y - slope * mean_x
+        if slope > 0 and intercept >= 0:
+            return intercept, slope
+    overhead = min(costs.PRIOR_FRAME_OVERHEAD_CPU_S, 0.5 * min(ys))
+    slope = sum(w * (y - overhead) for w, y in zip(weights, ys, strict=True)) / sum(
+        w * x for w, x in zip(weights, xs, strict=True)
+    )
+    return overhead, slope
 
-    From history: the done frames of each visible campaign are averaged in the database; campaigns whose
-    pixels × spp are within ×16 of the new budget's are used, nearest (in log samples) first, up to three,
-    weighted by their frame counts. Each is scaled linearly in samples past the fixed per-frame overhead:
-    ``cpu = overhead + (mean_cpu − overhead) · samples / samples_seen``. Fallback: the constant measured on this
-    machine, :data:`campaigns.costs.PRIOR_FRAME_OVERHEAD_CPU_S` + :data:`~campaigns.costs.PRIOR_CPU_S_PER_SAMPLE` ×
-    samples.
+
+def frame_time_estimate(*, width_px: int, height_px: int, spp: int, history: QuerySet[Campaign]) -> FrameTimeEstimate:
+    """CPU seconds per frame for a new budget, on one basis: ``a + b × samples`` (samples = pixels × spp).
+
+    With history (done frames of up to :data:`HISTORY_CAMPAIGNS` visible campaigns, each with at least
+    :data:`HISTORY_MIN_FRAMES`): ``a`` (the per-frame overhead: scene build, label pass, kernel compile) and ``b``
+    from a frame-weighted least-squares line through the campaigns' mean CPU seconds (:func:`_fit_frame_time`);
+    with a single sample count, or an implausible line, ``a`` is
+    :data:`campaigns.costs.PRIOR_FRAME_OVERHEAD_CPU_S` (or half the smallest mean if lower) and ``b`` the ratio
+    estimate ``Σ nᵢ (cpuᵢ − a) / Σ nᵢ samplesᵢ`` (Cochran, *Sampling Techniques*, 3rd ed., ch. 6 — from memory).
+    Without history: the constants measured on this machine. Either way the estimate is a straight line with a positive slope in samples, so it
+    grows with resolution and spp and never jumps when a setting crosses from one past campaign to another.
     """
     samples = width_px * height_px * spp
-    stats = {
-        r["campaign"]: r
-        for r in Frame.objects.filter(
+    stats = list(
+        Frame.objects.filter(
             campaign__in=history.values("pk")[:HISTORY_CAMPAIGNS], state=State.DONE, cpu_s__isnull=False
         )
         .values("campaign")
         .annotate(n=Count("pk"), cpu=Avg("cpu_s"), wall=Avg("wall_s"))
-        if r["n"] >= HISTORY_MIN_FRAMES
-    }
-    candidates = []
-    for pk, budget in Campaign.objects.filter(pk__in=list(stats)).values_list("pk", "budget"):
-        r = budget.get("render", {})
-        seen = int(r.get("width_px", 0)) * int(r.get("height_px", 0)) * int(r.get("spp", 0))
-        if seen > 0 and 1 / HISTORY_SAMPLE_RATIO <= samples / seen <= HISTORY_SAMPLE_RATIO:
-            candidates.append((abs(_math.log(samples / seen)), pk, seen, r))
-    candidates.sort()
-    if candidates:
-        overhead = costs.PRIOR_FRAME_OVERHEAD_CPU_S
-        total_n, cpu_sum, wall_ratio_sum, names = 0, 0.0, 0.0, []
-        for _, pk, seen, r in candidates[:3]:
-            s = stats[pk]
-            base = min(overhead, 0.5 * s["cpu"])  # a tiny frame's mean may be below the nominal overhead
-            scaled = base + (s["cpu"] - base) * samples / seen
-            total_n += s["n"]
-            cpu_sum += scaled * s["n"]
-            wall_ratio_sum += (s["wall"] / s["cpu"] if s["cpu"] else 1.0) * s["n"]
-            names.append(f"{r['width_px']}×{r['height_px']} px × {r['spp']} spp ({s['n']} frames)")
+        .filter(n__gte=HISTORY_MIN_FRAMES)
+    )
+    budgets = dict(Campaign.objects.filter(pk__in=[r["campaign"] for r in stats]).values_list("pk", "budget"))
+    seen = []
+    for r in stats:
+        render = budgets.get(r["campaign"], {}).get("render", {})
+        n_samples = int(render.get("width_px", 0)) * int(render.get("height_px", 0)) * int(render.get("spp", 0))
+        if n_samples > 0 and r["cpu"]:
+            seen.append((r, n_samples))
+    if not seen:
         return FrameTimeEstimate(
-            cpu_s=cpu_sum / total_n,
-            wall_per_cpu=wall_ratio_sum / total_n,
-            source="history",
-            detail="history of " + "; ".join(names) + ", scaled by pixels × spp",
+            cpu_s=costs.prior_frame_cpu_s(width_px=width_px, height_px=height_px, spp=spp),
+            wall_per_cpu=1.0,
+            source="constant",
+            detail=(
+                f"no campaign has finished frames yet: the constant measured on this machine, "
+                f"{costs.PRIOR_FRAME_OVERHEAD_CPU_S:g} CPU s per frame + {costs.PRIOR_CPU_S_PER_SAMPLE * 1e6:g} CPU s "
+                "per megapixel-sample"
+            ),
         )
+    frames = sum(r["n"] for r, _ in seen)
+    overhead, per_sample = _fit_frame_time(seen)
+    wall_per_cpu = sum(r["n"] * ((r["wall"] or r["cpu"]) / r["cpu"]) for r, _ in seen) / frames
     return FrameTimeEstimate(
-        cpu_s=costs.prior_frame_cpu_s(width_px=width_px, height_px=height_px, spp=spp),
-        wall_per_cpu=1.0,
-        source="constant",
+        cpu_s=overhead + per_sample * samples,
+        wall_per_cpu=wall_per_cpu,
+        source="history",
         detail=(
-            f"no similar campaign has finished frames yet: the constant measured on this machine, "
-            f"{costs.PRIOR_FRAME_OVERHEAD_CPU_S:g} CPU s per frame + {costs.PRIOR_CPU_S_PER_SAMPLE * 1e6:g} CPU s "
-            "per megapixel-sample"
+            f"measured on {frames} frames of {len(seen)} campaign{'s' if len(seen) != 1 else ''}: "
+            f"{overhead:.2f} CPU s per frame + {per_sample * 1e6:.3g} CPU s per megapixel-sample, "
+            "scaled to these settings by pixels × spp"
         ),
     )
 
@@ -848,6 +941,8 @@ class PlanEstimate:
     cpu_hours: float
     compute_cost: Decimal
     fixed_cost: Decimal
+    library_share: Decimal
+    library: list[dict[str, _Any]]
     total_cost: Decimal
     within_budget: bool
     wall_s_on_fleet: float | None
@@ -859,6 +954,38 @@ class PlanEstimate:
     source: str
     detail: str
     yields: dict[str, float]
+
+
+def _projected_library(
+    *, targets: Mapping[str, int], yields: Mapping[str, float], frames: int, per_frame: float
+) -> list[dict[str, _Any]]:
+    """The shared generators of the planned classes: creation cost, frames that used them so far, and the share of
+    their cost this plan would bear with ``min(frames, placements of the class)`` frames of its own (a class's
+    placements spread over the frames, at most one frame each)."""
+    generators = list(
+        Asset.objects.filter(object_class__name__in=[n for n, t in targets.items() if t > 0], team__isnull=True)
+        .select_related("object_class")
+        .order_by("object_class__name", "name")
+    )
+    usage = asset_usage(assets=generators)
+    items = []
+    for asset in generators:
+        name = asset.object_class.name
+        planned = min(frames, _math.ceil(targets[name] / yields[name])) if frames else 0
+        so_far = sum(f for f, _ in usage[asset.pk].values())
+        items.append(
+            {
+                "name": asset.name,
+                "class_name": name,
+                "creation_cost": costs.money(asset.creation_cost),
+                "frames_so_far": so_far,
+                "frames_planned": planned,
+                "share": costs.projected_library_share(
+                    creation_cost=asset.creation_cost, frames_so_far=so_far, frames_planned=planned
+                ),
+            }
+        )
+    return items
 
 
 def plan_estimate(
@@ -900,10 +1027,9 @@ def plan_estimate(
     frames = _math.ceil(placements / per_frame) if placements else 0
     cpu_s = frames * frame_time.cpu_s
     compute = costs.frame_compute_cost(cpu_s=cpu_s, price_per_cpu_hour=price_per_cpu_hour)
-    creation = Asset.objects.filter(object_class__name__in=list(targets), team__isnull=True).aggregate(
-        s=Sum("creation_cost")
-    )["s"] or Decimal(0)
-    fixed = costs.fixed_cost(asset_creation_costs=[creation], setup_cost=setup_cost)
+    fixed = costs.fixed_cost(asset_creation_costs=[], setup_cost=setup_cost)
+    library = _projected_library(targets=targets, yields=yields, frames=frames, per_frame=per_frame)
+    library_share = costs.money(sum((item["share"] for item in library), Decimal(0)))
     total = costs.money(fixed + compute)
     slots = live_workers().aggregate(s=Sum("concurrency"))["s"] or 0
     wall = (frame_time.cpu_s * frame_time.wall_per_cpu * _math.ceil(frames / slots)) if slots else None
@@ -915,11 +1041,13 @@ def plan_estimate(
         cpu_hours=cpu_s / 3600.0,
         compute_cost=compute,
         fixed_cost=fixed,
+        library_share=library_share,
+        library=library,
         total_cost=total,
         within_budget=total <= cost_budget,
         wall_s_on_fleet=wall,
         live_slots=slots,
-        cost_per_accepted=costs.money(total / instances) if instances else None,
+        cost_per_accepted=costs.money((total + library_share) / instances) if instances else None,
         manual_cost_per_instance=manual.cost_per_instance,
         manual_total=manual.cost_for_instances,
         frame_cpu_s=frame_time.cpu_s,
@@ -967,6 +1095,18 @@ def campaign_live(*, campaign: Campaign) -> dict[str, _Any]:
         "spent_pct": round(float(100 * s.total_spent / c.cost_budget), 1) if c.cost_budget else 0.0,
         "cost_budget": str(c.cost_budget),
         "fixed": str(s.fixed),
+        "library_share": str(s.library_share),
+        "library": [
+            {
+                "name": a.name,
+                "class_name": a.class_name,
+                "creation_cost": str(a.creation_cost),
+                "frames_here": a.frames_here,
+                "frames_total": a.frames_total,
+                "share": str(a.share),
+            }
+            for a in s.library
+        ],
         "compute": str(s.compute_spent.quantize(Decimal("0.0001"))),
         "cpu_s": round(s.cpu_s_spent, 1),
         "per_accepted": str(s.amortized.per_accepted_instance.quantize(Decimal("0.0001")))

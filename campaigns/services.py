@@ -372,12 +372,13 @@ def _write_quotas(*, campaign: Campaign, clean: Sequence[_CleanQuota]) -> None:
     )
 
 
-def _check_fixed_cost(*, assets: Sequence[Asset], settings: _Settings) -> None:
-    fixed = costs.fixed_cost(asset_creation_costs=[a.creation_cost for a in assets], setup_cost=settings.setup_cost)
+def _check_fixed_cost(*, settings: _Settings) -> None:
+    """The budget must at least pay the campaign's own fixed cost, its setup cost. The assets' creation costs are
+    the library's (a campaign bears an amortized share, reported beside its spend, not charged to its budget)."""
+    fixed = costs.fixed_cost(asset_creation_costs=[], setup_cost=settings.setup_cost)
     if fixed > settings.cost_budget:
         raise CampaignError(
-            f"{settings.cost_budget} is less than the fixed costs {fixed} (setup cost plus asset creation costs)",
-            field="cost_budget",
+            f"{settings.cost_budget} is less than the fixed costs {fixed} (the setup cost)", field="cost_budget"
         )
 
 
@@ -424,7 +425,7 @@ def create_campaign(
         assets = _chosen_assets(team_id=team.pk, asset_ids=asset_ids)
     else:
         assets = default_campaign_assets(team_id=team.pk, class_names=[q.object_class.name for q in clean])
-    _check_fixed_cost(assets=assets, settings=settings)
+    _check_fixed_cost(settings=settings)
     with name_guard(lambda: _campaign_name_conflict(team_id=team.pk, name=name)):
         campaign = Campaign.objects.create(
             name=name,
@@ -1465,7 +1466,7 @@ def update_draft_campaign(
         kept = [a for a in campaign.assets.select_related("object_class") if a.object_class.name in class_names]
         covered = {a.object_class.name for a in kept}
         assets = kept + default_campaign_assets(team_id=campaign.team_id, class_names=class_names - covered)
-    _check_fixed_cost(assets=assets, settings=settings)
+    _check_fixed_cost(settings=settings)
     with name_guard(lambda: _campaign_name_conflict(team_id=campaign.team_id, name=name, exclude_pk=campaign.pk)):
         Campaign.objects.filter(pk=campaign.pk).update(
             name=name,

@@ -175,6 +175,18 @@ def _estimate(request: HttpRequest, form: CampaignForm) -> dict[str, Any] | None
         "price_per_cpu_hour": f"{d['price_per_cpu_hour']:.4f}",
         "compute_cost": f"{est.compute_cost:.4f}",
         "fixed_cost": f"{est.fixed_cost:.2f}",
+        "library_share": f"{est.library_share:.2f}",
+        "library": [
+            {
+                "name": item["name"],
+                "class_name": item["class_name"],
+                "creation_cost": f"{item['creation_cost']:.2f}",
+                "frames_so_far": item["frames_so_far"],
+                "frames_planned": item["frames_planned"],
+                "share": f"{item['share']:.2f}",
+            }
+            for item in est.library
+        ],
         "total_cost": f"{est.total_cost:.2f}",
         "cost_budget": f"{d['cost_budget']:.2f}",
         "within_budget": est.within_budget,

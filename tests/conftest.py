@@ -207,3 +207,28 @@ def wait_until() -> Callable[..., Any]:
     """``wait_until(predicate, timeout_s, what)``: poll until ``predicate()`` is truthy and return it; fail the
     test naming ``what`` after ``timeout_s`` seconds."""
     return _wait_until
+
+
+# Fixtures that give a test the database (and with it the configured broker): a test that asks for none of them,
+# and has no django_db mark, cannot touch either, so it checks the same thing under every configuration.
+DATABASE_FIXTURES = ("db", "transactional_db", "live_server")
+
+
+def uses_configuration(item: pytest.Item) -> bool:
+    """Whether a test can see the configuration (database, broker): it is marked django_db or ``configuration``,
+    or uses a database fixture. (``django_db_blocker`` is not one: an autouse session fixture of this file takes it for every test.)"""
+    fixtures = getattr(item, "fixturenames", ())
+    marked = any(item.get_closest_marker(name) is not None for name in ("django_db", "configuration"))
+    return marked or any(f in fixtures for f in DATABASE_FIXTURES)
+
+
+def pytest_collection_modifyitems(config: pytest.Config, items: list[pytest.Item]) -> None:
+    """``EVENFRAME_CONFIGURATION_TESTS_ONLY=1``: run only the tests that see the configuration. CI's second run (the
+    embedded default after PostgreSQL + Redis) uses it: the others already ran and would check nothing new."""
+    if os.environ.get("EVENFRAME_CONFIGURATION_TESTS_ONLY") != "1":
+        return
+    kept = [item for item in items if uses_configuration(item)]
+    dropped = [item for item in items if not uses_configuration(item)]
+    if dropped:
+        config.hook.pytest_deselected(items=dropped)
+        items[:] = kept

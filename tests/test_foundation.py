@@ -16,6 +16,9 @@ from django.urls import reverse
 ROOT = Path(__file__).resolve().parent.parent
 
 
+pytestmark = pytest.mark.configuration  # every test here checks the configuration in use
+
+
 def _settings_in_subprocess(env: dict, expr: str) -> str:
     """Evaluate an expression on a fresh settings import with exactly this environment."""
     clean = {

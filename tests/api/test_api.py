@@ -165,7 +165,9 @@ def test_campaign_detail_has_settings_progress_spend_and_eta(api, done_campaign)
     assert body["frames_done"] == 3 and body["frames"]["done"] == 3 and body["frames_dead"] == 2
     chair = next(q for q in body["quotas"] if q["class_name"] == "chair")
     assert chair["target"] == 20 and chair["accepted"] + chair["rejected"] == chair["placed"] > 0
-    assert float(body["spend"]["spent"]) > 0 and body["spend"]["cost_budget"] == "100.00"
+    assert float(body["spend"]["spent"]) >= 0 and body["spend"]["cost_budget"] == "100.00"
+    # Its two generators (2.00 each) appear only in this campaign's frames: it bears their whole creation cost.
+    assert float(body["spend"]["library_share"]) == 4.0
     assert "eta_s" in body and "frames_remaining" in body
 
 
@@ -260,7 +262,7 @@ def test_create_start_and_poll_round_trip(api, people, object_classes, outbox, d
         ({"quotas": [{"class_name": "chair", "target_accepted": "many"}]}, "quotas.0.target_accepted"),
         ({"quotas": []}, "quotas"),
         ({"cost_budget": "-5"}, "cost_budget"),
-        ({"cost_budget": "3"}, "cost_budget"),  # below the fixed costs (procedural assets cost 2.00 each)
+        ({"cost_budget": "3", "setup_cost": "5"}, "cost_budget"),  # below the fixed cost (the setup cost)
         ({"name": None}, "name"),
         ({"name": "   "}, "name"),
         ({"team": 999999}, "team"),

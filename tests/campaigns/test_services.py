@@ -176,9 +176,12 @@ def test_transient_failures_retry_with_backoff_then_dead(make_campaign, outbox, 
 def test_budget_cap_pauses_before_a_frame_would_exceed_it(make_campaign, outbox, media_root, monkeypatch):
     from campaigns import costs
 
-    # Every frame is expected to cost, and costs, 3600 CPU s × 1.00/CPU-hour = 1.00; fixed costs: 2 assets × 1.00.
+    # Every frame is expected to cost, and costs, 3600 CPU s × 1.00/CPU-hour = 1.00; the fixed cost is the setup cost
+    # (the assets' creation costs are the library's, reported as a share, never charged to the budget).
     monkeypatch.setattr(selectors, "expected_frame_cpu_s", lambda *, campaign: 3600.0)
-    campaign = make_campaign(quotas={"chair": 40, "ottoman": 40}, price="1.00", cost_budget="4.50", start=True)
+    campaign = make_campaign(
+        quotas={"chair": 40, "ottoman": 40}, price="1.00", cost_budget="4.50", setup_cost="2", start=True
+    )
     assert costs.money(selectors.fixed_cost(campaign=campaign)) == Decimal("2")
     while outbox:
         for m in outbox.take():
@@ -201,7 +204,7 @@ def test_budget_cap_pauses_before_a_frame_would_exceed_it(make_campaign, outbox,
 
 
 def test_claim_refuses_to_start_a_frame_over_budget(make_campaign, outbox, fake_render, media_root, monkeypatch):
-    campaign = make_campaign(quotas={"chair": 40}, price="1.00", cost_budget="10", start=True)
+    campaign = make_campaign(quotas={"chair": 40}, price="1.00", cost_budget="10", setup_cost="1", start=True)
     message = outbox.take()[0]
     # The estimate grew after dispatch (e.g. spend from other frames): the worker must not start it.
     Frame.objects.filter(pk=message["frame_id"]).update(expected_cpu_s=36000.0)

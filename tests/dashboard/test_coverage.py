@@ -255,3 +255,27 @@ def test_overview_shows_room_types_and_arrangements(client, make_campaign, media
     assert rows == [("bedroom", "2", "66.7"), ("office", "1", "33.3")]
     modes = " ".join(re.sub(r"<[^>]+>", "", re.search(r'id="layout-modes">(.*?)</p>', page, re.S).group(1)).split())
     assert modes == "Arrangement: like a home 66.7 % · free random placement 33.3 %."
+
+
+def test_colour_temperature_is_charted_per_light_kind_against_its_own_range(make_campaign, media_root, outbox):
+    """Lamps draw their CCT from the budget's lighting.cct_k, daylight from the render core's sun and sky ranges
+    (render.lights.SUN_CCT_K, SKY_CCT_K): a 9,000 K sky is not a lamp outside its budget."""
+    from render.lights import SKY_CCT_K, SUN_CCT_K
+
+    campaign = make_campaign("daylight", start=True)
+    lights = [
+        {"kind": "point", "cct_k": 3000.0, "flux_lm": 800.0},
+        {"kind": "panel", "cct_k": 4000.0, "flux_lm": 2000.0},
+        {"kind": "sun", "cct_k": 5600.0},
+        {"kind": "dome", "cct_k": 9000.0, "illuminance_lux": 12000.0},
+    ]
+    spec = {"room": {}, "objects": [], "lights": lights, "camera": {}, "budget": {}}
+    _record(campaign, media_root, [spec])
+    cov = selectors.coverage_sample(campaign=campaign)
+    assert cov["cct"] == {"point": [3000.0], "panel": [4000.0], "sun": [5600.0], "dome": [9000.0]}
+    lamps = campaign.budget["lighting"]["cct_k"]
+    assert cov["cct_ranges"] == {"point": lamps, "panel": lamps, "sun": list(SUN_CCT_K), "dome": list(SKY_CCT_K)}
+    for kind, (value,) in cov["cct"].items():
+        low, high = cov["cct_ranges"][kind]
+        assert low <= value <= high, kind  # every light inside its own kind's range
+    assert "cct_k" not in cov["values"]  # no longer one histogram for all kinds against the lamps' range

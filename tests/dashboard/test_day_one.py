@@ -66,7 +66,7 @@ def test_pages_show_money_with_the_currency_and_no_raw_decimals(client, done_cam
     detail = client.get(reverse("campaigns:detail", args=[done_campaign.pk])).content.decode()
     assert "of EUR 660.00 (" in detail and "at EUR 0.0500 per CPU hour" in detail
     assert re.search(r'data-live="spent" data-money="2">EUR \d+\.\d\d<', detail)
-    assert re.search(r"Fixed EUR \d+\.\d\d \+ compute", detail)
+    assert re.search(r"setup EUR \d+\.\d\d \+ compute", detail)
     listing = client.get(reverse("campaigns:list")).content.decode()
     assert "of EUR 660.00</span>" in listing
     budget = client.get(reverse("campaigns:edit", args=[done_campaign.pk])).content.decode()

@@ -375,10 +375,10 @@ def test_estimate_json(client, people, object_classes):
     assert not bad["ok"] and "b_render_spp" in bad["errors"]
 
 
-def test_estimate_uses_history_of_similar_campaigns(client, done_campaign, people):
+def test_estimate_uses_the_history_of_the_teams_campaigns(client, done_campaign, people):
     client.force_login(people["pia"])
     est = client.get(reverse("campaigns:estimate"), _plan_data(people["team"])).json()["estimate"]
-    assert est["source"] == "history" and "64×48 px × 4 spp" in est["detail"]
+    assert est["source"] == "history" and "measured on 3 frames of 1 campaign" in est["detail"]
     # 0.4 CPU s per frame at the same pixels × spp (the fixture's frames).
     assert est["frame_cpu_s"] == pytest.approx(0.4)
 

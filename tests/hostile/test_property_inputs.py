@@ -147,6 +147,7 @@ def test_campaign_creation_never_crashes_or_saves_partially(
 OUTCOMES = {"saved": 0}
 
 
+@pytest.mark.configuration  # reads what the database test above saved, so it runs wherever that one runs
 def test_generated_inputs_reached_the_saving_path():
     # Runs after the property test in file order: the generator must also produce valid campaigns,
     # or the "no partial save" check above would only ever see refusals.

@@ -40,8 +40,10 @@ def _max_running_at_once(campaign) -> int:
 def test_spend_never_passes_the_budget_by_more_than_one_frame_per_slot(fault_worker, make_campaign, media_root):
     workers = [fault_worker(concurrency=2), fault_worker(concurrency=2)]
     # 3600 per CPU-hour: a frame costs its CPU seconds in money, about 0.3–2 each on a fast machine and up to about 4
-    # on a slow one (a frame here took 3 CPU s or more); fixed costs 2 × 1.00. 26 buys several frames on either.
-    campaign = make_campaign(quotas={"chair": 5000, "ottoman": 5000}, price="3600", cost_budget="26", start=True)
+    # on a slow one (a frame here took 3 CPU s or more); fixed cost: setup 2.00. 26 buys several frames on either.
+    campaign = make_campaign(
+        quotas={"chair": 5000, "ottoman": 5000}, price="3600", cost_budget="26", setup_cost="2", start=True
+    )
     wait_for(
         lambda: Campaign.objects.get(pk=campaign.pk).status != "running",
         timeout_s=180,

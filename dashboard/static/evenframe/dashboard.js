@@ -105,6 +105,15 @@
           if (k === "verdict") { el.replaceChildren(verdict(e)); return; }
           if (k === "fleet_time") { el.textContent = e.fleet_time || "no live worker"; return; }
           if (k === "instances_per_frame") { el.textContent = Math.round(e[k]); return; }
+          if (k === "library") {
+            el.replaceChildren.apply(el, (e.library || []).map(function (item) {
+              var li = document.createElement("li");
+              li.textContent = item.name + ": creation " + money(item.creation_cost, 2) + ", " + item.frames_so_far +
+                " frame" + (item.frames_so_far === 1 ? "" : "s") + " so far, ≈ " + item.frames_planned + " here → " + money(item.share, 2);
+              return li;
+            }));
+            return;
+          }
           show(el, e[k]);
         });
       }).catch(function () { panel.classList.remove("loading"); });
@@ -176,8 +185,19 @@
   }
   var COVERAGE = [
     ["eye_height_m", "Camera height", "m", false], ["focal_length_mm", "Focal length", "mm", false],
-    ["f_number", "f-number", "", false], ["iso", "ISO (sampled)", "", true], ["cct_k", "Light CCT", "K", false]
+    ["f_number", "f-number", "", false], ["iso", "ISO (sampled)", "", true]
   ];
+  /* One histogram per light kind over a shared axis, each kind's own range shaded in its colour. */
+  function perKindChart(id, title, values, ranges) {
+    var kinds = Object.keys(values || {}).sort(), shapes = [];
+    var traces = kinds.map(function (kind, i) {
+      var r = ranges[kind];
+      if (r) shapes.push({ type: "rect", xref: "x", yref: "paper", x0: r[0], x1: r[1], y0: 0, y1: 1, fillcolor: PALETTE[i % PALETTE.length], opacity: 0.09, line: { width: 0 }, layer: "below" });
+      return { type: "histogram", name: plotlyText(kind), x: values[kind], nbinsx: 24, opacity: 0.75, marker: { color: PALETTE[i % PALETTE.length] } };
+    });
+    draw(id, traces, { title: { text: title, font: { size: 13 }, x: 0.01 }, barmode: "overlay",
+      shapes: shapes, margin: { l: 40, r: 10, t: 30, b: 30 }, legend: { y: 1.0, x: 1, xanchor: "right", orientation: "v" } });
+  }
   function rangeShape(range) {
     if (!range) return [];
     return [{ type: "rect", xref: "x", yref: "paper", x0: range[0], x1: range[1], y0: 0, y1: 1, fillcolor: TEAL_SOFT, line: { width: 0 }, layer: "below" }];
@@ -192,14 +212,8 @@
         { title: { text: c[1] + (c[2] ? " (" + c[2] + ")" : "") + (log ? ", log₁₀" : ""), font: { size: 13 }, x: 0.01 },
           showlegend: false, shapes: rangeShape(shape), margin: { l: 40, r: 10, t: 30, b: 30 }, yaxis: { title: { text: "" } } });
     });
-    var kinds = Object.keys(cov.flux || {}), shapes = [];
-    var traces = kinds.map(function (kind, i) {
-      var r = cov.flux_ranges[kind];
-      if (r) shapes.push({ type: "rect", xref: "x", yref: "paper", x0: r[0], x1: r[1], y0: 0, y1: 1, fillcolor: PALETTE[i % PALETTE.length], opacity: 0.09, line: { width: 0 }, layer: "below" });
-      return { type: "histogram", name: plotlyText(kind), x: cov.flux[kind], nbinsx: 24, opacity: 0.75, marker: { color: PALETTE[i % PALETTE.length] } };
-    });
-    draw("cov-flux", traces, { title: { text: "Light intensity (lm) by kind", font: { size: 13 }, x: 0.01 }, barmode: "overlay",
-      shapes: shapes, margin: { l: 40, r: 10, t: 30, b: 30 }, legend: { y: 1.0, x: 1, xanchor: "right", orientation: "v" } });
+    perKindChart("cov-flux", "Light intensity (lm) by kind", cov.flux, cov.flux_ranges || {});
+    perKindChart("cov-cct_k", "Colour temperature (K) by light kind, each against its own range", cov.cct, cov.cct_ranges || {});
     var classes = Object.keys(cov.azimuth_deg || {}).sort();
     draw("cov-azimuth", classes.map(function (name, i) {
       return { type: "histogram", name: plotlyText(name), x: cov.azimuth_deg[name], xbins: { start: 0, end: 360, size: 30 },
