@@ -596,6 +596,7 @@ class ExtendForm(forms.Form):
                     "accepted": quota.accepted_count if quota else None,
                 }
             )
+        self.rows.sort(key=lambda row: (row["target"] is None, row["label"]))  # the campaign's classes first
         self._quoted = {name: q.target_accepted for name, q in quotas.items()}
 
     def targets(self) -> dict[str, int]:

@@ -224,4 +224,4 @@ def test_status_shows_amounts_with_the_currency(make_campaign, settings, capsys)
     campaign = make_campaign(cost_budget="42.5")
     call_command("campaign", "status", str(campaign.pk))
     out = capsys.readouterr().out
-    assert "of budget CHF 42.50" in out and "(fixed CHF " in out
+    assert "of budget CHF 42.50" in out and "(setup CHF " in out

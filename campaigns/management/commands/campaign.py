@@ -236,8 +236,13 @@ class Command(BaseCommand):
         w(
             f"  Spend: {format_money(s.total_spent)} of budget {format_money(c.cost_budget)} "
             f"{progress_bar(int(budget_fraction * 1000), 1000)} {budget_fraction * 100:.1f}%  "
-            f"(fixed {format_money(s.fixed)} + compute {format_money(s.compute_spent, PER_UNIT_PLACES)})"
+            f"(setup {format_money(s.fixed)} + compute {format_money(s.compute_spent, PER_UNIT_PLACES)})"
         )
+        if s.library:
+            parts = "; ".join(
+                f"{a.name} {format_money(a.creation_cost)} × {a.frames_here}/{a.frames_total} frames" for a in s.library
+            )
+            w(f"  Asset library share (not charged to the budget): {format_money(s.library_share)} ({parts})")
         if s.amortized.per_accepted_instance is not None:
             w(
                 f"  Amortized: {format_money(s.amortized.per_frame, PER_UNIT_PLACES)} per frame, "

@@ -213,7 +213,7 @@
           showlegend: false, shapes: rangeShape(shape), margin: { l: 40, r: 10, t: 30, b: 30 }, yaxis: { title: { text: "" } } });
     });
     perKindChart("cov-flux", "Light intensity (lm) by kind", cov.flux, cov.flux_ranges || {});
-    perKindChart("cov-cct_k", "Colour temperature (K) by light kind, each against its own range", cov.cct, cov.cct_ranges || {});
+    perKindChart("cov-cct_k", "Colour temperature (K) by light kind", cov.cct, cov.cct_ranges || {});
     var classes = Object.keys(cov.azimuth_deg || {}).sort();
     draw("cov-azimuth", classes.map(function (name, i) {
       return { type: "histogram", name: plotlyText(name), x: cov.azimuth_deg[name], xbins: { start: 0, end: 360, size: 30 },
