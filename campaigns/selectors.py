@@ -371,11 +371,13 @@ def _index_bucket_size(*, campaign: Campaign) -> int:
     return max(1, _math.ceil((last + 1) / CHART_BUCKETS))
 
 
-def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
+def cost_series(*, campaign: Campaign, start_cost: Decimal) -> dict[str, _Any]:
     """Per bucket of frame indices: done frames, compute cost, accepted instances, last finish time.
 
     From these the page draws cost per frame over time and the amortization curve (cumulative cost per accepted
-    instance against frames done, fixed costs included), with the manual-labelling line and the break-even point.
+    instance against frames done, from ``start_cost``: the setup cost plus today's share of the asset library, as
+    :func:`campaign_summary` has them), with the manual-labelling line and the break-even point. The share falls as
+    other campaigns use the same assets, so earlier points are drawn with today's share too.
     """
     size = _index_bucket_size(campaign=campaign)
     bucket = ExpressionWrapper(F("index") / size, output_field=IntegerField())
@@ -393,11 +395,8 @@ def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
         .annotate(n=Count("pk"))
         .values_list("b", "n")
     )
-    # The curve starts at the setup cost plus today's share of the asset library (the share falls as other
-    # campaigns use the same assets, so earlier points are drawn with today's share too).
-    fixed = fixed_cost(campaign=campaign) + sum((a.share for a in library_shares(campaign=campaign)), Decimal(0))
     manual = costs.manual_labelling_cost(instances=1, rate_per_hour=campaign.manual_labelling_rate_per_hour)
-    cumulative_frames, cumulative_cost, cumulative_accepted = 0, Decimal(fixed), 0
+    cumulative_frames, cumulative_cost, cumulative_accepted = 0, Decimal(start_cost), 0
     x_frames, per_instance, per_frame, times = [], [], [], []
     for row in frames:
         cumulative_frames += row["n"]
@@ -414,7 +413,7 @@ def cost_series(*, campaign: Campaign) -> dict[str, _Any]:
         "cost_per_frame": per_frame,
         "times": times,
         "manual_cost_per_instance": float(manual.cost_per_instance),
-        "fixed": float(fixed),
+        "fixed": float(start_cost),
     }
 
 
@@ -1123,7 +1122,7 @@ def campaign_live(*, campaign: Campaign) -> dict[str, _Any]:
         "eta_s": round(s.projection.seconds_remaining) if s.projection.seconds_remaining is not None else None,
         "live_slots": s.live_slots,
         "failed_open": failed_frames(campaign=c).count(),
-        "series": cost_series(campaign=c),
+        "series": cost_series(campaign=c, start_cost=s.fixed + s.library_share),
         "throughput": throughput(campaign=c),
         "fleet": fleet(),
     }

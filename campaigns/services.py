@@ -193,6 +193,15 @@ def normalize_campaign_budget(budget: Mapping[str, Any] | None) -> dict[str, Any
 # --- campaigns -------------------------------------------------------------------------------------
 
 
+def _target_problem(target: Any) -> str:
+    """Why a quota target cannot be used (a whole number from 0 to :data:`MAX_TARGET_ACCEPTED`), or ""."""
+    if isinstance(target, bool) or not isinstance(target, int):
+        return f"target must be a whole number, got {target!r}"
+    if not 0 <= target <= MAX_TARGET_ACCEPTED:
+        return f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {target}"
+    return ""
+
+
 def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapping[str, Any]) -> list[_CleanQuota]:
     """Check class quotas against the normalized budget; an empty threshold takes the budget's default."""
     max_contrast = FIELDS_BY_KEY["thresholds", "min_contrast"].upper
@@ -223,12 +232,8 @@ def _clean_quota_inputs(*, quotas: Sequence[QuotaInput], normalized_budget: Mapp
         if q.class_name in seen:
             raise CampaignError("listed twice", **where())
         seen.add(q.class_name)
-        if isinstance(q.target_accepted, bool) or not isinstance(q.target_accepted, int):
-            raise CampaignError(f"target must be a whole number, got {q.target_accepted!r}", **where())
-        if not 0 <= q.target_accepted <= MAX_TARGET_ACCEPTED:
-            raise CampaignError(
-                f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {q.target_accepted}", **where()
-            )
+        if problem := _target_problem(q.target_accepted):
+            raise CampaignError(problem, **where())
         vis = (
             thresholds["min_visible_fraction"]
             if q.min_visible_fraction is None
@@ -617,12 +622,7 @@ def _clean_extension_targets(targets: Any) -> dict[str, int]:
     for name, target in targets.items():
         if not isinstance(name, str) or not name or "\x00" in name:
             raise CampaignError(f"class name must be text, got {name!r}", field="quotas")
-        problem = ""
-        if isinstance(target, bool) or not isinstance(target, int):
-            problem = f"target must be a whole number, got {target!r}"
-        elif not 0 <= target <= MAX_TARGET_ACCEPTED:
-            problem = f"target must be between 0 and {MAX_TARGET_ACCEPTED}, got {target}"
-        if problem:
+        if problem := _target_problem(target):
             raise CampaignError(problem, field="quota", class_name=name, column="target_accepted")
         clean[name] = target
     return clean
@@ -1233,7 +1233,7 @@ FAILURE_ALERT_MIN_FRAMES = 10
 def _notification_payload(campaign: Campaign, *, event: str, detail: str) -> dict[str, Any]:
     fresh = Campaign.objects.select_related("team").get(pk=campaign.pk)
     base = str(getattr(django_settings, "PUBLIC_URL", "") or "").rstrip("/")
-    spent = costs.money(selectors.fixed_cost(campaign=fresh) + fresh.compute_cost_spent)
+    spent = selectors.total_spent(campaign=fresh)
     return {
         "event": event,
         "occurred_at": timezone.now().isoformat(),

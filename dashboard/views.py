@@ -225,29 +225,33 @@ def _planner_page(
 
 
 def campaign_create(request: HttpRequest) -> HttpResponse:
+    return _new_campaign_page(request, source=None)
+
+
+def _new_campaign_page(request: HttpRequest, *, source: Campaign | None) -> HttpResponse:
+    """The planning form for a new campaign, empty or filled from ``source`` (a copy); saving makes a draft."""
     if request.method not in ("GET", "POST"):
         return HttpResponseNotAllowed(["GET", "POST"])
     if not teams_for(user=request.user, role=PLANNER).exists():
         return render(request, "campaigns/no_team.html", status=403)
     if request.method == "GET":
-        form = CampaignForm(user=request.user)
-        return _planner_page(request, form, campaign=None, estimate=None)
-    form = CampaignForm(request.POST, user=request.user)
+        form = CampaignForm(user=request.user, source=source)
+        return _planner_page(request, form, campaign=None, estimate=None, source=source)
+    form = CampaignForm(request.POST, user=request.user, source=source)
     estimate = _estimate(request, form)
     if "preview" in request.POST or estimate is None:
-        return _planner_page(
-            request,
-            form,
-            campaign=None,
-            estimate=estimate,
-            status=200 if estimate is not None or "preview" in request.POST else 400,
-        )
+        status = 200 if estimate is not None or "preview" in request.POST else 400
+        return _planner_page(request, form, campaign=None, estimate=estimate, status=status, source=source)
     try:
         campaign = services.create_campaign(owner=request.user, team=form.cleaned_data["team"], **form.service_kwargs())
     except services.CampaignError as exc:
         form.add_service_error(exc)
-        return _planner_page(request, form, campaign=None, estimate=estimate, status=400)
-    messages.success(request, f"Campaign “{campaign.name}” saved as a draft. Start it when the plan looks right.")
+        return _planner_page(request, form, campaign=None, estimate=estimate, status=400, source=source)
+    if source is None:
+        messages.success(request, f"Campaign “{campaign.name}” saved as a draft. Start it when the plan looks right.")
+    else:
+        services.record_copy(campaign_id=campaign.pk, source=source)
+        messages.success(request, f"Campaign “{campaign.name}” saved as a draft, a copy of “{source.name}”.")
     return redirect("campaigns:detail", campaign_id=campaign.pk)
 
 
@@ -300,27 +304,7 @@ def campaign_edit(request: HttpRequest, campaign_id: int) -> HttpResponse:
 
 def campaign_copy(request: HttpRequest, campaign_id: int) -> HttpResponse:
     """The planner form filled with every setting of a campaign the user may see; saving makes a new draft."""
-    source = _campaign(request, campaign_id)
-    if request.method not in ("GET", "POST"):
-        return HttpResponseNotAllowed(["GET", "POST"])
-    if not teams_for(user=request.user, role=PLANNER).exists():
-        return render(request, "campaigns/no_team.html", status=403)
-    if request.method == "GET":
-        form = CampaignForm(user=request.user, source=source)
-        return _planner_page(request, form, campaign=None, estimate=None, source=source)
-    form = CampaignForm(request.POST, user=request.user, source=source)
-    estimate = _estimate(request, form)
-    if "preview" in request.POST or estimate is None:
-        status = 200 if estimate is not None or "preview" in request.POST else 400
-        return _planner_page(request, form, campaign=None, estimate=estimate, status=status, source=source)
-    try:
-        campaign = services.create_campaign(owner=request.user, team=form.cleaned_data["team"], **form.service_kwargs())
-    except services.CampaignError as exc:
-        form.add_service_error(exc)
-        return _planner_page(request, form, campaign=None, estimate=estimate, status=400, source=source)
-    services.record_copy(campaign_id=campaign.pk, source=source)
-    messages.success(request, f"Campaign “{campaign.name}” saved as a draft, a copy of “{source.name}”.")
-    return redirect("campaigns:detail", campaign_id=campaign.pk)
+    return _new_campaign_page(request, source=_campaign(request, campaign_id))
 
 
 def campaign_extend(request: HttpRequest, campaign_id: int) -> HttpResponse:
